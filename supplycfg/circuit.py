@@ -1,0 +1,875 @@
+"""Connections and solving: the generator's steady state in every connection.
+
+The model follows the project's design note. Every winding acts through the
+net mmf per pole, read on the open-circuit characteristic as an equivalent
+shunt-field current
+
+    x = I_sh + c * I_br - F_ar(|Ia|) / N_sh,     c = +-N_se * w / N_sh,
+
+(``w`` the share of the series-branch current ``I_br`` that flows in the
+winding when a diverter is fitted) and the terminal voltage is
+
+    V = (n / n_occ) * OCC(x) - Ia * Ra - I_br * R_br - V_b(Ia).
+
+Operating points against a load are found along the load line, where every
+current is an explicit function of the terminal voltage; all intersections
+are bracketed on a fine grid and refined by vectorised bisection.
+External characteristics of self-excited connections are traced exactly
+through their turn-back: with the circuit written as ``N(x) = L(Ia)`` (both
+one-dimensional functions) the curve is followed piece by piece of monotony.
+
+References
+----------
+Equivalent-field-current method and generator connections: S. J. Chapman,
+*Electric Machinery Fundamentals*, DC generators (from memory); B. L. Theraja,
+*A Textbook of Electrical Technology* Vol II, ch. 26-28.
+"""
+
+from dataclasses import dataclass, field, replace
+
+import numpy as np
+
+from .errors import InputError
+from .magnetisation import ArmatureReaction, OpenCircuitCurve, copper_resistance_factor
+
+CONNECTIONS = (
+    "separate", "separate-cumulative", "separate-differential", "shunt", "series",
+    "long-shunt-cumulative", "short-shunt-cumulative", "long-shunt-differential",
+    "short-shunt-differential",
+)
+SELF_EXCITED = ("shunt", "long-shunt-cumulative", "short-shunt-cumulative",
+                "long-shunt-differential", "short-shunt-differential")
+SEPARATE = ("separate", "separate-cumulative", "separate-differential")
+USES_SERIES = tuple(c for c in CONNECTIONS if c not in ("separate", "shunt"))
+
+#: Brush drop ramps linearly through zero below this share of the rated
+#: armature current (design note: keeps the circuit equations continuous).
+BRUSH_RAMP_FRACTION = 0.01
+#: Currents are searched up to this multiple of the rated armature current.
+CURRENT_SPAN_FACTOR = 10.0
+#: Grid points along the load line before refining each bracket.
+LOAD_LINE_GRID = 4001
+#: Bisection steps (halves a bracket 2**-60: below double precision).
+BISECTION_STEPS = 60
+
+
+@dataclass(frozen=True)
+class Setting:
+    """One way of running the machine.
+
+    Parameters
+    ----------
+    connection : str
+        One of :data:`CONNECTIONS`.
+    rheostat_ohm : float, optional
+        Field rheostat [ohm] in series with the shunt winding; 0 when omitted.
+        For separate excitation it sets the field current from the exciter
+        voltage, ``Iexc = Vexc / (Rsh(T) + Rrh)``.
+    field_current_a : float, optional
+        Separate excitation: the field current [A] directly.
+    series_turns : float, optional
+        Series turns per pole in use (a tap); default the whole winding.
+    diverter_ohm : float, optional
+        Diverter resistance [ohm] across the series winding; ``None`` for none.
+    speed_rpm : float, optional
+        Drive speed [rpm]; default the rated speed.
+    winding_temperature_c : float, optional
+        Copper temperature [degC]; default the machine's reference temperature.
+    """
+
+    connection: str
+    rheostat_ohm: float | None = None
+    field_current_a: float | None = None
+    series_turns: float | None = None
+    diverter_ohm: float | None = None
+    speed_rpm: float | None = None
+    winding_temperature_c: float | None = None
+
+    def as_dict(self):
+        return {"connection": self.connection, "rheostat_ohm": self.rheostat_ohm,
+                "field_current_a": self.field_current_a, "series_turns": self.series_turns,
+                "diverter_ohm": self.diverter_ohm, "speed_rpm": self.speed_rpm,
+                "winding_temperature_c": self.winding_temperature_c}
+
+
+def allowed_connections(machine):
+    """Connections the machine's windings allow."""
+    if machine.has_series:
+        return CONNECTIONS
+    return ("separate", "shunt")
+
+
+def check_setting(machine, setting, source="setting", names=None):
+    """Complete a setting with its defaults and check it against the machine.
+
+    Parameters
+    ----------
+    names : dict, optional
+        Maps field names to what the person typed (e.g. ``--rheostat-ohm``)
+        so the message names the option.
+
+    Returns
+    -------
+    Setting
+        With ``speed_rpm``, ``winding_temperature_c``, ``series_turns`` and
+        the rheostat or field current filled in.
+    """
+    names = names or {}
+
+    def err(key, msg):
+        raise InputError(source, names.get(key, key), msg)
+
+    s = setting
+    if s.connection not in CONNECTIONS:
+        err("connection", f"is {s.connection!r}; allowed: {', '.join(CONNECTIONS)}")
+    if s.connection not in allowed_connections(machine):
+        err("connection", f"{s.connection!r} needs a series winding, which this machine has not; allowed: {', '.join(allowed_connections(machine))}")
+    for key in ("rheostat_ohm", "field_current_a", "series_turns", "diverter_ohm",
+                "speed_rpm", "winding_temperature_c"):
+        v = getattr(s, key)
+        if v is not None and (isinstance(v, bool) or not np.isfinite(float(v))):
+            err(key, f"is {v!r}; allowed: a finite number")
+    speed = machine.rated_speed_rpm if s.speed_rpm is None else float(s.speed_rpm)
+    if not 0 < speed <= 100_000:
+        err("speed_rpm", f"is {speed:g}; allowed: > 0 and <= 100000 rpm")
+    temp = machine.reference_temperature_c if s.winding_temperature_c is None else float(s.winding_temperature_c)
+    if not -60 <= temp <= 250:
+        err("winding_temperature_c", f"is {temp:g}; allowed: -60 to 250 degC")
+    rh, fi = s.rheostat_ohm, s.field_current_a
+    if rh is not None and fi is not None:
+        err("field_current_a", "given together with the rheostat; allowed: one of the two")
+    if s.connection in SEPARATE:
+        if fi is None:
+            if machine.excitation_voltage_v is None:
+                err("field_current_a", "is needed for separate excitation (the machine file gives no excitation_voltage_v)")
+            rh = 0.0 if rh is None else rh
+        elif fi < 0:
+            err("field_current_a", f"is {fi:g}; allowed: >= 0 A")
+    else:
+        if fi is not None:
+            err("field_current_a", f"applies to separate excitation only, not {s.connection!r}; use the rheostat")
+        rh = 0.0 if rh is None else rh
+    if rh is not None and not 0 <= rh <= machine.rheostat_max_ohm * (1 + 1e-12):
+        err("rheostat_ohm", f"is {rh:g}; allowed: 0 to {machine.rheostat_max_ohm:g} ohm (the machine's rheostat)")
+    nse = s.series_turns
+    if s.connection in USES_SERIES:
+        if nse is None:
+            nse = machine.series_turns_per_pole
+        nse = float(nse)
+        if not any(abs(nse - t) < 1e-9 for t in machine.series_taps):
+            err("series_turns", f"is {nse:g}; allowed taps: {', '.join(f'{t:g}' for t in machine.series_taps)}")
+        if s.connection == "series" and nse <= 0:
+            err("series_turns", "is 0; a series machine needs its series turns")
+        if s.connection.startswith("short-shunt") and nse >= machine.shunt_turns_per_pole:
+            err("series_turns", "must be fewer than the shunt turns for a short-shunt connection")
+    else:
+        if nse not in (None, 0, 0.0):
+            err("series_turns", f"does not apply to {s.connection!r}; allowed: omit it or 0")
+        nse = 0.0
+    d = s.diverter_ohm
+    if d is not None:
+        if s.connection not in USES_SERIES:
+            err("diverter_ohm", f"does not apply to {s.connection!r} (no series winding in circuit)")
+        if not d > 0:
+            err("diverter_ohm", f"is {d:g}; allowed: > 0 ohm, or omit for none")
+    return replace(s, rheostat_ohm=None if rh is None else float(rh),
+                   field_current_a=None if fi is None else float(fi),
+                   series_turns=nse, speed_rpm=speed, winding_temperature_c=temp,
+                   diverter_ohm=None if d is None else float(d))
+
+
+# ---------------------------------------------------------------------------
+# vectorised circuit parameters
+# ---------------------------------------------------------------------------
+
+@dataclass
+class Circuit:
+    """Per-candidate circuit parameters, each an array of shape (n,)."""
+
+    machine: object
+    occ: OpenCircuitCurve
+    ar: ArmatureReaction
+    settings: list
+    kind: np.ndarray          # 0 separate (field fixed), 1 self-excited, 2 series
+    short: np.ndarray         # bool: short-shunt
+    branch: np.ndarray        # 0 none, 1 branch carries Ia, 2 branch carries IL
+    s: np.ndarray             # speed ratio n / n_occ
+    ra: np.ndarray            # armature resistance at temperature [ohm]
+    rbr: np.ndarray           # series-branch resistance [ohm]
+    c: np.ndarray             # equivalent field current per branch ampere [A/A]
+    rf: np.ndarray            # shunt field circuit resistance [ohm]
+    x0: np.ndarray            # separate excitation current [A]
+    vb: float                 # full brush drop [V]
+    ir: float                 # brush ramp current [A]
+    nsh: float
+    imax: float
+
+    @property
+    def n(self):
+        return len(self.settings)
+
+    def take(self, idx):
+        """Parameters for candidate indices ``idx`` (broadcastable)."""
+        return {k: getattr(self, k)[idx] for k in ("kind", "short", "branch", "s", "ra", "rbr", "c", "rf", "x0")}
+
+
+def build_circuit(machine, settings):
+    """Check settings and gather their parameters as arrays."""
+    settings = [check_setting(machine, s) for s in settings]
+    occ = OpenCircuitCurve.from_machine(machine)
+    ar = ArmatureReaction.from_machine(machine)
+    n = len(settings)
+    kind = np.zeros(n, int); short = np.zeros(n, bool); branch = np.zeros(n, int)
+    s_ = np.zeros(n); ra = np.zeros(n); rbr = np.zeros(n); c = np.zeros(n)
+    rf = np.zeros(n); x0 = np.zeros(n)
+    for i, st in enumerate(settings):
+        ct = float(copper_resistance_factor(st.winding_temperature_c, machine.reference_temperature_c))
+        s_[i] = st.speed_rpm / machine.occ_speed_rpm
+        ra[i] = machine.armature_resistance_ohm * ct
+        rsh = machine.shunt_field_resistance_ohm * ct
+        rf[i] = rsh + (st.rheostat_ohm or 0.0)
+        conn = st.connection
+        if conn in USES_SERIES and st.series_turns > 0:
+            rse = machine.series_field_resistance_ohm * ct * st.series_turns / machine.series_turns_per_pole
+            if st.diverter_ohm is not None:
+                rbr[i] = rse * st.diverter_ohm / (rse + st.diverter_ohm)
+                w = st.diverter_ohm / (rse + st.diverter_ohm)
+            else:
+                rbr[i], w = rse, 1.0
+            sign = -1.0 if conn.endswith("differential") else 1.0
+            c[i] = sign * st.series_turns * w / machine.shunt_turns_per_pole
+        if conn in SEPARATE:
+            kind[i] = 0
+            x0[i] = st.field_current_a if st.field_current_a is not None else machine.excitation_voltage_v / rf[i]
+            branch[i] = 0 if conn == "separate" else 2
+        elif conn == "series":
+            kind[i], branch[i] = 2, 2
+        else:
+            kind[i] = 1
+            if conn.startswith("long"):
+                branch[i] = 1
+            elif conn.startswith("short"):
+                branch[i], short[i] = 2, True
+    return Circuit(machine, occ, ar, settings, kind, short, branch, s_, ra, rbr, c, rf, x0,
+                   float(machine.brush_drop_v), BRUSH_RAMP_FRACTION * machine.rated_armature_current_a,
+                   float(machine.shunt_turns_per_pole), CURRENT_SPAN_FACTOR * machine.rated_armature_current_a)
+
+
+def brush_drop(armature_current_a, full_drop_v, ramp_current_a, with_slope=False):
+    """Total brush contact drop [V], full beyond the ramp current, linear through zero inside.
+
+    References
+    ----------
+    About 2 V for a pair of carbon brushes (Theraja Vol II Ex 26.4-26.5; common practice).
+    """
+    ia = np.asarray(armature_current_a, float)
+    u = np.clip(ia / ramp_current_a, -1.0, 1.0)
+    v = full_drop_v * u
+    if with_slope:
+        return v, np.where(np.abs(ia) < ramp_current_a, full_drop_v / ramp_current_a, 0.0)
+    return v
+
+
+def currents_from_voltage(p, v, il, rbr_vb=None):
+    """Shunt, armature and branch currents from terminal voltage and load current."""
+    kind, short, branch = p["kind"], p["short"], p["branch"]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        ish_self = np.where(short, (v + il * p["rbr"]) / p["rf"], v / p["rf"])
+    ish = np.where(kind == 1, ish_self, 0.0)
+    ia = il + ish
+    ibr = np.where(branch == 1, ia, np.where(branch == 2, il, 0.0))
+    field = np.where(kind == 0, p["x0"], ish)
+    return field, ia, ibr
+
+
+def machine_state(circ, p, v, il):
+    """Everything at terminal voltage ``v`` [V] and load current ``il`` [A].
+
+    Returns a dict with the currents, the equivalent field current ``x``, the
+    EMF ``e`` at speed and the circuit residual ``h`` [V] (zero on the machine's
+    characteristic; negative slope in ``v`` along a load line means stable).
+    """
+    field, ia, ibr = currents_from_voltage(p, v, il)
+    far = circ.ar.mmf(ia) / circ.nsh
+    x = field + p["c"] * ibr - far
+    e = p["s"] * circ.occ.emf(x)
+    h = e - ia * p["ra"] - ibr * p["rbr"] - brush_drop(ia, circ.vb, circ.ir) - v
+    ish = np.where(p["kind"] == 0, p["x0"], np.where(p["kind"] == 1, field, 0.0))
+    return {"terminal_voltage_v": v, "load_current_a": il, "armature_current_a": ia,
+            "shunt_field_current_a": ish, "series_field_current_a": ibr * _winding_share(circ, p),
+            "series_branch_current_a": ibr, "generated_emf_v": e, "x": x, "h": h}
+
+
+def _winding_share(circ, p):
+    nse = np.array([s.series_turns for s in circ.settings])[p["idx"]] if "idx" in p else None
+    if nse is None:
+        return 1.0
+    with np.errstate(divide="ignore", invalid="ignore"):
+        share = np.where(nse > 0, np.abs(p["c"]) * circ.nsh / np.where(nse > 0, nse, 1.0), 0.0)
+    return share
+
+
+def _params(circ, idx):
+    p = circ.take(idx)
+    p["idx"] = idx
+    return p
+
+
+# ---------------------------------------------------------------------------
+# loads and operating points
+# ---------------------------------------------------------------------------
+
+@dataclass(frozen=True)
+class Load:
+    """A load as a line in the (load current, terminal voltage) plane.
+
+    ``V = v0 + slope_ohm * IL`` (resistor: ``v0 = 0``; battery: EMF and
+    resistance; welding load line: ``U0`` and ``k``), or a constant current
+    ``IL = current_a`` when ``current_a`` is given.
+    """
+
+    v0: float = 0.0
+    slope_ohm: float = 0.0
+    current_a: float | None = None
+    label: str = ""
+
+    @classmethod
+    def resistor(cls, ohm):
+        return cls(0.0, float(ohm), None, f"resistor {ohm:g} ohm")
+
+    @classmethod
+    def constant_current(cls, amps):
+        return cls(0.0, 0.0, float(amps), f"constant current {amps:g} A")
+
+    @classmethod
+    def battery(cls, emf_v, ohm):
+        return cls(float(emf_v), float(ohm), None, f"battery {emf_v:g} V, {ohm:g} ohm")
+
+    @classmethod
+    def line(cls, v0, slope_ohm):
+        return cls(float(v0), float(slope_ohm), None, f"line {v0:g} V + {slope_ohm:g} ohm")
+
+
+@dataclass
+class OperatingPoints:
+    """All intersections of a setting's characteristic with a load.
+
+    Attributes
+    ----------
+    points : list of dict
+        Highest terminal voltage first; each with the curve-point keys and
+        ``stable``.
+    converged : bool
+        False if a bracket could not be refined to the residual tolerance.
+    """
+
+    points: list
+    converged: bool = True
+    message: str = ""
+
+    @property
+    def normal(self):
+        """The point the machine sits at: the highest stable intersection."""
+        for pt in self.points:
+            if pt["stable"]:
+                return pt
+        return None
+
+
+POINT_KEYS = ("terminal_voltage_v", "load_current_a", "armature_current_a",
+              "shunt_field_current_a", "series_field_current_a", "generated_emf_v")
+
+
+def _bisect(fun, a, b, fa, steps=BISECTION_STEPS):
+    """Vectorised bisection of ``fun`` on brackets ``[a, b]`` with ``fun(a) = fa``."""
+    for _ in range(steps):
+        m = 0.5 * (a + b)
+        fm = fun(m)
+        left = np.sign(fm) == np.sign(fa)
+        a = np.where(left, m, a)
+        fa = np.where(left, fm, fa)
+        b = np.where(left, b, m)
+    return 0.5 * (a + b)
+
+
+def _voltage_span(circ, idx):
+    """Highest terminal voltage worth searching for candidates ``idx`` [V]."""
+    xs = circ.occ.last_field_current_a
+    top = circ.occ.emf(3 * xs + np.abs(circ.c[idx]) * circ.imax + circ.x0[idx])
+    return 1.2 * circ.s[idx] * top + 1.0
+
+
+def solve_operating_points(circ, loads, idx=None, grid=LOAD_LINE_GRID):
+    """Operating points of candidates ``idx`` against ``loads`` (one load each).
+
+    Parameters
+    ----------
+    circ : Circuit
+    loads : sequence of Load, same length as ``idx``
+    idx : array of int, optional
+        Candidate index for each load (default ``arange(circ.n)``).
+
+    Returns
+    -------
+    list of OperatingPoints
+    """
+    idx = np.arange(circ.n) if idx is None else np.asarray(idx, int)
+    m = len(idx)
+    p = _params(circ, idx[:, None])
+    v0 = np.array([ld.v0 for ld in loads], float)[:, None]
+    k = np.array([ld.slope_ohm for ld in loads], float)[:, None]
+    cur = np.array([np.nan if ld.current_a is None else ld.current_a for ld in loads], float)[:, None]
+    fixed_current = np.isfinite(cur)
+    fixed_voltage = ~fixed_current & (k <= 0)
+    vtop = _voltage_span(circ, idx)[:, None]
+    vtop = np.maximum(vtop, np.where(fixed_current, 0, v0 + 1.0))
+    t = np.linspace(0.0, 1.0, grid)[None, :]
+    # parameter: terminal voltage in [0, vtop], or load current in [-imax, imax]
+    by_current = fixed_voltage
+
+    def point(tt):
+        v = np.where(by_current, v0, tt * vtop)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            il = np.where(fixed_current, cur,
+                          np.where(by_current, (2 * tt - 1) * circ.imax, (v - v0) / np.where(k > 0, k, 1.0)))
+        return v, il
+
+    def resid(tt):
+        v, il = point(tt)
+        return machine_state(circ, p, v, il)["h"]
+
+    h = resid(t)
+    # stable when the residual falls as the parameter rises (V up, or IL up at fixed V)
+    sign_change = np.signbit(h[:, :-1]) != np.signbit(h[:, 1:])
+    exact = h[:, :-1] == 0
+    rows, cols = np.nonzero(sign_change | exact)
+    out = [[] for _ in range(m)]
+    ok = True
+    if rows.size:
+        a = t[0, cols]; b = t[0, cols + 1]; fa = h[rows, cols]
+        pr = {kk: vv[rows, 0] if np.ndim(vv) else vv for kk, vv in p.items()}
+        vv0, kk_, cc, fc, bc, vt = v0[rows, 0], k[rows, 0], cur[rows, 0], fixed_current[rows, 0], by_current[rows, 0], vtop[rows, 0]
+
+        def pt_rows(tt):
+            v = np.where(bc, vv0, tt * vt)
+            with np.errstate(divide="ignore", invalid="ignore"):
+                il = np.where(fc, cc, np.where(bc, (2 * tt - 1) * circ.imax, (v - vv0) / np.where(kk_ > 0, kk_, 1.0)))
+            return v, il
+
+        def res_rows(tt):
+            v, il = pt_rows(tt)
+            return machine_state(circ, pr, v, il)["h"]
+
+        root = _bisect(res_rows, a, b, fa)
+        v, il = pt_rows(root)
+        st = machine_state(circ, pr, v, il)
+        falling = h[rows, cols + 1] < h[rows, cols]
+        scale = 1e-6 * np.maximum(1.0, np.abs(v))
+        good = np.abs(st["h"]) <= np.maximum(1e-6, scale)
+        ok = bool(np.all(good))
+        inside = np.abs(st["armature_current_a"]) <= circ.imax * (1 + 1e-9)
+        ext = circ.occ.extrapolated(st["x"])
+        for j in range(rows.size):
+            if not inside[j]:
+                continue
+            d = {kk: float(st[kk][j]) for kk in POINT_KEYS}
+            d["extrapolated"] = bool(ext[j])
+            d["stable"] = bool(falling[j])
+            d["residual_v"] = float(st["h"][j])
+            out[rows[j]].append(d)
+    res = []
+    for lst in out:
+        lst = _dedupe(lst)
+        lst.sort(key=lambda d: -d["terminal_voltage_v"])
+        res.append(OperatingPoints(lst, ok, "" if ok else "a root did not reach the residual tolerance"))
+    return res
+
+
+def _dedupe(lst):
+    keep = []
+    for d in lst:
+        if keep and abs(d["terminal_voltage_v"] - keep[-1]["terminal_voltage_v"]) < 1e-9 and \
+                abs(d["load_current_a"] - keep[-1]["load_current_a"]) < 1e-9:
+            continue
+        keep.append(d)
+    return keep
+
+
+def operating_points(machine, setting, load):
+    """Every operating point of one setting against one load.
+
+    Parameters
+    ----------
+    machine : Machine
+    setting : Setting
+    load : Load
+
+    Returns
+    -------
+    OperatingPoints
+    """
+    circ = build_circuit(machine, [setting])
+    return solve_operating_points(circ, [load])[0]
+
+
+# ---------------------------------------------------------------------------
+# external characteristics
+# ---------------------------------------------------------------------------
+
+@dataclass
+class Characteristic:
+    """An external characteristic, from no load along the normal branch.
+
+    Arrays follow the curve; scalar figures are ``None`` when undefined
+    within the searched span (10 x rated armature current).
+    """
+
+    setting: Setting
+    points: dict
+    no_load_voltage_v: float | None
+    short_circuit_current_a: float | None
+    max_load_current_a: float | None
+    regulation_percent: float | None
+    extrapolated: bool
+    converged: bool = True
+    message: str = ""
+    notes: list = field(default_factory=list)
+
+    def point_list(self):
+        n = len(self.points["terminal_voltage_v"])
+        return [{k: (bool(self.points[k][i]) if k == "extrapolated" else float(self.points[k][i]))
+                 for k in POINT_KEYS + ("extrapolated",)} for i in range(n)]
+
+
+def _runs(vals):
+    """Cell-wise sign of the slope with flats merged into their neighbours."""
+    d = np.sign(np.diff(vals))
+    if not np.any(d):
+        return np.ones_like(d)
+    # carry last non-zero sign forward, then backward for leading zeros
+    nz = np.flatnonzero(d)
+    idx = np.maximum.accumulate(np.where(d != 0, np.arange(d.size), -1))
+    first = nz[0]
+    idx[idx < 0] = first
+    return d[idx]
+
+
+def _run_bounds(sign, cell):
+    """First and last cell of the run of equal slope sign containing ``cell``."""
+    sgn = sign[cell]
+    lo = cell
+    while lo > 0 and sign[lo - 1] == sgn:
+        lo -= 1
+    hi = cell
+    while hi < sign.size - 1 and sign[hi + 1] == sgn:
+        hi += 1
+    return lo, hi
+
+
+def _grids(circ):
+    occ = circ.occ
+    xl = occ.last_field_current_a
+    span = 3 * xl + np.max(np.abs(circ.c)) * circ.imax + float(circ.ar.mmf(circ.imax)) / circ.nsh \
+        + np.max(circ.x0)
+    xg = np.unique(np.concatenate([np.linspace(-span, span, 2049), occ.knots()]))
+    ig = np.unique(np.concatenate([np.linspace(0, circ.ir, 9),
+                                   np.geomspace(circ.ir, circ.imax, 1200),
+                                   circ.ar.knots()[circ.ar.knots() < circ.imax]]))
+    return xg, ig
+
+
+def _n_fun(circ, p, x):
+    g = np.where(p["short"], p["rf"] / (1 - p["c"]), p["rf"])
+    return p["s"] * circ.occ.emf(x) - g * x
+
+
+def _l_fun(circ, p, ia):
+    g = np.where(p["short"], p["rf"] / (1 - p["c"]), p["rf"])
+    rl = np.where(p["branch"] == 1, p["ra"] + p["rbr"], p["ra"])
+    far = circ.ar.mmf(ia) / circ.nsh
+    return ia * rl + brush_drop(ia, circ.vb, circ.ir) + g * (far - p["c"] * ia)
+
+
+def _state_from_x_ia(circ, p, x, ia):
+    """Terminal quantities of a self-excited candidate at (x, Ia)."""
+    g = np.where(p["short"], p["rf"] / (1 - p["c"]), p["rf"])
+    far = circ.ar.mmf(ia) / circ.nsh
+    ish = (x - p["c"] * ia + far) * g / p["rf"]
+    il = ia - ish
+    v = np.where(p["short"], ish * p["rf"] - il * p["rbr"], ish * p["rf"])
+    return v, il
+
+
+def _trace_self_excited(circ, i, xg, ig, ng, lg, samples=48):
+    """Walk the curve N(x) = L(Ia) of candidate ``i`` from Ia = 0.
+
+    Returns a list of segments ``(lam_a, lam_b, n_lo, n_hi, l_lo, l_hi)`` and
+    a note when the walk ended early.
+    """
+    sn, sl = _runs(ng), _runs(lg)
+    # stable no-load root: highest x where N crosses zero downward
+    down = (ng[:-1] >= 0) & (ng[1:] < 0)
+    cells = np.flatnonzero(down & (xg[:-1] >= -1e-12))
+    if cells.size == 0:
+        return [], "no built-up no-load point on the searched span"
+    cn = int(cells[-1])
+    n_lo, n_hi = _run_bounds(sn, cn)
+    l_lo, l_hi = _run_bounds(sl, 0)
+    dl = 1
+    lam = float(lg[0])
+    dlam = int(sl[l_lo]) * dl
+    dn = dlam * int(sn[n_lo])
+    segs = []
+    note = ""
+    for _ in range(60):
+        e_l = l_hi + 1 if dl > 0 else l_lo
+        e_n = n_hi + 1 if dn > 0 else n_lo
+        lam_l, lam_n = float(lg[e_l]), float(ng[e_n])
+        if abs(lam_l - lam) <= abs(lam_n - lam):
+            segs.append((lam, lam_l, n_lo, n_hi, l_lo, l_hi))
+            lam = lam_l
+            nxt = e_l if dl > 0 else e_l - 1
+            if nxt < 0 or nxt >= sl.size:
+                if dl > 0:
+                    note = "the curve reaches the searched current span"
+                break
+            l_lo, l_hi = _run_bounds(sl, nxt)
+            dlam, dn = -dlam, -dn
+        else:
+            segs.append((lam, lam_n, n_lo, n_hi, l_lo, l_hi))
+            lam = lam_n
+            nxt = e_n if dn > 0 else e_n - 1
+            if nxt < 0 or nxt >= sn.size:
+                note = "the curve reaches the searched field span"
+                break
+            n_lo, n_hi = _run_bounds(sn, nxt)
+            dlam, dl = -dlam, -dl
+        # stop once the polyline has reached zero voltage
+        lam_s = np.linspace(segs[-1][0], segs[-1][1], samples)
+        x_a, ia_a = _invert_approx(xg, ng, ig, lg, segs[-1], lam_s)
+        v_a, _ = _state_from_x_ia(circ, _params(circ, np.array([i])), x_a, ia_a)
+        if np.any(v_a <= 0):
+            break
+    return segs, note
+
+
+def _invert_approx(xg, ng, ig, lg, seg, lam):
+    lam_a, lam_b, n_lo, n_hi, l_lo, l_hi = seg
+    xs, ns = xg[n_lo:n_hi + 2], ng[n_lo:n_hi + 2]
+    is_, ls = ig[l_lo:l_hi + 2], lg[l_lo:l_hi + 2]
+    if ns[-1] < ns[0]:
+        xs, ns = xs[::-1], ns[::-1]
+    if ls[-1] < ls[0]:
+        is_, ls = is_[::-1], ls[::-1]
+    return np.interp(lam, ns, xs), np.interp(lam, ls, is_)
+
+
+def _cells(grid_x, grid_y, lo, hi, lam):
+    """Bracketing cell ends of ``lam`` on the monotone run lo..hi."""
+    xs, ys = grid_x[lo:hi + 2], grid_y[lo:hi + 2]
+    if ys[-1] < ys[0]:
+        xs, ys = xs[::-1], ys[::-1]
+    j = np.clip(np.searchsorted(ys, lam), 1, len(ys) - 1)
+    return xs[j - 1], xs[j]
+
+
+def characteristics(machine, settings, points=400):
+    """External characteristics of many settings in one call.
+
+    Parameters
+    ----------
+    machine : Machine
+    settings : sequence of Setting
+    points : int
+        Points along each curve, from no load to zero terminal voltage (or
+        the searched span of 10 x rated armature current).
+
+    Returns
+    -------
+    list of Characteristic
+    """
+    circ = build_circuit(machine, settings)
+    return characteristics_of(circ, points)
+
+
+def external_characteristic(machine, setting, points=400):
+    """External characteristic of one setting; see :func:`characteristics`."""
+    return characteristics(machine, [setting], points)[0]
+
+
+def characteristics_of(circ, points=400):
+    n = circ.n
+    idx = np.arange(n)
+    p_all = _params(circ, idx)
+    # --- explicit connections: parameter Ia from 0 ----------------------
+    curves = [None] * n
+    exp = np.flatnonzero(circ.kind != 1)
+    if exp.size:
+        ia_dense = np.linspace(0, circ.imax, 2001)[None, :]
+        pe = _params(circ, exp[:, None])
+        v_dense = _explicit_v(circ, pe, ia_dense)
+        below = v_dense <= 0
+        first = np.where(below.any(axis=1), below.argmax(axis=1), ia_dense.shape[1] - 1)
+        ia_end = ia_dense[0, first]
+        # exact end: bisection between the bracketing dense points
+        lo = ia_dense[0, np.maximum(first - 1, 0)]
+        has_zero = below.any(axis=1) & (first > 0)
+        f = lambda ia: _explicit_v(circ, _params(circ, exp), ia)
+        ia_zero = _bisect(f, lo, ia_end, f(lo))
+        ia_end = np.where(has_zero, ia_zero, np.where(below.any(axis=1), 0.0, circ.imax))
+        frac = np.linspace(0, 1, points)[None, :]
+        ia = ia_end[:, None] * frac
+        curves_exp = (exp, ia, has_zero)
+    # --- self-excited: walk N(x) = L(Ia) --------------------------------
+    slf = np.flatnonzero(circ.kind == 1)
+    seg_info = {}
+    if slf.size:
+        xg, ig = _grids(circ)
+        ps = _params(circ, slf[:, None])
+        ng = _n_fun(circ, ps, xg[None, :])
+        lg = _l_fun(circ, ps, ig[None, :])
+        pick_cand, pick_lam, pick_xa, pick_xb, pick_ia, pick_ib = [], [], [], [], [], []
+        for r, i in enumerate(slf):
+            segs, note = _trace_self_excited(circ, i, xg, ig, ng[r], lg[r])
+            if not segs:
+                seg_info[i] = ([], note)
+                continue
+            lam_all, seg_id = [], []
+            for sid, seg in enumerate(segs):
+                lam = np.linspace(seg[0], seg[1], 48)
+                lam_all.append(lam); seg_id.append(np.full(lam.size, sid))
+            lam_all = np.concatenate(lam_all); seg_id = np.concatenate(seg_id)
+            xa = np.empty_like(lam_all); iaa = np.empty_like(lam_all)
+            for sid, seg in enumerate(segs):
+                msk = seg_id == sid
+                xa[msk], iaa[msk] = _invert_approx(xg, ng[r], ig, lg[r], seg, lam_all[msk])
+            pi = _params(circ, np.full(lam_all.size, i))
+            va, ila = _state_from_x_ia(circ, pi, xa, iaa)
+            # from the first non-negative load current to the first zero voltage
+            start = int(np.argmax(ila >= 0)) if np.any(ila >= 0) else 0
+            neg = np.flatnonzero(va[start:] <= 0)
+            stop = start + int(neg[0]) if neg.size else lam_all.size - 1
+            sl = slice(max(start - 1, 0), stop + 1)
+            va_s, il_s, lam_s, sid_s = va[sl], ila[sl], lam_all[sl], seg_id[sl]
+            # arclength in per-unit terms
+            dv = np.diff(va_s) / circ.machine.rated_voltage_v
+            di = np.diff(il_s) / circ.machine.rated_armature_current_a
+            arc = np.concatenate([[0], np.cumsum(np.hypot(dv, di))])
+            target = np.linspace(0, arc[-1], points)
+            j = np.clip(np.searchsorted(arc, target, side="right") - 1, 0, max(arc.size - 2, 0))
+            # interpolate lambda within the same segment only
+            same = sid_s[np.minimum(j + 1, sid_s.size - 1)] == sid_s[j]
+            w = np.where(arc[np.minimum(j + 1, arc.size - 1)] > arc[j],
+                         (target - arc[j]) / np.maximum(arc[np.minimum(j + 1, arc.size - 1)] - arc[j], 1e-300), 0)
+            lam_t = np.where(same, lam_s[j] + w * (lam_s[np.minimum(j + 1, lam_s.size - 1)] - lam_s[j]), lam_s[j])
+            sid_t = sid_s[j]
+            for sid in np.unique(sid_t):
+                seg = segs[sid]
+                msk = sid_t == sid
+                xa_, xb_ = _cells(xg, ng[r], seg[2], seg[3], lam_t[msk])
+                ia_, ib_ = _cells(ig, lg[r], seg[4], seg[5], lam_t[msk])
+                pick_cand.append(np.full(msk.sum(), i)); pick_lam.append(lam_t[msk])
+                pick_xa.append(xa_); pick_xb.append(xb_); pick_ia.append(ia_); pick_ib.append(ib_)
+            seg_info[i] = (np.flatnonzero(np.ones(points)), note)
+        if pick_cand:
+            cand = np.concatenate(pick_cand); lam = np.concatenate(pick_lam)
+            pc = _params(circ, cand)
+            xa, xb = np.concatenate(pick_xa), np.concatenate(pick_xb)
+            ia_a, ia_b = np.concatenate(pick_ia), np.concatenate(pick_ib)
+            fx = lambda xx: _n_fun(circ, pc, xx) - lam
+            x = _bisect(fx, xa, xb, fx(xa))
+            fi = lambda ii: _l_fun(circ, pc, ii) - lam
+            ia_s = _bisect(fi, ia_a, ia_b, fi(ia_a))
+            v_s, il_s = _state_from_x_ia(circ, pc, x, ia_s)
+    # --- assemble ---------------------------------------------------------
+    result = []
+    for i in range(n):
+        st = circ.settings[i]
+        if circ.kind[i] != 1:
+            r = int(np.flatnonzero(curves_exp[0] == i)[0])
+            ia_i = curves_exp[1][r]
+            pi = _params(circ, np.full(ia_i.size, i))
+            state = _explicit_state(circ, pi, ia_i)
+            note = "" if curves_exp[2][r] else "terminal voltage stays above zero up to the searched span"
+        else:
+            msk = cand == i if slf.size and pick_cand else np.zeros(0, bool)
+            if not np.any(msk):
+                result.append(Characteristic(st, {k: np.zeros(0) for k in POINT_KEYS + ("extrapolated",)},
+                                             None, None, None, None, False, False, seg_info.get(i, ([], ""))[1]))
+                continue
+            pi = _params(circ, np.full(int(msk.sum()), i))
+            state = machine_state(circ, pi, v_s[msk], il_s[msk])
+            note = seg_info[i][1]
+        result.append(_finish(circ, i, st, state, note))
+    return result
+
+
+def _explicit_v(circ, p, ia):
+    x = p["x0"] * (p["kind"] == 0) + p["c"] * ia - circ.ar.mmf(ia) / circ.nsh
+    rl = p["ra"] + np.where(p["branch"] > 0, p["rbr"], 0.0)
+    return p["s"] * circ.occ.emf(x) - ia * rl - brush_drop(ia, circ.vb, circ.ir)
+
+
+def _explicit_state(circ, p, ia):
+    v = _explicit_v(circ, p, ia)
+    return machine_state(circ, p, v, ia)
+
+
+def _finish(circ, i, st, state, note):
+    v = state["terminal_voltage_v"]; il = state["load_current_a"]
+    # the first point is the exact no-load state
+    pts = {k: np.asarray(state[k], float).copy() for k in POINT_KEYS}
+    pts["extrapolated"] = circ.occ.extrapolated(state["x"])
+    m = circ.machine
+    notes = [note] if note else []
+    # exact no-load, short-circuit and rated-current points from the load-line solver
+    loads = [Load.constant_current(0.0), Load(0.0, 0.0, None, "short circuit"),
+             Load.constant_current(m.rated_armature_current_a)]
+    ops = solve_operating_points(circ, loads, np.full(3, i))
+    nl = _nearest(ops[0].points, v[0] if v.size else None, il[0] if v.size else None)
+    if nl is not None:
+        for k in POINT_KEYS:
+            pts[k][0] = nl[k]
+        pts["extrapolated"][0] = nl["extrapolated"]
+    ended_at_zero = v.size > 1 and v[-1] <= 1e-6 * max(1.0, abs(v[0]))
+    sc = None
+    if v.size > 1 and (np.any(v <= 0) or ended_at_zero or (circ.kind[i] != 1 and "stays above" not in note)):
+        cand = _nearest(ops[1].points, 0.0, il[-1])
+        if cand is not None:
+            sc = cand["load_current_a"]
+            for k in POINT_KEYS:
+                pts[k][-1] = cand[k]
+            pts["extrapolated"][-1] = cand["extrapolated"]
+    ilp = pts["load_current_a"]
+    if ilp.size >= 3:
+        j = int(np.argmax(ilp))
+        if 0 < j < ilp.size - 1:
+            # parabola through the three samples around the fold
+            y0, y1, y2 = ilp[j - 1], ilp[j], ilp[j + 1]
+            den = y0 - 2 * y1 + y2
+            imax = y1 - 0.125 * (y2 - y0) ** 2 / den if den < 0 else y1
+        else:
+            imax = float(ilp[j])
+    else:
+        imax = None
+    if sc is None and not np.any(pts["terminal_voltage_v"] <= 0):
+        imax = None if "span" in note else imax
+    vnl = nl["terminal_voltage_v"] if nl is not None else None
+    reg = None
+    if vnl is not None:
+        # the rated-current point reached along the curve from no load
+        cross = np.flatnonzero(ilp >= m.rated_armature_current_a)
+        if cross.size:
+            vr = _nearest(ops[2].points, pts["terminal_voltage_v"][cross[0]], m.rated_armature_current_a)
+            if vr is not None and vr["terminal_voltage_v"] > 0:
+                reg = 100.0 * (vnl - vr["terminal_voltage_v"]) / vr["terminal_voltage_v"]
+    conv = all(o.converged for o in ops)
+    return Characteristic(st, pts, vnl, sc, float(imax) if imax is not None else None, reg,
+                          bool(np.any(pts["extrapolated"])), conv,
+                          "" if conv else "a point did not converge", notes)
+
+
+def _nearest(points, v, il):
+    if not points or v is None:
+        return None
+    return min(points, key=lambda d: abs(d["terminal_voltage_v"] - v) + abs(d["load_current_a"] - il))

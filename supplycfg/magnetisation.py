@@ -1,0 +1,197 @@
+"""Magnetisation: the open-circuit characteristic, armature reaction, EMF equation.
+
+All functions take and return numpy arrays; the net magnetomotive force of
+every winding is read on the open-circuit characteristic (OCC) as an
+equivalent shunt-field current ``x = F / N_sh`` [A] (the equivalent-field-
+current method; S. J. Chapman, *Electric Machinery Fundamentals*, DC
+generator chapter, from memory).
+"""
+
+from dataclasses import dataclass
+
+import numpy as np
+from scipy.interpolate import PchipInterpolator
+
+#: Inferred absolute zero of resistance for annealed copper [degC]
+#: (IEC 60228: alpha20 = 0.00393 /K, i.e. 1/alpha20 - 20 = 234.5).
+COPPER_INFERRED_ZERO_C = 234.5
+
+
+def copper_resistance_factor(temperature_c, reference_temperature_c):
+    """Ratio ``R(T) / R(T_ref)`` of a copper winding.
+
+    Parameters
+    ----------
+    temperature_c, reference_temperature_c : float or array [degC]
+
+    Returns
+    -------
+    ndarray
+
+    References
+    ----------
+    IEC 60228 (copper, alpha20 = 0.00393 /K): ``R_T = R_ref (234.5 + T)/(234.5 + T_ref)``.
+    """
+    t = np.asarray(temperature_c, dtype=float)
+    return (COPPER_INFERRED_ZERO_C + t) / (COPPER_INFERRED_ZERO_C + reference_temperature_c)
+
+
+def emf_from_flux(poles, conductors, parallel_paths, speed_rpm, flux_wb):
+    """Generated EMF of a DC armature, ``E = P Phi N Z / (60 A)``.
+
+    Parameters
+    ----------
+    poles : int
+        Number of poles P.
+    conductors : int
+        Total armature conductors Z.
+    parallel_paths : int
+        A (= P for a simplex lap winding, 2 for a simplex wave winding).
+    speed_rpm : float or array [rpm]
+    flux_wb : float or array
+        Useful flux per pole [Wb].
+
+    Returns
+    -------
+    ndarray
+        EMF [V].
+
+    References
+    ----------
+    The EMF equation of the DC machine, e.g. Bakshi & Bakshi, *DC Machines and
+    Synchronous Machines*, Ex 1.1; J. Bird, *Electrical Circuit Theory and Technology*, Ch 21.
+    """
+    return poles * np.asarray(flux_wb, float) * np.asarray(speed_rpm, float) * conductors / (60.0 * parallel_paths)
+
+
+def flux_from_emf(poles, conductors, parallel_paths, speed_rpm, emf_v):
+    """Flux per pole [Wb] that gives ``emf_v`` [V] at ``speed_rpm``: the EMF equation inverted."""
+    return np.asarray(emf_v, float) * 60.0 * parallel_paths / (poles * conductors * np.asarray(speed_rpm, float))
+
+
+@dataclass(frozen=True)
+class OpenCircuitCurve:
+    """The OCC at its test speed, evaluable at any equivalent field current.
+
+    Interpolation is shape preserving (PCHIP, Fritsch & Carlson 1980) or
+    linear; beyond the last point the chord of the last two points continues
+    it; below zero the flux reverses, ``E(-x) = 2 E_r - E(x)``.
+    """
+
+    field_current_a: np.ndarray
+    emf_v: np.ndarray
+    speed_rpm: float
+    interpolation: str = "monotone-cubic"
+
+    @classmethod
+    def from_machine(cls, m):
+        return cls(np.asarray(m.occ_field_current_a, float), np.asarray(m.occ_emf_v, float),
+                   float(m.occ_speed_rpm), m.occ_interpolation)
+
+    def __post_init__(self):
+        x, y = self.field_current_a, self.emf_v
+        object.__setattr__(self, "_xl", float(x[-1]))
+        object.__setattr__(self, "_yl", float(y[-1]))
+        object.__setattr__(self, "_chord", float((y[-1] - y[-2]) / (x[-1] - x[-2])))
+        if self.interpolation == "linear":
+            object.__setattr__(self, "_pp", None)
+        else:
+            object.__setattr__(self, "_pp", PchipInterpolator(x, y, extrapolate=False))
+            object.__setattr__(self, "_dpp", self._pp.derivative())
+
+    @property
+    def residual_v(self):
+        return float(self.emf_v[0])
+
+    @property
+    def last_field_current_a(self):
+        return self._xl
+
+    def _base(self, ax):
+        """EMF and slope for ``ax >= 0`` at the test speed."""
+        inside = np.minimum(ax, self._xl)
+        if self._pp is None:
+            e = np.interp(inside, self.field_current_a, self.emf_v)
+            idx = np.clip(np.searchsorted(self.field_current_a, inside, side="right") - 1, 0,
+                          len(self.field_current_a) - 2)
+            slopes = np.diff(self.emf_v) / np.diff(self.field_current_a)
+            de = slopes[idx]
+        else:
+            e = self._pp(inside)
+            de = self._dpp(inside)
+        over = ax > self._xl
+        e = np.where(over, self._yl + self._chord * (ax - self._xl), e)
+        de = np.where(over, self._chord, de)
+        return e, de
+
+    def emf(self, x, with_slope=False):
+        """EMF [V] at the test speed for equivalent field current ``x`` [A].
+
+        Parameters
+        ----------
+        x : array_like [A]
+        with_slope : bool
+            Also return dE/dx [V/A].
+        """
+        x = np.asarray(x, dtype=float)
+        e, de = self._base(np.abs(x))
+        e = np.where(x >= 0, e, 2.0 * self.residual_v - e)
+        return (e, de) if with_slope else e
+
+    def extrapolated(self, x):
+        """True where ``x`` lies beyond the measured curve (either sign)."""
+        return np.abs(np.asarray(x, float)) > self._xl * (1 + 1e-9)
+
+    def air_gap_slope(self):
+        """Steepest chord between adjacent measured points [V/A] at the test speed."""
+        return float(np.max(np.diff(self.emf_v) / np.diff(self.field_current_a)))
+
+    def knots(self):
+        """Measured field currents and their mirrors, for exact grids [A]."""
+        x = self.field_current_a
+        return np.concatenate([-x[::-1], x[1:]])
+
+
+@dataclass(frozen=True)
+class ArmatureReaction:
+    """Demagnetising mmf ``F_ar(|Ia|)`` [AT/pole]: linear or a table.
+
+    References
+    ----------
+    Equivalent-field-current treatment of armature reaction (Chapman, DC
+    generator chapter, from memory; Theraja Vol II Ex 27.3 for a computed value).
+    """
+
+    per_amp: float = 0.0
+    table_current_a: np.ndarray | None = None
+    table_at: np.ndarray | None = None
+
+    @classmethod
+    def from_machine(cls, m):
+        if m.ar_at_per_pole_at_rated is not None:
+            return cls(per_amp=m.ar_at_per_pole_at_rated / m.rated_armature_current_a)
+        if m.ar_table_current_a is not None:
+            return cls(table_current_a=np.asarray(m.ar_table_current_a, float),
+                       table_at=np.asarray(m.ar_table_at_per_pole, float))
+        return cls()
+
+    def mmf(self, armature_current_a, with_slope=False):
+        """Demagnetising ampere-turns per pole at ``Ia`` (acts on ``|Ia|``)."""
+        ia = np.asarray(armature_current_a, float)
+        a = np.abs(ia)
+        if self.table_current_a is None:
+            f = self.per_amp * a
+            d = np.full_like(a, self.per_amp)
+        else:
+            xi, fi = self.table_current_a, self.table_at
+            chord = (fi[-1] - fi[-2]) / (xi[-1] - xi[-2])
+            f = np.where(a > xi[-1], fi[-1] + chord * (a - xi[-1]), np.interp(a, xi, fi))
+            slopes = np.append(np.diff(fi) / np.diff(xi), chord)
+            d = slopes[np.clip(np.searchsorted(xi, a, side="right") - 1, 0, len(slopes) - 1)]
+        d = d * np.sign(ia)
+        return (f, d) if with_slope else f
+
+    def knots(self):
+        if self.table_current_a is None:
+            return np.zeros(0)
+        return self.table_current_a[1:]

@@ -1,0 +1,182 @@
+"""Small checkers shared by the machine and load-profile readers.
+
+Each checker takes the parsed TOML table, the key and the source name and
+returns a clean Python value or raises :class:`~supplycfg.errors.InputError`
+with one line that names the file, the dotted key and what is allowed.
+"""
+
+import math
+import tomllib
+from pathlib import Path
+
+from .errors import InputError
+
+#: Largest file the readers accept [bytes]; a machine or profile is a few kB.
+MAX_FILE_BYTES = 1_000_000
+
+_MISSING = object()
+
+
+def read_toml(path, text=None):
+    """Parse a TOML file (or its text) safely, with one-line errors.
+
+    Parameters
+    ----------
+    path : str or Path
+        File name, used in messages; read unless ``text`` is given.
+    text : str or bytes, optional
+        Content already in memory (an upload).
+
+    Returns
+    -------
+    dict
+    """
+    name = Path(str(path)).name
+    if text is None:
+        p = Path(path)
+        try:
+            size = p.stat().st_size
+        except OSError as exc:
+            raise InputError(name, "file", f"cannot be read ({exc.strerror or exc})") from None
+        if p.is_dir():
+            raise InputError(name, "file", "is a folder; give a TOML file")
+        if size > MAX_FILE_BYTES:
+            raise InputError(name, "file", f"is {size} bytes; at most {MAX_FILE_BYTES} allowed")
+        try:
+            raw = p.read_bytes()
+        except OSError as exc:
+            raise InputError(name, "file", f"cannot be read ({exc.strerror or exc})") from None
+    else:
+        raw = text.encode("utf-8") if isinstance(text, str) else bytes(text)
+        if len(raw) > MAX_FILE_BYTES:
+            raise InputError(name, "file", f"is {len(raw)} bytes; at most {MAX_FILE_BYTES} allowed")
+    if raw.startswith(b"\xef\xbb\xbf"):
+        raise InputError(name, "file", "starts with a UTF-8 byte-order mark; save it as UTF-8 without BOM")
+    if b"\x00" in raw:
+        raise InputError(name, "file", "is binary; a TOML text file is expected")
+    try:
+        decoded = raw.decode("utf-8")
+    except UnicodeDecodeError as exc:
+        raise InputError(name, "file", f"is not UTF-8 text (byte {exc.start})") from None
+    if not decoded.strip():
+        raise InputError(name, "file", "is empty; a TOML file with the documented tables is expected")
+    try:
+        return tomllib.loads(decoded)
+    except tomllib.TOMLDecodeError as exc:
+        raise InputError(name, "file", f"is not valid TOML ({exc})") from None
+
+
+class Table:
+    """A TOML table being read: remembers the keys taken to reject unknown ones."""
+
+    def __init__(self, data, source, prefix, required=True):
+        self.source = source
+        self.prefix = prefix
+        if data is _MISSING or data is None:
+            if required:
+                raise InputError(source, prefix, "table is missing")
+            data = {}
+        if not isinstance(data, dict):
+            raise InputError(source, prefix, f"must be a table [{prefix}], got {type(data).__name__}")
+        self.data = data
+        self.known = []
+
+    def key(self, k):
+        return f"{self.prefix}.{k}"
+
+    def has(self, k):
+        return k in self.data
+
+    def raw(self, k, default=_MISSING):
+        self.known.append(k)
+        if k not in self.data:
+            if default is _MISSING:
+                raise InputError(self.source, self.key(k), "is missing")
+            return default
+        return self.data[k]
+
+    def finish(self):
+        """Reject keys that were not read, listing the valid ones."""
+        extra = sorted(set(self.data) - set(self.known))
+        if extra:
+            raise InputError(self.source, self.key(extra[0]),
+                             f"is not a known key; valid keys: {', '.join(self.known)}")
+
+    # typed readers -----------------------------------------------------
+    def text(self, k, default=_MISSING, choices=None):
+        v = self.raw(k, default)
+        if v is default and default is not _MISSING:
+            return v
+        if not isinstance(v, str):
+            raise InputError(self.source, self.key(k), f"must be text, got {_describe(v)}")
+        if choices is not None and v not in choices:
+            raise InputError(self.source, self.key(k),
+                             f"is {v!r}; allowed: {', '.join(choices)}")
+        return v
+
+    def number(self, k, default=_MISSING, *, low=None, high=None, low_open=False,
+               high_open=False, what="a number"):
+        v = self.raw(k, default)
+        if v is default and default is not _MISSING:
+            return v
+        return check_number(v, self.source, self.key(k), low=low, high=high,
+                            low_open=low_open, high_open=high_open, what=what)
+
+    def integer(self, k, default=_MISSING, *, low=None, high=None):
+        v = self.raw(k, default)
+        if v is default and default is not _MISSING:
+            return v
+        if isinstance(v, bool) or not isinstance(v, int):
+            raise InputError(self.source, self.key(k), f"must be a whole number, got {_describe(v)}")
+        _range(v, self.source, self.key(k), low, high, False, False, "a whole number")
+        return int(v)
+
+    def numbers(self, k, default=_MISSING, *, low=None, high=None, low_open=False,
+                min_len=1, max_len=100_000):
+        v = self.raw(k, default)
+        if v is default and default is not _MISSING:
+            return v
+        if not isinstance(v, list):
+            raise InputError(self.source, self.key(k), f"must be a list of numbers, got {_describe(v)}")
+        if not (min_len <= len(v) <= max_len):
+            size = f"exactly {min_len}" if min_len == max_len else f"{min_len} to {max_len}"
+            raise InputError(self.source, self.key(k), f"has {len(v)} values; {size} allowed")
+        out = []
+        for i, item in enumerate(v):
+            out.append(check_number(item, self.source, f"{self.key(k)}[{i}]", low=low,
+                                    high=high, low_open=low_open))
+        return tuple(out)
+
+
+def _describe(v):
+    if isinstance(v, str):
+        return f"text {v[:40]!r}"
+    if isinstance(v, bool):
+        return f"{str(v).lower()} (a true/false value)"
+    if isinstance(v, list):
+        return "a list"
+    if isinstance(v, dict):
+        return "a table"
+    return f"{type(v).__name__} {v!r}"
+
+
+def check_number(v, source, key, *, low=None, high=None, low_open=False, high_open=False,
+                 what="a number"):
+    """Return ``v`` as a finite float inside the bounds or raise InputError."""
+    if isinstance(v, bool) or not isinstance(v, (int, float)):
+        raise InputError(source, key, f"must be {what}, got {_describe(v)}")
+    v = float(v)
+    if not math.isfinite(v):
+        raise InputError(source, key, f"must be a finite number, got {v}")
+    _range(v, source, key, low, high, low_open, high_open, what)
+    return v
+
+
+def _range(v, source, key, low, high, low_open, high_open, what):
+    bad_low = low is not None and (v <= low if low_open else v < low)
+    bad_high = high is not None and (v >= high if high_open else v > high)
+    if bad_low or bad_high:
+        lo = "" if low is None else (f"> {low:g}" if low_open else f">= {low:g}")
+        hi = "" if high is None else (f"< {high:g}" if high_open else f"<= {high:g}")
+        allowed = " and ".join(s for s in (lo, hi) if s)
+        raise InputError(source, key, f"is {v:g}; allowed: {what} {allowed}")
