@@ -873,3 +873,110 @@ def _nearest(points, v, il):
     if not points or v is None:
         return None
     return min(points, key=lambda d: abs(d["terminal_voltage_v"] - v) + abs(d["load_current_a"] - il))
+
+
+# ---------------------------------------------------------------------------
+# self-excitation
+# ---------------------------------------------------------------------------
+
+@dataclass
+class SelfExcitation:
+    """Build-up of the shunt field at no load (design note definitions)."""
+
+    setting: Setting
+    field_circuit_resistance_ohm: float
+    critical_field_resistance_ohm: float
+    critical_speed_rpm: float
+    builds_up: bool
+    no_load_voltage_v: float | None
+    stall_voltage_v: float | None
+    reasons: list
+    no_load_points: list
+    converged: bool = True
+
+
+def self_excitation(machine, rheostat_ohm=None, speed_rpm=None, winding_temperature_c=None):
+    """Whether the shunt field builds up, and the voltages it reaches.
+
+    Parameters
+    ----------
+    machine : Machine
+    rheostat_ohm : float, optional
+        Field rheostat [ohm]; 0 when omitted.
+    speed_rpm : float, optional
+        Drive speed [rpm]; rated when omitted.
+    winding_temperature_c : float, optional
+        Copper temperature [degC]; reference when omitted.
+
+    Returns
+    -------
+    SelfExcitation
+        Critical field resistance: the steepest chord between adjacent
+        measured OCC points scaled by speed (the air-gap line); critical speed
+        ``n_occ (Rsh(T) + Rrh) / R_crit(n_occ)``; the no-load voltage is the
+        highest stable no-load intersection; a build-up from residual stops at
+        the lowest one.
+
+    References
+    ----------
+    Build-up conditions of the self-excited generator (residual magnetism,
+    field aiding it, resistance below critical, speed above critical):
+    standard textbook statements, e.g. Theraja Vol II ch. 28; Kosow ch. 3.
+    """
+    st = check_setting(machine, Setting("shunt", rheostat_ohm=rheostat_ohm, speed_rpm=speed_rpm,
+                                        winding_temperature_c=winding_temperature_c))
+    circ = build_circuit(machine, [st])
+    ops = solve_operating_points(circ, [Load.constant_current(0.0)])[0]
+    rf = float(circ.rf[0])
+    slope = circ.occ.air_gap_slope()
+    rcrit = float(circ.s[0] * slope)
+    ncrit = float(machine.occ_speed_rpm * rf / slope)
+    pts = ops.points
+    stable = [p for p in pts if p["stable"]]
+    vnl = stable[0]["terminal_voltage_v"] if stable else None
+    reasons = []
+    er = circ.occ.residual_v
+    if er <= 0:
+        reasons.append("no residual voltage: the field must be flashed from a separate supply before it can build up")
+    if rf >= rcrit:
+        reasons.append(f"field-circuit resistance {rf:.4g} ohm is at or above the critical {rcrit:.4g} ohm at "
+                       f"{st.speed_rpm:.5g} rpm: lower the rheostat")
+    if st.speed_rpm <= ncrit:
+        reasons.append(f"speed {st.speed_rpm:.5g} rpm is at or below the critical {ncrit:.5g} rpm for this field circuit")
+    stall = None
+    if stable and er > 0:
+        low = stable[-1]
+        if vnl is not None and low["terminal_voltage_v"] < vnl - 1e-6 * max(1.0, vnl):
+            stall = low["terminal_voltage_v"]
+            above = [p for p in pts if p["terminal_voltage_v"] > stall and not p["stable"]]
+            i1 = low["shunt_field_current_a"]
+            i2 = above[-1]["shunt_field_current_a"] if above else float("nan")
+            if rf < rcrit:
+                reasons.append(f"the field line lies above the curve between {i1:.4g} A and {i2:.4g} A of field "
+                               f"current: the build-up stops near {stall:.4g} V; flash the field or lower the resistance")
+        elif reasons:
+            stall = low["terminal_voltage_v"]
+    if er <= 0:
+        stall = None
+    builds = not reasons
+    if builds:
+        stall = None
+    return SelfExcitation(st, rf, rcrit, ncrit, builds, vnl, stall, reasons, pts, ops.converged)
+
+
+def series_critical_resistance_ohm(machine, series_turns=None, speed_rpm=None, winding_temperature_c=None):
+    """Total circuit resistance [ohm] below which a series machine builds up.
+
+    The air-gap slope of the curve in series-field current: the OCC's
+    steepest measured chord times ``N_se / N_sh`` and the speed ratio.
+
+    References
+    ----------
+    Series generator build-up on a closed circuit below its critical
+    resistance: standard textbook statement (Theraja Vol II ch. 28).
+    """
+    st = check_setting(machine, Setting("series", series_turns=series_turns, speed_rpm=speed_rpm,
+                                        winding_temperature_c=winding_temperature_c))
+    occ = OpenCircuitCurve.from_machine(machine)
+    return float(occ.air_gap_slope() * st.series_turns / machine.shunt_turns_per_pole
+                 * st.speed_rpm / machine.occ_speed_rpm)

@@ -1,0 +1,106 @@
+"""Files the tool writes: JSON, TOML and reports, always atomically.
+
+The TOML writer covers what the machine and profile files hold (tables of
+strings, numbers, booleans and flat lists), so a saved file loads back equal.
+"""
+
+import json
+import math
+import os
+import tempfile
+from pathlib import Path
+
+import numpy as np
+
+from .errors import InputError
+
+
+def jsonable(obj):
+    """Convert numpy types, tuples and dataclasses to JSON-safe values; NaN/inf -> None."""
+    if hasattr(obj, "as_dict") and callable(obj.as_dict):
+        return jsonable(obj.as_dict())
+    if isinstance(obj, dict):
+        return {str(k): jsonable(v) for k, v in obj.items()}
+    if isinstance(obj, (list, tuple)):
+        return [jsonable(v) for v in obj]
+    if isinstance(obj, np.ndarray):
+        return [jsonable(v) for v in obj.tolist()]
+    if isinstance(obj, (bool, np.bool_)):
+        return bool(obj)
+    if isinstance(obj, (int, np.integer)):
+        return int(obj)
+    if isinstance(obj, (float, np.floating)):
+        f = float(obj)
+        return f if math.isfinite(f) else None
+    return obj
+
+
+def dumps_json(obj):
+    """One JSON document, sorted keys, no NaN."""
+    return json.dumps(jsonable(obj), indent=2, sort_keys=True, allow_nan=False)
+
+
+def _toml_value(v, key):
+    if isinstance(v, bool):
+        return "true" if v else "false"
+    if isinstance(v, (int, np.integer)) and not isinstance(v, bool):
+        return str(int(v))
+    if isinstance(v, (float, np.floating)):
+        f = float(v)
+        if not math.isfinite(f):
+            raise InputError("toml", key, "is not a finite number; cannot be written")
+        return repr(f)
+    if isinstance(v, str):
+        return json.dumps(v, ensure_ascii=False)
+    if isinstance(v, (list, tuple)):
+        return "[" + ", ".join(_toml_value(x, key) for x in v) + "]"
+    raise InputError("toml", key, f"has a value of type {type(v).__name__} that TOML files here do not hold")
+
+
+def dumps_toml(tables, header=None):
+    """Write ``{table: {key: value}}`` as TOML text."""
+    lines = []
+    if header:
+        lines += [f"# {h}" for h in header.splitlines()] + [""]
+    for name, body in tables.items():
+        lines.append(f"[{name}]")
+        for k, v in body.items():
+            if v is None:
+                continue
+            lines.append(f"{k} = {_toml_value(v, f'{name}.{k}')}")
+        lines.append("")
+    return "\n".join(lines)
+
+
+def write_atomic(path, data, force=False):
+    """Write ``data`` (str or bytes) to ``path`` through a temporary file and ``os.replace``.
+
+    Raises
+    ------
+    InputError
+        When the file exists and ``force`` is false, or the folder cannot be written.
+    """
+    path = Path(path)
+    if path.exists() and not force:
+        raise InputError(path.name, "output", "exists already; pass --force to overwrite it")
+    folder = path.parent if str(path.parent) else Path(".")
+    if not folder.is_dir():
+        raise InputError(path.name, "output", f"folder {folder} does not exist")
+    raw = data.encode("utf-8") if isinstance(data, str) else data
+    try:
+        fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=folder)
+    except OSError as exc:
+        raise InputError(path.name, "output", f"cannot be written ({exc.strerror or exc})") from None
+    try:
+        with os.fdopen(fd, "wb") as fh:
+            fh.write(raw)
+            fh.flush()
+            os.fsync(fh.fileno())
+        os.replace(tmp, path)
+    except BaseException:
+        try:
+            os.unlink(tmp)
+        except OSError:
+            pass
+        raise
+    return path
