@@ -203,6 +203,8 @@ class Circuit:
     ir: float                 # brush ramp current [A]
     nsh: float
     imax: float
+    nse: np.ndarray = None    # series turns in use
+    rsh: np.ndarray = None    # shunt winding alone at temperature [ohm]
 
     @property
     def n(self):
@@ -210,7 +212,35 @@ class Circuit:
 
     def take(self, idx):
         """Parameters for candidate indices ``idx`` (broadcastable)."""
-        return {k: getattr(self, k)[idx] for k in ("kind", "short", "branch", "s", "ra", "rbr", "c", "rf", "x0")}
+        return {k: getattr(self, k)[idx] for k in ("kind", "short", "branch", "s", "ra", "rbr", "c", "rf", "x0", "nse")}
+
+    def subset(self, idx, rheostat_ohm=None, field_current_a=None, exciter_v=None):
+        """A circuit of candidates ``idx`` (repeats allowed) with the field control changed.
+
+        ``rheostat_ohm`` sets the shunt field circuit (self-excited) or, with
+        ``exciter_v``, the separate field current ``Vexc / (Rsh + Rrh)``;
+        ``field_current_a`` sets a separate field current directly. NaN
+        entries leave a candidate's control as it is.
+        """
+        idx = np.asarray(idx, int)
+        arr = {k: getattr(self, k)[idx].copy() for k in ("kind", "short", "branch", "s", "ra", "rbr", "c",
+                                                         "rf", "x0", "nse", "rsh")}
+        if rheostat_ohm is not None:
+            r = np.asarray(rheostat_ohm, float)
+            ok = np.isfinite(r)
+            rf_new = arr["rsh"] + np.where(ok, r, 0.0)
+            arr["rf"] = np.where(ok, rf_new, arr["rf"])
+            if exciter_v is not None:
+                ev = np.asarray(exciter_v, float)
+                sep = ok & (arr["kind"] == 0) & np.isfinite(ev)
+                arr["x0"] = np.where(sep, np.where(np.isfinite(ev), ev, 0.0) / rf_new, arr["x0"])
+        if field_current_a is not None:
+            f = np.asarray(field_current_a, float)
+            ok = np.isfinite(f) & (arr["kind"] == 0)
+            arr["x0"] = np.where(ok, f, arr["x0"])
+        return Circuit(self.machine, self.occ, self.ar, [self.settings[i] for i in idx], arr["kind"],
+                       arr["short"], arr["branch"], arr["s"], arr["ra"], arr["rbr"], arr["c"], arr["rf"],
+                       arr["x0"], self.vb, self.ir, self.nsh, self.imax, arr["nse"], arr["rsh"])
 
 
 def build_circuit(machine, settings):
@@ -221,12 +251,14 @@ def build_circuit(machine, settings):
     n = len(settings)
     kind = np.zeros(n, int); short = np.zeros(n, bool); branch = np.zeros(n, int)
     s_ = np.zeros(n); ra = np.zeros(n); rbr = np.zeros(n); c = np.zeros(n)
-    rf = np.zeros(n); x0 = np.zeros(n)
+    rf = np.zeros(n); x0 = np.zeros(n); nse = np.zeros(n); rsh_t = np.zeros(n)
     for i, st in enumerate(settings):
         ct = float(copper_resistance_factor(st.winding_temperature_c, machine.reference_temperature_c))
         s_[i] = st.speed_rpm / machine.occ_speed_rpm
         ra[i] = machine.armature_resistance_ohm * ct
         rsh = machine.shunt_field_resistance_ohm * ct
+        rsh_t[i] = rsh
+        nse[i] = st.series_turns or 0.0
         rf[i] = rsh + (st.rheostat_ohm or 0.0)
         conn = st.connection
         if conn in USES_SERIES and st.series_turns > 0:
@@ -252,7 +284,8 @@ def build_circuit(machine, settings):
                 branch[i], short[i] = 2, True
     return Circuit(machine, occ, ar, settings, kind, short, branch, s_, ra, rbr, c, rf, x0,
                    float(machine.brush_drop_v), BRUSH_RAMP_FRACTION * machine.rated_armature_current_a,
-                   float(machine.shunt_turns_per_pole), CURRENT_SPAN_FACTOR * machine.rated_armature_current_a)
+                   float(machine.shunt_turns_per_pole), CURRENT_SPAN_FACTOR * machine.rated_armature_current_a,
+                   nse, rsh_t)
 
 
 def brush_drop(armature_current_a, full_drop_v, ramp_current_a, with_slope=False):
@@ -301,7 +334,7 @@ def machine_state(circ, p, v, il):
 
 
 def _winding_share(circ, p):
-    nse = np.array([s.series_turns for s in circ.settings])[p["idx"]] if "idx" in p else None
+    nse = p.get("nse")
     if nse is None:
         return 1.0
     with np.errstate(divide="ignore", invalid="ignore"):
@@ -980,3 +1013,71 @@ def series_critical_resistance_ohm(machine, series_turns=None, speed_rpm=None, w
     occ = OpenCircuitCurve.from_machine(machine)
     return float(occ.air_gap_slope() * st.series_turns / machine.shunt_turns_per_pole
                  * st.speed_rpm / machine.occ_speed_rpm)
+
+
+def normal_points(circ, lo, hi, v_of=None, il_of=None, grid=97, steps=44):
+    """The point each candidate sits at along a load curve: the highest stable intersection.
+
+    The load curve is parameterised by ``t`` in ``[lo, hi]`` (arrays, one per
+    candidate): with ``v_of`` the load current is ``t`` and the terminal
+    voltage ``v_of(t)`` (a rising load curve such as a battery); with
+    ``il_of`` the terminal voltage is ``t`` and the load current ``il_of(t)``
+    (e.g. a constant current). Both callables get arrays shaped like
+    ``(n, k)`` and must broadcast over candidates.
+
+    Returns
+    -------
+    dict of arrays
+        The curve-point keys, ``x`` (equivalent field current), ``found``
+        (bool) and ``converged`` (bool); NaN where no stable point exists.
+    """
+    n = circ.n
+    lo = np.broadcast_to(np.asarray(lo, float), (n,))
+    hi = np.broadcast_to(np.asarray(hi, float), (n,))
+    p = _params(circ, np.arange(n)[:, None])
+    t = lo[:, None] + (hi - lo)[:, None] * np.linspace(0.0, 1.0, grid)[None, :]
+
+    def vi(tt):
+        if v_of is not None:
+            return v_of(tt), tt
+        return tt, il_of(tt)
+
+    v, il = vi(t)
+    h = machine_state(circ, p, v, il)["h"]
+    stable = (h[:, :-1] > 0) & (h[:, 1:] <= 0)
+    found = stable.any(axis=1)
+    j = grid - 2 - np.argmax(stable[:, ::-1], axis=1)
+    rows = np.arange(n)
+    a = t[rows, j]; b = t[rows, j + 1]
+    p1 = _params(circ, rows)
+
+    def v_i1(tt):
+        if v_of is not None:
+            return v_of(tt[:, None])[:, 0], tt
+        return tt, il_of(tt[:, None])[:, 0]
+
+    def res(tt):
+        vv, ii = v_i1(tt)
+        return machine_state(circ, p1, vv, ii)["h"]
+
+    root = _bisect(res, a, b, h[rows, j], steps)
+    vv, ii = v_i1(root)
+    st = machine_state(circ, p1, vv, ii)
+    out = {k: np.where(found, st[k], np.nan) for k in POINT_KEYS + ("x",)}
+    out["found"] = found
+    out["converged"] = ~found | (np.abs(st["h"]) <= 1e-6 * np.maximum(1.0, np.abs(vv)))
+    return out
+
+
+def no_load_voltages(circ, grid=97):
+    """Terminal voltage at zero load current for every candidate [V] (NaN if none)."""
+    top = _voltage_span(circ, np.arange(circ.n))
+    r = normal_points(circ, np.zeros(circ.n), top, il_of=lambda t: np.zeros_like(t), grid=grid)
+    return r["terminal_voltage_v"]
+
+
+def current_at_voltage(circ, v_target, lo, hi, grid=97):
+    """Load current [A] at which each candidate's characteristic passes ``v_target`` [V]
+    on the normal branch (the largest such current below the fold)."""
+    vt = np.broadcast_to(np.asarray(v_target, float), (circ.n,))
+    return normal_points(circ, lo, hi, v_of=lambda t: np.broadcast_to(vt[:, None], t.shape) + 0 * t, grid=grid)
