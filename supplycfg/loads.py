@@ -843,8 +843,11 @@ def _read_battery(t, source):
         raise InputError(source, t.key("open_circuit_voltage_per_cell_v"),
                          f"starts at {ocv[0]:g} V/cell; allowed for {name}: at least {lowest:.3g} V/cell "
                          f"(the table's empty value is {chem.open_circuit_voltage_empty_v:g})")
-    vlim = t.number("charge_voltage_per_cell_v", chem.boost_voltage_v, low=0, low_open=True,
-                    high=chem.max_cell_voltage_v)
+    vlim = t.number("charge_voltage_per_cell_v", chem.boost_voltage_v, low=0, low_open=True)
+    if vlim > chem.max_cell_voltage_v:
+        raise InputError(source, t.key("charge_voltage_per_cell_v"),
+                         f"is {vlim:g}; allowed for {name}: at most {chem.max_cell_voltage_v:g} V/cell "
+                         f"(the chemistry's highest cell voltage)")
     if vlim <= ocv[1]:
         raise InputError(source, t.key("charge_voltage_per_cell_v"),
                          f"is {vlim:g}; allowed: above the open-circuit voltage at full charge ({ocv[1]:g} V/cell)")
@@ -861,8 +864,7 @@ def _read_welding(t, source):
     duty = t.number("duty_cycle_percent", DEFAULT_DUTY_CYCLE_PERCENT, low=0, low_open=True, high=100)
     rc = t.number("cable_resistance_ohm", DEFAULT_CABLE_RESISTANCE_OHM, low=0, high=_MAX_OHM)
     top = NO_LOAD_VOLTAGE_LIMITS[ENVIRONMENTS[env].dc_limit].voltage_v
-    vmax = t.number("max_no_load_voltage_v", None, low=0, low_open=True, high=top,
-                    what=f"a mean voltage (the standard's {top:g} V peak always applies)")
+    vmax = t.number("max_no_load_voltage_v", None, low=0, low_open=True, high=top, what="mean volts")
     return WeldingJob(process=proc, current_range_a=cur, environment=env, duty_cycle_percent=duty,
                       cable_resistance_ohm=rc, max_no_load_voltage_v=vmax)
 
@@ -879,8 +881,7 @@ def _read_lighting(t, source):
 
 def _read_booster(t, source):
     vb = t.number("bus_voltage_v", low=0, low_open=True, high=_MAX_VOLTAGE_V)
-    rf = t.number("feeder_resistance_ohm", low=0, low_open=True, high=_MAX_OHM,
-                  what="a resistance (a booster makes up a feeder's drop)")
+    rf = t.number("feeder_resistance_ohm", low=0, low_open=True, high=_MAX_OHM)
     cur = _pair(t, "load_current_a", source, low=0, high=_MAX_CURRENT_A)
     tol = t.number("tolerance_percent", DEFAULT_TOLERANCE_PERCENT, low=0, low_open=True, high=50)
     return BoosterJob(bus_voltage_v=vb, feeder_resistance_ohm=rf, load_current_a=cur, tolerance_percent=tol)
