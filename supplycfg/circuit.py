@@ -49,8 +49,8 @@ BRUSH_RAMP_FRACTION = 0.01
 CURRENT_SPAN_FACTOR = 10.0
 #: Grid points along the load line before refining each bracket.
 LOAD_LINE_GRID = 4001
-#: Bisection steps (halves a bracket 2**-60: below double precision).
-BISECTION_STEPS = 60
+#: Refinement steps of a bracket (half secant, half halving; see _bisect).
+BISECTION_STEPS = 40
 
 
 @dataclass(frozen=True)
@@ -414,15 +414,40 @@ POINT_KEYS = ("terminal_voltage_v", "load_current_a", "armature_current_a",
 
 
 def _bisect(fun, a, b, fa, steps=BISECTION_STEPS):
-    """Vectorised bisection of ``fun`` on brackets ``[a, b]`` with ``fun(a) = fa``."""
-    for _ in range(steps):
-        m = 0.5 * (a + b)
-        fm = fun(m)
-        left = np.sign(fm) == np.sign(fa)
-        a = np.where(left, m, a)
-        fa = np.where(left, fm, fa)
-        b = np.where(left, b, m)
-    return 0.5 * (a + b)
+    """Vectorised bracketing root refinement of ``fun`` on ``[a, b]`` (``fun(a) = fa``).
+
+    The Illinois variant of regula falsi (Dowell & Jarratt 1971): it keeps a
+    bracket like bisection but converges superlinearly; after ``steps // 2``
+    updates it falls back to plain halving for the rest, so kinks (linear
+    interpolation, the brush-drop ramp) cannot stall it.
+
+    References
+    ----------
+    M. Dowell, P. Jarratt, "A modified regula falsi method for computing the
+    root of an equation", BIT 11 (1971) 168-174.
+    """
+    a = np.asarray(a, float).copy(); b = np.asarray(b, float).copy()
+    fa = np.asarray(fa, float).copy()
+    fb = fun(b)
+    secant_steps = max(steps // 2, 1)
+    for k in range(steps):
+        if k < secant_steps:
+            den = fb - fa
+            with np.errstate(divide="ignore", invalid="ignore"):
+                c = b - fb * (b - a) / den
+            lo, hi = np.minimum(a, b), np.maximum(a, b)
+            c = np.where(np.isfinite(c) & (c > lo) & (c < hi), c, 0.5 * (a + b))
+        else:
+            c = 0.5 * (a + b)
+        fc = fun(c)
+        flip = np.signbit(fc) != np.signbit(fb)
+        a = np.where(flip, b, a)
+        fa = np.where(flip, fb, 0.5 * fa if k < secant_steps else fa)
+        b, fb = c, fc
+        done = fb == 0
+        if np.all(done | (np.abs(b - a) <= 1e-15 * np.maximum(1.0, np.abs(b)))):
+            break
+    return b
 
 
 def _voltage_span(circ, idx):
@@ -432,7 +457,7 @@ def _voltage_span(circ, idx):
     return 1.2 * circ.s[idx] * top + 1.0
 
 
-def solve_operating_points(circ, loads, idx=None, grid=LOAD_LINE_GRID):
+def solve_operating_points(circ, loads, idx=None, grid=LOAD_LINE_GRID, window=None):
     """Operating points of candidates ``idx`` against ``loads`` (one load each).
 
     Parameters
@@ -441,6 +466,9 @@ def solve_operating_points(circ, loads, idx=None, grid=LOAD_LINE_GRID):
     loads : sequence of Load, same length as ``idx``
     idx : array of int, optional
         Candidate index for each load (default ``arange(circ.n)``).
+    window : (array, array), optional
+        Part of the load line to search, as fractions 0..1 of the full span
+        (terminal voltage 0..top, or load current -imax..imax at fixed voltage).
 
     Returns
     -------
@@ -456,7 +484,13 @@ def solve_operating_points(circ, loads, idx=None, grid=LOAD_LINE_GRID):
     fixed_voltage = ~fixed_current & (k <= 0)
     vtop = _voltage_span(circ, idx)[:, None]
     vtop = np.maximum(vtop, np.where(fixed_current, 0, v0 + 1.0))
-    t = np.linspace(0.0, 1.0, grid)[None, :]
+    lin = np.linspace(0.0, 1.0, grid)[None, :]
+    if window is None:
+        t = np.broadcast_to(lin, (m, grid))
+    else:
+        w0 = np.clip(np.asarray(window[0], float), 0, 1)[:, None]
+        w1 = np.clip(np.asarray(window[1], float), 0, 1)[:, None]
+        t = w0 + (w1 - w0) * lin
     # parameter: terminal voltage in [0, vtop], or load current in [-imax, imax]
     by_current = fixed_voltage
 
@@ -479,7 +513,7 @@ def solve_operating_points(circ, loads, idx=None, grid=LOAD_LINE_GRID):
     out = [[] for _ in range(m)]
     ok = True
     if rows.size:
-        a = t[0, cols]; b = t[0, cols + 1]; fa = h[rows, cols]
+        a = t[rows, cols]; b = t[rows, cols + 1]; fa = h[rows, cols]
         pr = {kk: vv[rows, 0] if np.ndim(vv) else vv for kk, vv in p.items()}
         vv0, kk_, cc, fc, bc, vt = v0[rows, 0], k[rows, 0], cur[rows, 0], fixed_current[rows, 0], by_current[rows, 0], vtop[rows, 0]
 
@@ -587,16 +621,20 @@ def _runs(vals):
     return d[idx]
 
 
-def _run_bounds(sign, cell):
-    """First and last cell of the run of equal slope sign containing ``cell``."""
-    sgn = sign[cell]
-    lo = cell
-    while lo > 0 and sign[lo - 1] == sgn:
-        lo -= 1
-    hi = cell
-    while hi < sign.size - 1 and sign[hi + 1] == sgn:
-        hi += 1
-    return lo, hi
+class _RunTable:
+    """Runs of equal slope sign along a grid: run id of each cell, first and last cell of each run."""
+
+    def __init__(self, sign):
+        change = np.flatnonzero(np.diff(sign) != 0) + 1
+        self.lo = np.concatenate([[0], change])
+        self.hi = np.concatenate([change - 1, [sign.size - 1]])
+        self.rid = np.zeros(sign.size, int)
+        self.rid[change] = 1
+        self.rid = np.cumsum(self.rid)
+
+    def __call__(self, cell):
+        r = self.rid[cell]
+        return int(self.lo[r]), int(self.hi[r])
 
 
 def _grids(circ):
@@ -640,14 +678,15 @@ def _trace_self_excited(circ, i, xg, ig, ng, lg, samples=48):
     a note when the walk ended early.
     """
     sn, sl = _runs(ng), _runs(lg)
+    run_n, run_l = _RunTable(sn), _RunTable(sl)
     # stable no-load root: highest x where N crosses zero downward
     down = (ng[:-1] >= 0) & (ng[1:] < 0)
     cells = np.flatnonzero(down & (xg[:-1] >= -1e-12))
     if cells.size == 0:
         return [], "no built-up no-load point on the searched span"
     cn = int(cells[-1])
-    n_lo, n_hi = _run_bounds(sn, cn)
-    l_lo, l_hi = _run_bounds(sl, 0)
+    n_lo, n_hi = run_n(cn)
+    l_lo, l_hi = run_l(0)
     dl = 1
     lam = float(lg[0])
     dlam = int(sl[l_lo]) * dl
@@ -666,7 +705,7 @@ def _trace_self_excited(circ, i, xg, ig, ng, lg, samples=48):
                 if dl > 0:
                     note = "the curve reaches the searched current span"
                 break
-            l_lo, l_hi = _run_bounds(sl, nxt)
+            l_lo, l_hi = run_l(nxt)
             dlam, dn = -dlam, -dn
         else:
             segs.append((lam, lam_n, n_lo, n_hi, l_lo, l_hi))
@@ -675,7 +714,7 @@ def _trace_self_excited(circ, i, xg, ig, ng, lg, samples=48):
             if nxt < 0 or nxt >= sn.size:
                 note = "the curve reaches the searched field span"
                 break
-            n_lo, n_hi = _run_bounds(sn, nxt)
+            n_lo, n_hi = run_n(nxt)
             dlam, dl = -dlam, -dl
         # stop once the polyline has reached zero voltage
         lam_s = np.linspace(segs[-1][0], segs[-1][1], samples)
@@ -810,31 +849,74 @@ def characteristics_of(circ, points=400):
             xa, xb = np.concatenate(pick_xa), np.concatenate(pick_xb)
             ia_a, ia_b = np.concatenate(pick_ia), np.concatenate(pick_ib)
             fx = lambda xx: _n_fun(circ, pc, xx) - lam
-            x = _bisect(fx, xa, xb, fx(xa))
+            x = _bisect(fx, xa, xb, fx(xa), 30)
             fi = lambda ii: _l_fun(circ, pc, ii) - lam
-            ia_s = _bisect(fi, ia_a, ia_b, fi(ia_a))
+            ia_s = _bisect(fi, ia_a, ia_b, fi(ia_a), 30)
             v_s, il_s = _state_from_x_ia(circ, pc, x, ia_s)
     # --- assemble ---------------------------------------------------------
-    result = []
+    states, notes = [None] * n, [""] * n
     for i in range(n):
-        st = circ.settings[i]
         if circ.kind[i] != 1:
             r = int(np.flatnonzero(curves_exp[0] == i)[0])
             ia_i = curves_exp[1][r]
             pi = _params(circ, np.full(ia_i.size, i))
-            state = _explicit_state(circ, pi, ia_i)
-            note = "" if curves_exp[2][r] else "terminal voltage stays above zero up to the searched span"
+            states[i] = _explicit_state(circ, pi, ia_i)
+            notes[i] = "" if curves_exp[2][r] else "terminal voltage stays above zero up to the searched span"
         else:
             msk = cand == i if slf.size and pick_cand else np.zeros(0, bool)
-            if not np.any(msk):
-                result.append(Characteristic(st, {k: np.zeros(0) for k in POINT_KEYS + ("extrapolated",)},
-                                             None, None, None, None, False, False, seg_info.get(i, ([], ""))[1]))
-                continue
-            pi = _params(circ, np.full(int(msk.sum()), i))
-            state = machine_state(circ, pi, v_s[msk], il_s[msk])
-            note = seg_info[i][1]
-        result.append(_finish(circ, i, st, state, note))
+            notes[i] = seg_info.get(i, ([], ""))[1]
+            if np.any(msk):
+                pi = _params(circ, np.full(int(msk.sum()), i))
+                states[i] = machine_state(circ, pi, v_s[msk], il_s[msk])
+    ops = _refine_batch(circ, states)
+    result = []
+    for i in range(n):
+        st = circ.settings[i]
+        if states[i] is None:
+            result.append(Characteristic(st, {k: np.zeros(0) for k in POINT_KEYS + ("extrapolated",)},
+                                         None, None, None, None, False, False, notes[i], [notes[i]] if notes[i] else []))
+            continue
+        result.append(_finish(circ, i, st, states[i], notes[i], ops[i]))
     return result
+
+
+def _refine_batch(circ, states):
+    """Exact no-load, short-circuit and rated-current points near each curve's samples."""
+    m = circ.machine
+    rated = m.rated_armature_current_a
+    idx, loads, w0, w1, who = [], [], [], [], []
+    vtop = _voltage_span(circ, np.arange(circ.n))
+    for i, st in enumerate(states):
+        if st is None:
+            continue
+        v, il = st["terminal_voltage_v"], st["load_current_a"]
+        guesses = [(Load.constant_current(0.0), v[0] / vtop[i], 0.03)]
+        guesses.append((Load(0.0, 0.0, None, "short circuit"), (il[-1] / circ.imax + 1) / 2, 0.02))
+        cross = np.flatnonzero(il >= rated)
+        if cross.size:
+            guesses.append((Load.constant_current(rated), v[cross[0]] / vtop[i], 0.03))
+        else:
+            guesses.append((Load.constant_current(rated), None, None))
+        for k, (ld, g, half) in enumerate(guesses):
+            idx.append(i); loads.append(ld); who.append((i, k))
+            if g is None:
+                w0.append(0.0); w1.append(1.0)
+            else:
+                w0.append(g - half); w1.append(g + half)
+    out = {i: [OperatingPoints([]), OperatingPoints([]), OperatingPoints([])] for i in range(circ.n)}
+    if not idx:
+        return out
+    res = solve_operating_points(circ, loads, np.array(idx), grid=129, window=(np.array(w0), np.array(w1)))
+    retry = []
+    for (i, k), r, ld in zip(who, res, loads):
+        out[i][k] = r
+        if not r.points and k != 2:
+            retry.append((i, k, ld))
+    if retry:
+        res2 = solve_operating_points(circ, [r[2] for r in retry], np.array([r[0] for r in retry]))
+        for (i, k, _), r in zip(retry, res2):
+            out[i][k] = r
+    return out
 
 
 def _explicit_v(circ, p, ia):
@@ -848,7 +930,7 @@ def _explicit_state(circ, p, ia):
     return machine_state(circ, p, v, ia)
 
 
-def _finish(circ, i, st, state, note):
+def _finish(circ, i, st, state, note, ops):
     v = state["terminal_voltage_v"]; il = state["load_current_a"]
     # the first point is the exact no-load state
     pts = {k: np.asarray(state[k], float).copy() for k in POINT_KEYS}
@@ -856,9 +938,6 @@ def _finish(circ, i, st, state, note):
     m = circ.machine
     notes = [note] if note else []
     # exact no-load, short-circuit and rated-current points from the load-line solver
-    loads = [Load.constant_current(0.0), Load(0.0, 0.0, None, "short circuit"),
-             Load.constant_current(m.rated_armature_current_a)]
-    ops = solve_operating_points(circ, loads, np.full(3, i))
     nl = _nearest(ops[0].points, v[0] if v.size else None, il[0] if v.size else None)
     if nl is not None:
         for k in POINT_KEYS:

@@ -1,0 +1,104 @@
+"""``supplycfg bench``: medians of repeated runs of the engine, the search, the charge run and the page.
+
+Targets on a 2-core machine (from the issues): ``characteristic_ms`` <= 5,
+``grid_seconds`` <= 0.5, ``search_seconds`` <= 0.3, ``charge_run_seconds``
+<= 0.1, ``app_first_render_seconds`` <= 3, ``app_change_seconds`` <= 0.3.
+"""
+
+import platform
+import statistics
+import time
+from pathlib import Path
+
+from . import __version__
+
+PROFILES = Path(__file__).resolve().parent.parent / "profiles"
+DEMO_PAIRS = (("charging-set", "battery-charging"), ("welding-set", "welding"),
+              ("lighting-set", "lighting"), ("feeder-booster", "booster"))
+TARGETS = {"characteristic_ms": 5.0, "grid_seconds": 0.5, "search_seconds": 0.3,
+           "charge_run_seconds": 0.1, "app_first_render_seconds": 3.0, "app_change_seconds": 0.3}
+
+
+def _median(fn, repeat):
+    fn()  # warm-up
+    times = []
+    for _ in range(repeat):
+        t = time.perf_counter()
+        fn()
+        times.append(time.perf_counter() - t)
+    return statistics.median(times)
+
+
+def grid_settings(machine, rheostats=50):
+    """All connections x all taps x ``rheostats`` rheostat (or field-current) values."""
+    import numpy as np
+    from .circuit import SEPARATE, USES_SERIES, Setting, allowed_connections
+    out = []
+    for conn in allowed_connections(machine):
+        taps = [t for t in machine.series_taps if t > 0] if conn in USES_SERIES else [None]
+        for tap in taps:
+            for r in np.linspace(0, machine.rheostat_max_ohm, rheostats):
+                if conn in SEPARATE and machine.excitation_voltage_v is None:
+                    out.append(Setting(conn, field_current_a=float(r / max(machine.rheostat_max_ohm, 1e-9)
+                                                                   * machine.occ_field_current_a[-1]), series_turns=tap))
+                else:
+                    out.append(Setting(conn, rheostat_ohm=float(r), series_turns=tap))
+    return out
+
+
+def run_bench(repeat=5):
+    """Run every benchmark; returns a JSON-safe dict."""
+    from .circuit import Setting, characteristics, external_characteristic
+    from .loads import load_profile
+    from .machine import load_machine
+    from .search import search
+    res = {"supplycfg": __version__, "python": platform.python_version(), "repeat": repeat}
+    m = load_machine(PROFILES / "machines" / "charging-set.toml")
+    st = Setting("shunt", rheostat_ohm=30.0)
+    res["characteristic_ms"] = 1e3 * _median(lambda: external_characteristic(m, st, 400), repeat)
+    settings = grid_settings(m)
+    res["grid_candidates"] = len(settings)
+    res["grid_seconds"] = _median(lambda: characteristics(m, settings, 100), max(1, repeat // 2))
+    worst, cands = 0.0, 0
+    per = {}
+    for mach, prof in DEMO_PAIRS:
+        mm = load_machine(PROFILES / "machines" / f"{mach}.toml")
+        pp = load_profile(PROFILES / "loads" / f"{prof}.toml")
+        t = _median(lambda: search(mm, pp), repeat)
+        per[prof] = t
+        if t >= worst:
+            worst, cands = t, search(mm, pp).candidates_evaluated
+    res["search_seconds"] = worst
+    res["search_seconds_by_profile"] = per
+    res["candidates_evaluated"] = cands
+    try:
+        from .simulation import charge_run
+        mm = load_machine(PROFILES / "machines" / "charging-set.toml")
+        pp = load_profile(PROFILES / "loads" / "battery-charging.toml")
+        best = search(mm, pp).options[0].setting
+        res["charge_run_seconds"] = _median(lambda: charge_run(mm, pp, best, max_hours=12.0), repeat)
+    except ImportError:
+        res["charge_run_seconds"] = None
+    try:
+        from .page.timing import time_app
+        res.update(time_app(max(1, min(repeat, 3))))
+    except ImportError:
+        res["app_first_render_seconds"] = None
+        res["app_change_seconds"] = None
+    res["targets"] = TARGETS
+    res["met"] = {k: (res.get(k) is not None and res[k] <= v) for k, v in TARGETS.items()}
+    return res
+
+
+def bench_text(res):
+    lines = [f"supplycfg {res['supplycfg']} bench, Python {res['python']}, median of {res['repeat']} runs", ""]
+    lines.append(f"{'measure':<28} {'value':>12} {'target':>10}  met")
+    for k, target in TARGETS.items():
+        v = res.get(k)
+        val = "-" if v is None else f"{v:.4g}"
+        lines.append(f"{k:<28} {val:>12} {target:>10g}  {'yes' if res['met'][k] else 'NO'}")
+    lines.append("")
+    lines.append(f"grid_candidates {res['grid_candidates']}; candidates_evaluated (slowest search) {res['candidates_evaluated']}")
+    for k, v in res["search_seconds_by_profile"].items():
+        lines.append(f"  search {k}: {v:.4g} s")
+    return "\n".join(lines)
