@@ -25,6 +25,7 @@ Equivalent-field-current method and generator connections: S. J. Chapman,
 *A Textbook of Electrical Technology* Vol II, ch. 26-28.
 """
 
+import warnings
 from dataclasses import dataclass, field, replace
 
 import numpy as np
@@ -869,6 +870,7 @@ def characteristics_of(circ, points=400):
                 pi = _params(circ, np.full(int(msk.sum()), i))
                 states[i] = machine_state(circ, pi, v_s[msk], il_s[msk])
     ops = _refine_batch(circ, states)
+    folds = _refine_folds(circ, states)
     result = []
     for i in range(n):
         st = circ.settings[i]
@@ -876,8 +878,56 @@ def characteristics_of(circ, points=400):
             result.append(Characteristic(st, {k: np.zeros(0) for k in POINT_KEYS + ("extrapolated",)},
                                          None, None, None, None, False, False, notes[i], [notes[i]] if notes[i] else []))
             continue
-        result.append(_finish(circ, i, st, states[i], notes[i], ops[i]))
+        result.append(_finish(circ, i, st, states[i], notes[i], ops[i], folds.get(i)))
     return result
+
+
+def _refine_folds(circ, states, iterations=3):
+    """Largest load current where a curve turns back (the breakdown point) [A].
+
+    Near the fold the load current is a smooth function of terminal voltage;
+    three exact points at fixed voltage give a parabola whose vertex is the
+    next estimate, with the spacing cut eightfold each round.
+    """
+    cand, vg, ig, dv = [], [], [], []
+    for i, st in enumerate(states):
+        if st is None:
+            continue
+        il, v = st["load_current_a"], st["terminal_voltage_v"]
+        if il.size < 3:
+            continue
+        j = int(np.argmax(il))
+        if 0 < j < il.size - 1:
+            cand.append(i); vg.append(v[j]); ig.append(il[j])
+            dv.append(max(abs(v[j - 1] - v[j + 1]) / 2, 1e-6))
+    if not cand:
+        return {}
+    cand = np.array(cand); vs = np.array(vg, float); il_best = np.array(ig, float); d = np.array(dv, float)
+    for _ in range(iterations):
+        idx = np.repeat(cand, 3)
+        vv = (vs[:, None] + d[:, None] * np.array([-1.0, 0.0, 1.0])[None, :]).ravel()
+        loads = [Load(float(x), 0.0, None, "fixed voltage") for x in vv]
+        guess = np.repeat(il_best, 3)
+        t = (guess / circ.imax + 1) / 2
+        span = np.repeat(np.maximum(0.02 * il_best, 2 * d) / circ.imax, 3)
+        res = solve_operating_points(circ, loads, idx, grid=33, window=(t - span, t + span))
+        y = np.array([min((p["load_current_a"] for p in r.points), key=lambda q: abs(q - g), default=np.nan)
+                      for r, g in zip(res, guess)]).reshape(-1, 3)
+        ok = np.isfinite(y).all(axis=1)
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", RuntimeWarning)
+            ymax = np.nanmax(np.where(np.isfinite(y), y, -np.inf), axis=1)
+            jmax = np.argmax(np.where(np.isfinite(y), y, -np.inf), axis=1)
+            den = y[:, 0] - 2 * y[:, 1] + y[:, 2]
+            shift = 0.5 * d * (y[:, 0] - y[:, 2]) / den
+            peak = y[:, 1] - 0.125 * (y[:, 2] - y[:, 0]) ** 2 / den
+        # a parabola only where the curve is smooth there: vertex inside, modest rise
+        rise = np.abs(y[:, 1] - np.fmin(y[:, 0], y[:, 2]))
+        smooth = ok & (den < 0) & (np.abs(shift) <= d) & (peak <= ymax + rise)
+        vs = np.where(smooth, vs + np.where(smooth, shift, 0.0), vs + (jmax - 1) * d)
+        il_best = np.where(smooth, np.fmax(peak, ymax), np.where(np.isfinite(ymax), np.fmax(ymax, il_best), il_best))
+        d = d / 8
+    return {int(i): float(x) for i, x in zip(cand, il_best)}
 
 
 def _refine_batch(circ, states):
@@ -930,7 +980,7 @@ def _explicit_state(circ, p, ia):
     return machine_state(circ, p, v, ia)
 
 
-def _finish(circ, i, st, state, note, ops):
+def _finish(circ, i, st, state, note, ops, fold=None):
     v = state["terminal_voltage_v"]; il = state["load_current_a"]
     # the first point is the exact no-load state
     pts = {k: np.asarray(state[k], float).copy() for k in POINT_KEYS}
@@ -956,10 +1006,7 @@ def _finish(circ, i, st, state, note, ops):
     if ilp.size >= 3:
         j = int(np.argmax(ilp))
         if 0 < j < ilp.size - 1:
-            # parabola through the three samples around the fold
-            y0, y1, y2 = ilp[j - 1], ilp[j], ilp[j + 1]
-            den = y0 - 2 * y1 + y2
-            imax = y1 - 0.125 * (y2 - y0) ** 2 / den if den < 0 else y1
+            imax = fold if fold is not None else float(ilp[j])
         else:
             imax = float(ilp[j])
     else:
