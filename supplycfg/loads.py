@@ -19,7 +19,7 @@ from pathlib import Path
 import numpy as np
 
 from .errors import InputError
-from .validate import Table, read_toml
+from .validate import Table, read_toml, show_key
 
 KINDS = ("battery", "welding", "lighting", "booster")
 
@@ -785,7 +785,7 @@ def profile_from_dict(data, source="profile"):
     known = ("load", "drive") + KINDS
     for k in data:
         if k not in known:
-            raise InputError(source, k, f"is not a known table or key; valid tables: {', '.join(known)}")
+            raise InputError(source, show_key(k), f"is not a known table or key; valid tables: {', '.join(known)}")
     ld = Table(data.get("load"), source, "load")
     kind = ld.text("kind", choices=KINDS)
     label = ld.text("label", "")

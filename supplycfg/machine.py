@@ -12,7 +12,7 @@ from pathlib import Path
 import numpy as np
 
 from .errors import InputError
-from .validate import Table, read_toml
+from .validate import Table, read_toml, show_key
 
 #: Reference temperature of the stated resistances [degC]; the usual rating
 #: temperature for class B/F insulation (IEC 60034-1 reference temperatures).
@@ -100,7 +100,7 @@ def machine_from_dict(data, source="machine"):
     known_tables = ("machine", "open_circuit", "armature_reaction", "winding")
     for k in data:
         if k not in known_tables:
-            raise InputError(source, k, f"is not a known table or key; valid tables: {', '.join(known_tables)}")
+            raise InputError(source, show_key(k), f"is not a known table or key; valid tables: {', '.join(known_tables)}")
     m = Table(data.get("machine"), source, "machine")
     kw = {"source": source}
     kw["label"] = m.text("label", "")
@@ -176,12 +176,20 @@ def machine_from_dict(data, source="machine"):
         if tab_i is not None:
             if len(tab_i) != len(tab_f):
                 raise InputError(source, "armature_reaction.demagnetizing_at_per_pole", f"has {len(tab_f)} values but armature_current_a has {len(tab_i)}; allowed: equal lengths")
-            if tab_i[0] != 0 or tab_f[0] != 0:
-                raise InputError(source, "armature_reaction.armature_current_a[0]", "the table must start at (0 A, 0 AT)")
-            if np.any(np.diff(tab_i) <= 0):
-                raise InputError(source, "armature_reaction.armature_current_a", "allowed: strictly increasing values")
-            if np.any(np.diff(tab_f) < 0):
-                raise InputError(source, "armature_reaction.demagnetizing_at_per_pole", "allowed: non-decreasing values")
+            for name, vals, unit in (("armature_current_a", tab_i, "A"), ("demagnetizing_at_per_pole", tab_f, "AT")):
+                if vals[0] != 0:
+                    raise InputError(source, f"armature_reaction.{name}[0]",
+                                     f"is {vals[0]:g} {unit}; allowed: 0 (the table starts at 0 A, 0 AT)")
+            d = np.diff(tab_i)
+            if np.any(d <= 0):
+                i = int(np.argmax(d <= 0)) + 1
+                raise InputError(source, f"armature_reaction.armature_current_a[{i}]",
+                                 f"is {tab_i[i]:g} after {tab_i[i-1]:g}; allowed: strictly increasing values")
+            d = np.diff(tab_f)
+            if np.any(d < 0):
+                i = int(np.argmax(d < 0)) + 1
+                raise InputError(source, f"armature_reaction.demagnetizing_at_per_pole[{i}]",
+                                 f"is {tab_f[i]:g} after {tab_f[i-1]:g}; allowed: non-decreasing values")
         if lin is None and tab_i is None:
             raise InputError(source, "armature_reaction", "is empty; give demagnetizing_at_per_pole_at_rated or the table")
         kw["ar_at_per_pole_at_rated"] = lin
@@ -193,7 +201,7 @@ def machine_from_dict(data, source="machine"):
         kw["winding_parallel_paths"] = w.integer("parallel_paths", low=2, high=1000)
         w.finish()
         if kw["winding_parallel_paths"] % 2:
-            raise InputError(source, "winding.parallel_paths", "allowed: an even number (2 for wave, the pole count or a multiple for lap)")
+            raise InputError(source, "winding.parallel_paths", f"is {kw['winding_parallel_paths']}; allowed: an even number (2 for wave, the pole count or a multiple for lap)")
     return Machine(**kw)
 
 

@@ -6,6 +6,8 @@ with one line that names the file, the dotted key and what is allowed.
 """
 
 import math
+import re
+import stat
 import tomllib
 from pathlib import Path
 
@@ -15,6 +17,16 @@ from .errors import InputError
 MAX_FILE_BYTES = 1_000_000
 
 _MISSING = object()
+#: Keys shown as typed when they match TOML's bare-key form; others are quoted.
+_BARE_KEY = re.compile(r"[A-Za-z0-9_-]{1,60}")
+
+
+def show_key(k):
+    """A key as it would be written in TOML, safe on one line of a message."""
+    k = str(k)
+    if _BARE_KEY.fullmatch(k):
+        return k
+    return ascii(k[:60])
 
 
 def read_toml(path, text=None):
@@ -35,19 +47,31 @@ def read_toml(path, text=None):
     if text is None:
         p = Path(path)
         try:
-            size = p.stat().st_size
-        except OSError as exc:
-            raise InputError(name, "file", f"cannot be read ({exc.strerror or exc})") from None
-        if p.is_dir():
+            st = p.stat()
+        except (OSError, ValueError) as exc:
+            raise InputError(name, "file", f"cannot be read ({getattr(exc, 'strerror', None) or exc})") from None
+        if stat.S_ISDIR(st.st_mode):
             raise InputError(name, "file", "is a folder; give a TOML file")
-        if size > MAX_FILE_BYTES:
-            raise InputError(name, "file", f"is {size} bytes; at most {MAX_FILE_BYTES} allowed")
+        if not stat.S_ISREG(st.st_mode):
+            # a pipe or device could block or never end
+            raise InputError(name, "file", "is not a regular file; give a TOML file")
+        if st.st_size > MAX_FILE_BYTES:
+            raise InputError(name, "file", f"is {st.st_size} bytes; at most {MAX_FILE_BYTES} allowed")
         try:
-            raw = p.read_bytes()
+            with open(p, "rb") as fh:
+                raw = fh.read(MAX_FILE_BYTES + 1)  # the file may have grown since stat
         except OSError as exc:
             raise InputError(name, "file", f"cannot be read ({exc.strerror or exc})") from None
+        if len(raw) > MAX_FILE_BYTES:
+            raise InputError(name, "file", f"is over {MAX_FILE_BYTES} bytes; at most {MAX_FILE_BYTES} allowed")
     else:
-        raw = text.encode("utf-8") if isinstance(text, str) else bytes(text)
+        if isinstance(text, str):
+            # lone surrogates (from a form) survive here and fail the UTF-8 check below
+            raw = text.encode("utf-8", "surrogatepass")
+        elif isinstance(text, (bytes, bytearray, memoryview)):
+            raw = bytes(text)
+        else:
+            raise InputError(name, "file", f"content must be text or bytes, got {type(text).__name__}")
         if len(raw) > MAX_FILE_BYTES:
             raise InputError(name, "file", f"is {len(raw)} bytes; at most {MAX_FILE_BYTES} allowed")
     if raw.startswith(b"\xef\xbb\xbf"):
@@ -61,9 +85,18 @@ def read_toml(path, text=None):
     if not decoded.strip():
         raise InputError(name, "file", "is empty; a TOML file with the documented tables is expected")
     try:
-        return tomllib.loads(decoded)
+        data = tomllib.loads(decoded)
     except tomllib.TOMLDecodeError as exc:
         raise InputError(name, "file", f"is not valid TOML ({exc})") from None
+    except RecursionError:
+        raise InputError(name, "file", "nests arrays or tables too deeply; allowed: the flat tables documented") from None
+    except ValueError as exc:
+        if "digits" in str(exc):  # an integer past Python's conversion limit
+            raise InputError(name, "file", "holds an integer of thousands of digits; allowed: ordinary numbers") from None
+        raise InputError(name, "file", f"is not valid TOML ({exc})") from None
+    if not data:
+        raise InputError(name, "file", "holds only comments; a TOML file with the documented tables is expected")
+    return data
 
 
 class Table:
@@ -82,7 +115,7 @@ class Table:
         self.known = []
 
     def key(self, k):
-        return f"{self.prefix}.{k}"
+        return f"{self.prefix}.{show_key(k)}"
 
     def has(self, k):
         return k in self.data
@@ -111,7 +144,7 @@ class Table:
             raise InputError(self.source, self.key(k), f"must be text, got {_describe(v)}")
         if choices is not None and v not in choices:
             raise InputError(self.source, self.key(k),
-                             f"is {v!r}; allowed: {', '.join(choices)}")
+                             f"is {v[:40]!r}; allowed: {', '.join(choices)}")
         return v
 
     def number(self, k, default=_MISSING, *, low=None, high=None, low_open=False,
@@ -128,6 +161,9 @@ class Table:
             return v
         if isinstance(v, bool) or not isinstance(v, int):
             raise InputError(self.source, self.key(k), f"must be a whole number, got {_describe(v)}")
+        if _too_long(v):
+            raise InputError(self.source, self.key(k), f"is {_describe(v)}; allowed: a whole number "
+                             + _bounds(low, high, False, False))
         _range(v, self.source, self.key(k), low, high, False, False, "a whole number")
         return int(v)
 
@@ -153,6 +189,8 @@ def _describe(v):
         return f"text {v[:40]!r}"
     if isinstance(v, bool):
         return f"{str(v).lower()} (a true/false value)"
+    if isinstance(v, int) and _too_long(v):
+        return f"a whole number of about {int(v.bit_length() * math.log10(2)) + 1} digits"
     if isinstance(v, list):
         return "a list"
     if isinstance(v, dict):
@@ -165,6 +203,9 @@ def check_number(v, source, key, *, low=None, high=None, low_open=False, high_op
     """Return ``v`` as a finite float inside the bounds or raise InputError."""
     if isinstance(v, bool) or not isinstance(v, (int, float)):
         raise InputError(source, key, f"must be {what}, got {_describe(v)}")
+    if isinstance(v, int) and _too_long(v):
+        raise InputError(source, key, f"is {_describe(v)}; allowed: {what} "
+                         + _bounds(low, high, low_open, high_open))
     v = float(v)
     if not math.isfinite(v):
         raise InputError(source, key, f"must be a finite number, got {v}")
@@ -172,11 +213,19 @@ def check_number(v, source, key, *, low=None, high=None, low_open=False, high_op
     return v
 
 
+def _too_long(v):
+    """True for an integer beyond the float range (it cannot be converted or printed with :g)."""
+    return v.bit_length() > 1023
+
+
+def _bounds(low, high, low_open, high_open):
+    lo = "" if low is None else (f"> {low:g}" if low_open else f">= {low:g}")
+    hi = "" if high is None else (f"< {high:g}" if high_open else f"<= {high:g}")
+    return " and ".join(s for s in (lo, hi) if s) or "within the float range"
+
+
 def _range(v, source, key, low, high, low_open, high_open, what):
     bad_low = low is not None and (v <= low if low_open else v < low)
     bad_high = high is not None and (v >= high if high_open else v > high)
     if bad_low or bad_high:
-        lo = "" if low is None else (f"> {low:g}" if low_open else f">= {low:g}")
-        hi = "" if high is None else (f"< {high:g}" if high_open else f"<= {high:g}")
-        allowed = " and ".join(s for s in (lo, hi) if s)
-        raise InputError(source, key, f"is {v:g}; allowed: {what} {allowed}")
+        raise InputError(source, key, f"is {v:g}; allowed: {what} {_bounds(low, high, low_open, high_open)}")
