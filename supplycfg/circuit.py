@@ -50,6 +50,8 @@ BRUSH_RAMP_FRACTION = 0.01
 CURRENT_SPAN_FACTOR = 10.0
 #: Grid points along the load line before refining each bracket.
 LOAD_LINE_GRID = 4001
+#: Curve samples nearer than this share of rated voltage make the fold's parabola exact enough.
+FOLD_FINE_SPACING = 2e-3
 #: Refinement steps of a bracket (half secant, half halving; see _bisect).
 BISECTION_STEPS = 40
 
@@ -458,7 +460,7 @@ def _voltage_span(circ, idx):
     return 1.2 * circ.s[idx] * top + 1.0
 
 
-def solve_operating_points(circ, loads, idx=None, grid=LOAD_LINE_GRID, window=None):
+def solve_operating_points(circ, loads, idx=None, grid=LOAD_LINE_GRID, window=None, steps=BISECTION_STEPS):
     """Operating points of candidates ``idx`` against ``loads`` (one load each).
 
     Parameters
@@ -528,7 +530,7 @@ def solve_operating_points(circ, loads, idx=None, grid=LOAD_LINE_GRID, window=No
             v, il = pt_rows(tt)
             return machine_state(circ, pr, v, il)["h"]
 
-        root = _bisect(res_rows, a, b, fa)
+        root = _bisect(res_rows, a, b, fa, steps)
         v, il = pt_rows(root)
         st = machine_state(circ, pr, v, il)
         falling = h[rows, cols + 1] < h[rows, cols]
@@ -882,7 +884,7 @@ def characteristics_of(circ, points=400):
     return result
 
 
-def _refine_folds(circ, states, iterations=3):
+def _refine_folds(circ, states, iterations=2):
     """Largest load current where a curve turns back (the breakdown point) [A].
 
     Near the fold the load current is a smooth function of terminal voltage;
@@ -890,6 +892,7 @@ def _refine_folds(circ, states, iterations=3):
     next estimate, with the spacing cut eightfold each round.
     """
     cand, vg, ig, dv = [], [], [], []
+    fine = {}
     for i, st in enumerate(states):
         if st is None:
             continue
@@ -898,10 +901,22 @@ def _refine_folds(circ, states, iterations=3):
             continue
         j = int(np.argmax(il))
         if 0 < j < il.size - 1:
-            cand.append(i); vg.append(v[j]); ig.append(il[j])
-            dv.append(max(abs(v[j - 1] - v[j + 1]) / 2, 1e-6))
+            # vertex of the parabola IL(V) through the three exact samples (unevenly spaced)
+            vv, yy = v[j - 1:j + 2], il[j - 1:j + 2]
+            with np.errstate(all="ignore"):
+                a2, a1, _ = np.polyfit(vv - vv[1], yy, 2) if np.ptp(vv) > 0 else (0.0, 0.0, 0.0)
+            v0 = vv[1] - a1 / (2 * a2) if a2 < 0 else vv[1]
+            peak = yy[1] - a1 ** 2 / (4 * a2) if a2 < 0 else yy[1]
+            if not (min(vv) <= v0 <= max(vv)) or not yy[1] <= peak <= yy[1] + np.ptp(yy):
+                v0, peak = vv[1], yy[1]
+            spacing = np.ptp(vv)
+            if spacing <= FOLD_FINE_SPACING * circ.machine.rated_voltage_v:
+                fine[i] = float(peak)  # dense samples: the parabola is already exact to O(h^3)
+                continue
+            cand.append(i); vg.append(v0); ig.append(peak)
+            dv.append(max(spacing / 8, 1e-6))
     if not cand:
-        return {}
+        return fine
     cand = np.array(cand); vs = np.array(vg, float); il_best = np.array(ig, float); d = np.array(dv, float)
     for _ in range(iterations):
         idx = np.repeat(cand, 3)
@@ -910,7 +925,7 @@ def _refine_folds(circ, states, iterations=3):
         guess = np.repeat(il_best, 3)
         t = (guess / circ.imax + 1) / 2
         span = np.repeat(np.maximum(0.02 * il_best, 2 * d) / circ.imax, 3)
-        res = solve_operating_points(circ, loads, idx, grid=33, window=(t - span, t + span))
+        res = solve_operating_points(circ, loads, idx, grid=33, window=(t - span, t + span), steps=24)
         y = np.array([min((p["load_current_a"] for p in r.points), key=lambda q: abs(q - g), default=np.nan)
                       for r, g in zip(res, guess)]).reshape(-1, 3)
         ok = np.isfinite(y).all(axis=1)
@@ -927,7 +942,8 @@ def _refine_folds(circ, states, iterations=3):
         vs = np.where(smooth, vs + np.where(smooth, shift, 0.0), vs + (jmax - 1) * d)
         il_best = np.where(smooth, np.fmax(peak, ymax), np.where(np.isfinite(ymax), np.fmax(ymax, il_best), il_best))
         d = d / 8
-    return {int(i): float(x) for i, x in zip(cand, il_best)}
+    fine.update({int(i): float(x) for i, x in zip(cand, il_best)})
+    return fine
 
 
 def _refine_batch(circ, states):
@@ -956,7 +972,7 @@ def _refine_batch(circ, states):
     out = {i: [OperatingPoints([]), OperatingPoints([]), OperatingPoints([])] for i in range(circ.n)}
     if not idx:
         return out
-    res = solve_operating_points(circ, loads, np.array(idx), grid=129, window=(np.array(w0), np.array(w1)))
+    res = solve_operating_points(circ, loads, np.array(idx), grid=129, window=(np.array(w0), np.array(w1)), steps=28)
     retry = []
     for (i, k), r, ld in zip(who, res, loads):
         out[i][k] = r

@@ -96,8 +96,11 @@ class OpenCircuitCurve:
         if self.interpolation == "linear":
             object.__setattr__(self, "_pp", None)
         else:
-            object.__setattr__(self, "_pp", PchipInterpolator(x, y, extrapolate=False))
-            object.__setattr__(self, "_dpp", self._pp.derivative())
+            pp = PchipInterpolator(x, y, extrapolate=False)
+            object.__setattr__(self, "_pp", pp)
+            # cubic coefficients per interval, highest power first (scipy PPoly layout)
+            object.__setattr__(self, "_c", np.ascontiguousarray(pp.c.T))
+        object.__setattr__(self, "_slopes", np.diff(y) / np.diff(x))
 
     @property
     def residual_v(self):
@@ -110,15 +113,16 @@ class OpenCircuitCurve:
     def _base(self, ax):
         """EMF and slope for ``ax >= 0`` at the test speed."""
         inside = np.minimum(ax, self._xl)
+        xk = self.field_current_a
+        idx = np.clip(np.searchsorted(xk, inside, side="right") - 1, 0, len(xk) - 2)
         if self._pp is None:
-            e = np.interp(inside, self.field_current_a, self.emf_v)
-            idx = np.clip(np.searchsorted(self.field_current_a, inside, side="right") - 1, 0,
-                          len(self.field_current_a) - 2)
-            slopes = np.diff(self.emf_v) / np.diff(self.field_current_a)
-            de = slopes[idx]
+            de = self._slopes[idx]
+            e = self.emf_v[idx] + de * (inside - xk[idx])
         else:
-            e = self._pp(inside)
-            de = self._dpp(inside)
+            c = self._c[idx]
+            t = inside - xk[idx]
+            e = ((c[..., 0] * t + c[..., 1]) * t + c[..., 2]) * t + c[..., 3]
+            de = (3 * c[..., 0] * t + 2 * c[..., 1]) * t + c[..., 2]
         over = ax > self._xl
         e = np.where(over, self._yl + self._chord * (ax - self._xl), e)
         de = np.where(over, self._chord, de)

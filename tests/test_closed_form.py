@@ -115,8 +115,6 @@ def test_shunt_external_characteristic(machine):
     assert abs(ch.short_circuit_current_a) < RTOL * 100.0
 
 
-@pytest.mark.xfail(strict=True, reason="engine: max_load_current_a comes from a three-point parabola over "
-                   "unevenly spaced curve samples near the fold; off by 1e-4 to 8e-4 depending on --points")
 def test_shunt_breakdown_current_at_any_resolution(machine):
     """Shunt breakdown (derived): the largest load current is where dE/dIf = G,
     If* = sqrt(a b / G) - b, IL* = (E(If*) - G If*) / Ra. It is a property of the
