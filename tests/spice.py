@@ -10,9 +10,10 @@ equivalent shunt-field current, armature reaction included); and the
 generated EMF as a behavioural source reading the open-circuit
 characteristic through ngspice's piecewise-linear ``pwl()`` table. Copper
 resistances are corrected for temperature by ngspice itself (``tc1`` with
-``.temp`` and ``tnom``). The load is driven along a ``.dc`` sweep so that
-each point starts from the previous one (continuation from a heavy load
-keeps a self-excited machine on its built-up branch).
+``.temp`` and ``tnom``). One ``.dc`` sweep runs the drive up from
+standstill, optionally flashes the field and releases it, then steps the
+load; each point starts from the previous one, so a self-excited machine
+started on a heavy load stays on its built-up branch of normal polarity.
 
 :func:`run` writes the netlist into a directory, runs ``ngspice -b`` in a
 subprocess and reads the ``wrdata`` table back as numpy arrays.
@@ -125,7 +126,8 @@ def generator_netlist(machine, setting, sweep, title="dc generator"):
     """
     m, s = machine, setting
     conn = s.connection
-    uses_series = conn not in ("separate", "shunt")
+    nse = m.series_turns_per_pole if s.series_turns is None else s.series_turns
+    uses_series = conn not in ("separate", "shunt") and nse > 0
     has_shunt = conn != "series"
     self_field = has_shunt and not conn.startswith("separate")
     speed = m.rated_speed_rpm if s.speed_rpm is None else s.speed_rpm
@@ -149,7 +151,6 @@ def generator_netlist(machine, setting, sweep, title="dc generator"):
     L.append("VSA a2 ap 0")
     # series branch between ap and pos, or none
     if uses_series:
-        nse = m.series_turns_per_pole if s.series_turns is None else s.series_turns
         rse = m.series_field_resistance_ohm * nse / m.series_turns_per_pole
         L.append("VSE ap s1 0")
         L.append(f"RSE s1 pos {num(rse)} {copper}")
