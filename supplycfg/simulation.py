@@ -35,7 +35,7 @@ from scipy.integrate import solve_ivp
 
 from . import STANDING_NOTICE, loads
 from .cautions import option_cautions, profile_cautions
-from .circuit import build_circuit, check_setting, normal_points
+from .circuit import _params, build_circuit, check_setting, machine_state, normal_points
 from .errors import InputError
 
 #: Time cap when none is given [h]: a charge not finished in two days points to
@@ -348,7 +348,10 @@ def charge_run(machine, profile, setting, max_hours=None):
                       "machine's voltage no longer drives a useful current")
     elif stop == "no-operating-point":
         reason = (f"the machine has no stable operating point against the bank at {pct} state of charge "
-                  "(its characteristic no longer meets the charging curve)")
+                  "(its characteristic does not meet the charging curve)")
+        if _below_bank(circ, job, soc_end):
+            reason += ": the bank's voltage is above the machine's and current would flow back into it " \
+                      "(a reverse-current cut-out must open)"
     else:
         reason = f"the time cap of {cap_h:g} h was reached at {pct} state of charge"
 
@@ -378,6 +381,13 @@ def charge_run(machine, profile, setting, max_hours=None):
         start_state_of_charge=soc0, end_state_of_charge=soc1, capacity_ah=cap, cells=cells,
         charge_efficiency=eff, converged=converged, cautions=cautions, notes=notes,
         machine_label=machine.label, profile_label=profile.label)
+
+
+def _below_bank(circ, job, soc):
+    """Whether the machine's available voltage at no load is below the bank's open-circuit voltage."""
+    e = charging_line_voltage_v(job, soc, 0.0)
+    h = machine_state(circ, _params(circ, np.zeros(1, int)), np.full(1, float(e)), np.zeros(1))["h"]
+    return bool(h[0] < 0)
 
 
 def _nanmax(a):
