@@ -51,7 +51,7 @@ CURRENT_SPAN_FACTOR = 10.0
 #: Grid points along the load line before refining each bracket.
 LOAD_LINE_GRID = 4001
 #: Curve samples nearer than this share of rated voltage make the fold's parabola exact enough.
-FOLD_FINE_SPACING = 2e-3
+FOLD_FINE_SPACING = 1e-2
 #: Refinement steps of a bracket (half secant, half halving; see _bisect).
 BISECTION_STEPS = 40
 
@@ -1068,6 +1068,12 @@ class SelfExcitation:
     reasons: list
     no_load_points: list
     converged: bool = True
+
+    @property
+    def extrapolated(self):
+        """True when the held no-load point needed the OCC beyond its last measured point."""
+        return any(p["extrapolated"] for p in self.no_load_points
+                   if self.no_load_voltage_v is not None and p["terminal_voltage_v"] == self.no_load_voltage_v)
 
 
 def self_excitation(machine, rheostat_ohm=None, speed_rpm=None, winding_temperature_c=None):

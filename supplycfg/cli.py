@@ -288,7 +288,7 @@ def cmd_buildup(args, out):
            "critical_field_resistance_ohm": se.critical_field_resistance_ohm,
            "critical_speed_rpm": se.critical_speed_rpm, "builds_up": se.builds_up,
            "no_load_voltage_v": se.no_load_voltage_v, "stall_voltage_v": se.stall_voltage_v,
-           "reasons": se.reasons, "converged": se.converged}
+           "reasons": se.reasons, "extrapolated": se.extrapolated, "converged": se.converged}
     if args.json:
         return res
     lines = [f"{m.label or args.machine}: shunt field at no load, {_describe_setting(se.setting)}",
@@ -298,6 +298,8 @@ def cmd_buildup(args, out):
              f"no-load voltage once built up (or flashed): {_fmt(se.no_load_voltage_v, 'V')}"]
     if se.stall_voltage_v is not None:
         lines.append(f"a build-up from residual stops near {se.stall_voltage_v:.4g} V")
+    if se.extrapolated:
+        lines.append("note: the no-load point lies beyond the last measured point of the open-circuit curve (extrapolated)")
     for r in se.reasons:
         lines.append(f"- {r}")
     return "\n".join(lines)

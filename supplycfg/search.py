@@ -61,6 +61,7 @@ class Option:
     smallest_margin: float
     current_settings: list | None = None
     control: str = "rheostat"
+    extrapolated: bool = False
 
     def setting_dict(self):
         s = self.setting
@@ -75,7 +76,7 @@ class Option:
     def as_dict(self):
         d = {"rank": self.rank, "feasible": self.feasible, "setting": self.setting_dict(),
              "figures": self.figures, "margins": self.margins, "failed": list(self.failed),
-             "smallest_margin": self.smallest_margin,
+             "smallest_margin": self.smallest_margin, "extrapolated": self.extrapolated,
              "cautions": [c.as_dict() for c in self.cautions]}
         if self.current_settings is not None:
             d["current_settings"] = self.current_settings
@@ -268,6 +269,16 @@ def _battery(space, base_idx, u, res=COARSE):
         cell = loads.charging_voltage_per_cell(chem, soc1, rate, b.temperature_c, ocv) - np.maximum(t, 0) * rc_cell
         return b.cells * cell + t * r
 
+    def bank_at(soc):
+        def f(t):
+            rate = np.maximum(t, 0.0) / cap
+            cell = loads.charging_voltage_per_cell(chem, soc, rate, b.temperature_c, ocv) - np.maximum(t, 0) * rc_cell
+            return b.cells * cell + t * r
+        return f
+
+    # the start current on the charging curve (overvoltage included): what the charge run sees
+    start_c = normal_points(sub, np.zeros(sub.n), np.full(sub.n, imax), v_of=bank_at(soc0), **res)
+    i_start_c = np.where(start_c["found"], start_c["load_current_a"], 0.0)
     end = normal_points(sub, np.zeros(sub.n), np.full(sub.n, imax), v_of=bank_end, **res)
     i_end = np.where(end["found"], end["load_current_a"], 0.0)
     vpc_end = np.asarray(loads.charging_voltage_per_cell(chem, soc1, i_end / cap, b.temperature_c, ocv), float)
@@ -277,7 +288,9 @@ def _battery(space, base_idx, u, res=COARSE):
     nc = space.nc
     lim = {
         "start_current_max": (_worst(i_start, n, nc, "max"), b.max_charge_current_a, "max", "A"),
-        "start_current_min": (_worst(i_start, n, nc, "min"), b.min_charge_current_a, "min", "A"),
+        # conservative pair: the open-circuit line (issue rule) gives the higher current, the
+        # charging curve the lower; the maximum is checked on the first, the minimum on the second
+        "start_current_min": (_worst(np.fmin(i_start, i_start_c), n, nc, "min"), b.min_charge_current_a, "min", "A"),
         "end_volts_per_cell": (_worst(vpc_end, n, nc, "max"), limit_vpc, "max", "V"),
         "end_current_floor": (_worst(i_end, n, nc, "min"), END_CURRENT_FLOOR_PER_H * cap, "min", "A"),
         "no_load_above_bank": (_worst(vnl, n, nc, "min"), (1 + NO_LOAD_MARGIN_FRACTION) * e1, "min", "V"),
@@ -287,6 +300,8 @@ def _battery(space, base_idx, u, res=COARSE):
     figs = {
         "start_charge_current_a": _worst(i_start, n, nc, "max"),
         "start_charge_current_min_a": _worst(i_start, n, nc, "min"),
+        "start_charge_current_on_charge_a": _worst(i_start_c, n, nc, "max"),
+        "start_charge_current_on_charge_min_a": _worst(i_start_c, n, nc, "min"),
         "end_charge_current_a": _worst(i_end, n, nc, "min"),
         "end_volts_per_cell": _worst(vpc_end, n, nc, "max"),
         "end_volts_per_cell_limit": np.full(n, limit_vpc),
@@ -298,6 +313,7 @@ def _battery(space, base_idx, u, res=COARSE):
         "bank_open_circuit_voltage_end_v": np.full(n, e1),
         "max_armature_current_a": _worst(np.abs(ia_start), n, nc, "max"),
         "min_net_mmf_a": _worst(np.fmin(start["x"], end["x"]), n, nc, "min"),
+        "max_net_mmf_a": _worst(np.fmax(np.abs(start["x"]), np.abs(end["x"])), n, nc, "max"),
         "min_generated_emf_v": _worst(np.fmin(start["generated_emf_v"], end["generated_emf_v"]), n, nc, "min"),
         "critical_resistance_ratio": _critical_ratios(space, sub, n),
         "converged": _worst((start["converged"] & end["converged"]).astype(float), n, nc, "min"),
@@ -346,6 +362,7 @@ def _lighting_like(space, base_idx, u, booster=False, res=COARSE):
             "band_low_v": np.full(n, nominal * (1 - tol)), "band_high_v": np.full(n, nominal * (1 + tol)),
             "max_armature_current_a": iamax,
             "min_net_mmf_a": _worst(x_all.min(axis=1), n, nc, "min"),
+            "max_net_mmf_a": _worst(np.abs(x_all).max(axis=1), n, nc, "max"),
             "min_generated_emf_v": _worst(e_all.min(axis=1), n, nc, "min"),
             "critical_resistance_ratio": _critical_ratios(space, sub, n),
             "converged": _worst(conv.astype(float), n, nc, "min")}
@@ -498,7 +515,7 @@ def _welding(space):
         rn, subn = _weld_current(space, bi, u, np.full(nb, nom))
         slope = _char_slope(subn, rn["terminal_voltage_v"], rn["load_current_a"])
         per[end] = {"u": u, "reachable": ok, "dev": dev, "current": cur, "vnl": vnl,
-                    "slope": slope, "v": rn["terminal_voltage_v"], "x": r["x"].reshape(nb, nc).min(axis=1),
+                    "slope": slope, "v": rn["terminal_voltage_v"], "x": r["x"].reshape(nb, nc).min(axis=1), "xabs": np.abs(r["x"]).reshape(nb, nc).max(axis=1),
                     "e": r["generated_emf_v"].reshape(nb, nc).min(axis=1),
                     "ia": np.abs(r["armature_current_a"]).reshape(nb, nc).max(axis=1),
                     "conv": r["converged"].reshape(nb, nc).all(axis=1)}
@@ -536,6 +553,7 @@ def _welding(space):
             "stuck_electrode_current_a": isc, "duty_equivalent_current_a": np.full(nb, deq),
             "max_armature_current_a": np.fmax(per["high"]["ia"], np.where(np.isnan(isc), 0, isc)),
             "min_net_mmf_a": np.fmin(per["low"]["x"], per["high"]["x"]),
+            "max_net_mmf_a": np.fmax(per["low"]["xabs"], per["high"]["xabs"]),
             "min_generated_emf_v": np.fmin(per["low"]["e"], per["high"]["e"]),
             "converged": (per["low"]["conv"] & per["high"]["conv"]).astype(float)}
     subc, _ = _expand(space, np.concatenate([bi, bi]), np.concatenate([per["low"]["u"], per["high"]["u"]]))
@@ -638,8 +656,11 @@ def search(machine, profile):
         if stop:
             failed.append("stop_caution")
         feasible = not failed
+        xmax = f.get("max_net_mmf_a")
+        extrap = xmax is not None and xmax > machine.occ_field_current_a[-1] * (1 + 1e-9)
         options.append(Option(0, feasible, st, f, margins, failed, cautions, float(min(fracs)) if fracs else 0.0,
-                              current_settings[i], {"field-current": "field-current", "none": "none"}.get(space.bases[i][3], "rheostat")))
+                              current_settings[i], {"field-current": "field-current", "none": "none"}.get(space.bases[i][3], "rheostat"),
+                              extrap))
     options.sort(key=lambda o: (not o.feasible, -o.smallest_margin, o.setting.connection,
                                 o.setting.series_turns or 0, o.setting.diverter_ohm or 0))
     for k, o in enumerate(options, 1):
@@ -673,6 +694,8 @@ def search_text(res, top=10):
             "-" if s.rheostat_ohm is None or o.control == "none" else f"{s.rheostat_ohm:.2f} ohm")
         sev = sorted({c.severity for c in o.cautions}, key=["stop", "warn", "note"].index)
         extra = ", ".join(sev) + ("" if o.feasible else "; breaks " + ", ".join(o.failed))
+        if o.extrapolated:
+            extra += "; extrapolated OCC"
         lines.append(f"{o.rank:>4}  {'yes' if o.feasible else 'no':<4}  {s.connection:<25} {(s.series_turns or 0):>5g} "
                      f"{_short(s.diverter_ohm):>9} {fld:>14} {s.speed_rpm:>6.0f}  {100 * o.smallest_margin:>11.1f}%  {extra}")
         if o.current_settings:
