@@ -43,7 +43,7 @@ WELD_CURRENT_TOLERANCE = 0.03
 #: Lighting and booster: load currents checked across the range.
 LOAD_POINTS = 5
 #: Load-line grid and bisection steps while searching, and for the reported figures.
-COARSE = {"grid": 41, "steps": 32}
+COARSE = {"grid": 33, "steps": 26}
 FINE = {"grid": 401, "steps": 60}
 
 
@@ -341,8 +341,10 @@ def _lighting_like(space, base_idx, u, booster=False, res=COARSE):
             vl = job.bus_voltage_v + v - il * job.feeder_resistance_ohm
             x, e, iak = st["x"], st["generated_emf_v"], st["armature_current_a"]
         else:
+            # a machine sitting below a third of the nominal voltage has failed anyway
             top = 1.5 * nominal * (1 + tol) + 50.0
-            r = normal_points(sub, np.zeros(sub.n), np.full(sub.n, top), il_of=lambda t, il=il: np.full_like(t, il), **res)
+            r = normal_points(sub, np.full(sub.n, nominal / 3), np.full(sub.n, top),
+                              il_of=lambda t, il=il: np.full_like(t, il), **res)
             vl = r["terminal_voltage_v"] - il * job.feeder_resistance_ohm
             x, e, iak = r["x"], r["generated_emf_v"], r["armature_current_a"]
             conv &= r["converged"]
