@@ -50,6 +50,10 @@ BRUSH_RAMP_FRACTION = 0.01
 CURRENT_SPAN_FACTOR = 10.0
 #: Grid points along the load line before refining each bracket.
 LOAD_LINE_GRID = 4001
+#: Times the voltage span of a load-line search is doubled when the machine is still above the load.
+SPAN_DOUBLINGS = 4
+RUNAWAY_MESSAGE = ("the machine's voltage keeps rising above the load beyond the searched span: the open-circuit "
+                   "curve's extension past its last point never bends over; measure the curve further")
 #: Curve samples nearer than this share of rated voltage make the fold's parabola exact enough.
 FOLD_FINE_SPACING = 1e-2
 #: Refinement steps of a bracket (half secant, half halving; see _bisect).
@@ -471,7 +475,9 @@ def solve_operating_points(circ, loads, idx=None, grid=LOAD_LINE_GRID, window=No
         Candidate index for each load (default ``arange(circ.n)``).
     window : (array, array), optional
         Part of the load line to search, as fractions 0..1 of the full span
-        (terminal voltage 0..top, or load current -imax..imax at fixed voltage).
+        (terminal voltage -top..top, or load current -imax..imax at fixed
+        voltage). Negative voltages are searched too: a machine that built up
+        reversed drives its load backwards.
 
     Returns
     -------
@@ -498,7 +504,7 @@ def solve_operating_points(circ, loads, idx=None, grid=LOAD_LINE_GRID, window=No
     by_current = fixed_voltage
 
     def point(tt):
-        v = np.where(by_current, v0, tt * vtop)
+        v = np.where(by_current, v0, (2 * tt - 1) * vtop)
         with np.errstate(divide="ignore", invalid="ignore"):
             il = np.where(fixed_current, cur,
                           np.where(by_current, (2 * tt - 1) * circ.imax, (v - v0) / np.where(k > 0, k, 1.0)))
@@ -509,6 +515,16 @@ def solve_operating_points(circ, loads, idx=None, grid=LOAD_LINE_GRID, window=No
         return machine_state(circ, p, v, il)["h"]
 
     h = resid(t)
+    # a machine still above the load at the top of the span: widen the span (full searches only)
+    runaway = np.zeros(m, bool)
+    if window is None:
+        for _ in range(SPAN_DOUBLINGS):
+            up = (h[:, -1] > 0) & ~by_current[:, 0]
+            if not up.any():
+                break
+            vtop = np.where(up[:, None], 2 * vtop, vtop)
+            h = resid(t)
+        runaway = (h[:, -1] > 0) & ~by_current[:, 0]
     # stable when the residual falls as the parameter rises (V up, or IL up at fixed V)
     sign_change = np.signbit(h[:, :-1]) != np.signbit(h[:, 1:])
     exact = h[:, :-1] == 0
@@ -521,7 +537,7 @@ def solve_operating_points(circ, loads, idx=None, grid=LOAD_LINE_GRID, window=No
         vv0, kk_, cc, fc, bc, vt = v0[rows, 0], k[rows, 0], cur[rows, 0], fixed_current[rows, 0], by_current[rows, 0], vtop[rows, 0]
 
         def pt_rows(tt):
-            v = np.where(bc, vv0, tt * vt)
+            v = np.where(bc, vv0, (2 * tt - 1) * vt)
             with np.errstate(divide="ignore", invalid="ignore"):
                 il = np.where(fc, cc, np.where(bc, (2 * tt - 1) * circ.imax, (v - vv0) / np.where(kk_ > 0, kk_, 1.0)))
             return v, il
@@ -548,10 +564,13 @@ def solve_operating_points(circ, loads, idx=None, grid=LOAD_LINE_GRID, window=No
             d["residual_v"] = float(st["h"][j])
             out[rows[j]].append(d)
     res = []
-    for lst in out:
+    for r, lst in enumerate(out):
         lst = _dedupe(lst)
         lst.sort(key=lambda d: -d["terminal_voltage_v"])
-        res.append(OperatingPoints(lst, ok, "" if ok else "a root did not reach the residual tolerance"))
+        if runaway[r]:
+            res.append(OperatingPoints(lst, False, RUNAWAY_MESSAGE))
+        else:
+            res.append(OperatingPoints(lst, ok, "" if ok else "a root did not reach the residual tolerance"))
     return res
 
 
@@ -956,11 +975,11 @@ def _refine_batch(circ, states):
         if st is None:
             continue
         v, il = st["terminal_voltage_v"], st["load_current_a"]
-        guesses = [(Load.constant_current(0.0), v[0] / vtop[i], 0.03)]
+        guesses = [(Load.constant_current(0.0), (v[0] / vtop[i] + 1) / 2, 0.015)]
         guesses.append((Load(0.0, 0.0, None, "short circuit"), (il[-1] / circ.imax + 1) / 2, 0.02))
         cross = np.flatnonzero(il >= rated)
         if cross.size:
-            guesses.append((Load.constant_current(rated), v[cross[0]] / vtop[i], 0.03))
+            guesses.append((Load.constant_current(rated), (v[cross[0]] / vtop[i] + 1) / 2, 0.015))
         else:
             guesses.append((Load.constant_current(rated), None, None))
         for k, (ld, g, half) in enumerate(guesses):
@@ -1112,11 +1131,15 @@ def self_excitation(machine, rheostat_ohm=None, speed_rpm=None, winding_temperat
     slope = circ.occ.air_gap_slope()
     rcrit = float(circ.s[0] * slope)
     ncrit = float(machine.occ_speed_rpm * rf / slope)
-    pts = ops.points
+    # the residual magnetism sets the polarity: a build-up rises from zero, never into reverse
+    pts = [p for p in ops.points if p["terminal_voltage_v"] >= 0]
     stable = [p for p in pts if p["stable"]]
     vnl = stable[0]["terminal_voltage_v"] if stable else None
     reasons = []
     er = circ.occ.residual_v
+    if not ops.converged and ops.message == RUNAWAY_MESSAGE:
+        reasons.append("the field line never meets the open-circuit curve again: the voltage would run away past the "
+                       "last measured point, so no no-load voltage can be given; measure the curve further or add field resistance")
     if er <= 0:
         reasons.append("no residual voltage: the field must be flashed from a separate supply before it can build up")
     if rf >= rcrit:
