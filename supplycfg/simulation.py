@@ -430,20 +430,20 @@ def charge_from_files(machine_path, profile_path, setting=None, names=None, max_
     if setting is None:
         res = search(m, p)
         pick = next((o for o in res.options if o.feasible), None)
-        source = f"option {pick.rank} of the search (the best feasible)" if pick else ""
+        source = f"option {pick.rank} of the search, the best feasible" if pick else ""
         if pick is None:
             pick = next((o for o in res.options if not any(c.severity == "stop" for c in o.cautions)), None)
             if pick is None:
                 raise InputError(p.source, "battery", "no setting of this machine can charge this bank; "
                                  "see `supplycfg search` for the limits each setting breaks")
-            source = f"option {pick.rank} of the search (no setting meets every limit: the nearest miss)"
+            source = f"option {pick.rank} of the search, the nearest miss (no setting meets every limit)"
         st = pick.setting
     else:
         st = check_setting(m, setting, "command line", names)
         source = "command line"
     run = charge_run(m, p, st, max_hours)
     run.setting_source = source
-    if source.endswith("nearest miss)"):
+    if "nearest miss" in source:
         run.notes.append("no setting meets every limit of the job; this run uses the nearest miss")
     return run
 

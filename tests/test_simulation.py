@@ -202,6 +202,7 @@ def test_time_cap(machine, profile, best):
 
 
 def test_bad_max_hours(machine, profile, best):
+    """A time cap that is not a positive number is bad input (project rule: one-line InputError)."""
     with pytest.raises(InputError, match="max_hours"):
         charge_run(machine, profile, best.setting, max_hours=0)
 
@@ -214,6 +215,7 @@ def test_non_battery_profile_is_refused(machine):
 
 
 def test_as_dict_is_json(full_run):
+    """as_dict is JSON without NaN: arrays as lists of the time grid's length, scalars beside them."""
     d = full_run.as_dict()
     text = json.dumps(d, allow_nan=False)
     back = json.loads(text)
@@ -239,6 +241,7 @@ def test_cautions_travel_with_the_run(full_run, machine, profile):
 
 
 def test_text_summary(full_run):
+    """The text names the stop reason, lists the cautions and tabulates about 12 rows over time."""
     text = charge_text(full_run)
     assert "end state of charge" in text and "Cautions" in text
     table = [ln for ln in text.splitlines() if ln.strip() and ln.strip()[0].isdigit() and "  " in ln]
@@ -246,12 +249,14 @@ def test_text_summary(full_run):
 
 
 def test_from_files_uses_the_best_option(best):
+    """Without a setting the run takes the search's best option."""
     r = charge_from_files(MACHINE, PROFILE)
     assert r.setting == best.setting
     assert "search" in r.setting_source
 
 
 def test_from_files_checks_a_given_setting():
+    """A given setting is checked as command-line input and the message names the option."""
     with pytest.raises(InputError, match="--rheostat-ohm"):
         charge_from_files(MACHINE, PROFILE, Setting("shunt", rheostat_ohm=1e4), names={"rheostat_ohm": "--rheostat-ohm"})
 
@@ -266,7 +271,17 @@ def test_cli_json(capsys):
     assert len(d["time_h"]) == len(d["current_a"]) > 10
 
 
+def test_from_files_nearest_miss(tmp_path):
+    """Where no setting meets every limit the run takes the nearest miss and says so."""
+    bad = tmp_path / "narrow.toml"
+    bad.write_text(PROFILE.read_text().replace("min_charge_current_a = 10", "min_charge_current_a = 29.9"))
+    r = charge_from_files(MACHINE, bad)
+    assert "nearest miss" in r.setting_source and any("nearest miss" in n for n in r.notes)
+    assert not any(c.severity == "stop" for c in r.cautions)
+
+
 def test_cli_with_setting(capsys):
+    """A setting on the command line is run as given."""
     rc = main(["charge", str(MACHINE), str(PROFILE), "--connection", "shunt", "--rheostat-ohm", "60"])
     out, err = capsys.readouterr()
     assert rc == 0 and "charge limit" in out
