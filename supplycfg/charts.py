@@ -61,15 +61,29 @@ def _legend():
     return alt.Legend(orient="bottom", columns=1, title=None, labelLimit=420, symbolStrokeWidth=3)
 
 
-def _layered(layers, title, width=None):
+class _Sets:
+    """Named datasets of one chart: layers refer to them by name, the chart carries them once.
+
+    Keeping the rows out of the layers spares Altair from copying them at
+    every step, which keeps a page rerun quick.
+    """
+
+    def __init__(self):
+        self.data = {}
+
+    def __call__(self, name, rows):
+        self.data[name] = rows
+        return alt.NamedData(name=name)
+
+
+def _layered(layers, title, sets, width=None):
     layers = [ly for ly in layers if ly is not None]
-    ch = alt.layer(*layers).properties(title=title, height=HEIGHT, autosize=FIT_WIDTH)
-    if width is not None:
-        ch = ch.properties(width=width)
-    return ch.resolve_scale(color="shared")
+    kw = {"width": width} if width is not None else {}
+    return alt.LayerChart(layer=layers, datasets=sets.data, title=title, height=HEIGHT, autosize=FIT_WIDTH,
+                          resolve=alt.Resolve(scale=alt.ScaleResolveMap(color="shared")), **kw)
 
 
-def lines_layer(rows, x, y, x_title, y_title, colours=None, dash_field=None, tooltip=None):
+def lines_layer(rows, x, y, x_title, y_title, colours=None, dash_field=None, tooltip=None, data=None):
     """Lines from rows ``{series, <x>, <y>, ...}``, one line per ``series``.
 
     ``dash_field`` names a field whose true rows draw dashed (e.g. extrapolated).
@@ -79,8 +93,8 @@ def lines_layer(rows, x, y, x_title, y_title, colours=None, dash_field=None, too
         "x": alt.X(f"{x}:Q", title=x_title),
         "y": alt.Y(f"{y}:Q", title=y_title),
         "color": alt.Color("series:N", scale=_colour_scale(labels, colours), legend=_legend()),
-        "detail": "segment:N" if rows and "segment" in rows[0] else "series:N",
-        "order": "order:Q" if rows and "order" in rows[0] else alt.Undefined,
+        "detail": alt.Detail("segment:N" if rows and "segment" in rows[0] else "series:N"),
+        "order": alt.Order("order:Q") if rows and "order" in rows[0] else alt.Undefined,
         "tooltip": tooltip or [alt.Tooltip("series:N", title="curve"), alt.Tooltip(f"{x}:Q", title=x_title),
                                alt.Tooltip(f"{y}:Q", title=y_title)],
     }
@@ -88,7 +102,7 @@ def lines_layer(rows, x, y, x_title, y_title, colours=None, dash_field=None, too
         enc["strokeDash"] = alt.StrokeDash(f"{dash_field}:N", legend=None,
                                            scale=alt.Scale(domain=["no", "yes"], range=[[1, 0], [6, 4]]))
     enc = {k: v for k, v in enc.items() if v is not alt.Undefined}
-    return alt.Chart(alt.Data(values=rows)).mark_line(strokeWidth=2.2, clip=True).encode(**enc)
+    return alt.Chart(data if data is not None else alt.Data(values=rows)).mark_line(strokeWidth=2.2, clip=True).encode(**enc)
 
 
 # ---------------------------------------------------------------------------
@@ -195,37 +209,38 @@ def occ_chart(machine, setting=None, temperatures_c=None, width=None):
     labels = [curve_label] + list(dict.fromkeys(r["series"] for r in lines))
     scale = _colour_scale(labels, [INK] + colours)
     enc_c = alt.Color("series:N", scale=scale, legend=_legend())
-    base = alt.Chart(alt.Data(values=curve)).mark_line(strokeWidth=2.6, clip=True).encode(
+    sets = _Sets()
+    base = alt.Chart(sets("occ", curve)).mark_line(strokeWidth=2.6, clip=True).encode(
         x=alt.X("field_current_a:Q", title=x_title, scale=alt.Scale(domain=[0, _f(x_top)])),
         y=alt.Y("emf_v:Q", title=y_title, scale=alt.Scale(domain=[0, _f(1.08 * e_top)])),
-        color=enc_c, detail="extrapolated:N", order="order:Q",
+        color=enc_c, detail=alt.Detail("extrapolated:N"), order=alt.Order("order:Q"),
         strokeDash=alt.StrokeDash("extrapolated:N", legend=None,
                                   scale=alt.Scale(domain=["no", "yes"], range=[[1, 0], [6, 4]])),
         tooltip=[alt.Tooltip("field_current_a:Q", title="field current [A]"),
                  alt.Tooltip("emf_v:Q", title="EMF [V]"),
                  alt.Tooltip("extrapolated:N", title="beyond the measured points")],
     ).add_params(_zoom())
-    measured = alt.Chart(alt.Data(values=pts)).mark_point(filled=True, size=36, shape="diamond").encode(
-        x="field_current_a:Q", y="emf_v:Q", color=enc_c,
+    measured = alt.Chart(sets("measured", pts)).mark_point(filled=True, size=36, shape="diamond").encode(
+        x=alt.X("field_current_a:Q"), y=alt.Y("emf_v:Q"), color=enc_c,
         tooltip=[alt.Tooltip("field_current_a:Q", title="field current [A]"),
                  alt.Tooltip("emf_v:Q", title="EMF at this speed [V]"),
                  alt.Tooltip("measured_at_rpm:Q", title="measured at [rpm]")])
     layer_lines = None
     if lines:
-        layer_lines = alt.Chart(alt.Data(values=lines)).mark_line(strokeWidth=1.8, clip=True).encode(
-            x="field_current_a:Q", y="emf_v:Q", color=enc_c, detail="series:N", order="order:Q",
+        layer_lines = alt.Chart(sets("field_lines", lines)).mark_line(strokeWidth=1.8, clip=True).encode(
+            x=alt.X("field_current_a:Q"), y=alt.Y("emf_v:Q"), color=enc_c, detail=alt.Detail("series:N"), order=alt.Order("order:Q"),
             tooltip=[alt.Tooltip("series:N", title="line"),
                      alt.Tooltip("resistance_ohm:Q", title="resistance [ohm]")])
     layer_marks = None
     if marks:
-        layer_marks = alt.Chart(alt.Data(values=marks)).mark_point(size=130, filled=False, strokeWidth=2.6).encode(
-            x="field_current_a:Q", y="emf_v:Q", color=alt.Color("series:N", scale=scale, legend=None),
+        layer_marks = alt.Chart(sets("no_load", marks)).mark_point(size=130, filled=False, strokeWidth=2.6).encode(
+            x=alt.X("field_current_a:Q"), y=alt.Y("emf_v:Q"), color=alt.Color("series:N", scale=scale, legend=None),
             shape=alt.Shape("point:N", legend=_legend(), scale=alt.Scale(range=list(POINT_SHAPES))),
             tooltip=[alt.Tooltip("series:N", title="point"), alt.Tooltip("field_current_a:Q", title="field current [A]"),
                      alt.Tooltip("emf_v:Q", title="no-load voltage [V]"),
                      alt.Tooltip("builds_up:N", title="builds up from residual")])
     return _layered([base, measured, layer_lines, layer_marks],
-                    "Open-circuit characteristic and field-circuit lines", width)
+                    "Open-circuit characteristic and field-circuit lines", sets, width)
 
 
 # ---------------------------------------------------------------------------
@@ -294,29 +309,30 @@ def characteristic_chart(curves, loads=(), bands=(), points=(), title="External 
     xq = alt.X("load_current_a:Q", title=x_title, scale=xs)
     yq = alt.Y("terminal_voltage_v:Q", title=y_title, scale=ys)
     layers = []
+    sets = _Sets()
     if brows:
-        layers.append(alt.Chart(alt.Data(values=brows)).mark_rect(opacity=0.35, color=SAND).encode(
-            x=alt.X("i_min:Q", title=x_title, scale=xs), x2="i_max:Q",
-            y=alt.Y("v_min:Q", title=y_title, scale=ys), y2="v_max:Q",
+        layers.append(alt.Chart(sets("bands", brows)).mark_rect(opacity=0.35, color=SAND).encode(
+            x=alt.X("i_min:Q", title=x_title, scale=xs), x2=alt.X2("i_max:Q"),
+            y=alt.Y("v_min:Q", title=y_title, scale=ys), y2=alt.Y2("v_max:Q"),
             tooltip=[alt.Tooltip("series:N", title="required"), alt.Tooltip("i_min:Q", title="from [A]"),
                      alt.Tooltip("i_max:Q", title="to [A]"), alt.Tooltip("v_min:Q", title="lowest [V]"),
                      alt.Tooltip("v_max:Q", title="highest [V]")]))
     if rows:
-        layers.append(alt.Chart(alt.Data(values=rows)).mark_line(strokeWidth=2.4, clip=True).encode(
-            x=xq, y=yq, color=col, detail="series:N", order="order:Q",
+        layers.append(alt.Chart(sets("curves", rows)).mark_line(strokeWidth=2.4, clip=True).encode(
+            x=xq, y=yq, color=col, detail=alt.Detail("series:N"), order=alt.Order("order:Q"),
             strokeDash=alt.StrokeDash("extrapolated:N", legend=None,
                                       scale=alt.Scale(domain=["no", "yes"], range=[[1, 0], [6, 4]])),
             tooltip=[alt.Tooltip("series:N", title="curve"), alt.Tooltip("load_current_a:Q", title="load current [A]"),
                      alt.Tooltip("terminal_voltage_v:Q", title="voltage [V]"),
                      alt.Tooltip("extrapolated:N", title="beyond the measured OCC")]))
     if lrows:
-        layers.append(alt.Chart(alt.Data(values=lrows)).mark_line(strokeWidth=1.6, strokeDash=[2, 2],
+        layers.append(alt.Chart(sets("loads", lrows)).mark_line(strokeWidth=1.6, strokeDash=[2, 2],
                                                                    clip=True).encode(
-            x=xq, y=yq, color=col, detail="series:N", order="order:Q",
+            x=xq, y=yq, color=col, detail=alt.Detail("series:N"), order=alt.Order("order:Q"),
             tooltip=[alt.Tooltip("series:N", title="load"), alt.Tooltip("load_current_a:Q", title="current [A]"),
                      alt.Tooltip("terminal_voltage_v:Q", title="voltage [V]")]))
     if prow:
-        layers.append(alt.Chart(alt.Data(values=prow)).mark_point(size=130, filled=True).encode(
+        layers.append(alt.Chart(sets("points", prow)).mark_point(size=130, filled=True).encode(
             x=xq, y=yq, color=alt.Color("series:N", scale=scale, legend=None),
             shape=alt.Shape("point:N", legend=_legend(), scale=alt.Scale(range=list(POINT_SHAPES))),
             opacity=alt.Opacity("stable:N", legend=None,
@@ -326,10 +342,10 @@ def characteristic_chart(curves, loads=(), bands=(), points=(), title="External 
                      alt.Tooltip("terminal_voltage_v:Q", title="voltage [V]"),
                      alt.Tooltip("stable:N", title="stability")]))
     if not layers:
-        layers.append(alt.Chart(alt.Data(values=[{"load_current_a": 0, "terminal_voltage_v": 0}])).mark_point(
+        layers.append(alt.Chart(sets("empty", [{"load_current_a": 0, "terminal_voltage_v": 0}])).mark_point(
             opacity=0).encode(x=xq, y=yq))
     layers[0] = layers[0].add_params(_zoom())
-    return _layered(layers, title, width)
+    return _layered(layers, title, sets, width)
 
 
 def setting_curve(machine, setting, points=CURVE_POINTS):
@@ -573,13 +589,14 @@ def charge_run_chart(run, width=None):
         From :func:`supplycfg.simulation.charge_run`.
     """
     t = np.asarray(run.time_h, float)
-    step = max(1, t.size // 400)
+    step = max(1, t.size // 200)
     idx = np.r_[np.arange(0, t.size, step), t.size - 1] if t.size else np.zeros(0, int)
     idx = np.unique(idx)
     rows = [{"time_h": _f(t[i]), "current_a": _f(run.current_a[i]), "volts_per_cell": _f(run.volts_per_cell[i]),
              "state_of_charge_pct": _f(100 * run.state_of_charge[i]), "ah": _f(run.ah[i]),
              "bank_voltage_v": _f(run.bank_voltage_v[i])} for i in idx]
-    data = alt.Data(values=rows)
+    sets = _Sets()
+    data = sets("run", rows)
     x = alt.X("time_h:Q", title="Time [h]")
     tips = [alt.Tooltip("time_h:Q", title="time [h]"), alt.Tooltip("current_a:Q", title="current [A]"),
             alt.Tooltip("volts_per_cell:Q", title="volts per cell"), alt.Tooltip("bank_voltage_v:Q", title="bank [V]"),
@@ -593,8 +610,8 @@ def charge_run_chart(run, width=None):
     layers = [vpc]
     if run.limit_volts_per_cell is not None:
         lim = [{"limit": _f(run.limit_volts_per_cell), "label": f"charge limit {run.limit_volts_per_cell:.3g} V"}]
-        layers.append(alt.Chart(alt.Data(values=lim)).mark_rule(color=RUST, strokeDash=[5, 3], strokeWidth=1.6).encode(
-            y="limit:Q", tooltip=[alt.Tooltip("label:N", title="limit")]))
+        layers.append(alt.Chart(sets("limit", lim)).mark_rule(color=RUST, strokeDash=[5, 3], strokeWidth=1.6).encode(
+            y=alt.Y("limit:Q"), tooltip=[alt.Tooltip("label:N", title="limit")]))
     vpc = alt.layer(*layers).properties(height=h)
     soc = alt.Chart(data).mark_line(color=MOSS, strokeWidth=2.2).encode(
         x=x, y=alt.Y("state_of_charge_pct:Q", title="State of charge [%]", scale=alt.Scale(domain=[0, 100])),
@@ -603,7 +620,8 @@ def charge_run_chart(run, width=None):
     if width is not None:
         panels = [p.properties(width=width) for p in panels]
     title = f"Charge run: {run.duration_h:.3g} h, stops because {run.stop_reason}"
-    return alt.vconcat(*panels, spacing=8).properties(title=title, autosize=FIT_WIDTH).resolve_scale(x="shared")
+    return alt.VConcatChart(vconcat=panels, datasets=sets.data, spacing=8, title=title, autosize=FIT_WIDTH,
+                            resolve=alt.Resolve(scale=alt.ScaleResolveMap(x="shared")))
 
 
 def option_charts(machine, profile, option, other_taps=(), run=None, width=None):
