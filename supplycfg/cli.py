@@ -339,6 +339,11 @@ def cmd_search(args, out):
 
 def cmd_charge(args, out):
     from .simulation import charge_from_files, charge_text
+    if not args.connection:
+        for key, opt in SETTING_OPTIONS.items():
+            if key != "connection" and getattr(args, key, None) is not None:
+                raise InputError("command line", opt, "needs --connection too; give the whole setting, or none "
+                                 "to charge on the search's best option")
     setting = _setting_from(args) if args.connection else None
     run = charge_from_files(args.machine, args.profile, setting, names=SETTING_OPTIONS)
     if args.json:

@@ -170,6 +170,9 @@ def candidate_bases(machine, profile):
 
 def _corners(machine, profile):
     speeds = tuple(float(s) for s in profile.speeds_rpm)
+    if len(speeds) == 2 and speeds[0] < speeds[1]:
+        # the setting is stated at the middle speed, so it is evaluated there too
+        speeds = (speeds[0], 0.5 * (speeds[0] + speeds[1]), speeds[1])
     temps = tuple(float(t) for t in profile.temperatures_c) if profile.temperatures_c else \
         (machine.reference_temperature_c,)
     corners = [(s, t) for s in speeds for t in temps]
@@ -281,7 +284,8 @@ def _battery(space, base_idx, u, res=COARSE):
     i_start_c = np.where(start_c["found"], start_c["load_current_a"], 0.0)
     end = normal_points(sub, np.zeros(sub.n), np.full(sub.n, imax), v_of=bank_end, **res)
     i_end = np.where(end["found"], end["load_current_a"], 0.0)
-    vpc_end = np.asarray(loads.charging_voltage_per_cell(chem, soc1, i_end / cap, b.temperature_c, ocv), float)
+    # at the battery terminals, with the profile's bank resistance (as on the bank line)
+    vpc_end = (bank_end(i_end) - i_end * b.cable_resistance_ohm) / b.cells
     vnl = no_load_voltages(sub, res["grid"])
     limit_vpc = float(loads.charge_voltage_limit_per_cell(chem, b.temperature_c, b.charge_voltage_per_cell_v))
     ia_start = start["armature_current_a"]

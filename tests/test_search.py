@@ -195,10 +195,6 @@ def test_welding_options_rechecked():
     assert 180 * math.sqrt(w.duty_cycle_percent / 100) <= m.rated_armature_current_a
 
 
-@pytest.mark.xfail(strict=True, reason="search._welding picks its 'nominal corner' among the range ends "
-                   "only: both are 20 rpm from the 2000 rpm mean, the tie goes to 1980 rpm, so the "
-                   "controls of current_settings are solved at 1980 rpm while the option's setting "
-                   "says 2000 rpm; at 2000 rpm the 60 A end gives about 60.7 A")
 def test_welding_controls_hit_the_target_at_the_settings_own_speed():
     """The control values of current_settings are solved to bisection precision; at the speed and
     temperature the option states they should give the target current within 0.2 %."""
@@ -621,11 +617,6 @@ def test_missing_profile_exit_2(tmp_path, capsys):
     assert rc == 2 and len(err.strip().splitlines()) == 1 and "absent.toml" in err
 
 
-@pytest.mark.xfail(strict=True, reason="search._battery takes the end-of-charge volts per cell from "
-                   "charging_voltage_per_cell with the chemistry's generic cell resistance, while the "
-                   "bank's line uses the profile's internal_resistance_ohm: with a bank of twice the "
-                   "default resistance the best option's figure is about 3 mV/cell below the volts per cell "
-                   "at the battery's terminals")
 def test_end_volts_per_cell_uses_the_profiles_bank_resistance():
     """The end-of-charge volts per cell the search reports (and checks against the limit) should be
     the bank's terminal voltage over the cells at the end current, with the profile's resistance."""
