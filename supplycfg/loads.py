@@ -662,6 +662,11 @@ _MAX_SPEED_RPM = 100_000.0
 _MAX_VOLTAGE_V = 100_000.0
 _MAX_CURRENT_A = 1e6
 _MAX_OHM = 1e4
+# Smallest speed and voltages accepted: far below any real job, and large
+# enough that ratios to them stay finite (1e-300 passes "> 0" but overflows
+# the lamp laws).
+_MIN_SPEED_RPM = 1.0
+_MIN_VOLTAGE_V = 0.1
 
 
 @dataclass(frozen=True)
@@ -800,12 +805,12 @@ def profile_from_dict(data, source="profile"):
         raise InputError(source, "drive.speed_range_rpm", "given together with speed_rpm; allowed: one of the two")
     if has_range:
         dr.raw("speed_rpm", None)
-        speeds = _pair(dr, "speed_range_rpm", source, low=0, low_open=True, high=_MAX_SPEED_RPM)
+        speeds = _pair(dr, "speed_range_rpm", source, low=_MIN_SPEED_RPM, high=_MAX_SPEED_RPM)
     else:
         if not has_one:
             raise InputError(source, "drive.speed_rpm",
                              "is missing; give speed_rpm, or speed_range_rpm = [low, high]")
-        speeds = (dr.number("speed_rpm", low=0, low_open=True, high=_MAX_SPEED_RPM),)
+        speeds = (dr.number("speed_rpm", low=_MIN_SPEED_RPM, high=_MAX_SPEED_RPM),)
         dr.raw("speed_range_rpm", None)
     temps = _pair(dr, "winding_temperature_range_c", source, low=-60, high=250, names=("cold", "hot"),
                   required=False)
@@ -870,7 +875,7 @@ def _read_welding(t, source):
 
 
 def _read_lighting(t, source):
-    vn = t.number("nominal_voltage_v", low=0, low_open=True, high=_MAX_VOLTAGE_V)
+    vn = t.number("nominal_voltage_v", low=_MIN_VOLTAGE_V, high=_MAX_VOLTAGE_V)
     cur = _pair(t, "load_current_a", source, low=0, high=_MAX_CURRENT_A)
     tol = t.number("tolerance_percent", DEFAULT_TOLERANCE_PERCENT, low=0, low_open=True, high=50)
     rf = t.number("feeder_resistance_ohm", DEFAULT_CABLE_RESISTANCE_OHM, low=0, high=_MAX_OHM)
@@ -880,7 +885,7 @@ def _read_lighting(t, source):
 
 
 def _read_booster(t, source):
-    vb = t.number("bus_voltage_v", low=0, low_open=True, high=_MAX_VOLTAGE_V)
+    vb = t.number("bus_voltage_v", low=_MIN_VOLTAGE_V, high=_MAX_VOLTAGE_V)
     rf = t.number("feeder_resistance_ohm", low=0, low_open=True, high=_MAX_OHM)
     cur = _pair(t, "load_current_a", source, low=0, high=_MAX_CURRENT_A)
     tol = t.number("tolerance_percent", DEFAULT_TOLERANCE_PERCENT, low=0, low_open=True, high=50)

@@ -22,6 +22,17 @@ DEFAULT_REFERENCE_TEMPERATURE_C = 75.0
 #: for generators; welding duty reaches about 2 x briefly).
 DEFAULT_PEAK_FACTOR = 2.0
 INTERPOLATIONS = ("monotone-cubic", "linear")
+# Smallest values accepted for quantities that must be positive: far below any
+# real machine's, and large enough that ratios of them stay finite (a value
+# such as 1e-320 passes "> 0" but overflows the solver).
+_MIN_OHM = 1e-6
+_MIN_CURRENT_A = 1e-3
+_MIN_VOLTAGE_V = 0.1
+_MIN_SPEED_RPM = 1.0
+_MIN_TURNS = 0.01
+# Largest open-circuit test values: beyond any machine the other keys allow.
+_MAX_FIELD_CURRENT_A = 1e5
+_MAX_EMF_V = 1e6
 
 
 @dataclass(frozen=True)
@@ -107,15 +118,15 @@ def machine_from_dict(data, source="machine"):
     kw["poles"] = m.integer("poles", low=2, high=64)
     if kw["poles"] % 2:
         raise InputError(source, "machine.poles", f"is {kw['poles']}; allowed: an even whole number >= 2")
-    kw["rated_speed_rpm"] = m.number("rated_speed_rpm", low=0, low_open=True, high=100_000)
-    kw["rated_voltage_v"] = m.number("rated_voltage_v", low=0, low_open=True, high=100_000)
-    kw["rated_armature_current_a"] = m.number("rated_armature_current_a", low=0, low_open=True, high=1e6)
-    kw["armature_resistance_ohm"] = m.number("armature_resistance_ohm", low=0, low_open=True, high=1e4)
+    kw["rated_speed_rpm"] = m.number("rated_speed_rpm", low=_MIN_SPEED_RPM, high=100_000)
+    kw["rated_voltage_v"] = m.number("rated_voltage_v", low=_MIN_VOLTAGE_V, high=100_000)
+    kw["rated_armature_current_a"] = m.number("rated_armature_current_a", low=_MIN_CURRENT_A, high=1e6)
+    kw["armature_resistance_ohm"] = m.number("armature_resistance_ohm", low=_MIN_OHM, high=1e4)
     kw["brush_drop_v"] = m.number("brush_drop_v", 0.0, low=0, high=20)
-    kw["shunt_field_resistance_ohm"] = m.number("shunt_field_resistance_ohm", low=0, low_open=True, high=1e6)
-    kw["shunt_turns_per_pole"] = m.number("shunt_turns_per_pole", low=0, low_open=True, high=1e6)
-    rse = m.number("series_field_resistance_ohm", None, low=0, low_open=True, high=1e3)
-    nse = m.number("series_turns_per_pole", None, low=0, low_open=True, high=1e4)
+    kw["shunt_field_resistance_ohm"] = m.number("shunt_field_resistance_ohm", low=_MIN_OHM, high=1e6)
+    kw["shunt_turns_per_pole"] = m.number("shunt_turns_per_pole", low=_MIN_TURNS, high=1e6)
+    rse = m.number("series_field_resistance_ohm", None, low=_MIN_OHM, high=1e3)
+    nse = m.number("series_turns_per_pole", None, low=_MIN_TURNS, high=1e4)
     if (rse is None) != (nse is None):
         missing = "series_turns_per_pole" if nse is None else "series_field_resistance_ohm"
         raise InputError(source, f"machine.{missing}", "is missing; give both series keys or neither")
@@ -134,7 +145,7 @@ def machine_from_dict(data, source="machine"):
         taps = tuple(sorted(taps))
     kw["series_taps"] = tuple(float(t) for t in taps)
     kw["rheostat_max_ohm"] = m.number("rheostat_max_ohm", low=0, high=1e7)
-    kw["excitation_voltage_v"] = m.number("excitation_voltage_v", None, low=0, low_open=True, high=1e5)
+    kw["excitation_voltage_v"] = m.number("excitation_voltage_v", None, low=_MIN_VOLTAGE_V, high=1e5)
     kw["reference_temperature_c"] = m.number("reference_temperature_c", DEFAULT_REFERENCE_TEMPERATURE_C, low=-60, high=250)
     kw["peak_armature_current_a"] = m.number("peak_armature_current_a", None, low=0, low_open=True, high=1e7)
     m.finish()
@@ -142,9 +153,9 @@ def machine_from_dict(data, source="machine"):
         raise InputError(source, "machine.peak_armature_current_a", "is below rated_armature_current_a; allowed: at least the continuous rating")
 
     o = Table(data.get("open_circuit"), source, "open_circuit")
-    kw["occ_speed_rpm"] = o.number("speed_rpm", low=0, low_open=True, high=100_000)
-    fc = o.numbers("field_current_a", low=0, min_len=4, max_len=10_000)
-    ev = o.numbers("emf_v", low=0, min_len=4, max_len=10_000)
+    kw["occ_speed_rpm"] = o.number("speed_rpm", low=_MIN_SPEED_RPM, high=100_000)
+    fc = o.numbers("field_current_a", low=0, high=_MAX_FIELD_CURRENT_A, min_len=4, max_len=10_000)
+    ev = o.numbers("emf_v", low=0, high=_MAX_EMF_V, min_len=4, max_len=10_000)
     kw["occ_interpolation"] = o.text("interpolation", "monotone-cubic", choices=INTERPOLATIONS)
     o.finish()
     if len(fc) != len(ev):
@@ -166,8 +177,8 @@ def machine_from_dict(data, source="machine"):
     if "armature_reaction" in data:
         a = Table(data["armature_reaction"], source, "armature_reaction")
         lin = a.number("demagnetizing_at_per_pole_at_rated", None, low=0, high=1e7)
-        tab_i = a.numbers("armature_current_a", None, low=0, min_len=2)
-        tab_f = a.numbers("demagnetizing_at_per_pole", None, low=0, min_len=2)
+        tab_i = a.numbers("armature_current_a", None, low=0, high=1e7, min_len=2)
+        tab_f = a.numbers("demagnetizing_at_per_pole", None, low=0, high=1e7, min_len=2)
         a.finish()
         if lin is not None and (tab_i is not None or tab_f is not None):
             raise InputError(source, "armature_reaction", "gives both forms; allowed: demagnetizing_at_per_pole_at_rated, or the table armature_current_a with demagnetizing_at_per_pole")

@@ -268,7 +268,7 @@ _KEYS = sorted({line.split("=")[0].strip() for t in _GOOD_TEXTS for line in t.sp
                 if "=" in line and not line.lstrip().startswith("#")})
 _TABLES = ["machine", "open_circuit", "armature_reaction", "winding", "load", "drive",
            "battery", "welding", "lighting", "booster", "extra"]
-_VALUES = ["0", "-0", "1", "-1", "2", "4", "5", "0.0", "1e400", "-1e400", "nan", "+inf", "-inf", "1e-320",
+_VALUES = ["0", "-0", "1", "-1", "2", "4", "5", "0.0", "1e400", "-1e400", "nan", "+inf", "-inf", "1e-320", "1e-300", "1e300", "1e-9", "0.5",
            "9" * 30, "0x10", "true", "false", '""', '"shunt"', '"lead-acid-vented"', '"manual-metal-arc"',
            '"normal"', '"incandescent"', '"battery"', '"welding"', '"lighting"', '"booster"', '"linear"',
            "1979-05-27", "07:32:00", "[]", "[0]", "[0, 0]", "[0, 1]", "[1, 0]", "[0, 1, 2, 3]", "[0.0, 0.1, 0.2, 0.3]",
