@@ -1,0 +1,244 @@
+"""The Streamlit page, run headless through streamlit.testing.v1.AppTest."""
+
+import tomllib
+import warnings
+from pathlib import Path
+
+import pytest
+
+from supplycfg import STANDING_NOTICE
+from supplycfg.errors import InputError
+from supplycfg.files import dumps_toml
+from supplycfg.loads import load_profile, profile_from_dict
+from supplycfg.machine import load_machine, machine_from_dict
+
+pytest.importorskip("streamlit.testing.v1")
+from streamlit.testing.v1 import AppTest  # noqa: E402
+
+ROOT = Path(__file__).resolve().parent.parent
+APP = str(ROOT / "app.py")
+DEMO = ROOT / "profiles"
+
+
+@pytest.fixture(autouse=True)
+def _quiet():
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        yield
+
+
+def fresh():
+    at = AppTest.from_file(APP, default_timeout=60).run()
+    assert not at.exception, at.exception
+    return at
+
+
+def options_table(at):
+    for df in at.dataframe:
+        v = df.value
+        if "Fit" in v.columns:
+            return v
+    raise AssertionError("no options table on the page")
+
+
+def text_field(at, label):
+    return next(t for t in at.text_input if t.label == label)
+
+
+def button(at, label):
+    return next(b for b in at.button if b.label == label)
+
+
+def errors(at):
+    """Error boxes other than stop cautions (those are shown as errors too)."""
+    return [e.value for e in at.error if not e.value.startswith("**STOP")]
+
+
+def markdown_text(at):
+    return "\n".join(m.value for m in at.markdown)
+
+
+def test_default_page_shows_a_feasible_option():
+    """The page opens on the battery-charging demo with the charging set, already solved."""
+    at = fresh()
+    assert [h.value for h in at.header][:3] == ["1 · The machine", "2 · The job", "3 · Settings for this job"]
+    assert at.session_state["kind"] == "battery"
+    assert at.session_state["machine_origin"] == "demo:charging-set"
+    table = options_table(at)
+    assert table["Fit"].iloc[0] == "meets all"
+    assert {"Rank", "Least margin [%]", "Cautions", "Limits broken"} <= set(table.columns)
+    assert len(at.get("vega_lite_chart")) >= 2
+    assert "Kestrel Ridge charging set CS-1" in markdown_text(at)
+    assert STANDING_NOTICE in markdown_text(at)
+    assert not errors(at)
+
+
+@pytest.mark.parametrize("kind", ["welding", "lighting", "booster", "battery"])
+def test_each_load_kind_runs(kind):
+    """Choosing each kind loads its demo job and its paired demo machine and solves it."""
+    at = AppTest.from_file(APP, default_timeout=60).run()
+    at.radio(key="kind_pick").set_value(kind).run()
+    assert not at.exception, at.exception
+    assert at.session_state["kind"] == kind
+    assert at.session_state["profile_tables"]["load"]["kind"] == kind
+    table = options_table(at)
+    assert len(table) > 0
+    assert (table["Fit"] == "meets all").any()
+    assert len(at.get("vega_lite_chart")) >= 2
+    spec = at.get("vega_lite_chart")[1].proto.spec
+    assert "layer" in spec or "vconcat" in spec
+
+
+def test_invalid_machine_value_shows_inline_and_keeps_typing():
+    """A bad value gets its one-line message at the field; every typed value stays; the solve keeps the last good data."""
+    at = fresh()
+    text_field(at, "Poles").input("3")
+    text_field(at, "Rated voltage [V]").input("165")
+    button(at, "Use these machine data").click().run()
+    assert not at.exception
+    msgs = errors(at)
+    assert any("machine.poles" in m and "even whole number" in m for m in msgs)
+    assert "is 3; allowed: an even whole number >= 2" in msgs
+    assert text_field(at, "Poles").value == "3"
+    assert text_field(at, "Rated voltage [V]").value == "165"
+    assert at.session_state["machine_tables"]["machine"]["poles"] == 4
+    assert options_table(at)["Fit"].iloc[0] == "meets all"
+    # text where a number belongs
+    text_field(at, "Poles").input("4")
+    text_field(at, "Armature resistance [Ω]").input("abc")
+    button(at, "Use these machine data").click().run()
+    msgs = errors(at)
+    assert any("machine.armature_resistance_ohm" in m and "abc" in m for m in msgs)
+    assert text_field(at, "Armature resistance [Ω]").value == "abc"
+
+
+def test_invalid_job_value_shows_inline():
+    at = fresh()
+    field = text_field(at, "State of charge at start and end")
+    field.input("0.9, 0.2")
+    button(at, "Use this job").click().run()
+    msgs = errors(at)
+    assert any("battery.state_of_charge" in m and "start <" in m for m in msgs)
+    assert text_field(at, "State of charge at start and end").value == "0.9, 0.2"
+
+
+def test_changing_the_rheostat_or_the_job_changes_the_options():
+    """A smaller field rheostat narrows the settings; another job gives other ones."""
+    at = fresh()
+    before = options_table(at)
+    text_field(at, "Field rheostat, all in [Ω]").input("20")
+    button(at, "Use these machine data").click().run()
+    assert not errors(at)
+    assert at.session_state["machine_origin"] == "edited on this page"
+    after = options_table(at)
+    assert list(after["Field"]) != list(before["Field"])
+    assert list(after["Fit"]).count("meets all") < list(before["Fit"]).count("meets all")
+    text_field(at, "Highest charging current [A]").input("12")
+    button(at, "Use this job").click().run()
+    assert not errors(at)
+    assert at.session_state["profile_tables"]["battery"]["max_charge_current_a"] == 12
+    assert not options_table(at).equals(after)
+
+
+def test_trim_slider_redraws_the_curves():
+    at = fresh()
+    slider = next(s for s in at.slider if s.label.startswith("Field rheostat for these curves"))
+    spec_before = at.get("vega_lite_chart")[1].proto.spec
+    slider.set_value(float(slider.max)).run()
+    assert not at.exception
+    assert at.get("vega_lite_chart")[1].proto.spec != spec_before
+    assert any(c.value.startswith("Drawn with the rheostat") for c in at.caption)
+
+
+def test_picking_another_option_shows_its_details():
+    at = fresh()
+    pick = next(s for s in at.selectbox if s.label == "Look at option")
+    pick.select(2).run()
+    assert any(h.value == "4 · Option 2 in detail" for h in at.header)
+    assert "option 2 of" in at.session_state["sheet_markdown"]
+
+
+def test_downloads_give_a_sheet_with_the_setting_and_cautions():
+    """The Markdown sheet behind its button holds the setting and the cautions; the HTML one is built on click."""
+    from supplycfg.page import state
+    at = fresh()
+    labels = [d.proto.label for d in at.get("download_button")]
+    assert sorted(labels) == sorted(["Setting sheet to print (.html)", "Setting sheet as text (.md)",
+                                     "Search result (.json)", "Machine data (.toml)", "Job (.toml)"])
+    md = at.session_state["sheet_markdown"]
+    mt, pt = dumps_toml(at.session_state["machine_tables"]), dumps_toml(at.session_state["profile_tables"])
+    res, err = state.solve(mt, pt)
+    assert err is None
+    opt = res.options[0]
+    assert f"| Connection | {opt.setting.connection} |" in md
+    assert opt.cautions and all(c.message.split(":")[0] in md for c in opt.cautions)
+    assert "Rests on:" in md
+    html = state.sheet_html_cached("test", res, 1, None)
+    assert opt.setting.connection in html and "<svg" in html
+
+
+def test_saved_machine_and_job_load_back_unchanged():
+    """The TOML the page offers loads back equal to what it shows (round trip)."""
+    at = fresh()
+    text_field(at, "Rated voltage [V]").input("165.5")
+    button(at, "Use these machine data").click().run()
+    mt = dumps_toml(at.session_state["machine_tables"])
+    m = load_machine("m.toml", mt)
+    assert m.rated_voltage_v == 165.5
+    assert machine_from_dict(tomllib.loads(mt)) == m
+    demo = load_machine(DEMO / "machines" / "charging-set.toml")
+    assert m == machine_from_dict(dict(tomllib.loads(mt)), "x") and m.poles == demo.poles
+    pt = dumps_toml(at.session_state["profile_tables"])
+    assert load_profile("p.toml", pt) == load_profile(DEMO / "loads" / "battery-charging.toml")
+    assert profile_from_dict(tomllib.loads(pt)) == load_profile("p.toml", pt)
+
+
+def test_uploads_are_checked():
+    """An upload is read with the file's own rules: one line naming the file and key; over 1 MB refused."""
+    at = fresh()
+    up = next(u for u in at.file_uploader if u.label.startswith("…or your machine file"))
+    up.set_value(("broken.toml", b"[machine]\npoles = 'four'\n", "application/toml")).run()
+    assert not at.exception
+    assert any(m.startswith("broken.toml: machine.") for m in errors(at))
+    assert at.session_state["machine_origin"] == "demo:charging-set"
+    big = b"# padding\n" * 120_000
+    up = next(u for u in at.file_uploader if u.label.startswith("…or your machine file"))
+    up.set_value(("big.toml", big, "application/toml")).run()
+    assert any("big.toml: file:" in m and "at most 1000000" in m for m in errors(at))
+    good = (DEMO / "machines" / "welding-set.toml").read_bytes().replace(
+        b'label = "Kestrel Ridge welding set WS-2"', b'label = "<b>mine</b>"')
+    up = next(u for u in at.file_uploader if u.label.startswith("…or your machine file"))
+    up.set_value(("mine.toml", good, "application/toml")).run()
+    assert at.session_state["machine_origin"] == "file:mine.toml"
+    assert "&lt;b&gt;mine&lt;/b&gt;" in markdown_text(at)
+
+
+def test_upload_size_check_before_parsing():
+    from supplycfg.page.state import _upload_bytes
+
+    class Big:
+        name = "huge.toml"
+        size = 2_000_000
+
+        def getvalue(self):
+            raise AssertionError("read before the size check")
+
+    with pytest.raises(InputError, match="at most 1000000"):
+        _upload_bytes(Big())
+
+
+def test_save_into_a_folder_asks_before_overwriting(tmp_path):
+    at = fresh()
+    text_field(at, "Folder").input(str(tmp_path))
+    at.multiselect(key="save_pick").set_value(["sheet.md", "machine.toml"])
+    button(at, "Save").click().run()
+    names = sorted(p.name for p in tmp_path.iterdir())
+    assert len(names) == 2 and any(n.endswith(".md") for n in names)
+    sheet = next(p for p in tmp_path.iterdir() if p.suffix == ".md")
+    sheet.write_text("kept", encoding="utf-8")
+    button(at, "Save").click().run()
+    assert any("exists already" in m for m in errors(at))
+    assert sheet.read_text(encoding="utf-8") == "kept"
+    at.checkbox(key="save_force").check()
+    button(at, "Save").click().run()
+    assert sheet.read_text(encoding="utf-8").startswith("# Setting sheet")

@@ -1,0 +1,257 @@
+"""Chart builders, tested apart from the page through their Vega-Lite specs."""
+
+from dataclasses import replace
+from pathlib import Path
+
+import numpy as np
+import pytest
+from numpy.testing import assert_allclose
+
+from supplycfg import charts
+from supplycfg.circuit import Setting, check_setting, external_characteristic
+from supplycfg.loads import conventional_load_voltage, load_profile, open_circuit_voltage_per_cell
+from supplycfg.machine import load_machine
+from supplycfg.magnetisation import OpenCircuitCurve, copper_resistance_factor
+
+DEMO = Path(__file__).resolve().parent.parent / "profiles"
+
+
+def machine(stem):
+    return load_machine(DEMO / "machines" / f"{stem}.toml")
+
+
+def profile(stem):
+    return load_profile(DEMO / "loads" / f"{stem}.toml")
+
+
+def rows(spec, name):
+    return spec["datasets"][name]
+
+
+def marks(spec):
+    return [ly["mark"]["type"] for ly in spec["layer"]]
+
+
+def series(spec, name, label_start):
+    return [r for r in rows(spec, name) if r["series"].startswith(label_start)]
+
+
+@pytest.fixture(scope="module")
+def charging():
+    return machine("charging-set"), profile("battery-charging")
+
+
+def test_occ_chart_layers_and_zoom(charging):
+    """The OCC chart has the curve, the measured points, the field lines and the no-load points, with a zoom."""
+    m, p = charging
+    spec = charts.occ_chart(m, Setting("shunt", rheostat_ohm=30.0), p.temperatures_c).to_dict()
+    assert marks(spec) == ["line", "point", "line", "point"]
+    zoom = spec["params"][0]
+    assert (zoom["name"], zoom["bind"]) == ("zoom", "scales")
+    for layer in spec["layer"]:
+        assert "tooltip" in layer["encoding"]
+    measured = rows(spec, "measured")
+    assert_allclose([r["emf_v"] for r in measured], m.occ_emf_v, rtol=1e-4)
+    labels = {r["series"] for r in rows(spec, "field_lines")}
+    assert any(lab.startswith("this setting") and "40 °C" in lab for lab in labels)
+    assert any(lab.startswith("this setting") and "75 °C" in lab for lab in labels)
+    assert any(lab.startswith("rheostat cut out") for lab in labels)
+    assert any(lab.startswith("rheostat all in") for lab in labels)
+    assert any(lab.startswith("critical field resistance") for lab in labels)
+
+
+def test_occ_chart_field_lines_are_the_field_resistance(charging):
+    """Each field line has slope R_sh(T) + R_rh, with copper corrected as (234.5 + T)/(234.5 + T_ref).
+
+    Source: IEC 60228 copper temperature coefficient; the field-resistance line
+    of the graphical build-up construction (Theraja Vol II ch. 28).
+    """
+    m, p = charging
+    rh = 30.0
+    spec = charts.occ_chart(m, Setting("shunt", rheostat_ohm=rh), p.temperatures_c).to_dict()
+    for t in p.temperatures_c:
+        line = [r for r in series(spec, "field_lines", "this setting") if f"{t:g} °C" in r["series"]]
+        end = max(line, key=lambda r: r["field_current_a"])
+        r_expect = m.shunt_field_resistance_ohm * float(copper_resistance_factor(t, m.reference_temperature_c)) + rh
+        assert_allclose(end["emf_v"] / end["field_current_a"], r_expect, rtol=2e-3)
+    crit = series(spec, "field_lines", "critical")
+    end = max(crit, key=lambda r: r["field_current_a"])
+    chords = np.diff(m.occ_emf_v) / np.diff(m.occ_field_current_a)
+    assert_allclose(end["emf_v"] / end["field_current_a"], chords.max(), rtol=2e-3)
+
+
+def test_occ_chart_no_load_point_is_the_intersection(charging):
+    """The built-up no-load point lies on the curve and on its field line (the textbook graphical method)."""
+    m, p = charging
+    rh = 30.0
+    spec = charts.occ_chart(m, Setting("shunt", rheostat_ohm=rh), p.temperatures_c).to_dict()
+    occ = OpenCircuitCurve.from_machine(m)
+    pts = rows(spec, "no_load")
+    assert len(pts) == 2
+    for pt in pts:
+        # V = E(I_f) - I_f R_a - brush drop, nearly E at no load: within 1.5 %
+        assert_allclose(pt["emf_v"], float(occ.emf(pt["field_current_a"])), rtol=1.5e-2)
+        t = 40.0 if "40 °C" in pt["series"] else 75.0
+        r = m.shunt_field_resistance_ohm * float(copper_resistance_factor(t, m.reference_temperature_c)) + rh
+        assert_allclose(pt["emf_v"] / pt["field_current_a"], r, rtol=1e-3)
+
+
+def test_occ_chart_speed_and_extrapolation(charging):
+    """At twice the test speed the curve doubles (E proportional to n at constant flux); beyond the last point it is dashed."""
+    m, _ = charging
+    spec = charts.occ_chart(m, Setting("shunt", speed_rpm=2 * m.occ_speed_rpm)).to_dict()
+    measured = rows(spec, "measured")
+    assert_allclose([r["emf_v"] for r in measured], 2 * np.asarray(m.occ_emf_v), rtol=1e-4)
+    curve = rows(spec, "occ")
+    beyond = [r for r in curve if r["field_current_a"] > m.occ_field_current_a[-1] * 1.001]
+    assert beyond and all(r["extrapolated"] == "yes" for r in beyond)
+    inside = [r for r in curve if r["field_current_a"] < m.occ_field_current_a[-1] * 0.999]
+    assert all(r["extrapolated"] == "no" for r in inside)
+    assert spec["layer"][0]["encoding"]["strokeDash"]["field"] == "extrapolated"
+
+
+def test_occ_chart_other_connections():
+    """Series and separately excited settings draw without field lines of their own."""
+    m = machine("welding-set")
+    for st in (Setting("series", series_turns=12), Setting("separate", field_current_a=1.0),
+               Setting("separate-differential", rheostat_ohm=10.0, series_turns=5)):
+        spec = charts.occ_chart(m, st, (20, 75)).to_dict()
+        assert marks(spec)[:2] == ["line", "point"]
+    spec = charts.occ_chart(m, Setting("separate", field_current_a=1.0)).to_dict()
+    assert [r["field_current_a"] for r in rows(spec, "no_load")] == [1.0]
+
+
+def test_characteristic_chart_generic():
+    """Bands, curves, loads and points each become a layer with its encodings."""
+    ch = external_characteristic(machine("charging-set"), Setting("shunt", rheostat_ohm=30.0), 50)
+    spec = charts.characteristic_chart(
+        [{"label": "machine", "rows": charts.curve_rows("machine", ch)}],
+        [{"label": "load", "load_current_a": [0, 50], "terminal_voltage_v": [100, 110]}],
+        [{"label": "needed", "i_min": 10, "i_max": 30, "v_min": 100, "v_max": 140}],
+        [{"label": "point", "curve": "machine", "load_current_a": 20, "terminal_voltage_v": 170}],
+        x_domain=(0, 60), y_domain=(0, 200)).to_dict()
+    assert marks(spec) == ["rect", "line", "line", "point"]
+    assert spec["layer"][0]["encoding"]["x"]["scale"]["domain"] == [0, 60]
+    assert len(rows(spec, "curves")) == 50
+    assert rows(spec, "bands")[0]["v_max"] == 140
+    assert rows(spec, "points")[0]["series"] == "machine"
+    assert spec["layer"][3]["encoding"]["shape"]["field"] == "point"
+
+
+def test_battery_chart_start_point_on_the_battery_line(charging):
+    """The start-of-charge point satisfies V = n E_cell(SOC) + I (R_bank + R_cable) (the battery load line)."""
+    m, p = charging
+    st = check_setting(m, Setting("shunt", rheostat_ohm=70.0))
+    spec = charts.battery_chart(m, p, st).to_dict()
+    assert marks(spec) == ["rect", "line", "line", "point"]
+    b = p.battery
+    e0 = b.cells * float(open_circuit_voltage_per_cell(b.chemistry, b.state_of_charge[0],
+                                                       b.open_circuit_voltage_per_cell_v))
+    r = b.internal_resistance_ohm + b.cable_resistance_ohm
+    starts = [pt for pt in rows(spec, "points") if pt["point"] == "start of charge"]
+    assert len(starts) == 2
+    for pt in starts:
+        assert_allclose(pt["terminal_voltage_v"], e0 + r * pt["load_current_a"], rtol=1e-3)
+    ends = [pt for pt in rows(spec, "points") if pt["point"] == "end of charge"]
+    assert ends and all(e["load_current_a"] < s["load_current_a"] for e, s in zip(ends, starts))
+    limit = [r for r in rows(spec, "loads") if r["series"].startswith("charge limit")]
+    assert_allclose(limit[0]["terminal_voltage_v"], b.cells * b.charge_voltage_per_cell_v, rtol=1e-3)
+
+
+def test_welding_chart_points_on_the_conventional_load_line():
+    """Arc points lie on U = 20 V + 0.04 V/A x I (+ leads) for manual metal arc.
+
+    Source: IEC 60974-1 conventional load voltage.
+    """
+    from supplycfg.search import search
+    m, p = machine("welding-set"), profile("welding")
+    res = search(m, p)
+    opt = res.options[0]
+    spec = charts.welding_chart(m, p, opt).to_dict()
+    pts = rows(spec, "points")
+    assert len(pts) == 2
+    for pt in pts:
+        u = float(conventional_load_voltage("manual-metal-arc", pt["load_current_a"])) \
+            + pt["load_current_a"] * p.welding.cable_resistance_ohm
+        assert_allclose(pt["terminal_voltage_v"], u, rtol=1e-3)
+        assert_allclose(u, 20.0 + (0.04 + p.welding.cable_resistance_ohm) * pt["load_current_a"], rtol=1e-9)
+    band = rows(spec, "bands")[0]
+    assert (band["i_min"], band["i_max"]) == tuple(p.welding.current_range_a)
+    assert len({r["series"] for r in rows(spec, "curves")}) == 2
+
+
+@pytest.mark.parametrize("stems", [("lighting-set", "lighting"), ("feeder-booster", "booster")])
+def test_load_end_chart_band(stems):
+    """The band is nominal +- tolerance over the current range; one curve per speed and temperature."""
+    m, p = machine(stems[0]), profile(stems[1])
+    st = Setting("series", series_turns=10) if p.kind == "booster" else Setting("shunt", rheostat_ohm=20.0)
+    spec = charts.load_end_chart(m, p, st).to_dict()
+    job = p.job
+    nominal = job.nominal_voltage_v if p.kind == "lighting" else job.bus_voltage_v
+    band = rows(spec, "bands")[0]
+    assert_allclose([band["v_min"], band["v_max"]],
+                    [nominal * (1 - job.tolerance_percent / 100), nominal * (1 + job.tolerance_percent / 100)],
+                    rtol=1e-3)
+    n_curves = len(p.speeds_rpm) * len(p.temperatures_c)
+    assert len({r["series"] for r in rows(spec, "curves")}) == n_curves
+
+
+def test_load_end_chart_is_terminal_voltage_less_feeder_drop():
+    """Lighting: load-end voltage = terminal voltage - I x R_feeder at each curve point."""
+    m, p = machine("lighting-set"), profile("lighting")
+    st = check_setting(m, Setting("shunt", rheostat_ohm=20.0, winding_temperature_c=40.0))
+    ch = charts.setting_curve(m, st)
+    spec = charts.load_end_chart(m, p, st).to_dict()
+    cold = [r for r in rows(spec, "curves") if "40 °C" in r["series"]]
+    il = np.asarray(ch.points["load_current_a"])
+    v = np.asarray(ch.points["terminal_voltage_v"])
+    for r in cold[1:20]:
+        j = int(np.argmin(np.abs(il - r["load_current_a"])))
+        assert_allclose(r["terminal_voltage_v"], v[j] - il[j] * p.lighting.feeder_resistance_ohm, rtol=1e-3)
+
+
+def test_charge_run_chart_panels():
+    """Three panels against time; the volts-per-cell panel carries the charge limit."""
+    class Run:
+        time_h = np.linspace(0, 10, 50)
+        current_a = np.linspace(30, 5, 50)
+        bank_voltage_v = np.linspace(125, 140, 50)
+        volts_per_cell = bank_voltage_v / 60
+        state_of_charge = np.linspace(0.2, 1.0, 50)
+        ah = np.cumsum(current_a) * 0.2
+        kwh = ah * 0.13
+        stop_reason = "the end state of charge was reached"
+        duration_h = 10.0
+        limit_volts_per_cell = 2.4
+
+    spec = charts.charge_run_chart(Run()).to_dict()
+    assert len(spec["vconcat"]) == 3
+    params = spec.get("params") or spec["vconcat"][0]["params"]
+    assert params[0]["name"] == "zoom"
+    limit = rows(spec, "limit")
+    assert_allclose(limit[0]["limit"], 2.4)
+    assert len(rows(spec, "run")) == 50
+    assert "10 h" in spec["title"]
+
+
+def test_charts_export_to_svg(charging):
+    """Every chart of an option exports to SVG with vl-convert (no network)."""
+    import vl_convert as vlc
+    m, p = charging
+    from supplycfg.search import search
+    res = search(m, p)
+    out = charts.option_charts(m, p, res.options[0])
+    assert [k for k, _, _ in out][:2] == ["occ", "load"]
+    for _, _, ch in out:
+        svg = vlc.vegalite_to_svg(ch.to_dict())
+        assert svg.lstrip().startswith("<svg") or "<svg" in svg[:200]
+
+
+def test_chart_specs_are_deterministic(charging):
+    """The same inputs give the same spec (named parameters, rounded data)."""
+    m, p = charging
+    st = Setting("shunt", rheostat_ohm=40.0)
+    assert charts.occ_chart(m, st, p.temperatures_c).to_dict() == charts.occ_chart(m, st, p.temperatures_c).to_dict()
+    a = charts.battery_chart(m, p, replace(st)).to_dict()
+    b = charts.battery_chart(m, p, replace(st)).to_dict()
+    assert a == b
