@@ -56,6 +56,8 @@ RUNAWAY_MESSAGE = ("the machine's voltage keeps rising above the load beyond the
                    "curve's extension past its last point never bends over; measure the curve further")
 #: Curve samples nearer than this share of rated voltage make the fold's parabola exact enough.
 FOLD_FINE_SPACING = 1e-2
+#: A refinement stops once every residual is below this [V].
+RESIDUAL_STOP_V = 1e-11
 #: Refinement steps of a bracket (half secant, half halving; see _bisect).
 BISECTION_STEPS = 40
 
@@ -312,12 +314,11 @@ def brush_drop(armature_current_a, full_drop_v, ramp_current_a, with_slope=False
 
 def currents_from_voltage(p, v, il, rbr_vb=None):
     """Shunt, armature and branch currents from terminal voltage and load current."""
-    kind, short, branch = p["kind"], p["short"], p["branch"]
-    with np.errstate(divide="ignore", invalid="ignore"):
-        ish_self = np.where(short, (v + il * p["rbr"]) / p["rf"], v / p["rf"])
-    ish = np.where(kind == 1, ish_self, 0.0)
+    kind, branch = p["kind"], p["branch"]
+    ish_self = (v + il * p["rbr"] * p["short"]) / p["rf"]
+    ish = ish_self * (kind == 1)
     ia = il + ish
-    ibr = np.where(branch == 1, ia, np.where(branch == 2, il, 0.0))
+    ibr = ia * (branch == 1) + il * (branch == 2)
     field = np.where(kind == 0, p["x0"], ish)
     return field, ia, ibr
 
@@ -334,19 +335,18 @@ def machine_state(circ, p, v, il):
     x = field + p["c"] * ibr - far
     e = p["s"] * circ.occ.emf(x)
     h = e - ia * p["ra"] - ibr * p["rbr"] - brush_drop(ia, circ.vb, circ.ir) - v
-    ish = np.where(p["kind"] == 0, p["x0"], np.where(p["kind"] == 1, field, 0.0))
+    ish = field * (p["kind"] != 2)
     return {"terminal_voltage_v": v, "load_current_a": il, "armature_current_a": ia,
             "shunt_field_current_a": ish, "series_field_current_a": ibr * _winding_share(circ, p),
             "series_branch_current_a": ibr, "generated_emf_v": e, "x": x, "h": h}
 
 
 def _winding_share(circ, p):
+    """Share of the branch current in the series winding (the rest in the diverter)."""
     nse = p.get("nse")
     if nse is None:
         return 1.0
-    with np.errstate(divide="ignore", invalid="ignore"):
-        share = np.where(nse > 0, np.abs(p["c"]) * circ.nsh / np.where(nse > 0, nse, 1.0), 0.0)
-    return share
+    return np.abs(p["c"]) * circ.nsh / np.where(nse > 0, nse, np.inf)
 
 
 def _params(circ, idx):
@@ -451,8 +451,8 @@ def _bisect(fun, a, b, fa, steps=BISECTION_STEPS):
         a = np.where(flip, b, a)
         fa = np.where(flip, fb, 0.5 * fa if k < secant_steps else fa)
         b, fb = c, fc
-        done = fb == 0
-        if np.all(done | (np.abs(b - a) <= 1e-15 * np.maximum(1.0, np.abs(b)))):
+        # residuals here are volts: far below the 1e-6 V the results promise
+        if np.all((np.abs(fb) <= RESIDUAL_STOP_V) | (np.abs(b - a) <= 1e-15 * np.maximum(1.0, np.abs(b)))):
             break
     return b
 

@@ -99,7 +99,7 @@ class OpenCircuitCurve:
             pp = PchipInterpolator(x, y, extrapolate=False)
             object.__setattr__(self, "_pp", pp)
             # cubic coefficients per interval, highest power first (scipy PPoly layout)
-            object.__setattr__(self, "_c", np.ascontiguousarray(pp.c.T))
+            object.__setattr__(self, "_ct", tuple(np.ascontiguousarray(row) for row in pp.c))
         object.__setattr__(self, "_slopes", np.diff(y) / np.diff(x))
 
     @property
@@ -110,22 +110,24 @@ class OpenCircuitCurve:
     def last_field_current_a(self):
         return self._xl
 
-    def _base(self, ax):
-        """EMF and slope for ``ax >= 0`` at the test speed."""
+    def _base(self, ax, slope=True):
+        """EMF and (if asked) slope for ``ax >= 0`` at the test speed."""
         inside = np.minimum(ax, self._xl)
         xk = self.field_current_a
         idx = np.clip(np.searchsorted(xk, inside, side="right") - 1, 0, len(xk) - 2)
+        t = inside - xk[idx]
         if self._pp is None:
             de = self._slopes[idx]
-            e = self.emf_v[idx] + de * (inside - xk[idx])
+            e = self.emf_v[idx] + de * t
         else:
-            c = self._c[idx]
-            t = inside - xk[idx]
-            e = ((c[..., 0] * t + c[..., 1]) * t + c[..., 2]) * t + c[..., 3]
-            de = (3 * c[..., 0] * t + 2 * c[..., 1]) * t + c[..., 2]
+            c0, c1, c2, c3 = self._ct
+            a0, a1, a2 = c0[idx], c1[idx], c2[idx]
+            e = ((a0 * t + a1) * t + a2) * t + c3[idx]
+            de = ((3 * a0 * t + 2 * a1) * t + a2) if slope else None
         over = ax > self._xl
         e = np.where(over, self._yl + self._chord * (ax - self._xl), e)
-        de = np.where(over, self._chord, de)
+        if slope:
+            de = np.where(over, self._chord, de)
         return e, de
 
     def emf(self, x, with_slope=False):
@@ -138,7 +140,7 @@ class OpenCircuitCurve:
             Also return dE/dx [V/A].
         """
         x = np.asarray(x, dtype=float)
-        e, de = self._base(np.abs(x))
+        e, de = self._base(np.abs(x), with_slope)
         e = np.where(x >= 0, e, 2.0 * self.residual_v - e)
         return (e, de) if with_slope else e
 
@@ -185,6 +187,8 @@ class ArmatureReaction:
         a = np.abs(ia)
         if self.table_current_a is None:
             f = self.per_amp * a
+            if not with_slope:
+                return f
             d = np.full_like(a, self.per_amp)
         else:
             xi, fi = self.table_current_a, self.table_at
