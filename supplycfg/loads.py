@@ -14,12 +14,11 @@ checked against a copy; "common practice" = a trade rule of thumb;
 """
 
 from dataclasses import dataclass, field, fields
-from pathlib import Path
 
 import numpy as np
 
 from .errors import InputError
-from .validate import Table, read_toml, show_key
+from .validate import Table, read_toml, show_key, source_name
 
 KINDS = ("battery", "welding", "lighting", "booster")
 
@@ -766,7 +765,7 @@ def load_profile(path, text=None):
     InputError
         One line naming the file, the key and what is allowed.
     """
-    return profile_from_dict(read_toml(path, text), Path(str(path)).name)
+    return profile_from_dict(read_toml(path, text), source_name(path))
 
 
 def _pair(t, k, source, *, low=None, low_open=False, high=None, strict=False, names=("low", "high"),

@@ -7,12 +7,11 @@ back the same tables so a saved machine loads unchanged.
 """
 
 from dataclasses import dataclass, field, asdict
-from pathlib import Path
 
 import numpy as np
 
 from .errors import InputError
-from .validate import Table, read_toml, show_key
+from .validate import Table, read_toml, show_key, source_name
 
 #: Reference temperature of the stated resistances [degC]; the usual rating
 #: temperature for class B/F insulation (IEC 60034-1 reference temperatures).
@@ -101,7 +100,7 @@ def load_machine(path, text=None):
         One line naming the file, the key and what is allowed.
     """
     data = read_toml(path, text)
-    return machine_from_dict(data, Path(str(path)).name)
+    return machine_from_dict(data, source_name(path))
 
 
 def machine_from_dict(data, source="machine"):

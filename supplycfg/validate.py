@@ -29,6 +29,14 @@ def show_key(k):
     return ascii(k[:60])
 
 
+def source_name(path):
+    """The file name used in messages: the last part of ``path``, on one printable line."""
+    name = Path(str(path)).name or str(path)
+    if name.isprintable():
+        return name
+    return "".join(c if c.isprintable() else ascii(c)[1:-1] for c in name)
+
+
 def read_toml(path, text=None):
     """Parse a TOML file (or its text) safely, with one-line errors.
 
@@ -43,7 +51,7 @@ def read_toml(path, text=None):
     -------
     dict
     """
-    name = Path(str(path)).name
+    name = source_name(path)
     if text is None:
         p = Path(path)
         try:

@@ -171,6 +171,17 @@ def test_named_pipe_is_refused_without_hanging(tmp_path):
     _assert_one_line(str(info.value), "machine.toml", "file")
 
 
+def test_file_name_with_a_newline_stays_on_one_line(tmp_path, capsys):
+    """Project rule: one line, even when the file's own name holds a line break."""
+    path = tmp_path / "odd\nname\u2028.toml"
+    path.write_bytes((BAD / "machine-odd-poles.toml").read_bytes())
+    with pytest.raises(InputError) as info:
+        load_machine(path)
+    _assert_one_line(str(info.value), "odd\\nname\\u2028.toml", "machine.poles")
+    assert cli.main(["curve", str(path), "--connection", "shunt"]) == 2
+    _assert_one_line(capsys.readouterr().err, "odd\\nname\\u2028.toml", "machine.poles")
+
+
 def test_lone_surrogate_in_uploaded_text():
     """Project rule: text from a form that cannot be UTF-8 is refused, not crashed on."""
     text = GOOD_MACHINE.read_text(encoding="utf-8").replace("CS-1", "CS-\ud800")
