@@ -364,13 +364,15 @@ def _speeds(profile):
 # --- battery ---------------------------------------------------------------
 
 def battery_lines(profile, i_top):
-    """Battery lines: rest voltage at the start, charging voltage at the end of charge, the limit.
+    """Battery lines: rest voltage at the start, the charging curves at the start and end, the limit.
 
     Returns
     -------
-    (loads, bands, start_load)
+    (loads, bands, start_load, on_charge)
         ``start_load`` is the :class:`~supplycfg.circuit.Load` of the start
-        state of charge (rest voltage plus bank and cable resistance).
+        state of charge (rest voltage plus bank and cable resistance);
+        ``on_charge(soc)`` gives the bank's voltage on charge at the machine
+        ``V(I)`` (the chemistry's charging-voltage model plus cable).
     """
     from . import loads as ld
     b = profile.battery
@@ -378,21 +380,32 @@ def battery_lines(profile, i_top):
     s0, s1 = b.state_of_charge
     r = b.internal_resistance_ohm + b.cable_resistance_ohm
     e0 = b.cells * float(ld.open_circuit_voltage_per_cell(chem, s0, b.open_circuit_voltage_per_cell_v))
+    # the model's own cell resistance is replaced by the profile's bank resistance
+    rc_model = chem.resistance_ohm_ah / b.capacity_ah
+
+    def on_charge(soc):
+        def v(i):
+            i = np.asarray(i, float)
+            ip = np.maximum(i, 0.0)
+            cell = ld.charging_voltage_per_cell(chem, soc, ip / b.capacity_ah, b.temperature_c,
+                                                b.open_circuit_voltage_per_cell_v) - ip * rc_model
+            return b.cells * cell + i * r
+        return v
+
     cur = np.linspace(0.0, i_top, 60)
-    start = {"label": f"battery at {s0:.0%} charge: {e0:.4g} V + {r:.3g} Ω x I", "colour": MOSS,
+    start = {"label": f"battery at rest, {s0:.0%} charge: {e0:.4g} V + {r:.3g} Ω x I", "colour": MOSS,
              "load_current_a": [0.0, i_top], "terminal_voltage_v": [e0, e0 + r * i_top]}
-    # on charge at the end state: the chemistry's charging-voltage model, plus cable
-    v_end = b.cells * ld.charging_voltage_per_cell(chem, s1, cur / b.capacity_ah, b.temperature_c,
-                                                   b.open_circuit_voltage_per_cell_v) + cur * b.cable_resistance_ohm
+    start_c = {"label": f"battery on charge at {s0:.0%}", "colour": TEAL,
+               "load_current_a": list(cur), "terminal_voltage_v": list(on_charge(s0)(cur))}
     end = {"label": f"battery on charge at {s1:.0%}", "colour": PLUM,
-           "load_current_a": list(cur), "terminal_voltage_v": list(v_end)}
+           "load_current_a": list(cur), "terminal_voltage_v": list(on_charge(s1)(cur))}
     vlim = b.cells * float(ld.charge_voltage_limit_per_cell(chem, b.temperature_c, b.charge_voltage_per_cell_v))
     limit = {"label": f"charge limit {vlim / b.cells:.3g} V per cell ({vlim:.4g} V)", "colour": RUST,
              "load_current_a": [0.0, i_top], "terminal_voltage_v": [vlim, vlim]}
     band = {"label": f"starting current {b.min_charge_current_a:g} to {b.max_charge_current_a:g} A",
             "i_min": b.min_charge_current_a, "i_max": b.max_charge_current_a,
             "v_min": e0, "v_max": vlim}
-    return [start, end, limit], [band], Load.battery(e0, r)
+    return [start, start_c, end, limit], [band], Load.battery(e0, r), on_charge
 
 
 def crossing(characteristic, v_load):
@@ -428,23 +441,20 @@ def battery_chart(machine, profile, setting, width=None):
         chars.append((t, lab, ch))
         curves.append({"label": lab, "colour": (INK, COPPER)[j % 2], "rows": curve_rows(lab, ch)})
     i_top = 1.6 * b.max_charge_current_a
-    lines, bands, start = battery_lines(profile, i_top)
+    lines, bands, start, on_charge = battery_lines(profile, i_top)
     pts = []
-    chem = ld.chemistry(b.chemistry)
-    s1 = b.state_of_charge[1]
+    s0, s1 = b.state_of_charge
     for t, lab, ch in chars:
         op = operating_points(machine, replace(setting, winding_temperature_c=t), start).normal
         if op is not None:
-            pts.append({"label": "start of charge", "curve": lab, "load_current_a": op["load_current_a"],
-                        "terminal_voltage_v": op["terminal_voltage_v"], "stable": True})
-        end = crossing(ch, lambda i: b.cells * ld.charging_voltage_per_cell(
-            chem, s1, np.maximum(i, 0) / b.capacity_ah, b.temperature_c, b.open_circuit_voltage_per_cell_v)
-            + i * b.cable_resistance_ohm)
-        if end is not None:
-            pts.append({"label": "end of charge", "curve": lab, "load_current_a": end[0],
-                        "terminal_voltage_v": end[1], "stable": True})
+            pts.append({"label": "start of charge, battery at rest", "curve": lab,
+                        "load_current_a": op["load_current_a"], "terminal_voltage_v": op["terminal_voltage_v"]})
+        for soc, what in ((s0, "start of charge, battery on charge"), (s1, "end of charge")):
+            hit = crossing(ch, on_charge(soc))
+            if hit is not None:
+                pts.append({"label": what, "curve": lab, "load_current_a": hit[0], "terminal_voltage_v": hit[1]})
     i_view = max([i_top] + [1.3 * p["load_current_a"] for p in pts])
-    v_view = 1.15 * max([ln["terminal_voltage_v"][-1] for ln in lines[:1]] + [lines[2]["terminal_voltage_v"][0]] +
+    v_view = 1.15 * max([lines[0]["terminal_voltage_v"][-1], lines[3]["terminal_voltage_v"][0]] +
                         [c.no_load_voltage_v or 0.0 for _, _, c in chars])
     return characteristic_chart(curves, lines, bands, pts, "Machine against the battery", width=width,
                                 x_domain=(0, _f(i_view)), y_domain=(0, _f(v_view)))

@@ -30,8 +30,10 @@ _UNITS = (("_v_per_a", "V/A"), ("_m3_per_h", "m³/h"), ("_percent", "%"), ("_rpm
 
 #: Plain words for the figures the search reports; others are named from their key.
 FIGURE_WORDS = {
-    "start_charge_current_a": "charging current at the start, highest",
-    "start_charge_current_min_a": "charging current at the start, lowest",
+    "start_charge_current_a": "charging current at the start (rest-voltage line), highest",
+    "start_charge_current_min_a": "charging current at the start (rest-voltage line), lowest",
+    "start_charge_current_on_charge_a": "charging current at the start (charging curve), highest",
+    "start_charge_current_on_charge_min_a": "charging current at the start (charging curve), lowest",
     "end_charge_current_a": "charging current at the end of charge, lowest",
     "end_volts_per_cell": ("volts per cell at the end of charge, highest", "V"),
     "end_volts_per_cell_limit": ("charge limit per cell at the battery's temperature", "V"),
@@ -43,6 +45,7 @@ FIGURE_WORDS = {
     "bank_open_circuit_voltage_end_v": "bank rest voltage at the end",
     "max_armature_current_a": "armature current, highest",
     "min_net_mmf_a": "net field as equivalent field current, lowest",
+    "max_net_mmf_a": "net field as equivalent field current, highest",
     "min_generated_emf_v": "generated EMF, lowest",
     "critical_resistance_ratio": ("critical over actual field-circuit resistance, lowest", "×"),
     "critical_speed_ratio": ("speed over critical speed, lowest", "×"),
@@ -57,6 +60,10 @@ FIGURE_WORDS = {
     "lamp_life_at_low": ("lamp life at the lowest voltage", "× rated"),
     "low_end_current_a": "welding current at the low end",
     "high_end_current_a": "welding current at the high end",
+    "low_end_current_envelope_min_a": "low-end current over the speed and temperature range, lowest",
+    "low_end_current_envelope_max_a": "low-end current over the speed and temperature range, highest",
+    "high_end_current_envelope_min_a": "high-end current over the speed and temperature range, lowest",
+    "high_end_current_envelope_max_a": "high-end current over the speed and temperature range, highest",
     "max_no_load_voltage_v": "no-load voltage (mean), highest",
     "no_load_peak_voltage_v": "no-load voltage (peak, with commutator ripple)",
     "no_load_limit_v": "no-load voltage limit (peak)",
@@ -114,6 +121,8 @@ def fmt(value, unit=""):
         v = float(value)
         if not math.isfinite(v):
             return "–"
+        if abs(v) < 1e-9:
+            v = 0.0  # rounding noise of the solvers, not a figure
         s = f"{v:.0f}" if abs(v) >= 1000 else f"{v:.4g}"
     else:
         s = str(value)
@@ -192,7 +201,11 @@ def setting_rows(option, machine, profile):
     rows = [("Connection", s.connection)]
     if machine.has_series:
         rows.append(("Series turns per pole in use", f"{(s.series_turns or 0):g} (taps: {taps})"))
-    rows.append(("Field", field_control_text(option, machine)))
+    if option.current_settings:
+        ends = [c for c in current_setting_rows(option)]
+        rows.append(("Field", "; ".join(f"{f} for {cur}" for cur, f, _, _ in ends)))
+    else:
+        rows.append(("Field", field_control_text(option, machine)))
     if machine.has_series:
         rows.append(("Diverter across the series winding", "none" if s.diverter_ohm is None else fmt(s.diverter_ohm, "Ω")))
     speeds = tuple(profile.speeds_rpm)

@@ -148,14 +148,34 @@ def test_battery_chart_start_point_on_the_battery_line(charging):
     e0 = b.cells * float(open_circuit_voltage_per_cell(b.chemistry, b.state_of_charge[0],
                                                        b.open_circuit_voltage_per_cell_v))
     r = b.internal_resistance_ohm + b.cable_resistance_ohm
-    starts = [pt for pt in rows(spec, "points") if pt["point"] == "start of charge"]
+    starts = [pt for pt in rows(spec, "points") if pt["point"] == "start of charge, battery at rest"]
     assert len(starts) == 2
     for pt in starts:
         assert_allclose(pt["terminal_voltage_v"], e0 + r * pt["load_current_a"], rtol=1e-3)
+    on_charge = [pt for pt in rows(spec, "points") if pt["point"] == "start of charge, battery on charge"]
     ends = [pt for pt in rows(spec, "points") if pt["point"] == "end of charge"]
-    assert ends and all(e["load_current_a"] < s["load_current_a"] for e, s in zip(ends, starts))
+    assert len(on_charge) == len(ends) == 2
+    assert all(c["load_current_a"] < s["load_current_a"] for c, s in zip(on_charge, starts))
+    assert all(e["load_current_a"] < c["load_current_a"] for e, c in zip(ends, on_charge))
     limit = [r for r in rows(spec, "loads") if r["series"].startswith("charge limit")]
     assert_allclose(limit[0]["terminal_voltage_v"], b.cells * b.charge_voltage_per_cell_v, rtol=1e-3)
+
+
+def test_battery_chart_agrees_with_the_search(charging):
+    """The chart's operating points are the search's figures for the same option (worst over the range)."""
+    from supplycfg.search import search
+    m, p = charging
+    opt = search(m, p).options[0]
+    pts = rows(charts.battery_chart(m, p, opt.setting).to_dict(), "points")
+    f = opt.figures
+
+    def cur(label):
+        return [pt["load_current_a"] for pt in pts if pt["point"] == label]
+
+    assert_allclose(max(cur("start of charge, battery at rest")), f["start_charge_current_a"], rtol=2e-3)
+    assert_allclose(min(cur("start of charge, battery at rest")), f["start_charge_current_min_a"], rtol=2e-3)
+    assert_allclose(max(cur("start of charge, battery on charge")), f["start_charge_current_on_charge_a"], rtol=2e-2)
+    assert_allclose(min(cur("end of charge")), f["end_charge_current_a"], rtol=2e-2)
 
 
 def test_welding_chart_points_on_the_conventional_load_line():
