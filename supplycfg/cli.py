@@ -19,6 +19,10 @@ SETTING_OPTIONS = {"rheostat_ohm": "--rheostat-ohm", "field_current_a": "--field
 
 class _Parser(argparse.ArgumentParser):
     def error(self, message):
+        import re
+        found = re.match(r"argument ([^:]+): (.*)", message)
+        if found:
+            raise InputError("command line", found.group(1).split("/")[0], found.group(2))
         raise InputError("command line", self.prog, message)
 
 

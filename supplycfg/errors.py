@@ -19,7 +19,15 @@ class InputError(ValueError):
     """
 
     def __init__(self, source, key, message):
-        self.source = str(source)
-        self.key = str(key)
+        # one line, whatever a file name or key holds
+        self.source = _one_line(source)
+        self.key = _one_line(key)
         self.message = " ".join(str(message).split())
         super().__init__(f"{self.source}: {self.key}: {self.message}")
+
+
+def _one_line(text):
+    text = str(text)
+    if any(ch in text for ch in "\r\n\x0b\x0c\x1c\x1d\x1e\x85\u2028\u2029"):
+        return repr(text)[1:-1]
+    return text

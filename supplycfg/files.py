@@ -51,7 +51,8 @@ def _toml_value(v, key):
             raise InputError("toml", key, "is not a finite number; cannot be written")
         return repr(f)
     if isinstance(v, str):
-        return json.dumps(v, ensure_ascii=False)
+        # JSON escapes are TOML basic-string escapes; TOML also forbids a raw DEL
+        return json.dumps(v, ensure_ascii=False).replace("\x7f", "\\u007f")
     if isinstance(v, (list, tuple)):
         return "[" + ", ".join(_toml_value(x, key) for x in v) + "]"
     raise InputError("toml", key, f"has a value of type {type(v).__name__} that TOML files here do not hold")
@@ -61,7 +62,8 @@ def dumps_toml(tables, header=None):
     """Write ``{table: {key: value}}`` as TOML text."""
     lines = []
     if header:
-        lines += [f"# {h}" for h in header.splitlines()] + [""]
+        clean = "".join(ch if ch == "\n" or (ch >= " " and ch != "\x7f") else "?" for ch in header)
+        lines += [f"# {h}" for h in clean.splitlines()] + [""]
     for name, body in tables.items():
         lines.append(f"[{name}]")
         for k, v in body.items():
@@ -75,32 +77,49 @@ def dumps_toml(tables, header=None):
 def write_atomic(path, data, force=False):
     """Write ``data`` (str or bytes) to ``path`` through a temporary file and ``os.replace``.
 
+    The file gets the usual permissions (0666 less the umask, or the mode of
+    the file it replaces).
+
     Raises
     ------
     InputError
-        When the file exists and ``force`` is false, or the folder cannot be written.
+        When the file exists (or is a link) and ``force`` is false, when it is
+        a folder, or when the folder cannot be written.
     """
     path = Path(path)
-    if path.exists() and not force:
-        raise InputError(path.name, "output", "exists already; pass --force to overwrite it")
+    name = path.name or str(path)
+    if path.is_dir():
+        raise InputError(name, "output", "is a folder; give a file name")
+    if os.path.lexists(path) and not force:
+        raise InputError(name, "output", "exists already; pass --force to overwrite it")
     folder = path.parent if str(path.parent) else Path(".")
     if not folder.is_dir():
-        raise InputError(path.name, "output", f"folder {folder} does not exist")
+        raise InputError(name, "output", "its folder does not exist")
     raw = data.encode("utf-8") if isinstance(data, str) else data
     try:
-        fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=folder)
-    except OSError as exc:
-        raise InputError(path.name, "output", f"cannot be written ({exc.strerror or exc})") from None
+        mode = os.stat(path).st_mode & 0o7777 if path.exists() else None
+    except OSError:
+        mode = None
+    if mode is None:
+        umask = os.umask(0)
+        os.umask(umask)
+        mode = 0o666 & ~umask
+    tmp = None
     try:
+        fd, tmp = tempfile.mkstemp(prefix=f".{name}.", suffix=".tmp", dir=folder)
         with os.fdopen(fd, "wb") as fh:
             fh.write(raw)
             fh.flush()
             os.fsync(fh.fileno())
+        os.chmod(tmp, mode)
         os.replace(tmp, path)
-    except BaseException:
-        try:
-            os.unlink(tmp)
-        except OSError:
-            pass
-        raise
+        tmp = None
+    except OSError as exc:
+        raise InputError(name, "output", f"cannot be written ({exc.strerror or type(exc).__name__})") from None
+    finally:
+        if tmp is not None:
+            try:
+                os.unlink(tmp)
+            except OSError:
+                pass
     return path

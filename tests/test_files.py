@@ -73,8 +73,6 @@ def test_folder_in_the_way_is_not_overwritten(tmp_path):
     assert (tmp_path / "out.json").is_dir()
 
 
-@pytest.mark.xfail(strict=True, reason="with force, os.replace onto a folder raises IsADirectoryError, "
-                                       "which write_atomic passes on instead of an InputError (exit 1, not 2)")
 def test_folder_in_the_way_is_refused_even_with_force(tmp_path):
     """Project rule: a target that cannot be written is an InputError, one line."""
     (tmp_path / "out.json").mkdir()
@@ -83,8 +81,6 @@ def test_folder_in_the_way_is_refused_even_with_force(tmp_path):
 
 
 @pytest.mark.skipif(os.name != "posix", reason="file modes are POSIX")
-@pytest.mark.xfail(strict=True, reason="mkstemp creates the temporary file 0600 and os.replace keeps that "
-                                       "mode, so a sheet is unreadable to others whatever the umask")
 def test_written_file_has_the_usual_mode(tmp_path):
     """A written file gets the mode an ordinary open() would give it (0666 less the umask)."""
     umask = os.umask(0o022)
@@ -171,8 +167,6 @@ def test_data_of_wrong_type_leaves_nothing_behind(tmp_path):
     assert list(tmp_path.iterdir()) == []
 
 
-@pytest.mark.xfail(strict=True, reason="write_atomic checks path.exists(), which is false for a "
-                                       "dangling symbolic link, so the link is replaced without force")
 def test_dangling_link_is_not_overwritten_without_force(tmp_path):
     """Project rule: an existing directory entry (here a dangling link) is kept unless asked."""
     link = tmp_path / "sheet.html"
@@ -243,8 +237,6 @@ def test_hostile_label_survives_the_round_trip(label):
     assert load_profile("p.toml", text=dumps_toml(d)).label == label
 
 
-@pytest.mark.xfail(strict=True, reason="dumps_toml writes strings with json.dumps, which leaves DEL "
-                                       "(U+007F) raw; TOML allows it only escaped, so the file cannot be read back")
 def test_label_with_delete_character_survives_the_round_trip():
     """TOML 1.0 basic strings: control characters, DEL included, must be escaped."""
     d = machine_to_dict(load_machine(MACHINES[0]))
