@@ -56,6 +56,8 @@ RUNAWAY_MESSAGE = ("the machine's voltage keeps rising above the load beyond the
                    "curve's extension past its last point never bends over; measure the curve further")
 #: Curve samples nearer than this share of rated voltage make the fold's parabola exact enough.
 FOLD_FINE_SPACING = 1e-2
+#: Golden-section steps looking for a residual extremum between two grid points.
+EXTREMUM_STEPS = 40
 #: A refinement stops once every residual is below this [V].
 RESIDUAL_STOP_V = 1e-11
 #: Refinement steps of a bracket (half secant, half halving; see _bisect).
@@ -529,12 +531,15 @@ def solve_operating_points(circ, loads, idx=None, grid=LOAD_LINE_GRID, window=No
     sign_change = np.signbit(h[:, :-1]) != np.signbit(h[:, 1:])
     exact = h[:, :-1] == 0
     rows, cols = np.nonzero(sign_change | exact)
+    a = t[rows, cols]; b = t[rows, cols + 1]; fa = h[rows, cols]
+    falling = h[rows, cols + 1] < h[rows, cols]
     out = [[] for _ in range(m)]
     ok = True
-    if rows.size:
-        a = t[rows, cols]; b = t[rows, cols + 1]; fa = h[rows, cols]
-        pr = {kk: vv[rows, 0] if np.ndim(vv) else vv for kk, vv in p.items()}
-        vv0, kk_, cc, fc, bc, vt = v0[rows, 0], k[rows, 0], cur[rows, 0], fixed_current[rows, 0], by_current[rows, 0], vtop[rows, 0]
+
+    def on_rows(sel):
+        pr = {kk: vv[sel, 0] if np.ndim(vv) else vv for kk, vv in p.items()}
+        vv0, kk_, cc, fc, bc, vt = (v0[sel, 0], k[sel, 0], cur[sel, 0], fixed_current[sel, 0],
+                                    by_current[sel, 0], vtop[sel, 0])
 
         def pt_rows(tt):
             v = np.where(bc, vv0, (2 * tt - 1) * vt)
@@ -545,11 +550,48 @@ def solve_operating_points(circ, loads, idx=None, grid=LOAD_LINE_GRID, window=No
         def res_rows(tt):
             v, il = pt_rows(tt)
             return machine_state(circ, pr, v, il)["h"]
+        return pr, pt_rows, res_rows
 
+    # two intersections closer than a grid step: the residual turns towards zero between
+    # samples without changing sign; find that extremum and split it if it crosses
+    if grid >= 3:
+        d1 = h[:, 1:-1] - h[:, :-2]
+        d2 = h[:, 2:] - h[:, 1:-1]
+        mid = h[:, 1:-1]
+        towards = ((mid > 0) & (d1 < 0) & (d2 > 0)) | ((mid < 0) & (d1 > 0) & (d2 < 0))
+        quiet = ~sign_change[:, :-1] & ~sign_change[:, 1:] & ~exact[:, :-1] & ~exact[:, 1:]
+        er, ec = np.nonzero(towards & quiet)
+        if er.size:
+            _, _, res_e = on_rows(er)
+            sgn = np.sign(mid[er, ec])
+            lo, hi = t[er, ec], t[er, ec + 2]
+            g = (np.sqrt(5) - 1) / 2
+            c1 = hi - g * (hi - lo); c2 = lo + g * (hi - lo)
+            f1 = sgn * res_e(c1); f2 = sgn * res_e(c2)
+            for _ in range(EXTREMUM_STEPS):
+                left = f1 < f2
+                hi = np.where(left, c2, hi); lo = np.where(left, lo, c1)
+                nc = np.where(left, hi - g * (hi - lo), lo + g * (hi - lo))
+                fn = sgn * res_e(nc)
+                c2, f2, c1, f1 = (np.where(left, c1, nc), np.where(left, f1, fn),
+                                  np.where(left, nc, c2), np.where(left, fn, f2))
+                if np.all(np.minimum(f1, f2) < 0):
+                    break
+            tm = np.where(f1 < f2, c1, c2)
+            fm = sgn * np.minimum(f1, f2)
+            cross = np.sign(fm) == -sgn
+            if cross.any():
+                er, ec, tm, fm, sgn = er[cross], ec[cross], tm[cross], fm[cross], sgn[cross]
+                ha = h[er, ec]
+                rows = np.concatenate([rows, er, er]); cols = np.concatenate([cols, ec, ec])
+                a = np.concatenate([a, t[er, ec], tm]); b = np.concatenate([b, tm, t[er, ec + 2]])
+                fa = np.concatenate([fa, ha, fm])
+                falling = np.concatenate([falling, ha > 0, fm > 0])
+    if rows.size:
+        pr, pt_rows, res_rows = on_rows(rows)
         root = _bisect(res_rows, a, b, fa, steps)
         v, il = pt_rows(root)
         st = machine_state(circ, pr, v, il)
-        falling = h[rows, cols + 1] < h[rows, cols]
         scale = 1e-6 * np.maximum(1.0, np.abs(v))
         good = np.abs(st["h"]) <= np.maximum(1e-6, scale)
         ok = bool(np.all(good))
@@ -565,8 +607,8 @@ def solve_operating_points(circ, loads, idx=None, grid=LOAD_LINE_GRID, window=No
             out[rows[j]].append(d)
     res = []
     for r, lst in enumerate(out):
-        lst = _dedupe(lst)
         lst.sort(key=lambda d: -d["terminal_voltage_v"])
+        lst = _dedupe(lst)
         if runaway[r]:
             res.append(OperatingPoints(lst, False, RUNAWAY_MESSAGE))
         else:

@@ -393,8 +393,6 @@ def test_points_beyond_the_measured_curve_are_found_or_reported(tables):
 
 @example(case=STIFF_BATTERY_CASE)
 @given(cases())
-@pytest.mark.xfail(strict=True, reason="engine: two intersections closer than the load-line grid step (0.12 V "
-                   "here, a stiff battery) fall in one cell and both are lost, silently")
 def test_highest_stable_point_is_found_or_reported(case):
     """The engine's normal point is the highest stable intersection (design
     note), found by a recomputed scan; if it lies far out on the curve's chord
