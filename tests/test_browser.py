@@ -78,7 +78,7 @@ def test_page_in_chromium(server, tmp_path):
     with sync_api.sync_playwright() as pw:
         browser = pw.chromium.launch(executable_path=CHROMIUM, args=CHROMIUM_ARGS)
         try:
-            page = browser.new_page(viewport={"width": 900, "height": 1400})
+            page = browser.new_page(viewport={"width": 900, "height": 1400}, accept_downloads=True)
             page.goto(server)
             page.wait_for_selector("text=Settings for this job", timeout=30_000)
             # the options table (the machine's point tables sit in a closed expander above it)
@@ -102,6 +102,15 @@ def test_page_in_chromium(server, tmp_path):
             page.wait_for_selector("text=Drawn with the rheostat", timeout=20_000)
             assert page.locator('[data-testid="stVegaLiteChart"]').count() >= 2
             _shot(page, tmp_path / "after-change.png")
+
+            # the printable sheet is built when its button is pressed
+            sheet = page.get_by_role("button", name="Setting sheet to print (.html)")
+            sheet.scroll_into_view_if_needed()
+            with page.expect_download(timeout=30_000) as info:
+                sheet.click()
+            html = Path(info.value.path()).read_text(encoding="utf-8")
+            assert html.startswith("<!DOCTYPE html>") and "Option 3" not in html and "option 3 of" in html
+            assert "<svg" in html
 
             narrow = browser.new_page(viewport={"width": 380, "height": 900})
             narrow.goto(server)

@@ -165,6 +165,7 @@ def on_machine_apply():
     S.machine_origin = "edited on this page"
     S.machine_error = None
     S.machine_msg = None
+    S.mver += 1  # the form starts again from the data now in use
 
 
 def profile_form_values():
@@ -184,6 +185,7 @@ def on_profile_apply():
     S.profile_origin = "edited on this page"
     S.profile_error = None
     S.profile_msg = None
+    S.pver += 1
 
 
 # --- solves ------------------------------------------------------------------
