@@ -83,28 +83,6 @@ def _layered(layers, title, sets, width=None):
                           resolve=alt.Resolve(scale=alt.ScaleResolveMap(color="shared")), **kw)
 
 
-def lines_layer(rows, x, y, x_title, y_title, colours=None, dash_field=None, tooltip=None, data=None):
-    """Lines from rows ``{series, <x>, <y>, ...}``, one line per ``series``.
-
-    ``dash_field`` names a field whose true rows draw dashed (e.g. extrapolated).
-    """
-    labels = [r["series"] for r in rows]
-    enc = {
-        "x": alt.X(f"{x}:Q", title=x_title),
-        "y": alt.Y(f"{y}:Q", title=y_title),
-        "color": alt.Color("series:N", scale=_colour_scale(labels, colours), legend=_legend()),
-        "detail": alt.Detail("segment:N" if rows and "segment" in rows[0] else "series:N"),
-        "order": alt.Order("order:Q") if rows and "order" in rows[0] else alt.Undefined,
-        "tooltip": tooltip or [alt.Tooltip("series:N", title="curve"), alt.Tooltip(f"{x}:Q", title=x_title),
-                               alt.Tooltip(f"{y}:Q", title=y_title)],
-    }
-    if dash_field:
-        enc["strokeDash"] = alt.StrokeDash(f"{dash_field}:N", legend=None,
-                                           scale=alt.Scale(domain=["no", "yes"], range=[[1, 0], [6, 4]]))
-    enc = {k: v for k, v in enc.items() if v is not alt.Undefined}
-    return alt.Chart(data if data is not None else alt.Data(values=rows)).mark_line(strokeWidth=2.2, clip=True).encode(**enc)
-
-
 # ---------------------------------------------------------------------------
 # 1. open-circuit characteristic with the field lines
 # ---------------------------------------------------------------------------

@@ -242,3 +242,33 @@ def test_save_into_a_folder_asks_before_overwriting(tmp_path):
     at.checkbox(key="save_force").check()
     button(at, "Save").click().run()
     assert sheet.read_text(encoding="utf-8").startswith("# Setting sheet")
+
+
+def test_form_fields_give_back_each_demo_unchanged():
+    """What the forms show for a file, applied untouched, is the same machine and job."""
+    from supplycfg.loads import profile_to_dict
+    from supplycfg.machine import machine_to_dict
+    from supplycfg.page import fields
+    for path in sorted((DEMO / "machines").glob("*.toml")):
+        m = load_machine(path)
+        vals = fields.machine_form_values(machine_to_dict(m))
+        assert machine_from_dict(fields.machine_tables_from_form(vals), "form") == m
+    for path in sorted((DEMO / "loads").glob("*.toml")):
+        p = load_profile(path)
+        vals = fields.profile_form_values(profile_to_dict(p))
+        assert profile_from_dict(fields.profile_tables_from_form(p.kind, vals), "form") == p
+
+
+def test_form_text_parsing():
+    from supplycfg.page import fields
+    assert fields.parse_number(" 4 ") == 4 and isinstance(fields.parse_number("4"), int)
+    assert fields.parse_number("0.045") == 0.045
+    assert fields.parse_number("abc") == "abc"
+    assert fields.parse_number("") is None
+    assert fields.parse_list("0, 3; 6") == [0, 3, 6]
+    assert fields.parse_list("[1400 1500]") == [1400, 1500]
+    assert fields.error_field("open_circuit.emf_v[3]") == "open_circuit.table"
+    assert fields.error_field("drive.speed_range_rpm") == "drive.speed"
+    assert fields.error_field("machine.series_taps[1]") == "machine.series_taps"
+    with pytest.raises(InputError, match=r"open_circuit.emf_v\[1\]: is empty"):
+        fields.machine_tables_from_form({"occ": {"field current [A]": [0.0, 0.5], "EMF [V]": [3.0, None]}})

@@ -85,7 +85,6 @@ def _machine_form(err):
                                       "machine.series_taps")),
                   ("Open-circuit test", ("open_circuit.speed_rpm", "open_circuit.interpolation")))
         spec = {fields.field_id(t, k): (lab, kind, hlp) for t, k, lab, kind, hlp in fields.MACHINE_FIELDS}
-        shown = set()
         for title, ids in groups:
             st.markdown(f"**{title}**")
             cols = st.columns(2)
@@ -94,7 +93,6 @@ def _machine_form(err):
                 with cols[j % 2]:
                     choices = fields.CHOICES[kind.split(":")[1]] if kind.startswith("choice") else None
                     _text_field(pre, fid, lab, hlp, vals[fid], err, choices)
-                shown.add(fid)
         st.caption("Open-circuit test points: EMF against shunt-field current, starting at 0 A (the residual voltage). "
                    "Add or delete rows at the table's edge.")
         S[f"{pre}occ_base"] = vals["occ"]

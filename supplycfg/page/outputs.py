@@ -10,7 +10,7 @@ from .. import STANDING_NOTICE
 from ..errors import InputError
 from ..files import dumps_json, write_atomic
 from ..report import (SEVERITY_WORDS, current_setting_rows, figure_rows, field_control_text, fmt, limit_label,
-                      margin_rows, md_esc, other_tap_options, run_rows, setting_rows, severity_counts,
+                      margin_rows, md_esc, run_rows, setting_rows, severity_counts,
                       sheet_markdown, sorted_cautions, status_text)
 from . import state
 
