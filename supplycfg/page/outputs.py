@@ -2,6 +2,7 @@
 
 import re
 from dataclasses import replace
+from datetime import date
 from pathlib import Path
 
 import streamlit as st
@@ -174,7 +175,7 @@ def downloads_section(result, option, run, key, machine_toml, profile_toml):
     md = sheet_markdown(result, option.rank, run)
     S["sheet_markdown"] = md
     base = f"{_slug(result.machine.label)}-option-{option.rank}"
-    html_key = f"{key}:{option.rank}"
+    html_key = f"{key}:{option.rank}:{date.today().isoformat()}"  # the sheet prints its date
     res, rank = result, option.rank
     files = {
         "sheet.html": (f"setting-sheet-{base}.html", lambda: state.sheet_html_cached(html_key, res, rank, run),
