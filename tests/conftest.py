@@ -11,7 +11,7 @@ from hypothesis import HealthCheck, settings
 
 settings.register_profile(
     "ci",
-    max_examples=25,
+    max_examples=50,
     deadline=None,
     derandomize=True,
     database=None,
