@@ -454,7 +454,8 @@ def _end_settings(option):
     """Settings of the two ends of a welding option's range (or the option's own)."""
     out = []
     for cs in option.current_settings or []:
-        kw = {k: cs[k] for k in ("rheostat_ohm", "field_current_a") if cs.get(k) is not None}
+        kw = {k: float(cs[k]) for k in ("rheostat_ohm", "field_current_a")
+              if cs.get(k) is not None and np.isfinite(cs[k])}
         out.append((cs.get("current_a"), replace(option.setting, rheostat_ohm=kw.get("rheostat_ohm"),
                                                   field_current_a=kw.get("field_current_a"))))
     return out or [(None, option.setting)]

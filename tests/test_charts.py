@@ -275,3 +275,21 @@ def test_chart_specs_are_deterministic(charging):
     a = charts.battery_chart(m, p, replace(st)).to_dict()
     b = charts.battery_chart(m, p, replace(st)).to_dict()
     assert a == b
+
+
+@pytest.mark.parametrize("stems", [("charging-set", "battery-charging"), ("welding-set", "welding"),
+                                   ("lighting-set", "lighting"), ("feeder-booster", "booster")])
+def test_every_connection_the_search_offers_draws(stems):
+    """One option of each connection found for each demo job draws all its charts (feasible or not)."""
+    from supplycfg.report import other_tap_options
+    from supplycfg.search import search
+    m, p = machine(stems[0]), profile(stems[1])
+    res = search(m, p)
+    seen = {}
+    for o in res.options:
+        seen.setdefault((o.setting.connection, o.feasible), o)
+    for o in seen.values():
+        out = charts.option_charts(m, p, o, other_tap_options(res, o))
+        for _, _, ch in out:
+            spec = ch.to_dict(validate=False)
+            assert spec["datasets"]
