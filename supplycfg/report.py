@@ -201,8 +201,8 @@ def setting_rows(option, machine, profile):
     rows = [("Connection", s.connection)]
     if machine.has_series:
         rows.append(("Series turns per pole in use", f"{(s.series_turns or 0):g} (taps: {taps})"))
-    if option.current_settings:
-        ends = [c for c in current_setting_rows(option)]
+    if option.current_settings and s.connection != "series":
+        ends = current_setting_rows(option)
         rows.append(("Field", "; ".join(f"{f} for {cur}" for cur, f, _, _ in ends)))
     else:
         rows.append(("Field", field_control_text(option, machine)))
@@ -221,7 +221,9 @@ def current_setting_rows(option):
     """Welding: ``[(current, field setting, arc-side voltage, no-load voltage)]`` per end of the range."""
     rows = []
     for cs in option.current_settings or []:
-        if cs.get("field_current_a") is not None:
+        if option.setting.connection == "series":
+            f = "series winding only"
+        elif _given(cs.get("field_current_a")):
             f = f"exciter field {fmt(cs['field_current_a'], 'A')}"
         else:
             f = f"rheostat {fmt(cs.get('rheostat_ohm'), 'Ω')}"
@@ -230,6 +232,10 @@ def current_setting_rows(option):
         rows.append((fmt(cs.get("current_a"), "A"), f, fmt(cs.get("terminal_voltage_v"), "V"),
                      fmt(cs.get("no_load_voltage_v"), "V")))
     return rows
+
+
+def _given(v):
+    return v is not None and not (isinstance(v, float) and not math.isfinite(v))
 
 
 def sorted_cautions(cautions):
