@@ -18,6 +18,7 @@ energy in the equivalent circuit (derived).
 """
 
 import math
+from dataclasses import replace
 
 import numpy as np
 import pytest
@@ -565,14 +566,22 @@ def odd_inputs(draw):
             tables[table][key] = draw(ODD_NUMBERS)
     if draw(st.booleans()):
         tables[draw(st.sampled_from(["machine", "open_circuit", "winding", "extra"]))] = draw(ODD_NUMBERS)
-    conn = draw(st.sampled_from(["separate", "separate-cumulative", "separate-differential", "shunt", "series",
-                                 "long-shunt-cumulative", "short-shunt-cumulative", "long-shunt-differential",
-                                 "short-shunt-differential", "triple"]))
-    kw = {k: draw(st.one_of(st.none(), st.floats(-1e3, 1e5), st.sampled_from([0.0, float("nan"), float("inf")])))
-          for k in ("rheostat_ohm", "field_current_a", "series_turns", "diverter_ohm", "speed_rpm",
-                    "winding_temperature_c")}
-    load = draw(st.sampled_from([Load.resistor, Load.constant_current]))(draw(st.floats(-1e4, 1e4)))
-    return tables, Setting(conn, **kw), load
+    keys = ("rheostat_ohm", "field_current_a", "series_turns", "diverter_ohm", "speed_rpm", "winding_temperature_c")
+    odd_value = st.one_of(st.none(), st.floats(-1e3, 1e5), st.sampled_from([0.0, float("nan"), float("inf")]))
+    try:
+        setting = draw(settings_for(machine_from_dict(tables)))
+    except InputError:
+        setting = Setting("shunt")
+    # then break one field of it, or the connection
+    what = draw(st.sampled_from(("none", "connection") + keys))
+    if what == "connection":
+        setting = replace(setting, connection=draw(st.sampled_from(["triple", "separate", "series", "shunt"])))
+    elif what != "none":
+        setting = replace(setting, **{what: draw(odd_value)})
+    kind = draw(st.sampled_from([Load.resistor, Load.constant_current, Load.battery, Load.line]))
+    args = [draw(st.floats(-1e4, 1e4)) for _ in range(1 if kind in (Load.resistor, Load.constant_current) else 2)]
+    load = kind(*args)
+    return tables, setting, load
 
 
 @given(odd_inputs())
