@@ -29,6 +29,22 @@ def _median(fn, repeat):
     return statistics.median(times)
 
 
+def _quiet(fn, *args):
+    """Run ``fn`` with standard error closed: bare-mode AppTest logs harmless lines there."""
+    import os
+    import sys
+    sys.stderr.flush()
+    saved = os.dup(2)
+    try:
+        with open(os.devnull, "w") as null:
+            os.dup2(null.fileno(), 2)
+            return fn(*args)
+    finally:
+        sys.stderr.flush()
+        os.dup2(saved, 2)
+        os.close(saved)
+
+
 def grid_settings(machine, rheostats=50):
     """All connections x all taps x ``rheostats`` rheostat (or field-current) values."""
     import numpy as np
@@ -81,7 +97,7 @@ def run_bench(repeat=5):
         res["charge_run_seconds"] = None
     try:
         from .page.timing import time_app
-        res.update(time_app(max(1, min(repeat, 3))))
+        res.update(_quiet(time_app, max(1, min(repeat, 3))))
     except ImportError:
         res["app_first_render_seconds"] = None
         res["app_change_seconds"] = None
