@@ -12,7 +12,8 @@ def _launch():
     args = sys.argv[1:]
     if not any(a.startswith("--server.address") for a in args):
         args = ["--server.address", "127.0.0.1"] + args
-    sys.argv = ["streamlit", "run", __file__, "--browser.gatherUsageStats", "false"] + args
+    sys.argv = ["streamlit", "run", __file__, "--browser.gatherUsageStats", "false",
+                "--client.toolbarMode", "minimal"] + args
     sys.exit(cli.main())
 
 
