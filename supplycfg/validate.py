@@ -132,7 +132,7 @@ class Table:
         self.known.append(k)
         if k not in self.data:
             if default is _MISSING:
-                raise InputError(self.source, self.key(k), "is missing")
+                raise InputError(self.source, self.key(k), f"is missing; it is required in [{self.prefix}]")
             return default
         return self.data[k]
 
