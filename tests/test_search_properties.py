@@ -1,0 +1,763 @@
+"""Property campaigns for the setting search and the charge run over odd but valid machines.
+
+Machines are drawn from physical ranges: 2 to 16 poles; armature resistance
+0.3 to 30 % of rated voltage over rated current (with the rating ranges, six
+decades of ohms); field current 0.5 to 5 % of the armature current; open-
+circuit curves with and without residual voltage, from flat-topped to nearly
+linear, some ending on a plateau, read by PCHIP or linearly; with and without
+armature reaction (linear or a table), series winding and taps, exciter,
+brush drop and field rheostat. Load profiles of the four kinds are scaled to
+the machine (battery voltage to its rated voltage, currents to its rated
+current) so that some searches find feasible options and some do not; drive
+speeds now and then above rated, ranges now and then of zero width.
+
+Every option the search calls feasible is solved again here, setting by
+setting, at every speed and winding-temperature corner of the profile and at
+one point inside the envelope, against limits written out from their sources:
+
+- battery: start current on ``V = n E(soc0) + I (Rb + Rc)`` within the
+  profile's [min, max], found both by the engine's ``operating_points`` and
+  by a scan in load current (a stiff bank crosses the machine's whole range
+  within a fraction of a volt); no-load voltage 5 % above the full bank's
+  open-circuit voltage (common practice); armature current within its rating;
+  no series turns in circuit (back-current rule, Theraja Vol II ch. 28, from
+  memory); for the best option also, on the charging curve, the end volts per
+  cell at most the IEC 62485-2 boost voltage (seen) and the end current at
+  least C/100 (common practice);
+- welding: the IEC 60974-1 conventional load line (seen) plus the cable, each
+  stated control within 3 % of its target at the setting's own speed, the
+  characteristic drooping (at most -0.10 V/A) or flat (at least -0.05 V/A) as
+  the process needs (common practice); no-load voltage with 5 % ripple under
+  113 V peak (IEC 60974-1, seen); a stuck electrode under the peak current;
+- lighting and booster: the load-end voltage inside nominal +- tolerance
+  (the person's band; common practice), ``V_load = V_bus + V_booster -
+  IL R_feeder`` for the booster (design note);
+- everywhere: generated EMF not reversed and drive speed at most 1.2 x rated
+  (the search's stop rules; design note, IEC 60034-1 overspeed test, from
+  memory), and the reported figures equal to the re-solved ones.
+
+Each search and charge run runs under a hang guard: a generous wall-clock
+bound that only a hang would reach (speed itself is `supplycfg bench`'s
+business). ``SUPPLYCFG_HYPOTHESIS_PROFILE=long`` runs a deeper campaign.
+
+References
+----------
+Circuit, connections, normal operating point: the project's design note
+(equivalent-field-current method; S. J. Chapman, *Electric Machinery
+Fundamentals*, DC generators, from memory). Charging model and limits:
+IEC 62485-2 (seen). Welding load lines and no-load limit: IEC 60974-1 (seen).
+"""
+
+import math
+import signal
+import time
+from dataclasses import replace
+from pathlib import Path
+
+import numpy as np
+import pytest
+from hypothesis import example, given, note, settings, strategies as st
+from numpy.testing import assert_allclose
+from scipy.integrate import trapezoid
+from scipy.optimize import brentq
+
+from supplycfg import loads
+from supplycfg.circuit import Load, build_circuit, machine_state, operating_points
+from supplycfg.errors import InputError
+from supplycfg.files import dumps_json
+from supplycfg.loads import load_profile, profile_from_dict
+from supplycfg.machine import load_machine, machine_from_dict
+from supplycfg.search import search
+from supplycfg.simulation import STOP_CODES, charge_run
+
+#: Relative slack when re-solving the search's points with the engine's other solver.
+SLACK = 1e-4
+#: Hang guard per search or charge run [s]: a demo-size search takes well under 2 s on
+#: a 2-core machine; ten times that leaves room for any CI noise, so only a hang trips it.
+HANG_BOUND_S = 20.0
+#: Examples of the registered hypothesis profile ("ci" a few dozen, "long" a thousand); a
+#: search with its re-solves costs up to a second, so each campaign takes a share of them.
+EXAMPLES = settings.default.max_examples
+
+
+def share(fraction, least=3):
+    """Settings with ``fraction`` of the profile's examples (at least ``least``)."""
+    return settings(max_examples=max(least, int(EXAMPLES * fraction)))
+
+
+def log_uniform(lo, hi):
+    return st.floats(math.log(lo), math.log(hi)).map(math.exp)
+
+
+def uniform(lo, hi):
+    return st.floats(lo, hi)
+
+
+# ---------------------------------------------------------------------------
+# strategies: machines
+# ---------------------------------------------------------------------------
+
+@st.composite
+def machine_tables(draw, volts=(24.0, 600.0), amps=(5.0, 2000.0), series=None, ra_share=(0.003, 0.3),
+                   series_mmf=(0.05, 0.5)):
+    """TOML tables of a valid machine drawn from physical ranges.
+
+    ``series_mmf`` is the series winding's mmf at rated current as a share of the
+    shunt winding's at the field current of rated voltage.
+    """
+    vr = draw(log_uniform(*volts))
+    ir = draw(log_uniform(*amps))
+    base = vr / ir
+    ra = base * draw(log_uniform(*ra_share))
+    if_r = ir * draw(log_uniform(0.005, 0.05))
+    nsh = draw(log_uniform(100.0, 5000.0))
+    speed = draw(log_uniform(500.0, 3600.0))
+    poles = draw(st.sampled_from([2, 4, 6, 8, 12, 16]))
+    m = {"label": "odd machine", "poles": poles, "rated_speed_rpm": speed, "rated_voltage_v": vr,
+         "rated_armature_current_a": ir, "armature_resistance_ohm": ra, "shunt_turns_per_pole": nsh,
+         "brush_drop_v": draw(st.sampled_from([0.0, 1.0, 2.0])) * draw(uniform(0.5, 1.25)),
+         "reference_temperature_c": draw(st.sampled_from([75.0, 40.0, 20.0, 115.0]))}
+    if draw(st.booleans()):
+        m["excitation_voltage_v"] = vr * draw(uniform(0.2, 1.0))
+    if draw(st.booleans()):
+        m["peak_armature_current_a"] = ir * draw(uniform(1.0, 3.0))
+    if series if series is not None else draw(st.booleans()):
+        nse = draw(uniform(*series_mmf)) * nsh * if_r / ir
+        m["series_turns_per_pole"] = nse
+        m["series_field_resistance_ohm"] = max(ra * draw(log_uniform(0.05, 1.0)), 1e-5)
+        m["series_taps"] = draw(st.sampled_from([[0.0, nse], [0.0, 0.5 * nse, nse], [0.5 * nse, nse],
+                                                 [0.0, 0.25 * nse, 0.5 * nse, 0.75 * nse, nse]]))
+    # open-circuit curve: E = Er + (Emax - Er) u (1 + beta) / (u + beta), u = x / xm;
+    # small beta is flat-topped (saturates early), large beta nearly linear
+    npts = draw(st.integers(4, 24))
+    xm = if_r * draw(uniform(1.5, 3.0))
+    if draw(st.booleans()):
+        x = np.linspace(0.0, xm, npts)
+    else:
+        steps = np.array(draw(st.lists(uniform(0.2, 1.0), min_size=npts - 1, max_size=npts - 1)))
+        x = np.concatenate([[0.0], np.cumsum(steps)]) * xm / steps.sum()
+    beta = draw(log_uniform(0.05, 50.0))
+    emax = vr * draw(uniform(1.05, 1.6))
+    er = vr * draw(uniform(0.005, 0.05)) if draw(st.booleans()) else 0.0
+    u = x / xm
+    e = er + (emax - er) * u * (1 + beta) / (u + beta)
+    if draw(st.booleans()):
+        e[-1] = e[-2]       # a flat top
+    # the field line crosses the curve near the measured top or misses it (no build-up)
+    rsh = float(e[-1] / x[-1]) * draw(uniform(0.5, 2.0))
+    m["shunt_field_resistance_ohm"] = rsh
+    m["rheostat_max_ohm"] = rsh * draw(st.sampled_from([0.0, 0.3, 1.0, 3.0])) * draw(uniform(0.5, 1.0))
+    o = {"speed_rpm": speed * draw(uniform(0.8, 1.2)), "field_current_a": x.tolist(), "emf_v": e.tolist(),
+         "interpolation": draw(st.sampled_from(["monotone-cubic", "linear"]))}
+    tables = {"machine": m, "open_circuit": o}
+    kind = draw(st.sampled_from(["none", "linear", "table"]))
+    at = nsh * if_r * draw(uniform(0.0, 0.3))
+    if kind == "linear":
+        tables["armature_reaction"] = {"demagnetizing_at_per_pole_at_rated": at}
+    elif kind == "table":
+        k = draw(st.integers(2, 5))
+        cur = np.linspace(0.0, 2 * ir, k)
+        grow = np.concatenate([[0.0], np.cumsum(draw(st.lists(uniform(0.0, 1.0), min_size=k - 1, max_size=k - 1)))])
+        tables["armature_reaction"] = {"armature_current_a": cur.tolist(),
+                                       "demagnetizing_at_per_pole": (at * grow).tolist()}
+    if draw(st.booleans()):
+        tables["winding"] = {"conductors": draw(st.integers(50, 5000)),
+                             "parallel_paths": draw(st.sampled_from([2, poles]))}
+    return tables
+
+
+# ---------------------------------------------------------------------------
+# strategies: load profiles scaled to the machine
+# ---------------------------------------------------------------------------
+
+@st.composite
+def drive_table(draw, m):
+    n = m["machine"]["rated_speed_rpm"]
+    d = {}
+    # now and then above rated speed, past the 1.2 x overspeed stop too
+    if draw(st.booleans()):
+        d["speed_rpm"] = n * draw(st.sampled_from([uniform(0.8, 1.1), uniform(1.1, 1.3)]).flatmap(lambda s: s))
+    else:
+        lo = n * draw(st.sampled_from([uniform(0.8, 1.05), uniform(1.05, 1.25)]).flatmap(lambda s: s))
+        d["speed_range_rpm"] = [lo, lo + n * draw(st.sampled_from([0.0, 1.0])) * draw(uniform(0.0, 0.1))]
+    if draw(st.booleans()):
+        cold = draw(uniform(-10.0, 40.0))
+        d["winding_temperature_range_c"] = [cold, cold + draw(st.sampled_from([0.0, 1.0])) * draw(uniform(0.0, 80.0))]
+    return d
+
+
+@st.composite
+def battery_table(draw, m):
+    vr, ir = m["machine"]["rated_voltage_v"], m["machine"]["rated_armature_current_a"]
+    name = draw(st.sampled_from(sorted(loads.CHEMISTRIES)))
+    chem = loads.CHEMISTRIES[name]
+    cells = max(1, int(round(vr * draw(uniform(0.5, 1.0)) / chem.end_of_charge_voltage_v)))
+    imax = ir * draw(uniform(0.1, 1.2))
+    soc0 = draw(uniform(0.0, 0.6))
+    b = {"chemistry": name, "cells": cells, "capacity_ah": imax / draw(uniform(0.05, 0.3)),
+         "state_of_charge": [soc0, draw(uniform(max(soc0 + 0.05, 0.7), 1.0))], "max_charge_current_a": imax,
+         "min_charge_current_a": imax * draw(st.sampled_from([0.0, 0.2, 0.5])) * draw(uniform(0.5, 1.0))}
+    if draw(st.booleans()):
+        b["internal_resistance_ohm"] = vr / ir * draw(log_uniform(0.001, 0.05))
+    if draw(st.booleans()):
+        b["cable_resistance_ohm"] = vr / ir * draw(log_uniform(0.0005, 0.02))
+    if draw(st.booleans()):
+        b["temperature_c"] = draw(uniform(-5.0, 45.0))
+    if draw(st.booleans()):
+        b["charge_voltage_per_cell_v"] = draw(uniform(chem.float_voltage_v, chem.max_cell_voltage_v))
+    return b
+
+
+@st.composite
+def welding_table(draw, m):
+    ir = m["machine"]["rated_armature_current_a"]
+    hi = ir * draw(uniform(0.5, 1.0))
+    w = {"process": draw(st.sampled_from(sorted(loads.WELDING_PROCESSES))),
+         "current_range_a": [hi * draw(st.sampled_from([uniform(0.2, 0.8), st.just(1.0)]).flatmap(lambda s: s)), hi],
+         "environment": draw(st.sampled_from(sorted(loads.ENVIRONMENTS))),
+         "duty_cycle_percent": draw(uniform(20.0, 100.0)),
+         "cable_resistance_ohm": draw(st.sampled_from([0.0, 1.0])) * 4.0 / ir * draw(uniform(0.2, 1.0))}
+    if draw(st.booleans()):
+        w["max_no_load_voltage_v"] = draw(uniform(60.0, 113.0))
+    return w
+
+
+@st.composite
+def lighting_table(draw, m):
+    vr, ir = m["machine"]["rated_voltage_v"], m["machine"]["rated_armature_current_a"]
+    return {"nominal_voltage_v": vr * draw(uniform(0.7, 1.05)),
+            "load_current_a": sorted([ir * draw(uniform(0.0, 0.3)), ir * draw(uniform(0.0, 1.1))]),
+            "tolerance_percent": draw(uniform(2.0, 10.0)),
+            "feeder_resistance_ohm": vr / ir * draw(st.sampled_from([0.0, 0.01, 0.05])) * draw(uniform(0.5, 1.0)),
+            "lamp": draw(st.sampled_from(sorted(loads.LAMPS)))}
+
+
+@st.composite
+def booster_table(draw, m):
+    vr, ir = m["machine"]["rated_voltage_v"], m["machine"]["rated_armature_current_a"]
+    hi = ir * draw(uniform(0.3, 1.0))
+    return {"bus_voltage_v": vr * draw(uniform(2.0, 15.0)),
+            "feeder_resistance_ohm": vr / ir * draw(uniform(0.3, 1.5)),
+            "load_current_a": [hi * draw(st.sampled_from([0.0, 0.3])), hi],
+            "tolerance_percent": draw(uniform(2.0, 10.0))}
+
+
+JOB_TABLES = {"battery": battery_table, "welding": welding_table, "lighting": lighting_table,
+              "booster": booster_table}
+#: Machines for each job: welding sets are low-voltage and drooping (strong differential
+#: series winding or a large armature resistance); boosters mostly carry a series winding.
+MACHINES = {
+    "battery": lambda: machine_tables(),
+    "lighting": lambda: machine_tables(),
+    "welding": lambda: machine_tables(volts=(25.0, 100.0), amps=(20.0, 500.0), ra_share=(0.01, 0.6),
+                                      series_mmf=(0.1, 1.5)),
+    "booster": lambda: machine_tables(volts=(5.0, 150.0), amps=(10.0, 2000.0),
+                                      series=True, series_mmf=(0.3, 3.0)),
+}
+
+
+@st.composite
+def jobs(draw, kind):
+    """(machine tables, profile tables) of one kind."""
+    mt = draw(MACHINES[kind]())
+    if kind == "booster" and draw(st.sampled_from(["keep"] * 7 + ["drop"])) == "drop":
+        # now and then a booster job for a machine without a series winding
+        for k in ("series_turns_per_pole", "series_field_resistance_ohm", "series_taps"):
+            mt["machine"].pop(k, None)
+    pt = {"load": {"kind": kind, "label": f"odd {kind} job"}, "drive": draw(drive_table(mt)),
+          kind: draw(JOB_TABLES[kind](mt))}
+    return mt, pt
+
+
+def build(case):
+    mt, pt = case
+    note(f"machine = {mt!r}\nprofile = {pt!r}")
+    return machine_from_dict(mt), profile_from_dict(pt)
+
+
+# ---------------------------------------------------------------------------
+# the hang guard and the call that may only raise InputError
+# ---------------------------------------------------------------------------
+
+class Hang(BaseException):
+    """Raised by the watchdog; a BaseException so no ``except Exception`` in the code swallows it."""
+
+
+def guarded(fn, *args):
+    """``fn(*args)`` under a watchdog of HANG_BOUND_S; InputError gives None (after its one-line check)."""
+    def alarm(signum, frame):
+        raise Hang(f"{fn.__name__} did not return within {HANG_BOUND_S} s")
+
+    use_alarm = hasattr(signal, "setitimer")
+    if use_alarm:
+        old = signal.signal(signal.SIGALRM, alarm)
+        signal.setitimer(signal.ITIMER_REAL, HANG_BOUND_S)
+    t0 = time.perf_counter()
+    try:
+        out = fn(*args)
+    except InputError as exc:
+        assert "\n" not in str(exc)
+        out = None
+    finally:
+        if use_alarm:
+            signal.setitimer(signal.ITIMER_REAL, 0)
+            signal.signal(signal.SIGALRM, old)
+    elapsed = time.perf_counter() - t0
+    note(f"{fn.__name__}: {elapsed:.3f} s")
+    assert elapsed < HANG_BOUND_S, f"{fn.__name__} took {elapsed:.1f} s (hang guard {HANG_BOUND_S} s)"
+    return out
+
+
+# ---------------------------------------------------------------------------
+# independent re-solves
+# ---------------------------------------------------------------------------
+
+def corners(machine, profile, inner=None):
+    """Every (speed, temperature) the profile's envelope asks for: the ends of each range
+    and the middle speed (where the setting is stated); with ``inner`` = (a, b) fractions
+    also one point inside, since every figure must hold over the whole range (design note)."""
+    speeds = list(profile.speeds_rpm)
+    if len(speeds) == 2:
+        speeds.insert(1, 0.5 * (speeds[0] + speeds[1]))
+    temps = profile.temperatures_c or (machine.reference_temperature_c,)
+    out = [(float(s), float(t)) for s in speeds for t in temps]
+    if inner is not None:
+        out.append((speeds[0] + inner[0] * (speeds[-1] - speeds[0]), temps[0] + inner[1] * (temps[-1] - temps[0])))
+    return out
+
+
+def at(setting, speed, temp, **kw):
+    return replace(setting, speed_rpm=speed, winding_temperature_c=temp, **kw)
+
+
+def normal(machine, setting, load):
+    """The engine's normal point; the solve must have converged."""
+    ops = operating_points(machine, setting, load)
+    assert ops.converged, (setting, load, ops.message)
+    pt = ops.normal
+    assert pt is not None, (setting, load, ops.points)
+    return pt
+
+
+def within(value, lo=-math.inf, hi=math.inf):
+    return lo - SLACK * abs(lo) <= value <= hi + SLACK * abs(hi)
+
+
+def bank_curve_v(job, soc, current_a):
+    """Machine-terminal voltage on the charging curve [V], ``n [Vc(s, I/C) - I Rc/C] + I (Rb + Rcable)``."""
+    chem = loads.chemistry(job.chemistry)
+    i = np.asarray(current_a, float)
+    ic = np.maximum(i, 0.0)
+    cell = loads.charging_voltage_per_cell(chem, soc, ic / job.capacity_ah, job.temperature_c,
+                                           job.open_circuit_voltage_per_cell_v) - ic * chem.resistance_ohm_ah / job.capacity_ah
+    return job.cells * cell + i * (job.internal_resistance_ohm + job.cable_resistance_ohm)
+
+
+def bank_normal(machine, setting, v_of, lo, hi, grid=20001):
+    """Highest stable intersection with a load curve ``V = v_of(IL)`` for IL in [lo, hi] [A].
+
+    A battery is stiff: its line crosses the whole working range of the machine within a
+    fraction of a volt, so it is scanned in load current (step 1e-3 of rated current at the
+    default span), each sign change refined by Brent's method on the engine's circuit residual.
+    """
+    circ = build_circuit(machine, [setting])
+
+    def h(i):
+        i = np.atleast_1d(np.asarray(i, float))
+        return machine_state(circ, circ.take(np.zeros(i.size, int)), v_of(i), i)["h"]
+
+    i = np.linspace(lo, hi, grid)
+    hv = h(i)
+    down = np.flatnonzero((hv[:-1] > 0) & (hv[1:] <= 0))
+    if not down.size:
+        return None
+    j = down[-1]
+    root = brentq(lambda t: float(h(t)[0]), i[j], i[j + 1], xtol=1e-13, rtol=4 * np.finfo(float).eps)
+    one = np.array([root])
+    st = machine_state(circ, circ.take(np.zeros(1, int)), v_of(one), one)
+    return {k: float(np.asarray(v).ravel()[0]) for k, v in st.items()}
+
+
+#: Relative agreement of a reported figure with its re-solve (the search refines its roots to
+#: the circuit tolerance, 1e-6 V, as does the re-solve).
+FIGURE_RTOL = 1e-5
+
+
+def figure_is(value, expected, scale):
+    """A reported figure equals its re-solve (to FIGURE_RTOL of ``scale``)."""
+    assert value is not None
+    assert_allclose(value, expected, rtol=FIGURE_RTOL, atol=FIGURE_RTOL * scale)
+
+
+def recheck_battery(m, p, res, inner):
+    b = p.battery
+    chem = loads.chemistry(b.chemistry)
+    soc0, soc1 = b.state_of_charge
+    ocv = b.open_circuit_voltage_per_cell_v
+    e0 = b.cells * float(loads.open_circuit_voltage_per_cell(chem, soc0, ocv))
+    e1 = b.cells * float(loads.open_circuit_voltage_per_cell(chem, soc1, ocv))
+    r = b.internal_resistance_ohm + b.cable_resistance_ohm
+    limit = b.charge_voltage_per_cell_v + chem.temperature_coefficient_v_per_c * (b.temperature_c - 25.0)
+    span = 10 * m.rated_armature_current_a      # the engine's searched span, 10 x rated
+    nc = len(corners(m, p))
+    for k, o in enumerate(res.feasible):
+        # series turns in circuit with a battery: back-current reverses the field (textbook rule)
+        conn = o.setting.connection
+        assert conn != "series" and not (conn.endswith("cumulative") and o.setting.series_turns > 0)
+        starts, ends, vpcs = [], [], []
+        for n, (sp, tc) in enumerate(corners(m, p, inner)):
+            s = at(o.setting, sp, tc)
+            scanned = bank_normal(m, s, lambda i: e0 + r * i, -span, span)
+            solved = normal(m, s, Load.battery(e0, r))
+            note(f"option {o.rank} at {sp:g} rpm, {tc:g} degC: start {scanned}, engine {solved}")
+            assert scanned is not None
+            for start in (scanned, solved):
+                assert within(start["load_current_a"], b.min_charge_current_a, b.max_charge_current_a)
+                assert within(abs(start["armature_current_a"]), hi=m.rated_armature_current_a)
+                assert start["generated_emf_v"] >= 0
+            vnl = normal(m, s, Load.constant_current(0.0))["terminal_voltage_v"]
+            assert within(vnl, lo=(1 + 0.05) * e1)
+            if k == 0:
+                # the best option also on the charging curve (overvoltage included)
+                pt = bank_normal(m, s, lambda i: bank_curve_v(b, soc0, i), 0.0, span)
+                i0c = 0.0 if pt is None else pt["load_current_a"]
+                assert within(i0c, lo=b.min_charge_current_a)
+                pt = bank_normal(m, s, lambda i: bank_curve_v(b, soc1, i), 0.0, span)
+                i1 = 0.0 if pt is None else pt["load_current_a"]
+                vpc = (float(bank_curve_v(b, soc1, i1)) - i1 * b.cable_resistance_ohm) / b.cells
+                note(f"start on charge {i0c} A; end {i1} A, {vpc} V/cell (limit {limit})")
+                assert within(vpc, hi=limit)
+                assert within(i1, lo=0.01 * b.capacity_ah)
+            if n < nc:      # the figures are over the corners
+                starts.append(scanned["load_current_a"])
+                if k == 0:
+                    ends.append(i1)
+                    vpcs.append(vpc)
+        f, ir = o.figures, m.rated_armature_current_a
+        figure_is(f["start_charge_current_a"], max(starts), ir)
+        figure_is(f["start_charge_current_min_a"], min(starts), ir)
+        if k == 0:
+            figure_is(f["end_charge_current_a"], min(ends), ir)
+            figure_is(f["end_volts_per_cell"], max(vpcs), limit)
+
+
+def recheck_lighting(m, p, res, inner):
+    j = p.lighting
+    lo, hi = (j.nominal_voltage_v * (1 + f * j.tolerance_percent / 100) for f in (-1, 1))
+    for o in res.feasible:
+        volts = []
+        nc = len(corners(m, p))
+        for n, (sp, tc) in enumerate(corners(m, p, inner)):
+            # five currents across the range, its ends included
+            for il in np.linspace(*j.load_current_a, 5):
+                pt = normal(m, at(o.setting, sp, tc), Load.constant_current(float(il)))
+                note(f"option {o.rank} at {sp:g} rpm, {tc:g} degC, {il:g} A: {pt}")
+                vf = pt["terminal_voltage_v"] - il * j.feeder_resistance_ohm
+                assert within(vf, lo, hi)
+                assert within(abs(pt["armature_current_a"]), hi=m.rated_armature_current_a)
+                assert pt["generated_emf_v"] >= 0
+                if n < nc:
+                    volts.append(vf)
+        figure_is(o.figures["load_voltage_min_v"], min(volts), j.nominal_voltage_v)
+        figure_is(o.figures["load_voltage_max_v"], max(volts), j.nominal_voltage_v)
+
+
+def recheck_booster(m, p, res, inner):
+    j = p.booster
+    lo, hi = (j.bus_voltage_v * (1 + f * j.tolerance_percent / 100) for f in (-1, 1))
+    for o in res.feasible:
+        assert o.setting.connection == "series"
+        volts = []
+        nc = len(corners(m, p))
+        for n, (sp, tc) in enumerate(corners(m, p, inner)):
+            for il in np.linspace(*j.load_current_a, 5):
+                pt = normal(m, at(o.setting, sp, tc), Load.constant_current(float(il)))
+                note(f"option {o.rank} at {sp:g} rpm, {tc:g} degC, {il:g} A: {pt}")
+                vl = j.bus_voltage_v + pt["terminal_voltage_v"] - il * j.feeder_resistance_ohm
+                assert within(vl, lo, hi)
+                assert within(abs(pt["armature_current_a"]), hi=m.rated_armature_current_a)
+                assert pt["generated_emf_v"] >= 0
+                if n < nc:
+                    volts.append(vl)
+        figure_is(o.figures["load_voltage_min_v"], min(volts), j.bus_voltage_v)
+        figure_is(o.figures["load_voltage_max_v"], max(volts), j.bus_voltage_v)
+
+
+def weld_line(job, shift_v=0.0):
+    """The process's conventional load line plus the cable (below the 600 A knee), raised by ``shift_v``."""
+    proc = loads.welding_process(job.process)
+    return Load.line(proc.load_line_offset_v + shift_v, proc.load_line_slope_v_per_a + job.cable_resistance_ohm), proc
+
+
+#: Slack on the characteristic's slope [V/A]: the search differentiates at the point, the
+#: re-solve takes a chord between two nearby points, and the curve may have a kink between.
+SLOPE_SLACK = 5e-3
+
+
+def recheck_welding(m, p, res, inner):
+    j = p.welding
+    line, proc = weld_line(j)
+    peak_limit = loads.no_load_voltage_limit(loads.environment(j.environment).dc_limit).voltage_v
+    cs_ = corners(m, p)
+    worst = max(cs_, key=lambda c: (c[0], -c[1]))     # top speed, coldest windings
+    for o in res.feasible:
+        assert [cs["current_a"] for cs in o.current_settings] == list(j.current_range_a)
+        vnls = []
+        for cs, fig in zip(o.current_settings, ("low_end_current_a", "high_end_current_a")):
+            key = "field_current_a" if "field_current_a" in cs else "rheostat_ohm"
+            assert cs["reachable"]
+            own = replace(o.setting, **{key: cs[key]})
+            pt = normal(m, own, line)
+            note(f"option {o.rank}, {cs}: {pt}")
+            assert pt["load_current_a"] <= proc.load_line_knee_a
+            assert abs(pt["load_current_a"] / cs["current_a"] - 1) <= 0.03 + SLACK
+            assert pt["generated_emf_v"] >= 0
+            figure_is(o.figures[fig], pt["load_current_a"], cs["current_a"])
+            # the characteristic's slope through the working point: chord of the points on two
+            # load lines shifted by +-0.1 % of the arc voltage (same branch, moved continuously)
+            dv = 1e-3 * pt["terminal_voltage_v"]
+            p1, p2 = (normal(m, own, weld_line(j, sh)[0]) for sh in (-dv, dv))
+            slope = (p2["terminal_voltage_v"] - p1["terminal_voltage_v"]) / (p2["load_current_a"] - p1["load_current_a"])
+            note(f"slope {slope} V/A")
+            assert float(loads.characteristic_margin_v_per_a(proc, slope)) >= -SLOPE_SLACK
+            vnl = normal(m, at(own, *worst), Load.constant_current(0.0))["terminal_voltage_v"]
+            assert within(float(loads.no_load_peak_voltage(vnl)), hi=peak_limit)
+            if j.max_no_load_voltage_v is not None:
+                assert within(vnl, hi=j.max_no_load_voltage_v)
+            vnls.append(vnl)
+        figure_is(o.figures["max_no_load_voltage_v"], max(vnls), peak_limit)
+        # a stuck electrode at the top setting, top speed and cold windings: the cable alone
+        top = o.current_settings[-1]
+        key = "field_current_a" if "field_current_a" in top else "rheostat_ohm"
+        stuck = operating_points(m, at(replace(o.setting, **{key: top[key]}), *worst),
+                                 Load.resistor(j.cable_resistance_ohm))
+        assert stuck.converged
+        isc = max((q["load_current_a"] for q in stuck.points if q["stable"] and q["load_current_a"] >= 0),
+                  default=None)
+        note(f"stuck electrode {isc} A")
+        assert isc is not None and within(isc, hi=m.peak_current_a)
+
+
+RECHECK = {"battery": recheck_battery, "welding": recheck_welding, "lighting": recheck_lighting,
+           "booster": recheck_booster}
+
+
+# ---------------------------------------------------------------------------
+# what every result must show
+# ---------------------------------------------------------------------------
+
+def non_finite(obj, path="", skip=()):
+    """Paths of every float in ``obj`` that is NaN or infinite."""
+    if isinstance(obj, dict):
+        return [p for k, v in obj.items() for p in non_finite(v, f"{path}.{k}", skip)]
+    if isinstance(obj, (list, tuple)):
+        return [p for i, v in enumerate(obj) for p in non_finite(v, f"{path}[{i}]", skip)]
+    if isinstance(obj, (float, np.floating)) and not math.isfinite(obj) and not any(s(path) for s in skip):
+        return [path]
+    return []
+
+
+def check_result_shape(res):
+    """Feasible options first, none with a stop caution or a broken or unknown limit."""
+    feas = [o.feasible for o in res.options]
+    assert feas == sorted(feas, reverse=True)
+    for o in res.options:
+        stop = [c.rule for c in o.cautions if c.severity == "stop"]
+        unknown = [k for k, mg in o.margins.items() if mg["value"] is None or mg["margin"] is None]
+        if o.feasible:
+            assert not stop and not o.failed and not unknown, (o.rank, stop, o.failed, unknown)
+            assert all(mg["fraction"] >= 0 for mg in o.margins.values())
+        # a limit the engine could not evaluate is reported as broken, never as a number
+        assert set(unknown) <= set(o.failed), (o.rank, unknown, o.failed)
+
+
+def run_search(m, p):
+    res = guarded(search, m, p)
+    if res is not None:
+        check_result_shape(res)
+        best = res.options[0] if res.options else None
+        note(f"{len(res.options)} options, {len(res.feasible)} feasible; best: " + (
+            f"{best.setting_dict()} feasible={best.feasible} failed={best.failed} {best.figures}" if best else "none"))
+    return res
+
+
+# ---------------------------------------------------------------------------
+# the campaigns
+# ---------------------------------------------------------------------------
+
+#: A nearly linear curve whose last chord is steeper than the bare field winding's line: with
+#: the rheostat near zero the shunt voltage runs away past the measured curve, where the
+#: search has no number to give (an example each campaign runs).
+RUNAWAY_MACHINE = {
+    "machine": {"label": "runaway", "poles": 4, "rated_speed_rpm": 1100, "rated_voltage_v": 55,
+                "rated_armature_current_a": 7.4, "armature_resistance_ohm": 0.37, "shunt_turns_per_pole": 150,
+                "shunt_field_resistance_ohm": 74, "rheostat_max_ohm": 74},
+    "open_circuit": {"speed_rpm": 1100, "field_current_a": [0.05 * k for k in range(12)],
+                     "emf_v": [1.0, 13.6, 25.2, 35.1, 43.7, 51.2, 57.8, 63.7, 69.0, 73.7, 78.0, 81.9]}}
+RUNAWAY_JOBS = {
+    "battery": {"chemistry": "lead-acid-vented", "cells": 20, "capacity_ah": 50, "state_of_charge": [0.2, 1.0],
+                "max_charge_current_a": 7.0},
+    "lighting": {"nominal_voltage_v": 50, "load_current_a": [0, 7], "tolerance_percent": 10}}
+
+
+def runaway_case(kind):
+    return ((RUNAWAY_MACHINE, {"load": {"kind": kind}, "drive": {"speed_rpm": 1100}, kind: RUNAWAY_JOBS[kind]}),
+            (0.5, 0.5))
+
+
+def _series_controls(res):
+    """Paths of the control values a series option states in current_settings: NaN today,
+    see test_welding_series_options_state_no_nan_control (kept out of the campaign so it
+    still checks everything else)."""
+    idx = [k for k, o in enumerate(res.options) if o.setting.connection == "series"]
+    return lambda path: path.endswith(".rheostat_ohm") and any(
+        path.startswith(f".options[{k}].current_settings[") for k in idx)
+
+
+def _campaign(case, kind):
+    job, inner = case
+    m, p = build(job)
+    res = run_search(m, p)
+    if res is None:
+        return
+    bad = non_finite(res.as_dict(), skip=(_series_controls(res),) if kind == "welding" else ())
+    assert not bad, bad[:10]
+    if res.feasible:
+        # above 1.2 x rated speed is a stop (IEC 60034-1 overspeed test, a test not a duty)
+        assert max(p.speeds_rpm) <= 1.2 * m.rated_speed_rpm * (1 + 1e-9)
+    RECHECK[kind](m, p, res, inner)
+
+
+@share(0.6)
+@example(case=runaway_case("battery"))
+@given(st.tuples(jobs("battery"), st.tuples(uniform(0.0, 1.0), uniform(0.0, 1.0))))
+def test_battery_search_options_hold_on_resolve(case):
+    """Battery search: only InputError, under the hang guard; every figure finite or None;
+    every feasible option holds on an independent re-solve at every corner (module docstring:
+    start current on the open-circuit line, no-load 5 % above the full bank, armature rating;
+    charging-curve end volts per cell at the IEC 62485-2 limit and C/100 floor for the best)."""
+    _campaign(case, "battery")
+
+
+@share(1.0)
+@given(st.tuples(jobs("welding"), st.tuples(uniform(0.0, 1.0), uniform(0.0, 1.0))))
+def test_welding_search_options_hold_on_resolve(case):
+    """Welding search: each feasible option's stated controls put the normal point on the
+    IEC 60974-1 conventional load line (seen) within 3 % of each target at the setting's own
+    speed, and its no-load voltage with 5 % ripple stays under the 113 V peak (seen)."""
+    _campaign(case, "welding")
+
+
+@share(0.4)
+@example(case=runaway_case("lighting"))
+@given(st.tuples(jobs("lighting"), st.tuples(uniform(0.0, 1.0), uniform(0.0, 1.0))))
+def test_lighting_search_options_hold_on_resolve(case):
+    """Lighting search: the far-end voltage V - IL Rfeeder of every feasible option inside
+    nominal +- tolerance at both ends of the current range and the middle, at every corner
+    (the person's band, common practice), armature current within rating."""
+    _campaign(case, "lighting")
+
+
+@share(0.5)
+@given(st.tuples(jobs("booster"), st.tuples(uniform(0.0, 1.0), uniform(0.0, 1.0))))
+def test_booster_search_options_hold_on_resolve(case):
+    """Booster search: V_load = V_bus + V_booster(IL) - IL Rfeeder (design note) of every feasible
+    option inside the band over the current range at every corner."""
+    _campaign(case, "booster")
+
+
+@share(0.3)
+@given(st.sampled_from(sorted(JOB_TABLES)).flatmap(jobs))
+def test_search_json_repeats_byte_for_byte(case):
+    """The same machine and profile, read afresh, give byte-identical JSON from
+    supplycfg.files.dumps_json, the timing key search_seconds apart (issue 5)."""
+    texts = []
+    for _ in range(2):
+        res = guarded(search, *build(case))
+        if res is None:
+            return
+        d = res.as_dict()
+        assert d.pop("search_seconds") >= 0
+        texts.append(dumps_json(d))
+    assert texts[0] == texts[1]
+
+
+def best_option(res):
+    """The option a charge run takes: the best feasible one, else the best without a stop
+    caution (as the charge command does); None when there is none."""
+    pick = next((o for o in res.options if o.feasible), None)
+    if pick is None:
+        pick = next((o for o in res.options if not any(c.severity == "stop" for c in o.cautions)), None)
+    return pick
+
+
+@share(0.5)
+@given(jobs("battery"), st.sampled_from([None, 0.25, 3.0]))
+def test_charge_run_with_the_best_option(case, max_hours):
+    """The charge run with the search's best option (issue 5): only InputError, under the hang
+    guard; time and state of charge never fall; a stop code and its reason always set; the
+    charge balance s - s0 = eta Ah / C holds (ampere-hour efficiency, common practice) and the
+    ampere-hours are the time integral of the reported current (trapezoid rule, 1 %)."""
+    m, p = build(case)
+    res = guarded(search, m, p)
+    pick = None if res is None else best_option(res)
+    if pick is None:
+        return
+    run = guarded(charge_run, m, p, pick.setting, max_hours)
+    if run is None:
+        return
+    b = p.battery
+    soc0, soc1 = b.state_of_charge
+    eff = loads.chemistry(b.chemistry).charge_efficiency
+    note(f"{run.stop}: {run.stop_reason}; {run.duration_h} h, soc {run.state_of_charge[[0, -1]]}")
+    assert run.stop in STOP_CODES
+    assert isinstance(run.stop_reason, str) and run.stop_reason.strip()
+    assert run.converged or any("converge" in n for n in run.notes)
+    t, soc, ah, kwh = (np.asarray(a, float) for a in (run.time_h, run.state_of_charge, run.ah, run.kwh))
+    assert t.size == soc.size == ah.size == kwh.size >= 1
+    assert all(np.all(np.isfinite(a)) for a in (t, soc, ah, kwh))
+    assert t[0] == 0.0 and np.all(np.diff(t) >= 0)
+    assert_allclose(run.duration_h, t[-1], rtol=1e-12)
+    cap_h = 48.0 if max_hours is None else max_hours
+    assert run.duration_h <= cap_h * (1 + 1e-9)
+    assert np.all(np.diff(soc) >= -1e-12) and np.all(np.diff(ah) >= -1e-9) and np.all(np.diff(kwh) >= -1e-9)
+    assert soc0 - 1e-12 <= soc[0] and soc[-1] <= soc1 + 1e-9
+    assert_allclose(soc - soc0, eff * ah / b.capacity_ah, rtol=0, atol=1e-6)
+    cur = np.asarray(run.current_a, float)
+    vpc = np.asarray(run.volts_per_cell, float)
+    # each stop says what happened at the last point (the integrator reads a table: 0.1 %)
+    if run.stop == "end-soc":
+        assert soc[-1] == soc1
+    elif run.stop == "time-cap":
+        assert_allclose(run.duration_h, cap_h, rtol=1e-9)
+    elif run.stop == "voltage-limit":
+        assert vpc[-1] >= run.limit_volts_per_cell * (1 - 1e-3)
+    elif run.stop == "current-floor":
+        assert not cur[-1] > run.floor_current_a * (1 + 1e-3) + 1e-9
+    if t.size > 2 and np.all(np.isfinite(cur)) and ah[-1] > 0:
+        assert_allclose(trapezoid(cur, t), ah[-1], rtol=1e-2)
+    assert not non_finite(run.as_dict())
+
+
+# ---------------------------------------------------------------------------
+# found by the campaigns: minimal cases
+# ---------------------------------------------------------------------------
+
+def _demo(kind):
+    root = Path(__file__).resolve().parents[1] / "profiles"
+    m, p = {"welding": ("welding-set", "welding")}[kind]
+    return load_machine(root / "machines" / f"{m}.toml"), load_profile(root / "loads" / f"{p}.toml")
+
+
+@pytest.mark.xfail(strict=True, reason="search: a series option's current_settings carry rheostat_ohm = NaN (the "
+                   "series connection has no field control; _control_range gives NaN bounds and the NaN goes "
+                   "straight into the dict) instead of None")
+def test_welding_series_options_state_no_nan_control():
+    """Issue 5: every reported figure is finite or None, never NaN. On the demo welding job
+    (invented demo data) the series options state their control values as NaN."""
+    m, p = _demo("welding")
+    res = search(m, p)
+    series = [o for o in res.options if o.setting.connection == "series"]
+    assert series
+    bad = non_finite(res.as_dict())
+    assert not bad, bad[:4]
