@@ -626,7 +626,8 @@ def search(machine, profile):
             for end, target in (("low", profile.welding.current_range_a[0]), ("high", profile.welding.current_range_a[1])):
                 d = {"current_a": float(target)}
                 key = "field_current_a" if space.bases[i][3] == "field-current" else "rheostat_ohm"
-                d[key] = float(per[end]["u"][i])
+                uval = float(per[end]["u"][i])
+                d[key] = uval if math.isfinite(uval) else None  # a series machine has no field control
                 d["terminal_voltage_v"] = float(per[end]["v"][i]) if math.isfinite(per[end]["v"][i]) else None
                 d["no_load_voltage_v"] = float(per[end]["vnl"][i]) if math.isfinite(per[end]["vnl"][i]) else None
                 d["reachable"] = bool(per[end]["reachable"][i])
@@ -707,7 +708,8 @@ def search_text(res, top=10):
         if o.current_settings:
             for cs in o.current_settings:
                 key = "field_current_a" if "field_current_a" in cs else "rheostat_ohm"
-                lines.append(f"{'':>6}  at {cs['current_a']:.0f} A: {key.replace('_', ' ')} {cs[key]:.3f}, "
+                ctl = "no field control" if cs[key] is None else f"{key.replace('_', ' ')} {cs[key]:.3f}"
+                lines.append(f"{'':>6}  at {cs['current_a']:.0f} A: {ctl}, "
                              f"arc-side voltage {_short(cs['terminal_voltage_v'])} V, no-load {_short(cs['no_load_voltage_v'])} V")
     if res.options:
         best = res.options[0]
