@@ -97,7 +97,7 @@ def test_emf_equation_tanzania_form_four_4_2():
 
 
 def test_emf_equation_misprint_gives_25_5_v():
-    """Negative test: a public transcription prints 255 V for 4 poles wave,
+    """Negative test: a published copy of the exercise prints 255 V for 4 poles wave,
     Z = 1020, 1500 rpm, 0.5 mWb; the EMF equation gives 25.5 V (255 V would need
     5 mWb). Derived from the published inputs."""
     e = float(emf_from_flux(4, 1020, 2, 1500, 0.5e-3))
