@@ -96,6 +96,23 @@ class Setting:
     speed_rpm: float | None = None
     winding_temperature_c: float | None = None
 
+    def describe(self, with_connection=False):
+        """The setting in plain words, e.g. ``rheostat 30 ohm, 1450 rpm, windings at 75 degC``."""
+        parts = [self.connection] if with_connection else []
+        if self.field_current_a is not None:
+            parts.append(f"field current {self.field_current_a:.4g} A")
+        elif self.rheostat_ohm is not None and self.connection != "series":
+            parts.append(f"rheostat {self.rheostat_ohm:.4g} ohm")
+        if self.series_turns:
+            parts.append(f"{self.series_turns:g} series turns")
+        if self.diverter_ohm is not None:
+            parts.append(f"diverter {self.diverter_ohm:.4g} ohm")
+        if self.speed_rpm is not None:
+            parts.append(f"{self.speed_rpm:g} rpm")
+        if self.winding_temperature_c is not None:
+            parts.append(f"windings at {self.winding_temperature_c:g} degC")
+        return ", ".join(parts)
+
     def as_dict(self):
         return {"connection": self.connection, "rheostat_ohm": self.rheostat_ohm,
                 "field_current_a": self.field_current_a, "series_turns": self.series_turns,

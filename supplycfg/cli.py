@@ -174,7 +174,7 @@ def cmd_curve(args, out):
            "converged": c.converged, "notes": c.notes}
     if args.json:
         return res
-    lines = [f"{m.label or args.machine}: {st.connection}, {_describe_setting(st)}",
+    lines = [f"{m.label or args.machine}: {st.connection}, {st.describe()}",
              f"no-load voltage {_fmt(c.no_load_voltage_v, 'V')}; short-circuit current {_fmt(c.short_circuit_current_a, 'A')}; "
              f"largest load current {_fmt(c.max_load_current_a, 'A')}; regulation at rated current {_fmt(c.regulation_percent, '%', '.3g')}",
              ""]
@@ -196,19 +196,6 @@ def _notes(notes, extrapolated, converged):
     return [""] + out if out else out
 
 
-def _describe_setting(st):
-    parts = []
-    if st.field_current_a is not None:
-        parts.append(f"field current {st.field_current_a:g} A")
-    elif st.rheostat_ohm is not None:
-        parts.append(f"rheostat {st.rheostat_ohm:g} ohm")
-    if st.series_turns:
-        parts.append(f"{st.series_turns:g} series turns")
-    if st.diverter_ohm is not None:
-        parts.append(f"diverter {st.diverter_ohm:g} ohm")
-    parts.append(f"{st.speed_rpm:g} rpm")
-    parts.append(f"windings at {st.winding_temperature_c:g} degC")
-    return ", ".join(parts)
 
 
 def cmd_point(args, out):
@@ -252,7 +239,7 @@ def cmd_point(args, out):
     res = {"setting": st.as_dict(), "load": load.label, "operating_points": pts, "converged": ops.converged}
     if args.json:
         return res
-    lines = [f"{m.label or args.machine}: {st.connection}, {_describe_setting(st)}; load: {load.label}", ""]
+    lines = [f"{m.label or args.machine}: {st.connection}, {st.describe()}; load: {load.label}", ""]
     if pts:
         lines.append(table(pts, ["terminal_voltage_v", "load_current_a", "armature_current_a", "shunt_field_current_a",
                                  "series_field_current_a", "generated_emf_v", "stable", "extrapolated"]))
@@ -295,7 +282,7 @@ def cmd_buildup(args, out):
            "reasons": se.reasons, "extrapolated": se.extrapolated, "converged": se.converged}
     if args.json:
         return res
-    lines = [f"{m.label or args.machine}: shunt field at no load, {_describe_setting(se.setting)}",
+    lines = [f"{m.label or args.machine}: shunt field at no load, {se.setting.describe()}",
              f"field circuit {se.field_circuit_resistance_ohm:.4g} ohm; critical {se.critical_field_resistance_ohm:.4g} ohm at this speed; "
              f"critical speed {se.critical_speed_rpm:.5g} rpm",
              f"builds up from residual: {'yes' if se.builds_up else 'no'}",

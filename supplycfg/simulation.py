@@ -448,19 +448,6 @@ def charge_from_files(machine_path, profile_path, setting=None, names=None, max_
     return run
 
 
-def _setting_words(st):
-    parts = [st.connection]
-    if st.field_current_a is not None:
-        parts.append(f"field current {st.field_current_a:.4g} A")
-    elif st.rheostat_ohm is not None and st.connection != "series":
-        parts.append(f"rheostat {st.rheostat_ohm:.4g} ohm")
-    if st.series_turns:
-        parts.append(f"{st.series_turns:g} series turns")
-    if st.diverter_ohm is not None:
-        parts.append(f"diverter {st.diverter_ohm:.4g} ohm")
-    parts.append(f"{st.speed_rpm:g} rpm")
-    parts.append(f"windings at {st.winding_temperature_c:g} degC")
-    return ", ".join(parts)
 
 
 def _g(v, f=".4g"):
@@ -470,7 +457,7 @@ def _g(v, f=".4g"):
 def charge_text(run):
     """A readable summary of a charge run with a table over time."""
     lines = [f"Charge run: {run.machine_label} on {run.profile_label}",
-             f"setting: {_setting_words(run.setting)}" + (f" ({run.setting_source})" if run.setting_source else ""),
+             f"setting: {run.setting.describe(with_connection=True)}" + (f" ({run.setting_source})" if run.setting_source else ""),
              f"battery: {run.cells} cells, {run.capacity_ah:g} Ah, from {100 * run.start_state_of_charge:.0f} % "
              f"to {100 * run.end_state_of_charge:.0f} % state of charge; charge efficiency {100 * run.charge_efficiency:.0f} %",
              f"stopped after {run.duration_h:.2f} h because {run.stop_reason}"]
