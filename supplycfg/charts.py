@@ -409,7 +409,6 @@ def battery_chart(machine, profile, setting, width=None):
     Operating points: the charge at the start (rest-voltage line) and at the
     end state of charge (charging-voltage model), on each curve.
     """
-    from . import loads as ld
     b = profile.battery
     temps = _temperatures(profile, machine)
     curves, chars = [], []

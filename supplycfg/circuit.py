@@ -331,7 +331,7 @@ def brush_drop(armature_current_a, full_drop_v, ramp_current_a, with_slope=False
     return v
 
 
-def currents_from_voltage(p, v, il, rbr_vb=None):
+def currents_from_voltage(p, v, il):
     """Shunt, armature and branch currents from terminal voltage and load current."""
     kind, branch = p["kind"], p["branch"]
     ish_self = (v + il * p["rbr"] * p["short"]) / p["rf"]
@@ -852,10 +852,7 @@ def external_characteristic(machine, setting, points=400):
 
 def characteristics_of(circ, points=400):
     n = circ.n
-    idx = np.arange(n)
-    p_all = _params(circ, idx)
     # --- explicit connections: parameter Ia from 0 ----------------------
-    curves = [None] * n
     exp = np.flatnonzero(circ.kind != 1)
     if exp.size:
         ia_dense = np.linspace(0, circ.imax, 2001)[None, :]
@@ -875,7 +872,7 @@ def characteristics_of(circ, points=400):
         curves_exp = (exp, ia, has_zero)
     # --- self-excited: walk N(x) = L(Ia) --------------------------------
     slf = np.flatnonzero(circ.kind == 1)
-    seg_info = {}
+    seg_note = {}
     if slf.size:
         xg, ig = _grids(circ)
         ps = _params(circ, slf[:, None])
@@ -885,7 +882,7 @@ def characteristics_of(circ, points=400):
         for r, i in enumerate(slf):
             segs, note = _trace_self_excited(circ, i, xg, ig, ng[r], lg[r])
             if not segs:
-                seg_info[i] = ([], note)
+                seg_note[i] = note
                 continue
             lam_all, seg_id = [], []
             for sid, seg in enumerate(segs):
@@ -923,7 +920,7 @@ def characteristics_of(circ, points=400):
                 ia_, ib_ = _cells(ig, lg[r], seg[4], seg[5], lam_t[msk])
                 pick_cand.append(np.full(msk.sum(), i)); pick_lam.append(lam_t[msk])
                 pick_xa.append(xa_); pick_xb.append(xb_); pick_ia.append(ia_); pick_ib.append(ib_)
-            seg_info[i] = (np.flatnonzero(np.ones(points)), note)
+            seg_note[i] = note
         if pick_cand:
             cand = np.concatenate(pick_cand); lam = np.concatenate(pick_lam)
             pc = _params(circ, cand)
@@ -945,7 +942,7 @@ def characteristics_of(circ, points=400):
             notes[i] = "" if curves_exp[2][r] else "terminal voltage stays above zero up to the searched span"
         else:
             msk = cand == i if slf.size and pick_cand else np.zeros(0, bool)
-            notes[i] = seg_info.get(i, ([], ""))[1]
+            notes[i] = seg_note.get(i, "")
             if np.any(msk):
                 pi = _params(circ, np.full(int(msk.sum()), i))
                 states[i] = machine_state(circ, pi, v_s[msk], il_s[msk])

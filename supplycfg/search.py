@@ -13,7 +13,7 @@ golden-section search. Margins are positive inside a limit.
 import math
 import time
 import warnings
-from dataclasses import dataclass, field, replace
+from dataclasses import dataclass, field
 
 import numpy as np
 
@@ -151,8 +151,6 @@ def candidate_bases(machine, profile):
     bases = []
     for conn in conns:
         control = _controls(machine, conn)
-        if control == "rheostat" and machine.rheostat_max_ohm <= 0 and conn != "series":
-            pass
         if conn in USES_SERIES:
             taps = [t for t in machine.series_taps if t > 0]
         else:
@@ -477,7 +475,6 @@ def _weld_current(space, base_idx, u, corner_idx=None):
     """Welding current on the line at every corner (or one), the machine's normal point."""
     job = space.profile.welding
     sub, rows = _expand(space, base_idx, u, corner_idx)
-    cable = job.cable_resistance_ohm
     r = normal_points(sub, np.zeros(sub.n), np.full(sub.n, sub.imax),
                       v_of=lambda t: _weld_line_v(job, t))
     return r, sub

@@ -55,7 +55,6 @@ from dataclasses import replace
 from pathlib import Path
 
 import numpy as np
-import pytest
 from hypothesis import example, given, note, settings, strategies as st
 from numpy.testing import assert_allclose
 from scipy.integrate import trapezoid
