@@ -80,17 +80,24 @@ def on_machine_demo():
     S.machine_msg = None
 
 
-def on_machine_upload():
-    up = S.get("machine_upload")
+def _read_upload(widget_key, reader, msg_key):
+    """The uploaded file read by ``reader`` and its name, or (None, None) with the message shown."""
+    up = S.get(widget_key)
     if up is None:
-        return
+        return None, None
     try:
-        m = load_machine(up.name, text=_upload_bytes(up))
+        obj = reader(up.name, text=_upload_bytes(up))
     except InputError as e:
-        S.machine_msg = ("error", str(e))
-        return
-    _set_machine(m, f"file:{up.name}")
-    S.machine_msg = None
+        S[msg_key] = ("error", str(e))
+        return None, None
+    S[msg_key] = None
+    return obj, up.name
+
+
+def on_machine_upload():
+    m, name = _read_upload("machine_upload", load_machine, "machine_msg")
+    if m is not None:
+        _set_machine(m, f"file:{name}")
 
 
 def on_kind():
@@ -105,17 +112,10 @@ def on_kind():
 
 
 def on_profile_upload():
-    up = S.get("profile_upload")
-    if up is None:
-        return
-    try:
-        p = load_profile(up.name, text=_upload_bytes(up))
-    except InputError as e:
-        S.profile_msg = ("error", str(e))
-        return
-    _set_profile(p, f"file:{up.name}")
-    S.kind_pick = p.kind
-    S.profile_msg = None
+    p, name = _read_upload("profile_upload", load_profile, "profile_msg")
+    if p is not None:
+        _set_profile(p, f"file:{name}")
+        S.kind_pick = p.kind
 
 
 def machine_form_values():
