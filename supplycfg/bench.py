@@ -65,7 +65,7 @@ def grid_settings(machine, rheostats=50):
 def run_bench(repeat=5):
     """Run every benchmark; returns a JSON-safe dict."""
     from .circuit import Setting, characteristics, external_characteristic
-    from .loads import load_profile
+    from .profile import load_profile
     from .machine import load_machine
     from .search import search
     res = {"supplycfg": __version__, "python": platform.python_version(), "repeat": repeat}

@@ -8,8 +8,6 @@ manufacturers' instructions and licensed practice come first.
 
 from dataclasses import dataclass, field
 
-from . import loads
-
 SEVERITIES = ("stop", "warn", "note")
 #: Share of the critical field resistance or speed kept clear of it (issue rule;
 #: common practice: a machine near critical may not build up after a stop).
@@ -34,102 +32,50 @@ class Caution:
                 "basis": self.basis, "figures": dict(self.figures)}
 
 
-def _c(rule, severity, message, basis, **figures):
+def caution(rule, severity, message, basis, **figures):
+    """A :class:`Caution`; ``figures`` are the values that triggered it."""
     return Caution(rule, severity, message, basis, {k: v for k, v in figures.items()})
 
 
-def option_cautions(machine, profile, setting, f):
-    """Cautions of one setting from its figures ``f`` (a dict of named values).
+def setting_cautions(machine, setting, f):
+    """Cautions of one setting that hold whatever the job, from its figures ``f``.
 
     Keys read (each optional): ``min_net_mmf_a``, ``min_generated_emf_v``,
-    ``max_armature_current_a``, ``duty_equivalent_current_a``,
-    ``critical_resistance_ratio`` (least ``R_crit / R_field`` over the range),
-    ``critical_speed_ratio`` (least ``n / n_crit``), ``end_volts_per_cell``,
-    ``gassing_volts_per_cell``, ``ventilation_m3_per_h``,
-    ``no_load_peak_voltage_v``, ``no_load_limit_v``, ``top_speed_rpm``.
+    ``max_armature_current_a``, ``critical_resistance_ratio`` (least
+    ``R_crit / R_field`` over the range), ``critical_speed_ratio`` (least
+    ``n / n_crit``), ``top_speed_rpm``. The jobs add their own
+    (:mod:`supplycfg.jobs`).
     """
     out = []
     conn = setting.connection
-    turns = setting.series_turns or 0.0
-    kind = profile.kind
-    if kind == "battery":
-        if conn == "series" or (conn.endswith("cumulative") and turns > 0):
-            out.append(_c("battery-series-back-current", "stop",
-                          "Series turns in circuit with a battery: when the machine slows, the battery drives current back "
-                          "through the series field, which weakens or reverses the field and can reverse the machine's "
-                          "polarity onto the battery. Use a shunt or separately excited connection with no series turns.",
-                          "textbook rule for charging generators (Theraja Vol II ch. 28, from memory); common practice",
-                          connection=conn, series_turns=turns))
-        out.append(_c("battery-reverse-current", "warn",
-                      "Fit a reverse-current cut-out or a blocking diode: if the machine slows or stops, the battery "
-                      "drives it as a motor and discharges into it.",
-                      "common practice for DC charging sets (reverse-current relay)"))
-        out.append(_c("battery-polarity", "note",
-                      "Check the machine's polarity with a voltmeter before closing onto the battery: a self-excited "
-                      "machine can build up reversed.", "common practice"))
-        ev, gv = f.get("end_volts_per_cell"), f.get("gassing_volts_per_cell")
-        if ev is not None and gv is not None and ev > gv:
-            q = f.get("ventilation_m3_per_h")
-            out.append(_c("battery-gassing", "warn",
-                          f"The charge finishes at {ev:.3f} V per cell, above the gassing voltage {gv:.2f} V: the cells "
-                          f"give off hydrogen and oxygen. Ventilate the battery room (at least {q:.3g} m3/h by the "
-                          f"standard's formula), keep flames and sparks away, and do not break battery connections under load.",
-                          "IEC 62485-2 ventilation formula Q = 0.05 n Igas C 1e-3 (seen); gassing voltage from the chemistry table",
-                          end_volts_per_cell=ev, gassing_volts_per_cell=gv, ventilation_m3_per_h=q))
-    if kind == "welding":
-        pk, lim = f.get("no_load_peak_voltage_v"), f.get("no_load_limit_v")
-        if pk is not None and lim is not None and pk > lim:
-            out.append(_c("welding-no-load-voltage", "stop",
-                          f"No-load voltage reaches {pk:.1f} V peak, above the {lim:.0f} V limit: a welder touching the "
-                          "electrode and the work can get a dangerous shock.",
-                          "IEC 60974-1 rated no-load voltage, DC 113 V peak (seen); lower limits as set in the profile",
-                          no_load_peak_voltage_v=pk, no_load_limit_v=lim))
-        mean, mean_lim = f.get("max_no_load_voltage_v"), f.get("no_load_mean_limit_v")
-        if mean is not None and mean_lim is not None and mean > mean_lim:
-            out.append(_c("welding-no-load-local-limit", "stop",
-                          f"No-load voltage {mean:.1f} V is above the {mean_lim:.0f} V limit set for this job.",
-                          "the profile's max_no_load_voltage_v (a local rule, e.g. US 29 CFR 1910.254(b)(3): 100 V DC for manual welding, seen)",
-                          max_no_load_voltage_v=mean, limit_v=mean_lim))
-        de, rated = f.get("duty_equivalent_current_a"), machine.rated_armature_current_a
-        if de is not None and de > rated:
-            out.append(_c("welding-duty-cycle", "warn",
-                          f"At the top current and the stated duty cycle the armature heats like {de:.0f} A continuous, "
-                          f"above its {rated:.0f} A rating: shorten the duty cycle or lower the current. I*sqrt(duty) is "
-                          "an upper bound; the maker's duty rating comes first.",
-                          "duty cycle over a 10-minute period (IEC 60974-1, seen); I*sqrt(duty) equivalence (rating practice, from memory)",
-                          duty_equivalent_current_a=de, rated_armature_current_a=rated))
-        if profile.welding.environment == "increased-shock-hazard":
-            out.append(_c("welding-increased-hazard", "note",
-                          loads.environment("increased-shock-hazard").precautions.capitalize() + ".",
-                          "IEC 60974-1 increased hazard of electric shock (seen); measures are common practice"))
     mmf = f.get("min_net_mmf_a")
     if mmf is not None and mmf < 0:
-        out.append(_c("reversed-mmf", "warn",
+        out.append(caution("reversed-mmf", "warn",
                       "At some operating point the series and armature mmf overcome the shunt field (net mmf below zero): "
                       "the residual magnetism may be wiped out or reversed, and the machine may not build up next time.",
                       "equivalent-field-current method (design note); common practice", min_net_mmf_a=mmf))
     emf = f.get("min_generated_emf_v")
     if emf is not None and emf < 0:
-        out.append(_c("reversed-polarity", "stop",
+        out.append(caution("reversed-polarity", "stop",
                       "At some operating point the generated EMF is reversed: the machine's polarity has turned over.",
                       "circuit model (design note)", min_generated_emf_v=emf))
     ia = f.get("max_armature_current_a")
     if ia is not None:
         if ia > machine.peak_current_a:
-            out.append(_c("armature-peak", "stop",
+            out.append(caution("armature-peak", "stop",
                           f"Armature current reaches {ia:.0f} A, above the machine's short-time limit "
                           f"{machine.peak_current_a:.0f} A: commutation fails (sparking, flashover).",
                           "machine file peak_armature_current_a (default 2 x rated, common practice)",
                           max_armature_current_a=ia, peak_armature_current_a=machine.peak_current_a))
         elif ia > machine.rated_armature_current_a * (1 + 1e-9):
-            out.append(_c("armature-rating", "warn",
+            out.append(caution("armature-rating", "warn",
                           f"Armature current reaches {ia:.0f} A, above its continuous rating "
                           f"{machine.rated_armature_current_a:.0f} A: limit the time at this load.",
                           "machine rating plate (continuous rating)", max_armature_current_a=ia))
     rr, sr = f.get("critical_resistance_ratio"), f.get("critical_speed_ratio")
     near = [v for v in (rr, sr) if v is not None and v < 1 + CRITICAL_CLEARANCE]
     if near:
-        out.append(_c("near-critical", "warn",
+        out.append(caution("near-critical", "warn",
                       "The field circuit is within 10 % of its critical resistance (or the speed within 10 % of critical) "
                       "somewhere in the speed and temperature range: the machine may fail to build up, or collapse on load.",
                       "self-excitation conditions (Theraja Vol II ch. 28; Kosow ch. 3); 10 % clearance is common practice",
@@ -137,13 +83,13 @@ def option_cautions(machine, profile, setting, f):
     top = f.get("top_speed_rpm")
     if top is not None and top > machine.rated_speed_rpm * (1 + 1e-9):
         sev = "stop" if top > OVERSPEED_STOP_FACTOR * machine.rated_speed_rpm else "warn"
-        out.append(_c("overspeed", sev,
+        out.append(caution("overspeed", sev,
                       f"Drive speed {top:.0f} rpm is above the machine's rated {machine.rated_speed_rpm:.0f} rpm: "
                       "commutator and banding are stressed and the voltage rises with speed.",
                       "rating plate; IEC 60034-1 overspeed test is 1.2 x rated for 2 min, a test not a duty (from memory)",
                       top_speed_rpm=top))
     if conn != "series":
-        out.append(_c("field-switching", "warn",
+        out.append(caution("field-switching", "warn",
                       "Do not open the shunt field circuit while it carries current: its inductance drives a voltage spike "
                       "across the switch and the insulation. Use a field switch with a discharge resistor (or a "
                       "freewheel path) and reduce the field before opening.",
@@ -151,25 +97,3 @@ def option_cautions(machine, profile, setting, f):
     return out
 
 
-def profile_cautions(machine, profile):
-    """Cautions of the job as a whole, whatever the setting."""
-    out = []
-    if profile.kind == "battery":
-        b = profile.battery
-        chem = loads.chemistry(b.chemistry)
-        q = float(loads.ventilation_airflow_m3_per_h(b.cells, b.capacity_ah, chem.gas_current_boost_ma_per_ah))
-        out.append(_c("battery-ventilation", "warn",
-                      f"Charging releases hydrogen. Ventilate the battery room for boost charging: at least {q:.3g} m3/h "
-                      f"(natural ventilation opening about {float(loads.ventilation_opening_cm2(q)):.0f} cm2). No smoking, "
-                      "flames or sparks near the cells; wear eye protection.",
-                      "IEC 62485-2 ventilation formula (seen)", ventilation_m3_per_h=q))
-    if profile.kind == "welding":
-        out.append(_c("welding-no-load-rule", "note",
-                      "The open-circuit voltage of a DC welding source must not exceed 113 V peak in any environment; "
-                      "local rules may set less (e.g. 100 V DC for manual welding in the US).",
-                      "IEC 60974-1 (seen); US 29 CFR 1910.254(b)(3) (seen)"))
-    if profile.kind == "booster":
-        out.append(_c("booster-series", "note",
-                      "A series booster carries the whole feeder current: check its rating and that the feeder "
-                      "protection covers it; never open the series circuit under load.", "common practice"))
-    return out

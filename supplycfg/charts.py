@@ -352,7 +352,7 @@ def battery_lines(profile, i_top):
         ``on_charge(soc)`` gives the bank's voltage on charge at the machine
         ``V(I)`` (the chemistry's charging-voltage model plus cable).
     """
-    from . import loads as ld
+    from .jobs import battery as ld
     b = profile.battery
     chem = ld.chemistry(b.chemistry)
     s0, s1 = b.state_of_charge
@@ -441,7 +441,7 @@ def battery_chart(machine, profile, setting, width=None):
 
 def welding_load_line(profile, i_top):
     """The process's conventional load line, seen at the machine (plus cable drop)."""
-    from . import loads as ld
+    from .jobs import welding as ld
     w = profile.welding
     cur = np.linspace(0.0, i_top, 40)
     v = ld.conventional_load_voltage(w.process, cur) + cur * w.cable_resistance_ohm
@@ -461,7 +461,7 @@ def _end_settings(option):
 
 
 def _weld_line_load(profile):
-    from . import loads as ld
+    from .jobs import welding as ld
     w = profile.welding
     proc = ld.welding_process(w.process)
     return Load.line(proc.load_line_offset_v, proc.load_line_slope_v_per_a + w.cable_resistance_ohm)

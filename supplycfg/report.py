@@ -260,7 +260,7 @@ def status_text(option, total=None):
 
 def job_rows(profile):
     """``[(key, value)]`` of the job table, values as written in the profile."""
-    from .loads import profile_to_dict
+    from .profile import profile_to_dict
     d = profile_to_dict(profile)
     rows = []
     for table in ("drive", profile.kind):
@@ -564,7 +564,7 @@ def sheet_from_files(machine_path, profile_path, output_path, option_rank=None, 
     -------
     Path
     """
-    from .loads import load_profile
+    from .profile import load_profile
     from .machine import load_machine
     from .search import search
     out = Path(output_path)

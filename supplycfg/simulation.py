@@ -33,8 +33,10 @@ from dataclasses import dataclass, field
 import numpy as np
 from scipy.integrate import solve_ivp
 
-from . import STANDING_NOTICE, loads
-from .cautions import option_cautions, profile_cautions
+from . import STANDING_NOTICE
+from .jobs import battery
+from .jobs import option_cautions, profile_cautions
+from .profile import load_profile
 from .circuit import _params, build_circuit, check_setting, machine_state, normal_points
 from .errors import InputError
 
@@ -156,14 +158,14 @@ def charging_line_voltage_v(job, soc, current_a):
 
     References
     ----------
-    Charging-voltage model :func:`supplycfg.loads.charging_voltage_per_cell`
+    Charging-voltage model :func:`supplycfg.jobs.battery.charging_voltage_per_cell`
     (Shepherd-type polarisation, from memory).
     """
-    chem = loads.chemistry(job.chemistry)
+    chem = battery.chemistry(job.chemistry)
     i = np.asarray(current_a, float)
     ic = np.maximum(i, 0.0)
     cap = job.capacity_ah
-    cell = loads.charging_voltage_per_cell(chem, soc, ic / cap, job.temperature_c,
+    cell = battery.charging_voltage_per_cell(chem, soc, ic / cap, job.temperature_c,
                                            job.open_circuit_voltage_per_cell_v) - ic * chem.resistance_ohm_ah / cap
     return job.cells * cell + i * (job.internal_resistance_ohm + job.cable_resistance_ohm)
 
@@ -246,7 +248,7 @@ def charge_run(machine, profile, setting, max_hours=None):
     References
     ----------
     ``scipy.integrate.solve_ivp`` (RK45 with event location); charge limit
-    :func:`supplycfg.loads.charge_voltage_limit_per_cell` (IEC 62485-2 boost
+    :func:`supplycfg.jobs.battery.charge_voltage_limit_per_cell` (IEC 62485-2 boost
     voltages, seen).
     """
     job = _battery_job(profile)
@@ -256,10 +258,10 @@ def charge_run(machine, profile, setting, max_hours=None):
     cap_h = float(cap_h)
     circ = build_circuit(machine, [setting])
     st = circ.settings[0]
-    chem = loads.chemistry(job.chemistry)
+    chem = battery.chemistry(job.chemistry)
     cap, cells, eff = job.capacity_ah, job.cells, chem.charge_efficiency
     soc0, soc1 = (float(v) for v in job.state_of_charge)
-    limit = float(loads.charge_voltage_limit_per_cell(chem, job.temperature_c, job.charge_voltage_per_cell_v))
+    limit = float(battery.charge_voltage_limit_per_cell(chem, job.temperature_c, job.charge_voltage_per_cell_v))
     floor = CURRENT_FLOOR_PER_H * cap
     rcab = job.cable_resistance_ohm
     notes = []
@@ -365,7 +367,7 @@ def charge_run(machine, profile, setting, max_hours=None):
 
     # cautions of this setting on this run
     fig = {"end_volts_per_cell": _nanmax(vpc), "gassing_volts_per_cell": gas,
-           "ventilation_m3_per_h": float(loads.ventilation_airflow_m3_per_h(cells, cap, chem.gas_current_boost_ma_per_ah)),
+           "ventilation_m3_per_h": float(battery.ventilation_airflow_m3_per_h(cells, cap, chem.gas_current_boost_ma_per_ah)),
            "max_armature_current_a": _nanmax(np.abs(pts["armature_current_a"])),
            "min_net_mmf_a": _nanmin(pts["x"]), "min_generated_emf_v": _nanmin(pts["generated_emf_v"]),
            "top_speed_rpm": st.speed_rpm}
@@ -425,7 +427,7 @@ def charge_from_files(machine_path, profile_path, setting=None, names=None, max_
     from .machine import load_machine
     from .search import search
     m = load_machine(machine_path)
-    p = loads.load_profile(profile_path)
+    p = load_profile(profile_path)
     _battery_job(p)
     if setting is None:
         res = search(m, p)

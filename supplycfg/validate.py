@@ -237,3 +237,46 @@ def _range(v, source, key, low, high, low_open, high_open, what):
     bad_high = high is not None and (v >= high if high_open else v > high)
     if bad_low or bad_high:
         raise InputError(source, key, f"is {v:g}; allowed: {what} {_bounds(low, high, low_open, high_open)}")
+
+
+# ---------------------------------------------------------------------------
+# named tables and the bounds every reader shares
+# ---------------------------------------------------------------------------
+
+#: Largest and smallest values the readers accept: far outside any real job,
+#: and small or large enough that no accepted value overflows the solver
+#: (1e-300 passes "> 0" but overflows the lamp laws).
+MAX_SPEED_RPM = 100_000.0
+MAX_VOLTAGE_V = 100_000.0
+MAX_CURRENT_A = 1e6
+MAX_OHM = 1e4
+MIN_SPEED_RPM = 1.0
+MIN_VOLTAGE_V = 0.1
+
+
+def named_entry(table, name, what):
+    """Entry ``name`` of a named table, or an InputError listing the valid names."""
+    if isinstance(name, str) and name in table:
+        return table[name]
+    raise InputError(what, "name", f"is {name!r}; allowed: {', '.join(table)}")
+
+
+def table_entry(cls, name, spec):
+    """A named-table entry from ``{field: (value, source)}``; the sources go to ``basis``."""
+    values = {k: v for k, (v, _) in spec.items()}
+    basis = {k: s for k, (_, s) in spec.items()}
+    return cls(name=name, basis=basis, **values)
+
+
+def read_pair(t, k, source, *, low=None, low_open=False, high=None, strict=False, names=("low", "high"),
+              default=None, required=True):
+    """Read ``[a, b]`` from table ``t`` with ``a <= b`` (``a < b`` when strict)."""
+    if not required and not t.has(k):
+        t.raw(k, None)
+        return default
+    v = t.numbers(k, low=low, low_open=low_open, high=high, min_len=2, max_len=2)
+    if v[0] > v[1] or (strict and v[0] == v[1]):
+        rel = "<" if strict else "<="
+        raise InputError(source, t.key(k), f"is [{v[0]:g}, {v[1]:g}]; allowed: [{names[0]}, {names[1]}] "
+                                           f"with {names[0]} {rel} {names[1]}")
+    return v

@@ -9,7 +9,7 @@ import pytest
 from supplycfg import STANDING_NOTICE
 from supplycfg.errors import InputError
 from supplycfg.files import dumps_toml
-from supplycfg.loads import load_profile, profile_from_dict
+from supplycfg.profile import load_profile, profile_from_dict
 from supplycfg.machine import load_machine, machine_from_dict
 
 pytest.importorskip("streamlit.testing.v1")
@@ -246,7 +246,7 @@ def test_save_into_a_folder_asks_before_overwriting(tmp_path):
 
 def test_form_fields_give_back_each_demo_unchanged():
     """What the forms show for a file, applied untouched, is the same machine and job."""
-    from supplycfg.loads import profile_to_dict
+    from supplycfg.profile import profile_to_dict
     from supplycfg.machine import machine_to_dict
     from supplycfg.page import fields
     for path in sorted((DEMO / "machines").glob("*.toml")):

@@ -19,7 +19,7 @@ from hypothesis import given, settings, strategies as st
 
 from supplycfg import cli
 from supplycfg.errors import InputError
-from supplycfg.loads import load_profile
+from supplycfg.profile import load_profile
 from supplycfg.machine import load_machine
 from supplycfg.validate import MAX_FILE_BYTES
 

@@ -9,7 +9,9 @@ from numpy.testing import assert_allclose
 
 from supplycfg import charts
 from supplycfg.circuit import Setting, check_setting, external_characteristic
-from supplycfg.loads import conventional_load_voltage, load_profile, open_circuit_voltage_per_cell
+from supplycfg.jobs.welding import conventional_load_voltage
+from supplycfg.profile import load_profile
+from supplycfg.jobs.battery import open_circuit_voltage_per_cell
 from supplycfg.machine import load_machine
 from supplycfg.magnetisation import OpenCircuitCurve, copper_resistance_factor
 

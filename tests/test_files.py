@@ -17,7 +17,7 @@ from hypothesis import given, settings, strategies as st
 from supplycfg import files
 from supplycfg.errors import InputError
 from supplycfg.files import dumps_toml, write_atomic
-from supplycfg.loads import load_profile, profile_to_dict
+from supplycfg.profile import load_profile, profile_to_dict
 from supplycfg.machine import load_machine, machine_to_dict
 
 ROOT = Path(__file__).resolve().parent.parent

@@ -8,7 +8,7 @@ import pytest
 from supplycfg import STANDING_NOTICE, __version__, report
 from supplycfg.cli import main as cli_main
 from supplycfg.errors import InputError
-from supplycfg.loads import load_profile
+from supplycfg.profile import load_profile
 from supplycfg.machine import load_machine
 from supplycfg.search import search
 

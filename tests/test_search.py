@@ -25,12 +25,13 @@ import numpy as np
 import pytest
 from numpy.testing import assert_allclose
 
-from supplycfg import loads
-from supplycfg.cautions import CRITICAL_CLEARANCE, option_cautions, profile_cautions
+from supplycfg.jobs import battery, welding
+from supplycfg.cautions import CRITICAL_CLEARANCE
+from supplycfg.jobs import option_cautions, profile_cautions
 from supplycfg.circuit import (USES_SERIES, Load, Setting, build_circuit, no_load_voltages, normal_points,
                                operating_points)
 from supplycfg.cli import main
-from supplycfg.loads import load_profile
+from supplycfg.profile import load_profile
 from supplycfg.machine import load_machine
 from supplycfg.search import candidate_bases, search
 
@@ -77,9 +78,9 @@ def normal(machine, setting, load):
 
 def bank_curve_v(job, soc, current_a):
     """Machine-terminal voltage on the charging curve [V]: ``n [Vc(s, I/C) - I Rc/C] + I (Rb + Rcable)``."""
-    chem = loads.chemistry(job.chemistry)
+    chem = battery.chemistry(job.chemistry)
     i = np.maximum(np.asarray(current_a, float), 0.0)
-    cell = loads.charging_voltage_per_cell(chem, soc, i / job.capacity_ah, job.temperature_c,
+    cell = battery.charging_voltage_per_cell(chem, soc, i / job.capacity_ah, job.temperature_c,
                                            job.open_circuit_voltage_per_cell_v) - i * chem.resistance_ohm_ah / job.capacity_ah
     return job.cells * cell + np.asarray(current_a, float) * (job.internal_resistance_ohm + job.cable_resistance_ohm)
 
@@ -124,10 +125,10 @@ def test_battery_options_rechecked():
     bank's open-circuit voltage; armature current within rating; at every corner."""
     m, p, res = demo("battery")
     b = p.battery
-    chem = loads.chemistry(b.chemistry)
+    chem = battery.chemistry(b.chemistry)
     soc0, soc1 = b.state_of_charge
-    e0 = b.cells * float(loads.open_circuit_voltage_per_cell(chem, soc0, b.open_circuit_voltage_per_cell_v))
-    e1 = b.cells * float(loads.open_circuit_voltage_per_cell(chem, soc1, b.open_circuit_voltage_per_cell_v))
+    e0 = b.cells * float(battery.open_circuit_voltage_per_cell(chem, soc0, b.open_circuit_voltage_per_cell_v))
+    e1 = b.cells * float(battery.open_circuit_voltage_per_cell(chem, soc1, b.open_circuit_voltage_per_cell_v))
     limit = 2.40 + chem.temperature_coefficient_v_per_c * (b.temperature_c - 25.0)
     r = b.internal_resistance_ohm + b.cable_resistance_ohm
     for o in res.feasible:
@@ -253,13 +254,13 @@ def _battery_brute_force(machine, profile, values=400):
     at most the maximum, the lower of line and charging curve at least the minimum; end volts
     per cell and C/100 floor; no-load 5 % above the full bank; armature rating; stop rules."""
     b = profile.battery
-    chem = loads.chemistry(b.chemistry)
+    chem = battery.chemistry(b.chemistry)
     soc0, soc1 = b.state_of_charge
     ocv = b.open_circuit_voltage_per_cell_v
-    e0 = b.cells * float(loads.open_circuit_voltage_per_cell(chem, soc0, ocv))
-    e1 = b.cells * float(loads.open_circuit_voltage_per_cell(chem, soc1, ocv))
+    e0 = b.cells * float(battery.open_circuit_voltage_per_cell(chem, soc0, ocv))
+    e1 = b.cells * float(battery.open_circuit_voltage_per_cell(chem, soc1, ocv))
     r = b.internal_resistance_ohm + b.cable_resistance_ohm
-    limit = float(loads.charge_voltage_limit_per_cell(chem, b.temperature_c, b.charge_voltage_per_cell_v))
+    limit = float(battery.charge_voltage_limit_per_cell(chem, b.temperature_c, b.charge_voltage_per_cell_v))
     cs = corners(machine, profile)
     bases = candidate_bases(machine, profile)
     settings, owner = [], []
@@ -373,9 +374,9 @@ def test_caution_gassing_with_ventilation():
     Q = 0.05 n Igas C 1e-3: 60 cells, 200 Ah, boost 20 mA/Ah -> 12 m3/h; 110 cells, 100 Ah -> 11 m3/h
     (derived from the standard's formula, seen)."""
     m, p, _ = demo("battery")
-    q = float(loads.ventilation_airflow_m3_per_h(60, 200, 20))
+    q = float(battery.ventilation_airflow_m3_per_h(60, 200, 20))
     assert_allclose(q, 12.0, rtol=1e-12)
-    assert_allclose(float(loads.ventilation_airflow_m3_per_h(110, 100, 20)), 11.0, rtol=1e-12)
+    assert_allclose(float(battery.ventilation_airflow_m3_per_h(110, 100, 20)), 11.0, rtol=1e-12)
     figs = {"end_volts_per_cell": 2.45, "gassing_volts_per_cell": 2.37, "ventilation_m3_per_h": q}
     c = _rules(m, p, Setting("shunt"), figs)["battery-gassing"]
     assert c.severity == "warn" and "IEC 62485-2" in c.basis and "12" in c.message
@@ -405,7 +406,7 @@ def test_caution_welding_duty_cycle():
     m, p, _ = demo("welding")
     st = Setting("separate-differential", series_turns=3, rheostat_ohm=20)
     assert _rules(m, p, st, {"duty_equivalent_current_a": 250.0})["welding-duty-cycle"].severity == "warn"
-    de = float(loads.thermal_equivalent_current(180.0, 0.6))
+    de = float(welding.thermal_equivalent_current(180.0, 0.6))
     assert "welding-duty-cycle" not in _rules(m, p, st, {"duty_equivalent_current_a": de})
 
 

@@ -60,11 +60,11 @@ from numpy.testing import assert_allclose
 from scipy.integrate import trapezoid
 from scipy.optimize import brentq
 
-from supplycfg import loads
+from supplycfg.jobs import battery, lighting, welding
 from supplycfg.circuit import Load, build_circuit, machine_state, operating_points
 from supplycfg.errors import InputError
 from supplycfg.files import dumps_json
-from supplycfg.loads import load_profile, profile_from_dict
+from supplycfg.profile import load_profile, profile_from_dict
 from supplycfg.machine import load_machine, machine_from_dict
 from supplycfg.search import search
 from supplycfg.simulation import STOP_CODES, charge_run
@@ -188,8 +188,8 @@ def drive_table(draw, m):
 @st.composite
 def battery_table(draw, m):
     vr, ir = m["machine"]["rated_voltage_v"], m["machine"]["rated_armature_current_a"]
-    name = draw(st.sampled_from(sorted(loads.CHEMISTRIES)))
-    chem = loads.CHEMISTRIES[name]
+    name = draw(st.sampled_from(sorted(battery.CHEMISTRIES)))
+    chem = battery.CHEMISTRIES[name]
     cells = max(1, int(round(vr * draw(uniform(0.5, 1.0)) / chem.end_of_charge_voltage_v)))
     imax = ir * draw(uniform(0.1, 1.2))
     soc0 = draw(uniform(0.0, 0.6))
@@ -211,9 +211,9 @@ def battery_table(draw, m):
 def welding_table(draw, m):
     ir = m["machine"]["rated_armature_current_a"]
     hi = ir * draw(uniform(0.5, 1.0))
-    w = {"process": draw(st.sampled_from(sorted(loads.WELDING_PROCESSES))),
+    w = {"process": draw(st.sampled_from(sorted(welding.WELDING_PROCESSES))),
          "current_range_a": [hi * draw(st.sampled_from([uniform(0.2, 0.8), st.just(1.0)]).flatmap(lambda s: s)), hi],
-         "environment": draw(st.sampled_from(sorted(loads.ENVIRONMENTS))),
+         "environment": draw(st.sampled_from(sorted(welding.ENVIRONMENTS))),
          "duty_cycle_percent": draw(uniform(20.0, 100.0)),
          "cable_resistance_ohm": draw(st.sampled_from([0.0, 1.0])) * 4.0 / ir * draw(uniform(0.2, 1.0))}
     if draw(st.booleans()):
@@ -228,7 +228,7 @@ def lighting_table(draw, m):
             "load_current_a": sorted([ir * draw(uniform(0.0, 0.3)), ir * draw(uniform(0.0, 1.1))]),
             "tolerance_percent": draw(uniform(2.0, 10.0)),
             "feeder_resistance_ohm": vr / ir * draw(st.sampled_from([0.0, 0.01, 0.05])) * draw(uniform(0.5, 1.0)),
-            "lamp": draw(st.sampled_from(sorted(loads.LAMPS)))}
+            "lamp": draw(st.sampled_from(sorted(lighting.LAMPS)))}
 
 
 @st.composite
@@ -344,10 +344,10 @@ def within(value, lo=-math.inf, hi=math.inf):
 
 def bank_curve_v(job, soc, current_a):
     """Machine-terminal voltage on the charging curve [V], ``n [Vc(s, I/C) - I Rc/C] + I (Rb + Rcable)``."""
-    chem = loads.chemistry(job.chemistry)
+    chem = battery.chemistry(job.chemistry)
     i = np.asarray(current_a, float)
     ic = np.maximum(i, 0.0)
-    cell = loads.charging_voltage_per_cell(chem, soc, ic / job.capacity_ah, job.temperature_c,
+    cell = battery.charging_voltage_per_cell(chem, soc, ic / job.capacity_ah, job.temperature_c,
                                            job.open_circuit_voltage_per_cell_v) - ic * chem.resistance_ohm_ah / job.capacity_ah
     return job.cells * cell + i * (job.internal_resistance_ohm + job.cable_resistance_ohm)
 
@@ -390,11 +390,11 @@ def figure_is(value, expected, scale):
 
 def recheck_battery(m, p, res, inner):
     b = p.battery
-    chem = loads.chemistry(b.chemistry)
+    chem = battery.chemistry(b.chemistry)
     soc0, soc1 = b.state_of_charge
     ocv = b.open_circuit_voltage_per_cell_v
-    e0 = b.cells * float(loads.open_circuit_voltage_per_cell(chem, soc0, ocv))
-    e1 = b.cells * float(loads.open_circuit_voltage_per_cell(chem, soc1, ocv))
+    e0 = b.cells * float(battery.open_circuit_voltage_per_cell(chem, soc0, ocv))
+    e1 = b.cells * float(battery.open_circuit_voltage_per_cell(chem, soc1, ocv))
     r = b.internal_resistance_ohm + b.cable_resistance_ohm
     limit = b.charge_voltage_per_cell_v + chem.temperature_coefficient_v_per_c * (b.temperature_c - 25.0)
     span = 10 * m.rated_armature_current_a      # the engine's searched span, 10 x rated
@@ -484,7 +484,7 @@ def recheck_booster(m, p, res, inner):
 
 def weld_line(job, shift_v=0.0):
     """The process's conventional load line plus the cable (below the 600 A knee), raised by ``shift_v``."""
-    proc = loads.welding_process(job.process)
+    proc = welding.welding_process(job.process)
     return Load.line(proc.load_line_offset_v + shift_v, proc.load_line_slope_v_per_a + job.cable_resistance_ohm), proc
 
 
@@ -496,7 +496,7 @@ SLOPE_SLACK = 5e-3
 def recheck_welding(m, p, res, inner):
     j = p.welding
     line, proc = weld_line(j)
-    peak_limit = loads.no_load_voltage_limit(loads.environment(j.environment).dc_limit).voltage_v
+    peak_limit = welding.no_load_voltage_limit(welding.environment(j.environment).dc_limit).voltage_v
     cs_ = corners(m, p)
     worst = max(cs_, key=lambda c: (c[0], -c[1]))     # top speed, coldest windings
     for o in res.feasible:
@@ -518,9 +518,9 @@ def recheck_welding(m, p, res, inner):
             p1, p2 = (normal(m, own, weld_line(j, sh)[0]) for sh in (-dv, dv))
             slope = (p2["terminal_voltage_v"] - p1["terminal_voltage_v"]) / (p2["load_current_a"] - p1["load_current_a"])
             note(f"slope {slope} V/A")
-            assert float(loads.characteristic_margin_v_per_a(proc, slope)) >= -SLOPE_SLACK
+            assert float(welding.characteristic_margin_v_per_a(proc, slope)) >= -SLOPE_SLACK
             vnl = normal(m, at(own, *worst), Load.constant_current(0.0))["terminal_voltage_v"]
-            assert within(float(loads.no_load_peak_voltage(vnl)), hi=peak_limit)
+            assert within(float(welding.no_load_peak_voltage(vnl)), hi=peak_limit)
             if j.max_no_load_voltage_v is not None:
                 assert within(vnl, hi=j.max_no_load_voltage_v)
             vnls.append(vnl)
@@ -699,7 +699,7 @@ def test_charge_run_with_the_best_option(case, max_hours):
         return
     b = p.battery
     soc0, soc1 = b.state_of_charge
-    eff = loads.chemistry(b.chemistry).charge_efficiency
+    eff = battery.chemistry(b.chemistry).charge_efficiency
     note(f"{run.stop}: {run.stop_reason}; {run.duration_h} h, soc {run.state_of_charge[[0, -1]]}")
     assert run.stop in STOP_CODES
     assert isinstance(run.stop_reason, str) and run.stop_reason.strip()

@@ -16,11 +16,11 @@ import numpy as np
 import pytest
 from numpy.testing import assert_allclose
 
-from supplycfg import loads
+from supplycfg.jobs import battery
 from supplycfg.circuit import Load, Setting, operating_points
 from supplycfg.cli import main
 from supplycfg.errors import InputError
-from supplycfg.loads import load_profile
+from supplycfg.profile import load_profile
 from supplycfg.machine import load_machine
 from supplycfg.search import search
 from supplycfg.simulation import charge_from_files, charge_run, charge_text, charging_current_a
@@ -53,9 +53,9 @@ def full_run(machine, profile, best):
 def bank_curve_v(job, soc, current_a):
     """Machine-terminal voltage on the bank's charging curve [V], written out from the chemistry model:
     ``n [Vc(s, I/C) - I Rc/C] + I (Rb + Rcable)`` (the search's end-of-charge curve)."""
-    chem = loads.chemistry(job.chemistry)
+    chem = battery.chemistry(job.chemistry)
     i = max(float(current_a), 0.0)
-    cell = float(loads.charging_voltage_per_cell(chem, soc, i / job.capacity_ah, job.temperature_c,
+    cell = float(battery.charging_voltage_per_cell(chem, soc, i / job.capacity_ah, job.temperature_c,
                                                  job.open_circuit_voltage_per_cell_v))
     cell -= i * chem.resistance_ohm_ah / job.capacity_ah
     return job.cells * cell + float(current_a) * (job.internal_resistance_ohm + job.cable_resistance_ohm)
@@ -84,7 +84,7 @@ def test_charge_balance(full_run, profile):
     0.90 for vented lead-acid, common practice)."""
     r, b = full_run, profile.battery
     assert r.stop == "end-soc"
-    eff = loads.chemistry(b.chemistry).charge_efficiency
+    eff = battery.chemistry(b.chemistry).charge_efficiency
     want = (r.state_of_charge[-1] - r.state_of_charge[0]) * b.capacity_ah / eff
     assert_allclose(np.trapezoid(r.current_a, r.time_h), want, rtol=5e-3)
     assert_allclose(r.ah[-1], want, rtol=5e-3)

@@ -10,7 +10,9 @@ import re
 from pathlib import Path
 
 from ..errors import InputError
-from ..loads import CHEMISTRIES, ENVIRONMENTS, LAMPS, WELDING_PROCESSES
+from ..jobs.battery import CHEMISTRIES
+from ..jobs.lighting import LAMPS
+from ..jobs.welding import ENVIRONMENTS, WELDING_PROCESSES
 
 #: Where the form's messages say the value came from.
 FORM = "form"

@@ -2,7 +2,7 @@
 
 import streamlit as st
 
-from ..loads import KINDS
+from ..jobs import KINDS
 from . import fields, state
 
 S = st.session_state

@@ -11,7 +11,7 @@ import streamlit as st
 
 from ..errors import InputError
 from ..files import dumps_toml
-from ..loads import load_profile, profile_from_dict, profile_to_dict
+from ..profile import load_profile, profile_from_dict, profile_to_dict
 from ..machine import load_machine, machine_from_dict, machine_to_dict
 from ..validate import MAX_FILE_BYTES
 from . import fields

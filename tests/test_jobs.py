@@ -7,7 +7,8 @@ import numpy as np
 import pytest
 from numpy.testing import assert_allclose
 
-from supplycfg import loads as L
+from supplycfg.jobs import battery, lighting, welding
+from supplycfg import profile
 from supplycfg.errors import InputError
 from supplycfg.validate import read_toml
 
@@ -26,7 +27,7 @@ DEMO_FILES = sorted(PROFILES.glob("*.toml"))
 ])
 def test_float_and_boost_voltages_iec_62485_2(name, float_v, boost_v):
     """Per-cell float and boost voltages: IEC 62485-2 table (seen)."""
-    c = L.chemistry(name)
+    c = battery.chemistry(name)
     assert_allclose([c.float_voltage_v, c.boost_voltage_v], [float_v, boost_v], rtol=0, atol=1e-12)
 
 
@@ -37,7 +38,7 @@ def test_float_and_boost_voltages_iec_62485_2(name, float_v, boost_v):
 ])
 def test_gas_currents_iec_62485_2(name, igas_float, igas_boost, rate):
     """Gas-producing currents [mA/Ah] and the capacity they refer to: IEC 62485-2 (seen)."""
-    c = L.chemistry(name)
+    c = battery.chemistry(name)
     assert_allclose([c.gas_current_float_ma_per_ah, c.gas_current_boost_ma_per_ah],
                     [igas_float, igas_boost], rtol=0, atol=1e-12)
     assert c.capacity_rate == rate
@@ -46,17 +47,17 @@ def test_gas_currents_iec_62485_2(name, igas_float, igas_boost, rate):
 def test_temperature_coefficients():
     """-3 mV/degC/cell for valve-regulated lead-acid (manufacturers' practice) and vented
     NiCd (seen); vented lead-acid inside the -3 to -5 mV range (common practice)."""
-    assert_allclose(L.chemistry("lead-acid-valve-regulated").temperature_coefficient_v_per_c, -0.003, atol=1e-12)
-    assert_allclose(L.chemistry("nickel-cadmium-vented").temperature_coefficient_v_per_c, -0.003, atol=1e-12)
-    assert -0.005 <= L.chemistry("lead-acid-vented").temperature_coefficient_v_per_c <= -0.003
+    assert_allclose(battery.chemistry("lead-acid-valve-regulated").temperature_coefficient_v_per_c, -0.003, atol=1e-12)
+    assert_allclose(battery.chemistry("nickel-cadmium-vented").temperature_coefficient_v_per_c, -0.003, atol=1e-12)
+    assert -0.005 <= battery.chemistry("lead-acid-vented").temperature_coefficient_v_per_c <= -0.003
 
 
 def test_gassing_and_limits_ordered():
     """Gassing of vented lead-acid at 2.35-2.40 V/cell (from memory); NiCd no cell above
     about 1.7 V (from memory); float < gassing < end of charge <= max for every chemistry."""
-    assert 2.35 <= L.chemistry("lead-acid-vented").gassing_voltage_v <= 2.40
-    assert_allclose(L.chemistry("nickel-cadmium-vented").max_cell_voltage_v, 1.70, atol=1e-12)
-    for c in L.CHEMISTRIES.values():
+    assert 2.35 <= battery.chemistry("lead-acid-vented").gassing_voltage_v <= 2.40
+    assert_allclose(battery.chemistry("nickel-cadmium-vented").max_cell_voltage_v, 1.70, atol=1e-12)
+    for c in battery.CHEMISTRIES.values():
         assert c.float_voltage_v < c.gassing_voltage_v < c.end_of_charge_voltage_v <= c.max_cell_voltage_v
         assert c.open_circuit_voltage_empty_v < c.open_circuit_voltage_full_v < c.float_voltage_v
         assert 0 < c.charge_efficiency <= 1
@@ -66,10 +67,10 @@ def test_gassing_and_limits_ordered():
 def test_charge_voltage_limit_temperature_correction():
     """VRLA float 2.25 V/cell at 25 degC, -3 mV/degC/cell (manufacturers' practice):
     2.22 V at 35 degC, 2.28 V at 15 degC (derived); default limit = boost voltage (IEC 62485-2)."""
-    got = L.charge_voltage_limit_per_cell("lead-acid-valve-regulated", [15.0, 25.0, 35.0], limit_at_25=2.25)
+    got = battery.charge_voltage_limit_per_cell("lead-acid-valve-regulated", [15.0, 25.0, 35.0], limit_at_25=2.25)
     assert_allclose(got, [2.28, 2.25, 2.22], rtol=0, atol=1e-12)
-    assert_allclose(L.charge_voltage_limit_per_cell("nickel-cadmium-vented", 45.0), 1.55 - 0.06, atol=1e-12)
-    assert_allclose(L.charge_voltage_limit_per_cell("lead-acid-vented", 25.0), 2.40, atol=1e-12)
+    assert_allclose(battery.charge_voltage_limit_per_cell("nickel-cadmium-vented", 45.0), 1.55 - 0.06, atol=1e-12)
+    assert_allclose(battery.charge_voltage_limit_per_cell("lead-acid-vented", 25.0), 2.40, atol=1e-12)
 
 
 # ---------------------------------------------------------------------------
@@ -79,9 +80,9 @@ def test_charge_voltage_limit_temperature_correction():
 def test_open_circuit_voltage_linear_between_table_values():
     """Lead-acid rest voltage = specific gravity + 0.84: 1.98 V empty, 2.12 V full
     (common practice, from memory), linear in state of charge."""
-    got = L.open_circuit_voltage_per_cell("lead-acid-vented", [0.0, 0.5, 1.0, 1.2, -0.1])
+    got = battery.open_circuit_voltage_per_cell("lead-acid-vented", [0.0, 0.5, 1.0, 1.2, -0.1])
     assert_allclose(got, [1.98, 2.05, 2.12, 2.12, 1.98], rtol=0, atol=1e-12)
-    got = L.open_circuit_voltage_per_cell("lead-acid-vented", 0.25, ocv_range=(2.0, 2.2))
+    got = battery.open_circuit_voltage_per_cell("lead-acid-vented", 0.25, ocv_range=(2.0, 2.2))
     assert_allclose(got, 2.05, rtol=0, atol=1e-12)
 
 
@@ -89,9 +90,9 @@ def test_vented_lead_acid_at_ten_hour_rate():
     """Vented lead-acid at C/10 (normal finishing rate, from memory): well below the
     gassing voltage (2.35-2.40 V, from memory) early and in mid charge, past it late in
     the charge, finishing at 2.4-2.6 V/cell (from memory)."""
-    c = L.chemistry("lead-acid-vented")
+    c = battery.chemistry("lead-acid-vented")
     soc = np.linspace(0.0, 1.0, 1001)
-    v = L.charging_voltage_per_cell(c, soc, 0.1)
+    v = battery.charging_voltage_per_cell(c, soc, 0.1)
     assert v[200] < c.gassing_voltage_v - 0.15          # early: 20 % charged
     assert 2.15 <= v[500] <= 2.25                       # the flat middle
     assert v[980] > c.gassing_voltage_v                 # late: 98 % charged
@@ -108,57 +109,57 @@ def test_vented_lead_acid_at_ten_hour_rate():
 
 def test_valve_regulated_finishes_lower():
     """VRLA like vented lead-acid with a lower finish (oxygen recombination; from memory)."""
-    vent = L.charging_voltage_per_cell("lead-acid-vented", 1.0, 0.1)
-    vrla = L.charging_voltage_per_cell("lead-acid-valve-regulated", 1.0, 0.1)
+    vent = battery.charging_voltage_per_cell("lead-acid-vented", 1.0, 0.1)
+    vrla = battery.charging_voltage_per_cell("lead-acid-valve-regulated", 1.0, 0.1)
     assert vrla < vent
     assert 2.4 <= vrla <= 2.5
-    assert L.charging_voltage_per_cell("lead-acid-valve-regulated", 0.3, 0.1) < 2.35
+    assert battery.charging_voltage_per_cell("lead-acid-valve-regulated", 0.3, 0.1) < 2.35
 
 
 def test_nickel_cadmium_flat_rest_voltage_and_charging_curve():
     """NiCd: rest voltage nearly flat (from memory), end of charge read from the
     charging curve: 1.55-1.7 V/cell at C/5 (from memory), no cell above 1.7 V."""
-    c = L.chemistry("nickel-cadmium-vented")
-    ocv = L.open_circuit_voltage_per_cell(c, [0.0, 1.0])
-    v = L.charging_voltage_per_cell(c, [0.5, 1.0], 0.2)
+    c = battery.chemistry("nickel-cadmium-vented")
+    ocv = battery.open_circuit_voltage_per_cell(c, [0.0, 1.0])
+    v = battery.charging_voltage_per_cell(c, [0.5, 1.0], 0.2)
     assert ocv[1] - ocv[0] <= 0.06
     assert ocv[1] - ocv[0] < 0.25 * (v[1] - v[0])
     assert 1.55 <= v[1] <= 1.70
     assert_allclose(v[1], c.end_of_charge_voltage_v, rtol=0, atol=1e-9)
 
 
-@pytest.mark.parametrize("name", list(L.CHEMISTRIES))
+@pytest.mark.parametrize("name", list(battery.CHEMISTRIES))
 def test_charging_model_limits(name):
     """Closed-form limits of the model: no current gives the rest voltage; the voltage
     rises with rate and with state of charge; at the reference rate the end-of-charge
     voltage moves with the table's temperature coefficient."""
-    c = L.chemistry(name)
+    c = battery.chemistry(name)
     soc = np.linspace(0, 1, 11)
-    assert_allclose(L.charging_voltage_per_cell(c, soc, 0.0), L.open_circuit_voltage_per_cell(c, soc),
+    assert_allclose(battery.charging_voltage_per_cell(c, soc, 0.0), battery.open_circuit_voltage_per_cell(c, soc),
                     rtol=0, atol=1e-12)
     rates = np.array([0.02, 0.05, 0.1, 0.2])[:, None]
-    v = L.charging_voltage_per_cell(c, soc[None, :], rates)
+    v = battery.charging_voltage_per_cell(c, soc[None, :], rates)
     assert v.shape == (4, 11)
     assert np.all(np.diff(v, axis=0) > 0) and np.all(np.diff(v, axis=1) > 0)
     r = c.reference_rate_per_h
-    hot = L.charging_voltage_per_cell(c, 1.0, r, temperature_c=35.0)
-    cold = L.charging_voltage_per_cell(c, 1.0, r, temperature_c=15.0)
+    hot = battery.charging_voltage_per_cell(c, 1.0, r, temperature_c=35.0)
+    cold = battery.charging_voltage_per_cell(c, 1.0, r, temperature_c=15.0)
     assert_allclose(hot - c.end_of_charge_voltage_v, 10 * c.temperature_coefficient_v_per_c, rtol=1e-9)
     assert_allclose(cold - c.end_of_charge_voltage_v, -10 * c.temperature_coefficient_v_per_c, rtol=1e-9)
 
 
 def test_default_bank_resistance():
     """Bank resistance = cells x (cell resistance x capacity) / capacity (derived)."""
-    assert_allclose(L.bank_resistance_ohm("lead-acid-vented", 60, 200), 60 * 0.15 / 200, rtol=1e-12)
+    assert_allclose(battery.bank_resistance_ohm("lead-acid-vented", 60, 200), 60 * 0.15 / 200, rtol=1e-12)
 
 
 def test_ventilation_iec_62485_2():
     """IEC 62485-2: Q = 0.05 n Igas C 1e-3; 110 vented lead-acid cells, 100 Ah, boost
     (20 mA/Ah) -> 11.0 m^3/h (derived); natural-ventilation opening 28 Q -> 308 cm^2."""
-    q = L.ventilation_airflow_m3_per_h(110, 100, L.chemistry("lead-acid-vented").gas_current_boost_ma_per_ah)
+    q = battery.ventilation_airflow_m3_per_h(110, 100, battery.chemistry("lead-acid-vented").gas_current_boost_ma_per_ah)
     assert_allclose(q, 11.0, rtol=5e-4)
-    assert_allclose(L.ventilation_opening_cm2(q), 308.0, rtol=5e-4)
-    assert_allclose(L.ventilation_airflow_m3_per_h([110, 55], 100, 5.0), [2.75, 1.375], rtol=5e-4)
+    assert_allclose(battery.ventilation_opening_cm2(q), 308.0, rtol=5e-4)
+    assert_allclose(battery.ventilation_airflow_m3_per_h([110, 55], 100, 5.0), [2.75, 1.375], rtol=5e-4)
 
 
 # ---------------------------------------------------------------------------
@@ -173,50 +174,50 @@ def test_ventilation_iec_62485_2():
 def test_conventional_load_lines_iec_60974_1(process, currents, volts):
     """IEC 60974-1 conventional load: MMA 20 + 0.04 I, TIG 10 + 0.04 I, MIG/MAG 14 + 0.05 I
     (seen); constant 44, 34, 44 V above 600 A (from memory)."""
-    assert_allclose(L.conventional_load_voltage(process, currents), volts, rtol=5e-4)
-    assert_allclose(L.conventional_load_voltage(process, -np.asarray(currents, float)), volts, rtol=5e-4)
+    assert_allclose(welding.conventional_load_voltage(process, currents), volts, rtol=5e-4)
+    assert_allclose(welding.conventional_load_voltage(process, -np.asarray(currents, float)), volts, rtol=5e-4)
 
 
 def test_load_lines_continuous_at_knee():
     """The line meets its constant part at 600 A (IEC 60974-1, derived)."""
-    for p in L.WELDING_PROCESSES.values():
+    for p in welding.WELDING_PROCESSES.values():
         assert_allclose(p.load_line_offset_v + p.load_line_slope_v_per_a * p.load_line_knee_a,
                         p.load_line_top_v, rtol=5e-4)
 
 
 def test_required_characteristics():
     """Drooping for manual metal arc and TIG, flat for MIG/MAG (textbooks; common practice)."""
-    assert L.welding_process("manual-metal-arc").characteristic == "drooping"
-    assert L.welding_process("tungsten-inert-gas").characteristic == "drooping"
-    assert L.welding_process("metal-inert-gas").characteristic == "flat"
-    m = L.characteristic_margin_v_per_a("manual-metal-arc", [-0.3, -0.1, -0.02])
+    assert welding.welding_process("manual-metal-arc").characteristic == "drooping"
+    assert welding.welding_process("tungsten-inert-gas").characteristic == "drooping"
+    assert welding.welding_process("metal-inert-gas").characteristic == "flat"
+    m = welding.characteristic_margin_v_per_a("manual-metal-arc", [-0.3, -0.1, -0.02])
     assert_allclose(m, [0.2, 0.0, -0.08], atol=1e-12)
-    f = L.characteristic_margin_v_per_a("metal-inert-gas", [-0.3, -0.05, -0.02])
+    f = welding.characteristic_margin_v_per_a("metal-inert-gas", [-0.3, -0.05, -0.02])
     assert_allclose(f, [-0.25, 0.0, 0.03], atol=1e-12)
 
 
 def test_no_load_voltage_limits():
     """IEC 60974-1: DC 113 V peak in normal and increased-shock-hazard environments; AC 80 V
     and 48 V r.m.s. (seen). US 29 CFR 1910.254(b)(3): manual DC 100 V (seen)."""
-    lim = L.NO_LOAD_VOLTAGE_LIMITS
+    lim = welding.NO_LOAD_VOLTAGE_LIMITS
     assert_allclose([lim["iec-dc-normal"].voltage_v, lim["iec-dc-increased-shock-hazard"].voltage_v,
                      lim["iec-ac-normal"].voltage_v, lim["iec-ac-increased-shock-hazard"].voltage_v,
                      lim["us-manual-dc"].voltage_v], [113, 113, 80, 48, 100], atol=1e-12)
     assert lim["iec-dc-normal"].measure == "peak"
-    for env in L.ENVIRONMENTS.values():
-        assert_allclose(L.no_load_voltage_limit(env.dc_limit).voltage_v, 113.0, atol=1e-12)
+    for env in welding.ENVIRONMENTS.values():
+        assert_allclose(welding.no_load_voltage_limit(env.dc_limit).voltage_v, 113.0, atol=1e-12)
 
 
 def test_no_load_peak_from_mean():
     """Commutator ripple allowance 5 % (common practice): 100 V mean -> 105 V peak."""
-    assert_allclose(L.no_load_peak_voltage([80.0, 100.0]), [84.0, 105.0], rtol=1e-12)
-    assert_allclose(L.no_load_peak_voltage(100.0, ripple_fraction=0.0), 100.0, rtol=1e-12)
+    assert_allclose(welding.no_load_peak_voltage([80.0, 100.0]), [84.0, 105.0], rtol=1e-12)
+    assert_allclose(welding.no_load_peak_voltage(100.0, ripple_fraction=0.0), 100.0, rtol=1e-12)
 
 
 def test_thermal_equivalent_current():
     """I_X2 = I_X1 sqrt(X1 / X2): 300 A at 60 % ~ 232 A at 100 % (rating practice, from memory)."""
-    assert_allclose(L.thermal_equivalent_current(300.0, 0.6), 232.4, rtol=5e-4)
-    assert_allclose(L.thermal_equivalent_current([200.0, 200.0], [1.0, 0.25]), [200.0, 100.0], rtol=1e-12)
+    assert_allclose(welding.thermal_equivalent_current(300.0, 0.6), 232.4, rtol=5e-4)
+    assert_allclose(welding.thermal_equivalent_current([200.0, 200.0], [1.0, 0.25]), [200.0, 100.0], rtol=1e-12)
 
 
 # ---------------------------------------------------------------------------
@@ -226,13 +227,13 @@ def test_thermal_equivalent_current():
 def test_incandescent_lamp_laws():
     """IES Lighting Handbook exponents (from memory): light V^3.38, life V^-13.1.
     At 0.95 Vr light 0.841, life 1.96x; at 1.05 Vr light 1.179, life 0.528x (derived)."""
-    assert_allclose(L.lamp_light_ratio([0.95, 1.05]), [0.841, 1.179], rtol=5e-4)
-    assert_allclose(L.lamp_life_ratio([0.95, 1.05]), [1.958, 0.5277], rtol=5e-4)
-    assert_allclose(L.lamp_power_ratio([0.95, 1.05]), [0.95 ** 1.54, 1.05 ** 1.54], rtol=1e-12)
-    assert_allclose(L.lamp_power_ratio(1.0), 1.0, rtol=1e-12)
-    inc = L.lamp("incandescent")
+    assert_allclose(lighting.lamp_light_ratio([0.95, 1.05]), [0.841, 1.179], rtol=5e-4)
+    assert_allclose(lighting.lamp_life_ratio([0.95, 1.05]), [1.958, 0.5277], rtol=5e-4)
+    assert_allclose(lighting.lamp_power_ratio([0.95, 1.05]), [0.95 ** 1.54, 1.05 ** 1.54], rtol=1e-12)
+    assert_allclose(lighting.lamp_power_ratio(1.0), 1.0, rtol=1e-12)
+    inc = lighting.lamp("incandescent")
     assert_allclose([inc.light_exponent, inc.power_exponent, inc.life_exponent], [3.38, 1.54, -13.1], atol=1e-12)
-    assert L.lamp("electronic").light_exponent is None
+    assert lighting.lamp("electronic").light_exponent is None
 
 
 # ---------------------------------------------------------------------------
@@ -240,11 +241,11 @@ def test_incandescent_lamp_laws():
 # ---------------------------------------------------------------------------
 
 @pytest.mark.parametrize("loader, table", [
-    (L.chemistry, L.CHEMISTRIES),
-    (L.welding_process, L.WELDING_PROCESSES),
-    (L.no_load_voltage_limit, L.NO_LOAD_VOLTAGE_LIMITS),
-    (L.environment, L.ENVIRONMENTS),
-    (L.lamp, L.LAMPS),
+    (battery.chemistry, battery.CHEMISTRIES),
+    (welding.welding_process, welding.WELDING_PROCESSES),
+    (welding.no_load_voltage_limit, welding.NO_LOAD_VOLTAGE_LIMITS),
+    (welding.environment, welding.ENVIRONMENTS),
+    (lighting.lamp, lighting.LAMPS),
 ])
 def test_loader_lists_valid_names(loader, table):
     """A wrong name gives one line listing every valid name."""
@@ -266,28 +267,28 @@ def test_loader_lists_valid_names(loader, table):
 
 def test_demo_profiles_present():
     """One demo profile per kind."""
-    kinds = {L.load_profile(f).kind for f in DEMO_FILES}
-    assert kinds == set(L.KINDS)
+    kinds = {profile.load_profile(f).kind for f in DEMO_FILES}
+    assert kinds == set(profile.KINDS)
 
 
 @pytest.mark.parametrize("path", DEMO_FILES, ids=lambda p: p.name)
 def test_demo_profile_round_trip(path):
     """profile_from_dict(profile_to_dict(p)) == p, and the text form reads the same."""
-    p = L.load_profile(path)
+    p = profile.load_profile(path)
     assert p.source == path.name
-    q = L.profile_from_dict(profile_dict := L.profile_to_dict(p), "again")
+    q = profile.profile_from_dict(profile_dict := profile.profile_to_dict(p), "again")
     assert q == p
-    assert L.profile_to_dict(q) == profile_dict
-    assert L.load_profile(path.name, path.read_text()) == p
+    assert profile.profile_to_dict(q) == profile_dict
+    assert profile.load_profile(path.name, path.read_text()) == p
     assert p.job is getattr(p, p.kind)
-    for other in L.KINDS:
+    for other in profile.KINDS:
         if other != p.kind:
             assert getattr(p, other) is None
 
 
 def test_battery_demo_values():
     """The demo charging job as written, defaults from the chemistry table."""
-    p = L.load_profile(PROFILES / "battery-charging.toml")
+    p = profile.load_profile(PROFILES / "battery-charging.toml")
     b = p.battery
     assert (b.chemistry, b.cells) == ("lead-acid-vented", 60)
     assert p.speeds_rpm == (1450.0,)
@@ -310,27 +311,27 @@ MINIMAL = {
 
 def test_defaults_of_optional_keys():
     """Missing optional keys take the documented defaults."""
-    b = L.profile_from_dict(MINIMAL["battery"], "m.toml")
+    b = profile.profile_from_dict(MINIMAL["battery"], "m.toml")
     assert b.label == "" and b.temperatures_c is None
-    c = L.chemistry("nickel-cadmium-vented")
+    c = battery.chemistry("nickel-cadmium-vented")
     assert_allclose([b.battery.min_charge_current_a, b.battery.cable_resistance_ohm, b.battery.temperature_c],
-                    [L.DEFAULT_MIN_CHARGE_CURRENT_A, L.DEFAULT_CABLE_RESISTANCE_OHM, 25.0], atol=1e-12)
+                    [battery.DEFAULT_MIN_CHARGE_CURRENT_A, battery.DEFAULT_CABLE_RESISTANCE_OHM, 25.0], atol=1e-12)
     assert_allclose(b.battery.internal_resistance_ohm, 90 * c.resistance_ohm_ah / 100, rtol=1e-12)
     assert_allclose(b.battery.open_circuit_voltage_per_cell_v,
                     (c.open_circuit_voltage_empty_v, c.open_circuit_voltage_full_v), atol=1e-12)
     assert_allclose(b.battery.charge_voltage_per_cell_v, c.boost_voltage_v, atol=1e-12)
-    w = L.profile_from_dict(MINIMAL["welding"], "m.toml")
+    w = profile.profile_from_dict(MINIMAL["welding"], "m.toml")
     assert w.speeds_rpm == (1900.0, 2100.0)
     assert w.welding.environment == "normal" and w.welding.max_no_load_voltage_v is None
     assert_allclose([w.welding.duty_cycle_percent, w.welding.cable_resistance_ohm], [60.0, 0.0], atol=1e-12)
-    li = L.profile_from_dict(MINIMAL["lighting"], "m.toml").lighting
+    li = profile.profile_from_dict(MINIMAL["lighting"], "m.toml").lighting
     assert li.lamp == "none"
     assert_allclose([li.tolerance_percent, li.feeder_resistance_ohm], [5.0, 0.0], atol=1e-12)
-    bo = L.profile_from_dict(MINIMAL["booster"], "m.toml").booster
+    bo = profile.profile_from_dict(MINIMAL["booster"], "m.toml").booster
     assert_allclose(bo.tolerance_percent, 5.0, atol=1e-12)
     for kind, data in MINIMAL.items():
-        p = L.profile_from_dict(data, "m.toml")
-        assert L.profile_from_dict(L.profile_to_dict(p), "m.toml") == p
+        p = profile.profile_from_dict(data, "m.toml")
+        assert profile.profile_from_dict(profile.profile_to_dict(p), "m.toml") == p
 
 
 def _with(kind, table, key, value):
@@ -398,7 +399,7 @@ def test_bad_profile_one_line_error(kind, table, key, value, named):
     """Each rule broken once: one line naming the file and the key."""
     data = _with(kind, table, key, value)
     with pytest.raises(InputError) as exc:
-        L.profile_from_dict(data, "bad.toml")
+        profile.profile_from_dict(data, "bad.toml")
     msg = str(exc.value)
     assert "\n" not in msg
     assert msg.startswith(f"bad.toml: {named}: "), msg
@@ -408,24 +409,24 @@ def test_bad_profile_one_line_error(kind, table, key, value, named):
 def test_bad_profile_messages_say_what_is_allowed():
     """Wrong names list the valid ones; unknown keys list the valid keys."""
     with pytest.raises(InputError, match="lead-acid-vented, lead-acid-valve-regulated, nickel-cadmium-vented"):
-        L.profile_from_dict(_with("battery", "battery", "chemistry", "lithium"), "bad.toml")
+        profile.profile_from_dict(_with("battery", "battery", "chemistry", "lithium"), "bad.toml")
     with pytest.raises(InputError, match="valid keys: .*state_of_charge"):
-        L.profile_from_dict(_with("battery", "battery", "voltage_v", 1), "bad.toml")
+        profile.profile_from_dict(_with("battery", "battery", "voltage_v", 1), "bad.toml")
     with pytest.raises(InputError, match="normal, increased-shock-hazard"):
-        L.profile_from_dict(_with("welding", "welding", "environment", "wet"), "bad.toml")
+        profile.profile_from_dict(_with("welding", "welding", "environment", "wet"), "bad.toml")
 
 
 def test_missing_tables():
     """A missing [drive] or job table is named."""
     d = copy.deepcopy(MINIMAL["lighting"]); d.pop("drive")
     with pytest.raises(InputError, match=r"^bad.toml: drive: table is missing"):
-        L.profile_from_dict(d, "bad.toml")
+        profile.profile_from_dict(d, "bad.toml")
     d = copy.deepcopy(MINIMAL["lighting"]); d.pop("lighting")
     with pytest.raises(InputError, match=r"^bad.toml: lighting: table is missing"):
-        L.profile_from_dict(d, "bad.toml")
+        profile.profile_from_dict(d, "bad.toml")
     d = copy.deepcopy(MINIMAL["lighting"]); d["load"]["kind"] = "booster"
     with pytest.raises(InputError, match=r"^bad.toml: lighting: "):
-        L.profile_from_dict(d, "bad.toml")
+        profile.profile_from_dict(d, "bad.toml")
 
 
 @pytest.mark.parametrize("text, key", [
@@ -436,7 +437,7 @@ def test_missing_tables():
 def test_bad_profile_text(text, key):
     """Broken TOML and wrong types give one-line errors naming the file."""
     with pytest.raises(InputError) as exc:
-        L.load_profile("upload.toml", text)
+        profile.load_profile("upload.toml", text)
     msg = str(exc.value)
     assert "\n" not in msg and msg.startswith(f"upload.toml: {key}: ")
 
@@ -445,7 +446,7 @@ def test_read_toml_matches_profile_dict():
     """The demo file's tables are exactly those profile_to_dict writes, key for key."""
     path = PROFILES / "lighting.toml"
     raw = read_toml(path)
-    out = L.profile_to_dict(L.load_profile(path))
+    out = profile.profile_to_dict(profile.load_profile(path))
     assert set(raw) == set(out)
     for table in raw:
         assert set(raw[table]) == set(out[table])

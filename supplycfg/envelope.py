@@ -1,0 +1,218 @@
+"""The candidate space of the setting search and its envelope.
+
+A candidate is a base setting (connection, series turns, diverter and the
+kind of field control) with a value of that control (rheostat [ohm] or field
+current [A]). Every candidate is evaluated at every corner of the job's
+envelope (drive speeds x winding temperatures) at once: one circuit row per
+(base, corner). The jobs (:mod:`supplycfg.jobs`) compute their limits and
+figures on these rows; the generic search ranks the results.
+
+Limits are given as ``name -> (values, limit, 'max'|'min', unit)``; margins
+are positive inside a limit.
+"""
+
+import math
+import warnings
+from dataclasses import dataclass
+
+import numpy as np
+
+from .circuit import SEPARATE, USES_SERIES, Setting, allowed_connections, build_circuit
+
+#: Grid of field-control values before refinement.
+CONTROL_GRID = 13
+#: Golden-section steps refining the best control value (0.618**14 ~ 1e-3 of a grid cell).
+GOLDEN_STEPS = 12
+#: Diverters tried, as multiples of the series-winding resistance in use (none is always tried).
+DIVERTER_FACTORS = (0.5, 1.0, 2.0, 4.0)
+#: Booster diverters: a finer set, since the diverter is its only trim.
+BOOSTER_DIVERTER_FACTORS = tuple(np.round(np.geomspace(0.25, 16.0, 13), 4))
+#: Load-line grid and bisection steps while searching, and for the reported figures.
+COARSE = {"grid": 33, "steps": 26}
+FINE = {"grid": 401, "steps": 60}
+
+
+def margin(value, limit, kind, unit):
+    """Margin of ``value`` against ``limit``: positive inside (``kind`` 'max' or 'min')."""
+    m = (limit - value) if kind == "max" else (value - limit)
+    frac = m / abs(limit) if limit else m
+    return m, frac
+
+
+
+@dataclass
+class Space:
+    """Candidates x envelope corners of one search, with their circuit."""
+
+    machine: object
+    profile: object
+    bases: list          # (connection, series_turns, diverter_ohm, control)
+    corners: list        # (speed, temperature)
+    nominal: tuple
+    circ: object         # circuit of bases x corners (row = base * nc + corner)
+
+    @property
+    def nc(self):
+        return len(self.corners)
+
+
+def control_kind(machine, conn):
+    if conn == "series":
+        return "none"
+    if conn in SEPARATE:
+        return "exciter" if machine.excitation_voltage_v is not None else "field-current"
+    return "rheostat"
+
+
+def candidate_bases(machine, profile):
+    """(connection, series_turns, diverter_ohm, control) tuples the search tries."""
+    conns = list(allowed_connections(machine))
+    kind = profile.kind
+    if kind == "booster":
+        conns = ["series"] if machine.has_series else []
+    bases = []
+    for conn in conns:
+        control = control_kind(machine, conn)
+        if conn in USES_SERIES:
+            taps = [t for t in machine.series_taps if t > 0]
+        else:
+            taps = [0.0]
+        for tap in taps:
+            divs = [None]
+            if conn in USES_SERIES and kind in ("welding", "lighting", "booster"):
+                rse = machine.series_field_resistance_ohm * tap / machine.series_turns_per_pole
+                factors = BOOSTER_DIVERTER_FACTORS if kind == "booster" else DIVERTER_FACTORS
+                divs += [float(round(f * rse, 6)) for f in factors]
+            for d in divs:
+                bases.append((conn, float(tap), d, control))
+    return bases
+
+
+def envelope_corners(machine, profile):
+    speeds = tuple(float(s) for s in profile.speeds_rpm)
+    if len(speeds) == 2 and speeds[0] < speeds[1]:
+        # the setting is stated at the middle speed, so it is evaluated there too
+        speeds = (speeds[0], 0.5 * (speeds[0] + speeds[1]), speeds[1])
+    temps = tuple(float(t) for t in profile.temperatures_c) if profile.temperatures_c else \
+        (machine.reference_temperature_c,)
+    corners = [(s, t) for s in speeds for t in temps]
+    nominal = (float(np.mean(speeds)), temps[-1])
+    return corners, nominal
+
+
+def build_space(machine, profile):
+    bases = candidate_bases(machine, profile)
+    corners, nominal = envelope_corners(machine, profile)
+    settings = []
+    for conn, tap, d, control in bases:
+        for sp, tc in corners:
+            kw = {}
+            if control == "field-current":
+                kw["field_current_a"] = 0.0
+            settings.append(Setting(conn, series_turns=tap if conn in USES_SERIES else None, diverter_ohm=d,
+                                    speed_rpm=sp, winding_temperature_c=tc, **kw))
+    circ = build_circuit(machine, settings) if settings else None
+    return Space(machine, profile, bases, corners, nominal, circ)
+
+
+def control_range(machine, control):
+    if control == "field-current":
+        return 0.0, float(machine.occ_field_current_a[-1])
+    if control == "none":
+        return math.nan, math.nan
+    return 0.0, float(machine.rheostat_max_ohm)
+
+
+def expand_candidates(space, base_idx, u, corner_idx=None):
+    """Circuit rows for (base, control value) pairs at every corner (or one corner each)."""
+    base_idx = np.asarray(base_idx, int)
+    u = np.asarray(u, float)
+    nc = space.nc
+    if corner_idx is None:
+        rows = (base_idx[:, None] * nc + np.arange(nc)[None, :]).ravel()
+        uu = np.repeat(u, nc)
+        bb = np.repeat(base_idx, nc)
+    else:
+        rows = base_idx * nc + np.asarray(corner_idx, int)
+        uu, bb = u, base_idx
+    controls = np.array([space.bases[b][3] for b in bb]) if bb.size else np.array([], str)
+    rh = np.where((controls == "rheostat") | (controls == "exciter"), uu, np.nan)
+    fc = np.where(controls == "field-current", uu, np.nan)
+    ev = space.machine.excitation_voltage_v
+    sub = space.circ.subset(rows, rheostat_ohm=rh, field_current_a=fc,
+                            exciter_v=np.full(rows.size, np.nan if ev is None else ev))
+    return sub, rows
+
+
+def worst_over_corners(values, n, nc, how):
+    v = np.asarray(values, float).reshape(n, nc)
+    if v.size == 0:
+        return np.zeros(n)
+    with np.errstate(invalid="ignore"), warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)
+        if how == "max":
+            return np.where(np.isnan(v).any(axis=1), np.nan, np.nanmax(v, axis=1))
+        return np.where(np.isnan(v).any(axis=1), np.nan, np.nanmin(v, axis=1))
+
+
+
+def critical_resistance_ratios(space, sub, n):
+    """Least R_crit/R_field and n/n_crit over the envelope (self-excited candidates)."""
+    occ = sub.occ
+    slope = occ.air_gap_slope()
+    rcrit = sub.s * slope
+    self_ex = sub.kind == 1
+    rr = np.where(self_ex, rcrit / sub.rf, np.nan)
+    return worst_over_corners(rr, n, space.nc, "min")
+
+
+def smallest_margin_fraction(lim):
+    fr = []
+    for name, (val, limit, kind, unit) in lim.items():
+        _, f = margin(np.asarray(val, float), limit, kind, unit)
+        fr.append(np.where(np.isnan(f), -np.inf, f))
+    return np.min(np.vstack(fr), axis=0)
+
+
+def optimise_control(space, job):
+    """Best control value per base: grid, then golden-section on the smallest margin."""
+    nb = len(space.bases)
+    lo = np.array([control_range(space.machine, b[3])[0] for b in space.bases])
+    hi = np.array([control_range(space.machine, b[3])[1] for b in space.bases])
+    fixed = np.isnan(lo)
+    grid = np.linspace(0, 1, CONTROL_GRID)
+    bi = np.repeat(np.arange(nb), CONTROL_GRID)
+    uu = np.where(np.repeat(fixed, CONTROL_GRID), np.nan, np.repeat(lo, CONTROL_GRID) +
+                  np.repeat(hi - lo, CONTROL_GRID) * np.tile(grid, nb))
+    lim, _ = job(space, bi, uu)
+    score = smallest_margin_fraction(lim).reshape(nb, CONTROL_GRID)
+    j = np.argmax(score, axis=1)
+    evaluated = bi.size * space.nc
+    # golden-section inside the neighbouring cells
+    step = (hi - lo) / (CONTROL_GRID - 1)
+    cen = lo + j * step
+    a = np.where(fixed, np.nan, np.maximum(lo, cen - step))
+    b = np.where(fixed, np.nan, np.minimum(hi, cen + step))
+    g = (math.sqrt(5) - 1) / 2
+    live = ~fixed
+    best_u = np.where(fixed, np.nan, cen)
+    best_s = score[np.arange(nb), j]
+    if live.any():
+        idx = np.flatnonzero(live)
+        a_, b_ = a[idx], b[idx]
+        c_ = b_ - g * (b_ - a_); d_ = a_ + g * (b_ - a_)
+        fc = smallest_margin_fraction(job(space, idx, c_)[0]); fd = smallest_margin_fraction(job(space, idx, d_)[0])
+        evaluated += 2 * idx.size * space.nc
+        for _ in range(GOLDEN_STEPS):
+            left = fc >= fd
+            b_ = np.where(left, d_, b_); a_ = np.where(left, a_, c_)
+            new = np.where(left, b_ - g * (b_ - a_), a_ + g * (b_ - a_))
+            fn = smallest_margin_fraction(job(space, idx, new)[0])
+            evaluated += idx.size * space.nc
+            d_, fd, c_, fc = (np.where(left, c_, new), np.where(left, fc, fn),
+                              np.where(left, new, d_), np.where(left, fn, fd))
+        cand_u = np.where(fc >= fd, c_, d_)
+        cand_s = np.maximum(fc, fd)
+        better = cand_s > best_s[idx]
+        best_u[idx] = np.where(better, cand_u, best_u[idx])
+    return best_u, evaluated

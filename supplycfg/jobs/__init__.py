@@ -1,0 +1,45 @@
+"""The jobs a DC generator is set up for, one module each.
+
+Each job module holds its named tables, its ``[kind]`` profile table reader
+(``read_job``), its evaluation over the search envelope (``evaluate`` or
+``solve``), and its own cautions (``option_cautions``, ``profile_cautions``).
+The generic search (:mod:`supplycfg.search`) walks the candidates and calls
+the job; the profile reader (:mod:`supplycfg.profile`) dispatches to
+``read_job``. Imports run one way: profile reader -> jobs -> engine.
+"""
+
+from ..cautions import setting_cautions
+from . import battery, booster, lighting, welding
+
+#: Job modules by ``load.kind``.
+JOBS = {"battery": battery, "welding": welding, "lighting": lighting, "booster": booster}
+#: The kinds of job, in the order the page and messages list them.
+KINDS = tuple(JOBS)
+
+
+def job_module(kind):
+    """The module of the job ``kind`` (one of :data:`KINDS`)."""
+    return JOBS[kind]
+
+
+def option_cautions(machine, profile, setting, f):
+    """Every caution of one setting for a job: the job's own, then the machine's.
+
+    Parameters
+    ----------
+    machine : Machine
+    profile : LoadProfile
+    setting : Setting
+    f : dict
+        The setting's figures (named values; each key optional).
+
+    Returns
+    -------
+    list of Caution
+    """
+    return JOBS[profile.kind].option_cautions(machine, profile, setting, f) + setting_cautions(machine, setting, f)
+
+
+def profile_cautions(machine, profile):
+    """Cautions of the job as a whole, whatever the setting."""
+    return JOBS[profile.kind].profile_cautions(machine, profile)

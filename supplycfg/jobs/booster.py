@@ -1,0 +1,61 @@
+"""A series booster in a feeder from a bus: the job's figures, limits and cautions.
+
+``V_load = V_bus + V_booster(IL) - IL R_feeder`` (design note).
+"""
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from ..cautions import caution
+from ..envelope import COARSE, FINE, optimise_control
+from ..validate import MAX_CURRENT_A, MAX_OHM, MAX_VOLTAGE_V, MIN_VOLTAGE_V, read_pair
+from .lighting import DEFAULT_TOLERANCE_PERCENT, evaluate_feeder
+
+#: The profile table this job reads.
+TABLE = "booster"
+
+
+@dataclass(frozen=True)
+class BoosterJob:
+    """A series booster in a feeder from a bus. Field names are the ``[booster]`` keys."""
+
+    bus_voltage_v: float
+    feeder_resistance_ohm: float
+    load_current_a: tuple
+    tolerance_percent: float
+
+
+def read_job(t, source):
+    """The ``[booster]`` table ``t`` of a profile read from ``source``, checked."""
+    vb = t.number("bus_voltage_v", low=MIN_VOLTAGE_V, high=MAX_VOLTAGE_V)
+    rf = t.number("feeder_resistance_ohm", low=0, low_open=True, high=MAX_OHM)
+    cur = read_pair(t, "load_current_a", source, low=0, high=MAX_CURRENT_A)
+    tol = t.number("tolerance_percent", DEFAULT_TOLERANCE_PERCENT, low=0, low_open=True, high=50)
+    return BoosterJob(bus_voltage_v=vb, feeder_resistance_ohm=rf, load_current_a=cur, tolerance_percent=tol)
+
+
+def evaluate(space, base_idx, u, res=COARSE):
+    """Limits and figures of booster candidates ``(base, diverter/control)`` over the envelope."""
+    return evaluate_feeder(space, base_idx, u, True, res)
+
+
+def solve(space):
+    """Best control value of every candidate and its limits and figures (fine solve)."""
+    u, evaluated = optimise_control(space, evaluate)
+    lim, figs = evaluate(space, np.arange(len(space.bases)), u, FINE)
+    return u, lim, figs, [None] * len(space.bases), evaluated
+
+
+def option_cautions(machine, profile, setting, f):
+    """Booster cautions of one setting: none beyond the machine's own."""
+    return []
+
+
+def profile_cautions(machine, profile):
+    """Cautions of the booster job as a whole, whatever the setting."""
+    out = []
+    out.append(caution("booster-series", "note",
+                  "A series booster carries the whole feeder current: check its rating and that the feeder "
+                  "protection covers it; never open the series circuit under load.", "common practice"))
+    return out

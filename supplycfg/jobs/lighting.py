@@ -1,0 +1,201 @@
+"""Lighting or a DC bus at the far end of a feeder: lamps, the job's figures and limits.
+
+The lamp table keeps every value beside its source ("from memory" = recalled,
+not checked against a copy).
+"""
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from ..circuit import _explicit_v, _params, machine_state, normal_points
+from ..envelope import (COARSE, FINE, critical_resistance_ratios, expand_candidates, optimise_control,
+                        worst_over_corners)
+from ..validate import MAX_CURRENT_A, MAX_OHM, MAX_VOLTAGE_V, MIN_VOLTAGE_V, named_entry, read_pair, table_entry
+
+#: The profile table this job reads.
+TABLE = "lighting"
+#: Load currents checked across the range.
+LOAD_POINTS = 5
+
+_IES = "IES Lighting Handbook, gas-filled tungsten lamps near rated voltage (from memory)"
+#: Exponents of light output, power and life against voltage (IES Lighting
+#: Handbook, from memory; the SPIE Field Guide to Illumination agrees within 2 %).
+LIGHT_EXPONENT = 3.38
+POWER_EXPONENT = 1.54
+LIFE_EXPONENT = -13.1
+
+
+@dataclass(frozen=True)
+class Lamp:
+    """A lamp type; exponents are None where no voltage law applies."""
+
+    name: str
+    light_exponent: float | None
+    power_exponent: float | None
+    life_exponent: float | None
+    basis: dict = field(default_factory=dict, compare=False, repr=False)
+
+
+LAMPS = {
+    "incandescent": table_entry(Lamp, "incandescent", {
+        "light_exponent": (LIGHT_EXPONENT, _IES), "power_exponent": (POWER_EXPONENT, _IES),
+        "life_exponent": (LIFE_EXPONENT, _IES)}),
+    "electronic": table_entry(Lamp, "electronic", {
+        "light_exponent": (None, "an electronic driver holds its output over its input range: no estimate"),
+        "power_exponent": (None, "as above"), "life_exponent": (None, "as above")}),
+    "none": table_entry(Lamp, "none", {
+        "light_exponent": (None, "no lamps: no estimate"), "power_exponent": (None, "as above"),
+        "life_exponent": (None, "as above")}),
+}
+
+
+def lamp(name):
+    """The :class:`Lamp` called ``name``; an InputError lists the valid names."""
+    return named_entry(LAMPS, name, "lamp")
+
+
+def lamp_light_ratio(v_ratio, exponent=LIGHT_EXPONENT):
+    """Light output over rated light of an incandescent lamp at ``V / Vrated``.
+
+    References
+    ----------
+    IES Lighting Handbook, lamp characteristics near rated voltage (from memory).
+    """
+    return np.asarray(v_ratio, float) ** exponent
+
+
+def lamp_power_ratio(v_ratio, exponent=POWER_EXPONENT):
+    """Power over rated power of an incandescent lamp at ``V / Vrated``.
+
+    References
+    ----------
+    IES Lighting Handbook (from memory).
+    """
+    return np.asarray(v_ratio, float) ** exponent
+
+
+def lamp_life_ratio(v_ratio, exponent=LIFE_EXPONENT):
+    """Life over rated life of an incandescent lamp at ``V / Vrated``.
+
+    References
+    ----------
+    IES Lighting Handbook (from memory).
+    """
+    return np.asarray(v_ratio, float) ** exponent
+
+
+# ===========================================================================
+# the [lighting] table
+# ===========================================================================
+
+#: Feeder resistance when none is given: the lamps sit at the machine's terminals.
+DEFAULT_CABLE_RESISTANCE_OHM = 0.0
+#: Supply tolerance: no single standard for DC; +-5 % is common practice.
+DEFAULT_TOLERANCE_PERCENT = 5.0
+#: Lamp type when none is given: no lamp estimate.
+DEFAULT_LAMP = "none"
+
+
+@dataclass(frozen=True)
+class LightingJob:
+    """Feed lamps at the far end of a feeder. Field names are the ``[lighting]`` keys."""
+
+    nominal_voltage_v: float
+    load_current_a: tuple
+    tolerance_percent: float
+    feeder_resistance_ohm: float
+    lamp: str
+
+
+def read_job(t, source):
+    """The ``[lighting]`` table ``t`` of a profile read from ``source``, checked."""
+    vn = t.number("nominal_voltage_v", low=MIN_VOLTAGE_V, high=MAX_VOLTAGE_V)
+    cur = read_pair(t, "load_current_a", source, low=0, high=MAX_CURRENT_A)
+    tol = t.number("tolerance_percent", DEFAULT_TOLERANCE_PERCENT, low=0, low_open=True, high=50)
+    rf = t.number("feeder_resistance_ohm", DEFAULT_CABLE_RESISTANCE_OHM, low=0, high=MAX_OHM)
+    lp = t.text("lamp", DEFAULT_LAMP, choices=tuple(LAMPS))
+    return LightingJob(nominal_voltage_v=vn, load_current_a=cur, tolerance_percent=tol,
+                       feeder_resistance_ohm=rf, lamp=lp)
+
+
+def evaluate_feeder(space, base_idx, u, booster=False, res=COARSE):
+    """Limits and figures of candidates feeding a load over a feeder (lighting, or a booster's feeder)."""
+    m, prof = space.machine, space.profile
+    job = prof.booster if booster else prof.lighting
+    n = len(base_idx)
+    sub, rows = expand_candidates(space, base_idx, u)
+    lo, hi = job.load_current_a
+    currents = np.linspace(lo, hi, LOAD_POINTS)
+    nominal = job.bus_voltage_v if booster else job.nominal_voltage_v
+    tol = job.tolerance_percent / 100.0
+    vload = np.empty((sub.n, currents.size)); ia_all = np.empty_like(vload); x_all = np.empty_like(vload)
+    e_all = np.empty_like(vload); conv = np.ones(sub.n, bool)
+    p = _params(sub, np.arange(sub.n))
+    for k, il in enumerate(currents):
+        if booster:
+            ia = np.full(sub.n, il)
+            v = _explicit_v(sub, p, ia)
+            st = machine_state(sub, p, v, ia)
+            vl = job.bus_voltage_v + v - il * job.feeder_resistance_ohm
+            x, e, iak = st["x"], st["generated_emf_v"], st["armature_current_a"]
+        else:
+            # a machine sitting below a third of the nominal voltage has failed anyway
+            top = 1.5 * nominal * (1 + tol) + 50.0
+            r = normal_points(sub, np.full(sub.n, nominal / 3), np.full(sub.n, top),
+                              il_of=lambda t, il=il: np.full_like(t, il), **res)
+            vl = r["terminal_voltage_v"] - il * job.feeder_resistance_ohm
+            x, e, iak = r["x"], r["generated_emf_v"], r["armature_current_a"]
+            conv &= r["converged"]
+        vload[:, k], ia_all[:, k], x_all[:, k], e_all[:, k] = vl, iak, x, e
+    nc = space.nc
+    with np.errstate(invalid="ignore"):
+        vmax_c = np.where(np.isnan(vload).any(axis=1), np.nan, vload.max(axis=1))
+        vmin_c = np.where(np.isnan(vload).any(axis=1), np.nan, vload.min(axis=1))
+    vmax, vmin = worst_over_corners(vmax_c, n, nc, "max"), worst_over_corners(vmin_c, n, nc, "min")
+    iamax = worst_over_corners(np.abs(ia_all).max(axis=1), n, nc, "max")
+    lim = {
+        "load_voltage_high": (vmax, nominal * (1 + tol), "max", "V"),
+        "load_voltage_low": (vmin, nominal * (1 - tol), "min", "V"),
+        "armature_current_rating": (iamax, m.rated_armature_current_a, "max", "A"),
+    }
+    figs = {"load_voltage_max_v": vmax, "load_voltage_min_v": vmin,
+            "band_low_v": np.full(n, nominal * (1 - tol)), "band_high_v": np.full(n, nominal * (1 + tol)),
+            "max_armature_current_a": iamax,
+            "min_net_mmf_a": worst_over_corners(x_all.min(axis=1), n, nc, "min"),
+            "max_net_mmf_a": worst_over_corners(np.abs(x_all).max(axis=1), n, nc, "max"),
+            "min_generated_emf_v": worst_over_corners(e_all.min(axis=1), n, nc, "min"),
+            "critical_resistance_ratio": critical_resistance_ratios(space, sub, n),
+            "converged": worst_over_corners(conv.astype(float), n, nc, "min")}
+    if not booster:
+        figs["regulation_band_percent"] = 100.0 * (vmax - vmin) / nominal
+        lp = lamp(job.lamp)
+        if lp.light_exponent is not None:
+            vmin = np.where(vmin > 0, vmin, np.nan); vmax = np.where(vmax > 0, vmax, np.nan)
+            figs["lamp_light_at_low"] = np.asarray(lamp_light_ratio(vmin / nominal, lp.light_exponent))
+            figs["lamp_light_at_high"] = np.asarray(lamp_light_ratio(vmax / nominal, lp.light_exponent))
+            figs["lamp_life_at_high"] = np.asarray(lamp_life_ratio(vmax / nominal, lp.life_exponent))
+            figs["lamp_life_at_low"] = np.asarray(lamp_life_ratio(vmin / nominal, lp.life_exponent))
+    return lim, figs
+
+
+def evaluate(space, base_idx, u, res=COARSE):
+    """Limits and figures of lighting candidates ``(base, control value)`` over the envelope."""
+    return evaluate_feeder(space, base_idx, u, False, res)
+
+
+def solve(space):
+    """Best control value of every candidate and its limits and figures (fine solve)."""
+    u, evaluated = optimise_control(space, evaluate)
+    lim, figs = evaluate(space, np.arange(len(space.bases)), u, FINE)
+    return u, lim, figs, [None] * len(space.bases), evaluated
+
+
+def option_cautions(machine, profile, setting, f):
+    """Lighting cautions of one setting: none beyond the machine's own."""
+    return []
+
+
+def profile_cautions(machine, profile):
+    """Cautions of the lighting job as a whole: none beyond the setting's."""
+    return []
