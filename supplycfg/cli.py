@@ -36,6 +36,16 @@ def _positive_int(text):
     return v
 
 
+def _workers(text):
+    try:
+        v = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a whole number") from None
+    if not 1 <= v <= 256:
+        raise argparse.ArgumentTypeError(f"{v} is outside 1..256")
+    return v
+
+
 def _number(text):
     try:
         v = float(text)
@@ -115,6 +125,13 @@ def _parser():
     p.add_argument("--output", "-o", required=True, help="file to write (.html or .md)")
     p.add_argument("--option", type=_positive_int, default=None, help="rank of the option (1 = best)")
     p.add_argument("--force", action="store_true", help="overwrite an existing file")
+
+    p = sub.add_parser("fleet", help="which machines of a folder can do one job: a search per machine file")
+    p.add_argument("folder", help="folder of machine files (*.toml)")
+    p.add_argument("profile", help="the load profile (TOML)")
+    p.add_argument("--workers", type=_workers, default=None,
+                   help="processes to use (default: every core)")
+    p.add_argument("--json", action="store_true", help="print one JSON object")
 
     p = sub.add_parser("bench", help="time the engine and the search")
     p.add_argument("--repeat", type=_positive_int, default=5)
@@ -348,6 +365,13 @@ def cmd_sheet(args, out):
     return f"wrote {path}"
 
 
+def cmd_fleet(args, out):
+    from .fleet import fleet_search, fleet_text
+    from .profile import load_profile
+    res = fleet_search(args.folder, load_profile(args.profile), args.workers)
+    return res.as_dict() if args.json else fleet_text(res)
+
+
 def cmd_bench(args, out):
     from .bench import run_bench, bench_text
     res = run_bench(args.repeat)
@@ -355,7 +379,8 @@ def cmd_bench(args, out):
 
 
 COMMANDS = {"curve": cmd_curve, "point": cmd_point, "buildup": cmd_buildup, "emf": cmd_emf,
-            "search": cmd_search, "charge": cmd_charge, "sheet": cmd_sheet, "bench": cmd_bench}
+            "search": cmd_search, "charge": cmd_charge, "sheet": cmd_sheet, "fleet": cmd_fleet,
+            "bench": cmd_bench}
 
 
 def main(argv=None):
@@ -370,7 +395,7 @@ def main(argv=None):
             print(res, file=out)
         else:
             print(dumps_json(res), file=out)
-        if args.command in ("curve", "point", "buildup", "search", "charge") and isinstance(res, str):
+        if args.command in ("curve", "point", "buildup", "search", "charge", "fleet") and isinstance(res, str):
             print(f"\n{STANDING_NOTICE}", file=out)
         return 0
     except InputError as exc:

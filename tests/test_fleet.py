@@ -1,0 +1,61 @@
+"""``supplycfg fleet``: one search per machine file of a folder, bad files in their own row.
+
+Checks against the project's own single-machine search (the fleet must give
+the same best option as ``search`` on each file) and the one-line error rule.
+"""
+
+import json
+import shutil
+from pathlib import Path
+
+import pytest
+
+from supplycfg.cli import main
+from supplycfg.fleet import fleet_search
+from supplycfg.machine import load_machine
+from supplycfg.profile import load_profile
+from supplycfg.search import search
+
+ROOT = Path(__file__).resolve().parent.parent
+MACHINES = ROOT / "profiles" / "machines"
+WELDING = ROOT / "profiles" / "loads" / "welding.toml"
+
+
+@pytest.fixture
+def folder(tmp_path):
+    for name in ("welding-set.toml", "lighting-set.toml"):
+        shutil.copy(MACHINES / name, tmp_path / name)
+    (tmp_path / "broken.toml").write_text("[machine]\nlabel = 'x'\n", encoding="utf-8")
+    (tmp_path / "notes.txt").write_text("not a machine file", encoding="utf-8")
+    return tmp_path
+
+
+def test_fleet_rows_match_single_searches_and_keep_bad_files_apart(folder):
+    """Each good row's best option is the best option of ``search`` on that file; the bad one has its error."""
+    p = load_profile(WELDING)
+    res = fleet_search(folder, p, workers=2)
+    names = [Path(r.file).name for r in res.machines]
+    assert names == ["broken.toml", "lighting-set.toml", "welding-set.toml"]
+    bad = res.machines[0]
+    assert bad.error and "broken.toml" in bad.error and "\n" not in bad.error
+    for r in res.machines[1:]:
+        assert r.error is None
+        single = search(load_machine(r.file), p).options[0]
+        assert r.best["setting"] == single.setting_dict()
+        assert r.feasible == single.feasible
+    assert res.machines[2].feasible  # the welding set does the welding job
+
+
+def test_fleet_json_contract(folder, capsys):
+    """JSON: ``machines`` rows with file, feasible, best and error; exit 0 even with a bad file."""
+    assert main(["fleet", str(folder), str(WELDING), "--json", "--workers", "1"]) == 0
+    d = json.loads(capsys.readouterr().out)
+    assert [set(("file", "feasible", "best", "error")) <= set(r) for r in d["machines"]] == [True] * 3
+    assert d["machines"][0]["error"] and d["machines"][0]["best"] is None
+
+
+def test_fleet_refuses_a_folder_without_machines(tmp_path, capsys):
+    """A folder with no *.toml gives one line naming it and exit 2."""
+    assert main(["fleet", str(tmp_path), str(WELDING)]) == 2
+    err = capsys.readouterr().err.strip()
+    assert len(err.splitlines()) == 1 and "no machine files" in err
