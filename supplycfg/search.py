@@ -23,6 +23,7 @@ from .circuit import (SEPARATE, USES_SERIES, Setting, allowed_connections, build
                       check_setting, machine_state, no_load_voltages, normal_points,
                       _explicit_v, _params, _bisect)
 from .machine import load_machine
+from .text import visible
 
 #: Grid of field-control values before refinement.
 CONTROL_GRID = 13
@@ -688,7 +689,7 @@ def _short(v, f=".4g"):
 
 def search_text(res, top=10):
     """The ranked table a technician reads."""
-    lines = [f"{res.machine.label} for {res.profile.label} ({res.profile.kind})",
+    lines = [f"{visible(res.machine.label)} for {visible(res.profile.label)} ({res.profile.kind})",
              f"{res.candidates_evaluated} candidate evaluations in {res.search_seconds:.2f} s", ""]
     hdr = f"{'rank':>4}  {'fit':<4}  {'connection':<25} {'turns':>5} {'diverter':>9} {'field':>14} {'speed':>6}  {'least margin':>12}  cautions / limits broken"
     lines += [hdr, "-" * len(hdr)]
