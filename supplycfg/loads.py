@@ -18,7 +18,7 @@ from dataclasses import dataclass, field, fields
 import numpy as np
 
 from .errors import InputError
-from .validate import Table, read_toml, show_key, source_name
+from .validate import Table, check_tables, read_toml, refuse_unknown_keys, source_name
 
 KINDS = ("battery", "welding", "lighting", "booster")
 
@@ -784,13 +784,12 @@ def _pair(t, k, source, *, low=None, low_open=False, high=None, strict=False, na
 
 def profile_from_dict(data, source="profile"):
     """Build a :class:`LoadProfile` from parsed TOML tables, checking every rule."""
-    if not isinstance(data, dict):
-        raise InputError(source, "file", "must hold TOML tables")
-    known = ("load", "drive") + KINDS
-    for k in data:
-        if k not in known:
-            raise InputError(source, show_key(k), f"is not a known table or key; valid tables: {', '.join(known)}")
-    ld = Table(data.get("load"), source, "load")
+    check_tables(data, source, ("load", "drive") + KINDS, "load profile",
+                 ("machine", "open_circuit", "armature_reaction", "winding"), "machine file")
+    keys = {"load": ("kind", "label"), "drive": ("speed_rpm", "speed_range_rpm", "winding_temperature_range_c"),
+            **{k: tuple(f.name for f in fields(_JOB_CLASSES[k])) for k in KINDS}}
+    refuse_unknown_keys(data, source, keys)
+    ld = Table(data.get("load"), source, "load", keys=keys["load"])
     kind = ld.text("kind", choices=KINDS)
     label = ld.text("label", "")
     ld.finish()
@@ -798,7 +797,7 @@ def profile_from_dict(data, source="profile"):
         if other != kind and other in data:
             raise InputError(source, other, f"table given but load.kind is {kind!r}; allowed: only [{kind}]")
 
-    dr = Table(data.get("drive"), source, "drive")
+    dr = Table(data.get("drive"), source, "drive", keys=keys["drive"])
     has_one, has_range = dr.has("speed_rpm"), dr.has("speed_range_rpm")
     if has_one and has_range:
         raise InputError(source, "drive.speed_range_rpm", "given together with speed_rpm; allowed: one of the two")
@@ -815,7 +814,7 @@ def profile_from_dict(data, source="profile"):
                   required=False)
     dr.finish()
 
-    jt = Table(data.get(kind), source, kind)
+    jt = Table(data.get(kind), source, kind, keys=keys[kind])
     jobs = {"battery": None, "welding": None, "lighting": None, "booster": None}
     jobs[kind] = _JOB_READERS[kind](jt, source)
     jt.finish()
@@ -893,6 +892,8 @@ def _read_booster(t, source):
 
 _JOB_READERS = {"battery": _read_battery, "welding": _read_welding,
                 "lighting": _read_lighting, "booster": _read_booster}
+# each job table's keys are its dataclass's fields
+_JOB_CLASSES = {"battery": BatteryJob, "welding": WeldingJob, "lighting": LightingJob, "booster": BoosterJob}
 
 
 def _toml_value(v):

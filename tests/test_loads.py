@@ -274,7 +274,7 @@ def test_demo_profiles_present():
 def test_demo_profile_round_trip(path):
     """profile_from_dict(profile_to_dict(p)) == p, and the text form reads the same."""
     p = L.load_profile(path)
-    assert p.source == path.name
+    assert p.source == str(path)
     q = L.profile_from_dict(profile_dict := L.profile_to_dict(p), "again")
     assert q == p
     assert L.profile_to_dict(q) == profile_dict
