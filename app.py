@@ -1,7 +1,8 @@
-"""supplycfg's page: ``streamlit run app.py --server.address 127.0.0.1``.
+"""supplycfg's page: ``supplycfg page`` (or ``streamlit run app.py`` from this folder).
 
-Run as ``python app.py`` it starts Streamlit itself, bound to this computer
-(127.0.0.1) unless ``--server.address`` is given.
+Run as ``python app.py`` it starts Streamlit itself with the settings of
+``supplycfg page`` (this computer only, 1 MB uploads, ...) as flags; a flag
+given on the command line replaces its default.
 """
 
 import sys
@@ -9,11 +10,13 @@ import sys
 
 def _launch():
     from streamlit.web import cli
+    from supplycfg.cli import PAGE_FLAGS
     args = sys.argv[1:]
-    if not any(a.startswith("--server.address") for a in args):
-        args = ["--server.address", "127.0.0.1"] + args
-    sys.argv = ["streamlit", "run", __file__, "--browser.gatherUsageStats", "false",
-                "--client.toolbarMode", "minimal"] + args
+    flags = []
+    for key, value in PAGE_FLAGS.items():
+        if not any(a.startswith(f"--{key}") for a in args):
+            flags += [f"--{key}", value]
+    sys.argv = ["streamlit", "run", __file__] + flags + args
     sys.exit(cli.main())
 
 

@@ -15,6 +15,8 @@ from . import __version__
 PROFILES = Path(__file__).resolve().parent.parent / "profiles"
 DEMO_PAIRS = (("charging-set", "battery-charging"), ("welding-set", "welding"),
               ("lighting-set", "lighting"), ("feeder-booster", "booster"))
+#: Most runs per figure: a median of 20 is steady, and one bench stays within minutes.
+MAX_BENCH_REPEAT = 20
 TARGETS = {"characteristic_ms": 5.0, "grid_seconds": 0.5, "search_seconds": 0.3,
            "charge_run_seconds": 0.1, "app_first_render_seconds": 3.0, "app_change_seconds": 0.3,
            "fleet_seconds": 3.0}
@@ -86,7 +88,10 @@ def write_fleet_variants(folder, count=48):
 
 
 def run_bench(repeat=5):
-    """Run every benchmark; returns a JSON-safe dict."""
+    """Run every benchmark (``repeat`` runs per figure, 1 to MAX_BENCH_REPEAT); returns a JSON-safe dict."""
+    if isinstance(repeat, bool) or not isinstance(repeat, int) or not 1 <= repeat <= MAX_BENCH_REPEAT:
+        from .errors import InputError
+        raise InputError("bench", "repeat", f"is {repeat!r}; allowed: a whole number 1 to {MAX_BENCH_REPEAT}")
     from .circuit import Setting, characteristics, external_characteristic
     from .profile import load_profile
     from .machine import load_machine

@@ -158,8 +158,8 @@ def check_setting(machine, setting, source="setting", names=None):
         if v is not None and (isinstance(v, bool) or not np.isfinite(float(v))):
             err(key, f"is {v!r}; allowed: a finite number")
     speed = machine.rated_speed_rpm if s.speed_rpm is None else float(s.speed_rpm)
-    if not 0 < speed <= 100_000:
-        err("speed_rpm", f"is {speed:g}; allowed: > 0 and <= 100000 rpm")
+    if not 1 <= speed <= 100_000:  # the bounds of the files' speeds
+        err("speed_rpm", f"is {speed:g}; allowed: 1 to 100000 rpm")
     temp = machine.reference_temperature_c if s.winding_temperature_c is None else float(s.winding_temperature_c)
     if not -60 <= temp <= 250:
         err("winding_temperature_c", f"is {temp:g}; allowed: -60 to 250 degC")
@@ -184,12 +184,14 @@ def check_setting(machine, setting, source="setting", names=None):
         if nse is None:
             nse = machine.series_turns_per_pole
         nse = float(nse)
-        if not any(abs(nse - t) < 1e-9 for t in machine.series_taps):
-            err("series_turns", f"is {nse:g}; allowed taps: {', '.join(f'{t:g}' for t in machine.series_taps)}")
+        # a tap is the number of turns the file lists, exactly (decimal rounding aside)
+        tap = [t for t in machine.series_taps if abs(nse - t) <= 1e-12 * max(1.0, t)]
+        if not tap:
+            err("series_turns", f"is {nse!r}; allowed taps: {', '.join(f'{t:g}' for t in machine.series_taps)} "
+                "(series turns per pole, as the machine file lists them)")
+        nse = tap[0]
         if s.connection == "series" and nse <= 0:
             err("series_turns", "is 0; a series machine needs its series turns")
-        if s.connection.startswith("short-shunt") and nse >= machine.shunt_turns_per_pole:
-            err("series_turns", "must be fewer than the shunt turns for a short-shunt connection")
     else:
         if nse not in (None, 0, 0.0):
             err("series_turns", f"does not apply to {s.connection!r}; allowed: omit it or 0")
@@ -730,23 +732,34 @@ def _grids(circ):
     return xg, ig
 
 
+def _short_factor(p):
+    """``1 - c`` for a short shunt (its series winding carries IL = Ia - Ish), 1 otherwise.
+
+    The circuit is written ``N(x) = L(Ia)`` with both sides multiplied by this
+    factor rather than divided by it, so a series winding of as many turns as
+    the shunt's (factor 0) or more (negative) needs no special case: N then
+    falls steadily with x and each Ia has one x.
+    """
+    return 1.0 - p["c"] * p["short"]
+
+
 def _n_fun(circ, p, x):
-    g = np.where(p["short"], p["rf"] / (1 - p["c"]), p["rf"])
-    return p["s"] * circ.occ.emf(x) - g * x
+    return _short_factor(p) * p["s"] * circ.occ.emf(x) - p["rf"] * x
 
 
 def _l_fun(circ, p, ia):
-    g = np.where(p["short"], p["rf"] / (1 - p["c"]), p["rf"])
     rl = np.where(p["branch"] == 1, p["ra"] + p["rbr"], p["ra"])
     far = circ.ar.mmf(ia) / circ.nsh
-    return ia * rl + brush_drop(ia, circ.vb, circ.ir) + g * (far - p["c"] * ia)
+    return _short_factor(p) * (ia * rl + brush_drop(ia, circ.vb, circ.ir)) + p["rf"] * (far - p["c"] * ia)
 
 
 def _state_from_x_ia(circ, p, x, ia):
     """Terminal quantities of a self-excited candidate at (x, Ia)."""
-    g = np.where(p["short"], p["rf"] / (1 - p["c"]), p["rf"])
     far = circ.ar.mmf(ia) / circ.nsh
-    ish = (x - p["c"] * ia + far) * g / p["rf"]
+    # the short shunt's field sits across the armature: Ish Rf = E - Ia Ra - Vb
+    # (the mmf balance would divide by 1 - c, zero for equal turns)
+    arm_v = p["s"] * circ.occ.emf(x) - ia * p["ra"] - brush_drop(ia, circ.vb, circ.ir)
+    ish = np.where(p["short"], arm_v / p["rf"], x - p["c"] * ia + far)
     il = ia - ish
     v = np.where(p["short"], ish * p["rf"] - il * p["rbr"], ish * p["rf"])
     return v, il
@@ -763,6 +776,9 @@ def _trace_self_excited(circ, i, xg, ig, ng, lg, samples=48):
     # stable no-load root: highest x where N crosses zero downward
     down = (ng[:-1] >= 0) & (ng[1:] < 0)
     cells = np.flatnonzero(down & (xg[:-1] >= -1e-12))
+    if cells.size == 0 and circ.short[i] and circ.c[i] >= 1:
+        # N falls steadily: its one root (Ia = 0, the series winding opposing) lies at x <= 0
+        cells = np.flatnonzero(down)
     if cells.size == 0:
         return [], "no built-up no-load point on the searched span"
     cn = int(cells[-1])

@@ -2,14 +2,22 @@
 
 Every command prints a readable table, or with ``--json`` one JSON object and
 nothing else. Bad input gives one line on standard error and exit code 2.
+Text from files (labels, names) is shown with every control character as a
+visible escape; JSON keeps it exact.
 """
 
 import argparse
+import math
+import os
+import re
 import sys
+from pathlib import Path
 
 from . import __version__, STANDING_NOTICE
 from .errors import InputError
-from .files import dumps_json
+from .bench import MAX_BENCH_REPEAT
+from .files import check_output_path, dumps_json
+from .text import visible
 
 SETTING_OPTIONS = {"rheostat_ohm": "--rheostat-ohm", "field_current_a": "--field-current-a",
                    "series_turns": "--series-turns", "diverter_ohm": "--diverter-ohm",
@@ -17,23 +25,60 @@ SETTING_OPTIONS = {"rheostat_ohm": "--rheostat-ohm", "field_current_a": "--field
                    "connection": "--connection"}
 
 
+#: Upper bounds of the options that multiply work or output (README, "What it checks").
+MAX_CURVE_POINTS = 10_000
+MAX_TOP = 1_000
+MAX_OPTION_RANK = 1_000
+#: Bounds of the EMF equation's inputs: those of the machine file's keys
+#: (poles, [winding]) and of any real machine (flux per pole, EMF).
+MAX_POLES = 64
+MAX_CONDUCTORS = 10_000_000
+MAX_PARALLEL_PATHS = 1_000
+MAX_FLUX_WB = 100.0
+MAX_EMF_V = 1e6
+MIN_SPEED_RPM, MAX_SPEED_RPM = 1.0, 100_000.0
+#: Bounds of a load given on the command line: far beyond any generator the
+#: machine file allows, and small enough that no product of them overflows.
+MAX_LOAD_OHM = 1e6
+MAX_LOAD_CURRENT_A = 1e6
+MAX_LOAD_VOLTAGE_V = 1e5
+#: Streamlit settings of the page, passed as flags so that no configuration
+#: file of the folder it is started from applies: this computer only, no
+#: browser opened, 1 MB uploads, no usage statistics, a minimal toolbar.
+PAGE_FLAGS = {"server.address": "127.0.0.1", "server.headless": "true", "server.maxUploadSize": "1",
+              "browser.gatherUsageStats": "false", "client.toolbarMode": "minimal"}
+DEFAULT_PAGE_PORT = 8501
+#: The script Streamlit runs for ``supplycfg page`` (it only calls the page's main()).
+PAGE_SCRIPT = Path(__file__).resolve().parent / "page" / "entry.py"
+#: A negative number as an option's value (argparse alone takes "-1e3" for an option).
+_NEGATIVE_NUMBER = re.compile(r"^-(\d+\.?\d*|\.\d+)([eE][-+]?\d+)?$|^-inf(inity)?$", re.IGNORECASE)
+
+
 class _Parser(argparse.ArgumentParser):
+    def __init__(self, *args, **kwargs):
+        super().__init__(*args, **kwargs)
+        self._negative_number_matcher = _NEGATIVE_NUMBER
+
     def error(self, message):
-        import re
         found = re.match(r"argument ([^:]+): (.*)", message)
         if found:
             raise InputError("command line", found.group(1).split("/")[0], found.group(2))
         raise InputError("command line", self.prog, message)
 
 
-def _positive_int(text):
-    try:
-        v = int(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"{text!r} is not a whole number") from None
-    if not 2 <= v <= 100_000:
-        raise argparse.ArgumentTypeError(f"{v} is outside 2..100000")
-    return v
+def _whole(low, high, even=False):
+    """An argparse type: a whole number in ``low..high`` (even if asked)."""
+    def parse(text):
+        try:
+            v = int(text)
+        except ValueError:
+            raise argparse.ArgumentTypeError(f"{visible(text[:40])!r} is not a whole number") from None
+        if not low <= v <= high:
+            raise argparse.ArgumentTypeError(f"{v} is outside {low}..{high}")
+        if even and v % 2:
+            raise argparse.ArgumentTypeError(f"{v} is odd; allowed: an even whole number {low}..{high}")
+        return v
+    return parse
 
 
 def _workers(text):
@@ -50,10 +95,21 @@ def _number(text):
     try:
         v = float(text)
     except ValueError:
-        raise argparse.ArgumentTypeError(f"{text!r} is not a number") from None
-    if v != v or v in (float("inf"), float("-inf")):
-        raise argparse.ArgumentTypeError(f"{text!r} is not a finite number")
+        raise argparse.ArgumentTypeError(f"{visible(text[:40])!r} is not a number") from None
+    if not math.isfinite(v):
+        raise argparse.ArgumentTypeError(f"{visible(text[:40])!r} is not a finite number")
     return v
+
+
+def _number_in(low, high, unit, low_open=False):
+    """An argparse type: a finite number in ``[low, high]`` (``(low, high]`` if ``low_open``)."""
+    def parse(text):
+        v = _number(text)
+        if (v <= low if low_open else v < low) or v > high:
+            lo = f"> {low:g}" if low_open else f">= {low:g}"
+            raise argparse.ArgumentTypeError(f"{v:g} is outside the allowed range: {lo} and <= {high:g} {unit}")
+        return v
+    return parse
 
 
 def _add_setting(p, connection_default=None, connection=True):
@@ -65,9 +121,9 @@ def _add_setting(p, connection_default=None, connection=True):
     g = p.add_mutually_exclusive_group()
     g.add_argument("--rheostat-ohm", type=_number, help="field rheostat [ohm]")
     g.add_argument("--field-current-a", type=_number, help="separate excitation field current [A]")
-    p.add_argument("--series-turns", type=_number, help="series turns per pole in use (a tap)")
+    p.add_argument("--series-turns", type=_number, help="series turns per pole in use: one of the machine's taps, exactly")
     p.add_argument("--diverter-ohm", type=_number, help="diverter across the series winding [ohm]")
-    p.add_argument("--speed-rpm", type=_number, help="drive speed [rpm]; default rated")
+    p.add_argument("--speed-rpm", type=_number_in(MIN_SPEED_RPM, MAX_SPEED_RPM, "rpm"), help="drive speed [rpm]; default rated")
     p.add_argument("--winding-temperature-c", type=_number, help="winding temperature [degC]; default reference")
 
 
@@ -78,17 +134,21 @@ def _parser():
 
     p = sub.add_parser("curve", help="external characteristic of one setting")
     p.add_argument("machine"); _add_setting(p)
-    p.add_argument("--points", type=_positive_int, default=40, help="points along the curve")
+    p.add_argument("--points", type=_whole(2, MAX_CURVE_POINTS), default=40,
+                   help=f"points along the curve (2 to {MAX_CURVE_POINTS})")
     p.add_argument("--json", action="store_true")
 
     p = sub.add_parser("point", help="operating points of one setting against one load")
     p.add_argument("machine"); _add_setting(p)
-    p.add_argument("--load-ohm", type=_number)
-    p.add_argument("--load-current-a", type=_number)
-    p.add_argument("--battery-emf-v", type=_number)
-    p.add_argument("--battery-ohm", type=_number)
-    p.add_argument("--line-v0", type=_number)
-    p.add_argument("--line-slope-ohm", type=_number)
+    ohm = _number_in(0.0, MAX_LOAD_OHM, "ohm")
+    volts = _number_in(-MAX_LOAD_VOLTAGE_V, MAX_LOAD_VOLTAGE_V, "V")
+    p.add_argument("--load-ohm", type=ohm, help="resistor load [ohm]")
+    p.add_argument("--load-current-a", type=_number_in(-MAX_LOAD_CURRENT_A, MAX_LOAD_CURRENT_A, "A"),
+                   help="constant-current load [A]")
+    p.add_argument("--battery-emf-v", type=volts, help="battery EMF [V]")
+    p.add_argument("--battery-ohm", type=ohm, help="battery and cable resistance [ohm]")
+    p.add_argument("--line-v0", type=volts, help="load line voltage at zero current [V]")
+    p.add_argument("--line-slope-ohm", type=ohm, help="load line slope [ohm]")
     p.add_argument("--json", action="store_true")
 
     p = sub.add_parser("buildup", help="self-excitation of the shunt field (or a series machine)")
@@ -96,23 +156,24 @@ def _parser():
     p.add_argument("--connection", default="shunt", help="shunt (default) or series")
     p.add_argument("--rheostat-ohm", type=_number)
     p.add_argument("--series-turns", type=_number)
-    p.add_argument("--speed-rpm", type=_number)
+    p.add_argument("--speed-rpm", type=_number_in(MIN_SPEED_RPM, MAX_SPEED_RPM, "rpm"))
     p.add_argument("--winding-temperature-c", type=_number)
     p.add_argument("--json", action="store_true")
 
     p = sub.add_parser("emf", help="the EMF equation E = P*Phi*N*Z/(60*A), either way")
-    p.add_argument("--poles", type=_positive_int, required=True)
-    p.add_argument("--conductors", type=_positive_int, required=True)
-    p.add_argument("--parallel-paths", type=_positive_int, required=True)
-    p.add_argument("--speed-rpm", type=_number, required=True)
+    p.add_argument("--poles", type=_whole(2, MAX_POLES, even=True), required=True, help="pole count P (even)")
+    p.add_argument("--conductors", type=_whole(1, MAX_CONDUCTORS), required=True, help="armature conductors Z")
+    p.add_argument("--parallel-paths", type=_whole(2, MAX_PARALLEL_PATHS, even=True), required=True,
+                   help="parallel paths A (even: 2 for wave, the pole count or a multiple for lap)")
+    p.add_argument("--speed-rpm", type=_number_in(MIN_SPEED_RPM, MAX_SPEED_RPM, "rpm"), required=True)
     g = p.add_mutually_exclusive_group(required=True)
-    g.add_argument("--flux-wb", type=_number)
-    g.add_argument("--emf-v", type=_number)
+    g.add_argument("--flux-wb", type=_number_in(0.0, MAX_FLUX_WB, "Wb"), help="flux per pole [Wb]")
+    g.add_argument("--emf-v", type=_number_in(0.0, MAX_EMF_V, "V"), help="generated EMF [V]")
     p.add_argument("--json", action="store_true")
 
     p = sub.add_parser("search", help="settings that meet a load profile, ranked")
     p.add_argument("machine"); p.add_argument("profile")
-    p.add_argument("--top", type=_positive_int, default=10)
+    p.add_argument("--top", type=_whole(1, MAX_TOP), default=10, help=f"options shown (1 to {MAX_TOP})")
     p.add_argument("--json", action="store_true")
 
     p = sub.add_parser("charge", help="a battery charge through time")
@@ -123,7 +184,7 @@ def _parser():
     p = sub.add_parser("sheet", help="write the setting sheet of the best option (HTML or Markdown)")
     p.add_argument("machine"); p.add_argument("profile")
     p.add_argument("--output", "-o", required=True, help="file to write (.html or .md)")
-    p.add_argument("--option", type=_positive_int, default=None, help="rank of the option (1 = best)")
+    p.add_argument("--option", type=_whole(1, MAX_OPTION_RANK), default=None, help="rank of the option (1 = best)")
     p.add_argument("--force", action="store_true", help="overwrite an existing file")
 
     p = sub.add_parser("fleet", help="which machines of a folder can do one job: a search per machine file")
@@ -134,8 +195,15 @@ def _parser():
     p.add_argument("--json", action="store_true", help="print one JSON object")
 
     p = sub.add_parser("bench", help="time the engine and the search")
-    p.add_argument("--repeat", type=_positive_int, default=5)
+    p.add_argument("--repeat", type=_whole(1, MAX_BENCH_REPEAT), default=5,
+                   help=f"runs per figure (1 to {MAX_BENCH_REPEAT})")
     p.add_argument("--json", action="store_true")
+
+    p = sub.add_parser("page", help="start the page in a browser tab on this computer (Streamlit)")
+    p.add_argument("--port", type=_whole(1, 65535), default=DEFAULT_PAGE_PORT,
+                   help=f"port to listen on (default {DEFAULT_PAGE_PORT})")
+    p.add_argument("--address", default=PAGE_FLAGS["server.address"],
+                   help="address to listen on (default 127.0.0.1, this computer only)")
     return top
 
 
@@ -175,6 +243,11 @@ def _cell(v, f):
     return str(v)
 
 
+def _name(machine, args):
+    """The machine's label, or the file as given, with hidden characters made visible."""
+    return visible(machine.label or args.machine)
+
+
 def _fmt(v, unit="", f=".4g"):
     return "-" if v is None else f"{v:{f}} {unit}".strip()
 
@@ -191,7 +264,7 @@ def cmd_curve(args, out):
            "converged": c.converged, "notes": c.notes}
     if args.json:
         return res
-    lines = [f"{m.label or args.machine}: {st.connection}, {st.describe()}",
+    lines = [f"{_name(m, args)}: {st.connection}, {st.describe()}",
              f"no-load voltage {_fmt(c.no_load_voltage_v, 'V')}; short-circuit current {_fmt(c.short_circuit_current_a, 'A')}; "
              f"largest load current {_fmt(c.max_load_current_a, 'A')}; regulation at rated current {_fmt(c.regulation_percent, '%', '.3g')}",
              ""]
@@ -230,8 +303,6 @@ def cmd_point(args, out):
                          "--battery-emf-v E --battery-ohm r, or --line-v0 U0 --line-slope-ohm k")
     kind = kinds[0]
     if kind == "resistor":
-        if given["load_ohm"] < 0:
-            raise InputError("command line", "--load-ohm", f"is {given['load_ohm']:g}; allowed: >= 0 ohm")
         load = Load.resistor(given["load_ohm"])
     elif kind == "current":
         load = Load.constant_current(given["load_current_a"])
@@ -239,15 +310,11 @@ def cmd_point(args, out):
         for k, opt in (("battery_emf_v", "--battery-emf-v"), ("battery_ohm", "--battery-ohm")):
             if k not in given:
                 raise InputError("command line", opt, "is missing; a battery load needs --battery-emf-v and --battery-ohm")
-        if given["battery_ohm"] < 0:
-            raise InputError("command line", "--battery-ohm", "allowed: >= 0 ohm")
         load = Load.battery(given["battery_emf_v"], given["battery_ohm"])
     else:
         for k, opt in (("line_v0", "--line-v0"), ("line_slope_ohm", "--line-slope-ohm")):
             if k not in given:
                 raise InputError("command line", opt, "is missing; a line load needs --line-v0 and --line-slope-ohm")
-        if given["line_slope_ohm"] < 0:
-            raise InputError("command line", "--line-slope-ohm", "allowed: >= 0 ohm")
         load = Load.line(given["line_v0"], given["line_slope_ohm"])
     m = load_machine(args.machine)
     st = _checked(m, _setting_from(args))
@@ -256,7 +323,7 @@ def cmd_point(args, out):
     res = {"setting": st.as_dict(), "load": load.label, "operating_points": pts, "converged": ops.converged}
     if args.json:
         return res
-    lines = [f"{m.label or args.machine}: {st.connection}, {st.describe()}; load: {load.label}", ""]
+    lines = [f"{_name(m, args)}: {st.connection}, {st.describe()}; load: {load.label}", ""]
     if pts:
         lines.append(table(pts, ["terminal_voltage_v", "load_current_a", "armature_current_a", "shunt_field_current_a",
                                  "series_field_current_a", "generated_emf_v", "stable", "extrapolated"]))
@@ -283,7 +350,7 @@ def cmd_buildup(args, out):
         res = {"connection": "series", "critical_circuit_resistance_ohm": r}
         if args.json:
             return res
-        return (f"{m.label or args.machine}: series connection\n"
+        return (f"{_name(m, args)}: series connection\n"
                 f"critical circuit resistance {r:.4g} ohm: the machine builds up only on a closed circuit "
                 "(armature, series field and load) of lower total resistance")
     if args.connection != "shunt":
@@ -299,7 +366,7 @@ def cmd_buildup(args, out):
            "reasons": se.reasons, "extrapolated": se.extrapolated, "converged": se.converged}
     if args.json:
         return res
-    lines = [f"{m.label or args.machine}: shunt field at no load, {se.setting.describe()}",
+    lines = [f"{_name(m, args)}: shunt field at no load, {se.setting.describe()}",
              f"field circuit {se.field_circuit_resistance_ohm:.4g} ohm; critical {se.critical_field_resistance_ohm:.4g} ohm at this speed; "
              f"critical speed {se.critical_speed_rpm:.5g} rpm",
              f"builds up from residual: {'yes' if se.builds_up else 'no'}",
@@ -315,18 +382,15 @@ def cmd_buildup(args, out):
 
 def cmd_emf(args, out):
     from .magnetisation import emf_from_flux, flux_from_emf
+    if args.parallel_paths > args.conductors:
+        raise InputError("command line", "--parallel-paths", f"is {args.parallel_paths}; allowed: at most the "
+                         f"number of conductors ({args.conductors}): each path holds at least one")
     if args.flux_wb is not None:
-        if args.flux_wb < 0:
-            raise InputError("command line", "--flux-wb", "allowed: >= 0 Wb")
         flux = args.flux_wb
         emf = float(emf_from_flux(args.poles, args.conductors, args.parallel_paths, args.speed_rpm, flux))
     else:
         emf = args.emf_v
-        if args.speed_rpm <= 0:
-            raise InputError("command line", "--speed-rpm", "allowed: > 0 rpm")
         flux = float(flux_from_emf(args.poles, args.conductors, args.parallel_paths, args.speed_rpm, emf))
-    if args.speed_rpm <= 0:
-        raise InputError("command line", "--speed-rpm", "allowed: > 0 rpm")
     res = {"emf_v": emf, "flux_wb": flux, "poles": args.poles, "conductors": args.conductors,
            "parallel_paths": args.parallel_paths, "speed_rpm": args.speed_rpm}
     if args.json:
@@ -361,8 +425,10 @@ def cmd_charge(args, out):
 
 def cmd_sheet(args, out):
     from .report import sheet_from_files
+    # before the search: a name or folder that cannot be written fails in a moment, not after it
+    check_output_path(args.output, args.force)
     path = sheet_from_files(args.machine, args.profile, args.output, args.option, args.force)
-    return f"wrote {path}"
+    return f"wrote {visible(path)}"
 
 
 def cmd_fleet(args, out):
@@ -378,21 +444,50 @@ def cmd_bench(args, out):
     return res if args.json else bench_text(res)
 
 
+def page_command(port=DEFAULT_PAGE_PORT, address=None):
+    """The command that serves the page with the package's own Streamlit settings.
+
+    Every setting is a command-line flag, which Streamlit ranks above any
+    ``.streamlit/config.toml`` of the folder it starts in.
+    """
+    flags = dict(PAGE_FLAGS, **({"server.address": address} if address else {}))
+    flags["server.port"] = str(port)
+    argv = [sys.executable, "-m", "streamlit", "run", str(PAGE_SCRIPT)]
+    for k, v in flags.items():
+        argv += [f"--{k}", v]
+    return argv
+
+
+def cmd_page(args, out):
+    argv = page_command(args.port, args.address)
+    out.flush()
+    sys.stderr.flush()
+    if os.name == "posix":
+        os.execv(argv[0], argv)  # the server takes this process's place: one process to stop
+    import subprocess
+    return subprocess.call(argv)
+
+
 COMMANDS = {"curve": cmd_curve, "point": cmd_point, "buildup": cmd_buildup, "emf": cmd_emf,
             "search": cmd_search, "charge": cmd_charge, "sheet": cmd_sheet, "fleet": cmd_fleet,
-            "bench": cmd_bench}
+            "bench": cmd_bench, "page": cmd_page}
 
 
 def main(argv=None):
     out = sys.stdout
     try:
-        args = _parser().parse_args(argv)
+        parser = _parser()
+        args = parser.parse_args(argv)
         if not args.command:
-            _parser().print_help(out)
+            parser.print_usage(sys.stderr)
+            print("supplycfg: command line: command: is missing; give one of "
+                  f"{', '.join(COMMANDS)} (supplycfg --help says more)", file=sys.stderr)
             return 2
         res = COMMANDS[args.command](args, out)
+        if isinstance(res, int):
+            return res
         if isinstance(res, str):
-            print(res, file=out)
+            print(visible(res, keep_newlines=True), file=out)
         else:
             print(dumps_json(res), file=out)
         if args.command in ("curve", "point", "buildup", "search", "charge", "fleet") and isinstance(res, str):
@@ -407,7 +502,8 @@ def main(argv=None):
     except BrokenPipeError:
         return 0
     except Exception as exc:  # a fault of ours: one line, never a traceback
-        print(f"supplycfg: internal error, please report it: {type(exc).__name__}: {exc}", file=sys.stderr)
+        text = visible(" ".join(str(exc).split()))
+        print(f"supplycfg: internal error, please report it: {type(exc).__name__}: {text}", file=sys.stderr)
         return 1
 
 

@@ -74,6 +74,64 @@ def dumps_toml(tables, header=None):
     return "\n".join(lines)
 
 
+#: Longest file name and path assumed where the system does not say (POSIX NAME_MAX, PATH_MAX).
+DEFAULT_NAME_MAX = 255
+DEFAULT_PATH_MAX = 4096
+
+
+def check_output_path(path, force=False):
+    """Refuse, before any work is done, a file that :func:`write_atomic` could not write.
+
+    Parameters
+    ----------
+    path : str or Path
+        The file as the person gave it; messages name it that way.
+    force : bool
+        An existing file may be replaced.
+
+    Returns
+    -------
+    Path
+
+    Raises
+    ------
+    InputError
+        One line: a name too long, a folder that does not exist or cannot be
+        written, a folder in the file's place, or an existing file without
+        ``force``.
+    """
+    given = str(path)
+    if not given:
+        raise InputError("command line", "output", "is empty; give a file name")
+    p = Path(path)
+    folder = p.parent if str(p.parent) else Path(".")
+    try:
+        name_max = os.pathconf(folder if folder.is_dir() else ".", "PC_NAME_MAX")
+    except (OSError, ValueError, AttributeError):
+        name_max = DEFAULT_NAME_MAX
+    name_max = name_max if isinstance(name_max, int) and name_max > 0 else DEFAULT_NAME_MAX
+    for part in p.parts:
+        size = len(os.fsencode(part))
+        if size > name_max:
+            raise InputError(given, "output", f"holds a name of {size} bytes ({part[:24]!r}...); "
+                             f"allowed: at most {name_max} bytes per file or folder name")
+    if len(os.fsencode(given)) > DEFAULT_PATH_MAX:
+        raise InputError(given, "output", f"is {len(os.fsencode(given))} bytes long; allowed: at most {DEFAULT_PATH_MAX}")
+    try:
+        if not folder.is_dir():
+            raise InputError(given, "output", f"its folder {str(folder)!r} does not exist; create it first "
+                             "or give a file in a folder that exists")
+        if not os.access(folder, os.W_OK | os.X_OK):
+            raise InputError(given, "output", f"its folder {str(folder)!r} cannot be written; give another folder")
+        if p.is_dir():
+            raise InputError(given, "output", "is a folder; give a file name")
+        if os.path.lexists(p) and not force:
+            raise InputError(given, "output", "exists already; pass --force to overwrite it")
+    except OSError as exc:
+        raise InputError(given, "output", f"cannot be checked ({exc.strerror or type(exc).__name__})") from None
+    return p
+
+
 def write_atomic(path, data, force=False):
     """Write ``data`` (str or bytes) to ``path`` through a temporary file and ``os.replace``.
 
@@ -84,17 +142,13 @@ def write_atomic(path, data, force=False):
     ------
     InputError
         When the file exists (or is a link) and ``force`` is false, when it is
-        a folder, or when the folder cannot be written.
+        a folder, when its name is too long, or when the folder does not exist
+        or cannot be written (see :func:`check_output_path`).
     """
-    path = Path(path)
-    name = path.name or str(path)
-    if path.is_dir():
-        raise InputError(name, "output", "is a folder; give a file name")
-    if os.path.lexists(path) and not force:
-        raise InputError(name, "output", "exists already; pass --force to overwrite it")
+    given = str(path)
+    path = check_output_path(path, force)
+    name = path.name or given
     folder = path.parent if str(path.parent) else Path(".")
-    if not folder.is_dir():
-        raise InputError(name, "output", "its folder does not exist")
     raw = data.encode("utf-8") if isinstance(data, str) else data
     try:
         mode = os.stat(path).st_mode & 0o7777 if path.exists() else None
@@ -106,7 +160,8 @@ def write_atomic(path, data, force=False):
         mode = 0o666 & ~umask
     tmp = None
     try:
-        fd, tmp = tempfile.mkstemp(prefix=f".{name}.", suffix=".tmp", dir=folder)
+        # a short prefix: the temporary name must fit where the full name just fits
+        fd, tmp = tempfile.mkstemp(prefix=f".{name[:40]}.", suffix=".tmp", dir=folder)
         with os.fdopen(fd, "wb") as fh:
             fh.write(raw)
             fh.flush()
@@ -115,7 +170,7 @@ def write_atomic(path, data, force=False):
         os.replace(tmp, path)
         tmp = None
     except OSError as exc:
-        raise InputError(name, "output", f"cannot be written ({exc.strerror or type(exc).__name__})") from None
+        raise InputError(given, "output", f"cannot be written ({exc.strerror or type(exc).__name__})") from None
     finally:
         if tmp is not None:
             try:

@@ -11,7 +11,7 @@ from dataclasses import dataclass, field, asdict
 import numpy as np
 
 from .errors import InputError
-from .validate import Table, read_toml, show_key, source_name
+from .validate import Table, check_tables, read_toml, refuse_unknown_keys, source_name
 
 #: Reference temperature of the stated resistances [degC]; the usual rating
 #: temperature for class B/F insulation (IEC 60034-1 reference temperatures).
@@ -32,6 +32,33 @@ _MIN_TURNS = 0.01
 # Largest open-circuit test values: beyond any machine the other keys allow.
 _MAX_FIELD_CURRENT_A = 1e5
 _MAX_EMF_V = 1e6
+
+# Upper bounds on what multiplies the work of a search (README, "What it checks"):
+# each series tap is a candidate in every connection, with every diverter, at
+# every speed and temperature; curve points and table rows enter every grid.
+#: Most entries of ``series_taps`` (0 included): a tapped series winding has a handful.
+MAX_SERIES_TAPS = 12
+#: Most points of the open-circuit curve: a test has tens, a finely sampled curve hundreds.
+MAX_OCC_POINTS = 500
+#: Most rows of the armature-reaction table.
+MAX_AR_ROWS = 500
+#: Smallest step between adjacent field currents of the curve, as a share of
+#: the largest: finer steps carry no measurement and their slopes overflow.
+MIN_STEP_FRACTION = 1e-6
+
+#: Tables of a machine file, and the keys of each.
+MACHINE_TABLES = ("machine", "open_circuit", "armature_reaction", "winding")
+MACHINE_KEYS = ("label", "poles", "rated_speed_rpm", "rated_voltage_v", "rated_armature_current_a",
+                "armature_resistance_ohm", "brush_drop_v", "shunt_field_resistance_ohm",
+                "shunt_turns_per_pole", "series_field_resistance_ohm", "series_turns_per_pole",
+                "series_taps", "rheostat_max_ohm", "excitation_voltage_v", "reference_temperature_c",
+                "peak_armature_current_a")
+OPEN_CIRCUIT_KEYS = ("speed_rpm", "field_current_a", "emf_v", "interpolation")
+ARMATURE_REACTION_KEYS = ("demagnetizing_at_per_pole_at_rated", "armature_current_a", "demagnetizing_at_per_pole")
+WINDING_KEYS = ("conductors", "parallel_paths")
+# Tables every load profile holds: a file with these and none of ours is a
+# profile given where the machine belongs.
+_PROFILE_TABLES = ("load", "drive", "battery", "welding", "lighting", "booster")
 
 
 @dataclass(frozen=True)
@@ -105,13 +132,10 @@ def load_machine(path, text=None):
 
 def machine_from_dict(data, source="machine"):
     """Build a :class:`Machine` from parsed TOML tables, checking every rule."""
-    if not isinstance(data, dict):
-        raise InputError(source, "file", "must hold TOML tables")
-    known_tables = ("machine", "open_circuit", "armature_reaction", "winding")
-    for k in data:
-        if k not in known_tables:
-            raise InputError(source, show_key(k), f"is not a known table or key; valid tables: {', '.join(known_tables)}")
-    m = Table(data.get("machine"), source, "machine")
+    check_tables(data, source, MACHINE_TABLES, "machine file", _PROFILE_TABLES, "load profile")
+    refuse_unknown_keys(data, source, {"machine": MACHINE_KEYS, "open_circuit": OPEN_CIRCUIT_KEYS,
+                                       "armature_reaction": ARMATURE_REACTION_KEYS, "winding": WINDING_KEYS})
+    m = Table(data.get("machine"), source, "machine", keys=MACHINE_KEYS)
     kw = {"source": source}
     kw["label"] = m.text("label", "")
     kw["poles"] = m.integer("poles", low=2, high=64)
@@ -130,7 +154,7 @@ def machine_from_dict(data, source="machine"):
         missing = "series_turns_per_pole" if nse is None else "series_field_resistance_ohm"
         raise InputError(source, f"machine.{missing}", "is missing; give both series keys or neither")
     kw["series_field_resistance_ohm"], kw["series_turns_per_pole"] = rse, nse
-    taps = m.numbers("series_taps", None, low=0)
+    taps = m.numbers("series_taps", None, low=0, max_len=MAX_SERIES_TAPS)
     if taps is None:
         taps = (0.0, nse) if nse is not None else (0.0,)
     else:
@@ -151,10 +175,10 @@ def machine_from_dict(data, source="machine"):
     if kw["peak_armature_current_a"] is not None and kw["peak_armature_current_a"] < kw["rated_armature_current_a"]:
         raise InputError(source, "machine.peak_armature_current_a", "is below rated_armature_current_a; allowed: at least the continuous rating")
 
-    o = Table(data.get("open_circuit"), source, "open_circuit")
+    o = Table(data.get("open_circuit"), source, "open_circuit", keys=OPEN_CIRCUIT_KEYS)
     kw["occ_speed_rpm"] = o.number("speed_rpm", low=_MIN_SPEED_RPM, high=100_000)
-    fc = o.numbers("field_current_a", low=0, high=_MAX_FIELD_CURRENT_A, min_len=4, max_len=10_000)
-    ev = o.numbers("emf_v", low=0, high=_MAX_EMF_V, min_len=4, max_len=10_000)
+    fc = o.numbers("field_current_a", low=0, high=_MAX_FIELD_CURRENT_A, min_len=4, max_len=MAX_OCC_POINTS)
+    ev = o.numbers("emf_v", low=0, high=_MAX_EMF_V, min_len=4, max_len=MAX_OCC_POINTS)
     kw["occ_interpolation"] = o.text("interpolation", "monotone-cubic", choices=INTERPOLATIONS)
     o.finish()
     if len(fc) != len(ev):
@@ -165,6 +189,7 @@ def machine_from_dict(data, source="machine"):
     if np.any(d <= 0):
         i = int(np.argmax(d <= 0)) + 1
         raise InputError(source, f"open_circuit.field_current_a[{i}]", f"is {fc[i]:g} after {fc[i-1]:g}; allowed: strictly increasing values")
+    _check_steps(fc, source, "open_circuit.field_current_a", "the curve")
     d = np.diff(ev)
     if np.any(d < 0):
         i = int(np.argmax(d < 0)) + 1
@@ -174,10 +199,10 @@ def machine_from_dict(data, source="machine"):
     kw["occ_field_current_a"], kw["occ_emf_v"] = fc, ev
 
     if "armature_reaction" in data:
-        a = Table(data["armature_reaction"], source, "armature_reaction")
+        a = Table(data["armature_reaction"], source, "armature_reaction", keys=ARMATURE_REACTION_KEYS)
         lin = a.number("demagnetizing_at_per_pole_at_rated", None, low=0, high=1e7)
-        tab_i = a.numbers("armature_current_a", None, low=0, high=1e7, min_len=2)
-        tab_f = a.numbers("demagnetizing_at_per_pole", None, low=0, high=1e7, min_len=2)
+        tab_i = a.numbers("armature_current_a", None, low=0, high=1e7, min_len=2, max_len=MAX_AR_ROWS)
+        tab_f = a.numbers("demagnetizing_at_per_pole", None, low=0, high=1e7, min_len=2, max_len=MAX_AR_ROWS)
         a.finish()
         if lin is not None and (tab_i is not None or tab_f is not None):
             raise InputError(source, "armature_reaction", "gives both forms; allowed: demagnetizing_at_per_pole_at_rated, or the table armature_current_a with demagnetizing_at_per_pole")
@@ -195,6 +220,7 @@ def machine_from_dict(data, source="machine"):
                 i = int(np.argmax(d <= 0)) + 1
                 raise InputError(source, f"armature_reaction.armature_current_a[{i}]",
                                  f"is {tab_i[i]:g} after {tab_i[i-1]:g}; allowed: strictly increasing values")
+            _check_steps(tab_i, source, "armature_reaction.armature_current_a", "the table")
             d = np.diff(tab_f)
             if np.any(d < 0):
                 i = int(np.argmax(d < 0)) + 1
@@ -206,13 +232,27 @@ def machine_from_dict(data, source="machine"):
         kw["ar_table_current_a"], kw["ar_table_at_per_pole"] = tab_i, tab_f
 
     if "winding" in data:
-        w = Table(data["winding"], source, "winding")
+        w = Table(data["winding"], source, "winding", keys=WINDING_KEYS)
         kw["winding_conductors"] = w.integer("conductors", low=1, high=10_000_000)
         kw["winding_parallel_paths"] = w.integer("parallel_paths", low=2, high=1000)
         w.finish()
         if kw["winding_parallel_paths"] % 2:
             raise InputError(source, "winding.parallel_paths", f"is {kw['winding_parallel_paths']}; allowed: an even number (2 for wave, the pole count or a multiple for lap)")
     return Machine(**kw)
+
+
+def _check_steps(currents, source, key, what):
+    """Refuse a largest current below 1 mA, or steps too small to compute slopes with."""
+    top = currents[-1]
+    if top < _MIN_CURRENT_A:
+        raise InputError(source, f"{key}[{len(currents) - 1}]", f"is {top:g} A, the largest of {what}; "
+                         f"allowed: at least {_MIN_CURRENT_A:g} A")
+    d = np.diff(currents)
+    small = d < MIN_STEP_FRACTION * top
+    if np.any(small):
+        i = int(np.argmax(small)) + 1
+        raise InputError(source, f"{key}[{i}]", f"is {currents[i]:g} after {currents[i-1]:g}: a step of {d[i-1]:.3g} A; "
+                         f"allowed: steps of at least {MIN_STEP_FRACTION:g} of the largest value ({top:g} A)")
 
 
 def machine_to_dict(m):

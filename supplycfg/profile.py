@@ -11,7 +11,8 @@ from dataclasses import dataclass, field, fields
 
 from .errors import InputError
 from .jobs import JOBS, KINDS
-from .validate import MAX_SPEED_RPM, MIN_SPEED_RPM, Table, read_pair, read_toml, show_key, source_name
+from .validate import (MAX_SPEED_RPM, MIN_SPEED_RPM, Table, check_tables, read_pair, read_toml,
+                       refuse_unknown_keys, source_name)
 
 __all__ = ["KINDS", "LoadProfile", "load_profile", "profile_from_dict", "profile_to_dict"]
 
@@ -64,13 +65,12 @@ def load_profile(path, text=None):
 
 def profile_from_dict(data, source="profile"):
     """Build a :class:`LoadProfile` from parsed TOML tables, checking every rule."""
-    if not isinstance(data, dict):
-        raise InputError(source, "file", "must hold TOML tables")
-    known = ("load", "drive") + KINDS
-    for k in data:
-        if k not in known:
-            raise InputError(source, show_key(k), f"is not a known table or key; valid tables: {', '.join(known)}")
-    ld = Table(data.get("load"), source, "load")
+    check_tables(data, source, ("load", "drive") + KINDS, "load profile",
+                 ("machine", "open_circuit", "armature_reaction", "winding"), "machine file")
+    keys = {"load": ("kind", "label"), "drive": ("speed_rpm", "speed_range_rpm", "winding_temperature_range_c"),
+            **{k: tuple(f.name for f in fields(JOBS[k].JOB_TABLE)) for k in KINDS}}
+    refuse_unknown_keys(data, source, keys)
+    ld = Table(data.get("load"), source, "load", keys=keys["load"])
     kind = ld.text("kind", choices=KINDS)
     label = ld.text("label", "")
     ld.finish()
@@ -78,7 +78,7 @@ def profile_from_dict(data, source="profile"):
         if other != kind and other in data:
             raise InputError(source, other, f"table given but load.kind is {kind!r}; allowed: only [{kind}]")
 
-    dr = Table(data.get("drive"), source, "drive")
+    dr = Table(data.get("drive"), source, "drive", keys=keys["drive"])
     has_one, has_range = dr.has("speed_rpm"), dr.has("speed_range_rpm")
     if has_one and has_range:
         raise InputError(source, "drive.speed_range_rpm", "given together with speed_rpm; allowed: one of the two")
@@ -95,7 +95,7 @@ def profile_from_dict(data, source="profile"):
                   required=False)
     dr.finish()
 
-    jt = Table(data.get(kind), source, kind)
+    jt = Table(data.get(kind), source, kind, keys=keys[kind])
     jobs = {"battery": None, "welding": None, "lighting": None, "booster": None}
     jobs[kind] = JOBS[kind].read_job(jt, source)
     jt.finish()

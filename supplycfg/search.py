@@ -22,6 +22,7 @@ from .envelope import build_space, candidate_bases, margin
 from .jobs import JOBS, option_cautions, profile_cautions
 from .machine import load_machine
 from .profile import load_profile
+from .text import visible
 
 __all__ = ["Option", "SearchResult", "candidate_bases", "search", "search_machine_profile", "search_text"]
 
@@ -191,7 +192,7 @@ def _short(v, f=".4g"):
 
 def search_text(res, top=10):
     """The ranked table a technician reads."""
-    lines = [f"{res.machine.label} for {res.profile.label} ({res.profile.kind})",
+    lines = [f"{visible(res.machine.label)} for {visible(res.profile.label)} ({res.profile.kind})",
              f"{res.candidates_evaluated} candidate evaluations in {res.search_seconds:.2f} s", ""]
     hdr = f"{'rank':>4}  {'fit':<4}  {'connection':<25} {'turns':>5} {'diverter':>9} {'field':>14} {'speed':>6}  {'least margin':>12}  cautions / limits broken"
     lines += [hdr, "-" * len(hdr)]

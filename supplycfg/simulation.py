@@ -39,6 +39,7 @@ from .jobs import option_cautions, profile_cautions
 from .profile import load_profile
 from .circuit import _params, build_circuit, check_setting, machine_state, normal_points
 from .errors import InputError
+from .text import visible
 
 #: Time cap when none is given [h]: a charge not finished in two days points to
 #: a fault of the set or the battery (model choice).
@@ -458,7 +459,7 @@ def _g(v, f=".4g"):
 
 def charge_text(run):
     """A readable summary of a charge run with a table over time."""
-    lines = [f"Charge run: {run.machine_label} on {run.profile_label}",
+    lines = [f"Charge run: {visible(run.machine_label)} on {visible(run.profile_label)}",
              f"setting: {run.setting.describe(with_connection=True)}" + (f" ({run.setting_source})" if run.setting_source else ""),
              f"battery: {run.cells} cells, {run.capacity_ah:g} Ah, from {100 * run.start_state_of_charge:.0f} % "
              f"to {100 * run.end_state_of_charge:.0f} % state of charge; charge efficiency {100 * run.charge_efficiency:.0f} %",

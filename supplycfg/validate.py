@@ -5,6 +5,8 @@ returns a clean Python value or raises :class:`~supplycfg.errors.InputError`
 with one line that names the file, the dotted key and what is allowed.
 """
 
+import difflib
+import json
 import math
 import re
 import stat
@@ -12,9 +14,13 @@ import tomllib
 from pathlib import Path
 
 from .errors import InputError
+from .text import visible
 
 #: Largest file the readers accept [bytes]; a machine or profile is a few kB.
 MAX_FILE_BYTES = 1_000_000
+#: Most values in any list of a machine or profile file unless its key says
+#: fewer: each value multiplies the work of a search (README, "What it checks").
+MAX_LIST_VALUES = 500
 
 _MISSING = object()
 #: Keys shown as typed when they match TOML's bare-key form; others are quoted.
@@ -30,11 +36,195 @@ def show_key(k):
 
 
 def source_name(path):
-    """The file name used in messages: the last part of ``path``, on one printable line."""
-    name = Path(str(path)).name or str(path)
-    if name.isprintable():
-        return name
-    return "".join(c if c.isprintable() else ascii(c)[1:-1] for c in name)
+    """The file as the person gave it (the whole path as typed), on one visible line."""
+    return visible(str(path)) if str(path) else "''"
+
+
+def nearest_name(name, valid):
+    """The valid name closest to a mistyped ``name``, or None when none is close."""
+    found = difflib.get_close_matches(str(name), [str(v) for v in valid], n=1, cutoff=0.6)
+    return found[0] if found else None
+
+
+def unknown_key_message(name, valid, line=None, what="key", valid_what="valid keys"):
+    """What to say about an unknown key: its line, the nearest valid name, the valid ones."""
+    where = f" (line {line})" if line else ""
+    near = nearest_name(name, valid)
+    guess = f"; did you mean {near}?" if near else ""
+    return f"is not a known {what}{where}{guess} {valid_what}: {', '.join(valid)}"
+
+
+def check_tables(data, source, known, what, other_tables=(), other_what=""):
+    """Refuse top-level tables and keys other than ``known``, unknown ones first.
+
+    Parameters
+    ----------
+    data : dict
+        The parsed file.
+    known : sequence of str
+        The tables this kind of file may hold.
+    what : str
+        This kind of file, e.g. ``"machine file"``.
+    other_tables, other_what : sequence of str, str
+        The tables of the other kind of file: a file holding only those looks
+        swapped with it, and the message says so.
+    """
+    if not isinstance(data, dict):
+        raise InputError(source, "file", "must hold TOML tables")
+    extra = [k for k in data if k not in known]
+    if not extra:
+        return
+    if other_tables and not any(k in known for k in data) and any(k in other_tables for k in data):
+        theirs = ", ".join(f"[{k}]" for k in data if k in other_tables)
+        raise InputError(source, "file", f"looks like a {other_what} ({theirs}), not a {what}; "
+                         f"the {what} and the {other_what} look swapped")
+    lines = getattr(data, "key_lines", {})
+    k = extra[0]
+    raise InputError(source, show_key(k), unknown_key_message(k, known, lines.get(k), "table or key", "valid tables"))
+
+
+def refuse_unknown_keys(data, source, keys):
+    """Refuse the first unknown key of any table present, before any value is read.
+
+    A misspelt key is the likelier fault than the missing key it was meant to
+    be, so it is reported first, with the nearest valid name and its line.
+
+    Parameters
+    ----------
+    data : dict
+        The parsed file.
+    keys : dict
+        ``{table: valid keys}`` for each table the file may hold.
+    """
+    for table, body in data.items():
+        if table in keys and isinstance(body, dict):
+            lines = getattr(body, "key_lines", {})
+            for k in body:
+                if k not in keys[table]:
+                    raise InputError(source, f"{table}.{show_key(k)}", unknown_key_message(k, keys[table], lines.get(k)))
+
+
+# Plain words for the TOML reader's messages; the line the reader names follows them.
+_TOML_WORDS = (
+    ("Invalid statement", "this line is not key = value, a [table] header or a comment"),
+    ("Expected '=' after a key", "a key must be followed by = and its value"),
+    ("Invalid initial character for a key", "a key starts with a letter, digit, _ or - (or is quoted)"),
+    ("Found invalid character", "an unexpected character"),
+    ("Expected newline or end of document after a statement",
+     "something follows the value on its line (one key = value per line; decimals use a point)"),
+    ("Cannot declare", "a [table] is declared twice"),
+    ("Cannot overwrite a value", "a key is given twice"),
+    ("Cannot mutate immutable namespace", "a key or table is given twice"),
+    ("Cannot redefine namespace", "a key or table is given twice"),
+    ("Duplicate inline table key", "a key is given twice in a { } table"),
+    ("Expected ']' at the end of a table declaration", "a [table] header is not closed with ]"),
+    ("Expected ']]' at the end of an array declaration", "a [[table]] header is not closed with ]]"),
+    ("Unclosed array", "a list [ ... ] misses a comma between values or its closing ]"),
+    ("Unclosed inline table", "a { ... } table is not closed with }"),
+    ("Unterminated string", "quoted text is not closed on its line"),
+    ('Expected "\'"', "quoted text is not closed"),
+    ("Expected '\"'", "quoted text is not closed"),
+    ("Unescaped '\\' in a string", "a backslash in double-quoted text starts an escape: write \\\\ or use 'single quotes'"),
+    ("Illegal character", "quoted text holds a control character; write it as an escape such as \\t"),
+    ("Invalid hex value", "a \\u or \\U escape in quoted text is not a valid character"),
+    ("Escaped character is not a Unicode scalar value", "a \\u or \\U escape in quoted text is not a valid character"),
+    ("Invalid date or datetime", "a date or time that does not exist"),
+    ("Invalid value", "the value is not a number, \"quoted text\", true, false, a date or a [list]"),
+)
+_AT = re.compile(r"\s*\((?:at line (\d+), column (\d+)|at end of document)\)\s*$")
+_COMMENT_LOOKALIKE = re.compile(r"^\s*(//|;|--|%|/\*|<!--)")
+_COLON_KEY = re.compile(r"^\s*[A-Za-z0-9_-]+\s*:")
+_BARE_WORD_VALUE = re.compile(r"=\s*[A-Za-z][^#\"']*$")
+
+
+def plain_toml_error(message, text):
+    """The TOML reader's ``message`` in plain words, with its line and a hint where one fits."""
+    at = _AT.search(message)
+    head = message[:at.start()] if at else message
+    plain = next((words for start, words in _TOML_WORDS if head.startswith(start)), head)
+    lines = text.splitlines()
+    line = int(at.group(1)) if at and at.group(1) else None
+    if head.startswith(("Cannot overwrite a value", "Cannot mutate")):
+        dup = _duplicate_key_line(text)
+        if dup and line in (None, dup[0]):
+            line, plain = dup[0], f"{plain} ({show_key(dup[1])} again)"
+    where = f"line {line}, column {at.group(2)}" if at and at.group(2) else (f"line {line}" if line else "at the end")
+    hint = ""
+    src = lines[line - 1] if line and 0 < line <= len(lines) else ""
+    if _COMMENT_LOOKALIKE.match(src):
+        hint = "; a comment starts with #"
+    elif _COLON_KEY.match(src) and "=" not in src.split("#")[0]:
+        hint = "; write key = value, with =, not :"
+    elif head.startswith("Invalid value") and _BARE_WORD_VALUE.search(src.split("#")[0] if "#" in src else src):
+        hint = "; text needs quotes, e.g. label = \"Pump set 2\" (true and false are lower case)"
+    return f"is not valid TOML: {where}: {plain}{hint}"
+
+
+# key = value lines under [table] headers, for the line numbers of messages
+_HEADER = re.compile(r"^\s*\[\s*([^\[\]]+?)\s*\]\s*(?:#.*)?$")
+_KEY_LINE = re.compile(r"^\s*([A-Za-z0-9_-]+|\"(?:[^\"\\]|\\.)*\"|'[^']*')\s*=")
+
+
+def _unquote(k):
+    if k.startswith('"'):
+        try:
+            return json.loads(k)
+        except ValueError:
+            return k
+    if k.startswith("'"):
+        return k[1:-1]
+    return k
+
+
+def key_lines(text):
+    """Line numbers of ``key = value`` lines: ``{(table, key): [line, ...]}``, table "" at the top.
+
+    A plain scan, not a parser: dotted keys, inline tables and the insides of
+    multi-line strings are skipped, so a key found there has no line number.
+    """
+    found, table, in_multi = {}, "", None
+    for n, line in enumerate(text.splitlines(), 1):
+        if in_multi:
+            if line.count(in_multi) % 2:
+                in_multi = None
+            continue
+        head = _HEADER.match(line)
+        if head and not line.lstrip().startswith("[["):
+            table = head.group(1)
+            found.setdefault(("", _unquote(table)), []).append(n)
+            continue
+        kl = _KEY_LINE.match(line)
+        if kl:
+            found.setdefault((table, _unquote(kl.group(1))), []).append(n)
+        for q in ('"""', "'''"):
+            if line.count(q) % 2:
+                in_multi = q
+                break
+    return found
+
+
+def _duplicate_key_line(text):
+    """(line, key) of the first key given twice in one table, or None."""
+    dups = [(where[1], key) for (_, key), where in key_lines(text).items() if len(where) > 1]
+    return min(dups) if dups else None
+
+
+class TomlTable(dict):
+    """A parsed TOML table that remembers the line of each of its keys (``key_lines``)."""
+
+    key_lines = {}
+
+
+def _with_lines(data, text):
+    lines = key_lines(text)
+    top = TomlTable(data)
+    top.key_lines = {k: w[0] for (t, k), w in lines.items() if t == ""}
+    for name, value in data.items():
+        if isinstance(value, dict):
+            sub = TomlTable(value)
+            sub.key_lines = {k: w[0] for (t, k), w in lines.items() if t == name}
+            top[name] = sub
+    return top
 
 
 def read_toml(path, text=None):
@@ -95,7 +285,7 @@ def read_toml(path, text=None):
     try:
         data = tomllib.loads(decoded)
     except tomllib.TOMLDecodeError as exc:
-        raise InputError(name, "file", f"is not valid TOML ({exc})") from None
+        raise InputError(name, "file", plain_toml_error(str(exc), decoded)) from None
     except RecursionError:
         raise InputError(name, "file", "nests arrays or tables too deeply; allowed: the flat tables documented") from None
     except ValueError as exc:
@@ -104,13 +294,18 @@ def read_toml(path, text=None):
         raise InputError(name, "file", f"is not valid TOML ({exc})") from None
     if not data:
         raise InputError(name, "file", "holds only comments; a TOML file with the documented tables is expected")
-    return data
+    return _with_lines(data, decoded)
 
 
 class Table:
-    """A TOML table being read: remembers the keys taken to reject unknown ones."""
+    """A TOML table being read: remembers the keys taken to reject unknown ones.
 
-    def __init__(self, data, source, prefix, required=True):
+    Given ``keys`` (every key the table may hold) an unknown key is refused at
+    once, before any missing or bad value is reported: a misspelt key is the
+    likelier fault than the missing key it was meant to be.
+    """
+
+    def __init__(self, data, source, prefix, required=True, keys=None):
         self.source = source
         self.prefix = prefix
         if data is _MISSING or data is None:
@@ -121,6 +316,13 @@ class Table:
             raise InputError(source, prefix, f"must be a table [{prefix}], got {type(data).__name__}")
         self.data = data
         self.known = []
+        self.lines = getattr(data, "key_lines", {})
+        self.keys = None if keys is None else tuple(keys)
+        if self.keys is not None:
+            extra = [k for k in data if k not in self.keys]
+            if extra:
+                raise InputError(source, self.key(extra[0]),
+                                 unknown_key_message(extra[0], self.keys, self.lines.get(extra[0])))
 
     def key(self, k):
         return f"{self.prefix}.{show_key(k)}"
@@ -138,10 +340,11 @@ class Table:
 
     def finish(self):
         """Reject keys that were not read, listing the valid ones."""
-        extra = sorted(set(self.data) - set(self.known))
+        extra = [k for k in self.data if k not in self.known]
         if extra:
+            valid = self.keys if self.keys is not None else self.known
             raise InputError(self.source, self.key(extra[0]),
-                             f"is not a known key; valid keys: {', '.join(self.known)}")
+                             unknown_key_message(extra[0], valid, self.lines.get(extra[0])))
 
     # typed readers -----------------------------------------------------
     def text(self, k, default=_MISSING, choices=None):
@@ -176,7 +379,7 @@ class Table:
         return int(v)
 
     def numbers(self, k, default=_MISSING, *, low=None, high=None, low_open=False,
-                min_len=1, max_len=100_000):
+                min_len=1, max_len=MAX_LIST_VALUES):
         v = self.raw(k, default)
         if v is default and default is not _MISSING:
             return v

@@ -8,19 +8,24 @@ code 2 from the command line; never a traceback or a hang.
 must name and the one rule it breaks.
 """
 
+import json
 import os
 import subprocess
 import sys
 import tomllib
 from pathlib import Path
 
+import numpy as np
 import pytest
 from hypothesis import given, settings, strategies as st
 
 from supplycfg import cli
+from supplycfg.bench import MAX_BENCH_REPEAT, run_bench
+from supplycfg.circuit import Setting, external_characteristic
 from supplycfg.errors import InputError
+from supplycfg.files import dumps_toml
 from supplycfg.profile import load_profile
-from supplycfg.machine import load_machine
+from supplycfg.machine import MAX_AR_ROWS, MAX_OCC_POINTS, MAX_SERIES_TAPS, MIN_STEP_FRACTION, load_machine
 from supplycfg.validate import MAX_FILE_BYTES
 
 ROOT = Path(__file__).resolve().parent.parent
@@ -69,14 +74,16 @@ def test_corpus_is_complete():
 
 @pytest.mark.parametrize("name", MACHINE_CASES + PROFILE_CASES)
 def test_reader_gives_one_line(name):
-    """Project rule: each broken file raises InputError, one line naming file and key."""
+    """Project rule: each broken file raises InputError, one line naming the file
+    as it was given (the whole path) and the key."""
     key = INDEX[name]["key"]
+    given = str(BAD / name)
     with pytest.raises(InputError) as info:
         _reader(name)(BAD / name)
     msg = str(info.value)
     _assert_one_line(msg, name, key)
-    assert msg.startswith(f"{name}: {key}: ")
-    assert info.value.source == name and info.value.key == key
+    assert msg.startswith(f"{given}: {key}: ")
+    assert info.value.source == given and info.value.key == key
 
 
 @pytest.mark.parametrize("name", MACHINE_CASES + PROFILE_CASES)
@@ -85,8 +92,11 @@ def test_reader_same_message_for_uploaded_content(name):
     with pytest.raises(InputError) as from_file:
         _reader(name)(BAD / name)
     with pytest.raises(InputError) as from_text:
-        _reader(name)(name, text=(BAD / name).read_bytes())
+        _reader(name)(str(BAD / name), text=(BAD / name).read_bytes())
     assert str(from_text.value) == str(from_file.value)
+    with pytest.raises(InputError) as uploaded:
+        _reader(name)(name, text=(BAD / name).read_bytes())
+    assert str(uploaded.value) == str(from_file.value).replace(str(BAD / name), name, 1)
 
 
 @pytest.mark.parametrize("name", MACHINE_CASES + PROFILE_CASES)
@@ -219,6 +229,34 @@ BAD_OPTIONS = {
     "folder instead of a file": (["curve", str(ROOT / "profiles"), "--connection", "shunt"], "file"),
     "missing profile file": (["search", M, "no-such-profile.toml"], "file"),
     "unknown command": (["tune", M], "command"),
+    # issue 8 item 10: bounds on what multiplies work or output
+    "points above the bound": (["curve", M, "--connection", "shunt", "--points", "10001"], "--points"),
+    "top 0": (["search", M, str(ROOT / "profiles" / "loads" / "battery-charging.toml"), "--top", "0"], "--top"),
+    "top above the bound": (["search", M, str(ROOT / "profiles" / "loads" / "battery-charging.toml"), "--top", "1001"], "--top"),
+    "option 0": (["sheet", M, str(ROOT / "profiles" / "loads" / "battery-charging.toml"), "-o", "x.md", "--option", "0"], "--option"),
+    "bench repeat above the bound": (["bench", "--repeat", "21"], "--repeat"),
+    "bench repeat 0": (["bench", "--repeat", "0"], "--repeat"),
+    # issue 8 item 13
+    "series turns near a tap but not one": (["curve", M, "--connection", "long-shunt-cumulative", "--series-turns", "1e-10"],
+                                            "--series-turns"),
+    "emf odd poles": (["emf", "--poles", "3", "--conductors", "100", "--parallel-paths", "2", "--speed-rpm", "1000",
+                       "--flux-wb", "0.01"], "--poles"),
+    "emf odd parallel paths": (["emf", "--poles", "4", "--conductors", "100", "--parallel-paths", "3",
+                                "--speed-rpm", "1000", "--flux-wb", "0.01"], "--parallel-paths"),
+    "emf more paths than conductors": (["emf", "--poles", "4", "--conductors", "2", "--parallel-paths", "4",
+                                        "--speed-rpm", "1000", "--flux-wb", "0.01"], "--parallel-paths"),
+    "emf negative": (["emf", "--poles", "4", "--conductors", "100", "--parallel-paths", "4", "--speed-rpm", "1000",
+                      "--emf-v", "-5"], "--emf-v"),
+    "emf negative flux": (["emf", "--poles", "4", "--conductors", "100", "--parallel-paths", "4", "--speed-rpm", "1000",
+                           "--flux-wb", "-1e-3"], "--flux-wb"),
+    "emf huge flux": (["emf", "--poles", "4", "--conductors", "100", "--parallel-paths", "4", "--speed-rpm", "1000",
+                       "--flux-wb", "1e308"], "--flux-wb"),
+    "emf speed below 1 rpm": (["emf", "--poles", "4", "--conductors", "100", "--parallel-paths", "4", "--speed-rpm", "1e-308",
+                               "--emf-v", "100"], "--speed-rpm"),
+    "speed below 1 rpm": (["curve", M, "--connection", "shunt", "--speed-rpm", "0.5"], "--speed-rpm"),
+    "load current beyond the bound": (["point", M, "--connection", "shunt", "--load-current-a", "-1e300"], "--load-current-a"),
+    "line voltage beyond the bound": (["point", M, "--connection", "shunt", "--line-v0", "1e300", "--line-slope-ohm", "1"],
+                                      "--line-v0"),
 }
 
 
@@ -240,6 +278,160 @@ def test_bad_option_exit_2_one_line(case, capsys):
 
 
 # ---------------------------------------------------------------------------
+# bounds on what multiplies the work (issue 8 item 10)
+# ---------------------------------------------------------------------------
+
+def _machine_at_bounds(taps, occ_points, ar_rows):
+    """The demo welding set stretched to ``taps`` series taps, ``occ_points`` curve points and ``ar_rows`` rows."""
+    m = tomllib.loads((ROOT / "profiles" / "machines" / "welding-set.toml").read_text(encoding="utf-8"))
+    nse = m["machine"]["series_turns_per_pole"]
+    m["machine"]["series_taps"] = [float(t) for t in np.linspace(0.0, nse, taps)]
+    fc, ev = m["open_circuit"]["field_current_a"], m["open_circuit"]["emf_v"]
+    x = np.linspace(0.0, fc[-1], occ_points)
+    m["open_circuit"]["field_current_a"] = x.tolist()
+    m["open_circuit"]["emf_v"] = np.maximum.accumulate(np.interp(x, fc, ev)).tolist()
+    ia = np.linspace(0.0, 400.0, ar_rows)
+    m["armature_reaction"] = {"armature_current_a": ia.tolist(),
+                              "demagnetizing_at_per_pole": (125.0 * (ia / 400.0) ** 1.5).tolist()}
+    return dumps_toml(m)
+
+
+def test_bounds_are_the_documented_ones():
+    """The bounds the README states are the ones the readers and options apply."""
+    readme = (ROOT / "README.md").read_text(encoding="utf-8")
+    for figure in (f"{MAX_SERIES_TAPS} series taps", f"{MAX_OCC_POINTS} points", f"{MAX_AR_ROWS} rows",
+                   f"--points` up to {cli.MAX_CURVE_POINTS}", f"--top` up to {cli.MAX_TOP}",
+                   f"--repeat` up to {MAX_BENCH_REPEAT}"):
+        assert figure in readme, figure
+
+
+@pytest.mark.parametrize("extra, key", [
+    ((MAX_SERIES_TAPS + 1, 10, 5), "machine.series_taps"),
+    ((5, MAX_OCC_POINTS + 1, 5), "open_circuit.field_current_a"),
+    ((5, 10, MAX_AR_ROWS + 1), "armature_reaction.armature_current_a"),
+], ids=["taps", "curve points", "armature-reaction rows"])
+def test_one_past_a_bound_is_refused(tmp_path, capsys, extra, key):
+    """Issue 8 item 10: one entry past a bound is refused in one line, exit 2, naming file and key."""
+    path = tmp_path / "machine.toml"
+    path.write_text(_machine_at_bounds(*extra), encoding="utf-8")
+    assert cli.main(["search", str(path), str(ROOT / "profiles" / "loads" / "welding.toml")]) == 2
+    out, err = capsys.readouterr()
+    assert out == ""
+    _assert_one_line(err, str(path), key)
+
+
+def test_file_at_the_bounds_is_accepted_and_searched(tmp_path, capsys):
+    """Issue 8 item 10: a machine at every bound at once loads, and a welding search
+    on it answers (its time and memory are measured by hand, never asserted here)."""
+    path = tmp_path / "machine.toml"
+    path.write_text(_machine_at_bounds(MAX_SERIES_TAPS, MAX_OCC_POINTS, MAX_AR_ROWS), encoding="utf-8")
+    m = load_machine(path)
+    assert len(m.series_taps) == MAX_SERIES_TAPS and len(m.occ_field_current_a) == MAX_OCC_POINTS
+    assert len(m.ar_table_current_a) == MAX_AR_ROWS
+    assert cli.main(["search", str(path), str(ROOT / "profiles" / "loads" / "welding.toml"), "--top", "1", "--json"]) == 0
+    out, err = capsys.readouterr()
+    assert err == "" and len(json.loads(out)["options"]) == 1
+
+
+def test_bench_repeat_is_bounded():
+    """Issue 8 item 10: ``bench --repeat`` takes 1 up to its bound, the function refuses more."""
+    assert cli._parser().parse_args(["bench", "--repeat", str(MAX_BENCH_REPEAT)]).repeat == MAX_BENCH_REPEAT
+    assert cli._parser().parse_args(["bench", "--repeat", "1"]).repeat == 1
+    with pytest.raises(InputError, match="repeat"):
+        run_bench(MAX_BENCH_REPEAT + 1)
+
+
+# ---------------------------------------------------------------------------
+# open-circuit and armature-reaction steps (issue 8 item 11)
+# ---------------------------------------------------------------------------
+
+def test_curve_steps_at_the_bound_compute(capsys):
+    """Issue 8 item 11: steps of exactly the smallest share allowed are accepted and
+    the curve computes (no internal error); the issue's [0, 1e-300, 2e-300, 3e-300] is refused."""
+    text = GOOD_MACHINE.read_text(encoding="utf-8")
+    top = 3.4
+    step = MIN_STEP_FRACTION * top
+    at_bound = text.replace("field_current_a = [0.0, 0.2,", f"field_current_a = [0.0, {step!r}, 0.2,") \
+                   .replace("emf_v = [5.0, 38.0,", "emf_v = [5.0, 5.0001, 38.0,")
+    m = load_machine("bound.toml", text=at_bound)
+    assert m.occ_field_current_a[1] == step and m.occ_field_current_a[-1] == top
+    below = at_bound.replace(f"{step!r}", f"{0.5 * step!r}")
+    with pytest.raises(InputError) as info:
+        load_machine("below.toml", text=below)
+    _assert_one_line(str(info.value), "below.toml", "open_circuit.field_current_a[1]")
+    c = external_characteristic(m, Setting("shunt", rheostat_ohm=30.0), 20)
+    assert c.converged and np.all(np.isfinite(c.points["terminal_voltage_v"]))
+    with pytest.raises(InputError) as info:
+        load_machine("tiny.toml", text=(BAD / "machine-occ-steps-too-small.toml").read_bytes())
+    assert "open_circuit.field_current_a" in str(info.value)
+
+
+# ---------------------------------------------------------------------------
+# unknown keys, TOML syntax, swapped files (issue 8 items 15 and 16)
+# ---------------------------------------------------------------------------
+
+def test_unknown_key_names_the_nearest_valid_one_and_its_line():
+    """Issue 8 item 15: a typo of a required key is reported as the unknown key, with
+    'did you mean' and its line, not as the key it was meant to be missing."""
+    with pytest.raises(InputError) as info:
+        load_machine(BAD / "machine-misspelt-required-key.toml")
+    msg = str(info.value)
+    assert "machine.rated_voltge_v: is not a known key (line 6); did you mean rated_voltage_v?" in msg
+    assert "is missing" not in msg
+    with pytest.raises(InputError) as info:
+        load_profile(BAD / "profile-misspelt-required-key.toml")
+    assert "did you mean capacity_ah?" in str(info.value) and "(line 13)" in str(info.value)
+    # an unknown table too
+    with pytest.raises(InputError, match=r"did you mean open_circuit\?"):
+        load_machine("m.toml", text=GOOD_MACHINE.read_text(encoding="utf-8").replace("[open_circuit]", "[open_circiut]"))
+
+
+@pytest.mark.parametrize("text, words", [
+    ("// notes\n[machine]\npoles = 4\n", "line 1, column 1: this line is not key = value, a [table] header or a comment; a comment starts with #"),
+    ("[machine]\npoles: 4\n", "line 2, column 6: a key must be followed by = and its value; write key = value, with =, not :"),
+    ("[machine]\nlabel = Pump set\n", "line 2, column 9: the value is not a number"),
+    ("[machine]\npoles = 4\npoles = 6\n", "a key is given twice (poles again)"),
+    ("[machine]\npoles = 4\npoles = 6", "line 3: a key is given twice (poles again)"),
+    ("[machine]\nseries_taps = [0, 3 6]\n", "a list [ ... ] misses a comma between values or its closing ]"),
+    ("[machine]\nrated_voltage_v = 2,5\n", "decimals use a point"),
+])
+def test_toml_syntax_errors_in_plain_words(text, words):
+    """Issue 8 item 15: a syntax error says in plain words what is wrong, where."""
+    with pytest.raises(InputError) as info:
+        load_machine("typed.toml", text=text)
+    msg = str(info.value)
+    assert msg.startswith("typed.toml: file: is not valid TOML: ") and words in msg, msg
+    assert len(msg.splitlines()) == 1
+
+
+def test_swapped_files_are_named_as_swapped(capsys):
+    """Issue 8 item 16: a profile where the machine belongs (and the reverse) is called swapped."""
+    profile = ROOT / "profiles" / "loads" / "welding.toml"
+    machine = ROOT / "profiles" / "machines" / "welding-set.toml"
+    assert cli.main(["search", str(profile), str(machine)]) == 2
+    err = capsys.readouterr().err
+    _assert_one_line(err, str(profile), "file")
+    assert "look swapped" in err
+    with pytest.raises(InputError, match="look swapped"):
+        load_profile(machine)
+
+
+def test_errors_name_the_file_as_given(tmp_path, monkeypatch, capsys):
+    """Issue 8 item 16: a file given by a relative path is named by that path, not its last part."""
+    monkeypatch.chdir(tmp_path)
+    (tmp_path / "site" / "sets").mkdir(parents=True)
+    (tmp_path / "site" / "sets" / "machine.toml").write_bytes((BAD / "machine-odd-poles.toml").read_bytes())
+    given = os.path.join("site", "sets", "machine.toml")
+    assert cli.main(["curve", given, "--connection", "shunt"]) == 2
+    err = capsys.readouterr().err
+    assert err.startswith(f"supplycfg: {given}: machine.poles: "), err
+    assert cli.main(["search", given, "no-such-profile.toml"]) == 2
+    assert capsys.readouterr().err.startswith(f"supplycfg: {given}: machine.poles: ")
+    assert cli.main(["search", str(GOOD_MACHINE), os.path.join("site", "none.toml")]) == 2
+    assert capsys.readouterr().err.startswith(f"supplycfg: {os.path.join('site', 'none.toml')}: file: ")
+
+
+# ---------------------------------------------------------------------------
 # the demo files load
 # ---------------------------------------------------------------------------
 
@@ -247,14 +439,14 @@ def test_bad_option_exit_2_one_line(case, capsys):
 def test_demo_machines_load(path):
     """The demo machines obey every rule the corpus breaks."""
     m = load_machine(path)
-    assert m.source == path.name
+    assert m.source == str(path)
 
 
 @pytest.mark.parametrize("path", PROFILES, ids=lambda p: p.name)
 def test_demo_profiles_load(path):
     """The demo load profiles obey every rule the corpus breaks."""
     p = load_profile(path)
-    assert p.source == path.name
+    assert p.source == str(path)
 
 
 def test_demo_machine_on_command_line(capsys):

@@ -51,7 +51,7 @@ def test_never_overwrites_without_force(tmp_path):
     with pytest.raises(InputError) as info:
         write_atomic(target, "new content")
     msg = str(info.value)
-    assert len(msg.splitlines()) == 1 and msg.startswith("sheet.html: ") and "--force" in msg
+    assert len(msg.splitlines()) == 1 and msg.startswith(f"{target}: ") and "--force" in msg
     assert target.read_text() == "the engineer's own notes"
     assert _leftovers(tmp_path, "sheet.html") == []
 
@@ -119,10 +119,12 @@ def test_relative_path_in_the_working_folder(tmp_path, monkeypatch):
 
 def test_missing_folder_is_one_line(tmp_path):
     """Project rule: a target in a folder that does not exist is an InputError, one line."""
+    target = tmp_path / "no-such-folder" / "out.json"
     with pytest.raises(InputError) as info:
-        write_atomic(tmp_path / "no-such-folder" / "out.json", "{}")
+        write_atomic(target, "{}")
     assert len(str(info.value).splitlines()) == 1
-    assert str(info.value).startswith("out.json: ")
+    assert str(info.value).startswith(f"{target}: output: ")
+    assert str(tmp_path / "no-such-folder") in str(info.value)
 
 
 def _fail_replace(src, dst):

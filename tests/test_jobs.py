@@ -275,7 +275,7 @@ def test_demo_profiles_present():
 def test_demo_profile_round_trip(path):
     """profile_from_dict(profile_to_dict(p)) == p, and the text form reads the same."""
     p = profile.load_profile(path)
-    assert p.source == path.name
+    assert p.source == str(path)
     q = profile.profile_from_dict(profile_dict := profile.profile_to_dict(p), "again")
     assert q == p
     assert profile.profile_to_dict(q) == profile_dict

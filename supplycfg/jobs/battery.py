@@ -356,6 +356,10 @@ class BatteryJob:
     charge_voltage_per_cell_v: float
 
 
+#: The dataclass of the [battery] table; its fields are the table's keys.
+JOB_TABLE = BatteryJob
+
+
 def read_job(t, source):
     """The ``[battery]`` table ``t`` of a profile read from ``source``, checked."""
     name = t.text("chemistry", choices=tuple(CHEMISTRIES))

@@ -26,6 +26,10 @@ class BoosterJob:
     tolerance_percent: float
 
 
+#: The dataclass of the [booster] table; its fields are the table's keys.
+JOB_TABLE = BoosterJob
+
+
 def read_job(t, source):
     """The ``[booster]`` table ``t`` of a profile read from ``source``, checked."""
     vb = t.number("bus_voltage_v", low=MIN_VOLTAGE_V, high=MAX_VOLTAGE_V)

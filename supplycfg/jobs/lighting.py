@@ -108,6 +108,10 @@ class LightingJob:
     lamp: str
 
 
+#: The dataclass of the [lighting] table; its fields are the table's keys.
+JOB_TABLE = LightingJob
+
+
 def read_job(t, source):
     """The ``[lighting]`` table ``t`` of a profile read from ``source``, checked."""
     vn = t.number("nominal_voltage_v", low=MIN_VOLTAGE_V, high=MAX_VOLTAGE_V)

@@ -269,6 +269,10 @@ class WeldingJob:
     max_no_load_voltage_v: float | None
 
 
+#: The dataclass of the [welding] table; its fields are the table's keys.
+JOB_TABLE = WeldingJob
+
+
 def read_job(t, source):
     """The ``[welding]`` table ``t`` of a profile read from ``source``, checked."""
     proc = t.text("process", choices=tuple(WELDING_PROCESSES))

@@ -1,0 +1,179 @@
+"""The command line's own promises (issue 8 items 8 and 13).
+
+Text from files reaches the terminal with every hidden character made
+visible, so a label cannot hide or reorder the lines after it; ``--json``
+keeps it exact. Options take the values a person needs (``--top 1``) and
+refuse the rest in one line with exit code 2, before any long work; values at
+their bounds answer with nothing else on standard error.
+"""
+
+import json
+import warnings
+from pathlib import Path
+
+import pytest
+
+from supplycfg import cli, search as search_module
+from supplycfg.text import visible
+
+ROOT = Path(__file__).resolve().parent.parent
+MACHINE = ROOT / "profiles" / "machines" / "charging-set.toml"
+PROFILE = ROOT / "profiles" / "loads" / "battery-charging.toml"
+#: A label built to forge the output: conceal (SGR 8) hides what follows on a
+#: terminal, a right-to-left override reverses it, a zero-width space makes
+#: two names look alike, a line break starts a fake line.
+FORGING_LABEL = "CS-1\x1b[8m\u202eRTL\u200b\r\n  [note] no cautions\x07\u2028end"
+HIDDEN = ("\x1b", "\u202e", "\u200b", "\r", "\x07", "\u2028")
+
+
+@pytest.fixture()
+def forged_machine(tmp_path):
+    text = MACHINE.read_text(encoding="utf-8")
+    label = json.dumps(FORGING_LABEL)  # a TOML basic string: the same escapes
+    path = tmp_path / "forged.toml"
+    path.write_text(text.replace('label = "Kestrel Ridge charging set CS-1"', f"label = {label}"), encoding="utf-8")
+    return path
+
+
+def test_visible_escapes_every_hidden_character():
+    """Control, format (bidirectional, zero-width, tags) and separator characters become escapes; the rest stays."""
+    assert visible("Kühlwasser ⚡ e\u0301 [ok]") == "Kühlwasser ⚡ e\u0301 [ok]"
+    assert visible("a\x1b[8mb") == "a\\x1b[8mb"
+    assert visible("\u202e\u2066\u200b\u200d\ufeff\U000e0041") == "\\u202e\\u2066\\u200b\\u200d\\ufeff\\U000e0041"
+    assert visible("one\ntwo\ttab\r\x85\u2028\u2029") == "one\\ntwo\\ttab\\r\\x85\\u2028\\u2029"
+    assert visible("one\ntwo\x1b", keep_newlines=True) == "one\ntwo\\x1b"
+    assert visible("\ud800") == "\\ud800"
+
+
+@pytest.mark.parametrize("argv", [
+    ["curve", "{m}", "--connection", "shunt", "--points", "3"],
+    ["point", "{m}", "--connection", "shunt", "--load-ohm", "3"],
+    ["buildup", "{m}", "--rheostat-ohm", "30"],
+    ["buildup", "{m}", "--connection", "series"],
+    ["search", "{m}", "{p}", "--top", "1"],
+    ["charge", "{m}", "{p}"],
+], ids=lambda a: a[0] + ("-series" if "series" in a else ""))
+def test_text_output_shows_file_text_visibly(forged_machine, capsys, argv):
+    """Issue 8 item 8: the label's hidden characters print as escapes; its line break starts no line."""
+    argv = [a.format(m=forged_machine, p=PROFILE) for a in argv]
+    assert cli.main(argv) == 0
+    out, err = capsys.readouterr()
+    assert err == ""
+    for ch in HIDDEN:
+        assert ch not in out, repr(ch)
+    assert visible(FORGING_LABEL) in out
+    assert not any(line.startswith("  [note] no cautions") for line in out.splitlines())
+
+
+def test_json_keeps_file_text_exact(forged_machine, capsys):
+    """Issue 8 item 8: ``--json`` gives the label back exactly."""
+    assert cli.main(["search", str(forged_machine), str(PROFILE), "--top", "1", "--json"]) == 0
+    assert json.loads(capsys.readouterr().out)["machine"] == FORGING_LABEL
+
+
+def test_top_1_and_option_1_are_taken(tmp_path, capsys):
+    """Issue 8 item 13: the best option alone can be asked for."""
+    assert cli.main(["search", str(MACHINE), str(PROFILE), "--top", "1", "--json"]) == 0
+    assert len(json.loads(capsys.readouterr().out)["options"]) == 1
+    assert cli._parser().parse_args(["search", "m", "p", "--top", str(cli.MAX_TOP)]).top == cli.MAX_TOP >= 100
+    out = tmp_path / "best.md"
+    assert cli.main(["sheet", str(MACHINE), str(PROFILE), "-o", str(out), "--option", "1"]) == 0
+    assert "option 1 of" in out.read_text(encoding="utf-8")
+
+
+def test_bare_command_prints_usage_on_stderr(capsys):
+    """Issue 8 item 13: ``supplycfg`` alone: usage on standard error, exit code 2, nothing on standard output."""
+    assert cli.main([]) == 2
+    out, err = capsys.readouterr()
+    assert out == ""
+    assert err.startswith("usage: supplycfg") and "command: is missing" in err
+
+
+@pytest.fixture()
+def no_search(monkeypatch):
+    """Fail the test if the search runs: a refusal must come before it."""
+    def refuse(*a, **k):
+        raise AssertionError("the search ran before the output was checked")
+    monkeypatch.setattr(search_module, "search", refuse)
+
+
+def test_missing_output_folder_is_named_before_the_search(tmp_path, capsys, no_search):
+    """Issue 8 item 13: a folder that does not exist is refused before the search, and named."""
+    folder = tmp_path / "sheets" / "2026"
+    assert cli.main(["sheet", str(MACHINE), str(PROFILE), "-o", str(folder / "sheet.html")]) == 2
+    out, err = capsys.readouterr()
+    assert out == "" and len(err.splitlines()) == 1
+    assert f"{folder / 'sheet.html'}: output: " in err and repr(str(folder)) in err and "does not exist" in err
+
+
+def test_overlong_output_name_is_one_line(tmp_path, capsys, no_search):
+    """Issue 8 item 13: a 300-character name is refused in one line, exit 2, no internal error."""
+    out_path = tmp_path / ("s" * 300 + ".html")
+    assert cli.main(["sheet", str(MACHINE), str(PROFILE), "-o", str(out_path)]) == 2
+    out, err = capsys.readouterr()
+    assert out == "" and len(err.splitlines()) == 1
+    assert "internal error" not in err and "output: " in err and "at most" in err
+
+
+def test_existing_output_is_refused_before_the_search(tmp_path, capsys, no_search):
+    """An existing file without --force is refused at once, not after the search."""
+    out_path = tmp_path / "sheet.md"
+    out_path.write_text("mine")
+    assert cli.main(["sheet", str(MACHINE), str(PROFILE), "-o", str(out_path)]) == 2
+    assert "exists already" in capsys.readouterr().err
+    assert out_path.read_text() == "mine"
+
+
+def test_series_turns_must_be_a_tap_exactly(capsys):
+    """Issue 8 item 13: 1e-10 turns is not tap 0; a tap as listed is taken."""
+    assert cli.main(["curve", str(MACHINE), "--connection", "separate-cumulative", "--series-turns", "1e-10",
+                     "--rheostat-ohm", "10"]) == 2
+    err = capsys.readouterr().err
+    assert "--series-turns: is 1e-10; allowed taps: 0, 3, 6" in err
+    assert cli.main(["curve", str(MACHINE), "--connection", "separate-cumulative", "--series-turns", "3.0",
+                     "--rheostat-ohm", "10", "--points", "3", "--json"]) == 0
+    assert json.loads(capsys.readouterr().out)["setting"]["series_turns"] == 3.0
+
+
+@pytest.mark.parametrize("argv, emf", [
+    (["--poles", "64", "--conductors", "10000000", "--parallel-paths", "2", "--speed-rpm", "100000",
+      "--flux-wb", "100"], 64 * 100 * 100000 * 10_000_000 / (60 * 2)),
+    (["--poles", "2", "--conductors", "1000", "--parallel-paths", "1000", "--speed-rpm", "1", "--emf-v", "1e6"], 1e6),
+    (["--poles", "4", "--conductors", "492", "--parallel-paths", "4", "--speed-rpm", "1450", "--flux-wb", "0"], 0.0),
+], ids=["largest", "largest flux", "zero flux"])
+def test_emf_at_its_bounds_is_finite(capsys, argv, emf):
+    """Issue 8 item 13: the EMF equation at its bounds prints a finite answer and nothing on stderr."""
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        assert cli.main(["emf", *argv, "--json"]) == 0
+    out, err = capsys.readouterr()
+    res = json.loads(out)
+    assert err == "" and res["emf_v"] == pytest.approx(emf, rel=1e-12)
+    assert res["flux_wb"] is not None and "inf" not in out.lower()
+
+
+W = str(ROOT / "profiles" / "machines" / "welding-set.toml")
+EXTREMES = [
+    ["curve", str(MACHINE), "--connection", "shunt", "--speed-rpm", "1", "--winding-temperature-c", "-60"],
+    ["curve", str(MACHINE), "--connection", "series", "--speed-rpm", "100000", "--winding-temperature-c", "250",
+     "--points", str(cli.MAX_CURVE_POINTS)],
+    ["curve", str(MACHINE), "--connection", "separate", "--field-current-a", "1e300"],
+    ["curve", str(MACHINE), "--connection", "long-shunt-cumulative", "--diverter-ohm", "1e-300"],
+    ["point", str(MACHINE), "--connection", "shunt", "--line-v0", "1e5", "--line-slope-ohm", "1e-300"],
+    ["point", str(MACHINE), "--connection", "short-shunt-cumulative", "--battery-emf-v", "-1e5", "--battery-ohm", "1e6"],
+    ["point", W, "--connection", "series", "--load-current-a", "-1e6"],
+    ["point", W, "--connection", "long-shunt-differential", "--load-ohm", "1e6", "--speed-rpm", "100000"],
+    ["buildup", str(MACHINE), "--speed-rpm", "1"],
+    ["buildup", W, "--connection", "series", "--speed-rpm", "100000"],
+]
+
+
+@pytest.mark.parametrize("argv", EXTREMES, ids=lambda a: " ".join(a[2:])[:60])
+def test_extreme_accepted_values_leave_stderr_empty(capsys, argv):
+    """Issue 8 item 13: values at the edges of what is accepted answer with no
+    RuntimeWarning (nor anything else) on standard error."""
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        assert cli.main(argv + ["--json"]) == 0
+    assert [str(w.message) for w in caught] == []
+    assert capsys.readouterr().err == ""
