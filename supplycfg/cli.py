@@ -149,10 +149,10 @@ def _setting_from(args, names=SETTING_OPTIONS):
 def _checked(machine, setting):
     from .circuit import SELF_EXCITED, check_setting
     from .readings import exciter_field_current_max_a
+    st = check_setting(machine, setting, "command line", SETTING_OPTIONS)
     if setting.connection in SELF_EXCITED and setting.rheostat_ohm is None:
         raise InputError("command line", "--rheostat-ohm", f"is needed for the self-excited connection "
                          f"{setting.connection!r}: give the field rheostat in ohm (0 for none)")
-    st = check_setting(machine, setting, "command line", SETTING_OPTIONS)
     if setting.field_current_a is not None:
         top = exciter_field_current_max_a(machine, st.winding_temperature_c)
         if top is not None and st.field_current_a > top * (1 + 1e-9):
@@ -443,10 +443,6 @@ def cmd_charge(args, out):
                                  "to charge on the search's best option")
     setting = _setting_from(args) if args.connection else None
     if setting is not None:
-        from .circuit import SELF_EXCITED
-        if setting.connection in SELF_EXCITED and setting.rheostat_ohm is None:
-            raise InputError("command line", "--rheostat-ohm", f"is needed for the self-excited connection "
-                             f"{setting.connection!r}: give the field rheostat in ohm (0 for none)")
         from .machine import load_machine
         _checked(load_machine(args.machine), setting)
     run = charge_from_files(args.machine, args.profile, setting, names=SETTING_OPTIONS)
