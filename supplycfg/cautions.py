@@ -15,6 +15,11 @@ CRITICAL_CLEARANCE = 0.10
 #: Drive speed above rated at which overspeed becomes a stop: the 1.2 x
 #: overspeed test of IEC 60034-1 is a test, not a working speed (common practice).
 OVERSPEED_STOP_FACTOR = 1.2
+#: Drive speed above rated that a governed engine or a motor drive reaches at light
+#: load within its speed band: a note, not a warning. Governed diesel engines run a
+#: few per cent of droop from no load to rated power, induction motors 2-5 % slip
+#: (common practice, from memory); 5 % taken.
+GOVERNOR_BAND_FRACTION = 0.05
 
 
 @dataclass(frozen=True)
@@ -81,12 +86,21 @@ def setting_cautions(machine, setting, f):
                       "self-excitation conditions (Theraja Vol II ch. 28; Kosow ch. 3); 10 % clearance is common practice",
                       critical_resistance_ratio=rr, critical_speed_ratio=sr))
     top = f.get("top_speed_rpm")
-    if top is not None and top > machine.rated_speed_rpm * (1 + 1e-9):
-        sev = "stop" if top > OVERSPEED_STOP_FACTOR * machine.rated_speed_rpm else "warn"
+    rated = machine.rated_speed_rpm
+    if top is not None and top > rated * (1 + 1e-9):
+        if top > OVERSPEED_STOP_FACTOR * rated:
+            sev, what = "stop", (f"more than {100 * (OVERSPEED_STOP_FACTOR - 1):.0f} % above the machine's rated "
+                                 f"{rated:.0f} rpm: the speed of the overspeed test, not a working speed")
+        elif top > (1 + GOVERNOR_BAND_FRACTION) * rated:
+            sev, what = "warn", (f"above the machine's rated {rated:.0f} rpm by more than a governor's band "
+                                 f"({100 * GOVERNOR_BAND_FRACTION:.0f} %): commutator and banding are stressed")
+        else:
+            sev, what = "note", (f"above the machine's rated {rated:.0f} rpm, within a governor's band "
+                                 f"({100 * GOVERNOR_BAND_FRACTION:.0f} %)")
         out.append(caution("overspeed", sev,
-                      f"Drive speed {top:.0f} rpm is above the machine's rated {machine.rated_speed_rpm:.0f} rpm: "
-                      "commutator and banding are stressed and the voltage rises with speed.",
-                      "rating plate; IEC 60034-1 overspeed test is 1.2 x rated for 2 min, a test not a duty (from memory)",
+                      f"Drive speed {top:.0f} rpm is {what}; the voltage rises with speed.",
+                      "rating plate; IEC 60034-1 overspeed test 1.2 x rated for 2 min, a test not a duty (from memory); "
+                      "governor band of a few per cent for governed engines and motor slip (common practice, from memory)",
                       top_speed_rpm=top))
     if conn != "series":
         out.append(caution("field-switching", "warn",

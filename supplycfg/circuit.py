@@ -467,6 +467,8 @@ def _bisect(fun, a, b, fa, steps=BISECTION_STEPS):
             c = np.where(np.isfinite(c) & (c > lo) & (c < hi), c, 0.5 * (a + b))
         else:
             c = 0.5 * (a + b)
+        # an end already on the root stays there (a grid point can hit it exactly)
+        c = np.where(fb == 0, b, c)
         fc = fun(c)
         flip = np.signbit(fc) != np.signbit(fb)
         a = np.where(flip, b, a)

@@ -12,6 +12,7 @@ import os
 import re
 import sys
 from pathlib import Path
+from dataclasses import replace
 
 from . import __version__, STANDING_NOTICE
 from .errors import InputError
@@ -115,16 +116,23 @@ def _number_in(low, high, unit, low_open=False):
 def _add_setting(p, connection_default=None, connection=True):
     if connection:
         p.add_argument("--connection", default=connection_default, required=connection_default is None,
-                       help="separate, separate-cumulative, separate-differential, shunt, series, "
-                            "long-shunt-cumulative, short-shunt-cumulative, long-shunt-differential, "
-                            "short-shunt-differential")
+                       help="how the windings are connected: separate, separate-cumulative, separate-differential, "
+                            "shunt, series, long-shunt-cumulative, short-shunt-cumulative, long-shunt-differential, "
+                            "short-shunt-differential" + ("" if connection_default is None else
+                                                           "; omit the whole setting to use the search's best option"))
     g = p.add_mutually_exclusive_group()
-    g.add_argument("--rheostat-ohm", type=_number, help="field rheostat [ohm]")
-    g.add_argument("--field-current-a", type=_number, help="separate excitation field current [A]")
+    g.add_argument("--rheostat-ohm", type=_number,
+                   help="field rheostat in series with the shunt winding [ohm], 0 to the machine's rheostat_max_ohm; "
+                        "needed for a self-excited connection (give 0 for none)")
+    g.add_argument("--field-current-a", type=_number,
+                   help="separate excitation: the field current [A], at most what the machine's exciter drives "
+                        "through the field at the winding temperature")
     p.add_argument("--series-turns", type=_number, help="series turns per pole in use: one of the machine's taps, exactly")
-    p.add_argument("--diverter-ohm", type=_number, help="diverter across the series winding [ohm]")
-    p.add_argument("--speed-rpm", type=_number_in(MIN_SPEED_RPM, MAX_SPEED_RPM, "rpm"), help="drive speed [rpm]; default rated")
-    p.add_argument("--winding-temperature-c", type=_number, help="winding temperature [degC]; default reference")
+    p.add_argument("--diverter-ohm", type=_number, help="diverter resistor across the series winding [ohm]; omit for none")
+    p.add_argument("--speed-rpm", type=_number_in(MIN_SPEED_RPM, MAX_SPEED_RPM, "rpm"),
+                   help="drive speed [rpm]; default the machine's rated speed")
+    p.add_argument("--winding-temperature-c", type=_number,
+                   help="winding temperature [degC]; default the machine's reference temperature")
 
 
 def _parser():
@@ -132,57 +140,65 @@ def _parser():
     top.add_argument("--version", action="version", version=f"supplycfg {__version__}")
     sub = top.add_subparsers(dest="command", parser_class=_Parser)
 
+    machine_help = "machine file (TOML): the generator's test curve, resistances, turns and ratings"
+    profile_help = "load profile (TOML): the job, its drive speeds and winding temperatures"
+    json_help = "print one JSON object instead of the readable text"
+
     p = sub.add_parser("curve", help="external characteristic of one setting")
-    p.add_argument("machine"); _add_setting(p)
+    p.add_argument("machine", help=machine_help); _add_setting(p)
     p.add_argument("--points", type=_whole(2, MAX_CURVE_POINTS), default=40,
-                   help=f"points along the curve (2 to {MAX_CURVE_POINTS})")
-    p.add_argument("--json", action="store_true")
+                   help=f"points along the curve (2 to {MAX_CURVE_POINTS}; default 40)")
+    p.add_argument("--json", action="store_true", help=json_help)
 
     p = sub.add_parser("point", help="operating points of one setting against one load")
-    p.add_argument("machine"); _add_setting(p)
+    p.add_argument("machine", help=machine_help); _add_setting(p)
     ohm = _number_in(0.0, MAX_LOAD_OHM, "ohm")
     volts = _number_in(-MAX_LOAD_VOLTAGE_V, MAX_LOAD_VOLTAGE_V, "V")
-    p.add_argument("--load-ohm", type=ohm, help="resistor load [ohm]")
+    p.add_argument("--load-ohm", type=ohm, help="load: a resistor [ohm]")
     p.add_argument("--load-current-a", type=_number_in(-MAX_LOAD_CURRENT_A, MAX_LOAD_CURRENT_A, "A"),
-                   help="constant-current load [A]")
-    p.add_argument("--battery-emf-v", type=volts, help="battery EMF [V]")
-    p.add_argument("--battery-ohm", type=ohm, help="battery and cable resistance [ohm]")
-    p.add_argument("--line-v0", type=volts, help="load line voltage at zero current [V]")
-    p.add_argument("--line-slope-ohm", type=ohm, help="load line slope [ohm]")
-    p.add_argument("--json", action="store_true")
+                   help="load: a constant current [A]")
+    p.add_argument("--battery-emf-v", type=volts, help="load: a battery's EMF [V] (with --battery-ohm)")
+    p.add_argument("--battery-ohm", type=ohm, help="load: the battery's internal and cable resistance [ohm]")
+    p.add_argument("--line-v0", type=volts, help="load: a line V = V0 + k I, its V0 [V] (with --line-slope-ohm)")
+    p.add_argument("--line-slope-ohm", type=ohm, help="load: the line's slope k [ohm]")
+    p.add_argument("--json", action="store_true", help=json_help)
 
     p = sub.add_parser("buildup", help="self-excitation of the shunt field (or a series machine)")
-    p.add_argument("machine")
+    p.add_argument("machine", help=machine_help)
     p.add_argument("--connection", default="shunt", help="shunt (default) or series")
-    p.add_argument("--rheostat-ohm", type=_number)
-    p.add_argument("--series-turns", type=_number)
-    p.add_argument("--speed-rpm", type=_number_in(MIN_SPEED_RPM, MAX_SPEED_RPM, "rpm"))
-    p.add_argument("--winding-temperature-c", type=_number)
-    p.add_argument("--json", action="store_true")
+    p.add_argument("--rheostat-ohm", type=_number,
+                   help="field rheostat [ohm]; without it only the critical field resistance is given")
+    p.add_argument("--series-turns", type=_number, help="series machine: series turns per pole in use (a tap)")
+    p.add_argument("--speed-rpm", type=_number_in(MIN_SPEED_RPM, MAX_SPEED_RPM, "rpm"),
+                   help="drive speed [rpm]; default the machine's rated speed")
+    p.add_argument("--winding-temperature-c", type=_number,
+                   help="winding temperature [degC]; default the machine's reference temperature")
+    p.add_argument("--json", action="store_true", help=json_help)
 
     p = sub.add_parser("emf", help="the EMF equation E = P*Phi*N*Z/(60*A), either way")
-    p.add_argument("--poles", type=_whole(2, MAX_POLES, even=True), required=True, help="pole count P (even)")
+    p.add_argument("--poles", type=_whole(2, MAX_POLES, even=True), required=True, help="number of poles P (even)")
     p.add_argument("--conductors", type=_whole(1, MAX_CONDUCTORS), required=True, help="armature conductors Z")
     p.add_argument("--parallel-paths", type=_whole(2, MAX_PARALLEL_PATHS, even=True), required=True,
-                   help="parallel paths A (even: 2 for wave, the pole count or a multiple for lap)")
-    p.add_argument("--speed-rpm", type=_number_in(MIN_SPEED_RPM, MAX_SPEED_RPM, "rpm"), required=True)
+                   help="parallel paths A (even: 2 for a wave winding, the pole count or a multiple for lap)")
+    p.add_argument("--speed-rpm", type=_number_in(MIN_SPEED_RPM, MAX_SPEED_RPM, "rpm"), required=True,
+                   help="speed N [rpm]")
     g = p.add_mutually_exclusive_group(required=True)
-    g.add_argument("--flux-wb", type=_number_in(0.0, MAX_FLUX_WB, "Wb"), help="flux per pole [Wb]")
-    g.add_argument("--emf-v", type=_number_in(0.0, MAX_EMF_V, "V"), help="generated EMF [V]")
-    p.add_argument("--json", action="store_true")
+    g.add_argument("--flux-wb", type=_number_in(0.0, MAX_FLUX_WB, "Wb"), help="flux per pole [Wb]: gives the EMF")
+    g.add_argument("--emf-v", type=_number_in(0.0, MAX_EMF_V, "V"), help="EMF [V]: gives the flux per pole")
+    p.add_argument("--json", action="store_true", help=json_help)
 
     p = sub.add_parser("search", help="settings that meet a load profile, ranked")
-    p.add_argument("machine"); p.add_argument("profile")
-    p.add_argument("--top", type=_whole(1, MAX_TOP), default=10, help=f"options shown (1 to {MAX_TOP})")
-    p.add_argument("--json", action="store_true")
+    p.add_argument("machine", help=machine_help); p.add_argument("profile", help=profile_help)
+    p.add_argument("--top", type=_whole(1, MAX_TOP), default=10, help=f"options to print (1 to {MAX_TOP}; default 10)")
+    p.add_argument("--json", action="store_true", help=json_help)
 
     p = sub.add_parser("charge", help="a battery charge through time")
-    p.add_argument("machine"); p.add_argument("profile")
+    p.add_argument("machine", help=machine_help); p.add_argument("profile", help=profile_help + " (a battery job)")
     _add_setting(p, connection_default="")
-    p.add_argument("--json", action="store_true")
+    p.add_argument("--json", action="store_true", help=json_help)
 
     p = sub.add_parser("sheet", help="write the setting sheet of the best option (HTML or Markdown)")
-    p.add_argument("machine"); p.add_argument("profile")
+    p.add_argument("machine", help=machine_help); p.add_argument("profile", help=profile_help)
     p.add_argument("--output", "-o", required=True, help="file to write (.html or .md)")
     p.add_argument("--option", type=_whole(1, MAX_OPTION_RANK), default=None, help="rank of the option (1 = best)")
     p.add_argument("--force", action="store_true", help="overwrite an existing file")
@@ -196,8 +212,8 @@ def _parser():
 
     p = sub.add_parser("bench", help="time the engine and the search")
     p.add_argument("--repeat", type=_whole(1, MAX_BENCH_REPEAT), default=5,
-                   help=f"runs per figure (1 to {MAX_BENCH_REPEAT})")
-    p.add_argument("--json", action="store_true")
+                   help=f"repeats of each timing (1 to {MAX_BENCH_REPEAT}; default 5)")
+    p.add_argument("--json", action="store_true", help=json_help)
 
     p = sub.add_parser("page", help="start the page in a browser tab on this computer (Streamlit)")
     p.add_argument("--port", type=_whole(1, 65535), default=DEFAULT_PAGE_PORT,
@@ -218,16 +234,65 @@ def _setting_from(args, names=SETTING_OPTIONS):
 
 
 def _checked(machine, setting):
-    from .circuit import check_setting
-    return check_setting(machine, setting, "command line", SETTING_OPTIONS)
+    from .circuit import SELF_EXCITED, check_setting
+    from .readings import exciter_field_current_max_a
+    st = check_setting(machine, setting, "command line", SETTING_OPTIONS)
+    if setting.connection in SELF_EXCITED and setting.rheostat_ohm is None:
+        raise InputError("command line", "--rheostat-ohm", f"is needed for the self-excited connection "
+                         f"{setting.connection!r}: give the field rheostat in ohm (0 for none)")
+    if setting.field_current_a is not None:
+        top = exciter_field_current_max_a(machine, st.winding_temperature_c)
+        if top is not None and st.field_current_a > top * (1 + 1e-9):
+            raise InputError("command line", "--field-current-a",
+                             f"is {st.field_current_a:g}; allowed: at most {top:.3g} A, what the machine's "
+                             f"{machine.excitation_voltage_v:g} V exciter drives through the field at "
+                             f"{st.winding_temperature_c:g} degC")
+    return st
 
 
-def table(rows, headers, fmt=None):
-    """Plain fixed-width table."""
+#: Plain words and units of the operating-point keys in text tables.
+POINT_WORDS = {"load_current_a": "load current [A]", "terminal_voltage_v": "terminal voltage [V]",
+               "armature_current_a": "armature current [A]", "shunt_field_current_a": "shunt field current [A]",
+               "series_field_current_a": "series field current [A]", "generated_emf_v": "generated EMF [V]",
+               "stable": "stable", "extrapolated": "beyond the measured curve"}
+
+
+def _critical_ratio(machine, st):
+    """R_crit / R_field of a self-excited setting at its speed and temperature (None otherwise)."""
+    from .circuit import SELF_EXCITED
+    from .magnetisation import OpenCircuitCurve
+    from .readings import field_resistance_ohm
+    if st.connection not in SELF_EXCITED or st.rheostat_ohm is None:
+        return None
+    slope = OpenCircuitCurve.from_machine(machine).air_gap_slope()
+    rf = field_resistance_ohm(machine, st.winding_temperature_c) + st.rheostat_ohm
+    return float(slope * st.speed_rpm / machine.occ_speed_rpm / rf)
+
+
+def _setting_figures(machine, st):
+    f = {"top_speed_rpm": st.speed_rpm}
+    rr = _critical_ratio(machine, st)
+    if rr is not None:
+        f["critical_resistance_ratio"] = rr
+    return f
+
+
+def _caution_lines(cautions):
+    if not cautions:
+        return []
+    out = ["", "Cautions:"]
+    for c in sorted(cautions, key=lambda c: ["stop", "warn", "note"].index(c.severity)):
+        out.append(f"  [{c.severity}] {c.message} (basis: {c.basis})")
+    return out
+
+
+def table(rows, headers, fmt=None, names=None):
+    """Plain fixed-width table; ``names`` gives each key's heading (words and unit)."""
     fmt = fmt or {}
     cells = [[_cell(r.get(h), fmt.get(h)) for h in headers] for r in rows]
-    widths = [max(len(h), *(len(c[i]) for c in cells)) if cells else len(h) for i, h in enumerate(headers)]
-    out = ["  ".join(h.rjust(w) for h, w in zip(headers, widths)),
+    heads = [(names or {}).get(h, h) for h in headers]
+    widths = [max(len(h), *(len(c[i]) for c in cells)) if cells else len(h) for i, h in enumerate(heads)]
+    out = ["  ".join(h.rjust(w) for h, w in zip(heads, widths)),
            "  ".join("-" * w for w in widths)]
     out += ["  ".join(c.rjust(w) for c, w in zip(row, widths)) for row in cells]
     return "\n".join(out)
@@ -258,10 +323,17 @@ def cmd_curve(args, out):
     m = load_machine(args.machine)
     st = _checked(m, _setting_from(args))
     c = external_characteristic(m, st, args.points)
-    res = {"setting": st.as_dict(), "points": c.point_list(), "no_load_voltage_v": c.no_load_voltage_v,
+    from .jobs import command_cautions
+    f = _setting_figures(m, st)
+    pts = c.point_list()
+    if pts:
+        f["max_armature_current_a"] = max(abs(p["armature_current_a"]) for p in pts)
+        f["min_generated_emf_v"] = min(p["generated_emf_v"] for p in pts)
+    cautions = command_cautions(m, st, f)
+    res = {"setting": st.as_dict(), "points": pts, "no_load_voltage_v": c.no_load_voltage_v,
            "short_circuit_current_a": c.short_circuit_current_a, "max_load_current_a": c.max_load_current_a,
            "regulation_percent": c.regulation_percent, "extrapolated": c.extrapolated,
-           "converged": c.converged, "notes": c.notes}
+           "converged": c.converged, "notes": c.notes, "cautions": [x.as_dict() for x in cautions]}
     if args.json:
         return res
     lines = [f"{_name(m, args)}: {st.connection}, {st.describe()}",
@@ -270,8 +342,9 @@ def cmd_curve(args, out):
              ""]
     rows = c.point_list()
     lines.append(table(rows, ["load_current_a", "terminal_voltage_v", "armature_current_a", "shunt_field_current_a",
-                              "series_field_current_a", "generated_emf_v", "extrapolated"]))
+                              "series_field_current_a", "generated_emf_v", "extrapolated"], names=POINT_WORDS))
     lines += _notes(c.notes, c.extrapolated, c.converged)
+    lines += _caution_lines(cautions)
     return "\n".join(lines)
 
 
@@ -320,52 +393,86 @@ def cmd_point(args, out):
     st = _checked(m, _setting_from(args))
     ops = operating_points(m, st, load)
     pts = [{k: v for k, v in p.items() if k != "residual_v"} for p in ops.points]
-    res = {"setting": st.as_dict(), "load": load.label, "operating_points": pts, "converged": ops.converged}
+    from .cautions import caution
+    from .jobs import command_cautions
+    f = _setting_figures(m, st)
+    at = ops.normal
+    if at is not None:
+        f["max_armature_current_a"] = abs(at["armature_current_a"])
+        f["min_generated_emf_v"] = at["generated_emf_v"]
+    cautions = command_cautions(m, st, f, load=kind)
+    if at is not None and kind == "battery" and at["load_current_a"] < 0:
+        cautions.append(caution("back-feed", "warn",
+                                f"The battery drives {-at['load_current_a']:.3g} A back into the machine (back-feeding): "
+                                "fit a reverse-current cut-out or blocking diode.",
+                                "common practice for DC charging sets (reverse-current relay)",
+                                load_current_a=at["load_current_a"]))
+    res = {"setting": st.as_dict(), "load": load.label, "operating_points": pts, "converged": ops.converged,
+           "cautions": [x.as_dict() for x in cautions]}
     if args.json:
         return res
     lines = [f"{_name(m, args)}: {st.connection}, {st.describe()}; load: {load.label}", ""]
     if pts:
         lines.append(table(pts, ["terminal_voltage_v", "load_current_a", "armature_current_a", "shunt_field_current_a",
-                                 "series_field_current_a", "generated_emf_v", "stable", "extrapolated"]))
+                                 "series_field_current_a", "generated_emf_v", "stable", "extrapolated"], names=POINT_WORDS))
         lines.append("")
         lines.append("The machine sits at the highest stable point; unstable points are listed, not used.")
-        if any(p["load_current_a"] < 0 for p in pts):
+        if kind != "battery" and any(p["load_current_a"] < 0 for p in pts):
             lines.append("caution: a negative load current means the load drives the machine (back-feeding); "
                          "fit a reverse-current cut-out or blocking diode.")
     else:
         lines.append("no operating point: the characteristic does not meet this load")
     if not ops.converged:
         lines.append("warning: a point did not converge; " + ops.message)
+    lines += _caution_lines(cautions)
     return "\n".join(lines)
 
 
 def cmd_buildup(args, out):
-    from .circuit import self_excitation, series_critical_resistance_ohm
+    from .circuit import Setting, check_setting, self_excitation, series_critical_resistance_ohm
+    from .jobs import command_cautions
     from .machine import load_machine
     m = load_machine(args.machine)
     if args.connection == "series":
         if args.rheostat_ohm is not None:
             raise InputError("command line", "--rheostat-ohm", "does not apply to a series machine")
         r = series_critical_resistance_ohm(m, args.series_turns, args.speed_rpm, args.winding_temperature_c)
-        res = {"connection": "series", "critical_circuit_resistance_ohm": r}
+        st = check_setting(m, Setting("series", series_turns=args.series_turns, speed_rpm=args.speed_rpm,
+                                      winding_temperature_c=args.winding_temperature_c), "command line", SETTING_OPTIONS)
+        cautions = command_cautions(m, st, _setting_figures(m, st))
+        res = {"connection": "series", "critical_circuit_resistance_ohm": r,
+               "cautions": [x.as_dict() for x in cautions]}
         if args.json:
             return res
-        return (f"{_name(m, args)}: series connection\n"
-                f"critical circuit resistance {r:.4g} ohm: the machine builds up only on a closed circuit "
-                "(armature, series field and load) of lower total resistance")
+        return "\n".join([f"{_name(m, args)}: series connection",
+                          f"critical circuit resistance {r:.4g} ohm: the machine builds up only on a closed circuit "
+                          "(armature, series field and load) of lower total resistance"] + _caution_lines(cautions))
     if args.connection != "shunt":
         raise InputError("command line", "--connection", f"is {args.connection!r}; allowed: shunt, series")
     if args.series_turns is not None:
         raise InputError("command line", "--series-turns", "applies to --connection series only")
-    se = self_excitation(m, args.rheostat_ohm, args.speed_rpm, args.winding_temperature_c)
-    res = {"connection": "shunt", "setting": se.setting.as_dict(),
-           "field_circuit_resistance_ohm": se.field_circuit_resistance_ohm,
+    given = args.rheostat_ohm is not None
+    # without a rheostat only what does not depend on it is stated
+    se = self_excitation(m, args.rheostat_ohm if given else 0.0, args.speed_rpm, args.winding_temperature_c)
+    st = se.setting if given else replace(se.setting, rheostat_ohm=None)
+    cautions = command_cautions(m, se.setting if given else st, _setting_figures(m, st))
+    res = {"connection": "shunt", "setting": st.as_dict(),
+           "field_circuit_resistance_ohm": se.field_circuit_resistance_ohm if given else None,
            "critical_field_resistance_ohm": se.critical_field_resistance_ohm,
-           "critical_speed_rpm": se.critical_speed_rpm, "builds_up": se.builds_up,
-           "no_load_voltage_v": se.no_load_voltage_v, "stall_voltage_v": se.stall_voltage_v,
-           "reasons": se.reasons, "extrapolated": se.extrapolated, "converged": se.converged}
+           "critical_speed_rpm": se.critical_speed_rpm if given else None,
+           "builds_up": se.builds_up if given else None,
+           "no_load_voltage_v": se.no_load_voltage_v if given else None,
+           "stall_voltage_v": se.stall_voltage_v if given else None,
+           "reasons": se.reasons if given else [], "extrapolated": se.extrapolated if given else None,
+           "converged": se.converged, "cautions": [x.as_dict() for x in cautions]}
     if args.json:
         return res
+    if not given:
+        return "\n".join([f"{_name(m, args)}: shunt field at no load, {st.describe()}",
+                          f"critical field-circuit resistance {se.critical_field_resistance_ohm:.4g} ohm at this speed: "
+                          "the field circuit (winding and rheostat) must stay below it to build up",
+                          "give --rheostat-ohm for the build-up, the no-load voltage and the critical speed"]
+                         + _caution_lines(cautions))
     lines = [f"{_name(m, args)}: shunt field at no load, {se.setting.describe()}",
              f"field circuit {se.field_circuit_resistance_ohm:.4g} ohm; critical {se.critical_field_resistance_ohm:.4g} ohm at this speed; "
              f"critical speed {se.critical_speed_rpm:.5g} rpm",
@@ -377,6 +484,7 @@ def cmd_buildup(args, out):
         lines.append("note: the no-load point lies beyond the last measured point of the open-circuit curve (extrapolated)")
     for r in se.reasons:
         lines.append(f"- {r}")
+    lines += _caution_lines(cautions)
     return "\n".join(lines)
 
 
@@ -417,6 +525,9 @@ def cmd_charge(args, out):
                 raise InputError("command line", opt, "needs --connection too; give the whole setting, or none "
                                  "to charge on the search's best option")
     setting = _setting_from(args) if args.connection else None
+    if setting is not None:
+        from .machine import load_machine
+        _checked(load_machine(args.machine), setting)
     run = charge_from_files(args.machine, args.profile, setting, names=SETTING_OPTIONS)
     if args.json:
         return run.as_dict()

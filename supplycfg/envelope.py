@@ -18,12 +18,14 @@ from dataclasses import dataclass
 import numpy as np
 
 from .circuit import SEPARATE, USES_SERIES, Setting, allowed_connections, build_circuit
+from .readings import preferred_resistance_ohm
 
 #: Grid of field-control values before refinement.
 CONTROL_GRID = 13
 #: Golden-section steps refining the best control value (0.618**14 ~ 1e-3 of a grid cell).
 GOLDEN_STEPS = 12
-#: Diverters tried, as multiples of the series-winding resistance in use (none is always tried).
+#: Diverters tried, as multiples of the series-winding resistance in use, each taken at
+#: its nearest E12 preferred value (a resistor one can buy or build); none is always tried.
 DIVERTER_FACTORS = (0.5, 1.0, 2.0, 4.0)
 #: Booster diverters: a finer set, since the diverter is its only trim.
 BOOSTER_DIVERTER_FACTORS = tuple(np.round(np.geomspace(0.25, 16.0, 13), 4))
@@ -82,7 +84,7 @@ def candidate_bases(machine, profile):
             if conn in USES_SERIES and kind in ("welding", "lighting", "booster"):
                 rse = machine.series_field_resistance_ohm * tap / machine.series_turns_per_pole
                 factors = BOOSTER_DIVERTER_FACTORS if kind == "booster" else DIVERTER_FACTORS
-                divs += [float(round(f * rse, 6)) for f in factors]
+                divs += sorted({preferred_resistance_ohm(f * rse) for f in factors})
             for d in divs:
                 bases.append((conn, float(tap), d, control))
     return bases

@@ -73,6 +73,9 @@ FIGURE_WORDS = {
     "stuck_electrode_current_a": "stuck-electrode current",
     "duty_equivalent_current_a": "duty-cycle equivalent current (an upper bound)",
     "top_speed_rpm": "top drive speed",
+    "min_no_load_voltage_v": "no-load voltage (mean), lowest",
+    "no_load_strike_min_v": "no-load voltage an arc needs to strike",
+    "tap_changes": ("series-tap changes along the welding dial", ""),
 }
 
 #: Plain words for the limits the search checks.
@@ -93,6 +96,10 @@ LIMIT_WORDS = {
     "characteristic_slope_high": "characteristic the process needs at the high end",
     "stuck_electrode_current": "stuck-electrode current within the peak rating",
     "duty_cycle_heating": "duty-cycle heating within the continuous rating",
+    "dial_current": "every welding-dial current reached within 3 %",
+    "no_load_strike_voltage": "no-load voltage high enough to strike an arc",
+    "characteristic_slope": "characteristic the process needs on every dial row",
+    "exciter_supply": "field current within the exciter's reach",
     "solve_not_converged": "the solve converged",
     "stop_caution": "no stop caution",
 }

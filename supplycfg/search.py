@@ -20,15 +20,43 @@ from . import STANDING_NOTICE, __version__
 from .circuit import USES_SERIES, Setting, check_setting
 from .envelope import build_space, candidate_bases, margin
 from .jobs import JOBS, option_cautions, profile_cautions
+from .readings import diverter_rating, exciter_supply
 from .machine import load_machine
 from .profile import load_profile
 from .text import visible
 
-__all__ = ["Option", "SearchResult", "candidate_bases", "search", "search_machine_profile", "search_text"]
+__all__ = ["Option", "RANKING_RULE", "SearchResult", "candidate_bases", "rank_options", "ranking_rule", "search",
+           "search_machine_profile", "search_text"]
+
+#: Objectives closer than this share of the larger tie (issue rule).
+OBJECTIVE_TIE_FRACTION = 0.02
+
+#: The words of the ranking rule; ``{objective}`` is the job's objective label.
+RANKING_RULE = (
+    "Ranking: options that meet every limit first, by {objective}; objectives within 2 % of each other "
+    "tie, and a tie goes to the simpler rig (no diverter, fewer series turns in circuit, no exciter needed), "
+    "then to the larger least margin. Then the options without a stop caution, by the number of limits "
+    "broken and then by the worst breach as a share of its limit. Options with a stop caution come last, "
+    "marked not usable. Options with the same figures are listed once.")
+#: What "least margin" means wherever it is printed.
+LEAST_MARGIN_MEANING = ("least margin: the smallest margin over every limit of the job, as a share of that "
+                        "limit (negative where a limit is broken)")
+
+
+def ranking_rule(kind):
+    """The ranking rule in words for a job ``kind``, with its objective."""
+    return RANKING_RULE.format(objective=JOBS[kind].OBJECTIVE_LABEL)
+
 
 @dataclass
 class Option:
-    """One candidate setting with its figures, margins and cautions."""
+    """One candidate setting with its figures, margins, cautions and what a person sets and reads.
+
+    ``setting`` keeps the exact control (what a re-solve uses); ``readings``
+    and ``band`` give it rounded to what can be set. ``extras`` holds the
+    job's own keys (the welding ``dial``, ``diverters``, ``exciter``) for the
+    JSON.
+    """
 
     rank: int
     feasible: bool
@@ -41,6 +69,39 @@ class Option:
     current_settings: list | None = None
     control: str = "rheostat"
     extrapolated: bool = False
+    readings: dict | None = None
+    band: dict | None = None
+    extras: dict = field(default_factory=dict)
+    objective: float | None = None
+    same_as: list = field(default_factory=list)
+
+    @property
+    def usable(self):
+        """False when a ``stop`` caution rules the setting out."""
+        return not any(c.severity == "stop" for c in self.cautions)
+
+    @property
+    def limits_broken(self):
+        """Names of the job's limits this option breaks (the stop caution not counted)."""
+        return [n for n in self.failed if n != "stop_caution"]
+
+    @property
+    def worst_breach(self):
+        """The most negative margin fraction among the broken limits (-inf where one is unknown)."""
+        fr = [m["fraction"] for n, m in self.margins.items() if n in self.failed]
+        fr = [-math.inf if f is None else f for f in fr]
+        if "solve_not_converged" in self.failed:
+            fr.append(-math.inf)
+        return min(fr) if fr else 0.0
+
+    @property
+    def rig(self):
+        """Sort key of the rig's simplicity: diverter, series turns in circuit, exciter needed."""
+        divs = self.extras.get("diverters")
+        has_div = bool(divs) if divs is not None else self.setting.diverter_ohm is not None
+        dial = self.extras.get("dial") or []
+        turns = max([r.get("series_turns") or 0.0 for r in dial] + [self.setting.series_turns or 0.0])
+        return (has_div, turns, self.setting.connection.startswith("separate"))
 
     def setting_dict(self):
         s = self.setting
@@ -52,11 +113,15 @@ class Option:
             d["rheostat_ohm"] = None if self.control == "none" else s.rheostat_ohm
         return d
 
-    def as_dict(self):
-        d = {"rank": self.rank, "feasible": self.feasible, "setting": self.setting_dict(),
+    def as_dict(self, objective_label=None):
+        d = {"rank": self.rank, "feasible": self.feasible, "usable": self.usable, "setting": self.setting_dict(),
              "figures": self.figures, "margins": self.margins, "failed": list(self.failed),
-             "smallest_margin": self.smallest_margin, "extrapolated": self.extrapolated,
-             "cautions": [c.as_dict() for c in self.cautions]}
+             "smallest_margin": self.smallest_margin if math.isfinite(self.smallest_margin) else None,
+             "extrapolated": self.extrapolated, "readings": self.readings, "band": self.band,
+             "objective": {"value": self.objective, "label": objective_label},
+             "same_as": list(self.same_as), "cautions": [c.as_dict() for c in self.cautions]}
+        for k, v in self.extras.items():
+            d.setdefault(k, v)
         if self.current_settings is not None:
             d["current_settings"] = self.current_settings
         return d
@@ -78,10 +143,17 @@ class SearchResult:
     def feasible(self):
         return [o for o in self.options if o.feasible]
 
+    @property
+    def ranking_rule(self):
+        """The rule the options are ranked by, in words."""
+        return ranking_rule(self.profile.kind)
+
     def as_dict(self):
+        label = JOBS[self.profile.kind].OBJECTIVE_LABEL
         return {"tool": f"supplycfg {__version__}", "machine": self.machine.label,
                 "profile": self.profile.label, "kind": self.profile.kind,
-                "options": [o.as_dict() for o in self.options],
+                "ranking_rule": self.ranking_rule, "least_margin": LEAST_MARGIN_MEANING,
+                "options": [o.as_dict(label) for o in self.options],
                 "cautions": [c.as_dict() for c in self.cautions],
                 "candidates_evaluated": self.candidates_evaluated,
                 "search_seconds": self.search_seconds, "notes": list(self.notes),
@@ -114,8 +186,98 @@ def _setting_for(space, i, u):
                                                 winding_temperature_c=space.nominal[1], **kw))
 
 
+def _margin_entry(v, limit, kind, unit):
+    if not math.isfinite(v):
+        return {"value": None, "limit": limit, "kind": kind, "unit": unit, "margin": None, "fraction": None}
+    mv, fr = margin(v, limit, kind, unit)
+    return {"value": v, "limit": limit, "kind": kind, "unit": unit, "margin": mv, "fraction": fr}
+
+
+def exciter_margin(supply):
+    """Margin entry of the exciter supply: the voltage needed at the hot field against the exciter's.
+
+    Without an exciter the whole supply is missing: fraction -1.
+    """
+    need, have = supply["voltage_v"], supply["available_voltage_v"]
+    if have is None:
+        return {"value": need, "limit": 0.0, "kind": "max", "unit": "V", "margin": -need, "fraction": -1.0}
+    return _margin_entry(need, have, "max", "V")
+
+
+def _sig(v):
+    if v is None:
+        return None
+    x = float(v)
+    return float(f"{x:.6g}") if math.isfinite(x) else None
+
+
+def _signature(o):
+    """What must agree for two options to be the same: connection, control, figures."""
+    s = o.setting
+    u = s.field_current_a if o.control == "field-current" else s.rheostat_ohm
+    return (s.connection, o.control, _sig(u if o.control != "none" else None),
+            tuple((k, _sig(v)) for k, v in sorted(o.figures.items())))
+
+
+def merge_identical(options):
+    """One option per set of identical settings and figures: the simplest rig, the others in ``same_as``."""
+    groups = {}
+    for o in options:
+        groups.setdefault(_signature(o), []).append(o)
+    out = []
+    for grp in groups.values():
+        grp.sort(key=lambda o: (o.rig, o.setting.series_turns or 0.0, o.setting.diverter_ohm or 0.0))
+        keep = grp[0]
+        keep.same_as = [o.setting_dict() for o in grp[1:]]
+        out.append(keep)
+    return out
+
+
+def _ties(a, b, tie=OBJECTIVE_TIE_FRACTION):
+    if a is None and b is None:
+        return True
+    if a is None or b is None:
+        return False
+    return abs(a - b) <= tie * max(abs(a), abs(b))
+
+
+def rank_options(options, tie=OBJECTIVE_TIE_FRACTION):
+    """Options in the stated order (:data:`RANKING_RULE`), ranks set from 1.
+
+    Feasible options by the job's objective (None last), ties within
+    ``tie`` of the first of each group broken by the simpler rig and then by
+    the larger least margin; then the options without a stop caution by the
+    number of limits broken and the worst breach; then those with one.
+    """
+    def stable(o):
+        s = o.setting
+        return (s.connection, s.series_turns or 0.0, s.diverter_ohm or 0.0)
+
+    feas = sorted((o for o in options if o.feasible),
+                  key=lambda o: (o.objective is None, o.objective if o.objective is not None else 0.0,
+                                 o.rig, -o.smallest_margin, stable(o)))
+    groups = []
+    for o in feas:
+        if groups and _ties(groups[-1][0].objective, o.objective, tie):
+            groups[-1].append(o)
+        else:
+            groups.append([o])
+    ordered = []
+    for g in groups:
+        ordered += sorted(g, key=lambda o: (o.rig, -o.smallest_margin, stable(o)))
+
+    def miss_key(o):
+        return (len(o.limits_broken), -o.worst_breach, stable(o))
+
+    ordered += sorted((o for o in options if not o.feasible and o.usable), key=miss_key)
+    ordered += sorted((o for o in options if not o.feasible and not o.usable), key=miss_key)
+    for k, o in enumerate(ordered, 1):
+        o.rank = k
+    return ordered
+
+
 def search(machine, profile):
-    """Every setting that meets the job, ranked, with the nearest misses.
+    """Every setting that meets the job, ranked by the stated rule, with the nearest misses.
 
     Parameters
     ----------
@@ -125,9 +287,10 @@ def search(machine, profile):
     Returns
     -------
     SearchResult
-        Feasible options first (by smallest margin, largest first), then the
-        misses (by how far their worst limit is broken). A setting with a
-        ``stop`` caution is never feasible.
+        Ordered as :data:`RANKING_RULE` says. A setting with a ``stop``
+        caution is never feasible; a separately excited option is feasible
+        only if the machine's exciter drives its field current at the
+        hottest winding of the envelope.
     """
     t0 = time.perf_counter()
     space = build_space(machine, profile)
@@ -137,42 +300,50 @@ def search(machine, profile):
                            time.perf_counter() - t0, ["this machine has no connection for this job (a booster needs a series winding)"])
         return res
     nb = len(space.bases)
-    u_best, lim, figs, extras, evaluated = JOBS[profile.kind].solve(space)
+    job = JOBS[profile.kind]
+    u_best, lim, figs, extras, evaluated = job.solve(space)
+    objective = np.asarray(job.objective(figs), float)
     top_speed = max(c[0] for c in space.corners)
+    hot_t = max(c[1] for c in space.corners)
     options = []
     for i in range(nb):
-        margins, failed, fracs = {}, [], []
+        margins, failed = {}, []
         for name, (val, limit, kind, unit) in lim.items():
-            v = float(np.asarray(val)[i])
-            mv, fr = margin(v, limit, kind, unit)
-            if not math.isfinite(fr):
-                fr, mv = -1.0, None
+            margins[name] = _margin_entry(float(np.asarray(val)[i]), limit, kind, unit)
+            fr = margins[name]["fraction"]
+            if fr is None or fr < 0:
                 failed.append(name)
-            elif fr < 0:
-                failed.append(name)
-            margins[name] = {"value": v if math.isfinite(v) else None, "limit": limit, "kind": kind,
-                             "unit": unit, "margin": mv, "fraction": fr}
-            fracs.append(fr)
+        ex = dict(extras[i] or {})
+        control = space.bases[i][3]
+        supply = ex.get("exciter")
+        if supply is None and control in ("exciter", "field-current"):
+            supply = exciter_supply(machine, control, u_best[i], hot_t)
+        ex["exciter"] = supply
+        if supply is not None and not supply["reaches"]:
+            margins["exciter_supply"] = exciter_margin(supply)
+            failed.append("exciter_supply")
         f = _fig_dict(figs, i)
         f["top_speed_rpm"] = top_speed
         st = _setting_for(space, i, u_best[i])
+        if "diverters" not in ex:
+            rating = diverter_rating(machine, st.series_turns, st.diverter_ohm, f.get("max_armature_current_a"), hot_t)
+            ex["diverters"] = [] if rating is None else [dict(rating, series_turns=st.series_turns)]
         cautions = option_cautions(machine, profile, st, f)
         conv = bool(np.asarray(figs["converged"])[i] >= 1)
         if not conv:
             failed.append("solve_not_converged")
-        stop = any(c.severity == "stop" for c in cautions)
-        if stop:
+        if any(c.severity == "stop" for c in cautions):
             failed.append("stop_caution")
-        feasible = not failed
+        fracs = [-math.inf if m["fraction"] is None else m["fraction"] for m in margins.values()]
         xmax = f.get("max_net_mmf_a")
         extrap = xmax is not None and xmax > machine.occ_field_current_a[-1] * (1 + 1e-9)
-        options.append(Option(0, feasible, st, f, margins, failed, cautions, float(min(fracs)) if fracs else 0.0,
-                              (extras[i] or {}).get("current_settings"), {"field-current": "field-current", "none": "none"}.get(space.bases[i][3], "rheostat"),
-                              extrap))
-    options.sort(key=lambda o: (not o.feasible, -o.smallest_margin, o.setting.connection,
-                                o.setting.series_turns or 0, o.setting.diverter_ohm or 0))
-    for k, o in enumerate(options, 1):
-        o.rank = k
+        obj = float(objective[i])
+        readings, band = ex.pop("readings", None), ex.pop("band", None)
+        cs = ex.pop("current_settings", None)
+        options.append(Option(0, not failed, st, f, margins, failed, cautions, float(min(fracs)) if fracs else 0.0,
+                              cs, {"field-current": "field-current", "none": "none"}.get(control, "rheostat"),
+                              extrap, readings, band, ex, obj if math.isfinite(obj) else None))
+    options = rank_options(merge_identical(options))
     if not any(o.feasible for o in options):
         notes.append("no setting meets every limit; the nearest misses are listed with the limit each breaks")
     return SearchResult(machine, profile, options, profile_cautions(machine, profile), int(evaluated),
@@ -186,37 +357,152 @@ def search_machine_profile(machine_path, profile_path):
     return search(m, p)
 
 
-def _short(v, f=".4g"):
+def _num(v, f=".3g"):
     return "-" if v is None else format(v, f)
 
 
+def _table(headers, rows):
+    """Fixed-width table: right-aligned columns, one header line, one rule."""
+    widths = [max(len(h), *(len(r[i]) for r in rows)) if rows else len(h) for i, h in enumerate(headers)]
+    out = ["  ".join(h.rjust(w) for h, w in zip(headers, widths)), "  ".join("-" * w for w in widths)]
+    out += ["  ".join(c.rjust(w) for c, w in zip(r, widths)) for r in rows]
+    return out
+
+
+def _field_cells(o):
+    """(rheostat [ohm], field current hot [A]) as read at the machine (a welding dial's low end)."""
+    r = o.readings
+    dial = o.extras.get("dial")
+    if r is None and dial:
+        r = dial[0].get("readings")
+    if o.control == "none":
+        return "none", "-"
+    if r is None:
+        s = o.setting
+        if o.control == "field-current":
+            return "-", _num(s.field_current_a)
+        return _num(s.rheostat_ohm), "-"
+    return _num(r["rheostat_ohm"], "g"), _num(r["field_current_a"]["hot"], "g")
+
+
+def _dial_lines(o, cable_ohm):
+    hdr = ("current [A]", "series turns", "diverter [ohm]", "rheostat [ohm]", "travel [%]", "field hot [A]",
+           "no-load [V]", "no-load low [V]", "no-load high [V]", "short-circuit [A]", "slope [V/A]",
+           "per arc volt [A/V]", "terminal [V]", "arc [V]", "tap change")
+    rows = []
+    for r in o.extras.get("dial") or []:
+        rd = r.get("readings") or {}
+        rows.append((_num(r["current_a"], "g"), _num(r["series_turns"], "g"), _num(r["diverter_ohm"], "g"),
+                     _num(rd.get("rheostat_ohm"), "g"), _num(rd.get("rheostat_travel_percent"), "g"),
+                     _num((rd.get("field_current_a") or {}).get("hot"), "g"),
+                     _num(r["no_load_voltage_v"], ".1f"), _num(r["no_load_voltage_min_v"], ".1f"),
+                     _num(r["no_load_voltage_max_v"], ".1f"), _num(r["short_circuit_current_a"], ".0f"),
+                     _num(r["slope_v_per_a"], ".3f"), _num(r["current_change_per_arc_volt_a_per_v"], ".2f"),
+                     _num(r["terminal_voltage_v"], ".1f"), _num(r["arc_voltage_v"], ".1f"),
+                     "yes" if r.get("tap_change") else ""))
+    lines = [f"Option {o.rank}, welding dial: set the series tap (and diverter), then the rheostat; "
+             "the field ammeter reads the hot value at no load."]
+    lines += ["  " + ln for ln in _table(hdr, rows)]
+    lines.append("  no-load low / high: the lowest and highest no-load voltage over the speed and temperature range; "
+                 "per arc volt: change of current for 1 V more arc voltage (a longer arc); "
+                 f"terminal: at the machine; arc: on the conventional load line, after the {cable_ohm:g} ohm leads.")
+    return lines
+
+
+def _reading_lines(o):
+    lines = []
+    r, b = o.readings, o.band
+    if o.control == "none":
+        lines.append("  series winding only, no field control: the series tap and the diverter set it")
+    if r is not None:
+        fc = r["field_current_a"]
+        parts = [f"field current {_num(fc['cold'], 'g')} A with cold windings, {_num(fc['hot'], 'g')} A hot"]
+        if r["rheostat_ohm"] is not None:
+            parts.append(f"rheostat {_num(r['rheostat_ohm'], 'g')} ohm"
+                         + (f" ({_num(r['rheostat_travel_percent'], 'g')} % of its travel)"
+                            if r["rheostat_travel_percent"] is not None else ""))
+        lines.append("  set: " + "; ".join(parts))
+    if b is not None:
+        parts = []
+        if b.get("rheostat_ohm"):
+            parts.append(f"rheostat {_num(b['rheostat_ohm'][0], 'g')} to {_num(b['rheostat_ohm'][1], 'g')} ohm")
+        if b.get("field_current_a"):
+            parts.append(f"field current {_num(b['field_current_a'][0], 'g')} to {_num(b['field_current_a'][1], 'g')} A")
+        lines.append("  every limit holds for " + " and ".join(parts))
+    if r is not None and r.get("settable") is False:
+        lines.append("  the band is narrower than the reading can be set: set with a finer instrument")
+    for d in o.extras.get("diverters") or []:
+        lines.append(f"  diverter {d['resistance_ohm']:g} ohm across {d['series_turns']:g} series turns: carries up to "
+                     f"{_num(d['current_a'], 'g')} A ({_num(d['share_percent'], 'g')} % of the branch), "
+                     f"dissipates up to {_num(d['power_w'], 'g')} W: use a resistor rated {_num(d['rating_w'], 'g')} W or more")
+    ex = o.extras.get("exciter")
+    if ex is not None:
+        have = ex["available_voltage_v"]
+        lines.append(f"  exciter supply needed with hot windings: {_num(ex['voltage_v'], 'g')} V, {_num(ex['power_w'], 'g')} W "
+                     f"for {_num(ex['field_current_a'], 'g')} A; "
+                     + ("the machine has no exciter" if have is None else
+                        f"the machine's exciter gives {have:g} V" + ("" if ex["reaches"] else ", too little")))
+    for s in o.same_as:
+        lines.append(f"  the same figures with {s['series_turns'] or 0:g} series turns and a "
+                     + ("no diverter" if s["diverter_ohm"] is None else f"{s['diverter_ohm']:g} ohm diverter"))
+    return lines
+
+
 def search_text(res, top=10):
-    """The ranked table a technician reads."""
-    lines = [f"{visible(res.machine.label)} for {visible(res.profile.label)} ({res.profile.kind})",
-             f"{res.candidates_evaluated} candidate evaluations in {res.search_seconds:.2f} s", ""]
-    hdr = f"{'rank':>4}  {'fit':<4}  {'connection':<25} {'turns':>5} {'diverter':>9} {'field':>14} {'speed':>6}  {'least margin':>12}  cautions / limits broken"
-    lines += [hdr, "-" * len(hdr)]
+    """The ranked table a technician reads, the stated ranking rule and the best option's details."""
+    from .report import KIND_WORDS, figure_label, limit_label
+    kind = res.profile.kind
+    lines = [f"{visible(res.machine.label)} for {visible(res.profile.label)} ({KIND_WORDS.get(kind, kind)})",
+             f"{len(res.options)} distinct options; {res.candidates_evaluated} candidate evaluations in "
+             f"{res.search_seconds:.2f} s", "", res.ranking_rule, LEAST_MARGIN_MEANING[0].upper() + LEAST_MARGIN_MEANING[1:] + ".", ""]
+    welding = kind == "welding"
+    hdr = ["rank", "fit", "connection", "series turns", "diverter [ohm]", "rheostat [ohm]", "field hot [A]",
+           "speed [rpm]", "least margin [%]", "cautions"]
+    if welding:
+        hdr.insert(-1, "tap changes")
+    rows, tails = [], []
     for o in res.options[:top]:
         s = o.setting
-        fld = f"{s.field_current_a:.3f} A" if o.control == "field-current" else (
-            "-" if s.rheostat_ohm is None or o.control == "none" else f"{s.rheostat_ohm:.2f} ohm")
+        rh, fh = _field_cells(o)
+        fit = "yes" if o.feasible else ("no" if o.usable else "NOT USABLE")
+        row = [str(o.rank), fit, s.connection, _num(s.series_turns or 0, "g"),
+               "none" if s.diverter_ohm is None else f"{s.diverter_ohm:g}", rh, fh, f"{s.speed_rpm:.0f}",
+               "-" if not math.isfinite(o.smallest_margin) else f"{100 * o.smallest_margin:.1f}"]
         sev = sorted({c.severity for c in o.cautions}, key=["stop", "warn", "note"].index)
-        extra = ", ".join(sev) + ("" if o.feasible else "; breaks " + ", ".join(o.failed))
+        row.append(", ".join(sev) or "none")
+        if welding:
+            row.insert(-2, _num(o.figures.get("tap_changes"), "g"))
+        rows.append(row)
+        tail = []
+        if not o.feasible:
+            tail.append("breaks: " + ", ".join(limit_label(n) for n in o.failed))
         if o.extrapolated:
-            extra += "; extrapolated OCC"
-        lines.append(f"{o.rank:>4}  {'yes' if o.feasible else 'no':<4}  {s.connection:<25} {(s.series_turns or 0):>5g} "
-                     f"{_short(s.diverter_ohm):>9} {fld:>14} {s.speed_rpm:>6.0f}  {100 * o.smallest_margin:>11.1f}%  {extra}")
-        if o.current_settings:
-            for cs in o.current_settings:
-                key = "field_current_a" if "field_current_a" in cs else "rheostat_ohm"
-                ctl = "no field control" if cs[key] is None else f"{key.replace('_', ' ')} {cs[key]:.3f}"
-                lines.append(f"{'':>6}  at {cs['current_a']:.0f} A: {ctl}, "
-                             f"arc-side voltage {_short(cs['terminal_voltage_v'])} V, no-load {_short(cs['no_load_voltage_v'])} V")
+            tail.append("needs the open-circuit curve beyond its last measured point")
+        if tail:
+            tails.append(f"  option {o.rank}: " + "; ".join(tail))
+    lines += _table(hdr, rows)
+    lines.append("Rheostat and field: meter readings, rounded to what can be set"
+                 + ("; for welding, at the low end of the dial." if welding else "."))
+    if tails:
+        lines += ["", "Limits broken:"] + tails
     if res.options:
         best = res.options[0]
+        lines += ["", f"Option {best.rank} at the machine:"]
+        if welding:
+            lines += _dial_lines(best, res.profile.welding.cable_resistance_ohm)
+        lines += _reading_lines(best)
         lines += ["", f"Option {best.rank} in figures:"]
         for k, v in best.figures.items():
-            lines.append(f"  {k}: {_short(v)}")
+            if v is None:
+                continue
+            words, unit = figure_label(k)
+            unit = {"Ω": "ohm", "°C": "degC", "m³/h": "m3/h"}.get(unit, unit)
+            lines.append(f"  {words}: {_num(v, '.4g')}" + (f" {unit}" if unit else ""))
+        lines += ["", f"Option {best.rank} against its limits (margin as a share of the limit):"]
+        for name, m in best.margins.items():
+            frac = m["fraction"]
+            lines.append(f"  {limit_label(name)}: " + ("unknown" if frac is None else f"{100 * frac:+.1f} %")
+                         + ("" if frac is not None and frac >= 0 else "  BROKEN"))
         lines += ["", "Cautions of option %d:" % best.rank]
         for c in sorted(best.cautions, key=lambda c: ["stop", "warn", "note"].index(c.severity)):
             lines.append(f"  [{c.severity}] {c.message} (basis: {c.basis})")

@@ -451,7 +451,7 @@ def test_demo_profiles_load(path):
 
 def test_demo_machine_on_command_line(capsys):
     """A good file on the command line: exit 0, nothing on standard error."""
-    assert cli.main(["curve", M, "--connection", "shunt", "--points", "5", "--json"]) == 0
+    assert cli.main(["curve", M, "--connection", "shunt", "--rheostat-ohm", "0", "--points", "5", "--json"]) == 0
     out, err = capsys.readouterr()
     assert err == "" and out.lstrip().startswith("{")
 

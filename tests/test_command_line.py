@@ -46,8 +46,8 @@ def test_visible_escapes_every_hidden_character():
 
 
 @pytest.mark.parametrize("argv", [
-    ["curve", "{m}", "--connection", "shunt", "--points", "3"],
-    ["point", "{m}", "--connection", "shunt", "--load-ohm", "3"],
+    ["curve", "{m}", "--connection", "shunt", "--rheostat-ohm", "20", "--points", "3"],
+    ["point", "{m}", "--connection", "shunt", "--rheostat-ohm", "20", "--load-ohm", "3"],
     ["buildup", "{m}", "--rheostat-ohm", "30"],
     ["buildup", "{m}", "--connection", "series"],
     ["search", "{m}", "{p}", "--top", "1"],
@@ -154,15 +154,15 @@ def test_emf_at_its_bounds_is_finite(capsys, argv, emf):
 
 W = str(ROOT / "profiles" / "machines" / "welding-set.toml")
 EXTREMES = [
-    ["curve", str(MACHINE), "--connection", "shunt", "--speed-rpm", "1", "--winding-temperature-c", "-60"],
+    ["curve", str(MACHINE), "--connection", "shunt", "--rheostat-ohm", "20", "--speed-rpm", "1", "--winding-temperature-c", "-60"],
     ["curve", str(MACHINE), "--connection", "series", "--speed-rpm", "100000", "--winding-temperature-c", "250",
      "--points", str(cli.MAX_CURVE_POINTS)],
-    ["curve", str(MACHINE), "--connection", "separate", "--field-current-a", "1e300"],
-    ["curve", str(MACHINE), "--connection", "long-shunt-cumulative", "--diverter-ohm", "1e-300"],
-    ["point", str(MACHINE), "--connection", "shunt", "--line-v0", "1e5", "--line-slope-ohm", "1e-300"],
-    ["point", str(MACHINE), "--connection", "short-shunt-cumulative", "--battery-emf-v", "-1e5", "--battery-ohm", "1e6"],
+    ["curve", str(MACHINE), "--connection", "separate", "--field-current-a", "1e-300"],
+    ["curve", str(MACHINE), "--connection", "long-shunt-cumulative", "--rheostat-ohm", "20", "--diverter-ohm", "1e-300"],
+    ["point", str(MACHINE), "--connection", "shunt", "--rheostat-ohm", "20", "--line-v0", "1e5", "--line-slope-ohm", "1e-300"],
+    ["point", str(MACHINE), "--connection", "short-shunt-cumulative", "--rheostat-ohm", "20", "--battery-emf-v", "-1e5", "--battery-ohm", "1e6"],
     ["point", W, "--connection", "series", "--load-current-a", "-1e6"],
-    ["point", W, "--connection", "long-shunt-differential", "--load-ohm", "1e6", "--speed-rpm", "100000"],
+    ["point", W, "--connection", "long-shunt-differential", "--rheostat-ohm", "20", "--load-ohm", "1e6", "--speed-rpm", "100000"],
     ["buildup", str(MACHINE), "--speed-rpm", "1"],
     ["buildup", W, "--connection", "series", "--speed-rpm", "100000"],
 ]

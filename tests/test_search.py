@@ -66,6 +66,11 @@ def at(setting, speed, temp, **kw):
     return replace(setting, speed_rpm=speed, winding_temperature_c=temp, **kw)
 
 
+def end_setting(option, cs):
+    """The option's setting with the tap and diverter of one end of a welding range (issue 10)."""
+    return replace(option.setting, series_turns=cs["series_turns"], diverter_ohm=cs["diverter_ohm"])
+
+
 def normal(machine, setting, load):
     pt = operating_points(machine, setting, load).normal
     assert pt is not None, (setting, load)
@@ -176,7 +181,7 @@ def test_welding_options_rechecked():
         assert [cs["current_a"] for cs in o.current_settings] == list(w.current_range_a)
         for cs in o.current_settings:
             key = "field_current_a" if "field_current_a" in cs else "rheostat_ohm"
-            st = at(o.setting, *nominal, **{key: cs[key]})
+            st = at(end_setting(o, cs), *nominal, **{key: cs[key]})
             pt = normal(m, st, line)
             assert abs(pt["load_current_a"] / cs["current_a"] - 1) <= 0.03
             # slope of the characteristic through the working point, from two nearby points
@@ -184,13 +189,13 @@ def test_welding_options_rechecked():
             v_hi = normal(m, st, Load.constant_current(pt["load_current_a"] + di))["terminal_voltage_v"]
             v_lo = normal(m, st, Load.constant_current(pt["load_current_a"] - di))["terminal_voltage_v"]
             assert (v_hi - v_lo) / (2 * di) <= -0.10
-            cold = at(o.setting, *worst, **{key: cs[key]})
+            cold = at(end_setting(o, cs), *worst, **{key: cs[key]})
             vnl = normal(m, cold, Load.constant_current(0.0))["terminal_voltage_v"]
             assert vnl * 1.05 <= 113.0 * (1 + SLACK)
             assert vnl <= w.max_no_load_voltage_v * (1 + SLACK)
         top = o.current_settings[-1]
         key = "field_current_a" if "field_current_a" in top else "rheostat_ohm"
-        stuck = normal(m, at(o.setting, *worst, **{key: top[key]}), Load.resistor(w.cable_resistance_ohm))
+        stuck = normal(m, at(end_setting(o, top), *worst, **{key: top[key]}), Load.resistor(w.cable_resistance_ohm))
         assert stuck["load_current_a"] <= m.peak_current_a
     assert_allclose(180 * math.sqrt(0.6), 139.4, atol=0.05)
     assert 180 * math.sqrt(w.duty_cycle_percent / 100) <= m.rated_armature_current_a
@@ -203,7 +208,7 @@ def test_welding_controls_hit_the_target_at_the_settings_own_speed():
     line = Load.line(20.0, 0.04 + p.welding.cable_resistance_ohm)
     o = res.feasible[0]
     for cs in o.current_settings:
-        pt = normal(m, replace(o.setting, rheostat_ohm=cs["rheostat_ohm"]), line)
+        pt = normal(m, replace(end_setting(o, cs), rheostat_ohm=cs["rheostat_ohm"]), line)
         assert_allclose(pt["load_current_a"], cs["current_a"], rtol=2e-3)
 
 
@@ -316,7 +321,11 @@ def test_battery_brute_force_finds_nothing_missed():
     m, p, res = demo("battery")
     bases, best = _battery_brute_force(m, p)
     by_base = {(o.setting.connection, o.setting.series_turns or 0.0, o.setting.diverter_ohm): o for o in res.options}
-    assert len(by_base) == len(bases) == len(res.options)
+    # options with identical figures are listed once (issue 10): the others name its setting
+    for o in res.options:
+        for s in o.same_as:
+            by_base[(s["connection"], s["series_turns"] or 0.0, s["diverter_ohm"])] = o
+    assert len(by_base) == len(bases) == len(res.options) + sum(len(o.same_as) for o in res.options)
     found = 0
     for (conn, tap, div, _), g in zip(bases, best):
         o = by_base[(conn, tap if conn in USES_SERIES else 0.0, div)]
@@ -490,19 +499,20 @@ def test_profile_cautions():
 
 @pytest.mark.parametrize("kind", list(DEMOS))
 def test_ranking(kind):
-    """Feasible first, each group by smallest margin (largest first); ranks 1..n; the smallest
-    margin is the least fraction over the option's limits (-1 for a limit that could not be
-    evaluated)."""
+    """Issue 10's stated rule: feasible first, then the misses without a stop caution by the number
+    of limits broken and the worst breach, then the stop options; ranks 1..n; the smallest margin is
+    the least fraction over the option's limits (None, i.e. -inf, for one that could not be evaluated)."""
     _, _, res = demo(kind)
-    feas = [o.feasible for o in res.options]
-    assert feas == sorted(feas, reverse=True)
+    group = [0 if o.feasible else (1 if o.usable else 2) for o in res.options]
+    assert group == sorted(group)
     assert [o.rank for o in res.options] == list(range(1, len(res.options) + 1))
-    for group in (res.feasible, [o for o in res.options if not o.feasible]):
-        sm = [o.smallest_margin for o in group]
-        assert all(a >= b for a, b in zip(sm, sm[1:]))
+    for g in (1, 2):
+        keys = [(len(o.limits_broken), -o.worst_breach) for o, k in zip(res.options, group) if k == g]
+        assert keys == sorted(keys)
     for o in res.options:
-        assert_allclose(o.smallest_margin, min(m["fraction"] for m in o.margins.values()), rtol=1e-12)
-        broken = {k for k, m in o.margins.items() if m["fraction"] < 0}
+        fr = [-math.inf if m["fraction"] is None else m["fraction"] for m in o.margins.values()]
+        assert o.smallest_margin == min(fr)
+        broken = {k for k, m in o.margins.items() if m["fraction"] is None or m["fraction"] < 0}
         assert broken <= set(o.failed)
         if o.feasible:
             assert not o.failed and o.smallest_margin >= 0

@@ -43,3 +43,30 @@ def option_cautions(machine, profile, setting, f):
 def profile_cautions(machine, profile):
     """Cautions of the job as a whole, whatever the setting."""
     return JOBS[profile.kind].profile_cautions(machine, profile)
+
+
+def command_cautions(machine, setting, f, load=None, profile=None):
+    """Cautions of one setting given on the command line (``curve``, ``point``, ``buildup``, ``charge``).
+
+    The same rules as the search: the job's when a profile is given (or the
+    battery's rules when the load is a battery), then the machine's.
+
+    Parameters
+    ----------
+    machine : Machine
+    setting : Setting
+    f : dict
+        The figures of the setting (each key optional; see
+        :func:`supplycfg.cautions.setting_cautions`).
+    load : str, optional
+        ``"battery"`` for a battery load without a profile.
+    profile : LoadProfile, optional
+
+    Returns
+    -------
+    list of Caution
+    """
+    if profile is not None:
+        return option_cautions(machine, profile, setting, f)
+    out = battery.option_cautions(machine, None, setting, f) if load == "battery" else []
+    return out + setting_cautions(machine, setting, f)

@@ -15,6 +15,7 @@ from ..circuit import no_load_voltages, normal_points
 from ..envelope import (COARSE, FINE, critical_resistance_ratios, expand_candidates, optimise_control,
                         worst_over_corners)
 from ..errors import InputError
+from ..readings import option_advice
 from ..validate import MAX_CURRENT_A, MAX_OHM, named_entry, read_pair, table_entry
 
 #: The profile table this job reads.
@@ -485,7 +486,33 @@ def solve(space):
     """
     u, evaluated = optimise_control(space, evaluate)
     lim, figs = evaluate(space, np.arange(len(space.bases)), u, FINE)
-    return u, lim, figs, [None] * len(space.bases), evaluated
+    extras, n = option_advice(space, evaluate, u, lim, start_setting_field)
+    return u, lim, figs, extras, evaluated + n
+
+
+def start_setting_field(space, base_idx, u):
+    """Field current [A] at the start of charge, where the attendant sets the field, at every corner.
+
+    The operating point on the bank's rest-voltage line at the starting
+    state of charge (as the ``start_current_max`` limit takes it).
+    """
+    b = space.profile.battery
+    chem = chemistry(b.chemistry)
+    e0 = b.cells * float(open_circuit_voltage_per_cell(chem, b.state_of_charge[0], b.open_circuit_voltage_per_cell_v))
+    r = b.internal_resistance_ohm + b.cable_resistance_ohm
+    sub, _ = expand_candidates(space, base_idx, u)
+    start = normal_points(sub, -sub.imax, sub.imax, v_of=lambda t: e0 + r * t, **COARSE)
+    return start["shunt_field_current_a"]
+
+
+#: What the battery job ranks its feasible options by (placeholder: none yet, so ties
+#: fall to the simpler rig and the least margin).
+OBJECTIVE_LABEL = "hours to full (not yet estimated: ties)"
+
+
+def objective(figures):
+    """Placeholder objective: NaN for every option, so the ranking falls to its next keys."""
+    return np.full(np.asarray(figures["converged"]).shape, np.nan)
 
 
 # ===========================================================================

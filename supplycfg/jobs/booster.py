@@ -10,7 +10,7 @@ import numpy as np
 from ..cautions import caution
 from ..envelope import COARSE, FINE, optimise_control
 from ..validate import MAX_CURRENT_A, MAX_OHM, MAX_VOLTAGE_V, MIN_VOLTAGE_V, read_pair
-from .lighting import DEFAULT_TOLERANCE_PERCENT, evaluate_feeder
+from .lighting import DEFAULT_TOLERANCE_PERCENT, evaluate_feeder, voltage_band_objective
 
 #: The profile table this job reads.
 TABLE = "booster"
@@ -45,10 +45,23 @@ def evaluate(space, base_idx, u, res=COARSE):
 
 
 def solve(space):
-    """Best control value of every candidate and its limits and figures (fine solve)."""
+    """Best control value of every candidate and its limits and figures (fine solve).
+
+    A series booster has no field control: its trim is the diverter, so it
+    has no readings or band of its own.
+    """
     u, evaluated = optimise_control(space, evaluate)
     lim, figs = evaluate(space, np.arange(len(space.bases)), u, FINE)
-    return u, lim, figs, [None] * len(space.bases), evaluated
+    return u, lim, figs, [{"readings": None, "band": None} for _ in space.bases], evaluated
+
+
+#: What the booster job ranks its feasible options by.
+OBJECTIVE_LABEL = "widest margin on the load-end voltage band [% of the band's limit], widest first"
+
+
+def objective(figures):
+    """Minus the smaller margin to the voltage band (fraction; smaller is better), as for lighting."""
+    return voltage_band_objective(figures)
 
 
 def option_cautions(machine, profile, setting, f):

@@ -11,6 +11,7 @@ import numpy as np
 from ..circuit import _explicit_v, _params, machine_state, normal_points
 from ..envelope import (COARSE, FINE, critical_resistance_ratios, expand_candidates, optimise_control,
                         worst_over_corners)
+from ..readings import no_load_setting_field, option_advice
 from ..validate import MAX_CURRENT_A, MAX_OHM, MAX_VOLTAGE_V, MIN_VOLTAGE_V, named_entry, read_pair, table_entry
 
 #: The profile table this job reads.
@@ -189,10 +190,36 @@ def evaluate(space, base_idx, u, res=COARSE):
 
 
 def solve(space):
-    """Best control value of every candidate and its limits and figures (fine solve)."""
+    """Best control value of every candidate, its limits and figures (fine solve), readings and band.
+
+    The technician sets the field at no load.
+    """
     u, evaluated = optimise_control(space, evaluate)
     lim, figs = evaluate(space, np.arange(len(space.bases)), u, FINE)
-    return u, lim, figs, [None] * len(space.bases), evaluated
+    extras, n = option_advice(space, evaluate, u, lim, no_load_setting_field)
+    return u, lim, figs, extras, evaluated + n
+
+
+#: What the lighting job ranks its feasible options by.
+OBJECTIVE_LABEL = "widest margin on the load-end voltage band [% of the band's limit], widest first"
+
+
+def voltage_band_objective(figures):
+    """Minus the smaller margin of the load-end voltage to its band's ends, as a fraction of that end.
+
+    Smaller is better (the widest margin first); NaN where the voltage is unknown.
+    """
+    hi = np.asarray(figures["band_high_v"], float)
+    lo = np.asarray(figures["band_low_v"], float)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        m_hi = (hi - np.asarray(figures["load_voltage_max_v"], float)) / hi
+        m_lo = (np.asarray(figures["load_voltage_min_v"], float) - lo) / lo
+    return -np.minimum(m_hi, m_lo)
+
+
+def objective(figures):
+    """The lighting job's objective: see :func:`voltage_band_objective`."""
+    return voltage_band_objective(figures)
 
 
 def option_cautions(machine, profile, setting, f):

@@ -11,8 +11,11 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from ..cautions import caution
-from ..circuit import _bisect, _params, machine_state, no_load_voltages, normal_points
-from ..envelope import control_range, critical_resistance_ratios, expand_candidates, worst_over_corners
+from ..circuit import USES_SERIES, _bisect, _params, machine_state, no_load_voltages, normal_points
+from ..envelope import control_range, critical_resistance_ratios, expand_candidates, smallest_margin_fraction
+from ..errors import InputError
+from ..readings import (control_band, diverter_rating, exciter_supply, no_load_field_current_a,
+                        readings_and_band, weak_end_is_high)
 from ..validate import MAX_CURRENT_A, MAX_OHM, named_entry, read_pair, table_entry
 
 #: The profile table this job reads.
@@ -40,8 +43,12 @@ class WeldingProcess:
     load_line_knee_a: float
     load_line_top_v: float
     characteristic: str
+    min_no_load_voltage_v: float | None = None
     basis: dict = field(default_factory=dict, compare=False, repr=False)
 
+
+_STRIKE_MMA = ("electrode makers' data sheets: about 50 V or more open-circuit on DC for reliable striking, "
+               "more for some basic electrodes (common practice, from memory)")
 
 WELDING_PROCESSES = {
     "manual-metal-arc": table_entry(WeldingProcess, "manual-metal-arc", {
@@ -50,6 +57,7 @@ WELDING_PROCESSES = {
         "load_line_knee_a": (600.0, _IEC_60974_1_TOP),
         "load_line_top_v": (44.0, _IEC_60974_1_TOP),
         "characteristic": ("drooping", "manual arc needs a drooping source (textbooks on utilisation of electrical energy; seen)"),
+        "min_no_load_voltage_v": (50.0, _STRIKE_MMA),
     }),
     "tungsten-inert-gas": table_entry(WeldingProcess, "tungsten-inert-gas", {
         "load_line_offset_v": (10.0, _IEC_60974_1_LINES),
@@ -57,6 +65,8 @@ WELDING_PROCESSES = {
         "load_line_knee_a": (600.0, _IEC_60974_1_TOP),
         "load_line_top_v": (34.0, _IEC_60974_1_TOP),
         "characteristic": ("drooping", "TIG needs a constant-current (drooping) source (common practice)"),
+        "min_no_load_voltage_v": (None, "the arc is started by high frequency or by lifting the tungsten, "
+                                        "not by the no-load voltage (common practice)"),
     }),
     "metal-inert-gas": table_entry(WeldingProcess, "metal-inert-gas", {
         "load_line_offset_v": (14.0, _IEC_60974_1_LINES),
@@ -64,6 +74,8 @@ WELDING_PROCESSES = {
         "load_line_knee_a": (600.0, _IEC_60974_1_TOP),
         "load_line_top_v": (44.0, _IEC_60974_1_TOP),
         "characteristic": ("flat", "MIG/MAG with constant wire feed needs a flat (constant-voltage) source (common practice)"),
+        "min_no_load_voltage_v": (None, "the wire touches the work and starts the arc by a short circuit "
+                                        "(common practice)"),
     }),
 }
 
@@ -255,11 +267,21 @@ DEFAULT_ENVIRONMENT = "normal"
 DEFAULT_DUTY_CYCLE_PERCENT = 60.0
 #: Each target current reached within this share (issue rule).
 WELD_CURRENT_TOLERANCE = 0.03
+#: Step between the rows of the welding dial [A] (issue rule; a usual dial
+#: graduation of manual sets, common practice).
+DEFAULT_DIAL_STEP_A = 10.0
+#: Most rows a dial may have: enough for a 10 A dial over 1000 A.
+MAX_DIAL_ROWS = 100
 
 
 @dataclass(frozen=True)
 class WeldingJob:
-    """Feed an arc. Field names are the ``[welding]`` keys; ``max_no_load_voltage_v`` None for none."""
+    """Feed an arc. Field names are the ``[welding]`` keys; ``max_no_load_voltage_v`` None for none.
+
+    ``min_no_load_voltage_v`` is the no-load voltage an arc needs to strike
+    (None: the process starts its arc otherwise); the dial keeps every row's
+    no-load voltage between it and the limits.
+    """
 
     process: str
     current_range_a: tuple
@@ -267,6 +289,8 @@ class WeldingJob:
     duty_cycle_percent: float
     cable_resistance_ohm: float
     max_no_load_voltage_v: float | None
+    dial_step_a: float = DEFAULT_DIAL_STEP_A
+    min_no_load_voltage_v: float | None = None
 
 
 #: The dataclass of the [welding] table; its fields are the table's keys.
@@ -282,14 +306,51 @@ def read_job(t, source):
     rc = t.number("cable_resistance_ohm", DEFAULT_CABLE_RESISTANCE_OHM, low=0, high=MAX_OHM)
     top = NO_LOAD_VOLTAGE_LIMITS[ENVIRONMENTS[env].dc_limit].voltage_v
     vmax = t.number("max_no_load_voltage_v", None, low=0, low_open=True, high=top, what="mean volts")
+    step = t.number("dial_step_a", DEFAULT_DIAL_STEP_A, low=0, low_open=True, high=MAX_CURRENT_A)
+    if (cur[1] - cur[0]) / step > MAX_DIAL_ROWS:
+        raise InputError(source, t.key("dial_step_a"),
+                         f"is {step:g}; allowed: at least {(cur[1] - cur[0]) / MAX_DIAL_ROWS:.3g} A "
+                         f"(at most {MAX_DIAL_ROWS} rows over the current range)")
+    # a window left empty by a low site limit is not refused: every option then says it breaks it
+    vmin = t.number("min_no_load_voltage_v", WELDING_PROCESSES[proc].min_no_load_voltage_v, low=0,
+                    low_open=True, high=top, what="mean volts")
     return WeldingJob(process=proc, current_range_a=cur, environment=env, duty_cycle_percent=duty,
-                      cable_resistance_ohm=rc, max_no_load_voltage_v=vmax)
+                      cable_resistance_ohm=rc, max_no_load_voltage_v=vmax, dial_step_a=step,
+                      min_no_load_voltage_v=vmin)
 
 
 def welding_line_voltage_v(job, current_a):
     """Terminal voltage [V] on the process's conventional load line plus the welding leads."""
     return np.asarray(conventional_load_voltage(job.process, current_a), float) + \
         np.asarray(current_a, float) * job.cable_resistance_ohm
+
+
+def dial_currents_a(job):
+    """The welding dial's currents [A]: the low end, then every ``dial_step_a``, and the high end."""
+    lo, hi = job.current_range_a
+    n = int(math.floor((hi - lo) / job.dial_step_a + 1e-9))
+    cur = lo + job.dial_step_a * np.arange(n + 1)
+    if hi - cur[-1] > 1e-9 * max(hi, 1.0):
+        cur = np.append(cur, hi)
+    return cur
+
+
+def current_change_per_arc_volt_a_per_v(slope_v_per_a, cable_resistance_ohm):
+    """Change of welding current for one volt more arc voltage (a longer arc) [A/V].
+
+    With the arc held at a fixed length taken as a constant voltage, the
+    operating point moves along the source's characteristic less the leads:
+    ``dI = dU / (dV/dI - R_cable)``; negative (the current falls).
+
+    References
+    ----------
+    Operating point of a drooping source on the arc (textbooks on
+    utilisation of electrical energy; the constant-voltage arc is common
+    practice).
+    """
+    s = np.asarray(slope_v_per_a, float) - cable_resistance_ohm
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.where(s < 0, 1.0 / s, np.nan)
 
 
 def _solve_weld_control(space, base_idx, corner_idx, target_a):
@@ -299,13 +360,13 @@ def _solve_weld_control(space, base_idx, corner_idx, target_a):
     n = base_idx.size
     lo = np.array([control_range(space.machine, space.bases[b][3])[0] for b in base_idx])
     hi = np.array([control_range(space.machine, space.bases[b][3])[1] for b in base_idx])
-    vt = welding_line_voltage_v(job, target_a)
-    it = np.full(n, float(target_a))
+    it = np.broadcast_to(np.asarray(target_a, float), (n,))
+    vt = welding_line_voltage_v(job, it)
 
     def h(u):
         sub, _ = expand_candidates(space, base_idx, u, corner_idx)
         p = _params(sub, np.arange(sub.n))
-        return machine_state(sub, p, np.full(n, vt), it)["h"]
+        return machine_state(sub, p, vt, it)["h"]
 
     ha, hb = h(lo), h(hi)
     ok = np.signbit(ha) != np.signbit(hb)
@@ -333,107 +394,384 @@ def _char_slope(sub, v, il):
     return -h_i / h_v
 
 
-def evaluate_range_ends(space):
-    m, prof = space.machine, space.profile
-    job = prof.welding
-    nb = len(space.bases)
-    bi = np.arange(nb)
+def dial_corners(space):
+    """Corner indices: nominal (mean speed, hottest), weakest (lowest speed, hottest), strongest (top speed, coldest).
+
+    The no-load voltage is lowest at the weakest corner and highest at the
+    strongest: hot copper lowers the field current, speed raises the EMF.
+    """
     nc = space.nc
-    # nominal corner: closest to mean speed, hottest windings
     nom = min(range(nc), key=lambda k: (abs(space.corners[k][0] - space.nominal[0]), -space.corners[k][1]))
-    worst = max(range(nc), key=lambda k: (space.corners[k][0], -space.corners[k][1]))  # top speed, coldest
-    lo_a, hi_a = job.current_range_a
-    env = environment(job.environment)
-    limit_peak = no_load_voltage_limit(env.dc_limit).voltage_v
-    per = {}
-    evaluated = 0
-    for end, target in (("low", lo_a), ("high", hi_a)):
-        u, ok = _solve_weld_control(space, bi, np.full(nb, nom), target)
-        evaluated += nb * 52
-        r, sub = _weld_current(space, bi, u)
-        evaluated += sub.n
-        cur = r["load_current_a"].reshape(nb, nc)
-        # the control is solved at the nominal corner; elsewhere the current drifts (a figure, not a limit)
-        dev = np.abs(cur[:, nom] / target - 1.0)
-        dev = np.where(np.isnan(dev) | ~ok, np.inf, dev)
-        subw, _ = expand_candidates(space, bi, u, np.full(nb, worst))
-        vnl = no_load_voltages(subw)
-        evaluated += nb
-        rn, subn = _weld_current(space, bi, u, np.full(nb, nom))
-        slope = _char_slope(subn, rn["terminal_voltage_v"], rn["load_current_a"])
-        per[end] = {"u": u, "reachable": ok, "dev": dev, "current": cur, "vnl": vnl,
-                    "slope": slope, "v": rn["terminal_voltage_v"], "x": r["x"].reshape(nb, nc).min(axis=1), "xabs": np.abs(r["x"]).reshape(nb, nc).max(axis=1),
-                    "e": r["generated_emf_v"].reshape(nb, nc).min(axis=1),
-                    "ia": np.abs(r["armature_current_a"]).reshape(nb, nc).max(axis=1),
-                    "conv": r["converged"].reshape(nb, nc).all(axis=1)}
-    # stuck electrode at the top setting, worst corner: the cable alone as load
-    subs, _ = expand_candidates(space, bi, per["high"]["u"], np.full(nb, worst))
-    rs = normal_points(subs, np.zeros(nb), np.full(nb, subs.imax),
-                       v_of=lambda t: job.cable_resistance_ohm * t)
+    weak = min(range(nc), key=lambda k: (space.corners[k][0], -space.corners[k][1]))
+    strong = max(range(nc), key=lambda k: (space.corners[k][0], -space.corners[k][1]))
+    return nom, weak, strong
+
+
+def no_load_voltage_v(sub):
+    """No-load terminal voltage of every candidate of ``sub`` [V] (NaN where none).
+
+    With no load current a separately excited or series machine carries no
+    armature current: ``V0 = (n / n_occ) OCC(x0)`` exactly (no drop, no
+    armature reaction; the series field is idle). Self-excited candidates are
+    solved for their highest stable no-load point.
+    """
+    v = np.asarray(sub.s * sub.occ.emf(np.where(sub.kind == 0, sub.x0, 0.0)), float)
+    slf = np.flatnonzero(sub.kind == 1)
+    if slf.size:
+        v = v.copy()
+        v[slf] = no_load_voltages(sub.subset(slf))
+    return v
+
+
+#: While a row's band is searched its current is looked for within this share of the
+#: target either side, on a coarse grid (the row's own point was found on the full span).
+BAND_CURRENT_WINDOW = 0.5
+
+
+def evaluate_rows(space, base_idx, u, target_a, near=False):
+    """A dial row of each candidate: base ``base_idx`` with control ``u`` aimed at ``target_a``.
+
+    Returns
+    -------
+    dict of ndarrays
+        ``current_a`` and ``terminal_voltage_v`` at the nominal corner,
+        ``deviation`` from the target (fraction; inf where no point),
+        ``slope_v_per_a`` there, the no-load voltage at the weakest and the
+        strongest corner (``no_load_min_v``, ``no_load_max_v``), the
+        stuck-electrode current at the strongest corner
+        (``short_circuit_current_a``), ``converged``. With ``near`` the
+        current is looked for only within :data:`BAND_CURRENT_WINDOW` of the
+        target, on coarser grids (a band search near a known point).
+    """
+    job = space.profile.welding
+    base_idx = np.asarray(base_idx, int)
+    u = np.asarray(u, float)
+    target = np.broadcast_to(np.asarray(target_a, float), base_idx.shape)
+    n = base_idx.size
+    nom, weak, strong = dial_corners(space)
+    if near:
+        subn, _ = expand_candidates(space, base_idx, u, np.full(n, nom))
+        rn = normal_points(subn, (1 - BAND_CURRENT_WINDOW) * target, (1 + BAND_CURRENT_WINDOW) * target,
+                           v_of=lambda t: welding_line_voltage_v(job, t), grid=9, steps=40)
+    else:
+        rn, subn = _weld_current(space, base_idx, u, np.full(n, nom))
+    cur = rn["load_current_a"]
+    with np.errstate(invalid="ignore", divide="ignore"):
+        dev = np.abs(cur / target - 1.0)
+    dev = np.where(np.isnan(dev), np.inf, dev)
+    slope = _char_slope(subn, rn["terminal_voltage_v"], cur)
+    both = np.concatenate([base_idx, base_idx])
+    sub2, _ = expand_candidates(space, both, np.concatenate([u, u]),
+                                np.concatenate([np.full(n, weak), np.full(n, strong)]))
+    vnl = no_load_voltage_v(sub2)
+    subs, _ = expand_candidates(space, base_idx, u, np.full(n, strong))
+    rs = normal_points(subs, np.zeros(n), np.full(n, subs.imax), v_of=lambda t: job.cable_resistance_ohm * t,
+                       **({"grid": 33} if near else {}))
     isc = np.where(rs["found"], rs["load_current_a"], np.nan)
-    duty = job.duty_cycle_percent / 100.0
-    deq = float(thermal_equivalent_current(hi_a, duty))
-    vnl_max = np.fmax(per["low"]["vnl"], per["high"]["vnl"])
-    peak = np.asarray(no_load_peak_voltage(vnl_max), float)
-    cm_lo = np.asarray(characteristic_margin_v_per_a(job.process, per["low"]["slope"]), float)
-    cm_hi = np.asarray(characteristic_margin_v_per_a(job.process, per["high"]["slope"]), float)
+    return {"current_a": cur, "terminal_voltage_v": rn["terminal_voltage_v"], "deviation": dev,
+            "slope_v_per_a": slope, "no_load_min_v": vnl[:n], "no_load_max_v": vnl[n:],
+            "short_circuit_current_a": isc, "armature_current_a": rn["armature_current_a"],
+            "x": rn["x"], "generated_emf_v": rn["generated_emf_v"], "converged": rn["converged"] & rs["converged"]}
+
+
+def row_limits(space, ev):
+    """Limits of dial rows from :func:`evaluate_rows`: ``name -> (values, limit, kind, unit)``."""
+    m, job = space.machine, space.profile.welding
+    env = environment(job.environment)
+    proc = welding_process(job.process)
     lim = {
-        "current_low_end": (per["low"]["dev"], WELD_CURRENT_TOLERANCE, "max", "fraction"),
-        "current_high_end": (per["high"]["dev"], WELD_CURRENT_TOLERANCE, "max", "fraction"),
-        "no_load_peak_voltage": (peak, limit_peak, "max", "V"),
-        "characteristic_slope_low": (-cm_lo, 0.0, "max", "V/A"),
-        "characteristic_slope_high": (-cm_hi, 0.0, "max", "V/A"),
-        "stuck_electrode_current": (np.where(np.isnan(isc), np.inf, isc), m.peak_current_a, "max", "A"),
-        "duty_cycle_heating": (np.full(nb, deq), m.rated_armature_current_a, "max", "A"),
+        "dial_current": (ev["deviation"], WELD_CURRENT_TOLERANCE, "max", "fraction"),
+        "no_load_peak_voltage": (np.asarray(no_load_peak_voltage(ev["no_load_max_v"]), float),
+                                 no_load_voltage_limit(env.dc_limit).voltage_v, "max", "V"),
     }
     if job.max_no_load_voltage_v is not None:
-        lim["no_load_mean_voltage"] = (vnl_max, job.max_no_load_voltage_v, "max", "V")
-    spread = {e: (worst_over_corners(per[e]["current"], nb, nc, "min"), worst_over_corners(per[e]["current"], nb, nc, "max"))
-              for e in ("low", "high")}
-    figs = {"low_end_current_a": per["low"]["current"][:, nom], "high_end_current_a": per["high"]["current"][:, nom],
-            "low_end_current_envelope_min_a": spread["low"][0], "low_end_current_envelope_max_a": spread["low"][1],
-            "high_end_current_envelope_min_a": spread["high"][0], "high_end_current_envelope_max_a": spread["high"][1],
-            "max_no_load_voltage_v": vnl_max, "no_load_peak_voltage_v": peak,
-            "no_load_limit_v": np.full(nb, limit_peak),
-            "no_load_mean_limit_v": np.full(nb, np.nan if job.max_no_load_voltage_v is None else job.max_no_load_voltage_v),
-            "slope_low_end_v_per_a": per["low"]["slope"], "slope_high_end_v_per_a": per["high"]["slope"],
-            "stuck_electrode_current_a": isc, "duty_equivalent_current_a": np.full(nb, deq),
-            "max_armature_current_a": np.fmax(per["high"]["ia"], np.where(np.isnan(isc), 0, isc)),
-            "min_net_mmf_a": np.fmin(per["low"]["x"], per["high"]["x"]),
-            "max_net_mmf_a": np.fmax(per["low"]["xabs"], per["high"]["xabs"]),
-            "min_generated_emf_v": np.fmin(per["low"]["e"], per["high"]["e"]),
-            "converged": (per["low"]["conv"] & per["high"]["conv"]).astype(float)}
-    subc, _ = expand_candidates(space, np.concatenate([bi, bi]), np.concatenate([per["low"]["u"], per["high"]["u"]]))
-    rr = critical_resistance_ratios(space, subc, 2 * nb)
-    figs["critical_resistance_ratio"] = np.fmin(rr[:nb], rr[nb:])
-    return lim, figs, per, evaluated
+        lim["no_load_mean_voltage"] = (ev["no_load_max_v"], job.max_no_load_voltage_v, "max", "V")
+    if job.min_no_load_voltage_v is not None:
+        lim["no_load_strike_voltage"] = (ev["no_load_min_v"], job.min_no_load_voltage_v, "min", "V")
+    if proc.characteristic == "drooping":
+        lim["characteristic_slope"] = (ev["slope_v_per_a"], DROOPING_MAX_SLOPE_V_PER_A, "max", "V/A")
+    else:
+        lim["characteristic_slope"] = (ev["slope_v_per_a"], FLAT_MIN_SLOPE_V_PER_A, "min", "V/A")
+    isc = ev["short_circuit_current_a"]
+    lim["stuck_electrode_current"] = (np.where(np.isnan(isc), np.inf, isc), m.peak_current_a, "max", "A")
+    return lim
+
+
+def _simplicity(base):
+    """Sort key of a base: no diverter first, then fewer series turns."""
+    return (base[2] is not None, base[1], base[2] or 0.0)
+
+
+def dial_paths(space, valid, margin):
+    """The base (tap and diverter) of every dial row, for each option.
+
+    Option ``i`` starts on its own base at the low end; along the dial it
+    keeps its tap while the row stays inside every limit, and where it would
+    not, changes to the tap (of the same connection) that stays inside for
+    the most rows from there: the fewest tap changes for a dial that starts
+    on that tap (the greedy interval cover). Ties go to the simpler rig
+    (no diverter, fewer turns), then to the larger margin of the row.
+
+    Parameters
+    ----------
+    valid : ndarray of bool, shape (bases, rows)
+    margin : ndarray, shape (bases, rows)
+        Smallest margin (fraction) of each row.
+
+    Returns
+    -------
+    ndarray of int, shape (bases, rows)
+    """
+    nb, nr = valid.shape
+    run = np.zeros((nb, nr + 1), int)
+    for r in range(nr - 1, -1, -1):
+        run[:, r] = np.where(valid[:, r], run[:, r + 1] + 1, 0)
+    conn = [b[0] for b in space.bases]
+    family = {}
+    for i, c in enumerate(conn):
+        family.setdefault(c, []).append(i)
+    paths = np.zeros((nb, nr), int)
+    for i in range(nb):
+        cur = i
+        paths[i, 0] = cur
+        fam = family[conn[i]]
+        for r in range(1, nr):
+            if not valid[cur, r]:
+                ok = [b for b in fam if valid[b, r]]
+                if ok:
+                    cur = min(ok, key=lambda b: (-run[b, r], _simplicity(space.bases[b]), -margin[b, r]))
+            paths[i, r] = cur
+    return paths
+
+
+def _worst(values, kind):
+    v = np.asarray(values, float)
+    with np.errstate(invalid="ignore"):
+        w = v.max(axis=1) if kind == "max" else v.min(axis=1)
+    return np.where(np.isnan(v).any(axis=1), np.nan, w)
+
+
+def _num(x):
+    x = float(x)
+    return x if math.isfinite(x) else None
+
+
+def reading_corners(space):
+    """Corner indices of the readings: the nominal speed with the coldest and with the hottest windings."""
+    speeds = sorted({c[0] for c in space.corners})
+    sp = min(speeds, key=lambda x: abs(x - space.nominal[0]))
+    ks = [k for k, c in enumerate(space.corners) if c[0] == sp]
+    return min(ks, key=lambda k: space.corners[k][1]), max(ks, key=lambda k: space.corners[k][1])
+
+
+def _row_field(space, base_idx, u):
+    """No-load field current [A] of each (base, control) at the nominal speed: (cold, hot)."""
+    base_idx = np.asarray(base_idx, int)
+    n = base_idx.size
+    cold, hot = reading_corners(space)
+    sub, _ = expand_candidates(space, np.concatenate([base_idx, base_idx]), np.concatenate([u, u]),
+                               np.concatenate([np.full(n, cold), np.full(n, hot)]))
+    f = no_load_field_current_a(sub, no_load_voltage_v(sub))
+    return f[:n], f[n:]
 
 
 def solve(space):
-    """Field control for each end of the current range and the limits and figures.
+    """The welding dial of every option, its limits and figures.
+
+    Every base (connection, tap, diverter) is solved for every dial current
+    at the nominal corner; each option's dial starts on its own base and
+    changes tap where that keeps the row inside every limit
+    (:func:`dial_paths`). An option's limits are the worst of its rows.
 
     Returns
     -------
     (u, limits, figures, extras, evaluated)
-        ``u`` is the control at the low end; ``extras`` holds each candidate's
-        ``current_settings`` (one per end of the range).
+        ``u`` is the control at the low end; ``extras`` holds each option's
+        ``dial``, ``current_settings`` (the two ends), ``diverters`` and
+        ``exciter``.
     """
-    lim, figs, per, evaluated = evaluate_range_ends(space)
-    job = space.profile.welding
+    m, job = space.machine, space.profile.welding
+    nb = len(space.bases)
+    targets = dial_currents_a(job)
+    nr = targets.size
+    nom, weak, strong = dial_corners(space)
+    bi = np.repeat(np.arange(nb), nr)
+    tg = np.tile(targets, nb)
+    u_all, reach = _solve_weld_control(space, bi, np.full(bi.size, nom), tg)
+    ev = evaluate_rows(space, bi, u_all, tg)
+    # a target the control cannot bracket is not reached, even where its end comes close
+    ev["deviation"] = np.where(reach, ev["deviation"], np.inf)
+    evaluated = bi.size * (52 + 4 + 3)
+    lim_rows = row_limits(space, ev)
+    sm = smallest_margin_fraction(lim_rows)
+    valid = ((sm >= 0) & ev["converged"]).reshape(nb, nr)
+    paths = dial_paths(space, valid, sm.reshape(nb, nr))
+    pidx = paths * nr + np.arange(nr)[None, :]
+    # an option's limits: the worst of its rows
+    lim = {name: (_worst(np.asarray(val, float)[pidx], kind), limit, kind, unit)
+           for name, (val, limit, kind, unit) in lim_rows.items()}
+    duty = job.duty_cycle_percent / 100.0
+    lo_a, hi_a = job.current_range_a
+    deq = float(thermal_equivalent_current(hi_a, duty))
+    lim["duty_cycle_heating"] = (np.full(nb, deq), m.rated_armature_current_a, "max", "A")
+    # the two ends at every corner: the current's spread and the machine's figures
+    ends = np.concatenate([pidx[:, 0], pidx[:, -1]])
+    r_end, _ = _weld_current(space, bi[ends], u_all[ends])
+    evaluated += ends.size * space.nc
+    nc = space.nc
+    cur_end = r_end["load_current_a"].reshape(2 * nb, nc)
+    spread_min, spread_max = _worst(cur_end, "min"), _worst(cur_end, "max")
+    ia_end = np.abs(r_end["armature_current_a"]).reshape(2 * nb, nc).max(axis=1)
+    x_end = r_end["x"].reshape(2 * nb, nc)
+    e_end = r_end["generated_emf_v"].reshape(2 * nb, nc)
+    isc_rows = ev["short_circuit_current_a"][pidx]
+    isc = _worst(isc_rows, "max")
+    ia_rows = np.abs(ev["armature_current_a"][pidx])
+    vmax_rows = ev["no_load_max_v"][pidx]
+    vmin_rows = ev["no_load_min_v"][pidx]
+    vnl_max = _worst(vmax_rows, "max")
+    with np.errstate(invalid="ignore"):
+        x_rows = ev["x"][pidx]
+        e_rows = ev["generated_emf_v"][pidx]
+        min_x = np.fmin(np.fmin(x_end[:nb].min(axis=1), x_end[nb:].min(axis=1)), x_rows.min(axis=1))
+        max_x = np.fmax(np.fmax(np.abs(x_end[:nb]).max(axis=1), np.abs(x_end[nb:]).max(axis=1)),
+                        np.abs(x_rows).max(axis=1))
+        min_e = np.fmin(np.fmin(e_end[:nb].min(axis=1), e_end[nb:].min(axis=1)), e_rows.min(axis=1))
+    # critical field resistance over every row's control at every corner
+    subc, _ = expand_candidates(space, bi[pidx.ravel()], u_all[pidx.ravel()])
+    rr = critical_resistance_ratios(space, subc, pidx.size).reshape(nb, nr)
+    changes = (np.array([[space.bases[b][1:3] != space.bases[a][1:3] for a, b in zip(p[:-1], p[1:])]
+                         for p in paths]).reshape(nb, max(nr - 1, 0)).sum(axis=1)).astype(float)
+    figs = {"low_end_current_a": ev["current_a"][pidx[:, 0]], "high_end_current_a": ev["current_a"][pidx[:, -1]],
+            "low_end_current_envelope_min_a": spread_min[:nb], "low_end_current_envelope_max_a": spread_max[:nb],
+            "high_end_current_envelope_min_a": spread_min[nb:], "high_end_current_envelope_max_a": spread_max[nb:],
+            "max_no_load_voltage_v": vnl_max, "min_no_load_voltage_v": _worst(vmin_rows, "min"),
+            "no_load_peak_voltage_v": np.asarray(no_load_peak_voltage(vnl_max), float),
+            "no_load_limit_v": np.full(nb, no_load_voltage_limit(environment(job.environment).dc_limit).voltage_v),
+            "no_load_mean_limit_v": np.full(nb, np.nan if job.max_no_load_voltage_v is None else job.max_no_load_voltage_v),
+            "no_load_strike_min_v": np.full(nb, np.nan if job.min_no_load_voltage_v is None else job.min_no_load_voltage_v),
+            "slope_low_end_v_per_a": ev["slope_v_per_a"][pidx[:, 0]],
+            "slope_high_end_v_per_a": ev["slope_v_per_a"][pidx[:, -1]],
+            "stuck_electrode_current_a": isc, "duty_equivalent_current_a": np.full(nb, deq),
+            "max_armature_current_a": np.fmax(np.fmax(np.fmax(ia_end[:nb], ia_end[nb:]), ia_rows.max(axis=1)),
+                                              np.where(np.isnan(isc), 0, isc)),
+            "min_net_mmf_a": min_x, "max_net_mmf_a": max_x, "min_generated_emf_v": min_e,
+            "critical_resistance_ratio": _worst(rr, "min"),
+            "tap_changes": changes,
+            "converged": (ev["converged"][pidx].all(axis=1) & r_end["converged"].reshape(2 * nb, nc).all(axis=1)[:nb]
+                          & r_end["converged"].reshape(2 * nb, nc).all(axis=1)[nb:]).astype(float)}
+    option_ok = (smallest_margin_fraction(lim) >= 0) & (figs["converged"] >= 1)
+    extras, n_adv = dial_advice(space, targets, paths, u_all, reach, ev, valid, option_ok)
+    evaluated += n_adv
+    return u_all[pidx[:, 0]], lim, figs, extras, evaluated
+
+
+def dial_advice(space, targets, paths, u_all, reach, ev, valid, option_ok):
+    """Each option's dial rows with readings and bands, its two ends, diverters and exciter.
+
+    Bands are searched for the rows of options that hold every limit (a band
+    is where the limits still hold; an option that breaks one has none).
+    """
+    m, job = space.machine, space.profile.welding
+    nb, nr = paths.shape
+    nom, weak, strong = dial_corners(space)
+    # pairs (base, row) used by some dial
+    used = np.unique((paths * nr + np.arange(nr)[None, :]).ravel())
+    pb, pr = used // nr, used % nr
+    pu = u_all[used]
+    controls = [space.bases[b][3] for b in pb]
+    # readings: no-load field current at the nominal speed, cold and hot
+    c0, h0 = _row_field(space, pb, pu)
+    vnl_nom = no_load_voltage_v(expand_candidates(space, pb, pu, np.full(used.size, nom))[0])
+    # bands of the rows inside every limit
+    lo = np.array([control_range(m, c)[0] for c in controls])
+    hi = np.array([control_range(m, c)[1] for c in controls])
+    banded = np.zeros(nb * nr, bool)
+    banded[(paths * nr + np.arange(nr)[None, :])[option_ok].ravel()] = True
+    ok = valid.ravel()[used] & banded[used]
+    counter = [0]
+
+    def margin_of(k, val):
+        counter[0] += len(k) * 5
+        e = evaluate_rows(space, pb[k], val, targets[pr[k]], near=True)
+        return np.where(e["converged"], smallest_margin_fraction(row_limits(space, e)), np.nan)
+
+    band_lo, band_hi = control_band(margin_of, np.where(ok, pu, np.nan), lo, hi, scan=4, steps=16)
+    have = np.isfinite(band_lo)
+    cl, hl = _row_field(space, pb, np.where(have, band_lo, pu))
+    ch, hh = _row_field(space, pb, np.where(have, band_hi, pu))
+    counter[0] += 4 * used.size * space.nc
+    pos = {int(p): j for j, p in enumerate(used)}
+    rc = job.cable_resistance_ohm
+    di = current_change_per_arc_volt_a_per_v(ev["slope_v_per_a"], rc)
+    hot_t = max(c[1] for c in space.corners)
+    rows_of = []
+    for j, p in enumerate(used):
+        b, r = int(pb[j]), int(pr[j])
+        conn, tap, d, ctl = space.bases[b]
+        band_u = band_field = None
+        if have[j]:
+            band_u = (band_lo[j], band_hi[j])
+            band_field = (hh[j], cl[j]) if weak_end_is_high(ctl) else (hl[j], ch[j])
+        rd, bd = readings_and_band(ctl, float(pu[j]), float(c0[j]), float(h0[j]), band_u, band_field,
+                                   m.rheostat_max_ohm)
+        row = {"current_a": float(targets[r]), "series_turns": tap if conn in USES_SERIES else None,
+               "diverter_ohm": d,
+               "field_current_a": _num(pu[j]) if ctl == "field-current" else _num(h0[j]),
+               "rheostat_ohm": _num(pu[j]) if ctl in ("rheostat", "exciter") else None,
+               "welding_current_a": _num(ev["current_a"][p]),
+               "terminal_voltage_v": _num(ev["terminal_voltage_v"][p]),
+               "arc_voltage_v": _num(conventional_load_voltage(job.process, ev["current_a"][p])),
+               "no_load_voltage_v": _num(vnl_nom[j]), "no_load_voltage_min_v": _num(ev["no_load_min_v"][p]),
+               "no_load_voltage_max_v": _num(ev["no_load_max_v"][p]),
+               "short_circuit_current_a": _num(ev["short_circuit_current_a"][p]),
+               "slope_v_per_a": _num(ev["slope_v_per_a"][p]),
+               "current_change_per_arc_volt_a_per_v": _num(di[p]),
+               "reachable": bool(reach[p]), "inside_limits": bool(valid.ravel()[p]),
+               "readings": rd, "band": bd}
+        rows_of.append(row)
     extras = []
-    for i, base in enumerate(space.bases):
+    for i in range(nb):
+        dial = []
+        for r in range(nr):
+            row = dict(rows_of[pos[int(paths[i, r] * nr + r)]])
+            row["tap_change"] = bool(r > 0 and space.bases[paths[i, r]][1:3] != space.bases[paths[i, r - 1]][1:3])
+            dial.append(row)
+        ctl = space.bases[i][3]
+        key = "field_current_a" if ctl == "field-current" else "rheostat_ohm"
         cs = []
-        for end, target in (("low", job.current_range_a[0]), ("high", job.current_range_a[1])):
-            d = {"current_a": float(target)}
-            key = "field_current_a" if base[3] == "field-current" else "rheostat_ohm"
-            uval = float(per[end]["u"][i])
-            d[key] = uval if math.isfinite(uval) else None  # a series machine has no field control
-            d["terminal_voltage_v"] = float(per[end]["v"][i]) if math.isfinite(per[end]["v"][i]) else None
-            d["no_load_voltage_v"] = float(per[end]["vnl"][i]) if math.isfinite(per[end]["vnl"][i]) else None
-            d["reachable"] = bool(per[end]["reachable"][i])
-            cs.append(d)
-        extras.append({"current_settings": cs})
-    return per["low"]["u"], lim, figs, extras, evaluated
+        for row in (dial[0], dial[-1]):
+            cs.append({"current_a": row["current_a"], "series_turns": row["series_turns"],
+                       "diverter_ohm": row["diverter_ohm"], key: row[key],
+                       "terminal_voltage_v": row["terminal_voltage_v"], "arc_voltage_v": row["arc_voltage_v"],
+                       "no_load_voltage_v": row["no_load_voltage_v"], "reachable": row["reachable"]})
+        divs = {}
+        for row in dial:
+            if row["diverter_ohm"] is not None:
+                k = (row["series_turns"], row["diverter_ohm"])
+                divs[k] = max(divs.get(k, 0.0), row["welding_current_a"] or 0.0)
+        diverters = [dict(diverter_rating(m, t, d, cur, hot_t), series_turns=t) for (t, d), cur in sorted(divs.items())]
+        exc = None
+        if ctl in ("exciter", "field-current"):
+            vals = [row["rheostat_ohm"] if ctl == "exciter" else row["field_current_a"] for row in dial]
+            vals = [v for v in vals if v is not None]
+            if vals:
+                exc = exciter_supply(m, ctl, min(vals) if ctl == "exciter" else max(vals), hot_t)
+        extras.append({"dial": dial, "current_settings": cs, "diverters": diverters, "exciter": exc,
+                       "readings": None, "band": None})
+    return extras, counter[0]
+
+
+OBJECTIVE_LABEL = "series-tap changes along the dial (fewest first)"
+
+
+def objective(figures):
+    """Tap changes along the dial (smaller is better); NaN where unknown.
+
+    Only options whose whole dial holds every limit (the no-load window
+    included) are ranked by it.
+    """
+    return np.asarray(figures["tap_changes"], float)
 
 
 # ===========================================================================
