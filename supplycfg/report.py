@@ -363,7 +363,8 @@ def sheet_markdown(result, rank=None, run=None, date=None):
     lines = [f"# Setting sheet: {md_esc(m.label or 'machine')}", "",
              f"**Job:** {md_esc(p.label or p.kind)} ({KIND_WORDS.get(p.kind, p.kind)})  ",
              f"**Chosen:** {md_esc(status_text(o, len(result.options)))}  ",
-             f"**Made by:** supplycfg {__version__} on {_date(date)}", ""]
+             f"**Made by:** supplycfg {__version__} on {_date(date)}  ",
+             f"**Ranked by:** {md_esc(result.ranking_rule)}", ""]
     if stops:
         lines += ["## STOP: do not use this setting as it stands", ""] + _md_cautions(stops) + [""]
     lines += ["## Set the machine like this", ""] + _md_table(("What", "Setting"), setting_rows(o, m, p)) + [""]
@@ -502,7 +503,8 @@ def sheet_html(result, rank=None, run=None, date=None, charts=True, svgs=None):
              f"<h1>{esc(title)}</h1>",
              f'<p class="meta"><b>Job:</b> {esc(p.label or p.kind)} ({esc(KIND_WORDS.get(p.kind, p.kind))})<br>'
              f"<b>Chosen:</b> {esc(status_text(o, len(result.options)))}<br>"
-             f"<b>Made by:</b> supplycfg {esc(__version__)} on {esc(_date(date))}</p>"]
+             f"<b>Made by:</b> supplycfg {esc(__version__)} on {esc(_date(date))}<br>"
+             f"<b>Ranked by:</b> {esc(result.ranking_rule)}</p>"]
     if stops:
         parts += ["<h2>STOP: do not use this setting as it stands</h2>", _html_cautions(stops)]
     parts += ["<h2>Set the machine like this</h2>", _html_table((), setting_rows(o, m, p), "setting")]

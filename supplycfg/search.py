@@ -43,8 +43,9 @@ LEAST_MARGIN_MEANING = ("least margin: the smallest margin over every limit of t
 
 
 def ranking_rule(kind):
-    """The ranking rule in words for a job ``kind``, with its objective."""
-    return RANKING_RULE.format(objective=JOBS[kind].OBJECTIVE_LABEL)
+    """The ranking rule in words for a job ``kind``, with its objective and what "least margin" means."""
+    meaning = LEAST_MARGIN_MEANING[0].upper() + LEAST_MARGIN_MEANING[1:]
+    return RANKING_RULE.format(objective=JOBS[kind].OBJECTIVE_LABEL) + f" {meaning}."
 
 
 @dataclass
@@ -453,7 +454,7 @@ def search_text(res, top=10):
     kind = res.profile.kind
     lines = [f"{res.machine.label} for {res.profile.label} ({KIND_WORDS.get(kind, kind)})",
              f"{len(res.options)} distinct options; {res.candidates_evaluated} candidate evaluations in "
-             f"{res.search_seconds:.2f} s", "", res.ranking_rule, LEAST_MARGIN_MEANING[0].upper() + LEAST_MARGIN_MEANING[1:] + ".", ""]
+             f"{res.search_seconds:.2f} s", "", res.ranking_rule, ""]
     welding = kind == "welding"
     hdr = ["rank", "fit", "connection", "series turns", "diverter [ohm]", "rheostat [ohm]", "field hot [A]",
            "speed [rpm]", "least margin [%]", "cautions"]

@@ -54,6 +54,7 @@ def options_section(result, key):
     n_ok = len([o for o in result.options if o.feasible])
     st.markdown(f"**{n_ok}** of {len(result.options)} settings meet every limit "
                 f"({result.candidates_evaluated} candidate evaluations in {result.search_seconds:.2f} s).")
+    st.caption(_md(result.ranking_rule))
     for n in result.notes:
         st.warning(_md(n))
     job_stops = [c for c in result.cautions if c.severity == "stop"]
