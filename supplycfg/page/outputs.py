@@ -113,7 +113,7 @@ def detail_section(result, option):
     _table(("What", "Setting"), setting_rows(option, m, p))
     if option.current_settings:
         st.markdown("**Field setting for each end of the welding range**")
-        _table(("Welding current", "Field", "Arc-side voltage", "No-load voltage"), current_setting_rows(option))
+        _table(("Welding current", "Field", "Terminal voltage", "No-load voltage"), current_setting_rows(option))
     st.subheader("Cautions")
     rest = [c for c in all_c if c.severity != "stop"]
     for c in rest:
