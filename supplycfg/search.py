@@ -409,7 +409,12 @@ def _dial_lines(o, cable_ohm):
     return lines
 
 
-def _reading_lines(o):
+#: Where the technician sets the field and reads the ammeter, per job.
+READING_POINT = {"lighting": "at no load", "booster": "at no load", "battery": "at the start of charge",
+                 "welding": "at no load"}
+
+
+def _reading_lines(o, kind=""):
     lines = []
     r, b = o.readings, o.band
     if o.control == "none":
@@ -421,7 +426,7 @@ def _reading_lines(o):
             parts.append(f"rheostat {_num(r['rheostat_ohm'], 'g')} ohm"
                          + (f" ({_num(r['rheostat_travel_percent'], 'g')} % of its travel)"
                             if r["rheostat_travel_percent"] is not None else ""))
-        lines.append("  set: " + "; ".join(parts))
+        lines.append(f"  set {READING_POINT.get(kind, '')}: ".replace("  set : ", "  set: ") + "; ".join(parts))
     if b is not None:
         parts = []
         if b.get("rheostat_ohm"):
@@ -459,7 +464,7 @@ def search_text(res, top=10):
     hdr = ["rank", "fit", "connection", "series turns", "diverter [ohm]", "rheostat [ohm]", "field hot [A]",
            "speed [rpm]", "least margin [%]", "cautions"]
     if welding:
-        hdr.insert(-1, "tap changes")
+        hdr.insert(-2, "tap changes")
     rows, tails = [], []
     for o in res.options[:top]:
         s = o.setting
@@ -490,7 +495,7 @@ def search_text(res, top=10):
         lines += ["", f"Option {best.rank} at the machine:"]
         if welding:
             lines += _dial_lines(best, res.profile.welding.cable_resistance_ohm)
-        lines += _reading_lines(best)
+        lines += _reading_lines(best, kind)
         lines += ["", f"Option {best.rank} in figures:"]
         for k, v in best.figures.items():
             if v is None:
