@@ -212,10 +212,11 @@ def _sig(v):
 
 
 def _signature(o):
-    """What must agree for two options to be the same: connection, control, figures."""
+    """What must agree for two options to be the same: connection, control, fitness, cautions, figures."""
     s = o.setting
     u = s.field_current_a if o.control == "field-current" else s.rheostat_ohm
-    return (s.connection, o.control, _sig(u if o.control != "none" else None),
+    return (s.connection, o.control, _sig(u if o.control != "none" else None), o.feasible,
+            tuple(sorted((c.rule, c.severity) for c in o.cautions)),
             tuple((k, _sig(v)) for k, v in sorted(o.figures.items())))
 
 
