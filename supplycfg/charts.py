@@ -455,8 +455,10 @@ def _end_settings(option):
     for cs in option.current_settings or []:
         kw = {k: float(cs[k]) for k in ("rheostat_ohm", "field_current_a")
               if cs.get(k) is not None and np.isfinite(cs[k])}
+        # each end of a welding dial may sit on its own tap and diverter
+        taps = {k: cs[k] for k in ("series_turns", "diverter_ohm") if k in cs}
         out.append((cs.get("current_a"), replace(option.setting, rheostat_ohm=kw.get("rheostat_ohm"),
-                                                  field_current_a=kw.get("field_current_a"))))
+                                                  field_current_a=kw.get("field_current_a"), **taps)))
     return out or [(None, option.setting)]
 
 

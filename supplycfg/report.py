@@ -225,7 +225,7 @@ def setting_rows(option, machine, profile):
 
 
 def current_setting_rows(option):
-    """Welding: ``[(current, field setting, arc-side voltage, no-load voltage)]`` per end of the range."""
+    """Welding: ``[(current, field setting, terminal voltage, no-load voltage)]`` per end of the range."""
     rows = []
     for cs in option.current_settings or []:
         if option.setting.connection == "series":
@@ -363,13 +363,14 @@ def sheet_markdown(result, rank=None, run=None, date=None):
     lines = [f"# Setting sheet: {md_esc(m.label or 'machine')}", "",
              f"**Job:** {md_esc(p.label or p.kind)} ({KIND_WORDS.get(p.kind, p.kind)})  ",
              f"**Chosen:** {md_esc(status_text(o, len(result.options)))}  ",
-             f"**Made by:** supplycfg {__version__} on {_date(date)}", ""]
+             f"**Made by:** supplycfg {__version__} on {_date(date)}  ",
+             f"**Ranked by:** {md_esc(result.ranking_rule)}", ""]
     if stops:
         lines += ["## STOP: do not use this setting as it stands", ""] + _md_cautions(stops) + [""]
     lines += ["## Set the machine like this", ""] + _md_table(("What", "Setting"), setting_rows(o, m, p)) + [""]
     if o.current_settings:
         lines += ["### Field setting for each end of the welding range", ""]
-        lines += _md_table(("Welding current", "Field", "Arc-side voltage", "No-load voltage"),
+        lines += _md_table(("Welding current", "Field", "Terminal voltage", "No-load voltage"),
                            current_setting_rows(o)) + [""]
     lines += ["## What to expect", ""] + _md_table(("Figure", "Value"), figure_rows(o)) + [""]
     lines += ["## Limits and margins", ""]
@@ -502,13 +503,14 @@ def sheet_html(result, rank=None, run=None, date=None, charts=True, svgs=None):
              f"<h1>{esc(title)}</h1>",
              f'<p class="meta"><b>Job:</b> {esc(p.label or p.kind)} ({esc(KIND_WORDS.get(p.kind, p.kind))})<br>'
              f"<b>Chosen:</b> {esc(status_text(o, len(result.options)))}<br>"
-             f"<b>Made by:</b> supplycfg {esc(__version__)} on {esc(_date(date))}</p>"]
+             f"<b>Made by:</b> supplycfg {esc(__version__)} on {esc(_date(date))}<br>"
+             f"<b>Ranked by:</b> {esc(result.ranking_rule)}</p>"]
     if stops:
         parts += ["<h2>STOP: do not use this setting as it stands</h2>", _html_cautions(stops)]
     parts += ["<h2>Set the machine like this</h2>", _html_table((), setting_rows(o, m, p), "setting")]
     if o.current_settings:
         parts += ["<h3>Field setting for each end of the welding range</h3>",
-                  _html_table(("Welding current", "Field", "Arc-side voltage", "No-load voltage"),
+                  _html_table(("Welding current", "Field", "Terminal voltage", "No-load voltage"),
                               current_setting_rows(o), numeric=(0, 2, 3))]
     parts += ["<h2>What to expect</h2>", _html_table(("Figure", "Value"), figure_rows(o), numeric=(1,))]
     parts += ["<h2>Limits and margins</h2>",

@@ -44,8 +44,9 @@ LEAST_MARGIN_MEANING = ("least margin: the smallest margin over every limit of t
 
 
 def ranking_rule(kind):
-    """The ranking rule in words for a job ``kind``, with its objective."""
-    return RANKING_RULE.format(objective=JOBS[kind].OBJECTIVE_LABEL)
+    """The ranking rule in words for a job ``kind``, with its objective and what "least margin" means."""
+    meaning = LEAST_MARGIN_MEANING[0].upper() + LEAST_MARGIN_MEANING[1:]
+    return RANKING_RULE.format(objective=JOBS[kind].OBJECTIVE_LABEL) + f" {meaning}."
 
 
 @dataclass
@@ -212,10 +213,11 @@ def _sig(v):
 
 
 def _signature(o):
-    """What must agree for two options to be the same: connection, control, figures."""
+    """What must agree for two options to be the same: connection, control, fitness, cautions, figures."""
     s = o.setting
     u = s.field_current_a if o.control == "field-current" else s.rheostat_ohm
-    return (s.connection, o.control, _sig(u if o.control != "none" else None),
+    return (s.connection, o.control, _sig(u if o.control != "none" else None), o.feasible,
+            tuple(sorted((c.rule, c.severity) for c in o.cautions)),
             tuple((k, _sig(v)) for k, v in sorted(o.figures.items())))
 
 
@@ -409,7 +411,12 @@ def _dial_lines(o, cable_ohm):
     return lines
 
 
-def _reading_lines(o):
+#: Where the technician sets the field and reads the ammeter, per job.
+READING_POINT = {"lighting": "at no load", "booster": "at no load", "battery": "at the start of charge",
+                 "welding": "at no load"}
+
+
+def _reading_lines(o, kind=""):
     lines = []
     r, b = o.readings, o.band
     if o.control == "none":
@@ -421,7 +428,7 @@ def _reading_lines(o):
             parts.append(f"rheostat {_num(r['rheostat_ohm'], 'g')} ohm"
                          + (f" ({_num(r['rheostat_travel_percent'], 'g')} % of its travel)"
                             if r["rheostat_travel_percent"] is not None else ""))
-        lines.append("  set: " + "; ".join(parts))
+        lines.append(f"  set {READING_POINT.get(kind, '')}: ".replace("  set : ", "  set: ") + "; ".join(parts))
     if b is not None:
         parts = []
         if b.get("rheostat_ohm"):
@@ -454,12 +461,12 @@ def search_text(res, top=10):
     kind = res.profile.kind
     lines = [f"{visible(res.machine.label)} for {visible(res.profile.label)} ({KIND_WORDS.get(kind, kind)})",
              f"{len(res.options)} distinct options; {res.candidates_evaluated} candidate evaluations in "
-             f"{res.search_seconds:.2f} s", "", res.ranking_rule, LEAST_MARGIN_MEANING[0].upper() + LEAST_MARGIN_MEANING[1:] + ".", ""]
+             f"{res.search_seconds:.2f} s", "", res.ranking_rule, ""]
     welding = kind == "welding"
     hdr = ["rank", "fit", "connection", "series turns", "diverter [ohm]", "rheostat [ohm]", "field hot [A]",
            "speed [rpm]", "least margin [%]", "cautions"]
     if welding:
-        hdr.insert(-1, "tap changes")
+        hdr.insert(-2, "tap changes")
     rows, tails = [], []
     for o in res.options[:top]:
         s = o.setting
@@ -490,7 +497,7 @@ def search_text(res, top=10):
         lines += ["", f"Option {best.rank} at the machine:"]
         if welding:
             lines += _dial_lines(best, res.profile.welding.cable_resistance_ohm)
-        lines += _reading_lines(best)
+        lines += _reading_lines(best, kind)
         lines += ["", f"Option {best.rank} in figures:"]
         for k, v in best.figures.items():
             if v is None:

@@ -472,7 +472,8 @@ def charge_text(run):
     lines.append(f"volts per cell: limit {run.limit_volts_per_cell:.3f} V (temperature-corrected), gassing from "
                  f"{run.gassing_volts_per_cell:.2f} V ({gas}); current floor {run.floor_current_a:.3g} A")
     lines.append("")
-    head = ["time_h", "soc_%", "current_a", "machine_v", "bank_v", "v_per_cell", "ah", "kwh"]
+    head = ["time [h]", "charge [%]", "current [A]", "machine [V]", "bank [V]", "per cell [V]", "charged [Ah]",
+            "energy [kWh]"]
     rows = []
     if t.size:
         sel = np.unique(np.round(np.linspace(0, t.size - 1, min(TEXT_ROWS, t.size))).astype(int))

@@ -525,7 +525,16 @@ def test_search_text_is_readable(capsys):
         header = next(line for line in out.splitlines() if line.lstrip().startswith("rank"))
         for col in re.split(r"\s{2,}", header.strip()):
             assert len(re.findall(r"\[[^\]]+\]", col)) <= 1
-    assert "welding dial" in cli_output(["search", str(MACHINES / "welding-set.toml"), str(LOADS / "welding.toml")], capsys)
+    out = cli_output(["search", str(MACHINES / "welding-set.toml"), str(LOADS / "welding.toml"), "--top", "3"], capsys)
+    assert "welding dial" in out
+    lines = out.splitlines()
+    k = next(i for i, line in enumerate(lines) if line.lstrip().startswith("rank"))
+    head = re.split(r"\s{2,}", lines[k].strip())
+    first = dict(zip(head, re.split(r"\s{2,}", lines[k + 2].strip())))
+    o = demo("welding")[2].options[0]
+    assert float(first["tap changes"]) == o.figures["tap_changes"]
+    assert float(first["least margin [%]"]) == pytest.approx(100 * o.smallest_margin, abs=0.05)
+    assert float(first["rheostat [ohm]"]) == o.extras["dial"][0]["readings"]["rheostat_ohm"]
 
 
 def cli_output(argv, capsys):

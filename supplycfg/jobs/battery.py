@@ -507,7 +507,7 @@ def start_setting_field(space, base_idx, u):
 
 #: What the battery job ranks its feasible options by (placeholder: none yet, so ties
 #: fall to the simpler rig and the least margin).
-OBJECTIVE_LABEL = "hours to full (not yet estimated: ties)"
+OBJECTIVE_LABEL = "the hours to full charge (not yet estimated: every option ties)"
 
 
 def objective(figures):

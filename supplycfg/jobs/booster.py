@@ -56,7 +56,8 @@ def solve(space):
 
 
 #: What the booster job ranks its feasible options by.
-OBJECTIVE_LABEL = "widest margin on the load-end voltage band [% of the band's limit], widest first"
+OBJECTIVE_LABEL = ("the widest margin of the load-end voltage inside its band (the objective's value is minus "
+                   "that margin, as a fraction of the band's end)")
 
 
 def objective(figures):

@@ -762,7 +762,7 @@ def dial_advice(space, targets, paths, u_all, reach, ev, valid, option_ok):
     return extras, counter[0]
 
 
-OBJECTIVE_LABEL = "series-tap changes along the dial (fewest first)"
+OBJECTIVE_LABEL = "the fewest series-tap changes along the welding dial (every row inside the no-load window)"
 
 
 def objective(figures):

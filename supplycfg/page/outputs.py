@@ -54,6 +54,7 @@ def options_section(result, key):
     n_ok = len([o for o in result.options if o.feasible])
     st.markdown(f"**{n_ok}** of {len(result.options)} settings meet every limit "
                 f"({result.candidates_evaluated} candidate evaluations in {result.search_seconds:.2f} s).")
+    st.caption(_md(result.ranking_rule))
     for n in result.notes:
         st.warning(_md(n))
     job_stops = [c for c in result.cautions if c.severity == "stop"]
@@ -112,7 +113,7 @@ def detail_section(result, option):
     _table(("What", "Setting"), setting_rows(option, m, p))
     if option.current_settings:
         st.markdown("**Field setting for each end of the welding range**")
-        _table(("Welding current", "Field", "Arc-side voltage", "No-load voltage"), current_setting_rows(option))
+        _table(("Welding current", "Field", "Terminal voltage", "No-load voltage"), current_setting_rows(option))
     st.subheader("Cautions")
     rest = [c for c in all_c if c.severity != "stop"]
     for c in rest:
