@@ -40,6 +40,7 @@ class Option:
     current_settings: list | None = None
     control: str = "rheostat"
     extrapolated: bool = False
+    extras: dict = field(default_factory=dict)
 
     def setting_dict(self):
         s = self.setting
@@ -58,6 +59,8 @@ class Option:
              "cautions": [c.as_dict() for c in self.cautions]}
         if self.current_settings is not None:
             d["current_settings"] = self.current_settings
+        for k, v in self.extras.items():
+            d.setdefault(k, v)
         return d
 
 
@@ -167,8 +170,12 @@ def search(machine, profile):
         extrap = xmax is not None and xmax > machine.occ_field_current_a[-1] * (1 + 1e-9)
         options.append(Option(0, feasible, st, f, margins, failed, cautions, float(min(fracs)) if fracs else 0.0,
                               (extras[i] or {}).get("current_settings"), {"field-current": "field-current", "none": "none"}.get(space.bases[i][3], "rheostat"),
-                              extrap))
-    options.sort(key=lambda o: (not o.feasible, -o.smallest_margin, o.setting.connection,
+                              extrap, {k: v for k, v in (extras[i] or {}).items() if k != "current_settings"}))
+    # the job's objective, where it has one, orders the feasible options (smaller first)
+    objective = getattr(JOBS[profile.kind], "objective", None)
+    obj = {id(o): v for o, v in zip(options, objective(figs) if objective else np.zeros(nb))}
+    options.sort(key=lambda o: (not o.feasible, obj[id(o)] if o.feasible and np.isfinite(obj[id(o)]) else math.inf,
+                                -o.smallest_margin, o.setting.connection,
                                 o.setting.series_turns or 0, o.setting.diverter_ohm or 0))
     for k, o in enumerate(options, 1):
         o.rank = k
