@@ -233,7 +233,8 @@ def charge_run(machine, profile, setting, max_hours=None, finish_setting=None):
     # the run's arrays: the main charge, then the finish where the plan hands over
     r = nom
     m, fi = plan.main, plan.finish
-    parts = [(m, 1)] + ([(fi, 2)] if plan.handed_over[r] else [])
+    # a one-stage plan runs on past the hand-over voltage with the same field: still its stage 1
+    parts = [(m, 1)] + ([(fi, 2 if plan.two_stage[0] else 1)] if plan.handed_over[r] else [])
     cols = {k: [] for k in ("time_h", "current_a", "stored_current_a", "gas_current_a", "terminal_voltage_v",
                             "volts_per_cell", "soc", "ah", "kwh", "armature_current_a", "found", "stage")}
     t_off = ah_off = kwh_off = 0.0
@@ -264,27 +265,29 @@ def charge_run(machine, profile, setting, max_hours=None, finish_setting=None):
             stop = "no-operating-point"
         else:
             stop = "current-floor"
-    over = np.flatnonzero(np.nan_to_num(a["volts_per_cell"], nan=-np.inf) > vmax * (1 + 1e-9))
-    end_idx, end_t = last, float(t[last]) if reach.any() else 0.0
+    # the voltage ceiling and the time cap cut the run between two points, by interpolation
+    cut = None
+    vpc_all = np.nan_to_num(a["volts_per_cell"], nan=-np.inf)
+    over = np.flatnonzero(vpc_all > vmax * (1 + 1e-9))
     if over.size and over[0] <= last:
-        stop, end_idx = "voltage-limit", int(over[0])
-        end_t = float(t[end_idx])
-    if end_t > cap_h:
-        stop = "time-cap"
-        end_idx = int(np.searchsorted(t[: end_idx + 1], cap_h, side="left"))
-        end_t = cap_h
-    keep = slice(0, end_idx + 1)
-    out = {k: v[keep].astype(float) for k, v in a.items() if k not in ("found",)}
-    if stop == "time-cap":
-        # the last point sits on the cap: interpolate every quantity between its neighbours
-        j = end_idx
+        j = int(over[0])
+        w = 1.0 if j == 0 else float((vmax - vpc_all[j - 1]) / (vpc_all[j] - vpc_all[j - 1]))
+        cut = ("voltage-limit", j, w)
+    t_end = float(t[last]) if cut is None else float(t[max(cut[1] - 1, 0)] + cut[2] * (t[cut[1]] - t[max(cut[1] - 1, 0)]))
+    if t_end > cap_h:
+        j = int(np.searchsorted(t[: last + 1], cap_h, side="left"))
+        w = 1.0 if j == 0 or t[j] == t[j - 1] else float((cap_h - t[j - 1]) / (t[j] - t[j - 1]))
+        cut = ("time-cap", j, w)
+    end_idx = last if cut is None else cut[1]
+    out = {k: v[: end_idx + 1].astype(float) for k, v in a.items() if k != "found"}
+    if cut is not None:
+        stop, j, w = cut
         lo = max(j - 1, 0)
-        w = 0.0 if t[j] == t[lo] else (cap_h - t[lo]) / (t[j] - t[lo])
         for k in out:
-            if k == "stage":
-                continue
-            out[k][-1] = a[k][lo] + w * (a[k][j] - a[k][lo])
-        out["time_h"][-1] = cap_h
+            if k != "stage":
+                out[k][-1] = a[k][lo] + w * (a[k][j] - a[k][lo])
+        if stop == "time-cap":
+            out["time_h"][-1] = cap_h
     duration = float(out["time_h"][-1]) if out["time_h"].size else 0.0
     soc = out["soc"]
     pct = f"{100 * soc[-1]:.1f} %" if soc.size else "-"
