@@ -321,12 +321,13 @@ def test_cell_point_refuses_both_or_neither():
 # ---------------------------------------------------------------------------
 
 @pytest.mark.optional
-def test_c10_curve_shape_against_pybamm():
-    """Optional (skipped when PyBaMM is not installed; it is not a dependency): PyBaMM's lead-acid model
-    (a general-purpose battery-modelling library, its default parameter set) charged at C/10 from 20 %
-    gives a voltage that rises monotonically and steepens towards the end, as ours does. Only the
-    shape is compared (normalised voltage against charge passed, within 0.25 on the middle half):
-    the parameter sets describe different cells."""
+def test_c10_bulk_charge_against_pybamm():
+    """Optional (skipped when PyBaMM is not installed; it is not a dependency): PyBaMM's lead-acid LOQS
+    model (a general-purpose battery-modelling library, its default parameter set) charged at C/10 from
+    20 %. Its default model has no gas reaction, so only the bulk of the charge (25-65 %) is compared:
+    both curves rise steadily, their slopes agree within a factor of 2 and their levels within 0.06 V
+    per cell (the parameter sets describe different cells). The end-of-charge rise is our
+    calibration's alone (common practice, see the module docstring)."""
     pybamm = pytest.importorskip("pybamm")
     try:
         model = pybamm.lead_acid.LOQS()
@@ -334,18 +335,17 @@ def test_c10_curve_shape_against_pybamm():
         cap = params["Nominal cell capacity [A.h]"]
         params["Current function [A]"] = -0.1 * cap
         params["Initial State of Charge"] = 0.2
-        sim = pybamm.Simulation(model, parameter_values=params)
-        sol = sim.solve([0, 3600 * 7])
+        sol = pybamm.Simulation(model, parameter_values=params).solve(np.linspace(0.0, 3600 * 5.0, 101))
         v = np.asarray(sol["Terminal voltage [V]"].entries, float)
         t = np.asarray(sol["Time [h]"].entries, float)
     except Exception as exc:  # a library version whose names differ: not our failure
-        pytest.skip(f"PyBaMM lead-acid model did not run here: {type(exc).__name__}: {exc}")
-    keep = np.isfinite(v)
-    v, t = v[keep], t[keep]
-    assert np.all(np.diff(v) > -1e-6)
-    theirs = (v - v[0]) / (v[-1] - v[0])
-    s = 0.2 + 0.1 * t * 0.995
-    ours_v = battery.cell_on_charge("lead-acid-vented", s, 0.1).volts_per_cell
-    ours = (ours_v - ours_v[0]) / (ours_v[-1] - ours_v[0])
-    mid = (t > 0.25 * t[-1]) & (t < 0.75 * t[-1])
-    assert np.max(np.abs(theirs[mid] - ours[mid])) < 0.25
+        pytest.skip(f"PyBaMM's lead-acid model did not run here: {type(exc).__name__}: {exc}")
+    soc = 0.2 + 0.1 * t
+    bulk = (soc >= 0.25) & (soc <= 0.65)
+    theirs = v[bulk]
+    ours = battery.cell_on_charge("lead-acid-vented", soc[bulk], 0.1).volts_per_cell
+    assert np.all(np.diff(theirs) > 0) and np.all(np.diff(ours) > 0)
+    slope_t = (theirs[-1] - theirs[0]) / (soc[bulk][-1] - soc[bulk][0])
+    slope_o = (ours[-1] - ours[0]) / (soc[bulk][-1] - soc[bulk][0])
+    assert 0.5 <= slope_o / slope_t <= 2.0, (slope_o, slope_t)
+    assert np.max(np.abs(theirs - ours)) < 0.06
