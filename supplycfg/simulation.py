@@ -281,11 +281,22 @@ def charge_run(machine, profile, setting, max_hours=None, finish_setting=None):
     end_idx = last if cut is None else cut[1]
     out = {k: v[: end_idx + 1].astype(float) for k, v in a.items() if k != "found"}
     if cut is not None:
+        # inside the step the currents vary linearly in time (the step's own rule), so the state of
+        # charge, the Ah and the kWh at the cut follow from their trapezoid integrals
         stop, j, w = cut
         lo = max(j - 1, 0)
+        dt = float(t[j] - t[lo])
+        tau = w * dt
         for k in out:
             if k != "stage":
                 out[k][-1] = a[k][lo] + w * (a[k][j] - a[k][lo])
+        if dt > 0:
+            i_a, i_b = a["stored_current_a"][lo], a["stored_current_a"][j]
+            out["soc"][-1] = a["soc"][lo] + (i_a * tau + (i_b - i_a) * tau ** 2 / (2 * dt)) / cap
+            out["ah"][-1] = a["ah"][lo] + 0.5 * (a["current_a"][lo] + out["current_a"][-1]) * tau
+            p_a = a["terminal_voltage_v"][lo] * a["current_a"][lo]
+            out["kwh"][-1] = a["kwh"][lo] + 0.5e-3 * (p_a + out["terminal_voltage_v"][-1] * out["current_a"][-1]) * tau
+        out["time_h"][-1] = t[lo] + tau
         if stop == "time-cap":
             out["time_h"][-1] = cap_h
     duration = float(out["time_h"][-1]) if out["time_h"].size else 0.0

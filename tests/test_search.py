@@ -5,8 +5,10 @@ setting, with the engine's all-intersections solver ``operating_points`` at
 every speed and winding-temperature corner of its profile, against the
 limits written out here from their sources:
 
-- battery: IEC 62485-2 boost voltage 2.40 V/cell at 25 degC as the charge
-  limit (seen); a C/100 finishing-current floor (common practice);
+- battery: the plan's main charge within the job's currents up to the
+  hand-over at the gassing voltage 2.38 V/cell (from memory), the finish at
+  most C/20 (common practice) and at most 2.7 V/cell at full charge (common
+  practice, from memory);
 - welding: the IEC 60974-1 conventional load line U = 20 + 0.04 I for
   manual metal arc (seen) plus the cable; 113 V peak no-load for DC (seen);
   100 V mean for manual welding under US 29 CFR 1910.254(b)(3) (seen), the

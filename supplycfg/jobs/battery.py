@@ -813,9 +813,9 @@ def bank_resistance_ohm_ah(job):
 #: Load-curve grid and refinement steps of the plan's operating points (the curve is parameterised
 #: by the cells' internal voltage, about 1.5 V wide per cell: 49 points resolve it to 30 mV/cell).
 PLAN_SOLVE = {"grid": 49, "steps": 40}
-#: State-of-charge intervals per stage; their nodes and midpoints are solved (model choice: the
-#: time integral is then within about 0.1 % of a fine one, see tests).
-PLAN_INTERVALS = 24
+#: State-of-charge intervals per stage (model choice: the hours are then within about 0.1 % of a
+#: fine grid's on the demo job, see tests).
+PLAN_INTERVALS = 32
 #: Intervals of the first look along the main charge for the hand-over voltage.
 SCAN_INTERVALS = 16
 #: Regula-falsi (Illinois) steps placing the hand-over on the hand-over voltage.
@@ -991,21 +991,17 @@ def control_for_point(space, base_idx, corner_idx, terminal_voltage_v, load_curr
     return np.where(fixed, np.nan, u), ok & ~fixed
 
 
-def _grid(s_from, s_to, intervals, power, with_mid=True):
-    """State of charge at the nodes (and midpoints) of a grid graded towards ``s_to``, and ``ds/dxi``.
+def _grid(s_from, s_to, intervals, power):
+    """State of charge at the nodes of a grid graded towards ``s_to`` (per row).
 
-    ``s = s_to - (s_to - s_from) (1 - xi)^q``: with ``q = 1/(1 - p)`` the time
-    integrand stays smooth where the acceptance falls as ``(1 - s)^p``.
+    ``s = s_to - (s_to - s_from) (1 - xi)^q``, ``xi`` uniform: with
+    ``q = 1/(1 - p)`` the stored current falls linearly in ``xi`` where the
+    acceptance ends as ``(1 - s)^p``, which the time step integrates exactly.
     """
     xi = np.linspace(0.0, 1.0, intervals + 1)
-    if with_mid:
-        xi = np.concatenate([xi, 0.5 * (xi[:-1] + xi[1:])])
     s_from = np.asarray(s_from, float)[:, None]
     s_to = np.asarray(s_to, float)[:, None]
-    span = s_to - s_from
-    s = s_to - span * (1.0 - xi) ** power
-    ds = span * power * (1.0 - xi) ** (power - 1.0)
-    return s, ds, 1.0 / intervals
+    return s_to - (s_to - s_from) * (1.0 - xi) ** power
 
 
 @dataclass
@@ -1030,58 +1026,59 @@ class Stage:
     stalled_at: np.ndarray      # state of charge where the charge stops (NaN: it does not)
 
 
-def _stage(space, rows_base, rows_corner, rows_u, s_from, s_to, intervals=PLAN_INTERVALS, with_time=True):
+def _stage(space, rows_base, rows_corner, rows_u, s_from, s_to, intervals=None, with_time=True):
     """Solve one constant-field stage from ``s_from`` to ``s_to`` (per row) and integrate its time.
 
-    ``dt = C ds / I_stored`` by the midpoint rule on the graded grid; the
-    charge stalls at the first node whose current is below the floor (or
-    where the machine has no operating point) and its time is infinite from
-    there.
+    The charge balance ``ds/dt = I_stored / C`` gives each step
+    ``dt = 2 C ds / (I_s,a + I_s,b)``, the trapezoid rule for the stored
+    charge: the reported currents integrate (trapezoid rule) to exactly the
+    charge stored, and the Ah and kWh are the trapezoid integrals of the
+    current and the power. The charge stalls at the first node whose current
+    is below the floor (or where the machine has no operating point); its
+    time is infinite from there.
     """
     job = space.profile.battery
     chem = chemistry(job.chemistry)
     cap = job.capacity_ah
     nr = rows_base.size
-    s, ds, dxi = _grid(s_from, s_to, intervals, chem.grading_power, with_time)
-    npt = s.shape[1]
-    rep = np.repeat(np.arange(nr), npt)
+    intervals = PLAN_INTERVALS if intervals is None else intervals
+    s = _grid(s_from, s_to, intervals, chem.grading_power)
+    nn = intervals + 1
+    rep = np.repeat(np.arange(nr), nn)
     sub, _ = expand_candidates(space, rows_base[rep], rows_u[rep], rows_corner[rep])
     r = bank_points(sub, job, s.ravel())
-    get = lambda k: np.asarray(r[k], float).reshape(nr, npt)
-    nn = intervals + 1
-    cur, st = get("load_current_a"), get("stored_current_a")
-    found = np.asarray(r["found"], bool).reshape(nr, npt)
+    get = lambda k: np.asarray(r[k], float).reshape(nr, nn)
+    cur, st, vt = get("load_current_a"), get("stored_current_a"), get("terminal_voltage_v")
+    found = np.asarray(r["found"], bool).reshape(nr, nn)
     floor = CURRENT_FLOOR_PER_H * cap
     # a node the charge cannot pass: no operating point, a current below the floor, or nothing
     # stored short of full charge (at full charge nothing is stored by definition)
     dead = ~found | ~(cur > floor) | (~(st > 0) & (s < 1.0 - 1e-12))
-    first = np.where(dead[:, :nn].any(axis=1), np.argmax(dead[:, :nn], axis=1), nn)
-    empty = ~(s[:, nn - 1] > s[:, 0])
+    first = np.where(dead.any(axis=1), np.argmax(dead, axis=1), nn)
+    empty = ~(s[:, -1] > s[:, 0])
     first = np.where(empty, nn, first)
     if with_time:
-        mid = slice(nn, None)
-        with np.errstate(divide="ignore", invalid="ignore"):
-            dt = cap * ds[:, mid] * dxi / np.where(dead[:, mid], np.nan, st[:, mid])
+        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+            dt = 2.0 * cap * np.diff(s, axis=1) / (st[:, :-1] + st[:, 1:])
             dt = np.where(empty[:, None], 0.0, dt)
-            dt = np.where(np.isfinite(dt), dt, np.inf)
+            dt = np.where(np.isfinite(dt) & (dt >= 0), dt, np.inf)
             j = np.arange(intervals)[None, :]
             dt = np.where(j >= first[:, None] - 1, np.inf, dt)
             t = np.concatenate([np.zeros((nr, 1)), np.cumsum(dt, axis=1)], axis=1)
             fin = np.isfinite(dt)
-            dah = np.where(fin, cur[:, mid] * np.where(fin, dt, 0.0), np.inf)
-            dkwh = np.where(fin, get("terminal_voltage_v")[:, mid] * cur[:, mid] * np.where(fin, dt, 0.0) * 1e-3, np.inf)
+            step = np.where(fin, dt, 0.0)
+            dah = np.where(fin, 0.5 * (cur[:, :-1] + cur[:, 1:]) * step, np.inf)
+            p_ = vt * cur
+            dkwh = np.where(fin, 0.5e-3 * (p_[:, :-1] + p_[:, 1:]) * step, np.inf)
         ah = np.concatenate([np.zeros((nr, 1)), np.cumsum(dah, axis=1)], axis=1)
         kwh = np.concatenate([np.zeros((nr, 1)), np.cumsum(dkwh, axis=1)], axis=1)
     else:
         t = ah = kwh = np.full((nr, nn), np.nan)
     stalled = np.where(first < nn, s[np.arange(nr), np.maximum(first - 1, 0)], np.nan)
-    node = slice(0, nn)
-    return Stage(soc=s[:, node], time_h=t, ah=ah, kwh=kwh, current_a=cur[:, node],
-                 terminal_voltage_v=get("terminal_voltage_v")[:, node], volts_per_cell=get("volts_per_cell")[:, node],
-                 stored_current_a=st[:, node], gas_current_a=get("gas_current_a")[:, node],
-                 armature_current_a=get("armature_current_a")[:, node], x=get("x")[:, node],
-                 generated_emf_v=get("generated_emf_v")[:, node], found=found[:, node],
-                 converged=np.asarray(r["converged"], bool).reshape(nr, npt).all(axis=1), stalled_at=stalled)
+    return Stage(soc=s, time_h=t, ah=ah, kwh=kwh, current_a=cur, terminal_voltage_v=vt,
+                 volts_per_cell=get("volts_per_cell"), stored_current_a=st, gas_current_a=get("gas_current_a"),
+                 armature_current_a=get("armature_current_a"), x=get("x"), generated_emf_v=get("generated_emf_v"),
+                 found=found, converged=np.asarray(r["converged"], bool).reshape(nr, nn).all(axis=1), stalled_at=stalled)
 
 
 @dataclass
@@ -1661,7 +1658,7 @@ def solve(space):
     """
     plan = charge_plan(space)
     lim, figs, extras = plan_figures(plan)
-    evaluated = plan.rows_base.size * (2 * PLAN_INTERVALS + 1) * 2 + plan.rows_base.size * (SCAN_INTERVALS + 1)
+    evaluated = plan.rows_base.size * ((PLAN_INTERVALS + 1) * 2 + SCAN_INTERVALS + 1)
     return plan.u1, lim, figs, extras, int(evaluated)
 
 
