@@ -248,6 +248,20 @@ def test_battery_demo_values():
     assert_allclose(b.target_hours, 16.0, atol=1e-12)
 
 
+def test_old_battery_profile_keeps_loading():
+    """A profile written before the charge plan (charge_voltage_per_cell_v = 2.40, the old default
+    charge limit, and none of the new keys) loads unchanged: 2.40 V is now its hand-over voltage and
+    the new keys take their defaults (regression: old profiles keep loading)."""
+    text = (PROFILES / "battery-charging.toml").read_text()
+    text = text.replace("target_hours = 16", "charge_voltage_per_cell_v = 2.40")
+    p = profile.load_profile("old.toml", text)
+    b = p.battery
+    assert_allclose(battery.handover_volts_per_cell(b), 2.40, atol=1e-12)
+    assert_allclose(b.target_hours, battery.DEFAULT_TARGET_HOURS, atol=1e-12)
+    assert b.finishing_rate_per_h is None and b.cutout_closing_volts_per_cell is None
+    assert profile.profile_from_dict(profile.profile_to_dict(p), "old.toml") == p
+
+
 MINIMAL = {
     "battery": {"load": {"kind": "battery"}, "drive": {"speed_rpm": 1450},
                 "battery": {"chemistry": "nickel-cadmium-vented", "cells": 90, "capacity_ah": 100,

@@ -1755,7 +1755,8 @@ def option_cautions(machine, profile, setting, f):
         cut = (f" The machine reaches the closing voltage at about {cold or float('nan'):.0f} rpm with cold windings "
                f"and {hot or float('nan'):.0f} rpm hot; below that speed the cut-out must stay open.")
     if back is not None:
-        cut += f" With no cut-out a full bank drives about {back:.0f} A back into the machine at standstill."
+        cut += (f" With no cut-out a full bank drives about {back:.0f} A back into the machine at standstill "
+                "(cold windings).")
     out.append(caution("battery-reverse-current", "warn",
                        f"Fit a reverse-current cut-out (or a blocking diode) set to close at {close_v:.1f} V "
                        f"({cutout_closing_volts_per_cell(b):.2f} V per cell) and to open on a small reverse current: "
