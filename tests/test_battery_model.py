@@ -23,7 +23,6 @@ Calibration table (sources as in the project's source list):
 """
 
 import json
-import math
 
 import numpy as np
 import pytest

@@ -40,7 +40,7 @@ shape parameter of our own model.
 """
 
 import math
-from dataclasses import dataclass, field, replace
+from dataclasses import dataclass, field
 
 import numpy as np
 
@@ -1565,7 +1565,6 @@ def plan_figures(plan):
     # the main charge's setting at no load, every corner
     sub1, _ = expand_candidates(space, plan.base_idx, plan.u1)
     vnl_rows = no_load_voltages(sub1)
-    vnl = vnl_rows.reshape(nb, nc)
     sub2, _ = expand_candidates(space, plan.base_idx, plan.u2)
     crit = np.fmin(critical_resistance_ratios(space, sub1, nb), critical_resistance_ratios(space, sub2, nb))
     hours_all = grid["hours"]
