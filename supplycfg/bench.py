@@ -116,11 +116,11 @@ def run_bench(repeat=5):
     res["search_seconds_by_profile"] = per
     res["candidates_evaluated"] = cands
     try:
-        from .simulation import charge_run
+        from .simulation import charge_run_for_option
         mm = load_machine(PROFILES / "machines" / "charging-set.toml")
         pp = load_profile(PROFILES / "loads" / "battery-charging.toml")
-        best = search(mm, pp).options[0].setting
-        res["charge_run_seconds"] = _median(lambda: charge_run(mm, pp, best, max_hours=12.0), repeat)
+        best = search(mm, pp).options[0]
+        res["charge_run_seconds"] = _median(lambda: charge_run_for_option(mm, pp, best, max_hours=12.0), repeat)
     except ImportError:
         res["charge_run_seconds"] = None
     import tempfile

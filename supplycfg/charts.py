@@ -342,7 +342,7 @@ def _speeds(profile):
 # --- battery ---------------------------------------------------------------
 
 def battery_lines(profile, i_top):
-    """Battery lines: rest voltage at the start, the charging curves at the start and end, the limit.
+    """Battery lines: rest voltage at the start, the charging curves at the start and end, the hand-over voltage.
 
     Returns
     -------
@@ -350,7 +350,7 @@ def battery_lines(profile, i_top):
         ``start_load`` is the :class:`~supplycfg.circuit.Load` of the start
         state of charge (rest voltage plus bank and cable resistance);
         ``on_charge(soc)`` gives the bank's voltage on charge at the machine
-        ``V(I)`` (the chemistry's charging-voltage model plus cable).
+        ``V(I)`` (:func:`supplycfg.jobs.battery.bank_voltage_v`).
     """
     from .jobs import battery as ld
     b = profile.battery
@@ -358,17 +358,9 @@ def battery_lines(profile, i_top):
     s0, s1 = b.state_of_charge
     r = b.internal_resistance_ohm + b.cable_resistance_ohm
     e0 = b.cells * float(ld.open_circuit_voltage_per_cell(chem, s0, b.open_circuit_voltage_per_cell_v))
-    # the model's own cell resistance is replaced by the profile's bank resistance
-    rc_model = chem.resistance_ohm_ah / b.capacity_ah
 
     def on_charge(soc):
-        def v(i):
-            i = np.asarray(i, float)
-            ip = np.maximum(i, 0.0)
-            cell = ld.charging_voltage_per_cell(chem, soc, ip / b.capacity_ah, b.temperature_c,
-                                                b.open_circuit_voltage_per_cell_v) - ip * rc_model
-            return b.cells * cell + i * r
-        return v
+        return lambda i: ld.bank_voltage_v(b, soc, i)
 
     cur = np.linspace(0.0, i_top, 60)
     start = {"label": f"battery at rest, {s0:.0%} charge: {e0:.4g} V + {r:.3g} Ω x I", "colour": MOSS,
@@ -377,12 +369,12 @@ def battery_lines(profile, i_top):
                "load_current_a": list(cur), "terminal_voltage_v": list(on_charge(s0)(cur))}
     end = {"label": f"battery on charge at {s1:.0%}", "colour": PLUM,
            "load_current_a": list(cur), "terminal_voltage_v": list(on_charge(s1)(cur))}
-    vlim = b.cells * float(ld.charge_voltage_limit_per_cell(chem, b.temperature_c, b.charge_voltage_per_cell_v))
-    limit = {"label": f"charge limit {vlim / b.cells:.3g} V per cell ({vlim:.4g} V)", "colour": RUST,
-             "load_current_a": [0.0, i_top], "terminal_voltage_v": [vlim, vlim]}
-    band = {"label": f"starting current {b.min_charge_current_a:g} to {b.max_charge_current_a:g} A",
+    vho = b.cells * ld.handover_volts_per_cell(b)
+    limit = {"label": f"hand-over to the finish {vho / b.cells:.3g} V per cell ({vho:.4g} V)", "colour": RUST,
+             "load_current_a": [0.0, i_top], "terminal_voltage_v": [vho, vho]}
+    band = {"label": f"main charge {b.min_charge_current_a:g} to {b.max_charge_current_a:g} A",
             "i_min": b.min_charge_current_a, "i_max": b.max_charge_current_a,
-            "v_min": e0, "v_max": vlim}
+            "v_min": e0, "v_max": vho}
     return [start, start_c, end, limit], [band], Load.battery(e0, r), on_charge
 
 
@@ -403,20 +395,27 @@ def crossing(characteristic, v_load):
     return float(il[j] + w * (il[j + 1] - il[j])), float(v[j] + w * (v[j + 1] - v[j]))
 
 
-def battery_chart(machine, profile, setting, width=None):
+def battery_chart(machine, profile, setting, width=None, finish_setting=None):
     """External characteristic of the setting (cold and hot windings) against the battery.
 
     Operating points: the charge at the start (rest-voltage line) and at the
-    end state of charge (charging-voltage model), on each curve.
+    end state of charge (charging-voltage model), on each curve. With
+    ``finish_setting`` (the plan's second stage) its curve at the setting's
+    own temperature is drawn too.
     """
     b = profile.battery
     temps = _temperatures(profile, machine)
     curves, chars = [], []
     for j, t in enumerate(temps):
         ch = setting_curve(machine, replace(setting, winding_temperature_c=t))
-        lab = f"machine, windings {t:g} °C"
+        lab = f"machine, main charge, windings {t:g} °C"
         chars.append((t, lab, ch))
         curves.append({"label": lab, "colour": (INK, COPPER)[j % 2], "rows": curve_rows(lab, ch)})
+    if finish_setting is not None:
+        fs = check_setting(machine, finish_setting)
+        ch = setting_curve(machine, fs)
+        lab = f"machine, finish, windings {fs.winding_temperature_c:g} °C"
+        curves.append({"label": lab, "colour": SLATE, "rows": curve_rows(lab, ch)})
     i_top = 1.6 * b.max_charge_current_a
     lines, bands, start, on_charge = battery_lines(profile, i_top)
     pts = []
@@ -566,6 +565,40 @@ def load_end_chart(machine, profile, setting, width=None):
                                 x_domain=(0, _f(1.1 * max(hi, 1.0))), y_domain=(_f(max(y_lo, 0.0)), _f(y_hi)))
 
 
+def charging_curves_chart(family, width=None):
+    """The family of constant-current charging curves: volts per cell against state of charge, with the
+    gassing voltage and the highest cell voltage.
+
+    Parameters
+    ----------
+    family : dict
+        From :func:`supplycfg.jobs.battery.charging_curves` (the core computes every point).
+    """
+    s = family["state_of_charge"]
+    rows = []
+    for c in family["curves"]:
+        lab = f"{c['label']} ({c['rate_per_h']:g} A per Ah)"
+        rows += [{"series": lab, "state_of_charge_pct": _f(100 * si), "volts_per_cell": _f(v),
+                  "stored_pct": _f(None if sf is None else 100 * sf)}
+                 for si, v, sf in zip(s, c["volts_per_cell"], c["stored_fraction"])]
+    labels = list(dict.fromkeys(r["series"] for r in rows))
+    sets = _Sets()
+    zoom = _zoom()
+    x = alt.X("state_of_charge_pct:Q", title="State of charge [%]", scale=alt.Scale(domain=[0, 100]))
+    colour = alt.Color("series:N", scale=_colour_scale(labels), legend=_legend())
+    curves = alt.Chart(sets("curves", rows)).mark_line(strokeWidth=2.2).encode(
+        x=x, y=alt.Y("volts_per_cell:Q", title="Volts per cell", scale=alt.Scale(zero=False)), color=colour,
+        tooltip=[alt.Tooltip("series:N", title="current"), alt.Tooltip("state_of_charge_pct:Q", title="charge [%]"),
+                 alt.Tooltip("volts_per_cell:Q", title="volts per cell"),
+                 alt.Tooltip("stored_pct:Q", title="stored [% of current]")]).add_params(zoom)
+    lines = [{"label": f"gassing voltage {family['gassing_volts_per_cell']:.3f} V", "v": _f(family["gassing_volts_per_cell"])},
+             {"label": f"highest cell voltage {family['highest_volts_per_cell']:.3f} V", "v": _f(family["highest_volts_per_cell"])}]
+    rules = alt.Chart(sets("levels", lines)).mark_rule(color=RUST, strokeDash=[5, 3], strokeWidth=1.6).encode(
+        y=alt.Y("v:Q"), tooltip=[alt.Tooltip("label:N", title="level")])
+    title = f"Charging curves of {family['chemistry']} at {family['temperature_c']:g} °C"
+    return _layered([curves, rules], title, sets, width)
+
+
 # ---------------------------------------------------------------------------
 # 3. the charge run
 # ---------------------------------------------------------------------------
@@ -598,10 +631,14 @@ def charge_run_chart(run, width=None):
     vpc = alt.Chart(data).mark_line(color=COPPER, strokeWidth=2.2).encode(
         x=x, y=alt.Y("volts_per_cell:Q", title="Volts per cell", scale=alt.Scale(zero=False)), tooltip=tips)
     layers = [vpc]
+    lim = []
     if run.limit_volts_per_cell is not None:
-        lim = [{"limit": _f(run.limit_volts_per_cell), "label": f"charge limit {run.limit_volts_per_cell:.3g} V"}]
+        lim.append({"limit": _f(run.limit_volts_per_cell), "label": f"highest cell voltage {run.limit_volts_per_cell:.3g} V"})
+    if getattr(run, "handover_volts_per_cell", None) is not None:
+        lim.append({"limit": _f(run.handover_volts_per_cell), "label": f"hand-over {run.handover_volts_per_cell:.3g} V"})
+    if lim:
         layers.append(alt.Chart(sets("limit", lim)).mark_rule(color=RUST, strokeDash=[5, 3], strokeWidth=1.6).encode(
-            y=alt.Y("limit:Q"), tooltip=[alt.Tooltip("label:N", title="limit")]))
+            y=alt.Y("limit:Q"), tooltip=[alt.Tooltip("label:N", title="level")]))
     vpc = alt.layer(*layers).properties(height=h)
     soc = alt.Chart(data).mark_line(color=MOSS, strokeWidth=2.2).encode(
         x=x, y=alt.Y("state_of_charge_pct:Q", title="State of charge [%]", scale=alt.Scale(domain=[0, 100])),
@@ -620,9 +657,15 @@ def option_charts(machine, profile, option, other_taps=(), run=None, width=None)
     st = check_setting(machine, option.setting)
     out = [("occ", "Open-circuit characteristic", occ_chart(machine, st, temps, width))]
     if profile.kind == "battery":
-        out.append(("load", "Against the battery", battery_chart(machine, profile, st, width)))
+        from .jobs import battery as ld
+        fin = (getattr(option, "extras", None) or {}).get("finish_setting")
+        fin = None if fin is None else Setting(**fin)
+        out.append(("load", "Against the battery", battery_chart(machine, profile, st, width, fin)))
         if run is not None:
             out.append(("run", "Charge run", charge_run_chart(run, width)))
+        b = profile.battery
+        family = ld.charging_curves(b.chemistry, b.temperature_c, ocv_range=b.open_circuit_voltage_per_cell_v)
+        out.append(("cells", "Charging curves of the cells", charging_curves_chart(family, width)))
     elif profile.kind == "welding":
         out.append(("load", "Welding characteristics", welding_chart(machine, profile, option, other_taps, width)))
     else:

@@ -1260,14 +1260,16 @@ def series_critical_resistance_ohm(machine, series_turns=None, speed_rpm=None, w
                  * st.speed_rpm / machine.occ_speed_rpm)
 
 
-def normal_points(circ, lo, hi, v_of=None, il_of=None, grid=97, steps=44):
+def normal_points(circ, lo, hi, v_of=None, il_of=None, grid=97, steps=44, vi_of=None):
     """The point each candidate sits at along a load curve: the highest stable intersection.
 
     The load curve is parameterised by ``t`` in ``[lo, hi]`` (arrays, one per
     candidate): with ``v_of`` the load current is ``t`` and the terminal
     voltage ``v_of(t)`` (a rising load curve such as a battery); with
     ``il_of`` the terminal voltage is ``t`` and the load current ``il_of(t)``
-    (e.g. a constant current). Both callables get arrays shaped like
+    (e.g. a constant current); with ``vi_of`` both come from ``t``,
+    ``(V, IL) = vi_of(t)``, each rising with ``t`` (a battery given by its
+    cells' internal voltage). The callables get arrays shaped like
     ``(n, k)`` and must broadcast over candidates.
 
     Returns
@@ -1283,6 +1285,8 @@ def normal_points(circ, lo, hi, v_of=None, il_of=None, grid=97, steps=44):
     t = lo[:, None] + (hi - lo)[:, None] * np.linspace(0.0, 1.0, grid)[None, :]
 
     def vi(tt):
+        if vi_of is not None:
+            return vi_of(tt)
         if v_of is not None:
             return v_of(tt), tt
         return tt, il_of(tt)
@@ -1297,6 +1301,9 @@ def normal_points(circ, lo, hi, v_of=None, il_of=None, grid=97, steps=44):
     p1 = _params(circ, rows)
 
     def v_i1(tt):
+        if vi_of is not None:
+            vv, ii = vi_of(tt[:, None])
+            return vv[:, 0], ii[:, 0]
         if v_of is not None:
             return v_of(tt[:, None])[:, 0], tt
         return tt, il_of(tt[:, None])[:, 0]
@@ -1305,7 +1312,8 @@ def normal_points(circ, lo, hi, v_of=None, il_of=None, grid=97, steps=44):
         vv, ii = v_i1(tt)
         return machine_state(circ, p1, vv, ii)["h"]
 
-    root = _bisect(res, a, b, h[rows, j], steps)
+    # rows without a stable point get an empty bracket, so they do not hold up the refinement
+    root = _bisect(res, np.where(found, a, b), b, h[rows, j], steps)
     vv, ii = v_i1(root)
     st = machine_state(circ, p1, vv, ii)
     out = {k: np.where(found, st[k], np.nan) for k in POINT_KEYS + ("x",)}

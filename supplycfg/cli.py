@@ -210,6 +210,15 @@ def _parser():
                    help="processes to use (default: every core)")
     p.add_argument("--json", action="store_true", help="print one JSON object")
 
+    p = sub.add_parser("cell", help="the battery cell model at one point: voltage, current and its split")
+    p.add_argument("chemistry", help="lead-acid-vented, lead-acid-valve-regulated or nickel-cadmium-vented")
+    p.add_argument("--soc", type=_number, required=True, help="state of charge, 0 to 1")
+    g = p.add_mutually_exclusive_group(required=True)
+    g.add_argument("--volts-per-cell", type=_number, help="cell voltage [V]")
+    g.add_argument("--current-per-ah", type=_number, help="charging current per Ah of capacity [A/Ah]; 0.1 is C/10")
+    p.add_argument("--temperature-c", type=_number, default=25.0, help="cell temperature [degC]; default 25")
+    p.add_argument("--json", action="store_true", help=json_help)
+
     p = sub.add_parser("bench", help="time the engine and the search")
     p.add_argument("--repeat", type=_whole(1, MAX_BENCH_REPEAT), default=5,
                    help=f"repeats of each timing (1 to {MAX_BENCH_REPEAT}; default 5)")
@@ -549,6 +558,21 @@ def cmd_fleet(args, out):
     return res.as_dict() if args.json else fleet_text(res)
 
 
+def cmd_cell(args, out):
+    from .jobs.battery import cell_point
+    res = cell_point(args.chemistry, args.soc, args.volts_per_cell, args.current_per_ah, args.temperature_c)
+    if args.json:
+        return res
+    sf = res["stored_fraction"]
+    return "\n".join([
+        f"{res['chemistry']} at {100 * res['state_of_charge']:g} % charge, {res['temperature_c']:g} degC",
+        f"cell voltage {res['volts_per_cell']:.4f} V (rest voltage {res['rest_volts_per_cell']:.3f} V)",
+        f"current {res['current_a_per_ah']:.4g} A per Ah: stored {res['stored_a_per_ah']:.4g}, gas {res['gas_a_per_ah']:.4g}"
+        + ("" if sf is None else f" ({100 * sf:.1f} % stored)"),
+        f"gassing voltage {res['gassing_volts_per_cell']:.3f} V, highest cell voltage {res['highest_volts_per_cell']:.3f} V "
+        "at this temperature"])
+
+
 def cmd_bench(args, out):
     from .bench import run_bench, bench_text
     res = run_bench(args.repeat)
@@ -581,7 +605,7 @@ def cmd_page(args, out):
 
 COMMANDS = {"curve": cmd_curve, "point": cmd_point, "buildup": cmd_buildup, "emf": cmd_emf,
             "search": cmd_search, "charge": cmd_charge, "sheet": cmd_sheet, "fleet": cmd_fleet,
-            "bench": cmd_bench, "page": cmd_page}
+            "cell": cmd_cell, "bench": cmd_bench, "page": cmd_page}
 
 
 def main(argv=None):

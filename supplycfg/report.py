@@ -23,6 +23,8 @@ KIND_WORDS = {"battery": "battery charging", "welding": "arc welding", "lighting
               "booster": "feeder boosting"}
 #: Width of the charts on the printed sheet [px]: fits A4 portrait with margins.
 SHEET_CHART_WIDTH = 560
+#: Columns of a battery option's charge-plan table.
+PLAN_HEADERS = ("Stage", "Field", "Time", "Current", "Volts per cell at its end", "Ends because")
 
 # unit suffixes of figure names, longest first
 _UNITS = (("_v_per_a", "V/A"), ("_m3_per_h", "m³/h"), ("_percent", "%"), ("_rpm", "rpm"), ("_ohm", "Ω"),
@@ -30,15 +32,34 @@ _UNITS = (("_v_per_a", "V/A"), ("_m3_per_h", "m³/h"), ("_percent", "%"), ("_rpm
 
 #: Plain words for the figures the search reports; others are named from their key.
 FIGURE_WORDS = {
-    "start_charge_current_a": "charging current at the start (rest-voltage line), highest",
-    "start_charge_current_min_a": "charging current at the start (rest-voltage line), lowest",
-    "start_charge_current_on_charge_a": "charging current at the start (charging curve), highest",
-    "start_charge_current_on_charge_min_a": "charging current at the start (charging curve), lowest",
-    "end_charge_current_a": "charging current at the end of charge, lowest",
-    "end_volts_per_cell": ("volts per cell at the end of charge, highest", "V"),
-    "end_volts_per_cell_limit": ("charge limit per cell at the battery's temperature", "V"),
-    "gassing_volts_per_cell": ("gassing voltage per cell", "V"),
-    "ventilation_m3_per_h": "battery-room airflow for the boost charge",
+    "hours_to_full": "hours to full at {setting}",
+    "hours_to_full_longest": "hours to full, longest over the speed and temperature range",
+    "ah_charge_factor": ("ampere-hours delivered per ampere-hour stored", "×"),
+    "gassing_state_of_charge": ("state of charge where gassing begins (0 to 1)", ""),
+    "stages": ("stages of the charge plan", ""),
+    "start_charge_current_a": "charging current at the start, {setting}",
+    "start_charge_current_cold_a": "charging current at the start, {cold}",
+    "start_charge_current_hot_a": "charging current at the start, {hot}",
+    "handover_current_a": "current at the hand-over to the finish, {setting}",
+    "handover_state_of_charge": ("state of charge at the hand-over (0 to 1)", ""),
+    "finish_start_current_a": "current when the finish starts, {setting}",
+    "end_charge_current_a": "current at the end of charge, {setting}",
+    "end_volts_per_cell": ("volts per cell at the end of charge, {setting}", "V"),
+    "end_volts_per_cell_cold": ("volts per cell at the end of charge, {cold}", "V"),
+    "handover_volts_per_cell": ("hand-over voltage per cell at the battery's temperature", "V"),
+    "gassing_volts_per_cell": ("gassing voltage per cell at the battery's temperature", "V"),
+    "highest_volts_per_cell_limit": ("highest cell voltage allowed at the battery's temperature", "V"),
+    "ventilation_m3_per_h": "battery-room airflow for this plan (IEC 62485-2)",
+    "ventilation_opening_cm2": ("natural-ventilation opening, inlet and outlet each", "cm²"),
+    "gas_current_ma_per_ah": ("gas current behind the airflow", "mA/Ah"),
+    "cutout_closing_voltage_v": "reverse-current cut-out closes at",
+    "cut_in_speed_cold_rpm": "speed at which the cut-out closes, cold windings",
+    "cut_in_speed_hot_rpm": "speed at which the cut-out closes, hot windings",
+    "standstill_backfeed_current_a": "current a full bank drives back at standstill with no cut-out",
+    "start_charge_current_highest_a": "charging current at the start, highest over the range",
+    "main_charge_current_lowest_a": "main-charge current before the hand-over, lowest over the range",
+    "finish_current_highest_a": "current above the hand-over voltage, highest over the range",
+    "highest_volts_per_cell": ("volts per cell, highest over the plan and the range", "V"),
     "no_load_voltage_min_v": "no-load voltage, lowest",
     "no_load_voltage_max_v": "no-load voltage, highest",
     "bank_open_circuit_voltage_start_v": "bank rest voltage at the start",
@@ -81,10 +102,11 @@ FIGURE_WORDS = {
 #: Plain words for the limits the search checks.
 LIMIT_WORDS = {
     "start_current_max": "starting current at most the battery's highest",
-    "start_current_min": "starting current at least the lowest asked",
-    "end_volts_per_cell": "volts per cell at the end within the charge limit",
-    "end_current_floor": "still charging at the end of charge",
-    "no_load_above_bank": "no-load voltage above the full bank",
+    "main_charge_current_min": "main-charge current at least the lowest asked",
+    "finish_current_max": "current above the hand-over voltage at most the finishing current",
+    "end_volts_per_cell": "volts per cell within the chemistry's highest",
+    "hours_to_full": "full within the target hours",
+    "no_load_above_cutout": "no-load voltage above the cut-out's closing voltage",
     "armature_current_rating": "armature current within rating",
     "load_voltage_high": "load-end voltage not above the band",
     "load_voltage_low": "load-end voltage not below the band",
@@ -155,13 +177,41 @@ def limit_label(name):
     return LIMIT_WORDS.get(name, name.replace("_", " "))
 
 
+def condition_words(option):
+    """Plain words for the conditions an option's figures hold at (``{setting}``, ``{cold}``, ``{hot}``)."""
+    conds = (getattr(option, "extras", None) or {}).get("conditions") or {}
+    words = {"setting": "the setting's speed and winding temperature", "cold": "cold windings, top speed",
+             "hot": "hot windings, lowest speed"}
+    for k, c in conds.items():
+        words[k] = f"{fmt(c['speed_rpm'], 'rpm')}, windings {fmt(c['winding_temperature_c'], '°C')}"
+    return words
+
+
 def figure_rows(option):
-    """``[(words, value text)]`` of an option's figures."""
+    """``[(words, value text)]`` of an option's figures, each labelled with the conditions it holds at."""
     rows = []
+    at = condition_words(option)
     for k, v in option.figures.items():
         words, unit = figure_label(k)
-        rows.append((words, fmt(v, unit)))
+        rows.append((words.format(**at) if "{" in words else words, fmt(v, unit)))
     return rows
+
+
+def plan_table(option):
+    """``[(stage, field, time, current, end volts per cell, ends because)]`` of a battery option's plan."""
+    from .jobs.battery import plan_rows
+    return plan_rows((getattr(option, "extras", None) or {}).get("plan") or [])
+
+
+def cutout_rows(option):
+    """``[(what, value)]`` of the reverse-current cut-out figures of a battery option."""
+    f = option.figures
+    if "cutout_closing_voltage_v" not in f:
+        return []
+    return [("Cut-out closes at", fmt(f.get("cutout_closing_voltage_v"), "V")),
+            ("Machine reaches it at", f"{fmt(f.get('cut_in_speed_cold_rpm'), 'rpm')} cold, "
+                                      f"{fmt(f.get('cut_in_speed_hot_rpm'), 'rpm')} hot"),
+            ("Back-feed at standstill without a cut-out", fmt(f.get("standstill_backfeed_current_a"), "A"))]
 
 
 def _unit_words(unit):
@@ -299,15 +349,29 @@ def run_rows(run):
     """``[(what, value)]`` of a charge run."""
     if run is None:
         return []
+    cond = (getattr(run, "conditions", None) or {}).get("setting")
     rows = [("Duration", fmt(run.duration_h, "h")), ("Stops because", str(run.stop_reason))]
+    if cond:
+        rows.append(("Run at", f"{fmt(cond['speed_rpm'], 'rpm')}, windings {fmt(cond['winding_temperature_c'], '°C')}"))
+    hours = getattr(run, "hours_to_full", None)
+    rows.append(("Hours to full", fmt(hours, "h") if hours is not None else
+                 f"not within the target of {fmt(getattr(run, 'target_hours', None), 'h')}"))
     if len(run.time_h):
         rows += [("State of charge at the end", fmt(100 * float(run.state_of_charge[-1]), "%")),
                  ("Delivered", f"{fmt(float(run.ah[-1]), 'Ah')}, {fmt(float(run.kwh[-1]), 'kWh')}"),
+                 ("Ampere-hours delivered per ampere-hour stored", fmt(getattr(run, "ah_charge_factor", None))),
                  ("Highest volts per cell", fmt(float(max(run.volts_per_cell)), "V")),
                  ("Current at the start and end", f"{fmt(float(run.current_a[0]), 'A')} and "
                                                  f"{fmt(float(run.current_a[-1]), 'A')}")]
+    gs = getattr(run, "gassing_state_of_charge", None)
+    if gs is not None:
+        rows.append(("Gassing from", fmt(100 * gs, "% charge")))
     if run.limit_volts_per_cell is not None:
-        rows.append(("Charge limit per cell", fmt(run.limit_volts_per_cell, "V")))
+        rows.append(("Highest cell voltage allowed", fmt(run.limit_volts_per_cell, "V")))
+    vent = getattr(run, "ventilation", None) or {}
+    if vent:
+        rows.append(("Battery-room airflow", f"{fmt(vent.get('airflow_m3_per_h'), 'm³/h')} (opening "
+                                             f"{fmt(vent.get('opening_cm2'), 'cm²')})"))
     return rows
 
 
@@ -372,6 +436,11 @@ def sheet_markdown(result, rank=None, run=None, date=None):
         lines += ["### Field setting for each end of the welding range", ""]
         lines += _md_table(("Welding current", "Field", "Terminal voltage", "No-load voltage"),
                            current_setting_rows(o)) + [""]
+    if plan_table(o):
+        lines += ["## Charge plan", "", f"At {md_esc(condition_words(o)['setting'])}; only the field changes "
+                  "between stages.", ""]
+        lines += _md_table(PLAN_HEADERS, plan_table(o)) + [""]
+        lines += _md_table(("Reverse-current cut-out", "Figure"), cutout_rows(o)) + [""]
     lines += ["## What to expect", ""] + _md_table(("Figure", "Value"), figure_rows(o)) + [""]
     lines += ["## Limits and margins", ""]
     lines += _md_table(("Limit", "Value", "Limit value", "Margin", "Margin of limit", "Status"), margin_rows(o)) + [""]
@@ -512,6 +581,11 @@ def sheet_html(result, rank=None, run=None, date=None, charts=True, svgs=None):
         parts += ["<h3>Field setting for each end of the welding range</h3>",
                   _html_table(("Welding current", "Field", "Terminal voltage", "No-load voltage"),
                               current_setting_rows(o), numeric=(0, 2, 3))]
+    if plan_table(o):
+        parts += ["<h2>Charge plan</h2>",
+                  f"<p>At {esc(condition_words(o)['setting'])}; only the field changes between stages.</p>",
+                  _html_table(PLAN_HEADERS, plan_table(o)),
+                  _html_table(("Reverse-current cut-out", "Figure"), cutout_rows(o))]
     parts += ["<h2>What to expect</h2>", _html_table(("Figure", "Value"), figure_rows(o), numeric=(1,))]
     parts += ["<h2>Limits and margins</h2>",
               _html_table(("Limit", "Value", "Limit value", "Margin", "Margin of limit", "Status"), margin_rows(o),
@@ -550,10 +624,10 @@ def charge_run_for(result, option):
     if result.profile.kind != "battery":
         return None
     try:
-        from .simulation import charge_run
+        from .simulation import charge_run_for_option
     except ImportError:
         return None
-    return charge_run(result.machine, result.profile, option.setting)
+    return charge_run_for_option(result.machine, result.profile, option)
 
 
 def sheet_from_files(machine_path, profile_path, output_path, option_rank=None, force=False):

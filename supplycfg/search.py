@@ -457,7 +457,7 @@ def _reading_lines(o, kind=""):
 
 def search_text(res, top=10):
     """The ranked table a technician reads, the stated ranking rule and the best option's details."""
-    from .report import KIND_WORDS, figure_label, limit_label
+    from .report import KIND_WORDS, condition_words, figure_label, limit_label
     kind = res.profile.kind
     lines = [f"{visible(res.machine.label)} for {visible(res.profile.label)} ({KIND_WORDS.get(kind, kind)})",
              f"{len(res.options)} distinct options; {res.candidates_evaluated} candidate evaluations in "
@@ -499,10 +499,12 @@ def search_text(res, top=10):
             lines += _dial_lines(best, res.profile.welding.cable_resistance_ohm)
         lines += _reading_lines(best, kind)
         lines += ["", f"Option {best.rank} in figures:"]
+        at = condition_words(best)
         for k, v in best.figures.items():
             if v is None:
                 continue
             words, unit = figure_label(k)
+            words = words.format(**at) if "{" in words else words
             unit = {"Ω": "ohm", "°C": "degC", "m³/h": "m3/h"}.get(unit, unit)
             lines.append(f"  {words}: {_num(v, '.4g')}" + (f" {unit}" if unit else ""))
         lines += ["", f"Option {best.rank} against its limits (margin as a share of the limit):"]

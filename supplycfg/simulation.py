@@ -1,85 +1,66 @@
-"""The charge run: a battery charged by the generator, through time.
+"""The charge run: a battery charged by the generator through its plan, through time.
 
-At every state of charge the machine sits at its normal operating point
-(the highest stable intersection, :func:`supplycfg.circuit.normal_points`)
-against the bank's charging curve
+The run follows the setting's charge plan (:func:`supplycfg.jobs.battery.charge_plan`):
+the main charge on the setting as given until the cells reach the hand-over
+voltage, then the finish on the plan's weaker field, at the setting's own
+speed and winding temperature. At every state of charge the machine sits at
+its normal operating point against the bank (the highest stable
+intersection), so the time follows from the charge balance
 
-    V = n [Vc(s, I/C) - I Rc/C] + I (Rb + Rcable),
+    ds/dt = I_stored / C     [1/h],
 
-the same curve the search uses at the end of charge: ``Vc`` the chemistry's
-per-cell charging voltage (open-circuit voltage, resistive drop and the
-overvoltage that rises steeply near full charge), with the profile's bank
-resistance ``Rb`` in place of the chemistry's generic ``Rc``. The state of
-charge then rises as
-
-    ds/dt = I eta / C     [1/h],
-
-``eta`` the charge (ampere-hour) efficiency and ``C`` the capacity [Ah].
-The operating point depends on the state of charge only, so it is solved
-once on a fine grid of states of charge (one vectorised call) and the
-integrator reads that table; the reported currents and voltages are solved
-again, exactly, at the states of charge of the output grid.
+integrated over the state of charge; ``I_stored`` is the part of the
+current the charge reaction takes, the rest goes into gas. The figures are
+the plan's figures of the search for the same setting: the run and the
+search compute them with the same functions on the same grid.
 
 References
 ----------
-Constant-potential charging from a shunt generator, current falling as the
-battery voltage rises: Theraja Vol I, batteries (from memory). Charging
-voltages and ventilation: IEC 62485-2 (seen). Ampere-hour efficiency:
-common practice (see the chemistry table).
+Two-rate charging of vented lead-acid banks (common practice; DIN 41773 /
+DIN 41774 charger characteristics, from memory); the cell model of
+:mod:`supplycfg.jobs.battery`; ventilation IEC 62485-2 (seen).
 """
 
 from dataclasses import dataclass, field
 
 import numpy as np
-from scipy.integrate import solve_ivp
 
 from . import STANDING_NOTICE
 from .jobs import battery
 from .jobs import option_cautions, profile_cautions
 from .profile import load_profile
-from .circuit import _params, build_circuit, check_setting, machine_state, normal_points
+from .circuit import Setting, build_circuit, check_setting, machine_state
 from .errors import InputError
 from .text import visible
 
 #: Time cap when none is given [h]: a charge not finished in two days points to
 #: a fault of the set or the battery (model choice).
 DEFAULT_MAX_HOURS = 48.0
-#: Stop when the charging current falls below this share of capacity [1/h]:
-#: C/100 is the usual floor of a finishing current (common practice; the
-#: search's end-of-charge floor is the same).
-CURRENT_FLOOR_PER_H = 0.01
-#: States of charge in the operating-point table the integrator reads (the
-#: current varies smoothly; 257 points put the interpolation error far below
-#: the integrator's tolerance).
-SOC_TABLE_POINTS = 257
-#: Points of the reported time grid (dense output of the integrator).
-OUTPUT_POINTS = 241
 #: Rows of the time table in the text summary.
 TEXT_ROWS = 12
-#: Integrator tolerances: relative, and absolute in state of charge, Ah and kWh.
-RTOL = 1e-6
-ATOL = (1e-9, 1e-6, 1e-6)
-#: Load-line grid and bisection steps of the operating points (as the search's
-#: reported figures).
-SOLVE = {"grid": 401, "steps": 60}
 
 STOP_CODES = ("end-soc", "voltage-limit", "current-floor", "time-cap", "no-operating-point")
 
 
 @dataclass
 class ChargeRun:
-    """A battery charge through time.
+    """A battery charge through time, following its plan.
 
     Arrays follow the time grid ``time_h`` [h]: ``current_a`` (into the
-    bank), ``terminal_voltage_v`` (at the machine), ``bank_voltage_v`` (at
-    the battery, after the cable), ``volts_per_cell`` (bank voltage over the
+    bank), ``stored_current_a`` and ``gas_current_a`` (its split),
+    ``terminal_voltage_v`` (at the machine), ``bank_voltage_v`` (at the
+    battery, after the cable), ``volts_per_cell`` (bank voltage over the
     cells), ``state_of_charge`` (0..1), ``ah`` and ``kwh`` delivered by the
-    machine (``kwh`` at its terminals), ``armature_current_a``.
+    machine (``kwh`` at its terminals), ``armature_current_a`` and ``stage``
+    (1 main charge, 2 finish). At the hand-over the time repeats: the current
+    steps down there.
     """
 
     setting: object
     time_h: np.ndarray
     current_a: np.ndarray
+    stored_current_a: np.ndarray
+    gas_current_a: np.ndarray
     terminal_voltage_v: np.ndarray
     bank_voltage_v: np.ndarray
     volts_per_cell: np.ndarray
@@ -87,10 +68,12 @@ class ChargeRun:
     ah: np.ndarray
     kwh: np.ndarray
     armature_current_a: np.ndarray
+    stage: np.ndarray
     duration_h: float
     stop: str
     stop_reason: str
     limit_volts_per_cell: float
+    handover_volts_per_cell: float
     gassing_volts_per_cell: float
     gassing_from_h: float | None
     floor_current_a: float
@@ -99,7 +82,18 @@ class ChargeRun:
     end_state_of_charge: float
     capacity_ah: float
     cells: int
-    charge_efficiency: float
+    charge_efficiency: float | None
+    finish_setting: object = None
+    stages: list = field(default_factory=list)
+    hours_to_full: float | None = None
+    target_hours: float = 16.0
+    ah_charge_factor: float | None = None
+    gassing_state_of_charge: float | None = None
+    ventilation: dict = field(default_factory=dict)
+    cut_in_speed_rpm: dict = field(default_factory=dict)
+    standstill_backfeed_current_a: float | None = None
+    conditions: dict = field(default_factory=dict)
+    figures: dict = field(default_factory=dict)
     converged: bool = True
     cautions: list = field(default_factory=list)
     notes: list = field(default_factory=list)
@@ -118,71 +112,42 @@ class ChargeRun:
         return {
             "machine": self.machine_label, "profile": self.profile_label,
             "setting": self.setting.as_dict(), "setting_source": self.setting_source,
+            "finish_setting": None if self.finish_setting is None else self.finish_setting.as_dict(),
+            "conditions": self.conditions,
+            "stages": self.stages, "hours_to_full": num(self.hours_to_full), "target_hours": num(self.target_hours),
+            "ah_charge_factor": num(self.ah_charge_factor),
+            "gassing_state_of_charge": num(self.gassing_state_of_charge),
+            "ventilation": self.ventilation, "cut_in_speed_rpm": self.cut_in_speed_rpm,
+            "standstill_backfeed_current_a": num(self.standstill_backfeed_current_a),
             "time_h": arr(self.time_h), "current_a": arr(self.current_a),
+            "stored_current_a": arr(self.stored_current_a), "gas_current_a": arr(self.gas_current_a),
             "terminal_voltage_v": arr(self.terminal_voltage_v), "bank_voltage_v": arr(self.bank_voltage_v),
             "volts_per_cell": arr(self.volts_per_cell), "state_of_charge": arr(self.state_of_charge),
             "ah": arr(self.ah), "kwh": arr(self.kwh), "armature_current_a": arr(self.armature_current_a),
+            "stage": [int(s) for s in self.stage],
             "duration_h": num(self.duration_h), "stop": self.stop, "stop_reason": self.stop_reason,
             "limit_volts_per_cell": num(self.limit_volts_per_cell),
+            "handover_volts_per_cell": num(self.handover_volts_per_cell),
             "gassing_volts_per_cell": num(self.gassing_volts_per_cell),
             "gassing_from_h": num(self.gassing_from_h), "floor_current_a": num(self.floor_current_a),
             "max_hours": num(self.max_hours), "start_state_of_charge": num(self.start_state_of_charge),
             "end_state_of_charge": num(self.end_state_of_charge), "capacity_ah": num(self.capacity_ah),
             "cells": int(self.cells), "charge_efficiency": num(self.charge_efficiency),
+            "figures": {k: num(v) for k, v in self.figures.items()},
             "converged": bool(self.converged), "cautions": [c.as_dict() for c in self.cautions],
             "notes": list(self.notes), "notice": STANDING_NOTICE,
         }
 
 
-# ---------------------------------------------------------------------------
-# the bank on charge
-# ---------------------------------------------------------------------------
-
-def charging_line_voltage_v(job, soc, current_a):
-    """Voltage at the machine's terminals [V] that drives ``current_a`` into the bank.
-
-    Parameters
-    ----------
-    job : BatteryJob
-        The profile's ``[battery]`` table.
-    soc : array_like
-        State of charge 0..1.
-    current_a : array_like
-        Charging current [A]; a negative (discharge) current meets the
-        open-circuit voltage and the resistances only.
-
-    Returns
-    -------
-    ndarray
-        ``n [Vc(s, I/C) - I Rc/C] + I (Rb + Rcable)`` [V], the search's
-        end-of-charge curve at any state of charge.
-
-    References
-    ----------
-    Charging-voltage model :func:`supplycfg.jobs.battery.charging_voltage_per_cell`
-    (Shepherd-type polarisation, from memory).
-    """
-    chem = battery.chemistry(job.chemistry)
-    i = np.asarray(current_a, float)
-    ic = np.maximum(i, 0.0)
-    cap = job.capacity_ah
-    cell = battery.charging_voltage_per_cell(chem, soc, ic / cap, job.temperature_c,
-                                           job.open_circuit_voltage_per_cell_v) - ic * chem.resistance_ohm_ah / cap
-    return job.cells * cell + i * (job.internal_resistance_ohm + job.cable_resistance_ohm)
-
-
-def _points_at(circ, job, soc):
-    """Normal operating point of the one-candidate ``circ`` at each state of charge."""
-    soc = np.asarray(soc, float)
-    sub = circ.subset(np.zeros(soc.size, int))
-    s2 = soc[:, None]
-    r = normal_points(sub, np.full(soc.size, -sub.imax), np.full(soc.size, sub.imax),
-                      v_of=lambda t: charging_line_voltage_v(job, s2, t), **SOLVE)
-    return r
+def _battery_job(profile):
+    if profile.kind != "battery":
+        raise InputError(profile.source, "load.kind",
+                         f"is {profile.kind!r}; allowed: 'battery' (a charge run needs a battery profile)")
+    return profile.battery
 
 
 def charging_current_a(machine, profile, setting, soc):
-    """Charging current [A] at each state of charge: the machine's normal operating point.
+    """Charging current [A] at each state of charge with one constant setting: the machine's normal point.
 
     Parameters
     ----------
@@ -199,29 +164,19 @@ def charging_current_a(machine, profile, setting, soc):
         [A]; negative when the bank drives current back into the machine,
         NaN where no stable operating point exists.
     """
-    _battery_job(profile)
+    job = _battery_job(profile)
+    soc = np.atleast_1d(np.asarray(soc, float))
     circ = build_circuit(machine, [setting])
-    return _points_at(circ, profile.battery, np.atleast_1d(soc))["load_current_a"]
+    sub = circ.subset(np.zeros(soc.size, int))
+    return battery.bank_points(sub, job, soc)["load_current_a"]
 
 
-def _battery_job(profile):
-    if profile.kind != "battery":
-        raise InputError(profile.source, "load.kind",
-                         f"is {profile.kind!r}; allowed: 'battery' (a charge run needs a battery profile)")
-    return profile.battery
+def _interp_at(t, x, t_new):
+    return float(np.interp(t_new, t, x)) if np.all(np.isfinite(x)) else float("nan")
 
 
-def _first_crossing(s, g):
-    """First ``s`` where ``g`` (sampled on ``s``) rises through zero, or None."""
-    up = np.flatnonzero((g[:-1] < 0) & (g[1:] >= 0))
-    if not up.size:
-        return None
-    k = up[0]
-    return float(s[k] + (s[k + 1] - s[k]) * (-g[k]) / (g[k + 1] - g[k]))
-
-
-def charge_run(machine, profile, setting, max_hours=None):
-    """Integrate a battery charge from the start to the end state of charge.
+def charge_run(machine, profile, setting, max_hours=None, finish_setting=None):
+    """Charge the bank through the setting's plan, from the start to the end state of charge.
 
     Parameters
     ----------
@@ -229,183 +184,227 @@ def charge_run(machine, profile, setting, max_hours=None):
     profile : LoadProfile
         A battery profile (``load.kind = "battery"``).
     setting : Setting
-        How the machine runs (connection, field, speed, winding temperature).
+        The main charge's setting (connection, field, speed, winding temperature).
     max_hours : float, optional
         Time cap [h]; :data:`DEFAULT_MAX_HOURS` when omitted.
+    finish_setting : Setting, optional
+        The finish's setting (same connection, taps and diverter); default the
+        plan's rule (:func:`supplycfg.jobs.battery.finish_controls`).
 
     Returns
     -------
     ChargeRun
-        Stops at the first of: the end state of charge; the volts per cell
-        reaching the temperature-corrected charge limit; the current falling
-        below the floor (C/100); the time cap.
+        Stops at the first of: the end state of charge; the cells at the
+        chemistry's highest voltage; the current below the floor (or flowing
+        back); no operating point; the time cap.
 
     Raises
     ------
     InputError
-        The profile is not a battery profile, or ``max_hours`` is not a
-        positive number.
-
-    References
-    ----------
-    ``scipy.integrate.solve_ivp`` (RK45 with event location); charge limit
-    :func:`supplycfg.jobs.battery.charge_voltage_limit_per_cell` (IEC 62485-2 boost
-    voltages, seen).
+        The profile is not a battery profile, ``max_hours`` is not a positive
+        number, or the finish setting changes the connection.
     """
     job = _battery_job(profile)
     cap_h = DEFAULT_MAX_HOURS if max_hours is None else max_hours
     if isinstance(cap_h, bool) or not np.isfinite(float(cap_h)) or float(cap_h) <= 0:
         raise InputError("charge run", "max_hours", f"is {max_hours!r}; allowed: a number of hours > 0")
     cap_h = float(cap_h)
-    circ = build_circuit(machine, [setting])
-    st = circ.settings[0]
+    st = check_setting(machine, setting)
+    if finish_setting is not None:
+        fs = check_setting(machine, finish_setting)
+        if (fs.connection, fs.series_turns, fs.diverter_ohm) != (st.connection, st.series_turns, st.diverter_ohm):
+            raise InputError("charge run", "finish_setting", "changes the connection, taps or diverter; allowed: "
+                             "only the field control changes between stages")
+    plan = battery.setting_plan(machine, profile, st, finish_setting)
+    space = plan.space
+    lim, figs, extras = battery.plan_figures(plan)
+    f = {k: float(np.asarray(v)[0]) for k, v in figs.items()}
+    f["top_speed_rpm"] = max(c[0] for c in space.corners)
+    ex = extras[0]
+    nom = battery.corner_roles(space)[0]
     chem = battery.chemistry(job.chemistry)
-    cap, cells, eff = job.capacity_ah, job.cells, chem.charge_efficiency
+    cap, cells = job.capacity_ah, job.cells
     soc0, soc1 = (float(v) for v in job.state_of_charge)
-    limit = float(battery.charge_voltage_limit_per_cell(chem, job.temperature_c, job.charge_voltage_per_cell_v))
-    floor = CURRENT_FLOOR_PER_H * cap
-    rcab = job.cable_resistance_ohm
+    floor = battery.CURRENT_FLOOR_PER_H * cap
+    vmax = float(battery.highest_volts_per_cell(chem, job.temperature_c))
+    vho = battery.handover_volts_per_cell(job)
+    gas_v = float(battery.gassing_volts_per_cell(chem, job.temperature_c))
     notes = []
 
-    # operating points on the state-of-charge table
-    s_tab = np.linspace(soc0, soc1, SOC_TABLE_POINTS)
-    tab = _points_at(circ, job, s_tab)
-    found = tab["found"]
-    i_tab = np.where(found, tab["load_current_a"], 0.0)
-    v_tab = np.where(found, tab["terminal_voltage_v"], 0.0)
-    vpc_tab = (v_tab - i_tab * rcab) / cells
-    lost_at = float(s_tab[np.argmin(found)]) if not found.all() else None
-    converged = bool(np.all(tab["converged"]))
+    # the run's arrays: the main charge, then the finish where the plan hands over
+    r = nom
+    m, fi = plan.main, plan.finish
+    # a one-stage plan runs on past the hand-over voltage with the same field: still its stage 1
+    parts = [(m, 1)] + ([(fi, 2 if plan.two_stage[0] else 1)] if plan.handed_over[r] else [])
+    cols = {k: [] for k in ("time_h", "current_a", "stored_current_a", "gas_current_a", "terminal_voltage_v",
+                            "volts_per_cell", "soc", "ah", "kwh", "armature_current_a", "found", "stage")}
+    t_off = ah_off = kwh_off = 0.0
+    for stg, no in parts:
+        cols["time_h"].append(stg.time_h[r] + t_off)
+        cols["ah"].append(stg.ah[r] + ah_off)
+        cols["kwh"].append(stg.kwh[r] + kwh_off)
+        for k, src in (("current_a", "current_a"), ("stored_current_a", "stored_current_a"),
+                       ("gas_current_a", "gas_current_a"), ("terminal_voltage_v", "terminal_voltage_v"),
+                       ("volts_per_cell", "volts_per_cell"), ("soc", "soc"),
+                       ("armature_current_a", "armature_current_a"), ("found", "found")):
+            cols[k].append(getattr(stg, src)[r])
+        cols["stage"].append(np.full(stg.soc.shape[1], no))
+        t_off, ah_off, kwh_off = t_off + stg.time_h[r, -1], ah_off + stg.ah[r, -1], kwh_off + stg.kwh[r, -1]
+    a = {k: np.concatenate(v) for k, v in cols.items()}
+    t = a["time_h"]
+    converged = bool(f["converged"] >= 1)
     if not converged:
         notes.append("an operating point did not converge: the figures of this run are not trustworthy")
 
-    def rhs(t, y):
-        i = np.interp(y[0], s_tab, i_tab)
-        v = np.interp(y[0], s_tab, v_tab)
-        return [i * eff / cap, i, v * i * 1e-3]
-
-    def ev_end(t, y):
-        return y[0] - soc1
-    ev_end.terminal, ev_end.direction = True, 1
-
-    def ev_volts(t, y):
-        return np.interp(y[0], s_tab, vpc_tab) - limit
-    ev_volts.terminal, ev_volts.direction = True, 1
-
-    def ev_floor(t, y):
-        return np.interp(y[0], s_tab, i_tab) - floor
-    ev_floor.terminal, ev_floor.direction = True, -1
-
-    y0 = np.array([soc0, 0.0, 0.0])
-    start_stop = None
-    if not found[0]:
-        start_stop = "no-operating-point"
-    elif i_tab[0] < floor:
-        start_stop = "current-floor"
-    elif vpc_tab[0] >= limit:
-        start_stop = "voltage-limit"
-
-    if start_stop is None:
-        sol = solve_ivp(rhs, (0.0, cap_h), y0, method="RK45", rtol=RTOL, atol=ATOL, dense_output=True,
-                        events=(ev_end, ev_volts, ev_floor))
-        if sol.status < 0:
-            notes.append(f"the integration failed: {sol.message}")
-            converged = False
-        t_end = float(sol.t[-1])
-        times = np.linspace(0.0, t_end, OUTPUT_POINTS)
-        y = sol.sol(times)
-        y[:, -1] = sol.y[:, -1]
-        hit = [k for k, te in enumerate(sol.t_events) if te.size]
-        stop = ("end-soc", "voltage-limit", "current-floor")[hit[0]] if hit else "time-cap"
-    else:
-        t_end, times, y = 0.0, np.zeros(1), y0[:, None]
-        stop = start_stop
-    soc = np.minimum(y[0], soc1) if stop == "end-soc" else y[0]
-    soc = np.maximum(soc, soc0)
-    if stop == "end-soc":
-        soc[-1] = soc1
-
-    # exact operating points on the output grid
-    pts = _points_at(circ, job, soc)
-    cur = pts["load_current_a"]
-    vt = pts["terminal_voltage_v"]
-    vbank = vt - cur * rcab
-    vpc = vbank / cells
-    converged &= bool(np.all(pts["converged"]))
-    if stop == "current-floor" and lost_at is not None and soc[-1] >= lost_at - 2 * (s_tab[1] - s_tab[0]):
-        stop = "no-operating-point"
-
-    soc_end = float(soc[-1])
-    pct = f"{100 * soc_end:.1f} %"
+    # where the run ends: the first of a stall, the voltage ceiling and the time cap
+    reach = np.isfinite(t)
+    last = int(np.flatnonzero(reach)[-1]) if reach.any() else 0
+    stop = "end-soc" if last == t.size - 1 and reach.all() else None
+    if stop is None:
+        nxt = min(last + 1, t.size - 1)
+        if not a["found"][nxt]:
+            stop = "no-operating-point"
+        else:
+            stop = "current-floor"
+    # the voltage ceiling and the time cap cut the run between two points, by interpolation
+    cut = None
+    vpc_all = np.nan_to_num(a["volts_per_cell"], nan=-np.inf)
+    over = np.flatnonzero(vpc_all > vmax * (1 + 1e-9))
+    if over.size and over[0] <= last:
+        j = int(over[0])
+        w = 1.0 if j == 0 else float((vmax - vpc_all[j - 1]) / (vpc_all[j] - vpc_all[j - 1]))
+        cut = ("voltage-limit", j, w)
+    t_end = float(t[last]) if cut is None else float(t[max(cut[1] - 1, 0)] + cut[2] * (t[cut[1]] - t[max(cut[1] - 1, 0)]))
+    if t_end > cap_h:
+        j = int(np.searchsorted(t[: last + 1], cap_h, side="left"))
+        w = 1.0 if j == 0 or t[j] == t[j - 1] else float((cap_h - t[j - 1]) / (t[j] - t[j - 1]))
+        cut = ("time-cap", j, w)
+    end_idx = last if cut is None else cut[1]
+    out = {k: v[: end_idx + 1].astype(float) for k, v in a.items() if k != "found"}
+    if cut is not None:
+        # inside the step the currents vary linearly in time (the step's own rule), so the state of
+        # charge, the Ah and the kWh at the cut follow from their trapezoid integrals
+        stop, j, w = cut
+        lo = max(j - 1, 0)
+        dt = float(t[j] - t[lo])
+        tau = w * dt
+        for k in out:
+            if k != "stage":
+                out[k][-1] = a[k][lo] + w * (a[k][j] - a[k][lo])
+        if dt > 0:
+            i_a, i_b = a["stored_current_a"][lo], a["stored_current_a"][j]
+            out["soc"][-1] = a["soc"][lo] + (i_a * tau + (i_b - i_a) * tau ** 2 / (2 * dt)) / cap
+            out["ah"][-1] = a["ah"][lo] + 0.5 * (a["current_a"][lo] + out["current_a"][-1]) * tau
+            p_a = a["terminal_voltage_v"][lo] * a["current_a"][lo]
+            out["kwh"][-1] = a["kwh"][lo] + 0.5e-3 * (p_a + out["terminal_voltage_v"][-1] * out["current_a"][-1]) * tau
+        out["time_h"][-1] = t[lo] + tau
+        if stop == "time-cap":
+            out["time_h"][-1] = cap_h
+    duration = float(out["time_h"][-1]) if out["time_h"].size else 0.0
+    soc = out["soc"]
+    pct = f"{100 * soc[-1]:.1f} %" if soc.size else "-"
+    cur = out["current_a"]
     if stop == "end-soc":
         reason = f"the battery reached the end state of charge {100 * soc1:.0f} %"
     elif stop == "voltage-limit":
-        reason = (f"the cells reached the charge limit {limit:.3f} V per cell (temperature-corrected) at {pct} "
-                  "state of charge; finish at constant voltage or lower the field")
+        reason = (f"the cells reached the chemistry's highest voltage {vmax:.3f} V per cell (temperature-corrected) "
+                  f"at {pct} state of charge; weaken the field before that")
     elif stop == "current-floor":
-        if np.isfinite(cur[-1]) and cur[-1] < 0:
+        nxt = min(end_idx + 1, a["current_a"].size - 1)
+        if np.isfinite(a["current_a"][nxt]) and a["current_a"][nxt] < 0:
             reason = (f"the bank's voltage is above what the machine holds at {pct}: current would flow back into "
                       "the machine (a reverse-current cut-out must open)")
         else:
-            reason = (f"the charging current fell to the floor {floor:.3g} A (C/100) at {pct} state of charge: the "
-                      "machine's voltage no longer drives a useful current")
+            reason = (f"the charging current fell to the floor {floor:.3g} A at {pct} state of charge: the machine's "
+                      "voltage no longer drives a useful current")
     elif stop == "no-operating-point":
         reason = (f"the machine has no stable operating point against the bank at {pct} state of charge "
                   "(its characteristic does not meet the charging curve)")
-        if _below_bank(circ, job, soc_end):
+        if _below_bank(machine, st, job, soc[-1] if soc.size else soc0):
             reason += ": the bank's voltage is above the machine's and current would flow back into it " \
                       "(a reverse-current cut-out must open)"
     else:
         reason = f"the time cap of {cap_h:g} h was reached at {pct} state of charge"
 
-    gas = chem.gassing_voltage_v
-    gas_s = _first_crossing(soc, vpc - gas) if np.all(np.isfinite(vpc)) else None
+    stages = _stages_as_run(ex["plan"], out, stop, reason, duration)
+    full_h = duration if stop == "end-soc" else None
+    hours_to_full = full_h if full_h is not None and full_h <= job.target_hours * (1 + 1e-12) else None
+    gained = (soc[-1] - soc0) * cap if soc.size else 0.0
+    ah_end = float(out["ah"][-1]) if out["ah"].size else 0.0
+    factor = ah_end / gained if gained > 0 else None
+    gas_s = f["gassing_state_of_charge"] if np.isfinite(f["gassing_state_of_charge"]) else None
     gas_h = None
-    if np.isfinite(vpc[0]) and vpc[0] >= gas:
-        gas_h = 0.0
-    elif gas_s is not None:
-        gas_h = float(np.interp(gas_s, soc, times))
-
-    # cautions of this setting on this run
-    fig = {"end_volts_per_cell": _nanmax(vpc), "gassing_volts_per_cell": gas,
-           "ventilation_m3_per_h": float(battery.ventilation_airflow_m3_per_h(cells, cap, chem.gas_current_boost_ma_per_ah)),
-           "max_armature_current_a": _nanmax(np.abs(pts["armature_current_a"])),
-           "min_net_mmf_a": _nanmin(pts["x"]), "min_generated_emf_v": _nanmin(pts["generated_emf_v"]),
-           "top_speed_rpm": st.speed_rpm}
-    if circ.kind[0] == 1:
-        fig["critical_resistance_ratio"] = float(circ.s[0] * circ.occ.air_gap_slope() / circ.rf[0])
-    cautions = option_cautions(machine, profile, st, fig) + profile_cautions(machine, profile)
-
+    if gas_s is not None and soc.size and gas_s <= soc[-1] + 1e-12:
+        gas_h = float(np.interp(gas_s, soc, out["time_h"]))
+    cautions = option_cautions(machine, profile, st, f) + profile_cautions(machine, profile)
+    fin = None if ex["finish_setting"] is None else Setting(**ex["finish_setting"])
     return ChargeRun(
-        setting=st, time_h=times, current_a=cur, terminal_voltage_v=vt, bank_voltage_v=vbank,
-        volts_per_cell=vpc, state_of_charge=soc, ah=y[1], kwh=y[2], armature_current_a=pts["armature_current_a"],
-        duration_h=t_end, stop=stop, stop_reason=reason, limit_volts_per_cell=limit,
-        gassing_volts_per_cell=gas, gassing_from_h=gas_h, floor_current_a=floor, max_hours=cap_h,
+        setting=st, time_h=out["time_h"], current_a=cur, stored_current_a=out["stored_current_a"],
+        gas_current_a=out["gas_current_a"], terminal_voltage_v=out["terminal_voltage_v"],
+        bank_voltage_v=out["terminal_voltage_v"] - cur * job.cable_resistance_ohm,
+        volts_per_cell=out["volts_per_cell"], state_of_charge=soc, ah=out["ah"], kwh=out["kwh"],
+        armature_current_a=out["armature_current_a"], stage=out["stage"].astype(int), duration_h=duration,
+        stop=stop, stop_reason=reason, limit_volts_per_cell=vmax, handover_volts_per_cell=vho,
+        gassing_volts_per_cell=gas_v, gassing_from_h=gas_h, floor_current_a=floor, max_hours=cap_h,
         start_state_of_charge=soc0, end_state_of_charge=soc1, capacity_ah=cap, cells=cells,
-        charge_efficiency=eff, converged=converged, cautions=cautions, notes=notes,
+        charge_efficiency=None if not factor else 1.0 / factor, finish_setting=fin, stages=stages,
+        hours_to_full=hours_to_full, target_hours=job.target_hours, ah_charge_factor=factor,
+        gassing_state_of_charge=gas_s, ventilation=ex["ventilation"], cut_in_speed_rpm=ex["cut_in_speed_rpm"],
+        standstill_backfeed_current_a=ex["standstill_backfeed_current_a"], conditions=ex["conditions"],
+        figures=f, converged=converged, cautions=cautions, notes=notes,
         machine_label=machine.label, profile_label=profile.label)
 
 
-def _below_bank(circ, job, soc):
+def _stages_as_run(planned, out, stop, reason, duration):
+    """The plan's stages as the run went: a stage the run went past stands as planned; the stage
+    holding the run's last point ends there, for the run's reason (unless that is the plan's end)."""
+    if stop == "end-soc":
+        return [dict(s) for s in planned]
+    stages = []
+    t, stage_no = out["time_h"], out["stage"]
+    for s in planned:
+        sel = np.flatnonzero(stage_no == s["stage"])
+        if not sel.size:
+            break
+        s = dict(s)
+        k = int(sel[-1])
+        if k == t.size - 1:
+            s.update(to_h=float(t[k]), to_state_of_charge=float(out["soc"][k]),
+                     end_current_a=_finite(out["current_a"][k]), end_volts_per_cell=_finite(out["volts_per_cell"][k]),
+                     ends_because=stop, ends_reason=reason)
+            stages.append(s)
+            break
+        stages.append(s)
+    return stages
+
+
+def _finite(v):
+    return float(v) if np.isfinite(v) else None
+
+
+def _below_bank(machine, setting, job, soc):
     """Whether the machine's available voltage at no load is below the bank's open-circuit voltage."""
-    e = charging_line_voltage_v(job, soc, 0.0)
-    h = machine_state(circ, _params(circ, np.zeros(1, int)), np.full(1, float(e)), np.zeros(1))["h"]
+    chem = battery.chemistry(job.chemistry)
+    e = job.cells * float(battery.open_circuit_voltage_per_cell(chem, soc, job.open_circuit_voltage_per_cell_v))
+    circ = build_circuit(machine, [setting])
+    h = machine_state(circ, circ.take(np.zeros(1, int)), np.full(1, e), np.zeros(1))["h"]
     return bool(h[0] < 0)
-
-
-def _nanmax(a):
-    a = np.asarray(a, float)
-    return float(np.nanmax(a)) if np.any(np.isfinite(a)) else None
-
-
-def _nanmin(a):
-    a = np.asarray(a, float)
-    return float(np.nanmin(a)) if np.any(np.isfinite(a)) else None
 
 
 # ---------------------------------------------------------------------------
 # from files, and the text the command prints
 # ---------------------------------------------------------------------------
+
+def finish_setting_of(option):
+    """The finish's :class:`~supplycfg.circuit.Setting` of a search option's plan, or None (one stage)."""
+    d = (getattr(option, "extras", None) or {}).get("finish_setting")
+    return None if d is None else Setting(**d)
+
+
+def charge_run_for_option(machine, profile, option, max_hours=None):
+    """The charge run of a search option: its setting and its plan's finish."""
+    return charge_run(machine, profile, option.setting, max_hours, finish_setting_of(option))
+
 
 def charge_from_files(machine_path, profile_path, setting=None, names=None, max_hours=None):
     """Read both files and run the charge (the ``supplycfg charge`` command).
@@ -414,8 +413,8 @@ def charge_from_files(machine_path, profile_path, setting=None, names=None, max_
     ----------
     machine_path, profile_path : str or Path
     setting : Setting, optional
-        Checked as command-line input; default the best option of the search
-        (the best feasible one, else the best without a ``stop`` caution).
+        Checked as command-line input; default the best plan of the search
+        (the best feasible option, else the best without a ``stop`` caution).
     names : dict, optional
         Setting field -> option name, for messages.
     max_hours : float, optional
@@ -440,17 +439,15 @@ def charge_from_files(machine_path, profile_path, setting=None, names=None, max_
                 raise InputError(p.source, "battery", "no setting of this machine can charge this bank; "
                                  "see `supplycfg search` for the limits each setting breaks")
             source = f"option {pick.rank} of the search, the nearest miss (no setting meets every limit)"
-        st = pick.setting
+        run = charge_run_for_option(m, p, pick, max_hours)
     else:
         st = check_setting(m, setting, "command line", names)
         source = "command line"
-    run = charge_run(m, p, st, max_hours)
+        run = charge_run(m, p, st, max_hours)
     run.setting_source = source
     if "nearest miss" in source:
         run.notes.append("no setting meets every limit of the job; this run uses the nearest miss")
     return run
-
-
 
 
 def _g(v, f=".4g"):
@@ -458,27 +455,43 @@ def _g(v, f=".4g"):
 
 
 def charge_text(run):
-    """A readable summary of a charge run with a table over time."""
+    """A readable summary of a charge run: its plan, its figures and a table over time."""
+    c = run.conditions.get("setting", {})
+    at = (f" at {c.get('speed_rpm', run.setting.speed_rpm):g} rpm, windings {c.get('winding_temperature_c', run.setting.winding_temperature_c):g} degC"
+          if c or run.setting.speed_rpm else "")
     lines = [f"Charge run: {visible(run.machine_label)} on {visible(run.profile_label)}",
              f"setting: {run.setting.describe(with_connection=True)}" + (f" ({run.setting_source})" if run.setting_source else ""),
              f"battery: {run.cells} cells, {run.capacity_ah:g} Ah, from {100 * run.start_state_of_charge:.0f} % "
-             f"to {100 * run.end_state_of_charge:.0f} % state of charge; charge efficiency {100 * run.charge_efficiency:.0f} %",
-             f"stopped after {run.duration_h:.2f} h because {run.stop_reason}"]
+             f"to {100 * run.end_state_of_charge:.0f} % state of charge",
+             f"stopped after {run.duration_h:.2f} h because {run.stop_reason}", "", f"Plan{at}:"]
+    for row in battery.plan_rows(run.stages):
+        lines.append("  " + "; ".join(row))
+    full = "not within the target" if run.hours_to_full is None else f"{run.hours_to_full:.2f} h"
+    lines.append(f"hours to full: {full} (target {run.target_hours:g} h); Ah returned / Ah stored "
+                 f"{_g(run.ah_charge_factor, '.3f')}; gassing from {_g(None if run.gassing_state_of_charge is None else 100 * run.gassing_state_of_charge, '.0f')} % charge")
     t = np.asarray(run.time_h, float)
     if t.size:
         lines.append(f"delivered {_g(run.ah[-1], '.1f')} Ah and {_g(run.kwh[-1], '.2f')} kWh; current "
                      f"{_g(run.current_a[0], '.3g')} A at the start, {_g(run.current_a[-1], '.3g')} A at the end")
-    gas = (f"reached after {run.gassing_from_h:.2f} h" if run.gassing_from_h is not None else "not reached")
-    lines.append(f"volts per cell: limit {run.limit_volts_per_cell:.3f} V (temperature-corrected), gassing from "
-                 f"{run.gassing_volts_per_cell:.2f} V ({gas}); current floor {run.floor_current_a:.3g} A")
+    v = run.ventilation or {}
+    lines.append(f"ventilation: {_g(v.get('airflow_m3_per_h'), '.3g')} m3/h, natural-ventilation opening "
+                 f"{_g(v.get('opening_cm2'), '.0f')} cm2 ({battery.VENTILATION_GOVERNORS.get(v.get('governed_by'), '-')})")
+    ci = run.cut_in_speed_rpm or {}
+    lines.append(f"cut-out: closes at {_g(run.figures.get('cutout_closing_voltage_v'), '.1f')} V, reached at "
+                 f"{_g(ci.get('cold'), '.0f')} rpm cold and {_g(ci.get('hot'), '.0f')} rpm hot; standstill back-feed "
+                 f"without it {_g(run.standstill_backfeed_current_a, '.0f')} A")
+    lines.append(f"volts per cell: hand-over {run.handover_volts_per_cell:.3f} V, gassing {run.gassing_volts_per_cell:.3f} V, "
+                 f"highest allowed {run.limit_volts_per_cell:.3f} V (temperature-corrected); current floor "
+                 f"{run.floor_current_a:.3g} A")
     lines.append("")
-    head = ["time [h]", "charge [%]", "current [A]", "machine [V]", "bank [V]", "per cell [V]", "charged [Ah]",
-            "energy [kWh]"]
+    head = ["time [h]", "stage", "charge [%]", "current [A]", "stored [A]", "machine [V]", "bank [V]", "per cell [V]",
+            "charged [Ah]", "energy [kWh]"]
     rows = []
     if t.size:
         sel = np.unique(np.round(np.linspace(0, t.size - 1, min(TEXT_ROWS, t.size))).astype(int))
         for k in sel:
-            rows.append([_g(t[k], ".2f"), _g(100 * run.state_of_charge[k], ".1f"), _g(run.current_a[k], ".3g"),
+            rows.append([_g(t[k], ".2f"), str(int(run.stage[k])), _g(100 * run.state_of_charge[k], ".1f"),
+                         _g(run.current_a[k], ".3g"), _g(run.stored_current_a[k], ".3g"),
                          _g(run.terminal_voltage_v[k], ".1f"), _g(run.bank_voltage_v[k], ".1f"),
                          _g(run.volts_per_cell[k], ".3f"), _g(run.ah[k], ".1f"), _g(run.kwh[k], ".2f")])
     widths = [max(len(h), *(len(r[i]) for r in rows)) if rows else len(h) for i, h in enumerate(head)]

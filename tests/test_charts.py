@@ -11,6 +11,7 @@ from supplycfg import charts
 from supplycfg.circuit import Setting, check_setting, external_characteristic
 from supplycfg.jobs.welding import conventional_load_voltage
 from supplycfg.profile import load_profile
+from supplycfg.jobs import battery
 from supplycfg.jobs.battery import open_circuit_voltage_per_cell
 from supplycfg.machine import load_machine
 from supplycfg.magnetisation import OpenCircuitCurve, copper_resistance_factor
@@ -55,8 +56,8 @@ def test_occ_chart_layers_and_zoom(charging):
     measured = rows(spec, "measured")
     assert_allclose([r["emf_v"] for r in measured], m.occ_emf_v, rtol=1e-4)
     labels = {r["series"] for r in rows(spec, "field_lines")}
-    assert any(lab.startswith("this setting") and "40 °C" in lab for lab in labels)
-    assert any(lab.startswith("this setting") and "75 °C" in lab for lab in labels)
+    for t in p.temperatures_c:
+        assert any(lab.startswith("this setting") and f"{t:g} °C" in lab for lab in labels)
     assert any(lab.startswith("rheostat cut out") for lab in labels)
     assert any(lab.startswith("rheostat all in") for lab in labels)
     assert any(lab.startswith("critical field resistance") for lab in labels)
@@ -93,7 +94,7 @@ def test_occ_chart_no_load_point_is_the_intersection(charging):
     for pt in pts:
         # V = E(I_f) - I_f R_a - brush drop, nearly E at no load: within 1.5 %
         assert_allclose(pt["emf_v"], float(occ.emf(pt["field_current_a"])), rtol=1.5e-2)
-        t = 40.0 if "40 °C" in pt["series"] else 75.0
+        t = next(t for t in p.temperatures_c if f"{t:g} °C" in pt["series"])
         r = m.shunt_field_resistance_ohm * float(copper_resistance_factor(t, m.reference_temperature_c)) + rh
         assert_allclose(pt["emf_v"] / pt["field_current_a"], r, rtol=1e-3)
 
@@ -141,7 +142,9 @@ def test_characteristic_chart_generic():
 
 
 def test_battery_chart_start_point_on_the_battery_line(charging):
-    """The start-of-charge point satisfies V = n E_cell(SOC) + I (R_bank + R_cable) (the battery load line)."""
+    """The start-of-charge point satisfies V = n E_cell(SOC) + I (R_bank + R_cable) (the battery load line);
+    on the charging curve (the cell model) the start and end points lie below it; the hand-over line sits
+    at cells x the temperature-corrected hand-over voltage."""
     m, p = charging
     st = check_setting(m, Setting("shunt", rheostat_ohm=70.0))
     spec = charts.battery_chart(m, p, st).to_dict()
@@ -159,25 +162,46 @@ def test_battery_chart_start_point_on_the_battery_line(charging):
     assert len(on_charge) == len(ends) == 2
     assert all(c["load_current_a"] < s["load_current_a"] for c, s in zip(on_charge, starts))
     assert all(e["load_current_a"] < c["load_current_a"] for e, c in zip(ends, on_charge))
-    limit = [r for r in rows(spec, "loads") if r["series"].startswith("charge limit")]
-    assert_allclose(limit[0]["terminal_voltage_v"], b.cells * b.charge_voltage_per_cell_v, rtol=1e-3)
+    for pt in on_charge:
+        want = float(battery.bank_voltage_v(b, b.state_of_charge[0], pt["load_current_a"]))
+        assert_allclose(pt["terminal_voltage_v"], want, rtol=2e-3)
+    handover = [r for r in rows(spec, "loads") if r["series"].startswith("hand-over")]
+    assert_allclose(handover[0]["terminal_voltage_v"], b.cells * battery.handover_volts_per_cell(b), rtol=1e-3)
 
 
 def test_battery_chart_agrees_with_the_search(charging):
-    """The chart's operating points are the search's figures for the same option (worst over the range)."""
+    """The chart's start points on the charging curve are the search's start currents, cold and hot
+    (the same setting, the same cell model; the chart reads them off its traced curve: 2 %)."""
     from supplycfg.search import search
     m, p = charging
     opt = search(m, p).options[0]
     pts = rows(charts.battery_chart(m, p, opt.setting).to_dict(), "points")
     f = opt.figures
+    cur = [pt["load_current_a"] for pt in pts if pt["point"] == "start of charge, battery on charge"]
+    assert_allclose([max(cur), min(cur)], [f["start_charge_current_cold_a"], f["start_charge_current_hot_a"]],
+                    rtol=2e-2)
 
-    def cur(label):
-        return [pt["load_current_a"] for pt in pts if pt["point"] == label]
 
-    assert_allclose(max(cur("start of charge, battery at rest")), f["start_charge_current_a"], rtol=2e-3)
-    assert_allclose(min(cur("start of charge, battery at rest")), f["start_charge_current_min_a"], rtol=2e-3)
-    assert_allclose(max(cur("start of charge, battery on charge")), f["start_charge_current_on_charge_a"], rtol=2e-2)
-    assert_allclose(min(cur("end of charge")), f["end_charge_current_a"], rtol=2e-2)
+def test_battery_chart_draws_the_finish(charging):
+    """With the plan's finish setting the chart draws its characteristic too."""
+    m, p = charging
+    st = check_setting(m, Setting("long-shunt-differential", series_turns=24, rheostat_ohm=21.0))
+    fin = check_setting(m, Setting("long-shunt-differential", series_turns=24, rheostat_ohm=43.0))
+    labels = {r["series"] for r in rows(charts.battery_chart(m, p, st, finish_setting=fin).to_dict(), "curves")}
+    assert any(lab.startswith("machine, finish") for lab in labels)
+
+
+def test_charging_curves_chart_draws_the_cores_points():
+    """The family of charging curves: one line per rate with the points the core computed, and the
+    gassing and highest cell voltages as rules."""
+    fam = battery.charging_curves("lead-acid-vented", 25.0)
+    spec = charts.charging_curves_chart(fam).to_dict()
+    assert marks(spec) == ["line", "rule"]
+    data = rows(spec, "curves")
+    c10 = [r for r in data if r["series"].startswith("C/10")]
+    assert_allclose([r["volts_per_cell"] for r in c10], fam["curves"][1]["volts_per_cell"], rtol=1e-3)
+    levels = rows(spec, "levels")
+    assert_allclose([r["v"] for r in levels], [2.38, 2.7], rtol=1e-4)
 
 
 def test_welding_chart_points_on_the_conventional_load_line():
@@ -233,7 +257,7 @@ def test_load_end_chart_is_terminal_voltage_less_feeder_drop():
 
 
 def test_charge_run_chart_panels():
-    """Three panels against time; the volts-per-cell panel carries the charge limit."""
+    """Three panels against time; the volts-per-cell panel carries the highest cell voltage and the hand-over."""
     class Run:
         time_h = np.linspace(0, 10, 50)
         current_a = np.linspace(30, 5, 50)
@@ -244,14 +268,15 @@ def test_charge_run_chart_panels():
         kwh = ah * 0.13
         stop_reason = "the end state of charge was reached"
         duration_h = 10.0
-        limit_volts_per_cell = 2.4
+        limit_volts_per_cell = 2.7
+        handover_volts_per_cell = 2.38
 
     spec = charts.charge_run_chart(Run()).to_dict()
     assert len(spec["vconcat"]) == 3
     params = spec.get("params") or spec["vconcat"][0]["params"]
     assert params[0]["name"] == "zoom"
     limit = rows(spec, "limit")
-    assert_allclose(limit[0]["limit"], 2.4)
+    assert_allclose([r["limit"] for r in limit], [2.7, 2.38])
     assert len(rows(spec, "run")) == 50
     assert "10 h" in spec["title"]
 
@@ -263,7 +288,7 @@ def test_charts_export_to_svg(charging):
     from supplycfg.search import search
     res = search(m, p)
     out = charts.option_charts(m, p, res.options[0])
-    assert [k for k, _, _ in out][:2] == ["occ", "load"]
+    assert [k for k, _, _ in out] == ["occ", "load", "cells"]
     for _, _, ch in out:
         svg = vlc.vegalite_to_svg(ch.to_dict())
         assert svg.lstrip().startswith("<svg") or "<svg" in svg[:200]
@@ -274,6 +299,8 @@ def test_chart_specs_are_deterministic(charging):
     m, p = charging
     st = Setting("shunt", rheostat_ohm=40.0)
     assert charts.occ_chart(m, st, p.temperatures_c).to_dict() == charts.occ_chart(m, st, p.temperatures_c).to_dict()
+    fam = battery.charging_curves("nickel-cadmium-vented", 30.0)
+    assert charts.charging_curves_chart(fam).to_dict() == charts.charging_curves_chart(fam).to_dict()
     a = charts.battery_chart(m, p, replace(st)).to_dict()
     b = charts.battery_chart(m, p, replace(st)).to_dict()
     assert a == b

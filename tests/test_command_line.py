@@ -129,10 +129,10 @@ def test_series_turns_must_be_a_tap_exactly(capsys):
     assert cli.main(["curve", str(MACHINE), "--connection", "separate-cumulative", "--series-turns", "1e-10",
                      "--rheostat-ohm", "10"]) == 2
     err = capsys.readouterr().err
-    assert "--series-turns: is 1e-10; allowed taps: 0, 3, 6" in err
-    assert cli.main(["curve", str(MACHINE), "--connection", "separate-cumulative", "--series-turns", "3.0",
+    assert "--series-turns: is 1e-10; allowed taps: 0, 8, 16, 24" in err
+    assert cli.main(["curve", str(MACHINE), "--connection", "separate-cumulative", "--series-turns", "8.0",
                      "--rheostat-ohm", "10", "--points", "3", "--json"]) == 0
-    assert json.loads(capsys.readouterr().out)["setting"]["series_turns"] == 3.0
+    assert json.loads(capsys.readouterr().out)["setting"]["series_turns"] == 8.0
 
 
 @pytest.mark.parametrize("argv, emf", [

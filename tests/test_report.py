@@ -136,3 +136,22 @@ def test_battery_sheet_from_files_has_the_charge_run(tmp_path):
     report.sheet_from_files(mp, pp, out)
     text = out.read_text(encoding="utf-8")
     assert "## Charge run" in text and "Stops because" in text
+
+
+def test_battery_sheet_carries_the_plan_and_the_cut_out(results):
+    """The battery sheet shows the plan (both stages, at the speed and winding temperature they hold at)
+    and, beside the cut-out caution, the cut-out's closing voltage, cut-in speeds and standstill back-feed;
+    the figures name their conditions; the run's figures are the search's (one set of figures)."""
+    res = results["battery"]
+    o = res.options[0]
+    md = report.sheet_markdown(res, run=report.charge_run_for(res, o))
+    assert "## Charge plan" in md and "1: main charge" in md and "2: finish" in md
+    cond = o.extras["conditions"]["setting"]
+    assert f"At {cond['speed_rpm']:g} rpm, windings {cond['winding_temperature_c']:g} °C" in md
+    f = o.figures
+    assert f"| Machine reaches it at | {f['cut_in_speed_cold_rpm']:.0f} rpm cold, {f['cut_in_speed_hot_rpm']:.0f} rpm hot |" in md
+    assert f"{f['cutout_closing_voltage_v']:.1f} V" in md
+    assert f"charging current at the start, {cond['speed_rpm']:g} rpm, windings {cond['winding_temperature_c']:g} °C" in md
+    assert f"| Hours to full | {report.fmt(f['hours_to_full'], 'h')} |" in md
+    html = report.sheet_html(res, charts=False)
+    assert "Charge plan" in html and "Reverse-current cut-out" in html

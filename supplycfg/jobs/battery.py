@@ -1,145 +1,225 @@
-"""Battery charging: chemistries, the charging-voltage model, the job's figures, limits and cautions.
+"""Battery charging: chemistries, the charge-acceptance model, the charge plan, its figures, limits and cautions.
 
-The chemistry table keeps every value beside its source. Marks: "seen" =
-read in a public copy of the source; "from memory" = recalled, not checked
-against a copy; "common practice" = a trade rule of thumb; "model choice" =
-a shape parameter of our own model, fitted by eye.
+The cell model
+--------------
+Per cell, with state of charge ``s`` (0..1), internal voltage ``U`` (the
+cell voltage less its resistive drop) and the overpotential ``eta = U - E(s)``
+above the rest voltage ``E(s)``, two reactions share the charging current:
+
+- the charge reaction, which is what raises the state of charge (stored):
+  ``r_s = A(s) [exp(eta / b_c) - 1]`` with the charge acceptance
+  ``A(s) = A_half exp(-kappa (s^m - 0.5^m)) (2 (1 - s))^p``: high on an empty
+  cell, falling steeply as the active material is used up, and as
+  ``(1 - s)^p`` at the very end (``p < 1`` lets a charge finish in finite
+  time);
+- the overcharge (gas) reaction, Tafel-like:
+  ``r_g = g_ref [exp((U - U_ref) / b_g) - exp((E(s) - U_ref) / b_g)]``
+  (its rate at rest, self-discharge, is left out, so no current flows at the
+  rest voltage).
+
+Rates are per ampere-hour of capacity [1/h] (0.1 = C/10). The cell voltage
+is ``V = U + R_c r`` with ``r = r_s + r_g``. Warm cells charge at lower
+voltage: both reactions run faster by ``exp(-alpha dT / b)``, which moves the
+curve by ``alpha`` [V/K] wherever a reaction runs well above its rest rate
+and leaves the rest voltage alone. The constants of each chemistry are fitted
+to the published checks (see the chemistry table and ``tests/test_battery_model.py``).
+
+The plan
+--------
+A charging set's field is turned down when the cells reach their gassing
+voltage (two-rate charging, common practice): stage 1 (main charge) with one
+field setting until the hand-over voltage, stage 2 (finish) with a weaker
+field, same connection, taps and diverter. The time follows from the charge
+balance ``ds/dt = I_stored / C`` integrated over the state of charge at the
+machine's operating point (quasi-static: the machine settles in a fraction
+of a second, the battery in hours).
+
+Marks: "seen" = read in a public copy of the source; "from memory" =
+recalled; "common practice" = a trade rule of thumb; "model choice" = a
+shape parameter of our own model.
 """
 
+import math
 from dataclasses import dataclass, field
 
 import numpy as np
 
 from ..cautions import caution
-from ..circuit import no_load_voltages, normal_points
-from ..envelope import (COARSE, FINE, critical_resistance_ratios, expand_candidates, optimise_control,
-                        worst_over_corners)
+from ..circuit import Setting, USES_SERIES, build_circuit, check_setting, machine_state, no_load_voltages, normal_points
+from ..envelope import (Space, control_kind, control_range, critical_resistance_ratios, envelope_corners,
+                        expand_candidates, worst_over_corners)
 from ..errors import InputError
 from ..readings import option_advice
 from ..validate import MAX_CURRENT_A, MAX_OHM, named_entry, read_pair, table_entry
 
 #: The profile table this job reads.
 TABLE = "battery"
+#: What the battery job's ranking minimises (the objective hook of the search).
+OBJECTIVE_LABEL = "hours to full [h]"
 
-_IEC_62485_2 = "IEC 62485-2, table of charging voltages and gas-producing currents (seen)"
-_IEC_62485_2_VENT = "IEC 62485-2, ventilation airflow formula (seen)"
+_IEC = "IEC 62485-2, table of charging voltages and gas-producing currents (seen)"
+_IEC_VENT = "IEC 62485-2, ventilation airflow formula (seen)"
+_IEC_FACTORS = ("IEC 62485-2 gas current Igas = I fg fs: gas-emission factor fg (structure of the formula "
+                "from memory; the resulting Igas values seen)")
+_FIT = ("model choice: fitted to the calibration checks (IEC 62485-2 float and boost currents, the C/10 "
+        "gassing state of charge, the C/20 finishing voltage, the Ah returned), see tests/test_battery_model.py")
+
+LN10 = math.log(10.0)
+#: Temperature the chemistry voltages refer to [degC]: the reference of the
+#: charging voltages and of IEEE 450 / IEEE 1188 practice (from memory).
+REFERENCE_TEMPERATURE_C = 25.0
+#: Safety factor fs of the IEC 62485-2 gas current (structure of the formula from memory;
+#: the table's currents it gives are seen).
+GAS_SAFETY_FACTOR = 5.0
 
 
 @dataclass(frozen=True)
 class Chemistry:
-    """Per-cell data of one battery chemistry (voltages [V/cell] at 25 degC).
+    """Per-cell data of one battery chemistry (voltages [V/cell] at 25 degC, rates [1/h] = A per Ah).
 
-    The charging-voltage model (see :func:`charging_voltage_per_cell`) is
-    calibrated to two points at ``reference_rate_per_h``:
-    ``mid_charge_voltage_v`` at half charge and ``end_of_charge_voltage_v``
-    at full charge.
+    ``gas_current_*_ma_per_ah`` are the IEC 62485-2 table's gas-producing
+    currents Igas (gas-emission and safety factors included); the charging
+    currents behind them are :attr:`float_current_ma_per_ah` and
+    :attr:`boost_current_ma_per_ah`. The ``acceptance_*``, ``charge_slope_v``
+    and ``gas_*`` fields are the cell model's constants (module docstring).
     """
 
     name: str
     float_voltage_v: float
     boost_voltage_v: float
+    gas_current_float_ma_per_ah: float
+    gas_current_boost_ma_per_ah: float
+    gas_emission_factor: float
     gassing_voltage_v: float
-    end_of_charge_voltage_v: float
-    mid_charge_voltage_v: float
-    reference_rate_per_h: float
     max_cell_voltage_v: float
+    reference_rate_per_h: float
+    finishing_rate_per_h: float
     temperature_coefficient_v_per_c: float
     open_circuit_voltage_empty_v: float
     open_circuit_voltage_full_v: float
     resistance_ohm_ah: float
-    charge_efficiency: float
-    gas_current_float_ma_per_ah: float
-    gas_current_boost_ma_per_ah: float
     capacity_rate: str
-    overvoltage_shape: float
-    rate_knee_per_h: float
+    acceptance_half_per_h: float
+    acceptance_fall: float
+    acceptance_fall_power: float
+    acceptance_end_power: float
+    charge_slope_v: float
+    gas_reference_voltage_v: float
+    gas_reference_ma_per_ah: float
+    gas_slope_v: float
     basis: dict = field(default_factory=dict, compare=False, repr=False)
 
     @property
-    def cell_resistance_at_reference_v(self):
-        """Resistive drop per cell at the reference rate [V]."""
-        return self.reference_rate_per_h * self.resistance_ohm_ah
+    def float_current_ma_per_ah(self):
+        """Charging current of a full cell at the float voltage behind the IEC table [mA/Ah]: Igas / (fg fs)."""
+        return self.gas_current_float_ma_per_ah / (self.gas_emission_factor * GAS_SAFETY_FACTOR)
 
     @property
-    def overvoltage_coefficients_v(self):
-        """``(b, K)`` [V] of the overvoltage ``b + K s / (1 - s + delta)`` at the reference rate.
+    def boost_current_ma_per_ah(self):
+        """Charging current of a full cell at the boost voltage behind the IEC table [mA/Ah]: Igas / (fg fs)."""
+        return self.gas_current_boost_ma_per_ah / (self.gas_emission_factor * GAS_SAFETY_FACTOR)
 
-        Solved from the two calibration points with the table's open-circuit
-        voltages.
-        """
-        d = self.overvoltage_shape
-        e0, e1 = self.open_circuit_voltage_empty_v, self.open_circuit_voltage_full_v
-        ir = self.cell_resistance_at_reference_v
-        eta_end = self.end_of_charge_voltage_v - e1 - ir
-        eta_mid = self.mid_charge_voltage_v - 0.5 * (e0 + e1) - ir
-        g_end, g_mid = 1.0 / d, 0.5 / (0.5 + d)
-        k = (eta_end - eta_mid) / (g_end - g_mid)
-        return eta_end - k * g_end, k
+    @property
+    def grading_power(self):
+        """Power ``q = 1/(1 - p)`` of the state-of-charge grid that makes the end of charge smooth to integrate."""
+        return 1.0 / (1.0 - self.acceptance_end_power)
 
+
+_END_POWER = (0.5, "model choice: acceptance falls as the square root of the charge still missing at the very end, "
+                   "so a charge at any voltage above rest finishes in finite time")
+_SLOPE = (0.05, "model choice: 0.05 V per e-fold (115 mV per decade), a lumped slope of the charge reaction that "
+                "lets a 2.40 V/cell constant-voltage finish take a vented cell from its gassing point to 95 % in "
+                "about 5 h (a few hours' absorption: common practice, from memory) and keeps the curve's "
+                "temperature shift within 15 % of the coefficient")
 
 CHEMISTRIES = {
     "lead-acid-vented": table_entry(Chemistry, "lead-acid-vented", {
-        "float_voltage_v": (2.23, _IEC_62485_2),
-        "boost_voltage_v": (2.40, _IEC_62485_2),
-        "gassing_voltage_v": (2.37, "gassing sets in near 2.35-2.40 V/cell at 25 degC (from memory; common practice); middle taken"),
-        "end_of_charge_voltage_v": (2.55, "finishing voltage at the 10-hour rate, 2.5-2.6 V/cell on textbook charging curves (from memory)"),
-        "mid_charge_voltage_v": (2.18, "flat middle of the constant-current charging curve at the 10-hour rate, 2.15-2.25 V/cell (from memory)"),
-        "reference_rate_per_h": (0.10, "normal finishing charge rate about C/10 (from memory; common practice)"),
-        "max_cell_voltage_v": (2.70, "highest cell voltage seen on an overcharge at the finishing rate (from memory)"),
-        "temperature_coefficient_v_per_c": (-0.004, "lead-acid compensation -3 to -5 mV/degC/cell (common practice); middle taken"),
-        "open_circuit_voltage_empty_v": (1.98, "open-circuit volts = specific gravity + 0.84, SG 1.14 discharged (common practice, from memory)"),
-        "open_circuit_voltage_full_v": (2.12, "open-circuit volts = specific gravity + 0.84, SG 1.28 charged (common practice, from memory)"),
+        "float_voltage_v": (2.23, _IEC),
+        "boost_voltage_v": (2.40, _IEC),
+        "gas_current_float_ma_per_ah": (5.0, _IEC),
+        "gas_current_boost_ma_per_ah": (20.0, _IEC),
+        "gas_emission_factor": (1.0, _IEC_FACTORS),
+        "gassing_voltage_v": (2.38, "gassing sets in near 2.35-2.40 V/cell at 25 degC (from memory; common practice)"),
+        "max_cell_voltage_v": (2.70, "a full vented cell on a C/20 finishing charge reads about 2.5-2.7 V "
+                                     "(common practice, from memory)"),
+        "reference_rate_per_h": (0.10, "normal start rate about C/10 (from memory; common practice)"),
+        "finishing_rate_per_h": (0.05, "finishing rate about C/20 to C/25 (from memory; common practice)"),
+        "temperature_coefficient_v_per_c": (-0.004, "lead-acid compensation -3 to -5 mV/degC/cell (common "
+                                                    "practice); middle taken"),
+        "open_circuit_voltage_empty_v": (1.98, "open-circuit volts = specific gravity + 0.84, SG 1.14 discharged "
+                                               "(common practice, from memory)"),
+        "open_circuit_voltage_full_v": (2.12, "open-circuit volts = specific gravity + 0.84, SG 1.28 charged "
+                                              "(common practice, from memory)"),
         "resistance_ohm_ah": (0.15, "cell resistance x C10 capacity, order of magnitude of makers' data (from memory)"),
-        "charge_efficiency": (0.90, "recharge 110-115 % of the ampere-hours drawn (common practice)"),
-        "gas_current_float_ma_per_ah": (5.0, _IEC_62485_2),
-        "gas_current_boost_ma_per_ah": (20.0, _IEC_62485_2),
-        "capacity_rate": ("C10", _IEC_62485_2_VENT),
-        "overvoltage_shape": (0.08, "model choice: steepness of the rise near full charge, fitted by eye to textbook charging curves"),
-        "rate_knee_per_h": (0.01, "model choice: overvoltage logarithmic in current above about C/100 (Tafel behaviour)"),
+        "capacity_rate": ("C10", _IEC_VENT),
+        "acceptance_half_per_h": (7.166e-3, _FIT),
+        "acceptance_fall": (6.291, _FIT),
+        "acceptance_fall_power": (4.5, _FIT),
+        "acceptance_end_power": _END_POWER,
+        "charge_slope_v": _SLOPE,
+        "gas_reference_voltage_v": (2.23, "the float voltage (IEC 62485-2, seen)"),
+        "gas_reference_ma_per_ah": (1.139, _FIT),
+        "gas_slope_v": (0.09609, _FIT + "; 0.221 V per decade"),
     }),
     "lead-acid-valve-regulated": table_entry(Chemistry, "lead-acid-valve-regulated", {
-        "float_voltage_v": (2.27, _IEC_62485_2),
-        "boost_voltage_v": (2.40, _IEC_62485_2),
-        "gassing_voltage_v": (2.35, "oxygen evolution and venting risk above about 2.35 V/cell at 25 degC (from memory)"),
-        "end_of_charge_voltage_v": (2.45, "finishing voltage at the 10-hour rate, lower than vented cells because of oxygen recombination (from memory)"),
-        "mid_charge_voltage_v": (2.20, "middle of the constant-current charging curve at the 10-hour rate (from memory)"),
+        "float_voltage_v": (2.27, _IEC),
+        "boost_voltage_v": (2.40, _IEC),
+        "gas_current_float_ma_per_ah": (1.0, _IEC),
+        "gas_current_boost_ma_per_ah": (8.0, _IEC),
+        "gas_emission_factor": (0.2, _IEC_FACTORS),
+        "gassing_voltage_v": (2.35, "oxygen evolution and venting risk above about 2.35 V/cell at 25 degC "
+                                    "(from memory)"),
+        "max_cell_voltage_v": (2.40, "the boost voltage (IEC 62485-2, seen): a valve-regulated cell must not be "
+                                     "gassed"),
         "reference_rate_per_h": (0.10, "charge rate about C/10 (from memory; common practice)"),
-        "max_cell_voltage_v": (2.50, "makers' limit for cyclic charging 2.45-2.50 V/cell (from memory)"),
-        "temperature_coefficient_v_per_c": (-0.003, "-3 mV/degC/cell, manufacturers' practice that IEEE 1188 defers to"),
-        "open_circuit_voltage_empty_v": (1.99, "open-circuit volts = specific gravity + 0.84, SG about 1.15 discharged (common practice, from memory)"),
-        "open_circuit_voltage_full_v": (2.14, "open-circuit volts = specific gravity + 0.84, SG about 1.30 charged (common practice, from memory)"),
+        "finishing_rate_per_h": (0.05, "makers' two-step charge, second step about 0.05 C (from memory); the "
+                                       "2.40 V limit usually governs"),
+        "temperature_coefficient_v_per_c": (-0.003, "-3 mV/degC/cell, manufacturers' practice that IEEE 1188 "
+                                                    "defers to"),
+        "open_circuit_voltage_empty_v": (1.99, "open-circuit volts = specific gravity + 0.84, SG about 1.15 "
+                                               "discharged (common practice, from memory)"),
+        "open_circuit_voltage_full_v": (2.14, "open-circuit volts = specific gravity + 0.84, SG about 1.30 "
+                                              "charged (common practice, from memory)"),
         "resistance_ohm_ah": (0.10, "cell resistance x C10 capacity, order of magnitude of makers' data (from memory)"),
-        "charge_efficiency": (0.95, "recharge 105-110 % of the ampere-hours drawn (common practice)"),
-        "gas_current_float_ma_per_ah": (1.0, _IEC_62485_2),
-        "gas_current_boost_ma_per_ah": (8.0, _IEC_62485_2),
-        "capacity_rate": ("C10", _IEC_62485_2_VENT),
-        "overvoltage_shape": (0.08, "model choice: steepness of the rise near full charge, fitted by eye to textbook charging curves"),
-        "rate_knee_per_h": (0.01, "model choice: overvoltage logarithmic in current above about C/100 (Tafel behaviour)"),
+        "capacity_rate": ("C10", _IEC_VENT),
+        "acceptance_half_per_h": (5.798e-3, _FIT),
+        "acceptance_fall": (3.266, _FIT),
+        "acceptance_fall_power": (7.0, _FIT),
+        "acceptance_end_power": _END_POWER,
+        "charge_slope_v": _SLOPE,
+        "gas_reference_voltage_v": (2.27, "the float voltage (IEC 62485-2, seen)"),
+        "gas_reference_ma_per_ah": (1.166, _FIT),
+        "gas_slope_v": (0.0664, _FIT + "; 0.153 V per decade"),
     }),
     "nickel-cadmium-vented": table_entry(Chemistry, "nickel-cadmium-vented", {
-        "float_voltage_v": (1.40, _IEC_62485_2),
-        "boost_voltage_v": (1.55, _IEC_62485_2),
-        "gassing_voltage_v": (1.45, "gassing sets in near 1.45 V/cell at 25 degC (from memory)"),
-        "end_of_charge_voltage_v": (1.65, "finishing voltage at the 5-hour rate, 1.6-1.7 V/cell (from memory)"),
-        "mid_charge_voltage_v": (1.43, "plateau of the constant-current charging curve at the 5-hour rate, 1.40-1.45 V/cell (from memory)"),
-        "reference_rate_per_h": (0.20, "normal charge rate C/5 (from memory; common practice)"),
+        "float_voltage_v": (1.40, _IEC),
+        "boost_voltage_v": (1.55, _IEC),
+        "gas_current_float_ma_per_ah": (5.0, _IEC),
+        "gas_current_boost_ma_per_ah": (50.0, _IEC),
+        "gas_emission_factor": (1.0, _IEC_FACTORS),
+        "gassing_voltage_v": (1.55, "vented NiCd gasses freely from about its boost voltage 1.55 V/cell "
+                                    "(IEC 62485-2 boost, seen; onset from memory)"),
         "max_cell_voltage_v": (1.70, "no cell above about 1.7 V (from memory)"),
+        "reference_rate_per_h": (0.20, "normal charge rate C/5 (from memory; common practice)"),
+        "finishing_rate_per_h": (0.10, "finishing (and standard) charge at C/10 (common practice, from memory)"),
         "temperature_coefficient_v_per_c": (-0.003, "vented NiCd -3 mV/K/cell (seen)"),
-        "open_circuit_voltage_empty_v": (1.25, "open-circuit voltage nearly flat, about 1.25-1.30 V/cell (from memory)"),
-        "open_circuit_voltage_full_v": (1.30, "open-circuit voltage nearly flat, about 1.25-1.30 V/cell (from memory)"),
-        "resistance_ohm_ah": (0.20, "cell resistance x C5 capacity, order of magnitude of makers' data for pocket-plate cells (from memory)"),
-        "charge_efficiency": (0.71, "charge 7 h at C/5, i.e. 140 % of capacity (common practice)"),
-        "gas_current_float_ma_per_ah": (5.0, _IEC_62485_2),
-        "gas_current_boost_ma_per_ah": (50.0, _IEC_62485_2),
-        "capacity_rate": ("C5", _IEC_62485_2_VENT),
-        "overvoltage_shape": (0.08, "model choice: steepness of the rise near full charge, fitted by eye to textbook charging curves"),
-        "rate_knee_per_h": (0.01, "model choice: overvoltage logarithmic in current above about C/100 (Tafel behaviour)"),
+        "open_circuit_voltage_empty_v": (1.25, "open-circuit voltage nearly flat, about 1.25-1.30 V/cell "
+                                               "(from memory)"),
+        "open_circuit_voltage_full_v": (1.30, "open-circuit voltage nearly flat, about 1.25-1.30 V/cell "
+                                              "(from memory)"),
+        "resistance_ohm_ah": (0.20, "cell resistance x C5 capacity, order of magnitude of makers' data for "
+                                    "pocket-plate cells (from memory)"),
+        "capacity_rate": ("C5", _IEC_VENT),
+        "acceptance_half_per_h": (1.433e-2, _FIT),
+        "acceptance_fall": (3.841, _FIT),
+        "acceptance_fall_power": (4.0, _FIT),
+        "acceptance_end_power": _END_POWER,
+        "charge_slope_v": _SLOPE,
+        "gas_reference_voltage_v": (1.40, "the float voltage (IEC 62485-2, seen)"),
+        "gas_reference_ma_per_ah": (0.986, _FIT),
+        "gas_slope_v": (0.05279, _FIT + "; 0.122 V per decade"),
     }),
 }
-
-#: Temperature the chemistry voltages refer to [degC]: the reference of the
-#: charging voltages and of IEEE 450 / IEEE 1188 practice (from memory).
-REFERENCE_TEMPERATURE_C = 25.0
 
 
 def chemistry(name):
@@ -149,7 +229,12 @@ def chemistry(name):
     return named_entry(CHEMISTRIES, name, "chemistry")
 
 
+# ===========================================================================
+# the cell
+# ===========================================================================
+
 def open_circuit_voltage_range(chem, ocv_range):
+    """``(empty, full)`` rest voltage per cell [V]: ``ocv_range`` or the chemistry's."""
     if ocv_range is None:
         return chem.open_circuit_voltage_empty_v, chem.open_circuit_voltage_full_v
     return float(ocv_range[0]), float(ocv_range[1])
@@ -188,86 +273,316 @@ def open_circuit_voltage_per_cell(chem, soc, ocv_range=None):
     return e0 + (e1 - e0) * s
 
 
-def rate_factor(chem, rate_per_h):
-    r = np.maximum(np.asarray(rate_per_h, float), 0.0)
-    return np.log1p(r / chem.rate_knee_per_h) / np.log1p(chem.reference_rate_per_h / chem.rate_knee_per_h)
+def charge_acceptance_per_h(chem, soc):
+    """Charge acceptance ``A(s)`` of the charge reaction [1/h] (the prefactor of its rate law).
+
+    ``A(s) = A_half exp(-kappa (s^m - 0.5^m)) (2 (1 - s))^p``; zero at full charge.
+
+    References
+    ----------
+    Model choice (module docstring); the falling acceptance of a cell near full
+    charge is the textbook reason for the rising charging voltage (from memory).
+    """
+    chem = chemistry(chem)
+    s = np.clip(np.asarray(soc, float), 0.0, 1.0)
+    m = chem.acceptance_fall_power
+    return (chem.acceptance_half_per_h * np.exp(-chem.acceptance_fall * (s ** m - 0.5 ** m))
+            * (2.0 * (1.0 - s)) ** chem.acceptance_end_power)
 
 
-def charging_voltage_per_cell(chem, soc, rate_per_h, temperature_c=REFERENCE_TEMPERATURE_C,
-                              ocv_range=None):
-    """Terminal voltage of one cell on charge [V].
+def _temperature_speedup(chem, temperature_c, slope_v):
+    return np.exp(-chem.temperature_coefficient_v_per_c * (np.asarray(temperature_c, float)
+                                                          - REFERENCE_TEMPERATURE_C) / slope_v)
 
-    ``V = E(s) + r Rc + f(r) [b + K s / (1 - s + delta) + alpha (T - 25) delta s / (1 - s + delta)]``
 
-    with ``E(s)`` the open-circuit voltage, ``r`` the charge rate (current over
-    capacity), ``Rc`` the cell resistance times capacity, ``alpha`` the
-    temperature coefficient and ``f(r) = ln(1 + r/r0) / ln(1 + r_ref/r0)`` (1 at
-    the reference rate, 0 with no current). ``b`` and ``K`` are solved so that
-    the curve passes the table's mid-charge and end-of-charge voltages at the
-    reference rate; the temperature term shifts the end-of-charge voltage by
-    exactly ``alpha`` per degree at that rate.
+def reaction_rates_per_h(chem, soc, internal_v, temperature_c=REFERENCE_TEMPERATURE_C, ocv_range=None):
+    """Rates of the charge reaction (stored) and of the overcharge reaction (gas) [1/h].
 
     Parameters
     ----------
     chem : Chemistry or str
     soc : array_like
-        State of charge 0..1 (held at the nearest end outside).
-    rate_per_h : array_like
-        Charging current over capacity [1/h] (0.1 = the 10-hour rate); a
-        negative rate (discharge) is not modelled and counts as zero.
+        State of charge 0..1.
+    internal_v : array_like
+        Internal cell voltage ``U`` [V] (cell voltage less the resistive drop).
     temperature_c : array_like, optional
-        Electrolyte temperature [degC].
+        Cell temperature [degC].
     ocv_range : (float, float), optional
-        Open-circuit voltage at empty and full [V/cell]; default the table's.
+        Rest voltage at empty and full [V/cell].
 
     Returns
     -------
-    ndarray
-        [V/cell]
+    (ndarray, ndarray)
+        ``r_s`` and ``r_g`` [A per Ah]; both zero at the rest voltage, ``r_s``
+        negative below it (the model is meant for charge: ``U >= E(s)``).
 
     References
     ----------
-    Polarisation term after C. M. Shepherd, "Design of primary and secondary
-    cells", J. Electrochem. Soc. 112 (1965) (from memory), regularised so it
-    stays finite at full charge.
+    Tafel (exponential) rate laws of electrode reactions, e.g. J. Newman,
+    *Electrochemical Systems*, electrode kinetics (from memory); IEC 62485-2
+    float and boost currents for the gas reaction's calibration (seen).
     """
     chem = chemistry(chem)
-    s = np.clip(np.asarray(soc, float), 0.0, 1.0)
-    r = np.maximum(np.asarray(rate_per_h, float), 0.0)
-    t = np.asarray(temperature_c, float)
-    b, k = chem.overvoltage_coefficients_v
-    d = chem.overvoltage_shape
-    shape = s / (1.0 - s + d)
-    eta = b + k * shape + chem.temperature_coefficient_v_per_c * (t - REFERENCE_TEMPERATURE_C) * d * shape
-    eta = rate_factor(chem, r) * np.maximum(eta, 0.0)
-    return open_circuit_voltage_per_cell(chem, s, ocv_range) + r * chem.resistance_ohm_ah + eta
+    s = np.asarray(soc, float)
+    u = np.asarray(internal_v, float)
+    e = open_circuit_voltage_per_cell(chem, s, ocv_range)
+    bc, bg = chem.charge_slope_v, chem.gas_slope_v
+    with np.errstate(over="ignore"):
+        stored = (charge_acceptance_per_h(chem, s) * _temperature_speedup(chem, temperature_c, bc)
+                  * np.expm1((u - e) / bc))
+        gas = (1e-3 * chem.gas_reference_ma_per_ah * _temperature_speedup(chem, temperature_c, bg)
+               * (np.exp((u - chem.gas_reference_voltage_v) / bg) - np.exp((e - chem.gas_reference_voltage_v) / bg)))
+    return stored, gas
 
 
-def charge_voltage_limit_per_cell(chem, temperature_c, limit_at_25=None):
-    """Temperature-corrected charging voltage limit of one cell [V].
+def _rate_slopes(chem, soc, internal_v, temperature_c, ocv_range):
+    """d r_s/dU and d r_g/dU [1/(h V)]."""
+    e = open_circuit_voltage_per_cell(chem, soc, ocv_range)
+    bc, bg = chem.charge_slope_v, chem.gas_slope_v
+    with np.errstate(over="ignore"):
+        ds = (charge_acceptance_per_h(chem, soc) * _temperature_speedup(chem, temperature_c, bc)
+              * np.exp((internal_v - e) / bc) / bc)
+        dg = (1e-3 * chem.gas_reference_ma_per_ah * _temperature_speedup(chem, temperature_c, bg)
+              * np.exp((internal_v - chem.gas_reference_voltage_v) / bg) / bg)
+    return ds, dg
+
+
+def _internal_voltage_bound(chem, soc, rate, temperature_c, ocv_range):
+    """An internal voltage at or above the one that carries ``rate`` (>= 0): the lower of the
+    voltages at which either reaction alone would carry it (closed forms)."""
+    e = open_circuit_voltage_per_cell(chem, soc, ocv_range)
+    bc, bg = chem.charge_slope_v, chem.gas_slope_v
+    a = charge_acceptance_per_h(chem, soc) * _temperature_speedup(chem, temperature_c, bc)
+    g = 1e-3 * chem.gas_reference_ma_per_ah * _temperature_speedup(chem, temperature_c, bg)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        u_s = np.where(a > 0, e + bc * np.log1p(rate / np.where(a > 0, a, 1.0)), np.inf)
+    u_g = chem.gas_reference_voltage_v + bg * np.log(rate / g + np.exp((e - chem.gas_reference_voltage_v) / bg))
+    return np.minimum(u_s, u_g)
+
+
+#: Newton steps of the cell inversions (monotone from above on a convex function: a handful suffice;
+#: the cap is a guard).
+NEWTON_STEPS = 60
+
+
+def _newton_down(fun, u):
+    """Root of the convex increasing ``fun`` by Newton steps from ``u`` where ``fun(u) >= 0``."""
+    for _ in range(NEWTON_STEPS):
+        f, fp = fun(u)
+        step = np.where(fp > 0, f / np.where(fp > 0, fp, 1.0), 0.0)
+        step = np.where(np.isfinite(step), np.maximum(step, 0.0), 0.0)
+        u = u - step
+        if np.all(step <= 1e-13 * np.maximum(1.0, np.abs(u))):
+            break
+    return u
+
+
+@dataclass
+class CellPoint:
+    """One cell on charge: arrays of ``volts_per_cell`` [V], ``internal_v`` [V], ``rate_per_h``
+    (current per Ah), ``stored_per_h`` and ``gas_per_h`` [1/h]."""
+
+    volts_per_cell: np.ndarray
+    internal_v: np.ndarray
+    rate_per_h: np.ndarray
+    stored_per_h: np.ndarray
+    gas_per_h: np.ndarray
+
+    @property
+    def stored_fraction(self):
+        """Share of the current that is stored (NaN with no current)."""
+        r = np.asarray(self.rate_per_h, float)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            return np.where(r > 0, self.stored_per_h / np.where(r > 0, r, 1.0), np.nan)
+
+
+def cell_on_charge(chem, soc, rate_per_h, temperature_c=REFERENCE_TEMPERATURE_C, ocv_range=None,
+                   resistance_ohm_ah=None):
+    """The cell at a charging current: voltage and the split into stored and gas.
 
     Parameters
     ----------
     chem : Chemistry or str
-    temperature_c : array_like
-        Battery temperature [degC].
-    limit_at_25 : float, optional
-        Limit at 25 degC [V/cell]; default the chemistry's boost voltage.
+    soc : array_like
+        State of charge 0..1.
+    rate_per_h : array_like
+        Current per Ah of capacity [A/Ah] (0.1 = C/10). A discharge (negative)
+        meets the rest voltage and the cell resistance only, and is all
+        "stored" (negative).
+    temperature_c : array_like, optional
+        [degC].
+    ocv_range : (float, float), optional
+        Rest voltage at empty and full [V/cell].
+    resistance_ohm_ah : float, optional
+        Cell resistance x capacity [ohm Ah] in place of the chemistry's (a
+        bank's measured resistance).
 
     Returns
     -------
-    ndarray
-        ``limit_at_25 + alpha (T - 25)`` [V/cell].
+    CellPoint
 
     References
     ----------
-    Boost voltages IEC 62485-2 (seen); -3 mV/degC/cell for valve-regulated
-    lead-acid (manufacturers' practice) and vented NiCd (seen).
+    Module docstring (two parallel reactions with Tafel-like rate laws).
     """
     chem = chemistry(chem)
-    v25 = chem.boost_voltage_v if limit_at_25 is None else float(limit_at_25)
-    t = np.asarray(temperature_c, float)
-    return v25 + chem.temperature_coefficient_v_per_c * (t - REFERENCE_TEMPERATURE_C)
+    s, r, t = np.broadcast_arrays(np.asarray(soc, float), np.asarray(rate_per_h, float),
+                                  np.asarray(temperature_c, float))
+    e = open_circuit_voltage_per_cell(chem, s, ocv_range)
+    rp = np.maximum(r, 0.0)
+
+    def fun(u):
+        st, gs = reaction_rates_per_h(chem, s, u, t, ocv_range)
+        d1, d2 = _rate_slopes(chem, s, u, t, ocv_range)
+        return st + gs - rp, d1 + d2
+
+    u = np.where(rp > 0, _internal_voltage_bound(chem, s, rp, t, ocv_range), e)
+    u = np.maximum(_newton_down(fun, u), e)
+    st, gs = reaction_rates_per_h(chem, s, u, t, ocv_range)
+    charge = r > 0
+    stored = np.where(charge, st, r)
+    gas = np.where(charge, gs, 0.0)
+    rc = chem.resistance_ohm_ah if resistance_ohm_ah is None else float(resistance_ohm_ah)
+    return CellPoint(u + rc * r, u, r, stored, gas)
+
+
+def cell_at_voltage(chem, soc, volts_per_cell, temperature_c=REFERENCE_TEMPERATURE_C, ocv_range=None,
+                    resistance_ohm_ah=None):
+    """The cell held at a terminal voltage: the current it takes and its split (see :func:`cell_on_charge`).
+
+    Below the rest voltage the cell discharges through its resistance.
+    """
+    chem = chemistry(chem)
+    s, v, t = np.broadcast_arrays(np.asarray(soc, float), np.asarray(volts_per_cell, float),
+                                  np.asarray(temperature_c, float))
+    e = open_circuit_voltage_per_cell(chem, s, ocv_range)
+    rc = chem.resistance_ohm_ah if resistance_ohm_ah is None else float(resistance_ohm_ah)
+
+    def fun(u):
+        st, gs = reaction_rates_per_h(chem, s, u, t, ocv_range)
+        d1, d2 = _rate_slopes(chem, s, u, t, ocv_range)
+        return u + rc * (st + gs) - v, 1.0 + rc * (d1 + d2)
+
+    charge = v > e
+    u = np.where(charge, _newton_down(fun, np.where(charge, v, e)), e)
+    st, gs = reaction_rates_per_h(chem, s, u, t, ocv_range)
+    r = np.where(charge, st + gs, (v - e) / rc)
+    return CellPoint(v.astype(float), u, r, np.where(charge, st, r), np.where(charge, gs, 0.0))
+
+
+def temperature_corrected_volts_per_cell(chem, volts_at_25, temperature_c):
+    """A cell voltage stated at 25 degC moved to ``temperature_c``: ``V25 + alpha (T - 25)`` [V].
+
+    References
+    ----------
+    Temperature compensation -3 to -5 mV/degC/cell for lead-acid (common
+    practice), -3 mV/K/cell for vented NiCd (seen).
+    """
+    chem = chemistry(chem)
+    return (np.asarray(volts_at_25, float)
+            + chem.temperature_coefficient_v_per_c * (np.asarray(temperature_c, float) - REFERENCE_TEMPERATURE_C))
+
+
+def gassing_volts_per_cell(chem, temperature_c=REFERENCE_TEMPERATURE_C):
+    """Temperature-corrected gassing voltage of one cell [V]."""
+    chem = chemistry(chem)
+    return temperature_corrected_volts_per_cell(chem, chem.gassing_voltage_v, temperature_c)
+
+
+def highest_volts_per_cell(chem, temperature_c=REFERENCE_TEMPERATURE_C):
+    """Temperature-corrected highest cell voltage of the chemistry [V] (the finish's ceiling)."""
+    chem = chemistry(chem)
+    return temperature_corrected_volts_per_cell(chem, chem.max_cell_voltage_v, temperature_c)
+
+
+def charging_curves(chem, temperature_c=REFERENCE_TEMPERATURE_C, rates_per_h=(0.2, 0.1, 0.05), points=101,
+                    ocv_range=None):
+    """The family of constant-current charging curves: volts per cell against state of charge.
+
+    Returns
+    -------
+    dict
+        ``state_of_charge`` (list), ``curves`` (one per rate: ``rate_per_h``,
+        ``label``, ``volts_per_cell``, ``stored_fraction``),
+        ``gassing_volts_per_cell`` and ``highest_volts_per_cell`` at the
+        temperature, ``temperature_c``.
+    """
+    chem = chemistry(chem)
+    s = np.linspace(0.0, 1.0, points)
+    out = []
+    for r in rates_per_h:
+        p = cell_on_charge(chem, s, r, temperature_c, ocv_range)
+        out.append({"rate_per_h": float(r), "label": f"C/{1 / r:g}", "volts_per_cell": p.volts_per_cell.tolist(),
+                    "stored_fraction": p.stored_fraction.tolist()})
+    return {"chemistry": chem.name, "temperature_c": float(temperature_c), "state_of_charge": s.tolist(),
+            "curves": out, "gassing_volts_per_cell": float(gassing_volts_per_cell(chem, temperature_c)),
+            "highest_volts_per_cell": float(highest_volts_per_cell(chem, temperature_c))}
+
+
+#: Highest charging rate the ``cell`` command accepts [A per Ah] (5C: far beyond any charging set).
+MAX_CELL_RATE_PER_H = 5.0
+
+
+def cell_point(name, soc, volts_per_cell=None, current_per_ah=None, temperature_c=REFERENCE_TEMPERATURE_C,
+               source="command line"):
+    """The cell model at one point, as the ``supplycfg cell`` command reports it.
+
+    Parameters
+    ----------
+    name : str
+        Chemistry name (:data:`CHEMISTRIES`).
+    soc : float
+        State of charge 0..1.
+    volts_per_cell : float, optional
+        Cell voltage [V]; give this or ``current_per_ah``.
+    current_per_ah : float, optional
+        Charging current per Ah of capacity [A/Ah] (0.1 = C/10).
+    temperature_c : float, optional
+        [degC].
+    source : str
+        Where the values came from, for messages.
+
+    Returns
+    -------
+    dict
+        ``volts_per_cell``, ``current_a_per_ah``, ``stored_fraction`` (None
+        with no charging current), ``stored_a_per_ah``, ``gas_a_per_ah``,
+        ``rest_volts_per_cell``, ``gassing_volts_per_cell`` and
+        ``highest_volts_per_cell`` at the temperature.
+
+    Raises
+    ------
+    InputError
+        A name, value or combination outside what is allowed.
+    """
+    if name not in CHEMISTRIES:
+        raise InputError(source, "CHEMISTRY", f"is {str(name)[:40]!r}; allowed: {', '.join(CHEMISTRIES)}")
+    chem = CHEMISTRIES[name]
+    if (volts_per_cell is None) == (current_per_ah is None):
+        raise InputError(source, "--volts-per-cell", "give exactly one of --volts-per-cell and --current-per-ah")
+    if not 0.0 <= soc <= 1.0:
+        raise InputError(source, "--soc", f"is {soc:g}; allowed: 0 to 1")
+    if not -40.0 <= temperature_c <= 70.0:
+        raise InputError(source, "--temperature-c", f"is {temperature_c:g}; allowed: -40 to 70 degC")
+    if current_per_ah is not None:
+        if not 0.0 <= current_per_ah <= MAX_CELL_RATE_PER_H:
+            raise InputError(source, "--current-per-ah", f"is {current_per_ah:g}; allowed: 0 to "
+                             f"{MAX_CELL_RATE_PER_H:g} A per Ah (0.1 is C/10)")
+        p = cell_on_charge(chem, soc, current_per_ah, temperature_c)
+    else:
+        top = 1.5 * chem.max_cell_voltage_v
+        if not 0.0 < volts_per_cell <= top:
+            raise InputError(source, "--volts-per-cell", f"is {volts_per_cell:g}; allowed: above 0 and at most "
+                             f"{top:.3g} V for {name}")
+        p = cell_at_voltage(chem, soc, volts_per_cell, temperature_c)
+    num = lambda v: None if not np.isfinite(v) else float(v)
+    return {"chemistry": name, "state_of_charge": float(soc), "temperature_c": float(temperature_c),
+            "volts_per_cell": float(p.volts_per_cell), "current_a_per_ah": float(p.rate_per_h),
+            "stored_fraction": num(p.stored_fraction), "stored_a_per_ah": float(p.stored_per_h),
+            "gas_a_per_ah": float(p.gas_per_h),
+            "rest_volts_per_cell": float(open_circuit_voltage_per_cell(chem, soc)),
+            "gassing_volts_per_cell": float(gassing_volts_per_cell(chem, temperature_c)),
+            "highest_volts_per_cell": float(highest_volts_per_cell(chem, temperature_c))}
 
 
 def bank_resistance_ohm(chem, cells, capacity_ah):
@@ -275,6 +590,10 @@ def bank_resistance_ohm(chem, cells, capacity_ah):
     chem = chemistry(chem)
     return np.asarray(cells, float) * chem.resistance_ohm_ah / np.asarray(capacity_ah, float)
 
+
+# ===========================================================================
+# ventilation
+# ===========================================================================
 
 #: Dilution factor and air changes of the ventilation formula (IEC 62485-2, seen):
 #: Q = v q s n Igas C 1e-3 with v q s = 0.05 m^3/Ah for 4 % hydrogen in air.
@@ -293,7 +612,7 @@ def ventilation_airflow_m3_per_h(cells, capacity_ah, igas_ma_per_ah):
     capacity_ah : array_like
         Rated capacity [Ah] (C10 lead-acid, C5 NiCd).
     igas_ma_per_ah : array_like
-        Gas-producing current [mA/Ah] for float or boost charge.
+        Gas-producing current [mA/Ah].
 
     Returns
     -------
@@ -318,22 +637,63 @@ def ventilation_opening_cm2(airflow_m3_per_h):
     return OPENING_CM2_PER_M3_PER_H * np.asarray(airflow_m3_per_h, float)
 
 
+VENTILATION_GOVERNORS = {
+    "table-float": "the standard's float-charge gas current (no charge above the float voltage)",
+    "table-boost": "the standard's boost-charge gas current (the charge goes above the float voltage)",
+    "plan-gas-current": "the plan's own largest gas current x the gas-emission factor x the safety factor 5",
+}
+
+
+def ventilation(chem, cells, capacity_ah, highest_volts_per_cell_v, largest_gas_per_h,
+                temperature_c=REFERENCE_TEMPERATURE_C):
+    """IEC 62485-2 airflow for a charge that reaches ``highest_volts_per_cell_v`` and gasses at most
+    ``largest_gas_per_h`` [A per Ah] (vectorised).
+
+    The gas current is the larger of the standard's table value for the
+    highest charging voltage (the boost row for any charge above the
+    temperature-corrected float voltage) and the plan's own largest gas
+    current x the gas-emission factor x the safety factor 5.
+
+    Returns
+    -------
+    dict of arrays
+        ``airflow_m3_per_h``, ``opening_cm2``, ``gas_current_ma_per_ah``,
+        ``governed_by`` (keys of :data:`VENTILATION_GOVERNORS`).
+
+    References
+    ----------
+    IEC 62485-2, ventilation formula, gas currents and natural ventilation
+    (seen); gas-emission and safety factors (structure from memory).
+    """
+    chem = chemistry(chem)
+    vmax = np.asarray(highest_volts_per_cell_v, float)
+    above_float = vmax > temperature_corrected_volts_per_cell(chem, chem.float_voltage_v, temperature_c) + 1e-9
+    table = np.where(above_float, chem.gas_current_boost_ma_per_ah, chem.gas_current_float_ma_per_ah)
+    own = 1e3 * np.maximum(np.asarray(largest_gas_per_h, float), 0.0) * chem.gas_emission_factor * GAS_SAFETY_FACTOR
+    plan_governs = own > table
+    igas = np.where(plan_governs, own, table)
+    q = ventilation_airflow_m3_per_h(cells, capacity_ah, igas)
+    who = np.where(plan_governs, "plan-gas-current", np.where(above_float, "table-boost", "table-float"))
+    return {"airflow_m3_per_h": q, "opening_cm2": ventilation_opening_cm2(q), "gas_current_ma_per_ah": igas,
+            "governed_by": who}
+
+
 # ===========================================================================
 # the [battery] table
 # ===========================================================================
 
-#: Battery: no lower bound on the starting current unless one is asked for.
+#: Battery: no lower bound on the main-charge current unless one is asked for.
 DEFAULT_MIN_CHARGE_CURRENT_A = 0.0
 #: Cable resistance when none is given: the bank sits at the machine's terminals.
 DEFAULT_CABLE_RESISTANCE_OHM = 0.0
 #: Battery temperature: the reference of the chemistry table's voltages.
 DEFAULT_BATTERY_TEMPERATURE_C = REFERENCE_TEMPERATURE_C
-#: No-load voltage kept above the bank's full-charge open-circuit voltage (common practice:
-#: a few per cent so the set still charges at full speed droop).
-NO_LOAD_MARGIN_FRACTION = 0.05
-#: A charge still "reaches" its end state of charge if the machine gives at least this
-#: share of capacity as current there (C/100; common practice for a finishing current floor).
-END_CURRENT_FLOOR_PER_H = 0.01
+#: A charge must reach its end state of charge within this time [h]: the usual overnight-plus
+#: recharge, and the NiCd standard charge of C/10 for 14-16 h (common practice).
+DEFAULT_TARGET_HOURS = 16.0
+#: The reverse-current cut-out closes this far above the bank's rest voltage at the top of the
+#: state-of-charge range [V per cell] (common practice; classic dynamo practice, from memory).
+CUTOUT_MARGIN_V_PER_CELL = 0.05
 
 
 @dataclass(frozen=True)
@@ -341,7 +701,12 @@ class BatteryJob:
     """Charge a battery bank. Field names are the ``[battery]`` keys.
 
     ``capacity_ah`` is at the chemistry's rating time (``Chemistry.capacity_rate``:
-    10 h for lead-acid, 5 h for nickel-cadmium).
+    10 h for lead-acid, 5 h for nickel-cadmium). ``charge_voltage_per_cell_v``
+    is the voltage (at 25 degC, temperature-corrected in use) at which the main
+    charge hands over to the finish. Keys the profile leaves out that depend on
+    the chemistry are None and resolved on use (:func:`handover_volts_per_cell`,
+    :func:`finishing_current_a`, :func:`cutout_closing_voltage_v`), so a saved
+    profile keeps them left out.
     """
 
     chemistry: str
@@ -354,7 +719,10 @@ class BatteryJob:
     cable_resistance_ohm: float
     temperature_c: float
     open_circuit_voltage_per_cell_v: tuple
-    charge_voltage_per_cell_v: float
+    charge_voltage_per_cell_v: float | None = None
+    finishing_rate_per_h: float | None = None
+    target_hours: float = DEFAULT_TARGET_HOURS
+    cutout_closing_volts_per_cell: float | None = None
 
 
 #: The dataclass of the [battery] table; its fields are the table's keys.
@@ -379,186 +747,1136 @@ def read_job(t, source):
     rc = t.number("cable_resistance_ohm", DEFAULT_CABLE_RESISTANCE_OHM, low=0, high=MAX_OHM)
     temp = t.number("temperature_c", DEFAULT_BATTERY_TEMPERATURE_C, low=-40, high=70)
     ocv = read_pair(t, "open_circuit_voltage_per_cell_v", source, low=0, low_open=True, high=chem.max_cell_voltage_v,
-                names=("empty", "full"), required=False,
-                default=(chem.open_circuit_voltage_empty_v, chem.open_circuit_voltage_full_v))
+                    names=("empty", "full"), required=False,
+                    default=(chem.open_circuit_voltage_empty_v, chem.open_circuit_voltage_full_v))
     lowest = 0.8 * chem.open_circuit_voltage_empty_v
     if ocv[0] < lowest:
         raise InputError(source, t.key("open_circuit_voltage_per_cell_v"),
                          f"starts at {ocv[0]:g} V/cell; allowed for {name}: at least {lowest:.3g} V/cell "
                          f"(the table's empty value is {chem.open_circuit_voltage_empty_v:g})")
-    vlim = t.number("charge_voltage_per_cell_v", chem.boost_voltage_v, low=0, low_open=True)
-    if vlim > chem.max_cell_voltage_v:
+    vho = t.number("charge_voltage_per_cell_v", None, low=0, low_open=True)
+    if vho is not None and vho > chem.max_cell_voltage_v:
         raise InputError(source, t.key("charge_voltage_per_cell_v"),
-                         f"is {vlim:g}; allowed for {name}: at most {chem.max_cell_voltage_v:g} V/cell "
+                         f"is {vho:g}; allowed for {name}: at most {chem.max_cell_voltage_v:g} V/cell "
                          f"(the chemistry's highest cell voltage)")
-    if vlim <= ocv[1]:
+    if vho is not None and vho <= ocv[1]:
         raise InputError(source, t.key("charge_voltage_per_cell_v"),
-                         f"is {vlim:g}; allowed: above the open-circuit voltage at full charge ({ocv[1]:g} V/cell)")
+                         f"is {vho:g}; allowed: above the open-circuit voltage at full charge ({ocv[1]:g} V/cell)")
+    fin = t.number("finishing_rate_per_h", None, low=0, low_open=True, high=1.0)
+    hours = t.number("target_hours", DEFAULT_TARGET_HOURS, low=0, low_open=True, high=1000.0)
+    close = t.number("cutout_closing_volts_per_cell", None, low=ocv[0], high=chem.max_cell_voltage_v)
     return BatteryJob(chemistry=name, cells=cells, capacity_ah=cap, state_of_charge=soc,
                       max_charge_current_a=imax, min_charge_current_a=imin, internal_resistance_ohm=rb,
                       cable_resistance_ohm=rc, temperature_c=temp, open_circuit_voltage_per_cell_v=tuple(ocv),
-                      charge_voltage_per_cell_v=vlim)
+                      charge_voltage_per_cell_v=vho, finishing_rate_per_h=fin, target_hours=hours,
+                      cutout_closing_volts_per_cell=close)
 
 
-def evaluate(space, base_idx, u, res=COARSE):
-    """Limits and figures of battery candidates ``(base, control value)`` over the envelope."""
-    m, prof = space.machine, space.profile
-    b = prof.battery
-    chem = chemistry(b.chemistry)
-    n = len(base_idx)
-    sub, rows = expand_candidates(space, base_idx, u)
-    soc0, soc1 = b.state_of_charge
-    ocv = b.open_circuit_voltage_per_cell_v
-    e0 = b.cells * float(open_circuit_voltage_per_cell(chem, soc0, ocv))
-    e1 = b.cells * float(open_circuit_voltage_per_cell(chem, soc1, ocv))
-    r = b.internal_resistance_ohm + b.cable_resistance_ohm
+def handover_volts_per_cell(job):
+    """The temperature-corrected voltage per cell at which the main charge hands over to the finish [V]:
+    ``charge_voltage_per_cell_v`` (default the chemistry's gassing voltage) at the battery's temperature."""
+    chem = chemistry(job.chemistry)
+    v25 = chem.gassing_voltage_v if job.charge_voltage_per_cell_v is None else job.charge_voltage_per_cell_v
+    return float(temperature_corrected_volts_per_cell(chem, v25, job.temperature_c))
+
+
+def finishing_rate_per_h(job):
+    """The finish's highest current per Ah [A/Ah]: the job's, default the chemistry's."""
+    chem = chemistry(job.chemistry)
+    return chem.finishing_rate_per_h if job.finishing_rate_per_h is None else float(job.finishing_rate_per_h)
+
+
+def finishing_current_a(job):
+    """The finish's highest current [A]."""
+    return finishing_rate_per_h(job) * job.capacity_ah
+
+
+def cutout_closing_volts_per_cell(job):
+    """Closing voltage of the reverse-current cut-out per cell [V]: the job's, default the rest voltage at
+    the top of the state-of-charge range plus 0.05 V (common practice)."""
+    if job.cutout_closing_volts_per_cell is not None:
+        return float(job.cutout_closing_volts_per_cell)
+    chem = chemistry(job.chemistry)
+    return float(open_circuit_voltage_per_cell(chem, job.state_of_charge[1], job.open_circuit_voltage_per_cell_v)) \
+        + CUTOUT_MARGIN_V_PER_CELL
+
+
+def cutout_closing_voltage_v(job):
+    """Closing voltage of the reverse-current cut-out for the whole bank [V]."""
+    return job.cells * cutout_closing_volts_per_cell(job)
+
+
+def bank_resistance_ohm_ah(job):
+    """The bank's resistance per cell x capacity [ohm Ah]: the profile's in place of the chemistry's."""
+    return job.internal_resistance_ohm * job.capacity_ah / job.cells
+
+
+# ===========================================================================
+# the bank against the machine
+# ===========================================================================
+
+#: Load-curve grid and refinement steps of the plan's operating points (the curve is parameterised
+#: by the cells' internal voltage, about 1.5 V wide per cell: 49 points resolve it to 30 mV/cell).
+PLAN_SOLVE = {"grid": 49, "steps": 40}
+#: State-of-charge intervals per stage (model choice: the hours are then within about 0.1 % of a
+#: fine grid's on the demo job, see tests).
+PLAN_INTERVALS = 32
+#: Intervals of the first look along the main charge for the hand-over voltage.
+SCAN_INTERVALS = 16
+#: Regula-falsi (Illinois) steps placing the hand-over on the hand-over voltage.
+HANDOVER_STEPS = 30
+#: Below half the float current the machine no longer charges the bank in any useful sense
+#: (model choice; IEC 62485-2 float currents are about 1 mA/Ah, seen).
+CURRENT_FLOOR_PER_H = 5e-4
+#: The plan's field settings keep this share below a current limit: room for setting the field by
+#: the ammeter (common practice).
+CURRENT_MARGIN_FRACTION = 0.03
+#: ... and this much below the highest cell voltage [V per cell]: about the reading of a cell
+#: voltmeter (common practice).
+VOLTAGE_MARGIN_V_PER_CELL = 0.01
+#: Halvings of the field control when it is solved for a target point (2^-48 of its range).
+CONTROL_STEPS = 48
+
+
+def bank_line(job, soc):
+    """The bank as the machine sees it, parameterised by its cells' internal voltage ``U``.
+
+    Parameters
+    ----------
+    job : BatteryJob
+    soc : ndarray, shape (n,)
+        State of charge of each candidate row.
+
+    Returns
+    -------
+    callable
+        ``vi(U) -> (V, I)`` for ``U`` shaped ``(n, k)``: machine-terminal
+        voltage [V] and charging current [A]. On charge ``I = C (r_s + r_g)``,
+        ``V = n U + I (Rb + Rcable)``; below the rest voltage the bank
+        discharges through ``Rb`` (``I = n (U - E) / Rb``, no overvoltage).
+
+    References
+    ----------
+    Cell model of this module; bank of ``n`` cells in series with the
+    profile's bank and cable resistances.
+    """
+    chem = chemistry(job.chemistry)
+    s = np.asarray(soc, float)[:, None]
+    n, cap = job.cells, job.capacity_ah
+    rb, rc = job.internal_resistance_ohm, job.cable_resistance_ohm
+    ocv = job.open_circuit_voltage_per_cell_v
+    e = open_circuit_voltage_per_cell(chem, s, ocv)
+
+    def vi(u):
+        st, gs = reaction_rates_per_h(chem, s, u, job.temperature_c, ocv)
+        on = u >= e
+        i = np.where(on, cap * (st + gs), n * (u - e) / rb)
+        v = np.where(on, n * u + i * rb, n * u) + i * rc
+        return v, i
+    return vi
+
+
+def bank_voltage_v(job, soc, current_a):
+    """Machine-terminal voltage [V] that drives ``current_a`` [A] into the bank at ``soc``.
+
+    ``n V_cell(s, I/C) + I Rcable`` with the profile's bank resistance in place
+    of the chemistry's; a discharge meets the rest voltage and the bank and
+    cable resistances only.
+    """
+    chem = chemistry(job.chemistry)
+    i = np.asarray(current_a, float)
+    p = cell_on_charge(chem, soc, i / job.capacity_ah, job.temperature_c, job.open_circuit_voltage_per_cell_v,
+                       bank_resistance_ohm_ah(job))
+    return job.cells * p.volts_per_cell + i * job.cable_resistance_ohm
+
+
+def bank_points(sub, job, soc, res=None):
+    """The machine's normal operating point against the bank at each row's state of charge.
+
+    Parameters
+    ----------
+    sub : Circuit
+        One row per entry of ``soc``.
+    job : BatteryJob
+    soc : ndarray, shape (n,)
+    res : dict, optional
+        ``grid`` and ``steps`` of :func:`supplycfg.circuit.normal_points`.
+
+    Returns
+    -------
+    dict of arrays
+        The operating-point keys of :func:`~supplycfg.circuit.normal_points`
+        plus ``internal_v``, ``volts_per_cell`` (at the battery's terminals),
+        ``stored_current_a`` and ``gas_current_a`` (NaN where no stable point).
+    """
+    res = PLAN_SOLVE if res is None else res
+    chem = chemistry(job.chemistry)
+    soc = np.asarray(soc, float)
+    n, cap = job.cells, job.capacity_ah
+    ocv = job.open_circuit_voltage_per_cell_v
+    e = open_circuit_voltage_per_cell(chem, soc, ocv)
     imax = sub.imax
-    start = normal_points(sub, -imax, imax, v_of=lambda t: e0 + r * t, **res)
-    i_start = start["load_current_a"]
-    cap = b.capacity_ah
-    rc_cell = chem.resistance_ohm_ah / cap
+    lo = e - imax * job.internal_resistance_ohm / n
+    hi = np.maximum(_internal_voltage_bound(chem, soc, imax / cap, job.temperature_c, ocv), e + 1e-6)
+    r = normal_points(sub, lo, hi, vi_of=bank_line(job, soc), **res)
+    v, i = r["terminal_voltage_v"], r["load_current_a"]
+    rb, rcab = job.internal_resistance_ohm, job.cable_resistance_ohm
+    u = np.where(i >= 0, (v - i * (rb + rcab)) / n, (v - i * rcab) / n)
+    st, gs = reaction_rates_per_h(chem, soc, np.where(np.isfinite(u), u, e), job.temperature_c, ocv)
+    charge = i > 0
+    r["internal_v"] = u
+    r["volts_per_cell"] = (v - i * rcab) / n
+    r["stored_current_a"] = np.where(np.isfinite(i), np.where(charge, cap * st, i), np.nan)
+    r["gas_current_a"] = np.where(np.isfinite(i), np.where(charge, cap * gs, 0.0), np.nan)
+    return r
 
-    def bank_end(t):
-        rate = np.maximum(t, 0.0) / cap
-        cell = charging_voltage_per_cell(chem, soc1, rate, b.temperature_c, ocv) - np.maximum(t, 0) * rc_cell
-        return b.cells * cell + t * r
 
-    def bank_at(soc):
-        def f(t):
-            rate = np.maximum(t, 0.0) / cap
-            cell = charging_voltage_per_cell(chem, soc, rate, b.temperature_c, ocv) - np.maximum(t, 0) * rc_cell
-            return b.cells * cell + t * r
-        return f
+def _strength_sign(space, base_idx):
+    """+1 where a larger control value strengthens the field (field current), -1 where it weakens
+    it (rheostat), 0 where there is no control (series)."""
+    kinds = [space.bases[b][3] for b in np.asarray(base_idx, int)]
+    return np.array([{"field-current": 1.0, "rheostat": -1.0, "exciter": -1.0}.get(k, 0.0) for k in kinds])
 
-    # the start current on the charging curve (overvoltage included): what the charge run sees
-    start_c = normal_points(sub, np.zeros(sub.n), np.full(sub.n, imax), v_of=bank_at(soc0), **res)
-    i_start_c = np.where(start_c["found"], start_c["load_current_a"], 0.0)
-    end = normal_points(sub, np.zeros(sub.n), np.full(sub.n, imax), v_of=bank_end, **res)
-    i_end = np.where(end["found"], end["load_current_a"], 0.0)
-    # at the battery terminals, with the profile's bank resistance (as on the bank line)
-    vpc_end = (bank_end(i_end) - i_end * b.cable_resistance_ohm) / b.cells
-    vnl = no_load_voltages(sub, res["grid"])
-    limit_vpc = float(charge_voltage_limit_per_cell(chem, b.temperature_c, b.charge_voltage_per_cell_v))
-    ia_start = start["armature_current_a"]
+
+def _weaker(u_a, u_b, sign):
+    """The weaker of two field-control values (NaN ignored)."""
+    both = np.where(sign > 0, np.fmin(u_a, u_b), np.fmax(u_a, u_b))
+    return np.where(sign == 0, np.nan, both)
+
+
+def _weakest_per_base(u_rows, rows_base, nb, sign):
+    """The weakest control value of each base over its rows (NaN where a base has none)."""
+    out = np.full(nb, np.nan)
+    for b in range(nb):
+        vals = u_rows[rows_base == b]
+        vals = vals[np.isfinite(vals)]
+        if vals.size and sign[b] != 0:
+            out[b] = vals.min() if sign[b] > 0 else vals.max()
+    return out
+
+
+def control_for_point(space, base_idx, corner_idx, terminal_voltage_v, load_current_a):
+    """Field control that puts each (base, corner) row at a given terminal voltage and load current.
+
+    The circuit residual at the point rises with the field's strength, so the
+    control is found by halving its range; where no value reaches the point,
+    the end of the range that comes closest is returned.
+
+    Returns
+    -------
+    (ndarray, ndarray)
+        Control value per row (NaN where the base has no field control) and
+        whether the point was reached.
+    """
+    base_idx = np.asarray(base_idx, int)
+    corner_idx = np.asarray(corner_idx, int)
+    n = base_idx.size
+    m = space.machine
+    lo = np.array([control_range(m, space.bases[b][3])[0] for b in base_idx], float)
+    hi = np.array([control_range(m, space.bases[b][3])[1] for b in base_idx], float)
+    v = np.broadcast_to(np.asarray(terminal_voltage_v, float), (n,))
+    i = np.broadcast_to(np.asarray(load_current_a, float), (n,))
+    fixed = ~np.isfinite(lo)
+
+    def h(u):
+        sub, _ = expand_candidates(space, base_idx, u, corner_idx)
+        return machine_state(sub, sub.take(np.arange(sub.n)), v, i)["h"]
+
+    if n == 0:
+        return np.zeros(0), np.zeros(0, bool)
+    h_lo, h_hi = h(np.where(fixed, 0.0, lo)), h(np.where(fixed, 0.0, hi))
+    ok = (np.signbit(h_lo) != np.signbit(h_hi)) & np.isfinite(h_lo) & np.isfinite(h_hi)
+    a, b, fa = lo.copy(), hi.copy(), h_lo.copy()
+    for _ in range(CONTROL_STEPS):
+        c = 0.5 * (a + b)
+        fc = h(np.where(fixed, 0.0, c))
+        same = np.signbit(fc) == np.signbit(fa)
+        a, fa, b = np.where(same, c, a), np.where(same, fc, fa), np.where(same, b, c)
+    u = np.where(ok, 0.5 * (a + b), np.where(np.abs(h_lo) < np.abs(h_hi), lo, hi))
+    return np.where(fixed, np.nan, u), ok & ~fixed
+
+
+def _grid(s_from, s_to, intervals, power):
+    """State of charge at the nodes of a grid graded towards ``s_to`` (per row).
+
+    ``s = s_to - (s_to - s_from) (1 - xi)^q``, ``xi`` uniform: with
+    ``q = 1/(1 - p)`` the stored current falls linearly in ``xi`` where the
+    acceptance ends as ``(1 - s)^p``, which the time step integrates exactly.
+    """
+    xi = np.linspace(0.0, 1.0, intervals + 1)
+    s_from = np.asarray(s_from, float)[:, None]
+    s_to = np.asarray(s_to, float)[:, None]
+    return s_to - (s_to - s_from) * (1.0 - xi) ** power
+
+
+@dataclass
+class Stage:
+    """One stage of a plan for many rows: arrays (rows, nodes) along the state of charge, and the
+    time and charge integrals at the nodes (``time_h``, ``ah``, ``kwh``, from the stage's start)."""
+
+    soc: np.ndarray
+    time_h: np.ndarray
+    ah: np.ndarray
+    kwh: np.ndarray
+    current_a: np.ndarray
+    terminal_voltage_v: np.ndarray
+    volts_per_cell: np.ndarray
+    stored_current_a: np.ndarray
+    gas_current_a: np.ndarray
+    armature_current_a: np.ndarray
+    x: np.ndarray
+    generated_emf_v: np.ndarray
+    found: np.ndarray
+    converged: np.ndarray
+    stalled_at: np.ndarray      # state of charge where the charge stops (NaN: it does not)
+
+
+def _stage(space, rows_base, rows_corner, rows_u, s_from, s_to, intervals=None, with_time=True):
+    """Solve one constant-field stage from ``s_from`` to ``s_to`` (per row) and integrate its time.
+
+    The charge balance ``ds/dt = I_stored / C`` gives each step
+    ``dt = 2 C ds / (I_s,a + I_s,b)``, the trapezoid rule for the stored
+    charge: the reported currents integrate (trapezoid rule) to exactly the
+    charge stored, and the Ah and kWh are the trapezoid integrals of the
+    current and the power. The charge stalls at the first node whose current
+    is below the floor (or where the machine has no operating point); its
+    time is infinite from there.
+    """
+    job = space.profile.battery
+    chem = chemistry(job.chemistry)
+    cap = job.capacity_ah
+    nr = rows_base.size
+    intervals = PLAN_INTERVALS if intervals is None else intervals
+    s = _grid(s_from, s_to, intervals, chem.grading_power)
+    nn = intervals + 1
+    rep = np.repeat(np.arange(nr), nn)
+    sub, _ = expand_candidates(space, rows_base[rep], rows_u[rep], rows_corner[rep])
+    r = bank_points(sub, job, s.ravel())
+    get = lambda k: np.asarray(r[k], float).reshape(nr, nn)
+    cur, st, vt = get("load_current_a"), get("stored_current_a"), get("terminal_voltage_v")
+    found = np.asarray(r["found"], bool).reshape(nr, nn)
+    floor = CURRENT_FLOOR_PER_H * cap
+    # a node the charge cannot pass: no operating point, a current below the floor, or nothing
+    # stored short of full charge (at full charge nothing is stored by definition)
+    dead = ~found | ~(cur > floor) | (~(st > 0) & (s < 1.0 - 1e-12))
+    first = np.where(dead.any(axis=1), np.argmax(dead, axis=1), nn)
+    empty = ~(s[:, -1] > s[:, 0])
+    first = np.where(empty, nn, first)
+    if with_time:
+        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+            dt = 2.0 * cap * np.diff(s, axis=1) / (st[:, :-1] + st[:, 1:])
+            dt = np.where(empty[:, None], 0.0, dt)
+            dt = np.where(np.isfinite(dt) & (dt >= 0), dt, np.inf)
+            j = np.arange(intervals)[None, :]
+            dt = np.where(j >= first[:, None] - 1, np.inf, dt)
+            t = np.concatenate([np.zeros((nr, 1)), np.cumsum(dt, axis=1)], axis=1)
+            fin = np.isfinite(dt)
+            step = np.where(fin, dt, 0.0)
+            dah = np.where(fin, 0.5 * (cur[:, :-1] + cur[:, 1:]) * step, np.inf)
+            p_ = vt * cur
+            dkwh = np.where(fin, 0.5e-3 * (p_[:, :-1] + p_[:, 1:]) * step, np.inf)
+        ah = np.concatenate([np.zeros((nr, 1)), np.cumsum(dah, axis=1)], axis=1)
+        kwh = np.concatenate([np.zeros((nr, 1)), np.cumsum(dkwh, axis=1)], axis=1)
+    else:
+        t = ah = kwh = np.full((nr, nn), np.nan)
+    stalled = np.where(first < nn, s[np.arange(nr), np.maximum(first - 1, 0)], np.nan)
+    return Stage(soc=s, time_h=t, ah=ah, kwh=kwh, current_a=cur, terminal_voltage_v=vt,
+                 volts_per_cell=get("volts_per_cell"), stored_current_a=st, gas_current_a=get("gas_current_a"),
+                 armature_current_a=get("armature_current_a"), x=get("x"), generated_emf_v=get("generated_emf_v"),
+                 found=found, converged=np.asarray(r["converged"], bool).reshape(nr, nn).all(axis=1), stalled_at=stalled)
+
+
+@dataclass
+class Plan:
+    """A charge plan for bases x corners (``rows_base``, ``rows_corner``, one row each).
+
+    ``u1``, ``u2`` are the field controls of the main charge and the finish per
+    base (equal for a one-stage plan, NaN for no field control); ``main`` and
+    ``finish`` the two stages per row (``finish`` starts where the main charge
+    reached the hand-over voltage, ``handed_over``; it is empty otherwise).
+    """
+
+    space: object
+    base_idx: np.ndarray
+    rows_base: np.ndarray
+    rows_corner: np.ndarray
+    u1: np.ndarray
+    u2: np.ndarray
+    main: Stage
+    finish: Stage
+    handed_over: np.ndarray
+    handover_soc: np.ndarray
+
+    @property
+    def two_stage(self):
+        """Per base: the finish runs on a weaker field than the main charge."""
+        return ~((self.u1 == self.u2) | (np.isnan(self.u1) & np.isnan(self.u2)))
+
+
+def start_target_current_a(space):
+    """The main charge's target start current at the strongest corner [A]: the job's highest
+    charging current (or the armature rating, if lower) less the setting margin."""
+    job = space.profile.battery
+    return (1.0 - CURRENT_MARGIN_FRACTION) * min(job.max_charge_current_a, space.machine.rated_armature_current_a)
+
+
+def start_controls(space, base_idx=None):
+    """Field control of the main charge for each base: the value that starts the charge at
+    :func:`start_target_current_a` at its strongest corner (the weakest of the per-corner values)."""
+    job = space.profile.battery
+    chem = chemistry(job.chemistry)
+    nb = len(space.bases)
+    base_idx = np.arange(nb) if base_idx is None else np.asarray(base_idx, int)
     nc = space.nc
+    rb = np.repeat(base_idx, nc)
+    rcn = np.tile(np.arange(nc), base_idx.size)
+    it = start_target_current_a(space)
+    p = cell_on_charge(chem, job.state_of_charge[0], it / job.capacity_ah, job.temperature_c,
+                       job.open_circuit_voltage_per_cell_v, bank_resistance_ohm_ah(job))
+    v = job.cells * float(p.volts_per_cell) + it * job.cable_resistance_ohm
+    u, _ = control_for_point(space, rb, rcn, v, it)
+    sign = _strength_sign(space, base_idx)
+    pos = np.repeat(np.arange(base_idx.size), nc)
+    return _weakest_per_base(u, pos, base_idx.size, sign)
+
+
+def finish_controls(space, base_idx, u1, rows_base_pos, rows_corner, handed_over, handover_soc):
+    """Field control of the finish per base: the strongest value that keeps the finish's current
+    at most the finishing current where it starts (the hand-over, per corner) and the cells at
+    most their highest voltage at the end state of charge, at every corner; never stronger than
+    the main charge's (then the plan has one stage)."""
+    job = space.profile.battery
+    chem = chemistry(job.chemistry)
+    cap, n = job.capacity_ah, job.cells
+    ocv, temp = job.open_circuit_voltage_per_cell_v, job.temperature_c
+    rbah = bank_resistance_ohm_ah(job)
+    base_idx = np.asarray(base_idx, int)
+    sign = _strength_sign(space, base_idx)
+    sel = np.flatnonzero(handed_over)
+    if not sel.size:
+        return np.array(u1, float)
+    rb_ = base_idx[rows_base_pos[sel]]
+    rc_ = rows_corner[sel]
+    # (a) the finishing current where the finish starts
+    ia = (1.0 - CURRENT_MARGIN_FRACTION) * finishing_current_a(job)
+    pa = cell_on_charge(chem, handover_soc[sel], ia / cap, temp, ocv, rbah)
+    ua, _ = control_for_point(space, rb_, rc_, n * pa.volts_per_cell + ia * job.cable_resistance_ohm, ia)
+    # (b) the highest cell voltage at the end of charge
+    vt = float(highest_volts_per_cell(chem, temp)) - VOLTAGE_MARGIN_V_PER_CELL
+    pb = cell_at_voltage(chem, np.full(sel.size, job.state_of_charge[1]), vt, temp, ocv, rbah)
+    ib = cap * pb.rate_per_h
+    ub, _ = control_for_point(space, rb_, rc_, n * vt + ib * job.cable_resistance_ohm, ib)
+    rows_sign = sign[rows_base_pos[sel]]
+    u2 = _weakest_per_base(_weaker(ua, ub, rows_sign), rows_base_pos[sel], base_idx.size, sign)
+    u2 = np.where(np.isnan(u2), u1, u2)
+    return _weaker(np.asarray(u1, float), u2, sign)
+
+
+def _handover(space, rows_base, rows_corner, rows_u, job):
+    """Where each row's main charge reaches the hand-over voltage: ``(handed_over, soc)``.
+
+    A scan along the state of charge brackets the first crossing, regula falsi
+    (Illinois) puts it on the voltage. A charge that stalls first, or never
+    gets there, does not hand over (its soc is the end state of charge).
+    """
+    s0, s1 = job.state_of_charge
+    vho = handover_volts_per_cell(job)
+    nr = rows_base.size
+    scan = _stage(space, rows_base, rows_corner, rows_u, np.full(nr, s0), np.full(nr, s1), SCAN_INTERVALS,
+                  with_time=False)
+    vpc = scan.volts_per_cell
+    above = np.nan_to_num(vpc, nan=-np.inf) >= vho
+    first = np.where(above.any(axis=1), np.argmax(above, axis=1), -1)
+    stall = np.where(np.isnan(scan.stalled_at), np.inf, scan.stalled_at)
+    s_first = np.where(first >= 0, scan.soc[np.arange(nr), np.maximum(first, 0)], np.inf)
+    handed = (first >= 0) & (s_first <= stall + 1e-12)
+    soc = np.full(nr, float(s1))
+    at_start = handed & (first == 0)
+    soc[at_start] = s0
+    idx = np.flatnonzero(handed & (first > 0))
+    if idx.size:
+        # on the hand-over voltage the bank's current follows from the cell model alone, so the
+        # hand-over is the root in soc of the machine's residual at that (V, I)
+        chem = chemistry(job.chemistry)
+        sub, _ = expand_candidates(space, rows_base[idx], rows_u[idx], rows_corner[idx])
+        params = sub.take(np.arange(sub.n))
+        rbah = bank_resistance_ohm_ah(job)
+
+        def h(soc_):
+            p = cell_at_voltage(chem, soc_, vho, job.temperature_c, job.open_circuit_voltage_per_cell_v, rbah)
+            i = job.capacity_ah * p.rate_per_h
+            return machine_state(sub, params, job.cells * vho + i * job.cable_resistance_ohm, i)["h"]
+
+        k = first[idx]
+        a, b = scan.soc[idx, k - 1], scan.soc[idx, k]
+        fa, fb = h(a), h(b)
+        for _ in range(HANDOVER_STEPS):
+            c = a - fa * (b - a) / np.where(fb != fa, fb - fa, 1.0)
+            c = np.where((c > np.minimum(a, b)) & (c < np.maximum(a, b)), c, 0.5 * (a + b))
+            fc = h(c)
+            flip = np.signbit(fc) != np.signbit(fb)
+            a, fa = np.where(flip, b, a), np.where(flip, fb, 0.5 * fa)
+            b, fb = c, fc
+        soc[idx] = np.where(np.abs(fa) < np.abs(fb), a, b)
+    return handed, soc
+
+
+def charge_plan(space, base_idx=None, u1=None, u2=None):
+    """The charge plan of each base over every corner of the envelope.
+
+    Parameters
+    ----------
+    space : Space
+        Candidates and envelope (a battery profile).
+    base_idx : array of int, optional
+        Bases to plan; default all.
+    u1 : array, optional
+        Main-charge field control per base; default :func:`start_controls`.
+    u2 : array, optional
+        Finish field control per base; default :func:`finish_controls`.
+
+    Returns
+    -------
+    Plan
+
+    References
+    ----------
+    Two-rate charging of vented banks: start rate to the gassing voltage, then
+    a finishing rate (common practice; DIN 41773/41774 charger
+    characteristics, from memory).
+    """
+    job = space.profile.battery
+    nb = len(space.bases)
+    base_idx = np.arange(nb) if base_idx is None else np.asarray(base_idx, int)
+    nc = space.nc
+    u1 = start_controls(space, base_idx) if u1 is None else np.asarray(u1, float)
+    pos = np.repeat(np.arange(base_idx.size), nc)
+    rows_base = base_idx[pos]
+    rows_corner = np.tile(np.arange(nc), base_idx.size)
+    nr = rows_base.size
+    s0, s1 = job.state_of_charge
+    handed, s_ho = _handover(space, rows_base, rows_corner, u1[pos], job)
+    main = _stage(space, rows_base, rows_corner, u1[pos], np.full(nr, s0), s_ho)
+    if u2 is None:
+        u2 = finish_controls(space, base_idx, u1, pos, rows_corner, handed, s_ho)
+    u2 = np.asarray(u2, float)
+    # the finish starts where the main charge handed over (and got there in finite time)
+    reached = handed & np.isfinite(main.time_h[:, -1])
+    finish = _held(main)
+    sel = np.flatnonzero(reached)
+    if sel.size:
+        part = _stage(space, rows_base[sel], rows_corner[sel], u2[pos][sel], s_ho[sel], np.full(sel.size, s1))
+        for f in _STAGE_FIELDS:
+            getattr(finish, f)[sel] = getattr(part, f)
+    return Plan(space, base_idx, rows_base, rows_corner, u1, u2, main, finish, reached, s_ho)
+
+
+_STAGE_FIELDS = ("soc", "time_h", "ah", "kwh", "current_a", "terminal_voltage_v", "volts_per_cell", "stored_current_a",
+                 "gas_current_a", "armature_current_a", "x", "generated_emf_v", "found", "converged", "stalled_at")
+
+
+def _held(stage):
+    """An empty stage at each row's last node of ``stage`` (no time passes)."""
+    nn = stage.soc.shape[1]
+    out = {}
+    for f in _STAGE_FIELDS:
+        a = getattr(stage, f)
+        if a.ndim == 2:
+            out[f] = np.repeat(a[:, -1:], nn, axis=1).copy()
+        else:
+            out[f] = a.copy()
+    for f in ("time_h", "ah", "kwh"):
+        out[f] = np.zeros_like(out[f])
+    out["stalled_at"] = np.full(stage.soc.shape[0], np.nan)
+    return Stage(**out)
+
+
+# ===========================================================================
+# cut-out figures
+# ===========================================================================
+
+def cut_in_speeds_rpm(space, base_idx, u, corner_idx):
+    """Drive speed at which each setting's no-load voltage first reaches the cut-out's closing voltage [rpm].
+
+    At no load the field and every drop are fixed by the terminal voltage,
+    so at the closing voltage ``V`` only the EMF scales with speed:
+    ``n_cut = n (V + drops) / E(n)``. A self-excited machine builds up only
+    above its critical speed, which bounds it from below.
+
+    Returns
+    -------
+    ndarray
+        [rpm]; NaN where the field is reversed or absent at that voltage.
+
+    References
+    ----------
+    EMF proportional to speed at constant flux (design note; Kosow Ex 3-3);
+    critical speed ``n_occ (Rsh + Rrh) / R_crit`` (design note); cut-out
+    closing on rising voltage (classic dynamo practice, from memory).
+    """
+    job = space.profile.battery
+    base_idx = np.asarray(base_idx, int)
+    sub, _ = expand_candidates(space, base_idx, u, corner_idx)
+    p = sub.take(np.arange(sub.n))
+    v = np.full(sub.n, cutout_closing_voltage_v(job))
+    st = machine_state(sub, p, v, np.zeros(sub.n))
+    e, h = st["generated_emf_v"], st["h"]
+    speed = np.array([space.corners[c][0] for c in np.broadcast_to(corner_idx, base_idx.shape)], float)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        n_cut = np.where(e > 0, speed * (e - h) / e, np.nan)
+        n_crit = np.where(sub.kind == 1, speed * sub.rf / (sub.s * sub.occ.air_gap_slope()), 0.0)
+    return np.where(np.isfinite(n_cut), np.maximum(n_cut, n_crit), np.nan)
+
+
+def standstill_backfeed_current_a(space, base_idx, u, corner_idx):
+    """Current a full bank drives back into the machine at standstill with no cut-out [A] (positive).
+
+    At standstill the machine has no EMF; the bank's rest voltage at the top
+    of the state-of-charge range drives current through the bank, the cable,
+    the brushes, the armature and the series branch (and, for a self-excited
+    field, the shunt winding too).
+
+    References
+    ----------
+    Circuit equation of the design note with zero speed; reverse current of
+    a stopped dynamo (classic practice, from memory).
+    """
+    job = space.profile.battery
+    chem = chemistry(job.chemistry)
+    sub, _ = expand_candidates(space, base_idx, u, corner_idx)
+    p = sub.take(np.arange(sub.n))
+    p["s"] = np.zeros(sub.n)
+    vb = job.cells * float(open_circuit_voltage_per_cell(chem, job.state_of_charge[1],
+                                                         job.open_circuit_voltage_per_cell_v))
+    rext = job.internal_resistance_ohm + job.cable_resistance_ohm
+
+    def h(il):
+        return machine_state(sub, p, vb + il * rext, il)["h"]
+
+    a, b = np.full(sub.n, -vb / rext), np.zeros(sub.n)
+    fa = h(a)
+    for _ in range(CONTROL_STEPS + 12):
+        c = 0.5 * (a + b)
+        fc = h(c)
+        same = np.signbit(fc) == np.signbit(fa)
+        a, fa, b = np.where(same, c, a), np.where(same, fc, fa), np.where(same, b, c)
+    return -0.5 * (a + b)
+
+
+# ===========================================================================
+# the plan's figures, limits and the search's hooks
+# ===========================================================================
+
+STAGE_NAMES = ("main charge", "finish")
+ENDS = {
+    "handover-voltage": "the cells reached the hand-over voltage {v:.3f} V per cell at {soc:.0f} % charge: "
+                        "turn the field down to the finish setting",
+    "end-state-of-charge": "the battery reached the end state of charge {soc:.0f} %",
+    "stalled": "the charging current fell below {floor:.3g} A at {soc:.0f} % charge: the machine no longer "
+               "drives a useful current into the bank",
+}
+
+
+def corner_roles(space):
+    """Corner indices ``(setting, cold, hot)``: the setting's own (the nominal speed and temperature),
+    the coldest at the top speed (the strongest machine) and the hottest at the lowest speed (the weakest)."""
+    cs = space.corners
+    nom = min(range(len(cs)), key=lambda k: (abs(cs[k][0] - space.nominal[0]), abs(cs[k][1] - space.nominal[1])))
+    cold = min(range(len(cs)), key=lambda k: (cs[k][1], -cs[k][0]))
+    hot = max(range(len(cs)), key=lambda k: (cs[k][1], -cs[k][0]))
+    return nom, cold, hot
+
+
+def stage_setting(space, b, u, corner):
+    """The :class:`~supplycfg.circuit.Setting` of base ``b`` with control ``u`` at a corner's speed and temperature."""
+    conn, tap, d, control = space.bases[b]
+    kw = {}
+    if control == "field-current" and np.isfinite(u):
+        kw["field_current_a"] = float(u)
+    elif control in ("rheostat", "exciter") and np.isfinite(u):
+        kw["rheostat_ohm"] = float(u)
+    sp, tc = space.corners[corner]
+    return check_setting(space.machine, Setting(conn, series_turns=tap if conn in USES_SERIES else None,
+                                                diverter_ohm=d, speed_rpm=sp, winding_temperature_c=tc, **kw))
+
+
+def _nanmax_rows(*arrays):
+    with np.errstate(invalid="ignore"):
+        stacked = np.concatenate([np.where(np.isfinite(a), a, -np.inf) for a in arrays], axis=1)
+        out = stacked.max(axis=1)
+    return np.where(np.isfinite(out), out, np.nan)
+
+
+def _nanmin_rows(*arrays):
+    with np.errstate(invalid="ignore"):
+        stacked = np.concatenate([np.where(np.isfinite(a), a, np.inf) for a in arrays], axis=1)
+        out = stacked.min(axis=1)
+    return np.where(np.isfinite(out), out, np.nan)
+
+
+def _first_crossing_soc(soc, v, level):
+    """First state of charge where ``v`` (rows x nodes, along ``soc``) reaches ``level``; NaN if never."""
+    above = np.nan_to_num(v, nan=-np.inf) >= level
+    any_ = above.any(axis=1)
+    k = np.argmax(above, axis=1)
+    r = np.arange(soc.shape[0])
+    km = np.maximum(k - 1, 0)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        w = np.where(k > 0, (level - v[r, km]) / (v[r, k] - v[r, km]), 0.0)
+    s = soc[r, km] + np.clip(np.nan_to_num(w), 0, 1) * (soc[r, k] - soc[r, km])
+    return np.where(any_, s, np.nan)
+
+
+def row_figures(plan):
+    """Per-row figures of a plan (arrays over bases x corners)."""
+    job = plan.space.profile.battery
+    chem = chemistry(job.chemistry)
+    m, f = plan.main, plan.finish
+    s0, s1 = job.state_of_charge
+    cap = job.capacity_ah
+    reached = plan.handed_over
+    hours = m.time_h[:, -1] + f.time_h[:, -1]
+    ah = m.ah[:, -1] + f.ah[:, -1]
+    vpc = np.concatenate([m.volts_per_cell, f.volts_per_cell], axis=1)
+    soc = np.concatenate([m.soc, f.soc], axis=1)
+    gas_v = float(gassing_volts_per_cell(chem, job.temperature_c))
+    # 1 uV below: a hand-over placed on the gassing voltage counts as reaching it
+    gas_soc = _first_crossing_soc(soc, vpc, gas_v - 1e-6)
+    stalled = np.where(np.isfinite(m.stalled_at), m.stalled_at, f.stalled_at)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return {
+            "hours": np.where(np.isfinite(hours), hours, np.inf),
+            "ah": ah,
+            "ah_factor": ah / ((s1 - s0) * cap),
+            "start_current": m.current_a[:, 0],
+            "main_end_current": m.current_a[:, -1],
+            "main_end_soc": m.soc[:, -1],
+            "finish_start_current": np.where(reached, f.current_a[:, 0], np.nan),
+            "finish_peak": np.where(reached, f.current_a[:, 0], 0.0),
+            "end_current": np.where(reached, f.current_a[:, -1], m.current_a[:, -1]),
+            "end_vpc": np.where(reached, f.volts_per_cell[:, -1], m.volts_per_cell[:, -1]),
+            "highest_vpc": _nanmax_rows(m.volts_per_cell, f.volts_per_cell),
+            "largest_gas_per_h": _nanmax_rows(m.gas_current_a, f.gas_current_a) / cap,
+            "max_ia": _nanmax_rows(np.abs(m.armature_current_a), np.abs(f.armature_current_a)),
+            "min_x": _nanmin_rows(m.x, f.x),
+            "max_x": _nanmax_rows(np.abs(m.x), np.abs(f.x)),
+            "min_emf": _nanmin_rows(m.generated_emf_v, f.generated_emf_v),
+            "gassing_soc": gas_soc,
+            "stalled_at": stalled,
+            "converged": m.converged & f.converged & np.isfinite(m.current_a[:, 0]),
+        }
+
+
+def _num(v):
+    v = float(v)
+    return v if math.isfinite(v) else None
+
+
+def plan_stages(plan, k, corner):
+    """The stages of base position ``k`` at ``corner`` as JSON-ready dicts (the plan a person follows)."""
+    space, job = plan.space, plan.space.profile.battery
+    b = int(plan.base_idx[k])
+    r = k * space.nc + corner
+    m, f = plan.main, plan.finish
+    vho = handover_volts_per_cell(job)
+    floor = CURRENT_FLOOR_PER_H * job.capacity_ah
+    two = bool(plan.two_stage[k]) and bool(plan.handed_over[r])
+
+    def ends(stage_last):
+        stall = m.stalled_at[r] if np.isfinite(m.stalled_at[r]) else f.stalled_at[r]
+        if stage_last and np.isfinite(stall):
+            return "stalled", ENDS["stalled"].format(floor=floor, soc=100 * stall)
+        if not stage_last:
+            return "handover-voltage", ENDS["handover-voltage"].format(v=vho, soc=100 * plan.handover_soc[r])
+        return "end-state-of-charge", ENDS["end-state-of-charge"].format(soc=100 * job.state_of_charge[1])
+
+    def stage(no, u, t0, t1, s_from, s_to, i0, i1, v1, last):
+        code, text = ends(last)
+        return {"stage": no, "name": STAGE_NAMES[no - 1] if two else "whole charge",
+                "setting": stage_setting(space, b, u, corner).as_dict(),
+                "from_h": _num(t0), "to_h": _num(t1), "from_state_of_charge": _num(s_from),
+                "to_state_of_charge": _num(s_to), "start_current_a": _num(i0), "end_current_a": _num(i1),
+                "end_volts_per_cell": _num(v1), "ends_because": code, "ends_reason": text}
+
+    t_main = m.time_h[r, -1]
+    if two:
+        return [stage(1, plan.u1[k], 0.0, t_main, m.soc[r, 0], m.soc[r, -1], m.current_a[r, 0], m.current_a[r, -1],
+                      m.volts_per_cell[r, -1], False),
+                stage(2, plan.u2[k], t_main, t_main + f.time_h[r, -1], f.soc[r, 0], f.soc[r, -1], f.current_a[r, 0],
+                      f.current_a[r, -1], f.volts_per_cell[r, -1], True)]
+    last = f if plan.handed_over[r] else m
+    stall = m.stalled_at[r] if np.isfinite(m.stalled_at[r]) else f.stalled_at[r]
+    s_end = stall if np.isfinite(stall) else last.soc[r, -1]
+    return [stage(1, plan.u1[k], 0.0, t_main + f.time_h[r, -1], m.soc[r, 0], s_end, m.current_a[r, 0],
+                  last.current_a[r, -1], last.volts_per_cell[r, -1], True)]
+
+
+def _fmt(v, f):
+    return "-" if v is None or not math.isfinite(v) else format(v, f)
+
+
+def plan_rows(stages):
+    """The stages in plain words: ``[(stage, field setting, hours, current, end volts per cell, ends because)]``."""
+    rows = []
+    for s in stages:
+        st = s["setting"]
+        if st.get("field_current_a") is not None:
+            fld = f"field current {st['field_current_a']:.4g} A"
+        elif st["connection"] == "series":
+            fld = "series winding only"
+        else:
+            fld = f"rheostat {st.get('rheostat_ohm') or 0:.4g} ohm"
+        rows.append((f"{s['stage']}: {s['name']}", fld, f"{_fmt(s['from_h'], '.2f')} to {_fmt(s['to_h'], '.2f')} h",
+                     f"{_fmt(s['start_current_a'], '.3g')} to {_fmt(s['end_current_a'], '.3g')} A",
+                     f"{_fmt(s['end_volts_per_cell'], '.3f')} V", s["ends_reason"]))
+    return rows
+
+
+def condition_text(cond):
+    """``1450 rpm, windings 75 degC`` from a conditions entry."""
+    return f"{cond['speed_rpm']:g} rpm, windings {cond['winding_temperature_c']:g} degC"
+
+
+def plan_figures(plan):
+    """Limits, figures and extras of every planned base (the search's contract).
+
+    Returns
+    -------
+    (limits, figures, extras)
+        ``limits``: name -> (values per base, limit, 'max'|'min', unit), over
+        every corner of the envelope; ``figures``: name -> array per base, the
+        plan's figures at the setting's own speed and winding temperature and
+        the envelope's extremes (``*_cold`` at the coldest windings and top
+        speed, ``*_hot`` at the hottest and lowest speed); ``extras``: one dict
+        per base with ``plan`` (the stages at the setting's condition),
+        ``finish_setting``, ``conditions``, ``ventilation``,
+        ``cut_in_speed_rpm`` and ``standstill_backfeed_current_a``.
+    """
+    space = plan.space
+    job = space.profile.battery
+    chem = chemistry(job.chemistry)
+    m_ = space.machine
+    nb, nc = plan.base_idx.size, space.nc
+    rf = row_figures(plan)
+    grid = {k: np.asarray(v).reshape(nb, nc) for k, v in rf.items()}
+    nom, cold, hot = corner_roles(space)
+    worst_max = lambda k: worst_over_corners(rf[k], nb, nc, "max")
+    worst_min = lambda k: worst_over_corners(rf[k], nb, nc, "min")
+    temp = job.temperature_c
+    vmax = float(highest_volts_per_cell(chem, temp))
+    close_v = cutout_closing_voltage_v(job)
+    s0, s1 = job.state_of_charge
+    ocv = job.open_circuit_voltage_per_cell_v
+    # the main charge's setting at no load, every corner
+    sub1, _ = expand_candidates(space, plan.base_idx, plan.u1)
+    vnl_rows = no_load_voltages(sub1)
+    sub2, _ = expand_candidates(space, plan.base_idx, plan.u2)
+    crit = np.fmin(critical_resistance_ratios(space, sub1, nb), critical_resistance_ratios(space, sub2, nb))
+    hours_all = grid["hours"]
+    hours_worst = hours_all.max(axis=1)
+    vent = ventilation(chem, job.cells, job.capacity_ah, worst_max("highest_vpc"), worst_max("largest_gas_per_h"), temp)
+    cut_cold = cut_in_speeds_rpm(space, plan.base_idx, plan.u1, np.full(nb, cold))
+    cut_hot = cut_in_speeds_rpm(space, plan.base_idx, plan.u1, np.full(nb, hot))
+    backfeed = standstill_backfeed_current_a(space, plan.base_idx, plan.u1, np.full(nb, cold))
+    at = lambda k, c=nom: grid[k][:, c]
+    target = job.target_hours
+    hours_nom = at("hours")
     lim = {
-        "start_current_max": (worst_over_corners(i_start, n, nc, "max"), b.max_charge_current_a, "max", "A"),
-        # conservative pair: the open-circuit line (issue rule) gives the higher current, the
-        # charging curve the lower; the maximum is checked on the first, the minimum on the second
-        "start_current_min": (worst_over_corners(np.fmin(i_start, i_start_c), n, nc, "min"), b.min_charge_current_a, "min", "A"),
-        "end_volts_per_cell": (worst_over_corners(vpc_end, n, nc, "max"), limit_vpc, "max", "V"),
-        "end_current_floor": (worst_over_corners(i_end, n, nc, "min"), END_CURRENT_FLOOR_PER_H * cap, "min", "A"),
-        "no_load_above_bank": (worst_over_corners(vnl, n, nc, "min"), (1 + NO_LOAD_MARGIN_FRACTION) * e1, "min", "V"),
-        "armature_current_rating": (worst_over_corners(np.abs(ia_start), n, nc, "max"), m.rated_armature_current_a, "max", "A"),
+        "start_current_max": (worst_max("start_current"), job.max_charge_current_a, "max", "A"),
+        "main_charge_current_min": (worst_min("main_end_current"), job.min_charge_current_a, "min", "A"),
+        "finish_current_max": (worst_max("finish_peak"), finishing_current_a(job), "max", "A"),
+        "end_volts_per_cell": (worst_max("highest_vpc"), vmax, "max", "V"),
+        "hours_to_full": (np.where(np.isfinite(hours_worst), hours_worst, np.inf), target, "max", "h"),
+        "no_load_above_cutout": (worst_over_corners(vnl_rows, nb, nc, "min"), close_v, "min", "V"),
+        "armature_current_rating": (worst_max("max_ia"), m_.rated_armature_current_a, "max", "A"),
     }
-    q = float(ventilation_airflow_m3_per_h(b.cells, b.capacity_ah, chem.gas_current_boost_ma_per_ah))
+    nanify = lambda a: np.where(np.isfinite(a), a, np.nan)
     figs = {
-        "start_charge_current_a": worst_over_corners(i_start, n, nc, "max"),
-        "start_charge_current_min_a": worst_over_corners(i_start, n, nc, "min"),
-        "start_charge_current_on_charge_a": worst_over_corners(i_start_c, n, nc, "max"),
-        "start_charge_current_on_charge_min_a": worst_over_corners(i_start_c, n, nc, "min"),
-        "end_charge_current_a": worst_over_corners(i_end, n, nc, "min"),
-        "end_volts_per_cell": worst_over_corners(vpc_end, n, nc, "max"),
-        "end_volts_per_cell_limit": np.full(n, limit_vpc),
-        "gassing_volts_per_cell": np.full(n, chem.gassing_voltage_v),
-        "ventilation_m3_per_h": np.full(n, q),
-        "no_load_voltage_min_v": worst_over_corners(vnl, n, nc, "min"),
-        "no_load_voltage_max_v": worst_over_corners(vnl, n, nc, "max"),
-        "bank_open_circuit_voltage_start_v": np.full(n, e0),
-        "bank_open_circuit_voltage_end_v": np.full(n, e1),
-        "max_armature_current_a": worst_over_corners(np.abs(ia_start), n, nc, "max"),
-        "min_net_mmf_a": worst_over_corners(np.fmin(start["x"], end["x"]), n, nc, "min"),
-        "max_net_mmf_a": worst_over_corners(np.fmax(np.abs(start["x"]), np.abs(end["x"])), n, nc, "max"),
-        "min_generated_emf_v": worst_over_corners(np.fmin(start["generated_emf_v"], end["generated_emf_v"]), n, nc, "min"),
-        "critical_resistance_ratio": critical_resistance_ratios(space, sub, n),
-        "converged": worst_over_corners((start["converged"] & end["converged"]).astype(float), n, nc, "min"),
+        "hours_to_full": np.where(hours_nom <= target, hours_nom, np.nan),
+        "hours_to_full_longest": nanify(hours_worst),
+        "ah_charge_factor": nanify(at("ah_factor")),
+        "gassing_state_of_charge": at("gassing_soc"),
+        "stages": np.where(plan.two_stage, 2.0, 1.0),
+        "start_charge_current_a": at("start_current"),
+        "start_charge_current_cold_a": at("start_current", cold),
+        "start_charge_current_hot_a": at("start_current", hot),
+        "handover_current_a": np.where(plan.handed_over.reshape(nb, nc)[:, nom], at("main_end_current"), np.nan),
+        "handover_state_of_charge": np.where(plan.handed_over.reshape(nb, nc)[:, nom], at("main_end_soc"), np.nan),
+        "finish_start_current_a": np.where(plan.two_stage, at("finish_start_current"), np.nan),
+        "end_charge_current_a": at("end_current"),
+        "end_volts_per_cell": at("end_vpc"),
+        "end_volts_per_cell_cold": at("end_vpc", cold),
+        "handover_volts_per_cell": np.full(nb, handover_volts_per_cell(job)),
+        "gassing_volts_per_cell": np.full(nb, float(gassing_volts_per_cell(chem, temp))),
+        "highest_volts_per_cell_limit": np.full(nb, vmax),
+        "ventilation_m3_per_h": vent["airflow_m3_per_h"],
+        "ventilation_opening_cm2": vent["opening_cm2"],
+        "gas_current_ma_per_ah": vent["gas_current_ma_per_ah"],
+        "cutout_closing_voltage_v": np.full(nb, close_v),
+        "cut_in_speed_cold_rpm": cut_cold,
+        "cut_in_speed_hot_rpm": cut_hot,
+        "standstill_backfeed_current_a": backfeed,
+        "start_charge_current_highest_a": worst_max("start_current"),
+        "main_charge_current_lowest_a": worst_min("main_end_current"),
+        "finish_current_highest_a": worst_max("finish_peak"),
+        "highest_volts_per_cell": worst_max("highest_vpc"),
+        "no_load_voltage_min_v": worst_over_corners(vnl_rows, nb, nc, "min"),
+        "no_load_voltage_max_v": worst_over_corners(vnl_rows, nb, nc, "max"),
+        "bank_open_circuit_voltage_start_v": np.full(nb, job.cells * float(open_circuit_voltage_per_cell(chem, s0, ocv))),
+        "bank_open_circuit_voltage_end_v": np.full(nb, job.cells * float(open_circuit_voltage_per_cell(chem, s1, ocv))),
+        "max_armature_current_a": worst_max("max_ia"),
+        "min_net_mmf_a": worst_min("min_x"),
+        "max_net_mmf_a": worst_max("max_x"),
+        "min_generated_emf_v": worst_min("min_emf"),
+        "critical_resistance_ratio": crit,
+        "converged": grid["converged"].all(axis=1).astype(float),
     }
-    return lim, figs
+    conds = {name: {"speed_rpm": space.corners[c][0], "winding_temperature_c": space.corners[c][1]}
+             for name, c in (("setting", nom), ("cold", cold), ("hot", hot))}
+    extras = []
+    for k in range(nb):
+        b = int(plan.base_idx[k])
+        fin = stage_setting(space, b, plan.u2[k], nom).as_dict() if plan.two_stage[k] else None
+        extras.append({
+            "plan": plan_stages(plan, k, nom),
+            "finish_setting": fin,
+            "conditions": conds,
+            "ventilation": {"airflow_m3_per_h": _num(vent["airflow_m3_per_h"][k]),
+                            "opening_cm2": _num(vent["opening_cm2"][k]),
+                            "gas_current_ma_per_ah": _num(vent["gas_current_ma_per_ah"][k]),
+                            "governed_by": str(vent["governed_by"][k])},
+            "cut_in_speed_rpm": {"cold": _num(cut_cold[k]), "hot": _num(cut_hot[k])},
+            "standstill_backfeed_current_a": _num(backfeed[k]),
+        })
+    return lim, figs, extras
 
 
 def solve(space):
-    """Best control value of every candidate and its limits and figures (fine solve).
+    """The charge plan of every candidate base, with its limits and figures.
 
     Returns
     -------
     (u, limits, figures, extras, evaluated)
-        ``extras`` is one dict (or None) per candidate for the option's JSON.
+        ``u`` is the main charge's field control (the option's setting is the
+        plan's first stage); ``extras`` holds each candidate's ``plan``.
     """
-    u, evaluated = optimise_control(space, evaluate)
-    lim, figs = evaluate(space, np.arange(len(space.bases)), u, FINE)
-    extras, n = option_advice(space, evaluate, u, lim, start_setting_field)
-    return u, lim, figs, extras, evaluated + n
+    plan = charge_plan(space)
+    lim, figs, extras = plan_figures(plan)
+    evaluated = plan.rows_base.size * ((PLAN_INTERVALS + 1) * 2 + SCAN_INTERVALS + 1)
+    # readings at the start of charge and the band of main-charge fields that keeps every limit
+    advice, n = option_advice(space, evaluate, plan.u1, lim, start_setting_field)
+    extras = [dict(e or {}, **a) for e, a in zip(extras, advice)]
+    return plan.u1, lim, figs, extras, int(evaluated + n)
+
+
+def evaluate(space, base_idx, u, res=None):
+    """Limits and figures of battery candidates ``(base, main-charge control)``: their plans over the envelope.
+
+    The finish's field follows from the plan's rule for each main-charge field.
+    """
+    plan = charge_plan(space, np.asarray(base_idx, int), np.asarray(u, float))
+    lim, figs, _ = plan_figures(plan)
+    return lim, figs
 
 
 def start_setting_field(space, base_idx, u):
     """Field current [A] at the start of charge, where the attendant sets the field, at every corner.
 
     The operating point on the bank's rest-voltage line at the starting
-    state of charge (as the ``start_current_max`` limit takes it).
+    state of charge.
     """
     b = space.profile.battery
     chem = chemistry(b.chemistry)
     e0 = b.cells * float(open_circuit_voltage_per_cell(chem, b.state_of_charge[0], b.open_circuit_voltage_per_cell_v))
     r = b.internal_resistance_ohm + b.cable_resistance_ohm
     sub, _ = expand_candidates(space, base_idx, u)
-    start = normal_points(sub, -sub.imax, sub.imax, v_of=lambda t: e0 + r * t, **COARSE)
+    start = normal_points(sub, -sub.imax, sub.imax, v_of=lambda t: e0 + r * t, grid=33, steps=26)
     return start["shunt_field_current_a"]
 
 
-#: What the battery job ranks its feasible options by (placeholder: none yet, so ties
-#: fall to the simpler rig and the least margin).
-OBJECTIVE_LABEL = "the hours to full charge (not yet estimated: every option ties)"
 
 
 def objective(figures):
-    """Placeholder objective: NaN for every option, so the ranking falls to its next keys."""
-    return np.full(np.asarray(figures["converged"]).shape, np.nan)
+    """The battery job's objective per candidate: hours to full at the setting (smaller is better; NaN unknown)."""
+    return np.asarray(figures["hours_to_full"], float)
+
+
+def setting_space(machine, profile, setting):
+    """The search space of one setting: its base over the profile's envelope corners plus its own
+    speed and winding temperature (the setting's own condition is the nominal corner).
+
+    Returns
+    -------
+    (Space, float)
+        The space and the setting's control value.
+    """
+    st = check_setting(machine, setting)
+    conn = st.connection
+    control = "field-current" if st.field_current_a is not None else control_kind(machine, conn)
+    if conn == "series":
+        control, u = "none", np.nan
+    elif control == "field-current":
+        u = st.field_current_a if st.field_current_a is not None else 0.0
+    else:
+        u = st.rheostat_ohm or 0.0
+    base = (conn, float(st.series_turns or 0.0), st.diverter_ohm, control)
+    corners, _ = envelope_corners(machine, profile)
+    own = (float(st.speed_rpm), float(st.winding_temperature_c))
+    if own not in corners:
+        corners = corners + [own]
+    settings = []
+    for sp, tc in corners:
+        kw = {"field_current_a": 0.0} if control == "field-current" else {}
+        settings.append(Setting(conn, series_turns=base[1] if conn in USES_SERIES else None, diverter_ohm=base[2],
+                                speed_rpm=sp, winding_temperature_c=tc, **kw))
+    space = Space(machine, profile, [base], corners, own, build_circuit(machine, settings))
+    return space, float(u)
+
+
+def setting_plan(machine, profile, setting, finish_setting=None):
+    """The plan of one setting (its main charge) over the envelope and its own condition.
+
+    Parameters
+    ----------
+    finish_setting : Setting, optional
+        The finish's setting (the search's plan); default derived by the plan's rule.
+
+    Returns
+    -------
+    Plan
+    """
+    space, u1 = setting_space(machine, profile, setting)
+    u2 = None
+    if finish_setting is not None:
+        fs = check_setting(machine, finish_setting)
+        u2 = [fs.field_current_a if space.bases[0][3] == "field-current" else
+              (np.nan if space.bases[0][3] == "none" else (fs.rheostat_ohm or 0.0))]
+    return charge_plan(space, np.zeros(1, int), np.array([u1]), u2)
 
 
 # ===========================================================================
 # cautions
 # ===========================================================================
 
+_IEC_VENT_BASIS = ("IEC 62485-2 ventilation formula Q = 0.05 n Igas C 1e-3 and opening A = 28 Q (seen); gas "
+                   "current from the larger of the standard's table and the plan's own gas current x fg x fs")
+
+
+def _fig(f, key):
+    v = f.get(key)
+    return None if v is None or not math.isfinite(v) else float(v)
+
+
 def option_cautions(machine, profile, setting, f):
-    """Battery cautions of one setting from its figures ``f``."""
+    """Battery cautions of one setting (the plan's first stage) from its figures ``f``."""
     out = []
     conn = setting.connection
     turns = setting.series_turns or 0.0
     if conn == "series" or (conn.endswith("cumulative") and turns > 0):
         out.append(caution("battery-series-back-current", "stop",
-                      "Series turns in circuit with a battery: when the machine slows, the battery drives current back "
-                      "through the series field, which weakens or reverses the field and can reverse the machine's "
-                      "polarity onto the battery. Use a shunt or separately excited connection with no series turns.",
-                      "textbook rule for charging generators (Theraja Vol II ch. 28, from memory); common practice",
-                      connection=conn, series_turns=turns))
+                           "Series turns in circuit with a battery: when the machine slows, the battery drives current "
+                           "back through the series field, which weakens or reverses the field and can reverse the "
+                           "machine's polarity onto the battery. Use a shunt or separately excited connection with "
+                           "no series turns.",
+                           "textbook rule for charging generators (Theraja Vol II ch. 28, from memory); common practice",
+                           connection=conn, series_turns=turns))
+    if profile is None:
+        # a battery load given on the command line: no bank data for the cut-out figures
+        out.append(caution("battery-reverse-current", "warn",
+                           "Fit a reverse-current cut-out (or a blocking diode) that closes a little above the "
+                           "battery's voltage and opens on a small reverse current: if the machine slows or stops, "
+                           "the battery drives it as a motor and discharges into it.",
+                           "common practice for DC charging sets (reverse-current relay; classic dynamo practice, "
+                           "from memory)"))
+        return out
+    b = profile.battery
+    chem = chemistry(b.chemistry)
+    close_v = cutout_closing_voltage_v(b)
+    cold, hot, back = _fig(f, "cut_in_speed_cold_rpm"), _fig(f, "cut_in_speed_hot_rpm"), _fig(f, "standstill_backfeed_current_a")
+    cut = ""
+    if cold is not None or hot is not None:
+        cut = (f" The machine reaches the closing voltage at about {cold or float('nan'):.0f} rpm with cold windings "
+               f"and {hot or float('nan'):.0f} rpm hot; below that speed the cut-out must stay open.")
+    if back is not None:
+        cut += (f" With no cut-out a full bank drives about {back:.0f} A back into the machine at standstill "
+                "(cold windings).")
     out.append(caution("battery-reverse-current", "warn",
-                  "Fit a reverse-current cut-out or a blocking diode: if the machine slows or stops, the battery "
-                  "drives it as a motor and discharges into it.",
-                  "common practice for DC charging sets (reverse-current relay)"))
+                       f"Fit a reverse-current cut-out (or a blocking diode) set to close at {close_v:.1f} V "
+                       f"({cutout_closing_volts_per_cell(b):.2f} V per cell) and to open on a small reverse current: "
+                       f"if the machine slows or stops, the battery drives it as a motor and discharges into it."
+                       + cut,
+                       "common practice for DC charging sets (reverse-current relay; classic dynamo practice, from "
+                       "memory); standstill current from the circuit equation at zero speed",
+                       cutout_closing_voltage_v=close_v, cut_in_speed_cold_rpm=cold, cut_in_speed_hot_rpm=hot,
+                       standstill_backfeed_current_a=back))
     out.append(caution("battery-polarity", "note",
-                  "Check the machine's polarity with a voltmeter before closing onto the battery: a self-excited "
-                  "machine can build up reversed.", "common practice"))
-    ev, gv = f.get("end_volts_per_cell"), f.get("gassing_volts_per_cell")
+                       "Check the machine's polarity with a voltmeter before closing onto the battery: a self-excited "
+                       "machine can build up reversed.", "common practice"))
+    q, a, ig = _fig(f, "ventilation_m3_per_h"), _fig(f, "ventilation_opening_cm2"), _fig(f, "gas_current_ma_per_ah")
+    if q is not None:
+        if ig is not None and ig > chem.gas_current_boost_ma_per_ah * (1 + 1e-9):
+            who = VENTILATION_GOVERNORS["plan-gas-current"]
+        elif ig is not None and ig > chem.gas_current_float_ma_per_ah * (1 + 1e-9):
+            who = VENTILATION_GOVERNORS["table-boost"]
+        else:
+            who = VENTILATION_GOVERNORS["table-float"]
+        out.append(caution("battery-ventilation", "warn",
+                           f"Ventilate the battery room for this charge: at least {q:.3g} m3/h of air (natural "
+                           f"ventilation: an inlet and an outlet of {a:.0f} cm2 each), from a gas current of "
+                           f"{ig:.3g} mA/Ah, set by {who}. No smoking, flames or sparks near the cells.",
+                           _IEC_VENT_BASIS, ventilation_m3_per_h=q, opening_cm2=a, gas_current_ma_per_ah=ig))
+    ev, gv = _fig(f, "highest_volts_per_cell"), _fig(f, "gassing_volts_per_cell")
     if ev is not None and gv is not None and ev > gv:
-        q = f.get("ventilation_m3_per_h")
         out.append(caution("battery-gassing", "warn",
-                      f"The charge finishes at {ev:.3f} V per cell, above the gassing voltage {gv:.2f} V: the cells "
-                      f"give off hydrogen and oxygen. Ventilate the battery room (at least {q:.3g} m3/h by the "
-                      f"standard's formula), keep flames and sparks away, and do not break battery connections under load.",
-                      "IEC 62485-2 ventilation formula Q = 0.05 n Igas C 1e-3 (seen); gassing voltage from the chemistry table",
-                      end_volts_per_cell=ev, gassing_volts_per_cell=gv, ventilation_m3_per_h=q))
+                           f"The charge goes up to {ev:.3f} V per cell (over the speed and temperature range), above "
+                           f"the gassing voltage {gv:.3f} V: the cells "
+                           "give off hydrogen and oxygen while they finish. Keep the ventilation running until an hour "
+                           "after the charge, and do not make or break battery connections under load.",
+                           "IEC 62485-2 (seen); gassing voltage from the chemistry table",
+                           highest_volts_per_cell=ev, gassing_volts_per_cell=gv))
+    # the job's limits, where a setting (given by hand, or a near miss) breaks them
+    i0 = _fig(f, "start_charge_current_highest_a")
+    if i0 is not None and i0 > b.max_charge_current_a * (1 + 1e-9):
+        out.append(caution("battery-start-current", "warn",
+                           f"This setting starts the charge at up to {i0:.3g} A, above the job's highest charging "
+                           f"current {b.max_charge_current_a:g} A: weaken the field until the ammeter reads no more.",
+                           "the job's max_charge_current_a (the battery maker's or the site's figure)",
+                           start_charge_current_a=i0, max_charge_current_a=b.max_charge_current_a))
+    il = _fig(f, "main_charge_current_lowest_a")
+    if b.min_charge_current_a > 0 and (il is None or il < b.min_charge_current_a * (1 - 1e-9)):
+        out.append(caution("battery-main-current-low", "warn",
+                           f"The main charge falls to {'no current' if il is None else f'{il:.3g} A'} before the "
+                           f"hand-over, below the job's lowest {b.min_charge_current_a:g} A: the charge drags on.",
+                           "the job's min_charge_current_a", main_charge_current_a=il,
+                           min_charge_current_a=b.min_charge_current_a))
+    ifin = _fig(f, "finish_current_highest_a")
+    if ifin is not None and ifin > finishing_current_a(b) * (1 + 1e-9):
+        out.append(caution("battery-finish-current", "warn",
+                           f"Above the hand-over voltage this setting still drives up to {ifin:.3g} A, more than the "
+                           f"finishing current {finishing_current_a(b):.3g} A: the cells gas hard and heat.",
+                           "finishing rate about C/20 for vented lead-acid (common practice, from memory); the "
+                           "job's finishing_rate_per_h", finish_current_a=ifin,
+                           finishing_current_a=finishing_current_a(b)))
+    vmax = float(highest_volts_per_cell(chem, b.temperature_c))
+    if ev is not None and ev > vmax * (1 + 1e-9):
+        out.append(caution("battery-cell-voltage", "warn",
+                           f"The cells reach {ev:.3f} V, above the chemistry's highest {vmax:.3f} V per cell at "
+                           f"{b.temperature_c:g} degC: stop the charge or weaken the field before that.",
+                           "highest cell voltage of the chemistry table (sources there)",
+                           highest_volts_per_cell=ev, limit_volts_per_cell=vmax))
+    h = _fig(f, "hours_to_full_longest")
+    if h is None or h > b.target_hours * (1 + 1e-9):
+        words = "never reaches" if h is None else f"takes up to {h:.3g} h to reach"
+        out.append(caution("battery-hours", "warn",
+                           f"This plan {words} the end state of charge {100 * b.state_of_charge[1]:.0f} %, against "
+                           f"the job's {b.target_hours:g} h.", "the job's target_hours", hours_to_full=h,
+                           target_hours=b.target_hours))
     return out
 
 
 def profile_cautions(machine, profile):
     """Cautions of the battery job as a whole, whatever the setting."""
-    out = []
-    b = profile.battery
-    chem = chemistry(b.chemistry)
-    q = float(ventilation_airflow_m3_per_h(b.cells, b.capacity_ah, chem.gas_current_boost_ma_per_ah))
-    out.append(caution("battery-ventilation", "warn",
-                  f"Charging releases hydrogen. Ventilate the battery room for boost charging: at least {q:.3g} m3/h "
-                  f"(natural ventilation opening about {float(ventilation_opening_cm2(q)):.0f} cm2). No smoking, "
-                  "flames or sparks near the cells; wear eye protection.",
-                  "IEC 62485-2 ventilation formula (seen)", ventilation_m3_per_h=q))
-    return out
+    return [caution("battery-hydrogen", "warn",
+                    "Charging releases hydrogen and oxygen: ventilate the battery room (the airflow each setting needs "
+                    "is with its cautions), no smoking, flames or sparks near the cells, wear eye protection and keep "
+                    "water at hand for acid splashes.", "IEC 62485-2 (seen); common practice")]

@@ -10,9 +10,9 @@ import streamlit as st
 from .. import STANDING_NOTICE
 from ..errors import InputError
 from ..files import dumps_json, write_atomic
-from ..report import (SEVERITY_WORDS, current_setting_rows, figure_rows, field_control_text, fmt, limit_label,
-                      margin_rows, md_esc, run_rows, setting_rows, severity_counts,
-                      sheet_markdown, sorted_cautions, status_text)
+from ..report import (PLAN_HEADERS, SEVERITY_WORDS, condition_words, current_setting_rows, cutout_rows, figure_rows,
+                      field_control_text, fmt, limit_label, margin_rows, md_esc, plan_table, run_rows, setting_rows,
+                      severity_counts, sheet_markdown, sorted_cautions, status_text)
 from . import state
 
 S = st.session_state
@@ -114,6 +114,10 @@ def detail_section(result, option):
     if option.current_settings:
         st.markdown("**Field setting for each end of the welding range**")
         _table(("Welding current", "Field", "Terminal voltage", "No-load voltage"), current_setting_rows(option))
+    if plan_table(option):
+        st.markdown(f"**Charge plan** at {_md(condition_words(option)['setting'])}: only the field changes between stages")
+        _table(PLAN_HEADERS, plan_table(option))
+        _table(("Reverse-current cut-out", "Figure"), cutout_rows(option))
     st.subheader("Cautions")
     rest = [c for c in all_c if c.severity != "stop"]
     for c in rest:

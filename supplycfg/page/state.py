@@ -220,14 +220,14 @@ def charge(machine_toml, profile_toml, rank):
     if res is None or res.profile.kind != "battery":
         return None, err
     try:
-        from ..simulation import charge_run
+        from ..simulation import charge_run_for_option
     except ImportError:
         return None, "the charge run is not available in this version"
     opt = next((o for o in res.options if o.rank == rank), None)
     if opt is None:
         return None, None
     try:
-        return charge_run(res.machine, res.profile, opt.setting), None
+        return charge_run_for_option(res.machine, res.profile, opt), None
     except InputError as e:
         return None, str(e)
     except Exception as e:
