@@ -445,10 +445,10 @@ def _html_cautions(cautions):
 def chart_svgs(result, option, run=None, other_taps=(), width=SHEET_CHART_WIDTH):
     """``[(title, svg text)]`` of the option's charts, exported with vl-convert."""
     import vl_convert as vlc
-    from .charts import option_charts
+    from .charts import chart_spec, option_charts
     out = []
     for _, title, ch in option_charts(result.machine, result.profile, option, other_taps, run, width):
-        svg = vlc.vegalite_to_svg(ch.to_dict())
+        svg = vlc.vegalite_to_svg(chart_spec(ch))
         out.append((title, _clean_svg(svg)))
     return out
 

@@ -255,7 +255,7 @@ def chart_specs(machine_toml, profile_toml, rank, trim):
     taps = other_tap_options(res, opt) if res.profile.kind == "welding" else ()
     try:
         out = charts.option_charts(res.machine, res.profile, shown, taps, run)
-        return [(name, title, ch.to_dict(validate=False)) for name, title, ch in out], None
+        return [(name, title, charts.chart_spec(ch, validate=False)) for name, title, ch in out], None
     except InputError as e:
         return [], str(e)
     except Exception as e:
