@@ -30,10 +30,23 @@ def _quiet():
         yield
 
 
-def fresh():
+def fresh(forms=True):
+    """The page as opened, with the machine and job forms shown (they are drawn only when asked for)."""
     at = AppTest.from_file(APP, default_timeout=60).run()
     assert not at.exception, at.exception
+    if forms:
+        at.toggle(key="show_machine_form").set_value(True)
+        at.toggle(key="show_profile_form").set_value(True).run()
+        assert not at.exception, at.exception
     return at
+
+
+def test_forms_are_drawn_only_when_asked_for():
+    """On load the forms are folded away (no text fields); the toggles show them."""
+    at = fresh(forms=False)
+    assert not any(t.label == "Poles" for t in at.text_input)
+    at.toggle(key="show_machine_form").set_value(True).run()
+    assert any(t.label == "Poles" for t in at.text_input)
 
 
 def options_table(at):
@@ -121,7 +134,7 @@ def test_recommended_card_comes_first_with_setting_reason_and_checks():
 @pytest.mark.parametrize("kind", ["welding", "lighting", "booster", "battery"])
 def test_each_load_kind_runs(kind):
     """Choosing each kind loads its demo job and its paired demo machine and solves it."""
-    at = AppTest.from_file(APP, default_timeout=60).run()
+    at = fresh(forms=False)
     at.radio(key="kind_pick").set_value(kind).run()
     assert not at.exception, at.exception
     assert at.session_state["kind"] == kind

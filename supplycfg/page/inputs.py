@@ -70,7 +70,10 @@ def machine_section():
     label = S.machine_tables["machine"].get("label") or "(no name)"
     st.markdown(f"In use: **{md_data(label)}**, from {_origin_text(S.machine_origin)}.")
     err = S.machine_error
-    with st.expander("See or change the machine data", expanded=bool(err)):
+    # the form is drawn only when asked for: its forty fields and two tables cost the browser time on load
+    if err:
+        S.show_machine_form = True
+    if st.toggle("See or change the machine data", key="show_machine_form"):
         _machine_form(err)
 
 
@@ -140,7 +143,9 @@ def job_section():
     st.markdown(f"In use: **{md_data(label)}** ({fields.KIND_LABELS[S.kind].lower()}), "
                 f"from {_origin_text(S.profile_origin)}.")
     err = S.profile_error
-    with st.expander("See or change what the load needs", expanded=bool(err)):
+    if err:
+        S.show_profile_form = True
+    if st.toggle("See or change what the load needs", key="show_profile_form"):
         _profile_form(err)
 
 

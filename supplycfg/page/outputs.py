@@ -245,8 +245,11 @@ def _slug(text):
 def downloads_section(result, option, run, key, machine_toml, profile_toml):
     st.header("Take it to the machine", anchor="sheet")
     st.markdown("The printable sheet puts the setting, the wiring and the checks on its first A4 page.")
-    md = sheet_markdown(result, option.rank, run)
-    S["sheet_markdown"] = md
+    md_key = f"{key}:{option.rank}:{date.today().isoformat()}:md"
+    if S.get("sheet_markdown_key") != md_key:
+        S["sheet_markdown"] = sheet_markdown(result, option.rank, run)
+        S["sheet_markdown_key"] = md_key
+    md = S["sheet_markdown"]
     base = f"{_slug(result.machine.label)}-option-{option.rank}"
     html_key = f"{key}:{option.rank}:{date.today().isoformat()}"  # the sheet prints its date
     res, rank = result, option.rank
@@ -254,7 +257,7 @@ def downloads_section(result, option, run, key, machine_toml, profile_toml):
         "sheet.html": (f"setting-sheet-{base}.html", lambda: state.sheet_html_cached(html_key, res, rank, run),
                        "text/html", "Setting sheet to print (.html)"),
         "sheet.md": (f"setting-sheet-{base}.md", md, "text/markdown", "Setting sheet as text (.md)"),
-        "result.json": (f"search-{_slug(result.machine.label)}.json", dumps_json(result.as_dict()),
+        "result.json": (f"search-{_slug(result.machine.label)}.json", lambda: dumps_json(res.as_dict()),
                         "application/json", "Search result (.json)"),
         "machine.toml": (f"{_slug(result.machine.label)}.toml", machine_toml, "application/toml",
                          "Machine data (.toml)"),
