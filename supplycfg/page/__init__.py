@@ -31,6 +31,10 @@ PAGE_CSS = """
 }
 [data-testid="stMainBlockContainer"], .block-container { padding-top: 3rem !important; }
 .st-key-recommended { border-left: 6px solid #1f4e79 !important; }
+table.sc-table { width: 100%; border-collapse: collapse; font-size: .9rem; margin: .2rem 0 .6rem; }
+table.sc-table th, table.sc-table td { border: 1px solid #d5dae0; padding: .25rem .5rem; text-align: left;
+  vertical-align: top; }
+table.sc-table th { background: #f0f2f5; font-weight: 600; }
 .st-key-wiring img { max-height: 380px; object-fit: contain; }
 </style>
 """
