@@ -2,7 +2,9 @@
 
 Targets on a 2-core machine (from the issues): ``characteristic_ms`` <= 5,
 ``grid_seconds`` <= 0.5, ``search_seconds`` <= 0.3, ``charge_run_seconds``
-<= 0.1, ``app_first_render_seconds`` <= 3, ``app_change_seconds`` <= 0.3.
+<= 0.1, ``app_first_render_seconds`` <= 3, ``app_change_seconds`` <= 0.3,
+``browser_render_seconds`` <= 4 (load to last chart in chromium; skipped when
+chromium or playwright is absent).
 """
 
 import platform
@@ -19,7 +21,9 @@ DEMO_PAIRS = (("charging-set", "battery-charging"), ("welding-set", "welding"),
 MAX_BENCH_REPEAT = 20
 TARGETS = {"characteristic_ms": 5.0, "grid_seconds": 0.5, "search_seconds": 0.3,
            "charge_run_seconds": 0.1, "app_first_render_seconds": 3.0, "app_change_seconds": 0.3,
-           "fleet_seconds": 3.0}
+           "fleet_seconds": 3.0, "browser_render_seconds": 4.0}
+#: Measures that are skipped (None) where a tool they need is absent.
+OPTIONAL = ("browser_render_seconds",)
 
 
 def _median(fn, repeat):
@@ -139,6 +143,11 @@ def run_bench(repeat=5):
     except ImportError:
         res["app_first_render_seconds"] = None
         res["app_change_seconds"] = None
+    try:
+        from .page.timing import time_browser
+        res["browser_render_seconds"] = _quiet(time_browser, max(1, min(repeat, 3)))
+    except ImportError:
+        res["browser_render_seconds"] = None
     res["targets"] = TARGETS
     res["met"] = {k: (res.get(k) is not None and res[k] <= v) for k, v in TARGETS.items()}
     return res
@@ -150,7 +159,8 @@ def bench_text(res):
     for k, target in TARGETS.items():
         v = res.get(k)
         val = "-" if v is None else f"{v:.4g}"
-        lines.append(f"{k:<28} {val:>12} {target:>10g}  {'yes' if res['met'][k] else 'NO'}")
+        met = "skipped (chromium absent)" if v is None and k in OPTIONAL else ("yes" if res["met"][k] else "NO")
+        lines.append(f"{k:<28} {val:>12} {target:>10g}  {met}")
     lines.append("")
     lines.append(f"grid_candidates {res['grid_candidates']}; candidates_evaluated (slowest search) {res['candidates_evaluated']}")
     for k, v in res["search_seconds_by_profile"].items():

@@ -3,8 +3,13 @@
 Every function returns an Altair chart built from what the core computes; no
 function here touches Streamlit. Each chart carries tooltips and a zoom (drag
 to pan, wheel to zoom, double-click to reset) through a parameter named
-``zoom``; the data travel inline so ``chart.to_dict()`` is self-contained and
+``zoom``; the data travel inline so :func:`chart_spec` is self-contained and
 exports to SVG with ``vl-convert``.
+
+Every limit is a labelled line or band in a legend; lines differ by dash
+pattern as well as colour (a palette published for colour-blind readers);
+the chosen option is drawn bold and other options thin and grey; the axes
+fit the data; all text is dark on white (contrast above 4.5:1).
 """
 
 from dataclasses import replace
@@ -15,24 +20,65 @@ import numpy as np
 from .circuit import (SELF_EXCITED, SEPARATE, Load, Setting, check_setting, external_characteristic,
                       operating_points, self_excitation)
 from .magnetisation import OpenCircuitCurve, copper_resistance_factor
+from .wording import connection_words
 
-#: Our own palette: ink for the machine, earth tones for loads and limits.
-INK = "#23395b"
-SLATE = "#5c6b7a"
-COPPER = "#b5651d"
-MOSS = "#4f7a28"
-PLUM = "#7a3b69"
-RUST = "#a4372a"
-SAND = "#d9c9a3"
-TEAL = "#1d7874"
-SERIES_COLOURS = (INK, COPPER, TEAL, PLUM, MOSS, SLATE, RUST)
+#: Line colours: the Okabe-Ito palette, published to stay distinct for readers with any common
+#: colour-vision deficiency (Okabe & Ito 2008, "Color Universal Design"); its yellow is left out
+#: (too pale on white).
+BLUE = "#0072B2"
+VERMILLION = "#D55E00"
+GREEN = "#009E73"
+PURPLE = "#CC79A7"
+ORANGE = "#E69F00"
+SKY = "#56B4E9"
+BLACK = "#000000"
+#: Muted lines (other options, the rheostat's extremes): a mid grey.
+GREY = "#767676"
+#: The required band's fill (with its opacity it stays light behind the lines).
+SAND = "#E69F00"
+#: Text and axes: contrast 16:1 on white (WCAG 2.1 asks at least 4.5:1 for text).
+TEXT = "#1b1f24"
+#: Grid lines (not text).
+GRID = "#dde1e6"
+SERIES_COLOURS = (BLUE, VERMILLION, GREEN, PURPLE, ORANGE, SKY, BLACK)
+#: Dash patterns [on, off px]: solid for the machine, each limit or load line its own pattern,
+#: so lines differ by more than colour.
+SOLID = [1, 0]
+DASHES = {"long": [8, 4], "short": [3, 3], "dot": [1.5, 3], "dash-dot": [8, 3, 2, 3], "long-short": [12, 4, 4, 4],
+          "dense": [5, 2]}
+#: Line widths [px]: the chosen option bold, others muted.
+BOLD, NORMAL, THIN = 3.0, 1.8, 1.3
 POINT_SHAPES = ("circle", "square", "triangle-up", "diamond", "cross")
-#: Height of each chart [px]; widths follow the page (or the sheet's ``width``).
-HEIGHT = 300
+#: Height of each chart's plot [px]; widths follow the page (or the sheet's ``width``).
+HEIGHT = 280
 #: Fit the width to the page or sheet; the height is the plot's, legend below it.
 FIT_WIDTH = alt.AutoSizeParams(type="fit-x", contains="padding")
 #: Points along each external characteristic.
 CURVE_POINTS = 160
+#: Text style of every chart: dark on white, sizes a phone can read.
+CHART_CONFIG = {
+    "font": "DejaVu Sans, Helvetica, Arial, sans-serif",
+    "axis": {"labelColor": TEXT, "titleColor": TEXT, "domainColor": TEXT, "tickColor": TEXT, "gridColor": GRID,
+             "labelFontSize": 11, "titleFontSize": 12, "titleFontWeight": "normal"},
+    "legend": {"labelColor": TEXT, "titleColor": TEXT, "labelFontSize": 11, "labelLimit": 0, "symbolStrokeWidth": 2.5,
+               "symbolSize": 300, "orient": "bottom", "direction": "vertical", "columns": 1, "rowPadding": 3},
+    "title": {"color": TEXT, "subtitleColor": TEXT, "fontSize": 13, "subtitleFontSize": 11, "anchor": "start",
+              "limit": 0, "fontWeight": "bold"},
+    "view": {"stroke": GRID},
+    "background": "#ffffff",
+}
+
+
+#: Several legends below a chart stack one above the other (a Vega legend-layout setting that
+#: Altair's schema does not know, so it is added to the finished spec by :func:`chart_spec`).
+LEGEND_LAYOUT = {"bottom": {"anchor": "start", "direction": "vertical", "margin": 6}}
+
+
+def chart_spec(chart, validate=True):
+    """The Vega-Lite spec of a chart, legends stacked: what the page and the sheet draw."""
+    spec = chart.to_dict(validate=validate)
+    spec.setdefault("config", {}).setdefault("legend", {})["layout"] = LEGEND_LAYOUT
+    return spec
 
 
 def _f(v, digits=4):
@@ -49,16 +95,45 @@ def _zoom():
     return alt.selection_interval(bind="scales", name="zoom")
 
 
-def _colour_scale(labels, colours=None):
-    labels = list(dict.fromkeys(labels))
-    colours = list(colours or [])
-    rng = [colours[i] if i < len(colours) and colours[i] else SERIES_COLOURS[i % len(SERIES_COLOURS)]
-           for i in range(len(labels))]
-    return alt.Scale(domain=labels, range=rng)
+class _Styles:
+    """Colour, dash, width and opacity per series label: one legend shows them all."""
+
+    def __init__(self):
+        self.items = {}
+
+    def add(self, label, colour=None, dash=None, width=NORMAL, muted=False):
+        if label in self.items:
+            return label
+        colour = colour or SERIES_COLOURS[len(self.items) % len(SERIES_COLOURS)]
+        self.items[label] = (GREY if muted and colour is None else colour, dash or SOLID,
+                             THIN if muted else width, 0.7 if muted else 1.0)
+        return label
+
+    def _scale(self, j):
+        labels = list(self.items)
+        return alt.Scale(domain=labels, range=[self.items[k][j] for k in labels])
+
+    def encodings(self, legend=True):
+        """color, strokeDash, strokeWidth and opacity on ``series``, merged into one legend."""
+        leg = _legend() if legend else None
+        return {"color": alt.Color("series:N", scale=self._scale(0), legend=leg),
+                "strokeDash": alt.StrokeDash("series:N", scale=self._scale(1), legend=leg),
+                "strokeWidth": alt.StrokeWidth("series:N", scale=self._scale(2), legend=leg),
+                "opacity": alt.Opacity("series:N", scale=self._scale(3), legend=leg)}
+
+    def colour(self, legend=False):
+        return alt.Color("series:N", scale=self._scale(0), legend=_legend() if legend else None)
 
 
 def _legend():
-    return alt.Legend(orient="bottom", columns=1, title=None, labelLimit=420, symbolStrokeWidth=3)
+    return alt.Legend(orient="bottom", columns=1, title=None, labelLimit=0, symbolType="stroke", symbolSize=500)
+
+
+def _band_fill(labels):
+    """The required bands' fill, with a legend entry of their own (a square)."""
+    return alt.Fill("band:N", scale=alt.Scale(domain=list(labels), range=[SAND] * len(labels)),
+                    legend=alt.Legend(orient="bottom", title=None, labelLimit=0, symbolType="square",
+                                      symbolOpacity=0.35, symbolSize=200))
 
 
 class _Sets:
@@ -76,11 +151,32 @@ class _Sets:
         return alt.NamedData(name=name)
 
 
+def split_extrapolated(rows, ext_label):
+    """Rows of one curve with the extrapolated part relabelled ``ext_label`` (its own legend entry).
+
+    The last measured point is repeated under ``ext_label`` so the two parts
+    join.
+    """
+    out = []
+    for r in sorted(rows, key=lambda r: r["order"]):
+        if r["extrapolated"] == "yes":
+            if out and out[-1]["extrapolated"] == "no":
+                out.append(dict(out[-1], series=ext_label))
+            out.append(dict(r, series=ext_label))
+        else:
+            out.append(r)
+    return out
+
+
+def _title(text, subtitle=None):
+    return alt.TitleParams(text=text, subtitle=subtitle) if subtitle else text
+
+
 def _layered(layers, title, sets, width=None):
     layers = [ly for ly in layers if ly is not None]
     kw = {"width": width} if width is not None else {}
     return alt.LayerChart(layer=layers, datasets=sets.data, title=title, height=HEIGHT, autosize=FIT_WIDTH,
-                          resolve=alt.Resolve(scale=alt.ScaleResolveMap(color="shared")), **kw)
+                          config=CHART_CONFIG, **kw)
 
 
 # ---------------------------------------------------------------------------
@@ -131,40 +227,44 @@ def occ_chart(machine, setting=None, temperatures_c=None, width=None):
                             machine.excitation_voltage_v / rf))
     exc_a = max((a for _, a in exc), default=0.0)
     x_top = 1.15 * max(x_last, exc_a or 0.0)
-    xs = np.linspace(0.0, x_top, 180)
+    xs = np.union1d(np.linspace(0.0, x_top, 180), [x_last])
     es = ratio * occ.emf(xs)
     e_top = float(es.max())
     speed_note = f"at {st.speed_rpm:.5g} rpm"
-    curve_label = f"open-circuit characteristic {speed_note}"
+    curve_label = "open-circuit characteristic"
     curve = [{"series": curve_label, "field_current_a": _f(x), "emf_v": _f(e),
               "extrapolated": "yes" if x > x_last * (1 + 1e-9) else "no", "order": i}
              for i, (x, e) in enumerate(zip(xs, es))]
-    # dashed part must join the solid one: repeat the last measured point
-    curve.append({"series": curve_label, "field_current_a": _f(x_last), "emf_v": _f(ratio * occ.emf(x_last)),
-                  "extrapolated": "yes", "order": -1})
+    # the part beyond the test is its own series (dashed, in the legend), from the last measured point
+    ext_label = f"{curve_label}: beyond the test points"
+    curve = split_extrapolated(curve, ext_label)
     pts = [{"series": curve_label, "field_current_a": _f(x), "emf_v": _f(ratio * e),
             "measured_at_rpm": _f(machine.occ_speed_rpm, 6)}
            for x, e in zip(machine.occ_field_current_a, machine.occ_emf_v)]
 
-    lines, colours, marks = [], [], []
+    styles = _Styles()
+    styles.add(curve_label, BLUE, SOLID, BOLD)
+    if any(r["series"] == ext_label for r in curve):
+        styles.add(ext_label, BLUE, DASHES["short"], NORMAL)
+    lines, marks = [], []
 
-    def field_line(label, r_ohm, colour):
+    def field_line(label, r_ohm, colour, dash, width=NORMAL, muted=False):
         if r_ohm <= 0:
             return
         x_end = min(x_top, e_top / r_ohm)
         for j, x in enumerate((0.0, x_end)):
             lines.append({"series": label, "field_current_a": _f(x), "emf_v": _f(r_ohm * x),
                           "resistance_ohm": _f(r_ohm), "order": j})
-        colours.append(colour)
+        styles.add(label, colour, dash, width, muted)
 
     rsh = machine.shunt_field_resistance_ohm
     kt = {t: float(copper_resistance_factor(t, machine.reference_temperature_c)) for t in temps}
     if st.connection in SELF_EXCITED:
-        tone = (TEAL, COPPER) if len(temps) > 1 else (COPPER,)
-        for t, c in zip(temps, tone):
+        tones = ((VERMILLION, DASHES["long"]), (GREEN, DASHES["dash-dot"]))
+        for t, (c, dash) in zip(temps, tones if len(temps) > 1 else tones[:1]):
             r = rsh * kt[t] + st.rheostat_ohm
-            lab = f"this setting: field circuit {r:.4g} Ω, windings {t:g} °C"
-            field_line(lab, r, c)
+            lab = f"this setting: {r:.4g} Ω field circuit, {t:g} °C"
+            field_line(lab, r, c, dash, BOLD)
             se = self_excitation(machine, st.rheostat_ohm, st.speed_rpm, t)
             if se.no_load_voltage_v is not None:
                 marks.append({"series": lab, "point": "built-up no-load point",
@@ -173,52 +273,50 @@ def occ_chart(machine, setting=None, temperatures_c=None, width=None):
                               "builds_up": "yes" if se.builds_up else "no: " + "; ".join(se.reasons)})
         r_lo = rsh * kt[temps[0]]
         r_hi = rsh * kt[temps[-1]] + machine.rheostat_max_ohm
-        field_line(f"rheostat cut out: {r_lo:.4g} Ω (windings {temps[0]:g} °C)", r_lo, MOSS)
+        field_line(f"rheostat cut out: {r_lo:.4g} Ω ({temps[0]:g} °C)", r_lo, GREY, DASHES["short"], muted=True)
         if machine.rheostat_max_ohm > 0:
-            field_line(f"rheostat all in: {r_hi:.4g} Ω (windings {temps[-1]:g} °C)", r_hi, PLUM)
+            field_line(f"rheostat all in: {r_hi:.4g} Ω ({temps[-1]:g} °C)", r_hi, GREY, DASHES["dot"], muted=True)
     if st.connection in SELF_EXCITED:
         r_crit = ratio * occ.air_gap_slope()
-        field_line(f"critical field resistance {r_crit:.4g} Ω {speed_note}", r_crit, RUST)
+        field_line(f"critical field resistance {r_crit:.4g} Ω", r_crit, PURPLE, DASHES["long-short"])
     for lab, a in exc:
         marks.append({"series": curve_label, "point": f"no-load point, {lab}", "field_current_a": _f(a),
                       "emf_v": _f(ratio * float(occ.emf(a))), "builds_up": "separately excited"})
 
     x_title, y_title = "Field current [A]", "EMF / terminal voltage [V]"
-    labels = [curve_label] + list(dict.fromkeys(r["series"] for r in lines))
-    scale = _colour_scale(labels, [INK] + colours)
-    enc_c = alt.Color("series:N", scale=scale, legend=_legend())
+    enc = styles.encodings()
     sets = _Sets()
-    base = alt.Chart(sets("occ", curve)).mark_line(strokeWidth=2.6, clip=True).encode(
+    base = alt.Chart(sets("occ", curve)).mark_line(clip=True).encode(
         x=alt.X("field_current_a:Q", title=x_title, scale=alt.Scale(domain=[0, _f(x_top)])),
         y=alt.Y("emf_v:Q", title=y_title, scale=alt.Scale(domain=[0, _f(1.08 * e_top)])),
-        color=enc_c, detail=alt.Detail("extrapolated:N"), order=alt.Order("order:Q"),
-        strokeDash=alt.StrokeDash("extrapolated:N", legend=None,
-                                  scale=alt.Scale(domain=["no", "yes"], range=[[1, 0], [6, 4]])),
+        detail=alt.Detail("series:N"), order=alt.Order("order:Q"),
         tooltip=[alt.Tooltip("field_current_a:Q", title="field current [A]"),
                  alt.Tooltip("emf_v:Q", title="EMF [V]"),
-                 alt.Tooltip("extrapolated:N", title="beyond the measured points")],
+                 alt.Tooltip("extrapolated:N", title="beyond the measured points")], **enc,
     ).add_params(_zoom())
     measured = alt.Chart(sets("measured", pts)).mark_point(filled=True, size=36, shape="diamond").encode(
-        x=alt.X("field_current_a:Q"), y=alt.Y("emf_v:Q"), color=enc_c,
+        x=alt.X("field_current_a:Q"), y=alt.Y("emf_v:Q"), color=styles.colour(),
         tooltip=[alt.Tooltip("field_current_a:Q", title="field current [A]"),
                  alt.Tooltip("emf_v:Q", title="EMF at this speed [V]"),
                  alt.Tooltip("measured_at_rpm:Q", title="measured at [rpm]")])
     layer_lines = None
     if lines:
-        layer_lines = alt.Chart(sets("field_lines", lines)).mark_line(strokeWidth=1.8, clip=True).encode(
-            x=alt.X("field_current_a:Q"), y=alt.Y("emf_v:Q"), color=enc_c, detail=alt.Detail("series:N"), order=alt.Order("order:Q"),
+        layer_lines = alt.Chart(sets("field_lines", lines)).mark_line(clip=True).encode(
+            x=alt.X("field_current_a:Q"), y=alt.Y("emf_v:Q"), detail=alt.Detail("series:N"),
+            order=alt.Order("order:Q"),
             tooltip=[alt.Tooltip("series:N", title="line"),
-                     alt.Tooltip("resistance_ohm:Q", title="resistance [ohm]")])
+                     alt.Tooltip("resistance_ohm:Q", title="resistance [ohm]")], **enc)
     layer_marks = None
     if marks:
         layer_marks = alt.Chart(sets("no_load", marks)).mark_point(size=130, filled=False, strokeWidth=2.6).encode(
-            x=alt.X("field_current_a:Q"), y=alt.Y("emf_v:Q"), color=alt.Color("series:N", scale=scale, legend=None),
-            shape=alt.Shape("point:N", legend=_legend(), scale=alt.Scale(range=list(POINT_SHAPES))),
+            x=alt.X("field_current_a:Q"), y=alt.Y("emf_v:Q"), color=styles.colour(),
+            shape=alt.Shape("point:N", legend=alt.Legend(orient="bottom", title=None, labelLimit=0),
+                            scale=alt.Scale(range=list(POINT_SHAPES))),
             tooltip=[alt.Tooltip("series:N", title="point"), alt.Tooltip("field_current_a:Q", title="field current [A]"),
                      alt.Tooltip("emf_v:Q", title="no-load voltage [V]"),
                      alt.Tooltip("builds_up:N", title="builds up from residual")])
     return _layered([base, measured, layer_lines, layer_marks],
-                    "Open-circuit characteristic and field-circuit lines", sets, width)
+                    _title("Open-circuit characteristic", f"with the field-circuit lines, {speed_note}"), sets, width)
 
 
 # ---------------------------------------------------------------------------
@@ -241,16 +339,21 @@ def curve_rows(label, characteristic, x_key="load_current_a", y_key="terminal_vo
 def characteristic_chart(curves, loads=(), bands=(), points=(), title="External characteristic and the load",
                          x_title="Load current [A]", y_title="Terminal voltage [V]", width=None,
                          x_domain=None, y_domain=None):
-    """Machine curves, load lines, required bands and operating points in one chart.
+    """Machine curves, load and limit lines, required bands and operating points in one chart.
 
     Parameters
     ----------
     curves : list of dict
-        ``{"label", "rows"}`` with rows from :func:`curve_rows`, optionally ``"colour"``.
+        ``{"label", "rows"}`` with rows from :func:`curve_rows`; optionally
+        ``"colour"``, ``"dash"``, ``"width"`` and ``"muted"`` (another
+        option, drawn thin and grey-toned). Extrapolated parts get their own
+        legend entry.
     loads : list of dict
-        ``{"label", "load_current_a": [...], "terminal_voltage_v": [...]}`` (a polyline).
+        ``{"label", "load_current_a": [...], "terminal_voltage_v": [...]}`` (a
+        polyline: a load line or a limit), optionally ``"colour"``, ``"dash"``.
     bands : list of dict
-        ``{"label", "i_min", "i_max", "v_min", "v_max"}``: what the job needs.
+        ``{"label", "i_min", "i_max", "v_min", "v_max"}``: what the job needs,
+        shaded, with a legend entry of its own.
     points : list of dict
         ``{"label", "load_current_a", "terminal_voltage_v", "stable"}``, optionally
         ``"curve"``: the label of the curve it lies on (its colour); the label
@@ -262,26 +365,30 @@ def characteristic_chart(curves, loads=(), bands=(), points=(), title="External 
     -------
     alt.LayerChart
     """
-    labels, colours = [], []
+    styles = _Styles()
     rows = []
-    for j, c in enumerate(curves):
-        labels.append(c["label"]); colours.append(c.get("colour"))
-        rows += [dict(r, series=c["label"], kind="machine") for r in c["rows"]]
+    for c in curves:
+        ext = f"{c['label']}: extrapolated"
+        part = split_extrapolated([dict(r, series=c["label"]) for r in c["rows"]], ext)
+        styles.add(c["label"], c.get("colour"), c.get("dash", SOLID), c.get("width", BOLD), c.get("muted", False))
+        if any(r["series"] == ext for r in part):
+            styles.add(ext, c.get("colour"), DASHES["dot"], NORMAL, c.get("muted", False))
+        rows += [dict(r, kind="machine") for r in part]
     lrows = []
-    for c in loads:
-        labels.append(c["label"]); colours.append(c.get("colour", SLATE))
+    dash_cycle = [DASHES[k] for k in ("long", "short", "dash-dot", "dot", "long-short", "dense")]
+    for j, c in enumerate(loads):
+        styles.add(c["label"], c.get("colour", BLACK), c.get("dash", dash_cycle[j % len(dash_cycle)]),
+                   c.get("width", NORMAL))
         lrows += [{"series": c["label"], "load_current_a": _f(a), "terminal_voltage_v": _f(b), "order": i}
                   for i, (a, b) in enumerate(zip(c["load_current_a"], c["terminal_voltage_v"]))]
-    brows = [{"series": b["label"], "i_min": _f(b["i_min"]), "i_max": _f(b["i_max"]),
+    brows = [{"band": b["label"], "i_min": _f(b["i_min"]), "i_max": _f(b["i_max"]),
               "v_min": _f(b["v_min"]), "v_max": _f(b["v_max"])} for b in bands]
     prow = [{"series": p.get("curve") or p["label"], "point": p["label"], "load_current_a": _f(p["load_current_a"]),
              "terminal_voltage_v": _f(p["terminal_voltage_v"]),
              "stable": "stable" if p.get("stable", True) else "unstable (not used)"} for p in points]
     for p in prow:
-        if p["series"] not in labels:
-            labels.append(p["series"]); colours.append(RUST)
-    scale = _colour_scale(labels, colours)
-    col = alt.Color("series:N", scale=scale, legend=_legend())
+        styles.add(p["series"], VERMILLION)
+    enc = styles.encodings()
     xs = alt.Scale(domain=list(x_domain)) if x_domain else alt.Undefined
     ys = alt.Scale(domain=list(y_domain)) if y_domain else alt.Undefined
     xq = alt.X("load_current_a:Q", title=x_title, scale=xs)
@@ -289,32 +396,31 @@ def characteristic_chart(curves, loads=(), bands=(), points=(), title="External 
     layers = []
     sets = _Sets()
     if brows:
-        layers.append(alt.Chart(sets("bands", brows)).mark_rect(opacity=0.35, color=SAND).encode(
+        layers.append(alt.Chart(sets("bands", brows)).mark_rect(opacity=0.22).encode(
             x=alt.X("i_min:Q", title=x_title, scale=xs), x2=alt.X2("i_max:Q"),
             y=alt.Y("v_min:Q", title=y_title, scale=ys), y2=alt.Y2("v_max:Q"),
-            tooltip=[alt.Tooltip("series:N", title="required"), alt.Tooltip("i_min:Q", title="from [A]"),
+            fill=_band_fill([b["band"] for b in brows]),
+            tooltip=[alt.Tooltip("band:N", title="required"), alt.Tooltip("i_min:Q", title="from [A]"),
                      alt.Tooltip("i_max:Q", title="to [A]"), alt.Tooltip("v_min:Q", title="lowest [V]"),
                      alt.Tooltip("v_max:Q", title="highest [V]")]))
     if rows:
-        layers.append(alt.Chart(sets("curves", rows)).mark_line(strokeWidth=2.4, clip=True).encode(
-            x=xq, y=yq, color=col, detail=alt.Detail("series:N"), order=alt.Order("order:Q"),
-            strokeDash=alt.StrokeDash("extrapolated:N", legend=None,
-                                      scale=alt.Scale(domain=["no", "yes"], range=[[1, 0], [6, 4]])),
+        layers.append(alt.Chart(sets("curves", rows)).mark_line(clip=True).encode(
+            x=xq, y=yq, detail=alt.Detail("series:N"), order=alt.Order("order:Q"),
             tooltip=[alt.Tooltip("series:N", title="curve"), alt.Tooltip("load_current_a:Q", title="load current [A]"),
                      alt.Tooltip("terminal_voltage_v:Q", title="voltage [V]"),
-                     alt.Tooltip("extrapolated:N", title="beyond the measured OCC")]))
+                     alt.Tooltip("extrapolated:N", title="beyond the measured OCC")], **enc))
     if lrows:
-        layers.append(alt.Chart(sets("loads", lrows)).mark_line(strokeWidth=1.6, strokeDash=[2, 2],
-                                                                   clip=True).encode(
-            x=xq, y=yq, color=col, detail=alt.Detail("series:N"), order=alt.Order("order:Q"),
-            tooltip=[alt.Tooltip("series:N", title="load"), alt.Tooltip("load_current_a:Q", title="current [A]"),
-                     alt.Tooltip("terminal_voltage_v:Q", title="voltage [V]")]))
+        layers.append(alt.Chart(sets("loads", lrows)).mark_line(clip=True).encode(
+            x=xq, y=yq, detail=alt.Detail("series:N"), order=alt.Order("order:Q"),
+            tooltip=[alt.Tooltip("series:N", title="line"), alt.Tooltip("load_current_a:Q", title="current [A]"),
+                     alt.Tooltip("terminal_voltage_v:Q", title="voltage [V]")], **enc))
     if prow:
-        layers.append(alt.Chart(sets("points", prow)).mark_point(size=130, filled=True).encode(
-            x=xq, y=yq, color=alt.Color("series:N", scale=scale, legend=None),
-            shape=alt.Shape("point:N", legend=_legend(), scale=alt.Scale(range=list(POINT_SHAPES))),
-            opacity=alt.Opacity("stable:N", legend=None,
-                                scale=alt.Scale(domain=["stable", "unstable (not used)"], range=[1.0, 0.35])),
+        layers.append(alt.Chart(sets("points", prow)).mark_point(size=110, filled=True).encode(
+            x=xq, y=yq, color=styles.colour(),
+            shape=alt.Shape("point:N", legend=alt.Legend(orient="bottom", title=None, labelLimit=0),
+                            scale=alt.Scale(range=list(POINT_SHAPES))),
+            fillOpacity=alt.FillOpacity("stable:N", legend=None,
+                                        scale=alt.Scale(domain=["stable", "unstable (not used)"], range=[1.0, 0.2])),
             tooltip=[alt.Tooltip("point:N", title="operating point"), alt.Tooltip("series:N", title="on"),
                      alt.Tooltip("load_current_a:Q", title="current [A]"),
                      alt.Tooltip("terminal_voltage_v:Q", title="voltage [V]"),
@@ -363,16 +469,16 @@ def battery_lines(profile, i_top):
         return lambda i: ld.bank_voltage_v(b, soc, i)
 
     cur = np.linspace(0.0, i_top, 60)
-    start = {"label": f"battery at rest, {s0:.0%} charge: {e0:.4g} V + {r:.3g} Ω x I", "colour": MOSS,
+    start = {"label": f"battery at rest, {s0:.0%} charged", "colour": GREEN, "dash": DASHES["long"],
              "load_current_a": [0.0, i_top], "terminal_voltage_v": [e0, e0 + r * i_top]}
-    start_c = {"label": f"battery on charge at {s0:.0%}", "colour": TEAL,
+    start_c = {"label": f"battery on charge, {s0:.0%} charged", "colour": SKY, "dash": DASHES["dash-dot"],
                "load_current_a": list(cur), "terminal_voltage_v": list(on_charge(s0)(cur))}
-    end = {"label": f"battery on charge at {s1:.0%}", "colour": PLUM,
+    end = {"label": f"battery on charge, {s1:.0%} charged", "colour": PURPLE, "dash": DASHES["dot"],
            "load_current_a": list(cur), "terminal_voltage_v": list(on_charge(s1)(cur))}
     vho = b.cells * ld.handover_volts_per_cell(b)
-    limit = {"label": f"hand-over to the finish {vho / b.cells:.3g} V per cell ({vho:.4g} V)", "colour": RUST,
-             "load_current_a": [0.0, i_top], "terminal_voltage_v": [vho, vho]}
-    band = {"label": f"main charge {b.min_charge_current_a:g} to {b.max_charge_current_a:g} A",
+    limit = {"label": f"hand-over to the finish {vho / b.cells:.3g} V per cell ({vho:.4g} V)", "colour": BLACK,
+             "dash": DASHES["long-short"], "load_current_a": [0.0, i_top], "terminal_voltage_v": [vho, vho]}
+    band = {"label": f"main charge wanted: {b.min_charge_current_a:g} to {b.max_charge_current_a:g} A",
             "i_min": b.min_charge_current_a, "i_max": b.max_charge_current_a,
             "v_min": e0, "v_max": vho}
     return [start, start_c, end, limit], [band], Load.battery(e0, r), on_charge
@@ -395,13 +501,15 @@ def crossing(characteristic, v_load):
     return float(il[j] + w * (il[j + 1] - il[j])), float(v[j] + w * (v[j + 1] - v[j]))
 
 
-def battery_chart(machine, profile, setting, width=None, finish_setting=None):
+def battery_chart(machine, profile, setting, width=None, figures=None, finish_setting=None):
     """External characteristic of the setting (cold and hot windings) against the battery.
 
     Operating points: the charge at the start (rest-voltage line) and at the
-    end state of charge (charging-voltage model), on each curve. With
-    ``finish_setting`` (the plan's second stage) its curve at the setting's
-    own temperature is drawn too.
+    end state of charge (charging-voltage model), on each curve. With the
+    option's ``figures``, the gassing voltage of the bank is drawn as a limit
+    line too. The voltage axis starts near the battery's voltages, not at 0.
+    With ``finish_setting`` (the plan's second stage) its curve at the
+    setting's own temperature is drawn too.
     """
     b = profile.battery
     temps = _temperatures(profile, machine)
@@ -410,14 +518,20 @@ def battery_chart(machine, profile, setting, width=None, finish_setting=None):
         ch = setting_curve(machine, replace(setting, winding_temperature_c=t))
         lab = f"machine, main charge, windings {t:g} °C"
         chars.append((t, lab, ch))
-        curves.append({"label": lab, "colour": (INK, COPPER)[j % 2], "rows": curve_rows(lab, ch)})
+        curves.append({"label": lab, "colour": (BLUE, VERMILLION)[j % 2], "dash": SOLID if j == 0 else DASHES["dense"],
+                       "rows": curve_rows(lab, ch)})
     if finish_setting is not None:
         fs = check_setting(machine, finish_setting)
         ch = setting_curve(machine, fs)
         lab = f"machine, finish, windings {fs.winding_temperature_c:g} °C"
-        curves.append({"label": lab, "colour": SLATE, "rows": curve_rows(lab, ch)})
+        curves.append({"label": lab, "colour": GREEN, "dash": DASHES["long"], "rows": curve_rows(lab, ch)})
     i_top = 1.6 * b.max_charge_current_a
     lines, bands, start, on_charge = battery_lines(profile, i_top)
+    gas = (figures or {}).get("gassing_volts_per_cell")
+    if gas is not None and np.isfinite(gas):
+        vg = float(gas) * b.cells
+        lines.append({"label": f"gassing voltage {gas:.3g} V per cell ({vg:.4g} V)", "colour": VERMILLION,
+                      "dash": DASHES["short"], "load_current_a": [0.0, i_top], "terminal_voltage_v": [vg, vg]})
     pts = []
     s0, s1 = b.state_of_charge
     for t, lab, ch in chars:
@@ -430,10 +544,14 @@ def battery_chart(machine, profile, setting, width=None, finish_setting=None):
             if hit is not None:
                 pts.append({"label": what, "curve": lab, "load_current_a": hit[0], "terminal_voltage_v": hit[1]})
     i_view = max([i_top] + [1.3 * p["load_current_a"] for p in pts])
-    v_view = 1.15 * max([lines[0]["terminal_voltage_v"][-1], lines[3]["terminal_voltage_v"][0]] +
-                        [c.no_load_voltage_v or 0.0 for _, _, c in chars])
+    # the view: the battery's lines, the operating points and the machine's no-load voltages, a little
+    # padded; a curve falling below it past the charging range is clipped at the bottom edge
+    seen = [v for ln in lines for v in ln["terminal_voltage_v"]] + [p["terminal_voltage_v"] for p in pts]
+    seen += [r["terminal_voltage_v"] for c in curves for r in c["rows"][:1] if r["terminal_voltage_v"] is not None]
+    v_lo, v_hi = min(seen), max(seen)
+    pad = 0.06 * (v_hi - v_lo) + 1e-9
     return characteristic_chart(curves, lines, bands, pts, "Machine against the battery", width=width,
-                                x_domain=(0, _f(i_view)), y_domain=(0, _f(v_view)))
+                                x_domain=(0, _f(i_view)), y_domain=(_f(max(0.0, v_lo - pad)), _f(v_hi + pad)))
 
 
 # --- welding ---------------------------------------------------------------
@@ -444,7 +562,7 @@ def welding_load_line(profile, i_top):
     w = profile.welding
     cur = np.linspace(0.0, i_top, 40)
     v = ld.conventional_load_voltage(w.process, cur) + cur * w.cable_resistance_ohm
-    return {"label": f"{w.process} load line at the machine (with the leads)", "colour": SLATE,
+    return {"label": f"{w.process} load line (with the leads)", "colour": BLACK, "dash": DASHES["long"],
             "load_current_a": list(cur), "terminal_voltage_v": list(v)}
 
 
@@ -491,7 +609,8 @@ def welding_chart(machine, profile, option, other_taps=(), width=None):
         st = check_setting(machine, st)
         ch = setting_curve(machine, st)
         lab = (f"set for {target:g} A: " if target is not None else "") + _tap_text(st)
-        curves.append({"label": lab, "colour": (INK, COPPER)[j % 2], "rows": curve_rows(lab, ch)})
+        curves.append({"label": lab, "colour": (BLUE, VERMILLION)[j % 2], "dash": SOLID if j == 0 else DASHES["dense"],
+                       "rows": curve_rows(lab, ch)})
         if ch.short_circuit_current_a:
             i_max = max(i_max, 1.05 * ch.short_circuit_current_a)
         op = operating_points(machine, st, line).normal
@@ -501,25 +620,66 @@ def welding_chart(machine, profile, option, other_taps=(), width=None):
     for k, opt in enumerate(other_taps):
         target, st = _end_settings(opt)[-1]
         ch = setting_curve(machine, st)
-        lab = f"other tap, {_tap_text(check_setting(machine, st))}" + (f", set for {target:g} A" if target else "")
-        curves.append({"label": lab, "colour": (TEAL, PLUM, MOSS, SLATE)[k % 4], "rows": curve_rows(lab, ch)})
+        lab = f"other tap: {_tap_text(check_setting(machine, st))}" + (f", for {target:g} A" if target else "")
+        curves.append({"label": lab, "colour": GREY, "muted": True,
+                       "dash": (DASHES["short"], DASHES["dot"], DASHES["dash-dot"], DASHES["long"])[k % 4],
+                       "rows": curve_rows(lab, ch)})
     v_hi = max([r["terminal_voltage_v"] or 0.0 for c in curves for r in c["rows"]] or [80.0])
+    limits = []
+    for value, label, colour, dash in welding_limit_lines(option, profile):
+        limits.append({"label": label, "colour": colour, "dash": dash,
+                       "load_current_a": [0.0, _f(i_max)], "terminal_voltage_v": [value, value]})
+    v_top = max([v_hi] + [ln["terminal_voltage_v"][0] for ln in limits])
     band = {"label": f"welding current wanted: {lo:g} to {hi:g} A", "i_min": lo, "i_max": hi,
-            "v_min": 0.0, "v_max": _f(1.05 * v_hi)}
-    return characteristic_chart(curves, [welding_load_line(profile, i_max)], [band], pts,
-                                "Welding characteristics and the arc load line", width=width,
-                                x_domain=(0, _f(i_max)), y_domain=(0, _f(1.1 * v_hi)))
+            "v_min": 0.0, "v_max": _f(1.05 * v_top)}
+    return characteristic_chart(curves, [welding_load_line(profile, i_max)] + limits, [band], pts,
+                                _title("Welding characteristics and the arc load line",
+                                       connection_words(option.setting.connection)), width=width,
+                                x_domain=(0, _f(i_max)), y_domain=(0, _f(1.08 * v_top)))
+
+
+def welding_limit_lines(option, profile):
+    """``[(volts, label, colour, dash)]``: the no-load limits and the strike minimum the core states.
+
+    Read from the option's margins and figures (and the job's strike
+    minimum where the profile gives one); nothing is computed here.
+    """
+    out = []
+    m, f = option.margins or {}, option.figures or {}
+    peak = (m.get("no_load_peak_voltage") or {}).get("limit", f.get("no_load_limit_v"))
+    if peak is not None:
+        out.append((float(peak), f"no-load limit {float(peak):.4g} V (peak, with ripple)", VERMILLION, DASHES["short"]))
+    mean = (m.get("no_load_mean_voltage") or {}).get("limit", f.get("no_load_mean_limit_v"))
+    if mean is not None:
+        out.append((float(mean), f"site no-load limit {float(mean):.4g} V", PURPLE, DASHES["long-short"]))
+    strike = None
+    for key in ("min_no_load_voltage_v", "strike_voltage_v", "no_load_min_limit_v"):
+        v = f.get(key)
+        if v is None:
+            v = getattr(getattr(profile, "welding", None), key, None)
+        if v is not None:
+            strike = float(v)
+            break
+    if strike is None:
+        lim = (m.get("no_load_strike_voltage") or m.get("no_load_voltage_min") or {}).get("limit")
+        strike = None if lim is None else float(lim)
+    if strike is not None and np.isfinite(strike):
+        out.append((strike, f"strike minimum {strike:.4g} V (no load)", GREEN, DASHES["dot"]))
+    return [o for o in out if np.isfinite(o[0])]
 
 
 def _tap_text(st):
-    parts = [st.connection]
+    """Short words for a welding curve: series turns and field control (the connection is in the subtitle)."""
+    parts = []
     if st.series_turns:
-        parts.append(f"{st.series_turns:g} series turns")
+        parts.append(f"{st.series_turns:g} turns")
+    if st.diverter_ohm is not None:
+        parts.append(f"diverter {st.diverter_ohm:.3g} Ω")
     if st.field_current_a is not None:
         parts.append(f"field {st.field_current_a:.3g} A")
-    elif st.rheostat_ohm is not None:
+    elif st.rheostat_ohm is not None and st.connection != "series":
         parts.append(f"rheostat {st.rheostat_ohm:.3g} Ω")
-    return ", ".join(parts)
+    return ", ".join(parts) or "series winding only"
 
 
 # --- lighting and booster: load-end voltage --------------------------------
@@ -537,24 +697,25 @@ def load_end_chart(machine, profile, setting, width=None):
     rfd = job.feeder_resistance_ohm
     curves = []
     combos = [(n, t) for n in sorted(set(_speeds(profile))) for t in sorted(set(_temperatures(profile, machine)))]
-    tones = (INK, COPPER, TEAL, PLUM, MOSS, SLATE)
+    tones = (BLUE, VERMILLION, GREEN, PURPLE, ORANGE, SKY)
+    dashes = (SOLID, DASHES["dense"], DASHES["dash-dot"], DASHES["long"], DASHES["short"], DASHES["dot"])
     for j, (n, t) in enumerate(combos):
         ch = setting_curve(machine, replace(setting, speed_rpm=n, winding_temperature_c=t))
         if kind == "lighting":
             tf = lambda il, v: v - il * rfd
         else:
             tf = lambda il, v, vb=job.bus_voltage_v: vb + v - il * rfd
-        lab = f"load end at {n:.5g} rpm, windings {t:g} °C"
+        lab = f"at {n:.5g} rpm, windings {t:g} °C"
         rows = [r for r in curve_rows(lab, ch, transform=tf)
                 if r["load_current_a"] is not None and r["load_current_a"] <= 1.25 * max(hi, 1.0)
                 and r["load_current_a"] >= -1e-9]
-        curves.append({"label": lab, "colour": tones[j % len(tones)], "rows": rows})
-    band = {"label": f"needed: {nominal:.4g} V +- {job.tolerance_percent:g} % from {lo:g} to {hi:g} A",
+        curves.append({"label": lab, "colour": tones[j % len(tones)], "dash": dashes[j % len(dashes)], "rows": rows})
+    band = {"label": f"band wanted: {nominal:.4g} V ± {job.tolerance_percent:g} %, {lo:g} to {hi:g} A",
             "i_min": lo, "i_max": hi, "v_min": nominal * (1 - tol), "v_max": nominal * (1 + tol)}
     title = "Voltage at the lamps" if kind == "lighting" else "Voltage at the far end of the boosted feeder"
     loads_ = []
     if kind == "booster":
-        loads_.append({"label": f"feeder without booster: {nominal:.4g} V - {rfd:g} Ω x I", "colour": SLATE,
+        loads_.append({"label": f"feeder without booster: {nominal:.4g} V − {rfd:g} Ω × I", "colour": BLACK,
                        "load_current_a": [0.0, 1.25 * hi], "terminal_voltage_v": [nominal, nominal - 1.25 * hi * rfd]})
     inside = [r["terminal_voltage_v"] for c in curves for r in c["rows"]
               if r["terminal_voltage_v"] is not None and lo <= r["load_current_a"] <= hi]
@@ -585,15 +746,20 @@ def charging_curves_chart(family, width=None):
     sets = _Sets()
     zoom = _zoom()
     x = alt.X("state_of_charge_pct:Q", title="State of charge [%]", scale=alt.Scale(domain=[0, 100]))
-    colour = alt.Color("series:N", scale=_colour_scale(labels), legend=_legend())
+    colour = alt.Color("series:N", scale=alt.Scale(domain=labels, range=[BLUE, VERMILLION, GREEN, PURPLE][:len(labels)]),
+                       legend=_legend())
+    dash = alt.StrokeDash("series:N", scale=alt.Scale(domain=labels, range=[SOLID, DASHES["long"], DASHES["dot"],
+                                                                               DASHES["dash-dot"]][:len(labels)]),
+                          legend=_legend())
     curves = alt.Chart(sets("curves", rows)).mark_line(strokeWidth=2.2).encode(
         x=x, y=alt.Y("volts_per_cell:Q", title="Volts per cell", scale=alt.Scale(zero=False)), color=colour,
+        strokeDash=dash,
         tooltip=[alt.Tooltip("series:N", title="current"), alt.Tooltip("state_of_charge_pct:Q", title="charge [%]"),
                  alt.Tooltip("volts_per_cell:Q", title="volts per cell"),
                  alt.Tooltip("stored_pct:Q", title="stored [% of current]")]).add_params(zoom)
     lines = [{"label": f"gassing voltage {family['gassing_volts_per_cell']:.3f} V", "v": _f(family["gassing_volts_per_cell"])},
              {"label": f"highest cell voltage {family['highest_volts_per_cell']:.3f} V", "v": _f(family["highest_volts_per_cell"])}]
-    rules = alt.Chart(sets("levels", lines)).mark_rule(color=RUST, strokeDash=[5, 3], strokeWidth=1.6).encode(
+    rules = alt.Chart(sets("levels", lines)).mark_rule(color=BLACK, strokeDash=DASHES["long-short"], strokeWidth=1.6).encode(
         y=alt.Y("v:Q"), tooltip=[alt.Tooltip("label:N", title="level")])
     title = f"Charging curves of {family['chemistry']} at {family['temperature_c']:g} °C"
     return _layered([curves, rules], title, sets, width)
@@ -603,13 +769,23 @@ def charging_curves_chart(family, width=None):
 # 3. the charge run
 # ---------------------------------------------------------------------------
 
-def charge_run_chart(run, width=None):
-    """Charging current, volts per cell (with the limit) and state of charge against time.
+def _mapping(x):
+    """A stage given as a dict or as an object with ``as_dict``."""
+    if isinstance(x, dict):
+        return x
+    return x.as_dict() if hasattr(x, "as_dict") else vars(x)
+
+
+def charge_run_chart(run, width=None, stages=None):
+    """Charging current, volts per cell (with its limits) and state of charge against time.
 
     Parameters
     ----------
     run : ChargeRun
         From :func:`supplycfg.simulation.charge_run`.
+    stages : list, optional
+        The charge plan's stages (``from_h``, ``to_h``, ...), shaded in every
+        panel; default ``run.stages`` where the run has them.
     """
     t = np.asarray(run.time_h, float)
     step = max(1, t.size // 200)
@@ -624,31 +800,67 @@ def charge_run_chart(run, width=None):
     tips = [alt.Tooltip("time_h:Q", title="time [h]"), alt.Tooltip("current_a:Q", title="current [A]"),
             alt.Tooltip("volts_per_cell:Q", title="volts per cell"), alt.Tooltip("bank_voltage_v:Q", title="bank [V]"),
             alt.Tooltip("state_of_charge_pct:Q", title="state of charge [%]"), alt.Tooltip("ah:Q", title="delivered [Ah]")]
-    h = int(HEIGHT * 0.55)
+    h = int(HEIGHT * 0.5)
+    stages = stages if stages is not None else getattr(run, "stages", None)
+    srows = []
+    for k, st in enumerate(stages or [], 1):
+        st = _mapping(st)
+        a, b = st.get("from_h"), st.get("to_h")
+        if a is None or b is None:
+            continue
+        srows.append({"band": f"stage {k}: {float(a):.3g} to {float(b):.3g} h", "from_h": _f(a), "to_h": _f(b),
+                      "ends_because": str(st.get("ends_because") or "")})
+    shade = None
+    if srows:
+        tones = [SKY, ORANGE, GREEN, PURPLE]
+        labels = [r["band"] for r in srows]
+        shade = alt.Chart(sets("stages", srows)).mark_rect(opacity=0.16).encode(
+            x=alt.X("from_h:Q"), x2=alt.X2("to_h:Q"),
+            fill=alt.Fill("band:N", scale=alt.Scale(domain=labels, range=[tones[i % 4] for i in range(len(labels))]),
+                          legend=alt.Legend(orient="bottom", title=None, labelLimit=0, symbolType="square",
+                                            symbolOpacity=0.4, columns=1)),
+            tooltip=[alt.Tooltip("band:N", title="stage"), alt.Tooltip("ends_because:N", title="ends because")])
+
+    def panel(layer):
+        return alt.layer(shade, layer) if shade is not None else layer
+
     zoom = alt.selection_interval(bind="scales", encodings=["x"], name="zoom")
-    cur = alt.Chart(data).mark_line(color=INK, strokeWidth=2.2).encode(
-        x=x, y=alt.Y("current_a:Q", title="Current [A]"), tooltip=tips).add_params(zoom).properties(height=h)
-    vpc = alt.Chart(data).mark_line(color=COPPER, strokeWidth=2.2).encode(
-        x=x, y=alt.Y("volts_per_cell:Q", title="Volts per cell", scale=alt.Scale(zero=False)), tooltip=tips)
-    layers = [vpc]
+    cur = alt.Chart(data).mark_line(color=BLUE, strokeWidth=2.2).encode(
+        x=x, y=alt.Y("current_a:Q", title="Current [A]"), tooltip=tips).add_params(zoom)
+    styles = _Styles()
+    styles.add("volts per cell", BLUE, SOLID, 2.2)
     lim = []
-    if run.limit_volts_per_cell is not None:
-        lim.append({"limit": _f(run.limit_volts_per_cell), "label": f"highest cell voltage {run.limit_volts_per_cell:.3g} V"})
-    if getattr(run, "handover_volts_per_cell", None) is not None:
-        lim.append({"limit": _f(run.handover_volts_per_cell), "label": f"hand-over {run.handover_volts_per_cell:.3g} V"})
+    if run.limit_volts_per_cell is not None and np.isfinite(run.limit_volts_per_cell):
+        lab = styles.add(f"highest cell voltage {run.limit_volts_per_cell:.3g} V", BLACK, DASHES["long-short"])
+        lim.append({"series": lab, "limit": _f(run.limit_volts_per_cell)})
+    # the plan hands over to the finish at the (temperature-corrected) gassing voltage
+    gas = getattr(run, "handover_volts_per_cell", None)
+    if gas is None:
+        gas = getattr(run, "gassing_volts_per_cell", None)
+    if gas is not None and np.isfinite(gas):
+        lab = styles.add(f"hand-over to the finish (gassing) {gas:.3g} V per cell", VERMILLION, DASHES["short"])
+        lim.append({"series": lab, "limit": _f(gas)})
+    enc = styles.encodings()
+    vrows = [dict(r, series="volts per cell") for r in rows]
+    vpc = alt.Chart(sets("volts", vrows)).mark_line().encode(
+        x=x, y=alt.Y("volts_per_cell:Q", title="Volts per cell", scale=alt.Scale(zero=False)), tooltip=tips, **enc)
+    layers = [vpc]
     if lim:
-        layers.append(alt.Chart(sets("limit", lim)).mark_rule(color=RUST, strokeDash=[5, 3], strokeWidth=1.6).encode(
-            y=alt.Y("limit:Q"), tooltip=[alt.Tooltip("label:N", title="level")]))
-    vpc = alt.layer(*layers).properties(height=h)
-    soc = alt.Chart(data).mark_line(color=MOSS, strokeWidth=2.2).encode(
-        x=x, y=alt.Y("state_of_charge_pct:Q", title="State of charge [%]", scale=alt.Scale(domain=[0, 100])),
-        tooltip=tips).properties(height=h)
-    panels = [cur, vpc, soc]
+        layers.append(alt.Chart(sets("limit", lim)).mark_rule().encode(
+            y=alt.Y("limit:Q"), tooltip=[alt.Tooltip("series:N", title="limit")], **enc))
+    vpc = alt.layer(*layers)
+    soc = alt.Chart(data).mark_line(color=GREEN, strokeWidth=2.2).encode(
+        x=x, y=alt.Y("state_of_charge_pct:Q", title="State of charge [%]",
+                     scale=alt.Scale(domain=[_f(100 * run.start_state_of_charge, 3) if hasattr(run, "start_state_of_charge")
+                                             else 0, 100], zero=False)),
+        tooltip=tips)
+    panels = [panel(cur).properties(height=h), panel(vpc).properties(height=h), panel(soc).properties(height=h)]
     if width is not None:
         panels = [p.properties(width=width) for p in panels]
-    title = f"Charge run: {run.duration_h:.3g} h, stops because {run.stop_reason}"
+    title = _title(f"Charge run: {run.duration_h:.3g} h", "current, volts per cell and state of charge")
     return alt.VConcatChart(vconcat=panels, datasets=sets.data, spacing=8, title=title, autosize=FIT_WIDTH,
-                            resolve=alt.Resolve(scale=alt.ScaleResolveMap(x="shared")))
+                            config=CHART_CONFIG,
+                            resolve=alt.Resolve(scale=alt.ScaleResolveMap(x="shared", fill="shared")))
 
 
 def option_charts(machine, profile, option, other_taps=(), run=None, width=None):
@@ -660,9 +872,10 @@ def option_charts(machine, profile, option, other_taps=(), run=None, width=None)
         from .jobs import battery as ld
         fin = (getattr(option, "extras", None) or {}).get("finish_setting")
         fin = None if fin is None else Setting(**fin)
-        out.append(("load", "Against the battery", battery_chart(machine, profile, st, width, fin)))
+        out.append(("load", "Against the battery", battery_chart(machine, profile, st, width, option.figures, fin)))
         if run is not None:
-            out.append(("run", "Charge run", charge_run_chart(run, width)))
+            plan = (getattr(option, "extras", None) or {}).get("plan")
+            out.append(("run", "Charge run", charge_run_chart(run, width, plan if plan else None)))
         b = profile.battery
         family = ld.charging_curves(b.chemistry, b.temperature_c, ocv_range=b.open_circuit_voltage_per_cell_v)
         out.append(("cells", "Charging curves of the cells", charging_curves_chart(family, width)))

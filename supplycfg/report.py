@@ -1,12 +1,22 @@
 """The setting sheet: one option of the search, written for the person at the machine.
 
 Two forms with the same content: Markdown, and a printable HTML page with the
-charts inline as SVG (exported by ``vl-convert``, no network). Every text that
-comes from a file or a form (labels, names) is escaped, so a label such as
-``<script>`` prints as text. The sheet carries the tool's version, the date
+charts inline as SVG (exported by ``vl-convert``, no network). What is needed
+at the machine comes first and fits one A4 page when printed: the setting
+card (in the trade's words, with the meter readings and their bands, the
+welding dial or the charge plan where the search gives them, and one line on
+why it ranks where it does), the wiring drawing and a checklist with
+Expected, Measured and Initials columns. Figures, margins, cautions, curves,
+the machine and the job (in plain words with units) follow.
+
+Labels are data: every text from a file or a form is escaped for the format
+it enters (:func:`esc` for HTML, :func:`md_data` for Markdown) after its
+hidden characters are made visible, so a label can neither add markup nor
+reorder or hide what follows. The sheet carries the tool's version, the date
 and the standing notice.
 """
 
+import dataclasses
 import datetime as _dt
 import html
 import math
@@ -16,6 +26,7 @@ from pathlib import Path
 from . import STANDING_NOTICE, __version__
 from .errors import InputError
 from .files import write_atomic
+from .wording import GLOSSARY, connection_words, source_text, visible_text
 
 SEVERITY_ORDER = ("stop", "warn", "note")
 SEVERITY_WORDS = {"stop": "STOP", "warn": "Warning", "note": "Note"}
@@ -128,16 +139,38 @@ LIMIT_WORDS = {
 
 
 def esc(text):
-    """HTML-escape any text from a file or a form."""
-    return html.escape("" if text is None else str(text), quote=True)
+    """HTML-escape any text from a file or a form; hidden characters shown as escapes."""
+    return html.escape(visible_text(text), quote=True)
 
 
-_MD_SPECIAL = re.compile(r"([\\`*_\[\]|~])")
+#: Markdown markup in our own sentences: emphasis, code, links, tables, headings, maths.
+_MD_SPECIAL = re.compile(r"([\\`*_\[\]|~#$])")
+#: In file text, every mark that can open or close inline markup, a page directive or an autolink (with
+#: line breaks shown as escapes no block can start): emphasis, code, links and images, tables, headings,
+#: maths, ``:directives:``, ``scheme:`` and ``user@host`` autolinks.
+_MD_DATA = re.compile(r"([\\`*_\[\]|~#$:@!^{}])")
+_WWW = re.compile(r"(?i)\b(www)\.")
+
+
+def _html_min(text):
+    return text.replace("&", "&amp;").replace("<", "&lt;").replace(">", "&gt;")
 
 
 def md_esc(text):
-    """Text safe inside Markdown (and inside a Markdown table cell): no markup, no HTML."""
-    return _MD_SPECIAL.sub(r"\\\1", html.escape("" if text is None else str(text), quote=False))
+    """Our own sentences made safe inside Markdown (and a Markdown table cell): no markup, no HTML."""
+    return _html_min(_MD_SPECIAL.sub(r"\\\1", visible_text(text)))
+
+
+def md_data(text):
+    """Text from a file or a form (a label, a file name, a message quoting them) as inert Markdown.
+
+    Every hidden character becomes a visible escape (line breaks included, so
+    no heading or list can start), every mark that could open markup is
+    backslash-escaped (no emphasis, link, autolink, table cell, heading,
+    maths or page directive) and ``& < >`` become HTML entities.
+    """
+    s = _MD_DATA.sub(r"\\\1", visible_text(text))
+    return _html_min(_WWW.sub(r"\1\\.", s))
 
 
 def fmt(value, unit=""):
@@ -251,20 +284,97 @@ def field_control_text(option, machine=None):
     return f"field rheostat {fmt(s.rheostat_ohm, 'Ω')}"
 
 
-def setting_rows(option, machine, profile):
-    """``[(what, how)]`` describing the setting."""
+def field_source_text(option, machine=None):
+    """Where the field is fed from, without a value (the readings give the values)."""
     s = option.setting
-    taps = ", ".join(f"{t:g}" for t in machine.series_taps) if machine.has_series else ""
-    rows = [("Connection", s.connection)]
+    if s.connection == "series":
+        return "series winding only (no shunt field)"
+    if s.connection.startswith("separate"):
+        ev = getattr(machine, "excitation_voltage_v", None)
+        return f"from the {fmt(ev, 'V')} exciter through the rheostat" if ev else "from a separate field supply"
+    return "shunt field through the rheostat"
+
+
+def option_value(option, key):
+    """An option's ``readings``, ``band``, ``dial``, ``plan`` (or any key of its JSON), None where it has none.
+
+    The meter readings with their bands, the welding dial and the charge
+    plan are the core's (the search states them per option); the sheet and
+    the page only show them.
+    """
+    v = getattr(option, key, None)
+    if v is None and hasattr(option, "as_dict"):
+        try:
+            v = option.as_dict().get(key)
+        except Exception:  # an option that cannot say: shown without it
+            v = None
+    return v
+
+
+def _mapping(x):
+    if x is None or isinstance(x, dict):
+        return x or {}
+    return x.as_dict() if hasattr(x, "as_dict") else dict(vars(x))
+
+
+def _pair_text(pair, unit, digits=3):
+    if not isinstance(pair, (list, tuple)) or len(pair) != 2 or not all(_given(v) for v in pair):
+        return None
+    return f"{_round(pair[0], digits)} to {_round(pair[1], digits)} {unit}"
+
+
+def _round(v, digits=3):
+    """A reading as it can be set: ``digits`` significant figures."""
+    return f"{float(v):.{digits}g}"
+
+
+def readings_rows(option, readings=None, band=None):
+    """``[(what, how)]``: the field ammeter's readings, the rheostat and their bands, where the core gives them."""
+    r = _mapping(option_value(option, "readings") if readings is None else readings)
+    b = _mapping(option_value(option, "band") if band is None else band)
+    rows = []
+    fc = r.get("field_current_a")
+    if isinstance(fc, dict) and any(_given(fc.get(k)) for k in ("cold", "hot")):
+        parts = [f"{_round(fc[k])} A {k}" for k in ("cold", "hot") if _given(fc.get(k))]
+        keep = _pair_text(b.get("field_current_a"), "A")
+        rows.append(("Field ammeter reads", ", ".join(parts) + (f"; keep it within {keep}" if keep else "")))
+    elif _given(fc):
+        keep = _pair_text(b.get("field_current_a"), "A")
+        rows.append(("Field ammeter reads", f"{_round(fc)} A" + (f"; keep it within {keep}" if keep else "")))
+    rh = r.get("rheostat_ohm")
+    if _given(rh):
+        travel = r.get("rheostat_travel_percent")
+        keep = _pair_text(b.get("rheostat_ohm"), "Ω")
+        rows.append(("Field rheostat", f"{_round(rh)} Ω" + (f" ({_round(travel, 2)} % of its travel)" if _given(travel) else "")
+                     + (f"; every limit holds from {keep}" if keep else "")))
+    return rows
+
+
+def setting_rows(option, machine, profile):
+    """``[(what, how)]`` describing the setting, in the trade's words, with the meter readings where given."""
+    s = option.setting
+    rows = [("Connection", connection_words(s.connection))]
+    uses_series = s.connection not in ("separate", "shunt")
     if machine.has_series:
-        rows.append(("Series turns per pole in use", f"{(s.series_turns or 0):g} (taps: {taps})"))
-    if option.current_settings and s.connection != "series":
+        taps = ", ".join(f"{t:g}" for t in machine.series_taps)
+        if uses_series:
+            turns = s.series_turns if s.series_turns is not None else machine.series_turns_per_pole
+            rows.append(("Series field tap", f"{turns:g} of {machine.series_turns_per_pole:g} turns per pole "
+                                             f"(taps: {taps})"))
+            rows.append(("Diverter across the series field",
+                         "none" if s.diverter_ohm is None else fmt(s.diverter_ohm, "Ω")))
+        else:
+            rows.append(("Series field", "not in circuit"))
+    readings = readings_rows(option)
+    if option.current_settings and s.connection != "series" and not option_value(option, "dial"):
         ends = current_setting_rows(option)
         rows.append(("Field", "; ".join(f"{f} for {cur}" for cur, f, _, _ in ends)))
+    elif readings or option_value(option, "dial"):
+        rows.append(("Field", field_source_text(option, machine) + (": set it by the dial below"
+                                                                    if option_value(option, "dial") else "")))
     else:
         rows.append(("Field", field_control_text(option, machine)))
-    if machine.has_series:
-        rows.append(("Diverter across the series winding", "none" if s.diverter_ohm is None else fmt(s.diverter_ohm, "Ω")))
+    rows += readings
     speeds = tuple(profile.speeds_rpm)
     sp = fmt(speeds[0], "rpm") if len(speeds) == 1 else f"{fmt(speeds[0])} to {fmt(speeds[1], 'rpm')}"
     rows.append(("Drive speed", sp))
@@ -284,6 +394,8 @@ def current_setting_rows(option):
             f = f"exciter field {fmt(cs['field_current_a'], 'A')}"
         else:
             f = f"rheostat {fmt(cs.get('rheostat_ohm'), 'Ω')}"
+        if _given(cs.get("series_turns")):
+            f = f"tap {cs['series_turns']:g} turns, " + f
         if cs.get("reachable") is False:
             f += " (end of its range: target not reached)"
         rows.append((fmt(cs.get("current_a"), "A"), f, fmt(cs.get("terminal_voltage_v"), "V"),
@@ -291,8 +403,76 @@ def current_setting_rows(option):
     return rows
 
 
+CURRENT_SETTING_HEADERS = ("Welding current", "Field", "Terminal voltage (arc and leads)", "No-load voltage")
+DIAL_HEADERS = ("Current", "Tap [turns]", "Diverter", "Field", "No-load voltage", "Short-circuit current")
+
+
+def dial_rows(option):
+    """Welding dial rows the core gives: current, tap, diverter, field reading or rheostat, no-load voltage."""
+    out = []
+    for row in option_value(option, "dial") or []:
+        r = _mapping(row)
+        if option.setting.connection == "series":
+            field = "series winding only"
+        elif option.setting.connection.startswith("separate") and _given(r.get("field_current_a")) \
+                and not _given(r.get("rheostat_ohm")):
+            field = f"{_round(r['field_current_a'])} A"
+        else:
+            field = " / ".join(x for x in (f"{_round(r['rheostat_ohm'])} Ω" if _given(r.get("rheostat_ohm")) else "",
+                                           f"reads {_round(r['field_current_a'])} A" if _given(r.get("field_current_a"))
+                                           else "") if x) or "–"
+        nl = fmt(r.get("no_load_voltage_v"), "V")
+        if _given(r.get("no_load_voltage_max_v")):
+            nl += f" (up to {fmt(r['no_load_voltage_max_v'], 'V')})"
+        out.append((fmt(r.get("current_a"), "A"), fmt(r.get("series_turns")),
+                    "none" if r.get("diverter_ohm") is None else fmt(r.get("diverter_ohm"), "Ω"),
+                    field, nl, fmt(r.get("short_circuit_current_a"), "A")))
+    return out
+
+
+def dial_card_rows(option):
+    """The dial as the card shows it: ``(headers, rows)`` of current, tap, (diverter,) field, no-load voltage."""
+    rows = [_mapping(r) for r in option_value(option, "dial") or []]
+    with_div = any(r.get("diverter_ohm") is not None for r in rows)
+    heads = ("Current", "Tap") + (("Diverter",) if with_div else ()) + ("Field", "No-load V (worst)")
+    out = []
+    for r, full in zip(rows, dial_rows(option)):
+        field = full[3].replace(" / reads ", ", ")
+        nl = fmt(r.get("no_load_voltage_v"))
+        if _given(r.get("no_load_voltage_max_v")):
+            nl += f" ({fmt(r['no_load_voltage_max_v'])})"
+        out.append((full[0], full[1]) + ((full[2],) if with_div else ()) + (field, nl))
+    return heads, out
+
+
+CARD_PLAN_HEADERS = ("Stage", "Hours", "Field", "Current, start to end", "Ends")
+
+
+def card_plan_rows(option):
+    """Charge plan rows the core gives: each stage's time, field setting, current and why it ends."""
+    out = []
+    for k, st in enumerate(option_value(option, "plan") or [], 1):
+        st = _mapping(st)
+        setting = _mapping(st.get("setting"))
+        # a stage without readings of its own shows its setting, never the option's (stage 1's) readings
+        field = [f"{label}: {how}" for label, how in readings_rows(option, st.get("readings"), st.get("band"))] \
+            if st.get("readings") else []
+        if not field:
+            if _given(setting.get("field_current_a")):
+                field = [f"field current {fmt(setting['field_current_a'], 'A')}"]
+            elif _given(setting.get("rheostat_ohm")):
+                field = [f"rheostat {fmt(setting['rheostat_ohm'], 'Ω')}"]
+        ends = " ".join(x for x in (f"at {fmt(st.get('end_volts_per_cell'), 'V per cell')}"
+                                    if _given(st.get("end_volts_per_cell")) else "",
+                                    str(st.get("ends_because") or "")) if x)
+        name = ("main charge" if k == 1 else "finish") if len(option_value(option, "plan") or []) == 2 else f"stage {k}"
+        out.append((f"{k}: {name}", f"{fmt(st.get('from_h'))} to {fmt(st.get('to_h'), 'h')}", "; ".join(field) or "–",
+                    f"{fmt(st.get('start_current_a'), 'A')} to {fmt(st.get('end_current_a'), 'A')}", ends or "–"))
+    return out
+
+
 def _given(v):
-    return v is not None and not (isinstance(v, float) and not math.isfinite(v))
+    return isinstance(v, (int, float)) and not isinstance(v, bool) and math.isfinite(v)
 
 
 def sorted_cautions(cautions):
@@ -310,20 +490,221 @@ def severity_counts(cautions):
 def status_text(option, total=None):
     of = f" of {total}" if total else ""
     if option.feasible:
-        return f"option {option.rank}{of}: meets every limit (least margin {fmt(100 * option.smallest_margin, '%')})"
+        return f"option {option.rank}{of}: meets every limit (smallest margin {fmt(100 * option.smallest_margin, '%')})"
     broken = ", ".join(limit_label(n) for n in option.failed)
     return f"option {option.rank}{of}: near miss, breaks: {broken}"
 
 
-def job_rows(profile):
-    """``[(key, value)]`` of the job table, values as written in the profile."""
-    from .profile import profile_to_dict
-    d = profile_to_dict(profile)
-    rows = []
-    for table in ("drive", profile.kind):
-        for k, v in d.get(table, {}).items():
-            rows.append((f"{table}.{k}", ", ".join(fmt(x) for x in v) if isinstance(v, (list, tuple)) else fmt(v)))
+# --- the ranking, stated ---------------------------------------------------
+
+#: The rule the search ranks by today, in words (search.search sorts this way); a result that states
+#: its own rule (``ranking_rule``) is shown with that instead.
+RANKING_RULE = ("Settings that meet every limit come first, the one whose tightest limit keeps the largest margin "
+                "first; the near misses follow, the least broken first. A setting with a stop caution never counts "
+                "as meeting the limits.")
+
+
+def ranking_rule(result):
+    rule = getattr(result, "ranking_rule", None)
+    if rule is None and hasattr(result, "as_dict"):
+        try:
+            rule = result.as_dict().get("ranking_rule")
+        except Exception:
+            rule = None
+    if isinstance(rule, dict):
+        rule = rule.get("text") or rule.get("rule")
+    return str(rule) if rule else RANKING_RULE
+
+
+def objective_value(option, kind):
+    """``(value, words)`` of the job's objective for an option, from the core's figures; (None, None) if not given.
+
+    Battery: hours to full; welding: tap changes along the dial; lighting and
+    booster: the smallest margin on the voltage band.
+    """
+    f = option.figures or {}
+    obj = option_value(option, "objective")
+    if isinstance(obj, dict) and _given(obj.get("value")):
+        return float(obj["value"]), f"{fmt(obj['value'], obj.get('unit', ''))} {obj.get('name', '')}".strip()
+    if kind == "battery" and _given(f.get("hours_to_full")):
+        return float(f["hours_to_full"]), f"{fmt(f['hours_to_full'], 'h')} to full"
+    if kind == "welding":
+        dial = [_mapping(r) for r in option_value(option, "dial") or []]
+        if dial:
+            taps = [r.get("series_turns") for r in dial]
+            n = sum(1 for a, b in zip(taps, taps[1:]) if a != b)
+            return float(n), f"{n} tap change{'s' if n != 1 else ''}"
+        return None, None
+    if kind in ("lighting", "booster"):
+        band = [m.get("fraction") for k, m in (option.margins or {}).items() if k.startswith("load_voltage")]
+        band = [b for b in band if _given(b)]
+        if band:
+            return min(band), f"band margin {fmt(100 * min(band), '%')}"
+    return None, None
+
+
+def ranking_line(result, option):
+    """One line: why this option stands where it does under the stated rule."""
+    said = option_value(option, "rank_reason")
+    if said:
+        return str(said)
+    kind = result.profile.kind
+    feasible = [o for o in result.options if o.feasible]
+    if not option.feasible:
+        if any(c.severity == "stop" for c in option.cautions):
+            return "Not usable: it carries a stop caution (see the cautions)."
+        broken = ", ".join(limit_label(n) for n in option.failed)
+        if not feasible:
+            return f"No setting meets every limit; this one comes closest by the rule and breaks: {broken}."
+        return f"A near miss: it breaks {broken}."
+    others = [o for o in feasible if o is not option]
+    _, words = objective_value(option, kind)
+    margin = fmt(100 * option.smallest_margin, "%")
+    if not others:
+        return f"The only setting that meets every limit; its tightest limit keeps a margin of {margin}."
+    if option is feasible[0]:
+        nxt = others[0]
+        _, nwords = objective_value(nxt, kind)
+        if words and nwords and kind == "battery":
+            return (f"Ranked first of {len(feasible)} settings that meet every limit: {words} "
+                    f"(next, option {nxt.rank}: {nwords}).")
+        return (f"Ranked first of {len(feasible)} settings that meet every limit: its tightest limit keeps "
+                f"{margin} margin (next, option {nxt.rank}: {fmt(100 * nxt.smallest_margin, '%')}).")
+    best = feasible[0]
+    return (f"Meets every limit; ranked {option.rank} of {len(feasible)}: its tightest limit keeps {margin} margin "
+            f"(option {best.rank}: {fmt(100 * best.smallest_margin, '%')}).")
+
+
+# --- checks at the machine ---------------------------------------------------
+
+CHECKLIST_HEADERS = ("Check", "Expected", "Measured", "Initials")
+
+
+def _range_text(lo, hi, unit):
+    if _given(lo) and _given(hi):
+        if abs(float(hi) - float(lo)) <= 1e-9 * max(1.0, abs(float(hi))):
+            return fmt(hi, unit)
+        return f"{fmt(lo)} to {fmt(hi, unit)}"
+    if _given(hi) or _given(lo):
+        return fmt(hi if _given(hi) else lo, unit)
+    return None
+
+
+def _caution_figure(result, option, rule, key):
+    for c in list(option.cautions) + list(result.cautions):
+        if c.rule == rule and _given((c.figures or {}).get(key)):
+            return c.figures[key]
+    return None
+
+
+def checklist_rows(result, option, run=None):
+    """``[(check, expected)]`` to tick off at the machine, for the job; the sheet adds Measured and Initials."""
+    p, o = result.profile, option
+    f, s = o.figures or {}, o.setting
+    kind = p.kind
+    note = "note the reading"
+    rows = [("Polarity checked with a voltmeter before closing onto the load",
+             "machine + to load +" if kind != "booster" else "booster adds to the bus voltage")]
+    nl = _range_text(f.get("no_load_voltage_min_v"), f.get("no_load_voltage_max_v"), "V")
+    if kind == "welding":
+        lo = [cs.get("no_load_voltage_v") for cs in o.current_settings or [] if _given(cs.get("no_load_voltage_v"))]
+        nl = _range_text(min(lo), max(lo), "V") if lo else fmt(f.get("max_no_load_voltage_v"), "V")
+    if kind != "booster":
+        rows.append(("No-load voltage at speed, load off", nl or note))
+    fr = [how for what, how in readings_rows(o) if what == "Field ammeter reads"]
+    if fr:
+        field = fr[0]
+    elif s.connection == "series":
+        field = "no shunt field"
+    elif s.field_current_a is not None:
+        field = fmt(s.field_current_a, "A")
+    else:
+        field = note
+    rows.append(("Field current on the field ammeter", field))
+    if kind == "battery":
+        rows.append(("Charging current at the start", _range_text(f.get("start_charge_current_min_a"),
+                                                                 f.get("start_charge_current_a"), "A") or note))
+    elif kind == "welding":
+        rows.append(("Short-circuit current (electrode stuck), at the top setting",
+                     fmt(f.get("stuck_electrode_current_a"), "A") if _given(f.get("stuck_electrode_current_a")) else note))
+    else:
+        rows.append(("Voltage at the far end, light load and full load",
+                     _range_text(f.get("load_voltage_min_v"), f.get("load_voltage_max_v"), "V") or note))
+    speeds = tuple(p.speeds_rpm)
+    rows.append(("Drive speed on the tachometer",
+                 fmt(speeds[0], "rpm") if len(speeds) == 1 else f"{fmt(speeds[0])} to {fmt(speeds[1], 'rpm')}"))
+    if kind == "battery":
+        close = f.get("cutout_closing_voltage_v")
+        per_cell = getattr(p.battery, "cutout_closing_volts_per_cell", None)
+        if not _given(close) and _given(per_cell):
+            close = per_cell * p.battery.cells
+        if _given(close):
+            cut = f"fitted; closes at {fmt(close, 'V')}"
+        elif _given(f.get("bank_open_circuit_voltage_end_v")):
+            cut = f"fitted; closes above {fmt(f['bank_open_circuit_voltage_end_v'], 'V')} (the full bank at rest)"
+        else:
+            cut = "fitted"
+        rows.append(("Reverse-current cut-out fitted, its closing voltage", cut))
+        vent = _mapping(option_value(o, "ventilation")).get("airflow_m3_per_h")
+        if not _given(vent):
+            vent = f.get("ventilation_m3_per_h")
+        if not _given(vent):
+            vent = _caution_figure(result, o, "battery-ventilation", "ventilation_m3_per_h")
+        rows.append(("Battery-room ventilation running", f"at least {fmt(vent, 'm³/h')}" if _given(vent) else "running"))
+    if kind == "welding":
+        limits = [mm.get("limit") for k, mm in (o.margins or {}).items() if k.startswith("no_load")]
+        limits = [x for x in limits if _given(x)]
+        top = f.get("max_no_load_voltage_v")
+        rows.append(("No-load voltage against the limit",
+                     f"{fmt(top, 'V')}, below {fmt(min(limits), 'V')}" if limits and _given(top) else note))
+        rows.append(("No tap change under load", "taps and diverter changed only with the arc out"))
+    if s.connection != "series":
+        rows.append(("Field discharge path fitted (discharge resistor or freewheel path)", "fitted"))
     return rows
+
+
+def job_rows(profile):
+    """``[(what, value with unit)]`` of the job, in plain words."""
+    p = profile
+    rows = []
+    sp = tuple(p.speeds_rpm)
+    rows.append(("Drive speed", fmt(sp[0], "rpm") if len(sp) == 1 else f"{fmt(sp[0])} to {fmt(sp[1], 'rpm')}"))
+    if p.temperatures_c:
+        rows.append(("Winding temperature, cold to hot", f"{fmt(p.temperatures_c[0])} to {fmt(p.temperatures_c[1], '°C')}"))
+    job = p.job
+    for fld in dataclasses.fields(job):
+        v = getattr(job, fld.name)
+        if v is None:
+            continue
+        words, unit = JOB_WORDS.get(fld.name) or figure_label(fld.name)
+        if fld.name == "state_of_charge" and isinstance(v, (list, tuple)):
+            text = " to ".join(fmt(100 * float(x), "%") for x in v)
+        elif isinstance(v, (list, tuple)):
+            text = f"{' to '.join(fmt(x) for x in v)} {unit}".strip()
+        elif isinstance(v, str):
+            text = v.replace("-", " ")
+        else:
+            text = fmt(v, unit)
+        rows.append((words[:1].upper() + words[1:], text))
+    return rows
+
+
+#: Plain words and units of the job tables' keys; a key not listed is named from itself and its unit suffix.
+JOB_WORDS = {
+    "chemistry": ("battery type", ""), "cells": ("cells in series", ""), "capacity_ah": ("capacity", "Ah"),
+    "state_of_charge": ("state of charge, start to end", "%"),
+    "max_charge_current_a": ("highest charging current", "A"), "min_charge_current_a": ("lowest starting current", "A"),
+    "internal_resistance_ohm": ("bank resistance", "Ω"), "cable_resistance_ohm": ("cable resistance, go and return", "Ω"),
+    "temperature_c": ("battery temperature", "°C"),
+    "open_circuit_voltage_per_cell_v": ("rest voltage per cell, empty to full", "V"),
+    "charge_voltage_per_cell_v": ("charge limit per cell at 25 °C", "V"),
+    "process": ("welding process", ""), "current_range_a": ("welding current wanted", "A"),
+    "environment": ("where the welding is done", ""), "duty_cycle_percent": ("duty cycle", "% of 10 minutes"),
+    "max_no_load_voltage_v": ("site limit on no-load voltage", "V"),
+    "nominal_voltage_v": ("voltage wanted at the lamps", "V"), "load_current_a": ("load current, least to most", "A"),
+    "tolerance_percent": ("tolerance", "± %"), "feeder_resistance_ohm": ("feeder resistance, go and return", "Ω"),
+    "lamp": ("lamps", ""), "bus_voltage_v": ("bus voltage", "V"),
+}
 
 
 def machine_rows(machine):
@@ -375,6 +756,13 @@ def run_rows(run):
     return rows
 
 
+def run_summary(run):
+    """One line for the card: how long the charge takes with this setting and why it stops."""
+    if run is None:
+        return None
+    return f"Charge with this one setting: {fmt(run.duration_h, 'h')}, stops because {run.stop_reason}."
+
+
 def _option(result, rank):
     if not result.options:
         raise InputError("search", "options", "none: this machine has no connection for this job")
@@ -388,6 +776,18 @@ def _option(result, rank):
 
 def _date(date):
     return (date or _dt.date.today()).isoformat() if not isinstance(date, str) else date
+
+
+def _cautions_pointer(option, result, where="on the next page"):
+    counts = {}
+    for c in list(option.cautions) + list(result.cautions):
+        if c.severity != "stop":
+            counts[c.severity] = counts.get(c.severity, 0) + 1
+    if not counts:
+        return "No warning or note raised by the rules for this setting."
+    words = {"warn": ("warning", "warnings"), "note": ("note", "notes")}
+    parts = [f"{n} {words.get(k, (k, k))[n != 1]}" for k, n in counts.items()]
+    return f"Cautions: {' and '.join(parts)}; read them {where} before starting."
 
 
 # ---------------------------------------------------------------------------
@@ -405,12 +805,16 @@ def _md_cautions(cautions):
     out = []
     for c in sorted_cautions(cautions):
         out.append(f"- **{SEVERITY_WORDS.get(c.severity, c.severity)}**: {md_esc(c.message)}  ")
-        out.append(f"  Rests on: {md_esc(c.basis)}")
+        out.append(f"  {md_esc(source_text(c.basis))}")
     return out
 
 
 def sheet_markdown(result, rank=None, run=None, date=None):
     """The setting sheet of option ``rank`` (default the best) as Markdown.
+
+    The part for the machine comes first (the setting, the wiring in words,
+    the checks with Expected, Measured and Initials columns); figures,
+    margins, cautions, the machine and the job follow.
 
     Parameters
     ----------
@@ -421,29 +825,40 @@ def sheet_markdown(result, rank=None, run=None, date=None):
     date : datetime.date or str, optional
         Date printed on the sheet; default today.
     """
+    from .wiring import wiring
     m, p = result.machine, result.profile
     o = _option(result, rank)
     stops = [c for c in list(o.cautions) + list(result.cautions) if c.severity == "stop"]
-    lines = [f"# Setting sheet: {md_esc(m.label or 'machine')}", "",
-             f"**Job:** {md_esc(p.label or p.kind)} ({KIND_WORDS.get(p.kind, p.kind)})  ",
+    lines = [f"# Setting sheet: {md_data(m.label or 'machine')}", "",
+             f"**Job:** {md_data(p.label or p.kind)} ({KIND_WORDS.get(p.kind, p.kind)})  ",
              f"**Chosen:** {md_esc(status_text(o, len(result.options)))}  ",
              f"**Made by:** supplycfg {__version__} on {_date(date)}  ",
              f"**Ranked by:** {md_esc(result.ranking_rule)}", ""]
     if stops:
         lines += ["## STOP: do not use this setting as it stands", ""] + _md_cautions(stops) + [""]
-    lines += ["## Set the machine like this", ""] + _md_table(("What", "Setting"), setting_rows(o, m, p)) + [""]
-    if o.current_settings:
+    lines += ["## Set the machine like this", "", f"*{md_esc(ranking_line(result, o))}*", ""]
+    lines += _md_table(("What", "Setting"), setting_rows(o, m, p)) + [""]
+    if dial_rows(o):
+        lines += ["### Welding dial", ""] + _md_table(DIAL_HEADERS, dial_rows(o)) + [""]
+    elif o.current_settings:
         lines += ["### Field setting for each end of the welding range", ""]
-        lines += _md_table(("Welding current", "Field", "Terminal voltage", "No-load voltage"),
-                           current_setting_rows(o)) + [""]
+        lines += _md_table(CURRENT_SETTING_HEADERS, current_setting_rows(o)) + [""]
     if plan_table(o):
-        lines += ["## Charge plan", "", f"At {md_esc(condition_words(o)['setting'])}; only the field changes "
+        lines += ["### Charge plan", "", f"At {md_esc(condition_words(o)['setting'])}; only the field changes "
                   "between stages.", ""]
         lines += _md_table(PLAN_HEADERS, plan_table(o)) + [""]
         lines += _md_table(("Reverse-current cut-out", "Figure"), cutout_rows(o)) + [""]
+    elif run is not None:
+        lines += [md_esc(run_summary(run)), ""]
+    w = wiring(m, o.setting, p.kind)
+    lines += ["## Wiring", ""] + [f"{k}. {md_esc(step)}" for k, step in enumerate(w.steps, 1)] + [""]
+    lines += ["## Check at the machine", ""]
+    lines += _md_table(CHECKLIST_HEADERS, [(c, e, "", "") for c, e in checklist_rows(result, o, run)]) + [""]
+    lines += [md_esc(_cautions_pointer(o, result, "below")), "", "---", ""]
     lines += ["## What to expect", ""] + _md_table(("Figure", "Value"), figure_rows(o)) + [""]
     lines += ["## Limits and margins", ""]
     lines += _md_table(("Limit", "Value", "Limit value", "Margin", "Margin of limit", "Status"), margin_rows(o)) + [""]
+    lines += ["How the settings are ranked: " + md_esc(ranking_rule(result)), ""]
     if run is not None:
         lines += ["## Charge run", ""] + _md_table(("What", "Value"), run_rows(run)) + [""]
     lines += ["## Cautions", ""]
@@ -454,7 +869,8 @@ def sheet_markdown(result, rank=None, run=None, date=None):
     if not o.cautions and not result.cautions:
         lines += ["None raised by the rules for this setting.", ""]
     lines += ["## The machine", ""] + _md_table(("What", "Data"), machine_rows(m)) + [""]
-    lines += ["## The job", ""] + _md_table(("Key", "Value"), job_rows(p)) + [""]
+    lines += ["## The job", ""] + _md_table(("What", "Value"), job_rows(p)) + [""]
+    lines += ["## Words used here", ""] + [f"- **{md_esc(k)}**: {md_esc(v)}" for k, v in GLOSSARY.items()] + [""]
     lines += ["---", "", f"**{md_esc(STANDING_NOTICE)}**", ""]
     return "\n".join(lines)
 
@@ -465,38 +881,57 @@ def sheet_markdown(result, rank=None, run=None, date=None):
 
 _CSS = """
 body { font-family: "DejaVu Sans", "Helvetica Neue", Arial, sans-serif; color: #1b2430; margin: 0 auto;
-       max-width: 46rem; padding: 1rem; line-height: 1.4; }
-h1 { font-size: 1.5rem; margin: 0 0 .3rem; border-bottom: 3px solid #23395b; padding-bottom: .3rem; }
-h2 { font-size: 1.15rem; margin: 1.4rem 0 .4rem; color: #23395b; }
-h3 { font-size: 1rem; margin: 1rem 0 .3rem; }
-.meta { color: #4a5563; font-size: .92rem; }
+       max-width: 46rem; padding: 1rem; line-height: 1.35; }
+h1 { font-size: 1.3rem; margin: 0 0 .2rem; border-bottom: 3px solid #1f4e79; padding-bottom: .25rem; }
+h2 { font-size: 1.1rem; margin: 1.1rem 0 .35rem; color: #1f4e79; }
+h3 { font-size: .98rem; margin: .7rem 0 .25rem; }
+.meta { color: #3d4754; font-size: .9rem; margin: .2rem 0 .4rem; }
 .wrap { overflow-x: auto; }
-table { border-collapse: collapse; width: 100%; font-size: .9rem; }
-th, td { border: 1px solid #c9cfd6; padding: .25rem .45rem; text-align: left; vertical-align: top; }
+table { border-collapse: collapse; width: 100%; font-size: .88rem; }
+th, td { border: 1px solid #b9c1ca; padding: .2rem .4rem; text-align: left; vertical-align: top; }
 th { background: #eef1f4; }
 td.num { text-align: right; white-space: nowrap; }
-.setting td:first-child { width: 40%; }
-.setting td:last-child { font-weight: bold; font-size: 1rem; }
-.caution { border-left: 6px solid #5c6b7a; padding: .35rem .6rem; margin: .45rem 0; background: #f6f7f9; }
+.card { border: 2px solid #1f4e79; border-radius: 6px; padding: .3rem .7rem .6rem; margin: .5rem 0; }
+.card h2 { margin-top: .3rem; }
+.why { margin: .1rem 0 .4rem; font-style: italic; }
+.setting td:first-child { width: 42%; }
+.setting td:last-child { font-weight: bold; }
+.top { display: grid; grid-template-columns: minmax(0, 11fr) minmax(0, 9fr); gap: .6rem; align-items: start; }
+table.compact td { white-space: nowrap; }
+.halves { display: grid; grid-template-columns: minmax(0, 1fr) minmax(0, 1fr); gap: .5rem; align-items: start; }
+.wiring { margin: 0; text-align: center; }
+.wiring svg { width: 100%; height: auto; max-height: 62mm; }
+@media screen and (max-width: 700px) { .top, .halves { grid-template-columns: minmax(0, 1fr); } }
+#checklist td:nth-child(3), #checklist td:nth-child(4) { width: 17%; }
+#checklist td:nth-child(4) { width: 10%; }
+#checklist td { height: 1.35rem; }
+.pointer { font-weight: bold; margin: .4rem 0; }
+.caution { border-left: 6px solid #5c6b7a; padding: .3rem .6rem; margin: .4rem 0; background: #f6f7f9; }
 .caution.stop { border-left-color: #a4372a; background: #fbeeec; }
-.caution.warn { border-left-color: #b5651d; background: #fdf5ec; }
+.caution.warn { border-left-color: #9a5a12; background: #fdf5ec; }
 .caution .sev { font-weight: bold; text-transform: uppercase; letter-spacing: .03em; margin-right: .4rem; }
-.caution .basis { display: block; color: #4a5563; font-size: .85rem; }
+.caution .basis { display: block; color: #3d4754; font-size: .85rem; }
 .broken { color: #a4372a; font-weight: bold; }
 .chart { margin: .8rem 0; break-inside: avoid; page-break-inside: avoid; }
 .chart svg { max-width: 100%; height: auto; }
-.notice { margin-top: 1.6rem; padding: .6rem .8rem; border: 2px solid #23395b; font-weight: bold; }
-.tick { display: inline-block; width: 1.1rem; height: 1.1rem; border: 1.5px solid #1b2430; vertical-align: middle; }
-@page { size: A4; margin: 14mm; }
+.notice { margin-top: 1.2rem; padding: .5rem .7rem; border: 2px solid #1f4e79; font-weight: bold; }
+.notice.small { margin-top: .5rem; padding: .3rem .5rem; font-size: .8rem; }
+.later { break-before: page; page-break-before: always; }
+dl.glossary dt { font-weight: bold; } dl.glossary dd { margin: 0 0 .3rem 1rem; }
+@page { size: A4; margin: 12mm; }
 @media print {
-  body { max-width: none; padding: 0; font-size: 10.5pt; }
+  body { max-width: none; padding: 0; font-size: 9.5pt; }
+  .first table { font-size: 8.4pt; }
+  .first th, .first td { padding: .12rem .35rem; }
+  #checklist td { height: 1.1rem; }
+  .first h2 { margin: .6rem 0 .25rem; }
   h2 { break-after: avoid; page-break-after: avoid; }
-  table, .caution { break-inside: avoid; page-break-inside: avoid; }
+  table, .caution, .card, .wiring { break-inside: avoid; page-break-inside: avoid; }
 }
 """
 
 
-def _html_table(headers, rows, cls="", numeric=()):
+def _html_table(headers, rows, cls="", numeric=(), table_id=None):
     head = "".join(f"<th>{esc(h)}</th>" for h in headers)
     body = []
     for r in rows:
@@ -508,24 +943,25 @@ def _html_table(headers, rows, cls="", numeric=()):
             cells.append(f"<td{klass}>{esc(c)}</td>")
         body.append("<tr>" + "".join(cells) + "</tr>")
     thead = f"<thead><tr>{head}</tr></thead>" if headers else ""
-    return f'<div class="wrap"><table class="{cls}">{thead}<tbody>{"".join(body)}</tbody></table></div>'
+    ident = f' id="{esc(table_id)}"' if table_id else ""
+    return f'<div class="wrap"><table{ident} class="{cls}">{thead}<tbody>{"".join(body)}</tbody></table></div>'
 
 
 def _html_cautions(cautions):
     out = []
     for c in sorted_cautions(cautions):
         out.append(f'<div class="caution {esc(c.severity)}"><span class="sev">{esc(SEVERITY_WORDS.get(c.severity, c.severity))}</span>'
-                   f'{esc(c.message)}<span class="basis">Rests on: {esc(c.basis)}</span></div>')
+                   f'{esc(c.message)}<span class="basis">{esc(source_text(c.basis))}</span></div>')
     return "\n".join(out)
 
 
 def chart_svgs(result, option, run=None, other_taps=(), width=SHEET_CHART_WIDTH):
     """``[(title, svg text)]`` of the option's charts, exported with vl-convert."""
     import vl_convert as vlc
-    from .charts import option_charts
+    from .charts import chart_spec, option_charts
     out = []
     for _, title, ch in option_charts(result.machine, result.profile, option, other_taps, run, width):
-        svg = vlc.vegalite_to_svg(ch.to_dict())
+        svg = vlc.vegalite_to_svg(chart_spec(ch))
         out.append((title, _clean_svg(svg)))
     return out
 
@@ -535,6 +971,12 @@ def _clean_svg(svg):
     svg = re.sub(r"^\s*<\?xml[^>]*>\s*", "", svg)
     svg = re.sub(r"<script.*?</script>", "", svg, flags=re.S | re.I)
     return re.sub(r"\son[a-z]+\s*=\s*\"[^\"]*\"", "", svg, flags=re.I)
+
+
+def wiring_svg_for(result, option):
+    """The wiring drawing of an option as inline SVG."""
+    from .wiring import wiring, wiring_svg
+    return _clean_svg(wiring_svg(wiring(result.machine, option.setting, result.profile.kind)))
 
 
 def other_tap_options(result, option):
@@ -548,8 +990,47 @@ def other_tap_options(result, option):
     return out[:3]
 
 
+def card_html(result, option, run=None, wiring_svg=None):
+    """The setting card: what to set, why it ranks where it does, the wiring beside it, the dial or the plan."""
+    m, p, o = result.machine, result.profile, option
+    parts = ['<div class="card" id="setting-card">', "<h2>Set the machine like this</h2>",
+             f'<p class="why">{esc(ranking_line(result, o))}</p>', '<div class="top">',
+             _html_table((), setting_rows(o, m, p), "setting")]
+    if wiring_svg is not None:
+        parts += ['<div class="wiring" role="img" aria-label="Wiring of the chosen connection">', wiring_svg, "</div>"]
+    parts.append("</div>")
+    dial = dial_rows(o)
+    if dial:
+        # on the card: what to set per current, in two halves side by side; the full dial is on a later page
+        heads, short = dial_card_rows(o)
+        half = (len(short) + 1) // 2 if len(short) > 7 else len(short)
+        halves = [short[:half], short[half:]] if half < len(short) else [short]
+        parts += ["<h3>Welding dial</h3>", '<div class="halves">']
+        parts += [_html_table(heads, h, "dial compact", numeric=(0, 1)) for h in halves]
+        parts.append("</div>")
+    elif o.current_settings:
+        parts += ["<h3>Field setting for each end of the welding range</h3>",
+                  _html_table(CURRENT_SETTING_HEADERS, current_setting_rows(o), numeric=(0, 2, 3))]
+    if card_plan_rows(o):
+        parts += ["<h3>Charge plan</h3>", _html_table(CARD_PLAN_HEADERS, card_plan_rows(o), "plan")]
+    elif run is not None:
+        parts.append(f"<p>{esc(run_summary(run))}</p>")
+    parts.append("</div>")
+    return "\n".join(parts)
+
+
+def checklist_html(result, option, run=None):
+    rows = [(c, e, "", "") for c, e in checklist_rows(result, option, run)]
+    return _html_table(CHECKLIST_HEADERS, rows, "checklist", table_id="checklist")
+
+
 def sheet_html(result, rank=None, run=None, date=None, charts=True, svgs=None):
     """The setting sheet of option ``rank`` (default the best) as one printable HTML page.
+
+    Page 1 (A4) holds what is needed at the machine: the setting card, the
+    wiring drawing and the checklist (Expected, Measured, Initials); the
+    figures, margins, cautions, curves, the machine and the job follow on
+    the next pages.
 
     Parameters
     ----------
@@ -569,27 +1050,32 @@ def sheet_html(result, rank=None, run=None, date=None, charts=True, svgs=None):
     parts = ["<!DOCTYPE html>", '<html lang="en"><head><meta charset="utf-8">',
              '<meta name="viewport" content="width=device-width, initial-scale=1">',
              f"<title>{esc(title)}</title><style>{_CSS}</style></head><body>",
+             '<section class="first">',
              f"<h1>{esc(title)}</h1>",
-             f'<p class="meta"><b>Job:</b> {esc(p.label or p.kind)} ({esc(KIND_WORDS.get(p.kind, p.kind))})<br>'
-             f"<b>Chosen:</b> {esc(status_text(o, len(result.options)))}<br>"
-             f"<b>Made by:</b> supplycfg {esc(__version__)} on {esc(_date(date))}<br>"
-             f"<b>Ranked by:</b> {esc(result.ranking_rule)}</p>"]
+             f'<p class="meta"><b>Job:</b> {esc(p.label or p.kind)} ({esc(KIND_WORDS.get(p.kind, p.kind))}) · '
+             f"<b>Chosen:</b> {esc(status_text(o, len(result.options)))} · "
+             f"<b>Made by:</b> supplycfg {esc(__version__)} on {esc(_date(date))}</p>"]
     if stops:
         parts += ["<h2>STOP: do not use this setting as it stands</h2>", _html_cautions(stops)]
-    parts += ["<h2>Set the machine like this</h2>", _html_table((), setting_rows(o, m, p), "setting")]
-    if o.current_settings:
-        parts += ["<h3>Field setting for each end of the welding range</h3>",
-                  _html_table(("Welding current", "Field", "Terminal voltage", "No-load voltage"),
-                              current_setting_rows(o), numeric=(0, 2, 3))]
+    parts.append(card_html(result, o, run, wiring_svg_for(result, o)))
+    parts += ["<h2>Check at the machine</h2>", checklist_html(result, o, run),
+              f'<p class="pointer">{esc(_cautions_pointer(o, result))}</p>',
+              f'<p class="notice small">{esc(STANDING_NOTICE)}</p>', "</section>"]
+    parts.append('<section class="later">')
+    if dial_rows(o):
+        parts += ["<h2>Welding dial in full</h2>", _html_table(DIAL_HEADERS, dial_rows(o), "dial", numeric=(0, 1))]
     if plan_table(o):
         parts += ["<h2>Charge plan</h2>",
                   f"<p>At {esc(condition_words(o)['setting'])}; only the field changes between stages.</p>",
                   _html_table(PLAN_HEADERS, plan_table(o)),
                   _html_table(("Reverse-current cut-out", "Figure"), cutout_rows(o))]
-    parts += ["<h2>What to expect</h2>", _html_table(("Figure", "Value"), figure_rows(o), numeric=(1,))]
+    parts += ["<p><b>Ranked by:</b> " + esc(ranking_rule(result)) + "</p>"]
+    parts += ["<h2>What to expect</h2>",
+              _html_table(("Figure", "Value"), figure_rows(o), numeric=(1,))]
     parts += ["<h2>Limits and margins</h2>",
               _html_table(("Limit", "Value", "Limit value", "Margin", "Margin of limit", "Status"), margin_rows(o),
-                          numeric=(1, 2, 3, 4))]
+                          numeric=(1, 2, 3, 4)),
+              f"<p><b>How the settings are ranked:</b> {esc(ranking_rule(result))}</p>"]
     if run is not None:
         parts += ["<h2>Charge run</h2>", _html_table(("What", "Value"), run_rows(run))]
     parts.append("<h2>Cautions</h2>")
@@ -606,12 +1092,10 @@ def sheet_html(result, rank=None, run=None, date=None, charts=True, svgs=None):
         for t, svg in svgs:
             parts.append(f'<figure class="chart" aria-label="{esc(t)}">{svg}</figure>')
     parts += ["<h2>The machine</h2>", _html_table(("What", "Data"), machine_rows(m))]
-    parts += ["<h2>The job</h2>", _html_table(("Key", "Value"), job_rows(p))]
-    parts += ["<h2>Checked at the machine</h2>",
-              _html_table(("Before closing onto the load", "Done"),
-                          [("Polarity checked with a meter", ""), ("Connection and tap as above", ""),
-                           ("Field set as above, speed at the figure above", "")]),
-              f'<p class="notice">{esc(STANDING_NOTICE)}</p>', "</body></html>"]
+    parts += ["<h2>The job</h2>", _html_table(("What", "Value"), job_rows(p))]
+    parts += ["<h2>Words used here</h2>", '<dl class="glossary">'
+              + "".join(f"<dt>{esc(k)}</dt><dd>{esc(v)}</dd>" for k, v in GLOSSARY.items()) + "</dl>"]
+    parts += [f'<p class="notice">{esc(STANDING_NOTICE)}</p>', "</section>", "</body></html>"]
     return "\n".join(parts)
 
 

@@ -1,5 +1,8 @@
 """The Streamlit page, run headless through streamlit.testing.v1.AppTest."""
 
+import html
+import re
+from html.parser import HTMLParser
 import tomllib
 import warnings
 from pathlib import Path
@@ -11,6 +14,7 @@ from supplycfg.errors import InputError
 from supplycfg.files import dumps_toml
 from supplycfg.profile import load_profile, profile_from_dict
 from supplycfg.machine import load_machine, machine_from_dict
+from supplycfg.wording import connection_words
 
 pytest.importorskip("streamlit.testing.v1")
 from streamlit.testing.v1 import AppTest  # noqa: E402
@@ -27,10 +31,23 @@ def _quiet():
         yield
 
 
-def fresh():
+def fresh(forms=True):
+    """The page as opened, with the machine and job forms shown (they are drawn only when asked for)."""
     at = AppTest.from_file(APP, default_timeout=60).run()
     assert not at.exception, at.exception
+    if forms:
+        at.toggle(key="show_machine_form").set_value(True)
+        at.toggle(key="show_profile_form").set_value(True).run()
+        assert not at.exception, at.exception
     return at
+
+
+def test_forms_are_drawn_only_when_asked_for():
+    """On load the forms are folded away (no text fields); the toggles show them."""
+    at = fresh(forms=False)
+    assert not any(t.label == "Poles" for t in at.text_input)
+    at.toggle(key="show_machine_form").set_value(True).run()
+    assert any(t.label == "Poles" for t in at.text_input)
 
 
 def options_table(at):
@@ -49,9 +66,14 @@ def button(at, label):
     return next(b for b in at.button if b.label == label)
 
 
+def shown(markdown):
+    """What a reader sees of escaped Markdown: backslash escapes and HTML entities resolved."""
+    return html.unescape(re.sub(r"\\(.)", r"\1", markdown))
+
+
 def errors(at):
-    """Error boxes other than stop cautions (those are shown as errors too)."""
-    return [e.value for e in at.error if not e.value.startswith("**STOP")]
+    """Error boxes other than stop cautions (those are shown as errors too), as the reader sees them."""
+    return [shown(e.value) for e in at.error if not e.value.startswith("**STOP")]
 
 
 def markdown_text(at):
@@ -59,24 +81,90 @@ def markdown_text(at):
 
 
 def test_default_page_shows_a_feasible_option():
-    """The page opens on the battery-charging demo with the charging set, already solved."""
+    """The page opens on the battery-charging demo with the charging set, already solved; the answer comes first."""
     at = fresh()
-    assert [h.value for h in at.header][:3] == ["1 · The machine", "2 · The job", "3 · Settings for this job"]
+    heads = [h.value for h in at.header]
+    assert heads.index("All the settings, ranked") < heads.index("The machine and the job in detail")
     assert at.session_state["kind"] == "battery"
     assert at.session_state["machine_origin"] == "demo:charging-set"
     table = options_table(at)
     assert table["Fit"].iloc[0] == "meets all"
-    assert {"Rank", "Least margin [%]", "Cautions", "Limits broken"} <= set(table.columns)
+    assert list(table.columns)[:3] == ["Rank", "Smallest margin [%]", "Cautions"] or \
+        list(table.columns)[:4] == ["Rank", "Objective", "Smallest margin [%]", "Cautions"]
+    assert {"Limits broken", "Connection"} <= set(table.columns)
     assert len(at.get("vega_lite_chart")) >= 2
     assert "Kestrel Ridge charging set CS-1" in markdown_text(at)
     assert STANDING_NOTICE in markdown_text(at)
     assert not errors(at)
 
 
+class _Cells(HTMLParser):
+    def __init__(self):
+        super().__init__()
+        self.rows, self.cell = [], None
+
+    def handle_starttag(self, tag, attrs):
+        if tag == "tr":
+            self.rows.append([])
+        elif tag in ("td", "th"):
+            self.cell = ""
+
+    def handle_endtag(self, tag):
+        if tag in ("td", "th"):
+            self.rows[-1].append(self.cell)
+            self.cell = None
+
+    def handle_data(self, data):
+        if self.cell is not None:
+            self.cell += data
+
+
+def html_table(markup):
+    """Rows (header first) of a table the page draws as HTML, cells as the reader sees them."""
+    p = _Cells()
+    p.feed(markup)
+    return p.rows
+
+
+def card(at):
+    """The block of ``st.container(key="recommended")`` (its id ends with the key)."""
+    for j, ch in enumerate(at.main.children.values()):
+        if type(ch).__name__ == "Block" and str(ch.proto.id).endswith("-recommended"):
+            return j, ch
+    raise AssertionError("no recommended card on the page")
+
+
+def test_recommended_card_comes_first_with_setting_reason_and_checks():
+    """The card (key 'recommended') stands before the ranked table: the setting in trade words, the line on why
+    it ranks first under the stated rule, and the checks at the machine with their expected values."""
+    from supplycfg.page import state
+    from supplycfg.report import checklist_rows, md_esc, ranking_line
+    at = fresh()
+    mt, pt = dumps_toml(at.session_state["machine_tables"]), dumps_toml(at.session_state["profile_tables"])
+    res, _ = state.solve(mt, pt)
+    best = res.options[0]
+    j, block = card(at)
+    kinds = [type(ch).__name__ for ch in at.main.children.values()]
+    assert j < kinds.index("Header"), "the card comes before every section header"
+    assert [type(c).__name__ for c in block.children.values()][:2] == ["Subheader", "Markdown"]
+    assert all("<script" not in m.value for m in at.markdown[1:])
+    assert block.subheader[0].value == f"Recommended: {connection_words(best.setting.connection)}"
+    line = ranking_line(res, best)
+    assert line.startswith("Ranked first of") and block.markdown[0].value == f"*{md_esc(line)}*"
+    tables = [html_table(m.value) for m in block.markdown if m.value.startswith("<table")]
+    setting, checks = tables[0], tables[-1]
+    assert setting[0] == ["Set", "To"]
+    assert setting[1] == ["Connection", connection_words(best.setting.connection)]
+    assert checks[0] == ["Check", "Expected"]
+    expected = checklist_rows(res, best)
+    assert checks[1:] == [list(r) for r in expected]
+    assert "How they are ranked:" in "\n".join(c.value for c in at.caption)
+
+
 @pytest.mark.parametrize("kind", ["welding", "lighting", "booster", "battery"])
 def test_each_load_kind_runs(kind):
     """Choosing each kind loads its demo job and its paired demo machine and solves it."""
-    at = AppTest.from_file(APP, default_timeout=60).run()
+    at = fresh(forms=False)
     at.radio(key="kind_pick").set_value(kind).run()
     assert not at.exception, at.exception
     assert at.session_state["kind"] == kind
@@ -154,7 +242,7 @@ def test_picking_another_option_shows_its_details():
     at = fresh()
     pick = next(s for s in at.selectbox if s.label == "Look at option")
     pick.select(2).run()
-    assert any(h.value == "4 · Option 2 in detail" for h in at.header)
+    assert any(h.value == "Option 2 in detail" for h in at.header)
     assert "option 2 of" in at.session_state["sheet_markdown"]
 
 
@@ -170,11 +258,11 @@ def test_downloads_give_a_sheet_with_the_setting_and_cautions():
     res, err = state.solve(mt, pt)
     assert err is None
     opt = res.options[0]
-    assert f"| Connection | {opt.setting.connection} |" in md
+    assert f"| Connection | {connection_words(opt.setting.connection)} |" in md
     assert opt.cautions and all(c.message.split(":")[0] in md for c in opt.cautions)
-    assert "Rests on:" in md
+    assert "Source: " in md and "(seen)" not in md
     html = state.sheet_html_cached("test", res, 1, None)
-    assert opt.setting.connection in html and "<svg" in html
+    assert connection_words(opt.setting.connection) in html and "<svg" in html
 
 
 def test_saved_machine_and_job_load_back_unchanged():
@@ -211,6 +299,49 @@ def test_uploads_are_checked():
     up.set_value(("mine.toml", good, "application/toml")).run()
     assert at.session_state["machine_origin"] == "file:mine.toml"
     assert "&lt;b&gt;mine&lt;/b&gt;" in markdown_text(at)
+
+
+def test_labels_are_inert_on_the_page():
+    """A machine label with a heading, a rule, a link, a table bar, a right-to-left override and zero-width marks
+    shows as one line of text in 'In use' (regression, issue 8 item 9)."""
+    at = fresh()
+    up = next(u for u in at.file_uploader if u.label.startswith("…or your machine file"))
+    label = '"Shop set\\n# Heading\\n---\\n[x](https://example.invalid) | cell \\u202Eevil\\u200B :red[r] $y$"'
+    good = (DEMO / "machines" / "welding-set.toml").read_bytes().replace(
+        b'label = "Kestrel Ridge welding set WS-2"', b"label = " + label.encode())
+    up.set_value(("odd\u202ename.toml", good, "application/toml")).run()
+    assert not at.exception
+    assert at.session_state["machine_origin"] == "file:odd\u202ename.toml"
+    lines = [m.value for m in at.markdown if "Shop set" in m.value]
+    assert lines
+    for text in lines:
+        assert "\n" not in text and "\u202e" not in text.lower() and "\u200b" not in text
+        assert "\\# Heading" in text and "\\[x\\](https\\://example.invalid)" in text
+        assert "\\|" in text and "\\$y\\$" in text and "\\:red\\[r\\]" in text
+        assert "\\u202e" in text.lower()
+    assert any("odd\\u202ename.toml" in shown(t) for t in lines)
+
+
+@pytest.mark.parametrize("field, value", [("Poles", "9" * 5000), ("Rated voltage [V]", "9" * 5000),
+                                          ("Series taps [turns per pole]", "0, " + "9" * 5000),
+                                          ("Armature resistance [Ω]", "1e" + "9" * 5000)])
+def test_a_number_of_thousands_of_digits_gets_a_line_not_a_traceback(field, value):
+    """Regression, issue 8 item 14: integer conversion beyond Python's digit limit happened outside the checks."""
+    at = fresh()
+    text_field(at, field).input(value)
+    button(at, "Use these machine data").click().run()
+    assert not at.exception
+    msgs = errors(at)
+    assert any("at most 400 characters" in m for m in msgs), msgs
+    assert options_table(at)["Fit"].iloc[0] == "meets all"
+
+
+def test_a_job_number_of_thousands_of_digits_gets_a_line():
+    at = fresh()
+    text_field(at, "Drive speed [rpm]").input("1450, " + "1" * 5000)
+    button(at, "Use this job").click().run()
+    assert not at.exception
+    assert any("drive.speed" in m and "at most 400 characters" in m for m in errors(at))
 
 
 def test_upload_size_check_before_parsing():
@@ -272,3 +403,13 @@ def test_form_text_parsing():
     assert fields.error_field("machine.series_taps[1]") == "machine.series_taps"
     with pytest.raises(InputError, match=r"open_circuit.emf_v\[1\]: is empty"):
         fields.machine_tables_from_form({"occ": {"field current [A]": [0.0, 0.5], "EMF [V]": [3.0, None]}})
+
+
+def test_page_tables_are_text_never_markup():
+    """The page draws its tables as one HTML element each; every cell is escaped text (issue 8 item 9)."""
+    from supplycfg.page.outputs import table_html
+    out = table_html(("What", "<i>x</i>"), [("<script>alert(1)</script>", "a\u202eb\u200b"), ("**bold**", "$x$")])
+    assert "<script" not in out and "<i>" not in out
+    assert "&lt;script&gt;" in out and "a\\u202eb\\u200b" in out and "\u202e" not in out
+    assert html_table(out) == [["What", "<i>x</i>"], ["<script>alert(1)</script>", "a\\u202eb\\u200b"],
+                               ["**bold**", "$x$"]]

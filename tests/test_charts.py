@@ -100,7 +100,8 @@ def test_occ_chart_no_load_point_is_the_intersection(charging):
 
 
 def test_occ_chart_speed_and_extrapolation(charging):
-    """At twice the test speed the curve doubles (E proportional to n at constant flux); beyond the last point it is dashed."""
+    """At twice the test speed the curve doubles (E proportional to n at constant flux); beyond the last point it is
+    a dashed series of its own, in the legend."""
     m, _ = charging
     spec = charts.occ_chart(m, Setting("shunt", speed_rpm=2 * m.occ_speed_rpm)).to_dict()
     measured = rows(spec, "measured")
@@ -110,7 +111,15 @@ def test_occ_chart_speed_and_extrapolation(charging):
     assert beyond and all(r["extrapolated"] == "yes" for r in beyond)
     inside = [r for r in curve if r["field_current_a"] < m.occ_field_current_a[-1] * 0.999]
     assert all(r["extrapolated"] == "no" for r in inside)
-    assert spec["layer"][0]["encoding"]["strokeDash"]["field"] == "extrapolated"
+    assert all(r["series"].endswith("beyond the test points") for r in beyond)
+    dash = spec["layer"][0]["encoding"]["strokeDash"]
+    assert dash["field"] == "series"
+    styles = dict(zip(dash["scale"]["domain"], dash["scale"]["range"]))
+    assert styles["open-circuit characteristic"] == charts.SOLID
+    assert styles["open-circuit characteristic: beyond the test points"] != charts.SOLID
+    # the two parts join at the last measured point
+    ext = [r for r in curve if r["series"].endswith("beyond the test points")]
+    assert_allclose(min(r["field_current_a"] for r in ext), m.occ_field_current_a[-1], rtol=1e-3)
 
 
 def test_occ_chart_other_connections():
@@ -270,6 +279,8 @@ def test_charge_run_chart_panels():
         duration_h = 10.0
         limit_volts_per_cell = 2.7
         handover_volts_per_cell = 2.38
+        gassing_volts_per_cell = 2.37
+        start_state_of_charge = 0.2
 
     spec = charts.charge_run_chart(Run()).to_dict()
     assert len(spec["vconcat"]) == 3
@@ -278,7 +289,34 @@ def test_charge_run_chart_panels():
     limit = rows(spec, "limit")
     assert_allclose([r["limit"] for r in limit], [2.7, 2.38])
     assert len(rows(spec, "run")) == 50
-    assert "10 h" in spec["title"]
+    assert "10 h" in spec["title"]["text"]
+    # both limits labelled in the legend, each with its own dash pattern
+    labels = {r["series"] for r in rows(spec, "limit")}
+    assert labels == {"highest cell voltage 2.7 V", "hand-over to the finish (gassing) 2.38 V per cell"}
+    enc = spec["vconcat"][1]["layer"][1]["encoding"]
+    dashes = dict(zip(enc["strokeDash"]["scale"]["domain"], enc["strokeDash"]["scale"]["range"]))
+    assert len({tuple(dashes[lab]) for lab in labels}) == 2 and all(dashes[lab] != charts.SOLID for lab in labels)
+    assert enc["strokeDash"].get("legend", {}) is not None
+
+
+def test_charge_run_chart_draws_the_plan_stages():
+    """Where the core gives the charge plan's stages, each is a shaded, labelled span on every panel."""
+    class Run:
+        time_h = np.linspace(0, 10, 50)
+        current_a = np.linspace(30, 5, 50)
+        bank_voltage_v = np.linspace(125, 140, 50)
+        volts_per_cell = bank_voltage_v / 60
+        state_of_charge = np.linspace(0.2, 1.0, 50)
+        ah = np.cumsum(current_a) * 0.2
+        duration_h = 10.0
+        limit_volts_per_cell = 2.4
+        stages = [{"from_h": 0.0, "to_h": 7.5, "ends_because": "gassing voltage reached"},
+                  {"from_h": 7.5, "to_h": 10.0, "ends_because": "end state of charge reached"}]
+
+    spec = charts.charge_run_chart(Run()).to_dict()
+    st = rows(spec, "stages")
+    assert [r["band"] for r in st] == ["stage 1: 0 to 7.5 h", "stage 2: 7.5 to 10 h"]
+    assert all(panel["layer"][0]["mark"]["type"] == "rect" for panel in spec["vconcat"])
 
 
 def test_charts_export_to_svg(charging):
@@ -322,3 +360,107 @@ def test_every_connection_the_search_offers_draws(stems):
         for _, _, ch in out:
             spec = ch.to_dict(validate=False)
             assert spec["datasets"]
+
+
+def _legend_styles(layer):
+    enc = layer["encoding"]
+    dom = enc["strokeDash"]["scale"]["domain"]
+    return {k: (c, d, w) for k, c, d, w in zip(dom, enc["color"]["scale"]["range"], enc["strokeDash"]["scale"]["range"],
+                                                 enc["strokeWidth"]["scale"]["range"])}
+
+
+def _job_specs(stems):
+    from supplycfg.report import other_tap_options
+    from supplycfg.search import search
+    m, p = machine(stems[0]), profile(stems[1])
+    res = search(m, p)
+    o = res.options[0]
+    return m, p, o, {k: charts.chart_spec(ch) for k, _, ch in charts.option_charts(m, p, o, other_tap_options(res, o))}
+
+
+@pytest.mark.parametrize("stems", [("charging-set", "battery-charging"), ("welding-set", "welding"),
+                                   ("lighting-set", "lighting"), ("feeder-booster", "booster")])
+def test_every_limit_is_a_labelled_line_with_a_dash(stems):
+    """Each load and limit line is in the legend with a dash pattern of its own; each band has a legend entry;
+    colours come from the colour-blind-safe palette (or grey); the chosen option is drawn bolder than others."""
+    m, p, o, specs = _job_specs(stems)
+    spec = specs["load"]
+    line_layers = [ly for ly in spec["layer"] if ly["mark"]["type"] == "line"]
+    styles = _legend_styles(line_layers[0])
+    palette = set(charts.SERIES_COLOURS) | {charts.GREY}
+    assert all(c in palette for c, _, _ in styles.values())
+    assert all(ly["encoding"]["strokeDash"].get("legend", {}) is not None for ly in line_layers)
+    for r in rows(spec, "loads") if "loads" in spec["datasets"] else []:
+        colour, dash, _ = styles[r["series"]]
+        assert dash != charts.SOLID, r["series"]
+    dashes = [tuple(styles[s][1]) for s in {r["series"] for r in rows(spec, "loads")}] if "loads" in spec["datasets"] else []
+    assert len(dashes) == len(set(dashes)), "two limit lines share a dash pattern"
+    bands = rows(spec, "bands")
+    rect = next(ly for ly in spec["layer"] if ly["mark"]["type"] == "rect")
+    assert rect["encoding"]["fill"]["legend"] is not None
+    assert {b["band"] for b in bands} == set(rect["encoding"]["fill"]["scale"]["domain"])
+    chosen = [w for lab, (_, _, w) in styles.items() if not lab.startswith("other tap")]
+    others = [w for lab, (_, _, w) in styles.items() if lab.startswith("other tap")]
+    assert all(w < max(chosen) for w in others)
+
+
+def test_welding_chart_draws_the_no_load_limits():
+    """The no-load limits the search checks (IEC 60974-1 113 V peak; the job's site limit) are labelled lines."""
+    m, p, o, specs = _job_specs(("welding-set", "welding"))
+    lines = {r["series"]: r["terminal_voltage_v"] for r in rows(specs["load"], "loads")}
+    peak = o.margins["no_load_peak_voltage"]["limit"]
+    assert any(lab.startswith("no-load limit") and v == pytest.approx(peak) for lab, v in lines.items())
+    if "no_load_mean_voltage" in o.margins:
+        site = o.margins["no_load_mean_voltage"]["limit"]
+        assert any(lab.startswith("site no-load limit") and v == pytest.approx(site) for lab, v in lines.items())
+    top = specs["load"]["layer"][0]["encoding"]["y"]["scale"]["domain"][1]
+    assert top > peak, "the limit must be inside the view"
+
+
+def test_welding_strike_minimum_drawn_when_the_core_states_it():
+    """A strike minimum in the option's figures (issue 10's key) becomes its own labelled line."""
+    from supplycfg.search import search
+    m, p = machine("welding-set"), profile("welding")
+    o = search(m, p).options[0]
+    o2 = replace(o, figures=dict(o.figures, min_no_load_voltage_v=50.0))
+    spec = charts.welding_chart(m, p, o2).to_dict()
+    assert any(r["series"].startswith("strike minimum 50 V") for r in rows(spec, "loads"))
+
+
+def test_battery_chart_axis_fits_the_battery_and_draws_gassing(charging):
+    """The voltage axis starts near the battery's voltages (not at 0) and the gassing line is drawn."""
+    from supplycfg.search import search
+    m, p = charging
+    o = search(m, p).options[0]
+    spec = charts.battery_chart(m, p, o.setting, figures=o.figures).to_dict()
+    lo, hi = spec["layer"][0]["encoding"]["y"]["scale"]["domain"]
+    rest = min(r["terminal_voltage_v"] for r in rows(spec, "loads") if r["series"].startswith("battery at rest"))
+    assert 0.8 * rest < lo < rest
+    gas = [r for r in rows(spec, "loads") if r["series"].startswith("gassing voltage")]
+    assert_allclose(gas[0]["terminal_voltage_v"], o.figures["gassing_volts_per_cell"] * p.battery.cells, rtol=1e-3)
+    assert hi > gas[0]["terminal_voltage_v"]
+
+
+def _luminance(hex_colour):
+    rgb = [int(hex_colour[i:i + 2], 16) / 255 for i in (1, 3, 5)]
+    lin = [c / 12.92 if c <= 0.04045 else ((c + 0.055) / 1.055) ** 2.4 for c in rgb]
+    return 0.2126 * lin[0] + 0.7152 * lin[1] + 0.0722 * lin[2]
+
+
+def contrast(a, b):
+    """WCAG 2.1 contrast ratio of two colours (source: WCAG 2.1, 'contrast ratio' definition)."""
+    la, lb = sorted((_luminance(a), _luminance(b)), reverse=True)
+    return (la + 0.05) / (lb + 0.05)
+
+
+def test_chart_text_contrast_at_least_4_5():
+    """Axis, legend and title text reach WCAG 2.1 AA contrast (4.5:1) on the chart's white background."""
+    assert_allclose(contrast("#767676", "#ffffff"), 4.54, atol=0.01)  # WCAG's own borderline grey
+    _, _, _, specs = _job_specs(("charging-set", "battery-charging"))
+    for spec in specs.values():
+        cfg = spec["config"]
+        bg = cfg["background"]
+        for colour in (cfg["axis"]["labelColor"], cfg["axis"]["titleColor"], cfg["legend"]["labelColor"],
+                       cfg["title"]["color"], cfg["title"]["subtitleColor"]):
+            assert contrast(colour, bg) >= 4.5
+        assert cfg["legend"]["labelLimit"] == 0 and cfg["title"]["limit"] == 0  # nothing cut short

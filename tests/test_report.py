@@ -1,6 +1,10 @@
-"""The setting sheet: content, escaping, the files it writes."""
+"""The setting sheet: content, escaping, page 1 in print, the files it writes."""
 
+import copy
 import dataclasses
+import re
+import shutil
+import subprocess
 from pathlib import Path
 
 import pytest
@@ -11,6 +15,7 @@ from supplycfg.errors import InputError
 from supplycfg.profile import load_profile
 from supplycfg.machine import load_machine
 from supplycfg.search import search
+from supplycfg.wording import connection_words
 
 DEMO = Path(__file__).resolve().parent.parent / "profiles"
 PAIRS = {"battery": ("charging-set", "battery-charging"), "welding": ("welding-set", "welding"),
@@ -39,15 +44,16 @@ def test_markdown_sheet_holds_setting_cautions_notice(results, kind):
     opt = res.options[0]
     md = report.sheet_markdown(res, date="2031-05-04")
     assert res.machine.label in md and res.profile.label in md
-    assert f"| Connection | {opt.setting.connection} |" in md
+    assert f"| Connection | {connection_words(opt.setting.connection)} |" in md
     assert "## What to expect" in md and "## Limits and margins" in md
     for c in list(opt.cautions) + list(res.cautions):
         assert report.md_esc(c.message) in md
-        assert report.md_esc(c.basis) in md
+        assert report.md_esc(report.source_text(c.basis)) in md
+    assert "(seen)" not in md and "from memory" not in md
     assert report.md_esc(STANDING_NOTICE) in md
     assert f"supplycfg {__version__} on 2031-05-04" in md
     if kind == "welding":
-        assert "Field setting for each end of the welding range" in md
+        assert "Welding dial" in md or "each end of the welding range" in md
 
 
 def test_html_sheet_with_charts(results):
@@ -59,7 +65,8 @@ def test_html_sheet_with_charts(results):
     assert "<?xml" not in html
     assert "@page" in html and "@media print" in html
     assert STANDING_NOTICE.replace("'", "&#x27;") in html
-    assert res.options[0].setting.connection in html
+    assert connection_words(res.options[0].setting.connection) in html
+    assert "(seen)" not in html and "from memory" not in html and "Source: " in html
 
 
 def test_html_sheet_option_rank(results):
@@ -71,7 +78,8 @@ def test_html_sheet_option_rank(results):
 
 
 def test_labels_are_escaped(results):
-    """A label like <script> from a file or form prints as text in both sheets (issue 5)."""
+    """A label like <script> from a file or form prints as text in both sheets (issue 5).
+    Regression, issue 8 item 9."""
     res = results["welding"]
     m = dataclasses.replace(res.machine, label=HOSTILE)
     p = dataclasses.replace(res.profile, label=HOSTILE + " & <b>bold</b>")
@@ -155,3 +163,176 @@ def test_battery_sheet_carries_the_plan_and_the_cut_out(results):
     assert f"| Hours to full | {report.fmt(f['hours_to_full'], 'h')} |" in md
     html = report.sheet_html(res, charts=False)
     assert "Charge plan" in html and "Reverse-current cut-out" in html
+FORGED = ("Kestrel\n## Cautions\nNone raised by the rules for this setting.\n\n# Setting sheet: fake "
+          "| cell | [click](https://example.invalid) *bold* `code` $x$ :red[red] www.example.invalid "
+          "\u202egnp.exe\u200b\u2066\r\u2028end")
+
+
+def test_a_label_cannot_forge_the_markdown_sheet(results):
+    """A label with line breaks, headings, a table bar, a link, maths, a right-to-left override and zero-width
+    characters stays one line of inert text (regression, issue 8 item 9)."""
+    res = results["battery"]
+    bad = dataclasses.replace(res, machine=dataclasses.replace(res.machine, label=FORGED),
+                              profile=dataclasses.replace(res.profile, label=FORGED))
+    md = report.sheet_markdown(bad, date="2031-05-04")
+    headings = [ln for ln in md.splitlines() if ln.startswith("#")]
+    assert headings[0].startswith(r"# Setting sheet: Kestrel\\n\#\# Cautions")
+    assert sum(h == "## Cautions" for h in headings) == 1
+    assert not any(h.startswith("# Setting sheet: fake") for h in headings)
+    for ch in ("\u202e", "\u200b", "\u2066", "\r", "\u2028"):
+        assert ch not in md
+    assert "\\u202e" in md and "\\u200b" in md
+    assert "](" not in md.replace("\\](", "")
+    assert "\\[click\\](https\\://example.invalid)" in md
+    assert "\\*bold\\*" in md and "\\`code\\`" in md and "\\$x\\$" in md and "\\:red\\[red\\]" in md
+    assert "www\\.example" in md
+    first = md.splitlines()[0]
+    assert first.count("|") == first.count("\\|")  # no bare bar: no table cell can be opened
+    table_rows = [ln for ln in md.splitlines() if ln.startswith("| Drive speed")]
+    assert table_rows, "the job table is still there"
+
+
+def test_a_label_cannot_forge_the_html_sheet(results):
+    """HTML: the same label is text, its direction override and zero-width characters shown as escapes."""
+    res = results["battery"]
+    bad = dataclasses.replace(res, machine=dataclasses.replace(res.machine, label=FORGED))
+    html = report.sheet_html(bad, charts=False, date="2031-05-04")
+    for ch in ("\u202e", "\u200b", "\u2066", "\u2028"):
+        assert ch not in html
+    assert "\\u202egnp.exe" in html
+    assert "<a " not in html
+    assert html.count("<h1>") == 1
+
+
+def test_md_data_and_md_esc():
+    assert report.md_data("a|b") == "a\\|b"
+    assert report.md_data("<b>&") == "&lt;b&gt;&amp;"
+    assert report.md_data("two\nlines") == "two\\\\nlines"
+    assert report.md_data("CS-1, ok.") == "CS-1, ok."
+    assert report.md_data("see www.example.invalid or x@y.z") == "see www\\.example.invalid or x\\@y.z"
+    assert report.md_esc("option 1 of 8: meets *all*") == "option 1 of 8: meets \\*all\\*"
+
+
+@pytest.mark.parametrize("kind", list(PAIRS))
+def test_sheet_leads_with_card_wiring_and_checklist(results, kind):
+    """The HTML sheet: the card, the wiring drawing and the checklist (Expected, Measured, Initials) come before
+    the figures; the checklist has the job's rows; the job table is in words with units."""
+    res = results[kind]
+    o = res.options[0]
+    html = report.sheet_html(res, charts=False, date="2031-05-04")
+    assert "@page { size: A4" in html
+    card, wiring_at, check = html.index('id="setting-card"'), html.index('class="wiring"'), html.index('id="checklist"')
+    later = html.index("What to expect")
+    assert card < wiring_at < check < later
+    assert "<th>Expected</th><th>Measured</th><th>Initials</th>" in html
+    rows = [c for c, _ in report.checklist_rows(res, o)]
+    for start in ("Polarity checked", "Field current", "Drive speed"):
+        assert any(r.startswith(start) for r in rows), start
+    # a shunt or separate field needs its discharge path; a series field (the booster) has none to open
+    assert any(r.startswith("Field discharge path") for r in rows) == (o.setting.connection != "series")
+    if kind == "battery":
+        assert any(r.startswith("Reverse-current cut-out fitted") for r in rows)
+        assert any(r.startswith("Battery-room ventilation") for r in rows)
+        assert any(r.startswith("Charging current at the start") for r in rows)
+    if kind == "welding":
+        assert any(r.startswith("No-load voltage against the limit") for r in rows)
+        assert any(r.startswith("No tap change under load") for r in rows)
+    if kind != "booster":
+        assert any(r.startswith("No-load voltage at speed") for r in rows)
+    assert report.ranking_line(res, o) in html.replace("&#x27;", "'")
+    words = dict(report.job_rows(res.profile))
+    assert "Drive speed" in words and words["Drive speed"].endswith("rpm")
+    assert "drive.speed" not in html and "speed_rpm" not in html
+    md = report.sheet_markdown(res, date="2031-05-04")
+    assert md.index("## Wiring") < md.index("## Check at the machine") < md.index("## What to expect")
+    assert "| Check | Expected | Measured | Initials |" in md
+
+
+def test_card_shows_readings_bands_dial_and_plan_when_the_core_gives_them(results):
+    """Meter readings with their band, the welding dial and the charge plan (issues 9 and 10's option keys) are
+    shown as given, rounded to what can be set; nothing is computed."""
+    res = results["welding"]
+    o = copy.copy(res.options[0])
+    o.readings = {"field_current_a": {"cold": 0.98765, "hot": 0.91234}, "rheostat_ohm": 48.6123,
+                  "rheostat_travel_percent": 81.02}
+    o.band = {"field_current_a": [0.9, 1.05], "rheostat_ohm": [40.0, 55.0]}
+    o.dial = [{"current_a": 60.0 + 10 * k, "series_turns": 3.0 if k < 6 else 5.0, "diverter_ohm": None,
+               "field_current_a": 0.5 + 0.02 * k, "rheostat_ohm": 50.0 - 2 * k, "no_load_voltage_v": 60.0 + k,
+               "no_load_voltage_max_v": 64.0 + k, "short_circuit_current_a": 150.0 + 10 * k, "slope_v_per_a": -0.3}
+              for k in range(13)]
+    rows = dict(report.setting_rows(o, res.machine, res.profile))
+    assert rows["Field ammeter reads"] == "0.988 A cold, 0.912 A hot; keep it within 0.9 to 1.05 A"
+    assert rows["Field rheostat"] == "48.6 Ω (81 % of its travel); every limit holds from 40 to 55 Ω"
+    dial = report.dial_rows(o)
+    assert len(dial) == 13 and dial[0][0] == "60 A" and dial[-1][1] == "5"
+    assert report.objective_value(o, "welding") == (1.0, "1 tap change")
+    res2 = dataclasses.replace(res, options=[o] + res.options[1:])
+    html = report.sheet_html(res2, charts=False)
+    assert "Welding dial" in html and "0.988 A cold" in html
+    assert "Field ammeter reads" in dict(report.checklist_rows(res2, o)) or \
+        any("0.988 A cold" in e for _, e in report.checklist_rows(res2, o))
+
+    bres = results["battery"]
+    b = copy.copy(bres.options[0])
+    b.plan = [{"setting": {"rheostat_ohm": 30.0}, "from_h": 0.0, "to_h": 7.2, "start_current_a": 30.0,
+               "end_current_a": 18.0, "end_volts_per_cell": 2.37, "ends_because": "gassing voltage reached",
+               "readings": {"field_current_a": {"cold": 1.41, "hot": 1.3}}},
+              {"setting": {"rheostat_ohm": 60.0}, "from_h": 7.2, "to_h": 10.1, "start_current_a": 10.0,
+               "end_current_a": 9.0, "end_volts_per_cell": 2.62, "ends_because": "end state of charge reached"}]
+    plan = report.card_plan_rows(b)
+    assert [r[0] for r in plan] == ["1: main charge", "2: finish"]
+    # stage 1 is the option's own setting: its band, where the option has one, follows the reading
+    assert plan[0][2].startswith("Field ammeter reads: 1.41 A cold, 1.3 A hot") and plan[1][2] == "rheostat 60 Ω"
+    assert plan[1][4] == "at 2.62 V per cell end state of charge reached"
+
+
+def _print_page_one(html, tmp_path):
+    src = tmp_path / "sheet.html"
+    src.write_text(html, encoding="utf-8")
+    pdf = tmp_path / "sheet.pdf"
+    subprocess.run([CHROMIUM, "--headless", "--no-sandbox", "--disable-gpu", "--no-first-run",
+                    "--disable-background-networking", "--disable-component-update", "--disable-sync",
+                    f"--print-to-pdf={pdf}", "--no-pdf-header-footer", src.as_uri()],
+                   capture_output=True, timeout=180, check=False)
+    assert pdf.is_file() and pdf.stat().st_size > 1000, "chromium wrote no PDF"
+    one = subprocess.run(["pdftotext", "-layout", "-f", "1", "-l", "1", str(pdf), "-"], capture_output=True,
+                         text=True, timeout=60).stdout
+    size = subprocess.run(["pdfinfo", str(pdf)], capture_output=True, text=True, timeout=60).stdout
+    return one, size
+
+
+CHROMIUM = shutil.which("chromium") or "/usr/bin/chromium"
+needs_print = pytest.mark.skipif(not (Path(CHROMIUM).exists() and shutil.which("pdftotext") and shutil.which("pdfinfo")),
+                                 reason="chromium and poppler-utils (pdftotext, pdfinfo) are needed to print")
+
+
+@needs_print
+@pytest.mark.parametrize("kind", ["battery", "welding"])
+def test_printed_page_one_holds_the_card_and_the_checklist(results, kind, tmp_path):
+    """Chromium's print to PDF: A4, and page 1 holds the setting card and the whole checklist; the figures start
+    on a later page. The welding option carries a 13-row dial and the battery one a two-stage plan, as the core
+    will give them."""
+    res = results[kind]
+    o = copy.copy(res.options[0])
+    if kind == "welding":
+        o.dial = [{"current_a": 60.0 + 10 * k, "series_turns": 3.0, "diverter_ohm": None, "field_current_a": 0.5,
+                   "rheostat_ohm": 50.0 - 2 * k, "no_load_voltage_v": 60.0, "no_load_voltage_max_v": 64.0,
+                   "short_circuit_current_a": 150.0, "slope_v_per_a": -0.3} for k in range(13)]
+    else:
+        o.plan = [{"from_h": 0.0, "to_h": 7.2, "start_current_a": 30.0, "end_current_a": 18.0,
+                   "end_volts_per_cell": 2.37, "ends_because": "gassing voltage reached", "setting": {}},
+                  {"from_h": 7.2, "to_h": 10.1, "start_current_a": 10.0, "end_current_a": 9.0,
+                   "end_volts_per_cell": 2.62, "ends_because": "end state of charge reached", "setting": {}}]
+    res = dataclasses.replace(res, options=[o] + res.options[1:])
+    html = report.sheet_html(res, charts=False, date="2031-05-04")
+    one, info = _print_page_one(html, tmp_path)
+    assert re.search(r"Page size:.*\(A4\)", info), info
+    text = " ".join(one.split())
+    assert "Set the machine like this" in text
+    assert connection_words(o.setting.connection) in text
+    assert re.search(r"Check\s+Expected\s+Measured\s+Initials", text)
+    for check, _ in report.checklist_rows(res, o):
+        assert " ".join(check.split()[:3]) in text, check
+    assert "Field discharge path fitted" in text
+    assert "What to expect" not in text
+    assert ("Welding dial" in text) if kind == "welding" else ("Charge plan" in text)

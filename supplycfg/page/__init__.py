@@ -1,8 +1,11 @@
 """The Streamlit page of supplycfg (``streamlit run app.py``).
 
 Only this package and ``app.py`` import Streamlit. The page arranges the
-inputs and shows what the core returns: the machine, the job, the ranked
-settings, the chosen one's cautions, curves and setting sheet.
+inputs and shows what the core returns. The answer comes first: the
+recommended setting in a card (``st.container(key="recommended")``), solved
+on load; then the ranked options, the chosen one in detail with its wiring,
+curves and setting sheet. The quick choices (job, demo machine, files) sit
+in the sidebar; every value can be seen and changed at the foot of the page.
 """
 
 import streamlit as st
@@ -26,6 +29,13 @@ PAGE_CSS = """
 @media (max-width: 640px) {
   [data-testid="stMainBlockContainer"], .block-container { padding-left: .6rem !important; padding-right: .6rem !important; }
 }
+[data-testid="stMainBlockContainer"], .block-container { padding-top: 3rem !important; }
+.st-key-recommended { border-left: 6px solid #1f4e79 !important; }
+table.sc-table { width: 100%; border-collapse: collapse; font-size: .9rem; margin: .2rem 0 .6rem; }
+table.sc-table th, table.sc-table td { border: 1px solid #d5dae0; padding: .25rem .5rem; text-align: left;
+  vertical-align: top; }
+table.sc-table th { background: #f0f2f5; font-weight: 600; }
+.st-key-wiring img { max-height: 380px; object-fit: contain; }
 </style>
 """
 
@@ -40,31 +50,43 @@ def _served_beyond_loopback():
 
 
 def main():
-    """Draw the whole page."""
-    st.set_page_config(page_title="supplycfg · DC generator settings", layout="centered")
+    """Draw the whole page: the answer first, the ranked options, the detail, the inputs at the foot."""
+    st.set_page_config(page_title="supplycfg · DC generator settings", layout="centered",
+                       initial_sidebar_state="auto")
     st.markdown(PAGE_CSS, unsafe_allow_html=True)
     from . import inputs, outputs, state
     state.init()
-    st.title("supplycfg")
-    st.markdown("Put a DC generator on its load: bring the machine's data, say what the load needs, "
-                "compare the settings that meet it and take a setting sheet to the machine.")
+    with st.sidebar:
+        inputs.sidebar_picks()
+    st.title("supplycfg", anchor=False)
+    st.markdown("Put a DC generator on its load: the setting to use, how to wire it and what to check at the machine.")
     if _served_beyond_loopback():
         st.warning("This page is being reached over the network. Start it with `--server.address 127.0.0.1` "
                    "to keep it on this computer.")
-    inputs.machine_section()
-    inputs.job_section()
+    st.markdown(inputs.in_use_text())
     mt, pt = state.texts()
     key = state.digest(mt, pt)
     result, err = state.solve(mt, pt)
     if result is None:
-        st.error(err)
-        return
-    option = outputs.options_section(result, key)
-    if option is not None:
-        run, run_msg = state.charge(mt, pt, option.rank) if result.profile.kind == "battery" else (None, None)
-        outputs.detail_section(result, option)
-        outputs.curves_section(result, option, run, run_msg, key, (mt, pt))
-        outputs.downloads_section(result, option, run, key, mt, pt)
+        from ..report import md_data
+        st.error(md_data(err))
+    elif not result.options:
+        st.warning("No setting to show: " + "; ".join(result.notes))
+    else:
+        best = result.options[0]
+        best_run = None
+        if result.profile.kind == "battery":
+            best_run, _ = state.charge(mt, pt, best.rank)
+        outputs.recommended_card(result, best_run)
+        option = outputs.options_section(result, key)
+        if option is not None:
+            run, run_msg = state.charge(mt, pt, option.rank) if result.profile.kind == "battery" else (None, None)
+            outputs.detail_section(result, option)
+            outputs.curves_section(result, option, run, run_msg, key, (mt, pt))
+            outputs.downloads_section(result, option, run, key, mt, pt)
+    st.header("The machine and the job in detail", anchor="data")
+    inputs.machine_section()
+    inputs.job_section()
     st.divider()
     st.markdown(f"**{STANDING_NOTICE}**")
     st.caption(f"supplycfg {__version__}")

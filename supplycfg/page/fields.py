@@ -150,13 +150,33 @@ def to_text(v):
 
 
 _INT = re.compile(r"[+-]?\d+")
+#: Longest number a field takes [characters]: far beyond any float (about 1e308) written out, short
+#: enough that converting it costs nothing (Python refuses integers past 4300 digits anyway).
+MAX_NUMBER_CHARS = 400
+
+
+class NumberTooLong(ValueError):
+    """A typed number with more characters than :data:`MAX_NUMBER_CHARS`."""
+
+    def __init__(self, chars):
+        super().__init__(f"{chars} characters")
+        self.chars = chars
 
 
 def parse_number(text):
-    """Typed text as a number; text that is not one stays text (the reader then names the rule)."""
+    """Typed text as a number; text that is not one stays text (the reader then names the rule).
+
+    Raises
+    ------
+    NumberTooLong
+        For a number longer than :data:`MAX_NUMBER_CHARS` (thousands of
+        digits): the form names the field and what is allowed.
+    """
     s = text.strip()
     if s == "":
         return None
+    if len(s) > MAX_NUMBER_CHARS:
+        raise NumberTooLong(len(s))
     if _INT.fullmatch(s):
         return int(s)
     try:
@@ -173,12 +193,17 @@ def parse_list(text):
     return [parse_number(p) for p in re.split(r"[,;\s]+", s) if p != ""]
 
 
-def parse_field(kind, text):
+def parse_field(kind, text, key="value"):
+    """A form field's text as the value its table takes; ``key`` names it in the message of a number too long."""
     if kind == "text" or kind.startswith("choice"):
         return text
-    if kind.startswith("list"):
-        return parse_list(text)
-    return parse_number(text)
+    try:
+        if kind.startswith("list"):
+            return parse_list(text)
+        return parse_number(text)
+    except NumberTooLong as e:
+        raise InputError(FORM, key, f"has a number of {e.chars} characters; allowed: a number of at most "
+                                    f"{MAX_NUMBER_CHARS} characters (ordinary numbers, e.g. 0.045 or 1.2e3)") from None
 
 
 def field_id(table, key):
@@ -238,7 +263,8 @@ def _columns(table, names, table_key, keys):
             if _blank(v):
                 raise InputError(FORM, f"{table_key}.{keys[j]}[{len(out[j])}]",
                                  "is empty; allowed: a number in every cell of the table")
-        out[0].append(_num(a)); out[1].append(_num(b))
+        out[0].append(_num(a, f"{table_key}.{keys[0]}[{len(out[0])}]"))
+        out[1].append(_num(b, f"{table_key}.{keys[1]}[{len(out[1])}]"))
     return out
 
 
@@ -246,9 +272,9 @@ def _blank(v):
     return v is None or (isinstance(v, float) and math.isnan(v)) or (isinstance(v, str) and not v.strip())
 
 
-def _num(v):
+def _num(v, key="value"):
     if isinstance(v, str):
-        return parse_number(v)
+        return parse_field("num", v, key)
     if isinstance(v, bool):
         return v
     if isinstance(v, int):
@@ -262,7 +288,7 @@ def machine_tables_from_form(vals):
     for table, key, _, kind, _ in MACHINE_FIELDS:
         if table in ("armature_reaction", "winding"):
             continue
-        v = parse_field(kind, vals.get(field_id(table, key), ""))
+        v = parse_field(kind, vals.get(field_id(table, key), ""), field_id(table, key))
         if v is None or (kind == "text" and v == "" and key != "label"):
             continue
         t[table][key] = v
@@ -272,7 +298,8 @@ def machine_tables_from_form(vals):
     t["open_circuit"]["emf_v"] = ev
     mode = vals.get("ar_mode", "none")
     if mode == "linear":
-        v = parse_number(vals.get("armature_reaction.demagnetizing_at_per_pole_at_rated", ""))
+        v = parse_field("num", vals.get("armature_reaction.demagnetizing_at_per_pole_at_rated", ""),
+                        "armature_reaction.demagnetizing_at_per_pole_at_rated")
         t["armature_reaction"] = {} if v is None else {"demagnetizing_at_per_pole_at_rated": v}
     elif mode == "table":
         ia, at = _columns(vals.get("ar_table", {}), ("armature current [A]", "demagnetising [AT per pole]"),
@@ -280,7 +307,7 @@ def machine_tables_from_form(vals):
         t["armature_reaction"] = {"armature_current_a": ia, "demagnetizing_at_per_pole": at}
     w = {}
     for key in ("conductors", "parallel_paths"):
-        v = parse_number(vals.get(field_id("winding", key), ""))
+        v = parse_field("num", vals.get(field_id("winding", key), ""), field_id("winding", key))
         if v is not None:
             w[key] = v
     if w:
@@ -308,17 +335,17 @@ def profile_form_values(tables):
 def profile_tables_from_form(kind, vals):
     """Profile TOML tables of ``kind`` from the form's values."""
     t = {"load": {"kind": kind, "label": vals.get("load.label", "")}, "drive": {}, kind: {}}
-    sp = parse_list(vals.get("drive.speed", ""))
+    sp = parse_field("list", vals.get("drive.speed", ""), "drive.speed")
     if sp is not None:
         if len(sp) == 1:
             t["drive"]["speed_rpm"] = sp[0]
         else:
             t["drive"]["speed_range_rpm"] = sp
-    tr = parse_list(vals.get("drive.winding_temperature_range_c", ""))
+    tr = parse_field("list", vals.get("drive.winding_temperature_range_c", ""), "drive.winding_temperature_range_c")
     if tr is not None:
         t["drive"]["winding_temperature_range_c"] = tr
     for table, key, _, ftype, _ in PROFILE_FIELDS[kind]:
-        v = parse_field(ftype, vals.get(field_id(table, key), ""))
+        v = parse_field(ftype, vals.get(field_id(table, key), ""), field_id(table, key))
         if v is None:
             continue
         t[table][key] = v

@@ -3,6 +3,7 @@
 import streamlit as st
 
 from ..jobs import KINDS
+from ..report import md_data
 from . import fields, state
 
 S = st.session_state
@@ -11,16 +12,17 @@ UPLOAD_LIMIT_MB = 1
 
 
 def _origin_text(origin):
+    """Where the data in use came from, as Markdown: file names are data."""
     if origin.startswith("demo:"):
-        return f"demo file {origin[5:]}.toml"
+        return f"demo file {md_data(origin[5:])}.toml"
     if origin.startswith("file:"):
-        return f"your file {origin[5:]}"
-    return origin
+        return f"your file {md_data(origin[5:])}"
+    return md_data(origin)
 
 
 def _field_error(err, fid):
     if err and fields.error_field(err["key"]) == fid:
-        st.error(f"{err['message']}", icon=None)
+        st.error(md_data(err["message"]), icon=None)
         return True
     return False
 
@@ -38,34 +40,47 @@ def _text_field(pre, fid, label, help_text, value, err, choices=None):
     return _field_error(err, fid)
 
 
-def machine_section():
-    st.header("1 · The machine", anchor="machine")
+def in_use_text():
+    """'Machine: … · Job: …' with the labels as inert text."""
+    m = S.machine_tables["machine"].get("label") or "(no name)"
+    j = S.profile_tables["load"].get("label") or "(no name)"
+    return (f"**Machine:** {md_data(m)} ({_origin_text(S.machine_origin)}) · "
+            f"**Job:** {md_data(j)} ({fields.KIND_LABELS[S.kind].lower()}, {_origin_text(S.profile_origin)})")
+
+
+def sidebar_picks():
+    """The quick choices, aside: the job, a demo machine, your own files."""
+    st.header("Machine and job")
+    st.radio("What must the machine do?", KINDS, key="kind_pick", format_func=fields.KIND_LABELS.get,
+             on_change=state.on_kind)
+    st.file_uploader(f"Your job file (.toml, up to {UPLOAD_LIMIT_MB} MB)", type=["toml"], key="profile_upload",
+                     on_change=state.on_profile_upload, max_upload_size=UPLOAD_LIMIT_MB)
+    _message(S.profile_msg)
     demos = fields.demo_machines()
-    c1, c2 = st.columns(2)
-    with c1:
-        st.selectbox("Load a demo machine", list(demos), key="machine_demo", on_change=state.on_machine_demo,
-                     format_func=lambda s: s.replace("-", " "))
-    with c2:
-        st.file_uploader(f"…or your machine file (.toml, up to {UPLOAD_LIMIT_MB} MB)", type=["toml"],
-                         key="machine_upload", on_change=state.on_machine_upload,
-                         max_upload_size=UPLOAD_LIMIT_MB)
+    st.selectbox("Demo machine", list(demos), key="machine_demo", on_change=state.on_machine_demo,
+                 format_func=lambda s: s.replace("-", " "))
+    st.file_uploader(f"…or your machine file (.toml, up to {UPLOAD_LIMIT_MB} MB)", type=["toml"],
+                     key="machine_upload", on_change=state.on_machine_upload, max_upload_size=UPLOAD_LIMIT_MB)
     _message(S.machine_msg)
+    st.caption("Every value can be seen and changed under *The machine and the job in detail* at the foot of the page.")
+
+
+def machine_section():
+    st.subheader("The machine", anchor="machine")
     label = S.machine_tables["machine"].get("label") or "(no name)"
-    st.markdown(f"In use: **{_md(label)}**, from {_md(_origin_text(S.machine_origin))}.")
+    st.markdown(f"In use: **{md_data(label)}**, from {_origin_text(S.machine_origin)}.")
     err = S.machine_error
-    with st.expander("See or change the machine data", expanded=bool(err)):
+    # the form is drawn only when asked for: its forty fields and two tables cost the browser time on load
+    if err:
+        S.show_machine_form = True
+    if st.toggle("See or change the machine data", key="show_machine_form"):
         _machine_form(err)
 
 
 def _message(msg):
     if msg:
         level, text = msg
-        (st.error if level == "error" else st.info)(_md(text))
-
-
-def _md(text):
-    from ..report import md_esc
-    return md_esc(text).replace("$", "\\$")
+        (st.error if level == "error" else st.info)(md_data(text))
 
 
 def _machine_form(err):
@@ -73,7 +88,7 @@ def _machine_form(err):
     vals = fields.machine_form_values(S.machine_tables)
     with st.form(f"machine_form_{S.mver}", border=False):
         if err:
-            st.error(f"Not applied: {err['line']}")
+            st.error(f"Not applied: {md_data(err['line'])}")
         groups = (("Ratings", ("machine.label", "machine.poles", "machine.rated_voltage_v",
                                "machine.rated_armature_current_a", "machine.rated_speed_rpm",
                                "machine.peak_armature_current_a")),
@@ -123,17 +138,14 @@ def _machine_form(err):
 
 
 def job_section():
-    st.header("2 · The job", anchor="job")
-    st.radio("What must the machine do?", KINDS, key="kind_pick", format_func=fields.KIND_LABELS.get,
-             horizontal=True, on_change=state.on_kind)
-    st.file_uploader(f"…or your job file (.toml, up to {UPLOAD_LIMIT_MB} MB)", type=["toml"], key="profile_upload",
-                     on_change=state.on_profile_upload, max_upload_size=UPLOAD_LIMIT_MB)
-    _message(S.profile_msg)
+    st.subheader("The job", anchor="job")
     label = S.profile_tables["load"].get("label") or "(no name)"
-    st.markdown(f"In use: **{_md(label)}** ({fields.KIND_LABELS[S.kind].lower()}), "
-                f"from {_md(_origin_text(S.profile_origin))}.")
+    st.markdown(f"In use: **{md_data(label)}** ({fields.KIND_LABELS[S.kind].lower()}), "
+                f"from {_origin_text(S.profile_origin)}.")
     err = S.profile_error
-    with st.expander("See or change what the load needs", expanded=bool(err)):
+    if err:
+        S.show_profile_form = True
+    if st.toggle("See or change what the load needs", key="show_profile_form"):
         _profile_form(err)
 
 
@@ -142,7 +154,7 @@ def _profile_form(err):
     vals = fields.profile_form_values(S.profile_tables)
     with st.form(f"profile_form_{S.pver}", border=False):
         if err:
-            st.error(f"Not applied: {err['line']}")
+            st.error(f"Not applied: {md_data(err['line'])}")
         specs = fields.DRIVE_FIELDS + fields.PROFILE_FIELDS[S.kind]
         cols = st.columns(2)
         for j, (table, key, lab, kind, hlp) in enumerate(specs):

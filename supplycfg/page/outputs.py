@@ -1,4 +1,4 @@
-"""The page's outputs: the options, the chosen one in detail, its cautions, curves and sheet."""
+"""The page's outputs: the recommended setting first, the ranked options, the chosen one in detail, its curves and sheet."""
 
 import re
 from dataclasses import replace
@@ -10,34 +10,103 @@ import streamlit as st
 from .. import STANDING_NOTICE
 from ..errors import InputError
 from ..files import dumps_json, write_atomic
-from ..report import (PLAN_HEADERS, SEVERITY_WORDS, condition_words, current_setting_rows, cutout_rows, figure_rows,
-                      field_control_text, fmt, limit_label, margin_rows, md_esc, plan_table, run_rows, setting_rows,
-                      severity_counts, sheet_markdown, sorted_cautions, status_text)
+from ..report import (CARD_PLAN_HEADERS, CHECKLIST_HEADERS, CURRENT_SETTING_HEADERS, DIAL_HEADERS, PLAN_HEADERS, SEVERITY_WORDS,
+                      card_plan_rows, checklist_rows, condition_words, current_setting_rows, cutout_rows, dial_rows, esc,
+                      field_control_text, figure_rows, fmt, limit_label, margin_rows, md_data, md_esc, objective_value,
+                      plan_table, ranking_line, ranking_rule, run_rows, run_summary, setting_rows, severity_counts,
+                      sheet_markdown, sorted_cautions, status_text)
+from ..wording import GLOSSARY, connection_words, source_text
 from . import state
 
 S = st.session_state
 
 
 def _md(text):
-    return md_esc(text).replace("$", "\\$")
+    """Our own sentence as Markdown (file text goes through ``md_data``)."""
+    return md_esc(text)
 
+
+def table_html(headers, rows):
+    """A static table as one HTML element, every cell escaped (text, never markup).
+
+    One element per table: st.table renders each cell as its own Markdown
+    block, which made the browser take twice as long to draw the page.
+    """
+    head = "".join(f"<th>{esc(h)}</th>" for h in headers)
+    body = "".join("<tr>" + "".join(f"<td>{esc(c)}</td>" for c in r) + "</tr>" for r in rows)
+    return f'<table class="sc-table"><thead><tr>{head}</tr></thead><tbody>{body}</tbody></table>'
+
+
+def _table(headers, rows):
+    st.markdown(table_html(headers, rows), unsafe_allow_html=True)
+
+
+def _caution(c):
+    body = f"**{SEVERITY_WORDS.get(c.severity, c.severity)}:** {_md(c.message)}\n\n*{_md(source_text(c.basis))}*"
+    {"stop": st.error, "warn": st.warning}.get(c.severity, st.info)(body)
+
+
+# ---------------------------------------------------------------------------
+# the answer first
+# ---------------------------------------------------------------------------
+
+def recommended_card(result, run=None):
+    """The recommended setting (rank 1) in a card keyed ``recommended``: what to set, why, what to check."""
+    o = result.options[0]
+    m, p = result.machine, result.profile
+    with st.container(key="recommended", border=True):
+        if o.feasible:
+            st.subheader(f"Recommended: {connection_words(o.setting.connection)}", anchor="recommended")
+        else:
+            st.subheader("No setting meets every limit", anchor="recommended")
+            st.warning(f"**Not ready to use.** The closest option: {_md(status_text(o, len(result.options)))}")
+        st.markdown(f"*{_md(ranking_line(result, o))}*")
+        for c in sorted_cautions(list(o.cautions) + list(result.cautions)):
+            if c.severity == "stop":
+                _caution(c)
+        _table(("Set", "To"), setting_rows(o, m, p))
+        if dial_rows(o):
+            st.markdown("**Welding dial**")
+            _table(DIAL_HEADERS, dial_rows(o))
+        elif o.current_settings:
+            st.markdown("**Field setting for each end of the welding range**")
+            _table(CURRENT_SETTING_HEADERS, current_setting_rows(o))
+        if card_plan_rows(o):
+            st.markdown("**Charge plan**")
+            _table(CARD_PLAN_HEADERS, card_plan_rows(o))
+        elif run is not None:
+            st.markdown(_md(run_summary(run)))
+        st.markdown("**Check at the machine**")
+        _table(CHECKLIST_HEADERS[:2], checklist_rows(result, o, run))
+        n = {s: sum(c.severity == s for c in list(o.cautions) + list(result.cautions)) for s in ("warn", "note")}
+        if n["warn"] or n["note"]:
+            st.caption(f"{n['warn']} warning(s) and {n['note']} note(s) for this setting: see *Cautions* under "
+                       "*In detail* below. The printable sheet has all of it on its first page.")
+
+
+# ---------------------------------------------------------------------------
+# the ranked options
+# ---------------------------------------------------------------------------
 
 def option_rows(result):
-    """One row per option for the ranked table."""
+    """One row per option, leading with what decides the rank: rank, objective, smallest margin, cautions."""
     rows = []
+    kind = result.profile.kind
     for o in result.options:
         s = o.setting
+        _, words = objective_value(o, kind)
         rows.append({
             "Rank": o.rank,
-            "Fit": "meets all" if o.feasible else "near miss",
-            "Connection": s.connection,
+            "Objective": words or "–",
+            "Smallest margin [%]": round(100.0 * o.smallest_margin, 1),
+            "Cautions": severity_counts(o.cautions) or "none",
+            "Fit": "meets all" if o.feasible else ("not usable (stop)" if "stop_caution" in o.failed else "near miss"),
+            "Connection": connection_words(s.connection),
             "Series turns": s.series_turns or 0.0,
             "Field": field_control_text(o).replace("field rheostat", "rheostat").replace("exciter field current", "field"),
             "Diverter": "none" if s.diverter_ohm is None else fmt(s.diverter_ohm, "Ω"),
             "Speed [rpm]": s.speed_rpm,
-            "Least margin [%]": round(100.0 * o.smallest_margin, 2),
-            "Cautions": severity_counts(o.cautions) or "none",
-            "Limits broken": ", ".join(limit_label(n) for n in o.failed),
+            "Limits broken": ", ".join(limit_label(n) for n in o.failed) or "none",
         })
     return rows
 
@@ -46,20 +115,21 @@ def _option_label(o):
     s = o.setting
     fit = "meets all" if o.feasible else "near miss"
     tap = f", {s.series_turns:g} turns" if s.series_turns else ""
-    return f"{o.rank} · {s.connection}{tap}, {field_control_text(o)} · {fit}"
+    return f"{o.rank} · {connection_words(s.connection)}{tap}, {field_control_text(o)} · {fit}"
 
 
 def options_section(result, key):
-    st.header("3 · Settings for this job", anchor="options")
+    st.header("All the settings, ranked", anchor="options")
     n_ok = len([o for o in result.options if o.feasible])
     st.markdown(f"**{n_ok}** of {len(result.options)} settings meet every limit "
                 f"({result.candidates_evaluated} candidate evaluations in {result.search_seconds:.2f} s).")
-    st.caption(_md(result.ranking_rule))
+    st.caption(f"How they are ranked: {_md(ranking_rule(result))} The smallest margin is how far the tightest "
+               "limit is kept, as a share of that limit (negative: broken).")
     for n in result.notes:
         st.warning(_md(n))
-    job_stops = [c for c in result.cautions if c.severity == "stop"]
-    for c in job_stops:
-        _caution(c)
+    for c in result.cautions:
+        if c.severity == "stop":
+            _caution(c)
     if not result.options:
         st.warning("No setting to show.")
         return None
@@ -76,48 +146,60 @@ def options_section(result, key):
         if rows:
             S[pick_key] = ranks[rows[0]]
 
-    st.dataframe(option_rows(result), key=table_key, on_select=on_table, selection_mode="single-row",
+    rows = option_rows(result)
+    if all(r["Objective"] == "–" for r in rows):  # the core states no objective for this job yet
+        for r in rows:
+            del r["Objective"]
+    st.dataframe(rows, key=table_key, on_select=on_table, selection_mode="single-row",
                  hide_index=True, height=min(38 + 35 * len(ranks), 320),
                  column_config={
-                     "Rank": st.column_config.NumberColumn("Rank", width="small"),
+                     "Rank": st.column_config.NumberColumn("Rank", width=48, pinned=True),
+                     "Objective": st.column_config.TextColumn("Objective", width=100,
+                                                              help="what the job is ranked by (battery: hours to "
+                                                                   "full; welding: tap changes; lighting and "
+                                                                   "booster: margin on the voltage band)"),
+                     "Smallest margin [%]": st.column_config.NumberColumn(
+                         "Smallest margin [%]", format="%.1f", width=130,
+                         help="how far the tightest limit is kept, as a share of that limit; negative when broken"),
+                     "Cautions": st.column_config.TextColumn("Cautions", width=100),
                      "Series turns": st.column_config.NumberColumn("Series turns", format="%g"),
                      "Speed [rpm]": st.column_config.NumberColumn("Speed [rpm]", format="%.0f"),
-                     "Least margin [%]": st.column_config.NumberColumn("Least margin [%]", format="%.1f",
-                                                                       help="the smallest margin over every limit, "
-                                                                            "as a share of that limit"),
                  })
     by_rank = {o.rank: o for o in result.options}
     st.selectbox("Look at option", ranks, key=pick_key, format_func=lambda r: _option_label(by_rank[r]),
                  help="or pick a row of the table")
+    with st.expander("What the words mean"):
+        st.markdown("\n".join(f"- **{_md(k)}**: {_md(v)}" for k, v in GLOSSARY.items()))
     return by_rank[S[pick_key]]
 
 
-def _caution(c):
-    body = f"**{SEVERITY_WORDS.get(c.severity, c.severity)}:** {_md(c.message)}\n\n*Rests on:* {_md(c.basis)}"
-    {"stop": st.error, "warn": st.warning}.get(c.severity, st.info)(body)
-
-
-def _table(headers, rows):
-    st.table([dict(zip(headers, r)) for r in rows])
-
+# ---------------------------------------------------------------------------
+# one option in detail
+# ---------------------------------------------------------------------------
 
 def detail_section(result, option):
-    st.header(f"4 · Option {option.rank} in detail", anchor="detail")
-    st.markdown(f"*{_md(status_text(option, len(result.options)))}*")
+    st.header(f"Option {option.rank} in detail", anchor="detail")
+    st.markdown(f"*{_md(status_text(option, len(result.options)))}.* {_md(ranking_line(result, option))}")
     all_c = sorted_cautions(list(option.cautions) + list(result.cautions))
     for c in all_c:
         if c.severity == "stop":
             _caution(c)
     m, p = result.machine, result.profile
     st.subheader("Set the machine like this")
-    _table(("What", "Setting"), setting_rows(option, m, p))
-    if option.current_settings:
+    _table(("Set", "To"), setting_rows(option, m, p))
+    if option.current_settings and not dial_rows(option):
         st.markdown("**Field setting for each end of the welding range**")
-        _table(("Welding current", "Field", "Terminal voltage", "No-load voltage"), current_setting_rows(option))
+        _table(CURRENT_SETTING_HEADERS, current_setting_rows(option))
     if plan_table(option):
         st.markdown(f"**Charge plan** at {_md(condition_words(option)['setting'])}: only the field changes between stages")
         _table(PLAN_HEADERS, plan_table(option))
         _table(("Reverse-current cut-out", "Figure"), cutout_rows(option))
+    st.subheader("Wiring")
+    svg, steps = state.wiring_of(state.texts()[0], p.kind, option.setting)
+    with st.container(key="wiring"):
+        st.image(svg, caption=f"Wiring: {connection_words(option.setting.connection)}", width="stretch")
+    with st.expander("The wiring in words"):
+        st.markdown("\n".join(f"{k}. {_md(s)}" for k, s in enumerate(steps, 1)))
     st.subheader("Cautions")
     rest = [c for c in all_c if c.severity != "stop"]
     for c in rest:
@@ -125,14 +207,11 @@ def detail_section(result, option):
     if not all_c:
         st.markdown("No caution raised by the rules for this setting.")
     st.markdown(f"**{_md(STANDING_NOTICE)}**")
-    c1, c2 = st.columns(2)
-    with c1:
-        st.subheader("What to expect")
-        _table(("Figure", "Value"), figure_rows(option))
-    with c2:
-        st.subheader("Limits and margins")
-        _table(("Limit", "Value", "Limit value", "Margin", "Status"),
-               [(r[0], r[1], r[2], r[4], r[5]) for r in margin_rows(option)])
+    st.subheader("What to expect")
+    _table(("Figure", "Value"), figure_rows(option))
+    st.subheader("Limits and margins")
+    _table(("Limit", "Value", "Limit value", "Margin", "Status"),
+           [(r[0], r[1], r[2], r[4], r[5]) for r in margin_rows(option)])
 
 
 def _trim(result, option, key):
@@ -152,21 +231,23 @@ def _trim(result, option, key):
     return replace(s, rheostat_ohm=v), f"rheostat {fmt(v, 'Ω')} (the option: {fmt(s.rheostat_ohm, 'Ω')})"
 
 
+@st.fragment
 def curves_section(result, option, run, run_msg, key, texts):
-    st.header("5 · Curves", anchor="curves")
+    """The curves; moving the trim reruns this part only, and unchanged charts keep their drawing."""
+    st.header("Curves", anchor="curves")
     trimmed, text = _trim(result, option, key)
     if text and trimmed != option.setting:
         st.caption(f"Drawn with the {_md(text)}. The figures, margins, cautions and the sheet are for the option's setting.")
     trim = (trimmed.rheostat_ohm, trimmed.field_current_a)
     specs, err = state.chart_specs(texts[0], texts[1], option.rank, trim)
     if err:
-        st.error(_md(err))
+        st.error(md_data(err))
     for name, title, spec in specs:
-        st.vega_lite_chart(spec, width="stretch")
+        st.vega_lite_chart(spec, width="stretch", theme=None, key=f"chart_{name}")
         if name == "run" and run is not None:
             _table(("What", "Value"), run_rows(run))
     if result.profile.kind == "battery" and run is None and run_msg:
-        st.info(_md(run_msg))
+        st.info(md_data(run_msg))
     st.caption("Drag to pan, scroll to zoom, double-click to reset; point at a line for its values.")
 
 
@@ -176,9 +257,13 @@ def _slug(text):
 
 
 def downloads_section(result, option, run, key, machine_toml, profile_toml):
-    st.header("6 · Take it to the machine", anchor="sheet")
-    md = sheet_markdown(result, option.rank, run)
-    S["sheet_markdown"] = md
+    st.header("Take it to the machine", anchor="sheet")
+    st.markdown("The printable sheet puts the setting, the wiring and the checks on its first A4 page.")
+    md_key = f"{key}:{option.rank}:{date.today().isoformat()}:md"
+    if S.get("sheet_markdown_key") != md_key:
+        S["sheet_markdown"] = sheet_markdown(result, option.rank, run)
+        S["sheet_markdown_key"] = md_key
+    md = S["sheet_markdown"]
     base = f"{_slug(result.machine.label)}-option-{option.rank}"
     html_key = f"{key}:{option.rank}:{date.today().isoformat()}"  # the sheet prints its date
     res, rank = result, option.rank
@@ -186,7 +271,7 @@ def downloads_section(result, option, run, key, machine_toml, profile_toml):
         "sheet.html": (f"setting-sheet-{base}.html", lambda: state.sheet_html_cached(html_key, res, rank, run),
                        "text/html", "Setting sheet to print (.html)"),
         "sheet.md": (f"setting-sheet-{base}.md", md, "text/markdown", "Setting sheet as text (.md)"),
-        "result.json": (f"search-{_slug(result.machine.label)}.json", dumps_json(result.as_dict()),
+        "result.json": (f"search-{_slug(result.machine.label)}.json", lambda: dumps_json(res.as_dict()),
                         "application/json", "Search result (.json)"),
         "machine.toml": (f"{_slug(result.machine.label)}.toml", machine_toml, "application/toml",
                          "Machine data (.toml)"),
@@ -196,6 +281,7 @@ def downloads_section(result, option, run, key, machine_toml, profile_toml):
     cols = st.columns(2)
     for j, (k, (name, data, mime, label)) in enumerate(files.items()):
         with cols[j % 2]:
+            # a sheet built on click shows a spinner in its button while the charts are exported
             st.download_button(label, data=data, file_name=name, mime=mime, key=f"dl_{k}",
                                type="primary" if k == "sheet.html" else "secondary", on_click="ignore")
     with st.expander("Save them into a folder on this computer"):
@@ -210,19 +296,20 @@ def _save_form(files):
                             help="left unticked, an existing file is never overwritten")
     if st.button("Save", key="save_go"):
         msgs = []
-        for k in picked:
-            name, data, _, _ = files[k]
-            text = data() if callable(data) else data
-            try:
-                path = write_atomic(Path(folder) / name, text, force=overwrite)
-                msgs.append(("ok", f"saved {path}"))
-            except InputError as e:
-                msg = e.message
-                if "exists already" in msg:
-                    msg = "exists already; tick 'Replace files that already exist' to overwrite it"
-                msgs.append(("error", f"{e.source}: {msg}"))
-            except OSError as e:
-                msgs.append(("error", f"{name}: cannot be written ({e.strerror or e})"))
+        with st.spinner("Writing the files..."):
+            for k in picked:
+                name, data, _, _ = files[k]
+                text = data() if callable(data) else data
+                try:
+                    path = write_atomic(Path(folder) / name, text, force=overwrite)
+                    msgs.append(("ok", f"saved {path}"))
+                except InputError as e:
+                    msg = e.message
+                    if "exists already" in msg:
+                        msg = "exists already; tick 'Replace files that already exist' to overwrite it"
+                    msgs.append(("error", f"{e.source}: {msg}"))
+                except OSError as e:
+                    msgs.append(("error", f"{name}: cannot be written ({e.strerror or e})"))
         S["save_messages"] = msgs
     for level, text in S.get("save_messages", []):
-        (st.success if level == "ok" else st.error)(_md(text))
+        (st.success if level == "ok" else st.error)(md_data(text))

@@ -153,6 +153,11 @@ def edited_table(base, state):
     return cols
 
 
+def _internal(exc):
+    line = f"internal error, please report it: {type(exc).__name__}: {str(exc)[:200]}"
+    return {"key": "", "message": line, "line": line}
+
+
 def on_machine_apply():
     vals = machine_form_values()
     try:
@@ -160,6 +165,9 @@ def on_machine_apply():
         m = machine_from_dict(tables, fields.FORM)
     except InputError as e:
         S.machine_error = {"key": e.key, "message": e.message, "line": str(e)}
+        return
+    except Exception as e:  # a fault of ours: one line at the form, never a traceback
+        S.machine_error = _internal(e)
         return
     S.machine_tables = machine_to_dict(m)
     S.machine_origin = "edited on this page"
@@ -180,6 +188,9 @@ def on_profile_apply():
         p = profile_from_dict(tables, fields.FORM)
     except InputError as e:
         S.profile_error = {"key": e.key, "message": e.message, "line": str(e)}
+        return
+    except Exception as e:  # a fault of ours: one line at the form, never a traceback
+        S.profile_error = _internal(e)
         return
     S.profile_tables = profile_to_dict(p)
     S.profile_origin = "edited on this page"
@@ -213,7 +224,7 @@ def solve(machine_toml, profile_toml):
         return None, f"internal error, please report it: {type(e).__name__}: {e}"
 
 
-@st.cache_data(max_entries=64, show_spinner=False)
+@st.cache_data(max_entries=64, show_spinner="Running the charge...")
 def charge(machine_toml, profile_toml, rank):
     """The charge run of option ``rank``: ``(ChargeRun or None, message or None)``."""
     res, err = solve(machine_toml, profile_toml)
@@ -234,7 +245,7 @@ def charge(machine_toml, profile_toml, rank):
         return None, f"internal error in the charge run, please report it: {type(e).__name__}: {e}"
 
 
-@st.cache_data(max_entries=256, show_spinner=False)
+@st.cache_data(max_entries=256, show_spinner="Drawing the curves...")
 def chart_specs(machine_toml, profile_toml, rank, trim):
     """Vega-Lite specs ``[(name, title, spec)]`` of option ``rank`` with the field control ``trim``.
 
@@ -255,11 +266,20 @@ def chart_specs(machine_toml, profile_toml, rank, trim):
     taps = other_tap_options(res, opt) if res.profile.kind == "welding" else ()
     try:
         out = charts.option_charts(res.machine, res.profile, shown, taps, run)
-        return [(name, title, ch.to_dict(validate=False)) for name, title, ch in out], None
+        return [(name, title, charts.chart_spec(ch, validate=False)) for name, title, ch in out], None
     except InputError as e:
         return [], str(e)
     except Exception as e:
         return [], f"internal error drawing the curves, please report it: {type(e).__name__}: {e}"
+
+
+@st.cache_data(max_entries=64, show_spinner=False)
+def wiring_of(machine_toml, kind, setting):
+    """The wiring drawing of a setting: ``(svg, steps in words)``."""
+    from ..wiring import wiring, wiring_svg
+    m = load_machine("machine.toml", machine_toml)
+    w = wiring(m, setting, kind)
+    return wiring_svg(w), list(w.steps)
 
 
 _HTML_CACHE = {}

@@ -4,6 +4,8 @@
 session with the solve caches emptied (search, charge run, charts included).
 ``app_change_seconds``: one widget change and its rerun: the rheostat trim of
 the curves moved to a value not drawn before, so the curves are recomputed.
+``browser_render_seconds``: in Debian's chromium, from opening the demo page
+to its last chart drawn (the server's caches warm); skipped without chromium.
 """
 
 import statistics
@@ -70,3 +72,127 @@ def time_app(repeat=5):
         change.append(time.perf_counter() - t0)
     return {"app_first_render_seconds": statistics.median(first),
             "app_change_seconds": statistics.median(change) if change else None}
+
+
+# ---------------------------------------------------------------------------
+# the page in a real browser (Debian's chromium through playwright)
+# ---------------------------------------------------------------------------
+
+#: Where Debian puts chromium.
+CHROMIUM = "/usr/bin/chromium"
+#: Launch flags for a headless chromium with no network side traffic.
+CHROMIUM_ARGS = ["--headless", "--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
+                 "--disable-background-networking", "--disable-component-update", "--disable-sync"]
+#: Seconds the server gets to answer its health check; only a guard.
+START_TIMEOUT_S = 60
+#: Longest wait for the page's charts in the browser [ms]; only a guard against a hang.
+RENDER_TIMEOUT_MS = 180_000
+#: Charts drawn (Vega's ``.marks`` element exists once a chart is rendered) in the page.
+RENDERED_CHARTS_JS = "document.querySelectorAll('[data-testid=\"stVegaLiteChart\"] .marks').length"
+#: Charts of the demo page on load: the open-circuit characteristic, the battery, the charge run.
+DEMO_CHARTS = 3
+
+
+def chromium_path():
+    """The chromium executable, or None when it is not installed."""
+    import shutil
+    found = shutil.which("chromium")
+    if found:
+        return found
+    return CHROMIUM if Path(CHROMIUM).exists() else None
+
+
+def _free_port():
+    import socket
+    with socket.socket() as s:
+        s.bind(("127.0.0.1", 0))
+        return s.getsockname()[1]
+
+
+class PageServer:
+    """``streamlit run app.py`` on loopback in a subprocess, ended on exit (``with PageServer() as url``)."""
+
+    def __init__(self):
+        self.proc = None
+
+    def __enter__(self):
+        import os
+        import subprocess
+        import sys
+        import urllib.request
+        root = app_path().parent
+        port = _free_port()
+        env = dict(os.environ, PYTHONPATH=str(root) + os.pathsep + os.environ.get("PYTHONPATH", ""))
+        self.proc = subprocess.Popen(
+            [sys.executable, "-m", "streamlit", "run", str(app_path()), "--server.headless", "true",
+             "--server.address", "127.0.0.1", "--server.port", str(port), "--browser.gatherUsageStats", "false"],
+            cwd=root, env=env, stdout=subprocess.PIPE, stderr=subprocess.STDOUT)
+        url = f"http://127.0.0.1:{port}"
+        deadline = time.monotonic() + START_TIMEOUT_S
+        while True:  # poll the health check until it answers (a condition, with a deadline as a guard)
+            try:
+                with urllib.request.urlopen(url + "/_stcore/health", timeout=2) as r:
+                    if r.read().strip() == b"ok":
+                        return url
+            except OSError:
+                pass
+            if self.proc.poll() is not None or time.monotonic() > deadline:
+                out = self.proc.stdout.read().decode(errors="replace") if self.proc.poll() is not None else ""
+                self.__exit__(None, None, None)
+                raise RuntimeError(f"streamlit did not start on {url}: {out[-800:]}")
+            time.sleep(0.2)
+
+    def __exit__(self, *exc):
+        import subprocess
+        if self.proc is not None:
+            self.proc.terminate()
+            try:
+                self.proc.wait(timeout=10)
+            except subprocess.TimeoutExpired:
+                self.proc.kill()
+                self.proc.wait(timeout=10)
+            if self.proc.stdout is not None:
+                self.proc.stdout.close()
+            self.proc = None
+        return False
+
+
+def wait_for_charts(page, count, timeout_ms=RENDER_TIMEOUT_MS):
+    """Wait until ``count`` charts are drawn on the page (the condition itself, never a fixed time)."""
+    page.wait_for_function(f"() => {RENDERED_CHARTS_JS} >= {int(count)}", timeout=timeout_ms)
+
+
+def load_and_render_seconds(browser, url, width=1400, height=900, charts=DEMO_CHARTS):
+    """Seconds from opening the page in a new tab to its last chart drawn."""
+    page = browser.new_page(viewport={"width": width, "height": height})
+    try:
+        t0 = time.perf_counter()
+        page.goto(url)
+        wait_for_charts(page, charts)
+        return time.perf_counter() - t0
+    finally:
+        page.close()
+
+
+def time_browser(repeat=3):
+    """Median seconds from load to the last chart of the demo page in chromium (``browser_render_seconds``).
+
+    Returns None when chromium or playwright is not installed.
+    """
+    exe = chromium_path()
+    if exe is None:
+        return None
+    try:
+        from playwright.sync_api import sync_playwright
+    except ImportError:
+        return None
+    times = []
+    with PageServer() as url, sync_playwright() as pw:
+        browser = pw.chromium.launch(executable_path=exe, args=CHROMIUM_ARGS)
+        try:
+            load_and_render_seconds(browser, url)  # warm-up: the server's first run fills its caches
+            for _ in range(max(1, int(repeat))):
+                times.append(load_and_render_seconds(browser, url))
+        finally:
+            browser.close()
+    return statistics.median(times)

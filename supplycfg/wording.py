@@ -1,0 +1,125 @@
+"""Words shown to people: trade names of the connections, a short glossary, source lines, file text made visible.
+
+The program's identifiers (``long-shunt-differential``) stay in files, JSON
+and the command line's options; screens and sheets say what the trade says
+("long-shunt differential compound"). Text that comes from a file or a form
+is data: :func:`visible_text` shows every control, line-break, direction or
+zero-width character as a visible escape before any format sees it.
+"""
+
+import re
+import unicodedata
+
+from .errors import InputError
+
+#: Trade words for each connection of :data:`supplycfg.circuit.CONNECTIONS`.
+CONNECTION_WORDS = {
+    "separate": "separately excited",
+    "separate-cumulative": "separately excited cumulative compound",
+    "separate-differential": "separately excited differential compound",
+    "shunt": "shunt (self-excited)",
+    "series": "series",
+    "long-shunt-cumulative": "long-shunt cumulative compound",
+    "short-shunt-cumulative": "short-shunt cumulative compound",
+    "long-shunt-differential": "long-shunt differential compound",
+    "short-shunt-differential": "short-shunt differential compound",
+}
+
+
+def connection_words(connection):
+    """The trade name of a connection id, e.g. ``"long-shunt differential compound"``.
+
+    Parameters
+    ----------
+    connection : str
+        A connection id (``"shunt"``, ``"short-shunt-cumulative"``, ...).
+
+    Returns
+    -------
+    str
+
+    Raises
+    ------
+    InputError
+        For an id that is not a connection (the message lists the valid ones).
+    """
+    try:
+        return CONNECTION_WORDS[connection]
+    except (KeyError, TypeError):
+        raise InputError("setting", "connection",
+                         f"is {str(connection)[:40]!r}; allowed: {', '.join(CONNECTION_WORDS)}") from None
+
+
+#: A short glossary for the terms a newcomer meets on the page and the sheet (our own wording).
+GLOSSARY = {
+    "open-circuit characteristic": "the machine's generated voltage against its field current, measured at one "
+                                   "speed with no load connected; its value at zero field current is the residual voltage.",
+    "critical field resistance": "the field-circuit resistance above which a self-excited machine cannot build up "
+                                 "its voltage at a given speed: the steepest slope of the open-circuit characteristic.",
+    "field rheostat": "the adjustable resistor in series with the shunt field; more resistance, less field, lower voltage.",
+    "diverter": "a resistor across the series field that takes part of the current, so the series field acts less.",
+    "cumulative / differential compound": "a machine with both a shunt and a series field; cumulative when the series "
+                                          "field helps the shunt field, differential when it opposes it.",
+    "long shunt / short shunt": "where the shunt field is connected: across the machine's terminals (long shunt, "
+                                "after the series field) or across the armature alone (short shunt).",
+    "drooping characteristic": "a voltage that falls steeply as the current rises, as a welding arc needs: the "
+                               "current changes little when the arc length changes.",
+    "no-load voltage": "the voltage at the terminals with nothing connected (open circuit).",
+    "margin": "how far a figure stays inside its limit, as a share of the limit; negative when the limit is broken. "
+              "The smallest margin of an option is the tightest of all its limits.",
+    "near miss": "a setting that breaks at least one limit, listed with the limit it breaks and by how much.",
+    "reverse-current cut-out": "a relay (or a diode) that disconnects the battery when the machine's voltage falls "
+                               "below the battery's, so the battery cannot drive the machine.",
+    "gassing voltage": "the cell voltage above which a charging cell gives off hydrogen and oxygen.",
+    "duty cycle": "the share of a ten-minute period for which a welding set may carry its current.",
+}
+
+_SEEN = re.compile(r"\s*\(\s*seen\s*\)", re.I)
+_MEMORY = re.compile(r"from memory", re.I)
+
+
+def source_text(basis):
+    """What a rule or figure rests on, as a reader's line: ``"Source: IEC 60974-1"``.
+
+    Markers meant for the project ("seen") are dropped; "from memory" becomes
+    "recalled, not checked against the text".
+    """
+    s = _SEEN.sub("", visible_text(basis)).strip()
+    s = _MEMORY.sub("recalled, not checked against the text", s)
+    s = re.sub(r"\s+;", ";", s)
+    return f"Source: {s}" if s else "Source: not stated"
+
+
+#: Named escapes for the commonest control characters.
+_NAMED = {"\n": "\\n", "\r": "\\r", "\t": "\\t"}
+#: Unicode categories shown as escapes: controls, format (direction and zero-width marks), line and
+#: paragraph separators, surrogates, private use.
+_HIDDEN = ("Cc", "Cf", "Zl", "Zp", "Cs", "Co")
+
+
+def _escape_char(ch):
+    named = _NAMED.get(ch)
+    if named is not None:
+        return named
+    if unicodedata.category(ch) not in _HIDDEN:
+        return ch
+    code = ord(ch)
+    if code < 0x100:
+        return f"\\x{code:02x}"
+    if code < 0x10000:
+        return f"\\u{code:04x}"
+    return f"\\U{code:08x}"
+
+
+def visible_text(text):
+    """File or form text with every hidden character shown as an escape (``\\n``, ``\\u202e``).
+
+    Line breaks, controls, right-to-left overrides and zero-width characters
+    can reorder, hide or forge what a reader sees; shown as escapes they
+    cannot. Plain text (letters of any script, punctuation, spaces) is
+    unchanged.
+    """
+    s = "" if text is None else str(text)
+    if s.isprintable():
+        return s
+    return "".join(_escape_char(ch) for ch in s)

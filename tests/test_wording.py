@@ -1,0 +1,47 @@
+"""Words shown to people: connection names, source lines, file text made visible."""
+
+import pytest
+
+from supplycfg.circuit import CONNECTIONS
+from supplycfg.errors import InputError
+from supplycfg.wording import GLOSSARY, connection_words, source_text, visible_text
+
+
+def test_every_connection_has_trade_words():
+    words = [connection_words(c) for c in CONNECTIONS]
+    assert len(set(words)) == len(CONNECTIONS)
+    assert connection_words("long-shunt-differential") == "long-shunt differential compound"
+    assert connection_words("separate") == "separately excited"
+    assert not any("-" in w.replace("long-shunt", "").replace("short-shunt", "").replace("self-excited", "")
+                   for w in words)
+    with pytest.raises(InputError, match="allowed: separate"):
+        connection_words("compound")
+
+
+def test_glossary_has_the_newcomers_terms():
+    for term in ("critical field resistance", "diverter", "drooping characteristic", "near miss", "margin"):
+        assert term in GLOSSARY and GLOSSARY[term]
+
+
+def test_source_lines():
+    assert source_text("common practice") == "Source: common practice"
+    assert source_text("IEC 60974-1 rated no-load voltage, DC 113 V peak (seen); lower limits") == \
+        "Source: IEC 60974-1 rated no-load voltage, DC 113 V peak; lower limits"
+    line = source_text("rating plate; IEC 60034-1 overspeed test (from memory)")
+    assert "from memory" not in line and "(recalled, not checked against the text)" in line
+    assert "seen" not in source_text("IEC 62485-2 ventilation formula (seen)")
+
+
+@pytest.mark.parametrize("raw, shown", [
+    ("plain label", "plain label"),
+    ("two\nlines", "two\\nlines"),
+    ("cr\r", "cr\\r"),
+    ("abc\u202edcb", "abc\\u202edcb"),        # right-to-left override
+    ("zero\u200bwidth", "zero\\u200bwidth"),  # zero-width space
+    ("joiner\u2060", "joiner\\u2060"),
+    ("bell\x07 esc\x1b[8m", "bell\\x07 esc\\x1b[8m"),
+    ("sep\u2028par\u2029", "sep\\u2028par\\u2029"),
+    ("Ω °C – ü 中文", "Ω °C – ü 中文"),
+])
+def test_visible_text(raw, shown):
+    assert visible_text(raw) == shown
