@@ -60,7 +60,7 @@ FOLD_FINE_SPACING = 1e-2
 EXTREMUM_STEPS = 40
 #: A refinement stops once every residual is below this [V].
 RESIDUAL_STOP_V = 1e-11
-#: Refinement steps of a bracket (half secant, half halving; see _bisect).
+#: Refinement steps of a bracket (half secant, half halving; see refine_bracketed_roots).
 BISECTION_STEPS = 40
 
 
@@ -368,7 +368,8 @@ def _winding_share(circ, p):
     return np.abs(p["c"]) * circ.nsh / np.where(nse > 0, nse, np.inf)
 
 
-def _params(circ, idx):
+def candidate_params(circ, idx):
+    """Circuit parameters of candidates ``idx`` as a dict of arrays (with ``idx`` itself)."""
     p = circ.take(idx)
     p["idx"] = idx
     return p
@@ -439,7 +440,7 @@ POINT_KEYS = ("terminal_voltage_v", "load_current_a", "armature_current_a",
               "shunt_field_current_a", "series_field_current_a", "generated_emf_v")
 
 
-def _bisect(fun, a, b, fa, steps=BISECTION_STEPS):
+def refine_bracketed_roots(fun, a, b, fa, steps=BISECTION_STEPS):
     """Vectorised bracketing root refinement of ``fun`` on ``[a, b]`` (``fun(a) = fa``).
 
     The Illinois variant of regula falsi (Dowell & Jarratt 1971): it keeps a
@@ -504,7 +505,7 @@ def solve_operating_points(circ, loads, idx=None, grid=LOAD_LINE_GRID, window=No
     """
     idx = np.arange(circ.n) if idx is None else np.asarray(idx, int)
     m = len(idx)
-    p = _params(circ, idx[:, None])
+    p = candidate_params(circ, idx[:, None])
     v0 = np.array([ld.v0 for ld in loads], float)[:, None]
     k = np.array([ld.slope_ohm for ld in loads], float)[:, None]
     cur = np.array([np.nan if ld.current_a is None else ld.current_a for ld in loads], float)[:, None]
@@ -606,7 +607,7 @@ def solve_operating_points(circ, loads, idx=None, grid=LOAD_LINE_GRID, window=No
                 falling = np.concatenate([falling, ha > 0, fm > 0])
     if rows.size:
         pr, pt_rows, res_rows = on_rows(rows)
-        root = _bisect(res_rows, a, b, fa, steps)
+        root = refine_bracketed_roots(res_rows, a, b, fa, steps)
         v, il = pt_rows(root)
         st = machine_state(circ, pr, v, il)
         scale = 1e-6 * np.maximum(1.0, np.abs(v))
@@ -800,7 +801,7 @@ def _trace_self_excited(circ, i, xg, ig, ng, lg, samples=48):
         # stop once the polyline has reached zero voltage
         lam_s = np.linspace(segs[-1][0], segs[-1][1], samples)
         x_a, ia_a = _invert_approx(xg, ng, ig, lg, segs[-1], lam_s)
-        v_a, _ = _state_from_x_ia(circ, _params(circ, np.array([i])), x_a, ia_a)
+        v_a, _ = _state_from_x_ia(circ, candidate_params(circ, np.array([i])), x_a, ia_a)
         if np.any(v_a <= 0):
             break
     return segs, note
@@ -856,16 +857,16 @@ def characteristics_of(circ, points=400):
     exp = np.flatnonzero(circ.kind != 1)
     if exp.size:
         ia_dense = np.linspace(0, circ.imax, 2001)[None, :]
-        pe = _params(circ, exp[:, None])
-        v_dense = _explicit_v(circ, pe, ia_dense)
+        pe = candidate_params(circ, exp[:, None])
+        v_dense = terminal_voltage_at_armature_current(circ, pe, ia_dense)
         below = v_dense <= 0
         first = np.where(below.any(axis=1), below.argmax(axis=1), ia_dense.shape[1] - 1)
         ia_end = ia_dense[0, first]
         # exact end: bisection between the bracketing dense points
         lo = ia_dense[0, np.maximum(first - 1, 0)]
         has_zero = below.any(axis=1) & (first > 0)
-        f = lambda ia: _explicit_v(circ, _params(circ, exp), ia)
-        ia_zero = _bisect(f, lo, ia_end, f(lo))
+        f = lambda ia: terminal_voltage_at_armature_current(circ, candidate_params(circ, exp), ia)
+        ia_zero = refine_bracketed_roots(f, lo, ia_end, f(lo))
         ia_end = np.where(has_zero, ia_zero, np.where(below.any(axis=1), 0.0, circ.imax))
         frac = np.linspace(0, 1, points)[None, :]
         ia = ia_end[:, None] * frac
@@ -875,7 +876,7 @@ def characteristics_of(circ, points=400):
     seg_note = {}
     if slf.size:
         xg, ig = _grids(circ)
-        ps = _params(circ, slf[:, None])
+        ps = candidate_params(circ, slf[:, None])
         ng = _n_fun(circ, ps, xg[None, :])
         lg = _l_fun(circ, ps, ig[None, :])
         pick_cand, pick_lam, pick_xa, pick_xb, pick_ia, pick_ib = [], [], [], [], [], []
@@ -893,7 +894,7 @@ def characteristics_of(circ, points=400):
             for sid, seg in enumerate(segs):
                 msk = seg_id == sid
                 xa[msk], iaa[msk] = _invert_approx(xg, ng[r], ig, lg[r], seg, lam_all[msk])
-            pi = _params(circ, np.full(lam_all.size, i))
+            pi = candidate_params(circ, np.full(lam_all.size, i))
             va, ila = _state_from_x_ia(circ, pi, xa, iaa)
             # from the first non-negative load current to the first zero voltage
             start = int(np.argmax(ila >= 0)) if np.any(ila >= 0) else 0
@@ -923,13 +924,13 @@ def characteristics_of(circ, points=400):
             seg_note[i] = note
         if pick_cand:
             cand = np.concatenate(pick_cand); lam = np.concatenate(pick_lam)
-            pc = _params(circ, cand)
+            pc = candidate_params(circ, cand)
             xa, xb = np.concatenate(pick_xa), np.concatenate(pick_xb)
             ia_a, ia_b = np.concatenate(pick_ia), np.concatenate(pick_ib)
             fx = lambda xx: _n_fun(circ, pc, xx) - lam
-            x = _bisect(fx, xa, xb, fx(xa), 30)
+            x = refine_bracketed_roots(fx, xa, xb, fx(xa), 30)
             fi = lambda ii: _l_fun(circ, pc, ii) - lam
-            ia_s = _bisect(fi, ia_a, ia_b, fi(ia_a), 30)
+            ia_s = refine_bracketed_roots(fi, ia_a, ia_b, fi(ia_a), 30)
             v_s, il_s = _state_from_x_ia(circ, pc, x, ia_s)
     # --- assemble ---------------------------------------------------------
     states, notes = [None] * n, [""] * n
@@ -937,14 +938,14 @@ def characteristics_of(circ, points=400):
         if circ.kind[i] != 1:
             r = int(np.flatnonzero(curves_exp[0] == i)[0])
             ia_i = curves_exp[1][r]
-            pi = _params(circ, np.full(ia_i.size, i))
+            pi = candidate_params(circ, np.full(ia_i.size, i))
             states[i] = _explicit_state(circ, pi, ia_i)
             notes[i] = "" if curves_exp[2][r] else "terminal voltage stays above zero up to the searched span"
         else:
             msk = cand == i if slf.size and pick_cand else np.zeros(0, bool)
             notes[i] = seg_note.get(i, "")
             if np.any(msk):
-                pi = _params(circ, np.full(int(msk.sum()), i))
+                pi = candidate_params(circ, np.full(int(msk.sum()), i))
                 states[i] = machine_state(circ, pi, v_s[msk], il_s[msk])
     ops = _refine_batch(circ, states)
     folds = _refine_folds(circ, states)
@@ -1060,14 +1061,16 @@ def _refine_batch(circ, states):
     return out
 
 
-def _explicit_v(circ, p, ia):
+def terminal_voltage_at_armature_current(circ, p, ia):
+    """Terminal voltage [V] at armature current ``ia`` [A] of a connection whose field does not
+    depend on the terminal voltage (separate excitation, series)."""
     x = p["x0"] * (p["kind"] == 0) + p["c"] * ia - circ.ar.mmf(ia) / circ.nsh
     rl = p["ra"] + np.where(p["branch"] > 0, p["rbr"], 0.0)
     return p["s"] * circ.occ.emf(x) - ia * rl - brush_drop(ia, circ.vb, circ.ir)
 
 
 def _explicit_state(circ, p, ia):
-    v = _explicit_v(circ, p, ia)
+    v = terminal_voltage_at_armature_current(circ, p, ia)
     return machine_state(circ, p, v, ia)
 
 
@@ -1261,7 +1264,7 @@ def normal_points(circ, lo, hi, v_of=None, il_of=None, grid=97, steps=44):
     n = circ.n
     lo = np.broadcast_to(np.asarray(lo, float), (n,))
     hi = np.broadcast_to(np.asarray(hi, float), (n,))
-    p = _params(circ, np.arange(n)[:, None])
+    p = candidate_params(circ, np.arange(n)[:, None])
     t = lo[:, None] + (hi - lo)[:, None] * np.linspace(0.0, 1.0, grid)[None, :]
 
     def vi(tt):
@@ -1276,7 +1279,7 @@ def normal_points(circ, lo, hi, v_of=None, il_of=None, grid=97, steps=44):
     j = grid - 2 - np.argmax(stable[:, ::-1], axis=1)
     rows = np.arange(n)
     a = t[rows, j]; b = t[rows, j + 1]
-    p1 = _params(circ, rows)
+    p1 = candidate_params(circ, rows)
 
     def v_i1(tt):
         if v_of is not None:
@@ -1287,7 +1290,7 @@ def normal_points(circ, lo, hi, v_of=None, il_of=None, grid=97, steps=44):
         vv, ii = v_i1(tt)
         return machine_state(circ, p1, vv, ii)["h"]
 
-    root = _bisect(res, a, b, h[rows, j], steps)
+    root = refine_bracketed_roots(res, a, b, h[rows, j], steps)
     vv, ii = v_i1(root)
     st = machine_state(circ, p1, vv, ii)
     out = {k: np.where(found, st[k], np.nan) for k in POINT_KEYS + ("x",)}

@@ -20,8 +20,8 @@ import numpy as np
 from . import STANDING_NOTICE, __version__, loads
 from .cautions import option_cautions, profile_cautions
 from .circuit import (SEPARATE, USES_SERIES, Setting, allowed_connections, build_circuit,
-                      check_setting, machine_state, no_load_voltages, normal_points,
-                      _explicit_v, _params, _bisect)
+                      candidate_params, check_setting, machine_state, no_load_voltages, normal_points,
+                      refine_bracketed_roots, terminal_voltage_at_armature_current)
 from .machine import load_machine
 
 #: Grid of field-control values before refinement.
@@ -334,11 +334,11 @@ def _lighting_like(space, base_idx, u, booster=False, res=COARSE):
     tol = job.tolerance_percent / 100.0
     vload = np.empty((sub.n, currents.size)); ia_all = np.empty_like(vload); x_all = np.empty_like(vload)
     e_all = np.empty_like(vload); conv = np.ones(sub.n, bool)
-    p = _params(sub, np.arange(sub.n))
+    p = candidate_params(sub, np.arange(sub.n))
     for k, il in enumerate(currents):
         if booster:
             ia = np.full(sub.n, il)
-            v = _explicit_v(sub, p, ia)
+            v = terminal_voltage_at_armature_current(sub, p, ia)
             st = machine_state(sub, p, v, ia)
             vl = job.bus_voltage_v + v - il * job.feeder_resistance_ohm
             x, e, iak = st["x"], st["generated_emf_v"], st["armature_current_a"]
@@ -460,12 +460,12 @@ def _solve_weld_control(space, base_idx, corner_idx, target_a):
 
     def h(u):
         sub, _ = _expand(space, base_idx, u, corner_idx)
-        p = _params(sub, np.arange(sub.n))
+        p = candidate_params(sub, np.arange(sub.n))
         return machine_state(sub, p, np.full(n, vt), it)["h"]
 
     ha, hb = h(lo), h(hi)
     ok = np.signbit(ha) != np.signbit(hb)
-    u = _bisect(h, lo, hi, ha, 50)
+    u = refine_bracketed_roots(h, lo, hi, ha, 50)
     # unreachable: take the end that comes closer
     u = np.where(ok, u, np.where(np.abs(ha) < np.abs(hb), lo, hi))
     return u, ok
@@ -482,7 +482,7 @@ def _weld_current(space, base_idx, u, corner_idx=None):
 
 def _char_slope(sub, v, il):
     """Slope dV/dIL [V/A] of each candidate's characteristic at (v, il): -h_IL/h_V."""
-    p = _params(sub, np.arange(sub.n))
+    p = candidate_params(sub, np.arange(sub.n))
     dv = 1e-4 * np.maximum(1.0, np.abs(v)); di = 1e-4 * np.maximum(1.0, np.abs(il))
     h_v = (machine_state(sub, p, v + dv, il)["h"] - machine_state(sub, p, v - dv, il)["h"]) / (2 * dv)
     h_i = (machine_state(sub, p, v, il + di)["h"] - machine_state(sub, p, v, il - di)["h"]) / (2 * di)

@@ -35,7 +35,7 @@ from scipy.integrate import solve_ivp
 
 from . import STANDING_NOTICE, loads
 from .cautions import option_cautions, profile_cautions
-from .circuit import _params, build_circuit, check_setting, machine_state, normal_points
+from .circuit import build_circuit, candidate_params, check_setting, machine_state, normal_points
 from .errors import InputError
 
 #: Time cap when none is given [h]: a charge not finished in two days points to
@@ -386,7 +386,7 @@ def charge_run(machine, profile, setting, max_hours=None):
 def _below_bank(circ, job, soc):
     """Whether the machine's available voltage at no load is below the bank's open-circuit voltage."""
     e = charging_line_voltage_v(job, soc, 0.0)
-    h = machine_state(circ, _params(circ, np.zeros(1, int)), np.full(1, float(e)), np.zeros(1))["h"]
+    h = machine_state(circ, candidate_params(circ, np.zeros(1, int)), np.full(1, float(e)), np.zeros(1))["h"]
     return bool(h[0] < 0)
 
 
