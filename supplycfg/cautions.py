@@ -105,7 +105,7 @@ def option_cautions(machine, profile, setting, f):
     mmf = f.get("min_net_mmf_a")
     if mmf is not None and mmf < 0:
         out.append(_c("reversed-mmf", "warn",
-                      "At some operating point the series and armature mmf overcome the shunt field (net mmf below zero): "
+                      "At some operating point the series winding's mmf overcomes the shunt field (net mmf below zero): "
                       "the residual magnetism may be wiped out or reversed, and the machine may not build up next time.",
                       "equivalent-field-current method (design note); common practice", min_net_mmf_a=mmf))
     emf = f.get("min_generated_emf_v")

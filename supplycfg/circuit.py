@@ -4,10 +4,12 @@ The model follows the project's design note. Every winding acts through the
 net mmf per pole, read on the open-circuit characteristic as an equivalent
 shunt-field current
 
-    x = I_sh + c * I_br - F_ar(|Ia|) / N_sh,     c = +-N_se * w / N_sh,
+    x_w = I_sh + c * I_br,     c = +-N_se * w / N_sh,
+    x = x_w - sign(x_w) min(F_ar(|Ia|) / N_sh, |x_w|)
 
 (``w`` the share of the series-branch current ``I_br`` that flows in the
-winding when a diverter is fitted) and the terminal voltage is
+winding when a diverter is fitted; armature reaction weakens the field and
+never reverses it) and the terminal voltage is
 
     V = (n / n_occ) * OCC(x) - Ia * Ra - I_br * R_br - V_b(Ia).
 
@@ -15,8 +17,9 @@ Operating points against a load are found along the load line, where every
 current is an explicit function of the terminal voltage; all intersections
 are bracketed on a fine grid and refined by vectorised bisection.
 External characteristics of self-excited connections are traced exactly
-through their turn-back: with the circuit written as ``N(x) = L(Ia)`` (both
-one-dimensional functions) the curve is followed piece by piece of monotony.
+through their turn-back: with the circuit written as ``N(u) = L(Ia)`` (both
+one-dimensional functions, one pair for each sign of the windings' field)
+the curve is followed piece by piece of monotony.
 
 References
 ----------
@@ -31,7 +34,8 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 
 from .errors import InputError
-from .magnetisation import ArmatureReaction, OpenCircuitCurve, copper_resistance_factor
+from .magnetisation import (ArmatureReaction, OpenCircuitCurve, copper_resistance_factor,
+                            field_after_armature_reaction)
 
 CONNECTIONS = (
     "separate", "separate-cumulative", "separate-differential", "shunt", "series",
@@ -54,6 +58,9 @@ LOAD_LINE_GRID = 4001
 SPAN_DOUBLINGS = 4
 RUNAWAY_MESSAGE = ("the machine's voltage keeps rising above the load beyond the searched span: the open-circuit "
                    "curve's extension past its last point never bends over; measure the curve further")
+CURVE_RUNAWAY_NOTE = ("no no-load voltage: the field line stays below the open-circuit curve out to the searched "
+                      "span, so the voltage runs away past the measured curve; measure the curve further or add "
+                      "field resistance")
 #: Curve samples nearer than this share of rated voltage make the fold's parabola exact enough.
 FOLD_FINE_SPACING = 1e-2
 #: Golden-section steps looking for a residual extremum between two grid points.
@@ -350,8 +357,7 @@ def machine_state(circ, p, v, il):
     characteristic; negative slope in ``v`` along a load line means stable).
     """
     field, ia, ibr = currents_from_voltage(p, v, il)
-    far = circ.ar.mmf(ia) / circ.nsh
-    x = field + p["c"] * ibr - far
+    x = field_after_armature_reaction(field + p["c"] * ibr, circ.ar.mmf(ia) / circ.nsh)
     e = p["s"] * circ.occ.emf(x)
     h = e - ia * p["ra"] - ibr * p["rbr"] - brush_drop(ia, circ.vb, circ.ir) - v
     ish = field * (p["kind"] != 2)
@@ -457,7 +463,18 @@ def refine_bracketed_roots(fun, a, b, fa, steps=BISECTION_STEPS):
     fa = np.asarray(fa, float).copy()
     fb = fun(b)
     secant_steps = max(steps // 2, 1)
+
+    def settled(a, b, fb):
+        # residuals here are volts: far below the 1e-6 V the results promise
+        return (np.abs(fb) <= RESIDUAL_STOP_V) | (np.abs(b - a) <= 1e-15 * np.maximum(1.0, np.abs(b)))
+
+    # a bracket end already on the root (a grid point, a knot) is the answer
+    at_a = np.abs(fa) <= RESIDUAL_STOP_V
+    b, fb = np.where(at_a, a, b), np.where(at_a, fa, fb)
+    done = at_a | settled(a, b, fb)
     for k in range(steps):
+        if np.all(done):
+            break
         if k < secant_steps:
             den = fb - fa
             with np.errstate(divide="ignore", invalid="ignore"):
@@ -466,19 +483,25 @@ def refine_bracketed_roots(fun, a, b, fa, steps=BISECTION_STEPS):
             c = np.where(np.isfinite(c) & (c > lo) & (c < hi), c, 0.5 * (a + b))
         else:
             c = 0.5 * (a + b)
+        # a settled root stays where it is while the others go on
+        c = np.where(done, b, c)
         fc = fun(c)
-        flip = np.signbit(fc) != np.signbit(fb)
+        flip = (np.signbit(fc) != np.signbit(fb)) & ~done
         a = np.where(flip, b, a)
-        fa = np.where(flip, fb, 0.5 * fa if k < secant_steps else fa)
-        b, fb = c, fc
-        # residuals here are volts: far below the 1e-6 V the results promise
-        if np.all((np.abs(fb) <= RESIDUAL_STOP_V) | (np.abs(b - a) <= 1e-15 * np.maximum(1.0, np.abs(b)))):
-            break
+        fa = np.where(flip, fb, np.where(done, fa, 0.5 * fa) if k < secant_steps else fa)
+        b, fb = c, np.where(done, fb, fc)
+        done = done | settled(a, b, fb)
     return b
 
 
-def _voltage_span(circ, idx):
-    """Highest terminal voltage worth searching for candidates ``idx`` [V]."""
+def voltage_span(circ, idx=None):
+    """Highest terminal voltage worth searching first for candidates ``idx`` [V].
+
+    The open-circuit curve read at three times its last field current (plus
+    the series and separate field), with a fifth more: a machine still above
+    its load there is looked for further out before it is called a runaway.
+    """
+    idx = np.arange(circ.n) if idx is None else idx
     xs = circ.occ.last_field_current_a
     top = circ.occ.emf(3 * xs + np.abs(circ.c[idx]) * circ.imax + circ.x0[idx])
     return 1.2 * circ.s[idx] * top + 1.0
@@ -511,7 +534,7 @@ def solve_operating_points(circ, loads, idx=None, grid=LOAD_LINE_GRID, window=No
     cur = np.array([np.nan if ld.current_a is None else ld.current_a for ld in loads], float)[:, None]
     fixed_current = np.isfinite(cur)
     fixed_voltage = ~fixed_current & (k <= 0)
-    vtop = _voltage_span(circ, idx)[:, None]
+    vtop = voltage_span(circ, idx)[:, None]
     vtop = np.maximum(vtop, np.where(fixed_current, 0, v0 + 1.0))
     lin = np.linspace(0.0, 1.0, grid)[None, :]
     if window is None:
@@ -731,57 +754,109 @@ def _grids(circ):
     return xg, ig
 
 
-def _n_fun(circ, p, x):
-    g = np.where(p["short"], p["rf"] / (1 - p["c"]), p["rf"])
-    return p["s"] * circ.occ.emf(x) - g * x
+def _gain(p):
+    """Field-circuit slope ``g`` [ohm] of the self-excited form (``rf / (1 - c)`` for a short shunt)."""
+    return np.where(p["short"], p["rf"] / (1 - p["c"]), p["rf"])
 
 
-def _l_fun(circ, p, ia):
-    g = np.where(p["short"], p["rf"] / (1 - p["c"]), p["rf"])
+def _n_fun(circ, p, u, sign=1.0):
+    """``N(u) = s E(x) - g u`` of the self-excited form on the side ``sign`` of the windings' field.
+
+    ``u = x_w - sign F_ar/N_sh``; where ``sign x_w >= 0`` the net field is
+    ``x = max(u, 0)`` (sign +1) or ``min(u, 0)`` (sign -1): armature reaction
+    brings the field to zero at most (design note).
+    """
+    x = np.where(np.asarray(sign) > 0, np.maximum(u, 0.0), np.minimum(u, 0.0))
+    return p["s"] * circ.occ.emf(x) - _gain(p) * u
+
+
+def _l_fun(circ, p, ia, sign=1.0):
+    """``L(Ia) = Ia Rl + Vb(Ia) + g (sign F_ar/N_sh - c Ia)``: the other side of ``N(u) = L(Ia)``."""
     rl = np.where(p["branch"] == 1, p["ra"] + p["rbr"], p["ra"])
     far = circ.ar.mmf(ia) / circ.nsh
-    return ia * rl + brush_drop(ia, circ.vb, circ.ir) + g * (far - p["c"] * ia)
+    return ia * rl + brush_drop(ia, circ.vb, circ.ir) + _gain(p) * (sign * far - p["c"] * ia)
 
 
-def _state_from_x_ia(circ, p, x, ia):
-    """Terminal quantities of a self-excited candidate at (x, Ia)."""
-    g = np.where(p["short"], p["rf"] / (1 - p["c"]), p["rf"])
+def _state_from_x_ia(circ, p, u, ia, sign=1.0):
+    """Terminal quantities of a self-excited candidate at (u, Ia) on the side ``sign``."""
+    g = _gain(p)
     far = circ.ar.mmf(ia) / circ.nsh
-    ish = (x - p["c"] * ia + far) * g / p["rf"]
+    ish = (u + sign * far - p["c"] * ia) * g / p["rf"]
     il = ia - ish
     v = np.where(p["short"], ish * p["rf"] - il * p["rbr"], ish * p["rf"])
     return v, il
 
 
-def _trace_self_excited(circ, i, xg, ig, ng, lg, samples=48):
-    """Walk the curve N(x) = L(Ia) of candidate ``i`` from Ia = 0.
+def _field_reversal(circ, idx):
+    """Where a differential candidate's windings' field passes through zero on its curve.
 
-    Returns a list of segments ``(lam_a, lam_b, n_lo, n_hi, l_lo, l_hi)`` and
-    a note when the walk ended early.
+    There ``x_w = 0``, so ``x = 0`` and ``s E_r = B(Ia)`` with
+    ``B(Ia) = Ia Rl + Vb(Ia) - g c Ia``, rising in ``Ia`` when ``c < 0``: one
+    root. Returns ``Ia`` [A] (NaN where the field does not reverse within the
+    searched span) and ``F_ar/N_sh`` there.
+    """
+    ia = np.full(idx.size, np.nan)
+    diff = idx[circ.c[idx] < 0]
+    if circ.occ.residual_v > 0 and diff.size:
+        p = candidate_params(circ, diff)
+        a0 = p["s"] * circ.occ.residual_v
+        b = lambda x: _l_fun(circ, p, x, 1.0) - _gain(p) * circ.ar.mmf(x) / circ.nsh - a0
+        lo, hi = np.zeros(diff.size), np.full(diff.size, circ.imax)
+        root = refine_bracketed_roots(b, lo, hi, b(lo), 60)
+        ia[circ.c[idx] < 0] = np.where(b(hi) > 0, root, np.nan)
+    return ia, np.where(np.isfinite(ia), circ.ar.mmf(np.nan_to_num(ia)) / circ.nsh, np.nan)
+
+
+def _start_cell(grid, vals, at, direction):
+    """Grid cell holding ``at`` on the side the walk moves to (``direction`` +1 up, -1 down)."""
+    k = np.searchsorted(grid, at, side="right" if direction > 0 else "left") - 1
+    return int(np.clip(k, 0, grid.size - 2))
+
+
+def _walk(circ, i, xg, ig, ng, lg, sign, lam, n_cell, l_cell, dl, stop_at=None, samples=48):
+    """Walk ``N(u) = L(Ia)`` of one side from ``lam`` in cells ``n_cell``, ``l_cell``, Ia moving ``dl``.
+
+    ``stop_at = (ia, u, lam)``: a point of the curve where the walk must end
+    (the windings' field passes zero there). Returns the segments
+    ``(lam_a, lam_b, n_lo, n_hi, l_lo, l_hi, sign)``, a note, and the Ia
+    direction when the walk reached ``stop_at`` (else None).
     """
     sn, sl = _runs(ng), _runs(lg)
     run_n, run_l = _RunTable(sn), _RunTable(sl)
-    # stable no-load root: highest x where N crosses zero downward
-    down = (ng[:-1] >= 0) & (ng[1:] < 0)
-    cells = np.flatnonzero(down & (xg[:-1] >= -1e-12))
-    if cells.size == 0:
-        return [], "no built-up no-load point on the searched span"
-    cn = int(cells[-1])
-    n_lo, n_hi = run_n(cn)
-    l_lo, l_hi = run_l(0)
-    dl = 1
-    lam = float(lg[0])
+    n_lo, n_hi = run_n(n_cell)
+    l_lo, l_hi = run_l(l_cell)
     dlam = int(sl[l_lo]) * dl
     dn = dlam * int(sn[n_lo])
     segs = []
     note = ""
+    p1 = candidate_params(circ, np.array([i]))
     for _ in range(60):
         e_l = l_hi + 1 if dl > 0 else l_lo
         e_n = n_hi + 1 if dn > 0 else n_lo
         lam_l, lam_n = float(lg[e_l]), float(ng[e_n])
-        if abs(lam_l - lam) <= abs(lam_n - lam):
-            segs.append((lam, lam_l, n_lo, n_hi, l_lo, l_hi))
-            lam = lam_l
+        seg_l = abs(lam_l - lam) <= abs(lam_n - lam)
+        lam_end = lam_l if seg_l else lam_n
+        reached = False
+        if stop_at is not None:
+            ia_s, u_s, lam_s = stop_at
+            tl = 1e-9 * max(1.0, abs(lam), abs(lam_end))
+            tu = 1e-9 * max(1.0, abs(u_s))
+            reached = (min(lam, lam_end) - tl <= lam_s <= max(lam, lam_end) + tl
+                       and xg[n_lo] - tu <= u_s <= xg[n_hi + 1] + tu
+                       and ig[l_lo] - 1e-9 * max(1.0, ia_s) <= ia_s <= ig[l_hi + 1] + 1e-9 * max(1.0, ia_s))
+            if reached:
+                lam_end = lam_s
+        segs.append((lam, lam_end, n_lo, n_hi, l_lo, l_hi, sign))
+        # stop once the polyline has reached zero voltage
+        lam_p = np.linspace(segs[-1][0], segs[-1][1], samples)
+        x_a, ia_a = _invert_approx(xg, ng, ig, lg, segs[-1], lam_p)
+        v_a, _ = _state_from_x_ia(circ, p1, x_a, ia_a, sign)
+        if np.any(v_a <= 0):
+            break
+        if reached:
+            return segs, "", dl
+        lam = lam_end
+        if seg_l:
             nxt = e_l if dl > 0 else e_l - 1
             if nxt < 0 or nxt >= sl.size:
                 if dl > 0:
@@ -790,25 +865,66 @@ def _trace_self_excited(circ, i, xg, ig, ng, lg, samples=48):
             l_lo, l_hi = run_l(nxt)
             dlam, dn = -dlam, -dn
         else:
-            segs.append((lam, lam_n, n_lo, n_hi, l_lo, l_hi))
-            lam = lam_n
             nxt = e_n if dn > 0 else e_n - 1
             if nxt < 0 or nxt >= sn.size:
                 note = "the curve reaches the searched field span"
                 break
             n_lo, n_hi = run_n(nxt)
             dlam, dl = -dlam, -dl
-        # stop once the polyline has reached zero voltage
-        lam_s = np.linspace(segs[-1][0], segs[-1][1], samples)
-        x_a, ia_a = _invert_approx(xg, ng, ig, lg, segs[-1], lam_s)
-        v_a, _ = _state_from_x_ia(circ, candidate_params(circ, np.array([i])), x_a, ia_a)
-        if np.any(v_a <= 0):
-            break
-    return segs, note
+    return segs, note, None
+
+
+def _trace_self_excited(circ, i, xg, ig, fns, reversal=(np.nan, np.nan), samples=48):
+    """Walk the curve ``N(u) = L(Ia)`` of candidate ``i`` from Ia = 0.
+
+    ``fns[sign] = (N on xg, L on ig)`` for either side of the windings'
+    field; the walk starts on the positive side at the built-up no-load
+    point and, where the field passes zero (``reversal = (Ia, F_ar/N_sh)``,
+    differential connections), goes on along the negative side. Returns a
+    list of segments ``(lam_a, lam_b, n_lo, n_hi, l_lo, l_hi, sign)`` and a
+    note when the walk ended early.
+    """
+    ng, lg = fns[1]
+    if ng[-1] > 0:
+        return [], CURVE_RUNAWAY_NOTE
+    # stable no-load root: highest x where N crosses zero downward
+    down = (ng[:-1] >= 0) & (ng[1:] < 0)
+    cells = np.flatnonzero(down & (xg[:-1] >= -1e-12))
+    if cells.size == 0:
+        return [], "no built-up no-load point on the searched span"
+    ia_r, far_r = reversal
+    stop_at = None
+    if np.isfinite(ia_r):
+        p1 = candidate_params(circ, np.array([i]))
+        stop_at = (float(ia_r), -float(far_r), float(_l_fun(circ, p1, np.array([ia_r]), 1.0)[0]))
+    segs, note, dl = _walk(circ, i, xg, ig, ng, lg, 1.0, float(lg[0]), int(cells[-1]), 0, 1, stop_at, samples)
+    if dl is None:
+        return segs, note
+    # the field has passed zero: on along the negative side from the same point. Through the zone
+    # where armature reaction holds the net field at zero, x_w = (s E_r - B(Ia)) / g falls only as Ia
+    # rises, so Ia goes on rising; with no such zone (no reaction) the curve turns a corner there and
+    # goes on into negative field, u = x_w + F_ar/N_sh falling, Ia whichever way that needs.
+    ngm, lgm = fns[-1]
+    lam = float(_l_fun(circ, p1, np.array([ia_r]), -1.0)[0])
+    sn, sl = _runs(ngm), _runs(lgm)
+    if _gain(p1)[0] * far_r > 1e-12 * max(1.0, abs(lam)):
+        dl = 1
+        l_cell = _start_cell(ig, lgm, ia_r, dl)
+        dlam = int(sl[l_cell]) * dl
+        n_cell = _start_cell(xg, ngm, far_r, 1)
+        if dlam * int(sn[n_cell]) < 0:
+            n_cell = _start_cell(xg, ngm, far_r, -1)
+    else:
+        n_cell = _start_cell(xg, ngm, far_r, -1)
+        dlam = -int(sn[n_cell])
+        dl = dlam * int(sl[_start_cell(ig, lgm, ia_r, 1)]) or 1
+        l_cell = _start_cell(ig, lgm, ia_r, dl)
+    more, note, _ = _walk(circ, i, xg, ig, ngm, lgm, -1.0, lam, n_cell, l_cell, dl, None, samples)
+    return segs + more, note
 
 
 def _invert_approx(xg, ng, ig, lg, seg, lam):
-    lam_a, lam_b, n_lo, n_hi, l_lo, l_hi = seg
+    n_lo, n_hi, l_lo, l_hi = seg[2:6]
     xs, ns = xg[n_lo:n_hi + 2], ng[n_lo:n_hi + 2]
     is_, ls = ig[l_lo:l_hi + 2], lg[l_lo:l_hi + 2]
     if ns[-1] < ns[0]:
@@ -874,14 +990,27 @@ def characteristics_of(circ, points=400):
     # --- self-excited: walk N(x) = L(Ia) --------------------------------
     slf = np.flatnonzero(circ.kind == 1)
     seg_note = {}
+    at_zero = set()  # self-excited curves traced down to zero volts
     if slf.size:
         xg, ig = _grids(circ)
         ps = candidate_params(circ, slf[:, None])
-        ng = _n_fun(circ, ps, xg[None, :])
-        lg = _l_fun(circ, ps, ig[None, :])
-        pick_cand, pick_lam, pick_xa, pick_xb, pick_ia, pick_ib = [], [], [], [], [], []
+        ngp = _n_fun(circ, ps, xg[None, :], 1.0)
+        if np.any(ngp[:, -1] > 0):
+            # a no-load point beyond the grid: look as far out as the load-line solver before calling it a runaway
+            xg = np.concatenate([xg, xg[-1] * np.geomspace(1.0, 2.0 ** SPAN_DOUBLINGS, 257)[1:]])
+            ngp = _n_fun(circ, ps, xg[None, :], 1.0)
+        lgp = _l_fun(circ, ps, ig[None, :], 1.0)
+        ia_rev, far_rev = _field_reversal(circ, slf)
+        rev = np.isfinite(ia_rev)
+        ngm = np.zeros_like(ngp); lgm = np.zeros_like(lgp)
+        if rev.any():
+            pr = candidate_params(circ, slf[rev][:, None])
+            ngm[rev] = _n_fun(circ, pr, xg[None, :], -1.0)
+            lgm[rev] = _l_fun(circ, pr, ig[None, :], -1.0)
+        pick_cand, pick_lam, pick_xa, pick_xb, pick_ia, pick_ib, pick_sign = [], [], [], [], [], [], []
         for r, i in enumerate(slf):
-            segs, note = _trace_self_excited(circ, i, xg, ig, ng[r], lg[r])
+            fns = {1.0: (ngp[r], lgp[r]), -1.0: (ngm[r], lgm[r])}
+            segs, note = _trace_self_excited(circ, i, xg, ig, fns, (ia_rev[r], far_rev[r]))
             if not segs:
                 seg_note[i] = note
                 continue
@@ -890,18 +1019,25 @@ def characteristics_of(circ, points=400):
                 lam = np.linspace(seg[0], seg[1], 48)
                 lam_all.append(lam); seg_id.append(np.full(lam.size, sid))
             lam_all = np.concatenate(lam_all); seg_id = np.concatenate(seg_id)
+            seg_sign = np.array([seg[6] for seg in segs])
             xa = np.empty_like(lam_all); iaa = np.empty_like(lam_all)
             for sid, seg in enumerate(segs):
                 msk = seg_id == sid
-                xa[msk], iaa[msk] = _invert_approx(xg, ng[r], ig, lg[r], seg, lam_all[msk])
+                xa[msk], iaa[msk] = _invert_approx(xg, fns[seg[6]][0], ig, fns[seg[6]][1], seg, lam_all[msk])
             pi = candidate_params(circ, np.full(lam_all.size, i))
-            va, ila = _state_from_x_ia(circ, pi, xa, iaa)
+            va, ila = _state_from_x_ia(circ, pi, xa, iaa, seg_sign[seg_id])
             # from the first non-negative load current to the first zero voltage
             start = int(np.argmax(ila >= 0)) if np.any(ila >= 0) else 0
             neg = np.flatnonzero(va[start:] <= 0)
             stop = start + int(neg[0]) if neg.size else lam_all.size - 1
             sl = slice(max(start - 1, 0), stop + 1)
-            va_s, il_s, lam_s, sid_s = va[sl], ila[sl], lam_all[sl], seg_id[sl]
+            va_s, il_s, lam_s, sid_s = va[sl].copy(), ila[sl].copy(), lam_all[sl].copy(), seg_id[sl]
+            if neg.size and va_s.size >= 2 and va_s[-2] > 0 and sid_s[-1] == sid_s[-2]:
+                # end the samples where the polyline reaches zero volts, not past it
+                w0 = va_s[-2] / (va_s[-2] - va_s[-1])
+                lam_s[-1] = lam_s[-2] + w0 * (lam_s[-1] - lam_s[-2])
+                il_s[-1] = il_s[-2] + w0 * (il_s[-1] - il_s[-2])
+                va_s[-1] = 0.0
             # arclength in per-unit terms
             dv = np.diff(va_s) / circ.machine.rated_voltage_v
             di = np.diff(il_s) / circ.machine.rated_armature_current_a
@@ -916,22 +1052,27 @@ def characteristics_of(circ, points=400):
             sid_t = sid_s[j]
             for sid in np.unique(sid_t):
                 seg = segs[sid]
+                ng_s, lg_s = fns[seg[6]]
                 msk = sid_t == sid
-                xa_, xb_ = _cells(xg, ng[r], seg[2], seg[3], lam_t[msk])
-                ia_, ib_ = _cells(ig, lg[r], seg[4], seg[5], lam_t[msk])
+                xa_, xb_ = _cells(xg, ng_s, seg[2], seg[3], lam_t[msk])
+                ia_, ib_ = _cells(ig, lg_s, seg[4], seg[5], lam_t[msk])
                 pick_cand.append(np.full(msk.sum(), i)); pick_lam.append(lam_t[msk])
                 pick_xa.append(xa_); pick_xb.append(xb_); pick_ia.append(ia_); pick_ib.append(ib_)
+                pick_sign.append(np.full(msk.sum(), seg[6]))
             seg_note[i] = note
+            if neg.size:
+                at_zero.add(int(i))
         if pick_cand:
             cand = np.concatenate(pick_cand); lam = np.concatenate(pick_lam)
+            sg = np.concatenate(pick_sign)
             pc = candidate_params(circ, cand)
             xa, xb = np.concatenate(pick_xa), np.concatenate(pick_xb)
             ia_a, ia_b = np.concatenate(pick_ia), np.concatenate(pick_ib)
-            fx = lambda xx: _n_fun(circ, pc, xx) - lam
+            fx = lambda xx: _n_fun(circ, pc, xx, sg) - lam
             x = refine_bracketed_roots(fx, xa, xb, fx(xa), 30)
-            fi = lambda ii: _l_fun(circ, pc, ii) - lam
+            fi = lambda ii: _l_fun(circ, pc, ii, sg) - lam
             ia_s = refine_bracketed_roots(fi, ia_a, ia_b, fi(ia_a), 30)
-            v_s, il_s = _state_from_x_ia(circ, pc, x, ia_s)
+            v_s, il_s = _state_from_x_ia(circ, pc, x, ia_s, sg)
     # --- assemble ---------------------------------------------------------
     states, notes = [None] * n, [""] * n
     for i in range(n):
@@ -945,8 +1086,13 @@ def characteristics_of(circ, points=400):
             msk = cand == i if slf.size and pick_cand else np.zeros(0, bool)
             notes[i] = seg_note.get(i, "")
             if np.any(msk):
-                pi = candidate_params(circ, np.full(int(msk.sum()), i))
-                states[i] = machine_state(circ, pi, v_s[msk], il_s[msk])
+                vi, ili = v_s[msk], il_s[msk]
+                # the curve ends at zero volts (made exact by _finish): nothing past it
+                below = np.flatnonzero(vi < 0)
+                if below.size:
+                    vi, ili = vi[:below[0] + 1], ili[:below[0] + 1]
+                pi = candidate_params(circ, np.full(vi.size, i))
+                states[i] = machine_state(circ, pi, vi, ili)
     ops = _refine_batch(circ, states)
     folds = _refine_folds(circ, states)
     result = []
@@ -956,7 +1102,7 @@ def characteristics_of(circ, points=400):
             result.append(Characteristic(st, {k: np.zeros(0) for k in POINT_KEYS + ("extrapolated",)},
                                          None, None, None, None, False, False, notes[i], [notes[i]] if notes[i] else []))
             continue
-        result.append(_finish(circ, i, st, states[i], notes[i], ops[i], folds.get(i)))
+        result.append(_finish(circ, i, st, states[i], notes[i], ops[i], folds.get(i), i in at_zero))
     return result
 
 
@@ -1027,7 +1173,7 @@ def _refine_batch(circ, states):
     m = circ.machine
     rated = m.rated_armature_current_a
     idx, loads, w0, w1, who = [], [], [], [], []
-    vtop = _voltage_span(circ, np.arange(circ.n))
+    vtop = voltage_span(circ, np.arange(circ.n))
     for i, st in enumerate(states):
         if st is None:
             continue
@@ -1064,7 +1210,7 @@ def _refine_batch(circ, states):
 def terminal_voltage_at_armature_current(circ, p, ia):
     """Terminal voltage [V] at armature current ``ia`` [A] of a connection whose field does not
     depend on the terminal voltage (separate excitation, series)."""
-    x = p["x0"] * (p["kind"] == 0) + p["c"] * ia - circ.ar.mmf(ia) / circ.nsh
+    x = field_after_armature_reaction(p["x0"] * (p["kind"] == 0) + p["c"] * ia, circ.ar.mmf(ia) / circ.nsh)
     rl = p["ra"] + np.where(p["branch"] > 0, p["rbr"], 0.0)
     return p["s"] * circ.occ.emf(x) - ia * rl - brush_drop(ia, circ.vb, circ.ir)
 
@@ -1074,7 +1220,7 @@ def _explicit_state(circ, p, ia):
     return machine_state(circ, p, v, ia)
 
 
-def _finish(circ, i, st, state, note, ops, fold=None):
+def _finish(circ, i, st, state, note, ops, fold=None, at_zero=False):
     v = state["terminal_voltage_v"]; il = state["load_current_a"]
     # the first point is the exact no-load state
     pts = {k: np.asarray(state[k], float).copy() for k in POINT_KEYS}
@@ -1087,7 +1233,7 @@ def _finish(circ, i, st, state, note, ops, fold=None):
         for k in POINT_KEYS:
             pts[k][0] = nl[k]
         pts["extrapolated"][0] = nl["extrapolated"]
-    ended_at_zero = v.size > 1 and v[-1] <= 1e-6 * max(1.0, abs(v[0]))
+    ended_at_zero = v.size > 1 and (at_zero or v[-1] <= 1e-6 * max(1.0, abs(v[0])))
     sc = None
     if v.size > 1 and (np.any(v <= 0) or ended_at_zero or (circ.kind[i] != 1 and "stays above" not in note)):
         cand = _nearest(ops[1].points, 0.0, il[-1])
@@ -1301,7 +1447,7 @@ def normal_points(circ, lo, hi, v_of=None, il_of=None, grid=97, steps=44):
 
 def no_load_voltages(circ, grid=97):
     """Terminal voltage at zero load current for every candidate [V] (NaN if none)."""
-    top = _voltage_span(circ, np.arange(circ.n))
+    top = voltage_span(circ, np.arange(circ.n))
     r = normal_points(circ, np.zeros(circ.n), top, il_of=lambda t: np.zeros_like(t), grid=grid)
     return r["terminal_voltage_v"]
 
