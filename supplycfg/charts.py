@@ -130,7 +130,14 @@ def occ_chart(machine, setting=None, temperatures_c=None, width=None):
                 exc.append((f"exciter field {machine.excitation_voltage_v / rf:.3g} A, windings {t:g} °C",
                             machine.excitation_voltage_v / rf))
     exc_a = max((a for _, a in exc), default=0.0)
-    x_top = 1.15 * max(x_last, exc_a or 0.0)
+    rsh = machine.shunt_field_resistance_ohm
+    kt = {t: float(copper_resistance_factor(t, machine.reference_temperature_c)) for t in temps}
+    ses = {t: self_excitation(machine, st.rheostat_ohm, st.speed_rpm, t) for t in temps} \
+        if st.connection in SELF_EXCITED else {}
+    # the axis reaches every built-up no-load point, even one past the measured curve
+    x_nl = max((se.no_load_voltage_v / se.field_circuit_resistance_ohm for se in ses.values()
+                if se.no_load_voltage_v is not None), default=0.0)
+    x_top = 1.15 * max(x_last, exc_a or 0.0, x_nl)
     xs = np.linspace(0.0, x_top, 180)
     es = ratio * occ.emf(xs)
     e_top = float(es.max())
@@ -157,15 +164,13 @@ def occ_chart(machine, setting=None, temperatures_c=None, width=None):
                           "resistance_ohm": _f(r_ohm), "order": j})
         colours.append(colour)
 
-    rsh = machine.shunt_field_resistance_ohm
-    kt = {t: float(copper_resistance_factor(t, machine.reference_temperature_c)) for t in temps}
     if st.connection in SELF_EXCITED:
         tone = (TEAL, COPPER) if len(temps) > 1 else (COPPER,)
         for t, c in zip(temps, tone):
             r = rsh * kt[t] + st.rheostat_ohm
             lab = f"this setting: field circuit {r:.4g} Ω, windings {t:g} °C"
             field_line(lab, r, c)
-            se = self_excitation(machine, st.rheostat_ohm, st.speed_rpm, t)
+            se = ses[t]
             if se.no_load_voltage_v is not None:
                 marks.append({"series": lab, "point": "built-up no-load point",
                               "field_current_a": _f(se.no_load_voltage_v / se.field_circuit_resistance_ohm),

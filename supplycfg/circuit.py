@@ -58,6 +58,8 @@ LOAD_LINE_GRID = 4001
 SPAN_DOUBLINGS = 4
 RUNAWAY_MESSAGE = ("the machine's voltage keeps rising above the load beyond the searched span: the open-circuit "
                    "curve's extension past its last point never bends over; measure the curve further")
+BEYOND_SPAN_MESSAGE = ("the machine's highest stable point on this load lies beyond the searched span of 10 x the "
+                       "rated armature current: it runs away into an overload")
 CURVE_RUNAWAY_NOTE = ("no no-load voltage: the field line stays below the open-circuit curve out to the searched "
                       "span, so the voltage runs away past the measured curve; measure the curve further or add "
                       "field resistance")
@@ -391,13 +393,19 @@ class Load:
 
     ``V = v0 + slope_ohm * IL`` (resistor: ``v0 = 0``; battery: EMF and
     resistance; welding load line: ``U0`` and ``k``), or a constant current
-    ``IL = current_a`` when ``current_a`` is given.
+    ``IL = current_a`` when ``current_a`` is given, or the load current at
+    which the armature carries ``armature_current_a`` (full load of a
+    self-excited machine: its armature also feeds the shunt field).
+    ``source`` marks a load that can drive current into the machine (a
+    battery, a forced current); a resistor or an arc cannot.
     """
 
     v0: float = 0.0
     slope_ohm: float = 0.0
     current_a: float | None = None
     label: str = ""
+    source: bool = False
+    armature_current_a: float | None = None
 
     @classmethod
     def resistor(cls, ohm):
@@ -405,15 +413,19 @@ class Load:
 
     @classmethod
     def constant_current(cls, amps):
-        return cls(0.0, 0.0, float(amps), f"constant current {amps:g} A")
+        return cls(0.0, 0.0, float(amps), f"constant current {amps:g} A", source=True)
 
     @classmethod
     def battery(cls, emf_v, ohm):
-        return cls(float(emf_v), float(ohm), None, f"battery {emf_v:g} V, {ohm:g} ohm")
+        return cls(float(emf_v), float(ohm), None, f"battery {emf_v:g} V, {ohm:g} ohm", source=True)
 
     @classmethod
     def line(cls, v0, slope_ohm):
         return cls(float(v0), float(slope_ohm), None, f"line {v0:g} V + {slope_ohm:g} ohm")
+
+    @classmethod
+    def armature_current(cls, amps):
+        return cls(0.0, 0.0, None, f"load with {amps:g} A in the armature", armature_current_a=float(amps))
 
 
 @dataclass
@@ -423,21 +435,36 @@ class OperatingPoints:
     Attributes
     ----------
     points : list of dict
-        Highest terminal voltage first; each with the curve-point keys and
-        ``stable``.
+        Highest terminal voltage first; each with the curve-point keys,
+        ``stable``, ``reversed`` (generated EMF below zero: a reversed
+        build-up, design note) and ``back_feeding`` (a source load driving
+        current into the machine).
     converged : bool
-        False if a bracket could not be refined to the residual tolerance.
+        False if a bracket could not be refined to the residual tolerance,
+        or the machine runs away.
+    runaway : bool
+        The highest stable point lies beyond the searched span (the voltage
+        runs away past the measured curve, or the current would pass 10 x
+        rated): the point the machine sits at is unknown.
     """
 
     points: list
     converged: bool = True
     message: str = ""
+    runaway: bool = False
 
     @property
     def normal(self):
-        """The point the machine sits at: the highest stable intersection."""
+        """The point the machine sits at: the highest stable intersection of normal polarity.
+
+        None when it runs away past the searched span, or when every stable
+        intersection is a reversed build-up (never the point the machine is
+        said to sit at, design note).
+        """
+        if self.runaway:
+            return None
         for pt in self.points:
-            if pt["stable"]:
+            if pt["stable"] and not pt["reversed"]:
                 return pt
         return None
 
@@ -532,10 +559,14 @@ def solve_operating_points(circ, loads, idx=None, grid=LOAD_LINE_GRID, window=No
     v0 = np.array([ld.v0 for ld in loads], float)[:, None]
     k = np.array([ld.slope_ohm for ld in loads], float)[:, None]
     cur = np.array([np.nan if ld.current_a is None else ld.current_a for ld in loads], float)[:, None]
+    arm = np.array([np.nan if ld.armature_current_a is None else ld.armature_current_a for ld in loads],
+                   float)[:, None]
+    source = np.array([ld.source for ld in loads], bool)
     fixed_current = np.isfinite(cur)
-    fixed_voltage = ~fixed_current & (k <= 0)
+    fixed_arm = np.isfinite(arm)
+    fixed_voltage = ~fixed_current & ~fixed_arm & (k <= 0)
     vtop = voltage_span(circ, idx)[:, None]
-    vtop = np.maximum(vtop, np.where(fixed_current, 0, v0 + 1.0))
+    vtop = np.maximum(vtop, np.where(fixed_current | fixed_arm, 0, v0 + 1.0))
     lin = np.linspace(0.0, 1.0, grid)[None, :]
     if window is None:
         t = np.broadcast_to(lin, (m, grid))
@@ -551,6 +582,7 @@ def solve_operating_points(circ, loads, idx=None, grid=LOAD_LINE_GRID, window=No
         with np.errstate(divide="ignore", invalid="ignore"):
             il = np.where(fixed_current, cur,
                           np.where(by_current, (2 * tt - 1) * circ.imax, (v - v0) / np.where(k > 0, k, 1.0)))
+        il = np.where(fixed_arm, _load_current_at_armature_current(p, v, arm), il)
         return v, il
 
     def resid(tt):
@@ -581,11 +613,13 @@ def solve_operating_points(circ, loads, idx=None, grid=LOAD_LINE_GRID, window=No
         pr = {kk: vv[sel, 0] if np.ndim(vv) else vv for kk, vv in p.items()}
         vv0, kk_, cc, fc, bc, vt = (v0[sel, 0], k[sel, 0], cur[sel, 0], fixed_current[sel, 0],
                                     by_current[sel, 0], vtop[sel, 0])
+        aa, fa_ = arm[sel, 0], fixed_arm[sel, 0]
 
         def pt_rows(tt):
             v = np.where(bc, vv0, (2 * tt - 1) * vt)
             with np.errstate(divide="ignore", invalid="ignore"):
                 il = np.where(fc, cc, np.where(bc, (2 * tt - 1) * circ.imax, (v - vv0) / np.where(kk_ > 0, kk_, 1.0)))
+            il = np.where(fa_, _load_current_at_armature_current(pr, v, aa), il)
             return v, il
 
         def res_rows(tt):
@@ -628,6 +662,7 @@ def solve_operating_points(circ, loads, idx=None, grid=LOAD_LINE_GRID, window=No
                 a = np.concatenate([a, t[er, ec], tm]); b = np.concatenate([b, tm, t[er, ec + 2]])
                 fa = np.concatenate([fa, ha, fm])
                 falling = np.concatenate([falling, ha > 0, fm > 0])
+    beyond = np.zeros(m, bool)
     if rows.size:
         pr, pt_rows, res_rows = on_rows(rows)
         root = refine_bracketed_roots(res_rows, a, b, fa, steps)
@@ -638,12 +673,21 @@ def solve_operating_points(circ, loads, idx=None, grid=LOAD_LINE_GRID, window=No
         ok = bool(np.all(good))
         inside = np.abs(st["armature_current_a"]) <= circ.imax * (1 + 1e-9)
         ext = circ.occ.extrapolated(st["x"])
+        rev = st["generated_emf_v"] < 0
+        # the highest stable point of normal polarity outside the current span: the machine runs into it
+        top_v = np.full(m, -np.inf)
+        np.maximum.at(top_v, rows, np.where(falling & ~rev, v, -np.inf))
+        top_in = np.full(m, -np.inf)
+        np.maximum.at(top_in, rows, np.where(falling & ~rev & inside, v, -np.inf))
+        beyond = np.isfinite(top_v) & (top_v > top_in)
         for j in range(rows.size):
             if not inside[j]:
                 continue
             d = {kk: float(st[kk][j]) for kk in POINT_KEYS}
             d["extrapolated"] = bool(ext[j])
             d["stable"] = bool(falling[j])
+            d["reversed"] = bool(rev[j])
+            d["back_feeding"] = bool(source[rows[j]] and d["load_current_a"] < 0)
             d["residual_v"] = float(st["h"][j])
             out[rows[j]].append(d)
     res = []
@@ -651,10 +695,24 @@ def solve_operating_points(circ, loads, idx=None, grid=LOAD_LINE_GRID, window=No
         lst.sort(key=lambda d: -d["terminal_voltage_v"])
         lst = _dedupe(lst)
         if runaway[r]:
-            res.append(OperatingPoints(lst, False, RUNAWAY_MESSAGE))
+            res.append(OperatingPoints(lst, False, RUNAWAY_MESSAGE, True))
+        elif beyond[r]:
+            res.append(OperatingPoints(lst, ok, BEYOND_SPAN_MESSAGE, True))
         else:
             res.append(OperatingPoints(lst, ok, "" if ok else "a root did not reach the residual tolerance"))
     return res
+
+
+def _load_current_at_armature_current(p, v, ia):
+    """Load current [A] at terminal voltage ``v`` [V] that puts ``ia`` [A] in the armature.
+
+    Self-excited: ``Ia = IL + (V + IL Rbr [short shunt]) / Rf``; otherwise ``IL = Ia``.
+    """
+    self_ex = p["kind"] == 1
+    rf = np.where(self_ex, p["rf"], 1.0)
+    ish_v = np.where(self_ex, v / rf, 0.0)
+    gain = 1.0 + np.where(self_ex & p["short"], p["rbr"] / rf, 0.0)
+    return (ia - ish_v) / gain
 
 
 def _dedupe(lst):
@@ -1405,23 +1463,39 @@ def normal_points(circ, lo, hi, v_of=None, il_of=None, grid=97, steps=44):
     -------
     dict of arrays
         The curve-point keys, ``x`` (equivalent field current), ``found``
-        (bool) and ``converged`` (bool); NaN where no stable point exists.
+        (bool), ``beyond`` (bool: the machine is still above the load at the
+        end of the range, so its highest stable point lies further out or it
+        runs away; with ``il_of`` the voltage range is first widened up to
+        ``2**SPAN_DOUBLINGS`` times), ``reversed`` (bool: generated EMF
+        below zero) and ``converged`` (bool); NaN where no stable point
+        exists or it lies beyond the range.
     """
     n = circ.n
     lo = np.broadcast_to(np.asarray(lo, float), (n,))
     hi = np.broadcast_to(np.asarray(hi, float), (n,))
     p = candidate_params(circ, np.arange(n)[:, None])
-    t = lo[:, None] + (hi - lo)[:, None] * np.linspace(0.0, 1.0, grid)[None, :]
+    lin = np.linspace(0.0, 1.0, grid)[None, :]
 
     def vi(tt):
         if v_of is not None:
             return v_of(tt), tt
         return tt, il_of(tt)
 
+    t = lo[:, None] + (hi - lo)[:, None] * lin
     v, il = vi(t)
     h = machine_state(circ, p, v, il)["h"]
+    # along the voltage: a machine still above the load at the top is looked for further out
+    for _ in range(SPAN_DOUBLINGS if il_of is not None else 0):
+        up = h[:, -1] > 0
+        if not up.any():
+            break
+        hi = np.where(up, lo + 2.0 * (hi - lo), hi)
+        t = lo[:, None] + (hi - lo)[:, None] * lin
+        v, il = vi(t)
+        h = machine_state(circ, p, v, il)["h"]
+    beyond = h[:, -1] > 0
     stable = (h[:, :-1] > 0) & (h[:, 1:] <= 0)
-    found = stable.any(axis=1)
+    found = stable.any(axis=1) & ~beyond
     j = grid - 2 - np.argmax(stable[:, ::-1], axis=1)
     rows = np.arange(n)
     a = t[rows, j]; b = t[rows, j + 1]
@@ -1441,12 +1515,18 @@ def normal_points(circ, lo, hi, v_of=None, il_of=None, grid=97, steps=44):
     st = machine_state(circ, p1, vv, ii)
     out = {k: np.where(found, st[k], np.nan) for k in POINT_KEYS + ("x",)}
     out["found"] = found
+    out["beyond"] = beyond
+    out["reversed"] = found & (st["generated_emf_v"] < 0)
     out["converged"] = ~found | (np.abs(st["h"]) <= 1e-6 * np.maximum(1.0, np.abs(vv)))
     return out
 
 
 def no_load_voltages(circ, grid=97):
-    """Terminal voltage at zero load current for every candidate [V] (NaN if none)."""
+    """Terminal voltage at zero load current for every candidate [V].
+
+    NaN where there is none, or where the voltage runs away past the
+    searched span (the no-load voltage is then unknown, not small).
+    """
     top = voltage_span(circ, np.arange(circ.n))
     r = normal_points(circ, np.zeros(circ.n), top, il_of=lambda t: np.zeros_like(t), grid=grid)
     return r["terminal_voltage_v"]

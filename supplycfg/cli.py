@@ -199,6 +199,7 @@ def _notes(notes, extrapolated, converged):
 
 
 def cmd_point(args, out):
+    from .cautions import operating_point_cautions
     from .circuit import Load, operating_points
     from .machine import load_machine
     given = {k: getattr(args, k) for k in ("load_ohm", "load_current_a", "battery_emf_v", "battery_ohm",
@@ -235,24 +236,47 @@ def cmd_point(args, out):
     m = load_machine(args.machine)
     st = _checked(m, _setting_from(args))
     ops = operating_points(m, st, load)
-    pts = [{k: v for k, v in p.items() if k != "residual_v"} for p in ops.points]
-    res = {"setting": st.as_dict(), "load": load.label, "operating_points": pts, "converged": ops.converged}
+    normal = ops.normal
+    pts = []
+    for p in ops.points:
+        d = {k: v for k, v in p.items() if k != "residual_v"}
+        d["state"] = _point_state(p, p is normal)
+        pts.append(d)
+    cautions = operating_point_cautions(ops)
+    res = {"setting": st.as_dict(), "load": load.label, "operating_points": pts,
+           "sits_at": None if normal is None else ops.points.index(normal), "runaway": ops.runaway,
+           "message": ops.message, "cautions": [c.as_dict() for c in cautions], "converged": ops.converged}
     if args.json:
         return res
     lines = [f"{m.label or args.machine}: {st.connection}, {st.describe()}; load: {load.label}", ""]
     if pts:
         lines.append(table(pts, ["terminal_voltage_v", "load_current_a", "armature_current_a", "shunt_field_current_a",
-                                 "series_field_current_a", "generated_emf_v", "stable", "extrapolated"]))
+                                 "series_field_current_a", "generated_emf_v", "extrapolated", "state"]))
         lines.append("")
-        lines.append("The machine sits at the highest stable point; unstable points are listed, not used.")
-        if any(p["load_current_a"] < 0 for p in pts):
-            lines.append("caution: a negative load current means the load drives the machine (back-feeding); "
-                         "fit a reverse-current cut-out or blocking diode.")
+    if normal is not None:
+        lines.append("The machine sits at the highest stable point of normal polarity; the others are listed, not used.")
+    elif ops.runaway:
+        lines.append(f"no operating point the machine sits at: {ops.message}")
+    elif pts:
+        lines.append("no stable operating point of normal polarity on this load")
     else:
         lines.append("no operating point: the characteristic does not meet this load")
-    if not ops.converged:
+    for c in sorted(cautions, key=lambda c: ["stop", "warn", "note"].index(c.severity)):
+        lines.append(f"[{c.severity}] {c.message} (basis: {c.basis})")
+    if not ops.converged and not ops.runaway:
         lines.append("warning: a point did not converge; " + ops.message)
     return "\n".join(lines)
+
+
+def _point_state(p, is_normal):
+    """One word or two for an operating point: which one the machine sits at, and why the others are not."""
+    if p["reversed"]:
+        return "reversed build-up"
+    if is_normal:
+        return "sits here, back-feeding" if p["back_feeding"] else "sits here"
+    if not p["stable"]:
+        return "unstable"
+    return "stable, back-feeding" if p["back_feeding"] else "stable, not reached"
 
 
 def cmd_buildup(args, out):

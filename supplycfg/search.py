@@ -21,7 +21,7 @@ from . import STANDING_NOTICE, __version__, loads
 from .cautions import option_cautions, profile_cautions
 from .circuit import (SEPARATE, USES_SERIES, Setting, allowed_connections, build_circuit,
                       candidate_params, check_setting, machine_state, no_load_voltages, normal_points,
-                      refine_bracketed_roots, terminal_voltage_at_armature_current)
+                      refine_bracketed_roots, terminal_voltage_at_armature_current, voltage_span)
 from .machine import load_machine
 
 #: Grid of field-control values before refinement.
@@ -343,9 +343,10 @@ def _lighting_like(space, base_idx, u, booster=False, res=COARSE):
             vl = job.bus_voltage_v + v - il * job.feeder_resistance_ohm
             x, e, iak = st["x"], st["generated_emf_v"], st["armature_current_a"]
         else:
-            # a machine sitting below a third of the nominal voltage has failed anyway
-            top = 1.5 * nominal * (1 + tol) + 50.0
-            r = normal_points(sub, np.full(sub.n, nominal / 3), np.full(sub.n, top),
+            # a machine sitting below a third of the nominal voltage has failed anyway; the top is
+            # the engine's whole voltage span (widened further while the machine is above the load)
+            top = np.maximum(1.5 * nominal * (1 + tol) + 50.0, voltage_span(sub))
+            r = normal_points(sub, np.full(sub.n, nominal / 3), top,
                               il_of=lambda t, il=il: np.full_like(t, il), **res)
             vl = r["terminal_voltage_v"] - il * job.feeder_resistance_ohm
             x, e, iak = r["x"], r["generated_emf_v"], r["armature_current_a"]

@@ -346,6 +346,9 @@ def charge_run(machine, profile, setting, max_hours=None):
         else:
             reason = (f"the charging current fell to the floor {floor:.3g} A (C/100) at {pct} state of charge: the "
                       "machine's voltage no longer drives a useful current")
+    elif stop == "no-operating-point" and bool(pts["beyond"][-1]):
+        reason = (f"the machine would drive more than 10 x its rated armature current into the bank at {pct} "
+                  "state of charge: its operating point lies beyond the searched span")
     elif stop == "no-operating-point":
         reason = (f"the machine has no stable operating point against the bank at {pct} state of charge "
                   "(its characteristic does not meet the charging curve)")

@@ -112,3 +112,161 @@ def test_reversed_field_is_weakened_too():
     st = state_at(m, Setting("long-shunt-differential", rheostat_ohm=0.0), 100.0, 49.0)
     assert_allclose(st["armature_current_a"], 50.0, rtol=1e-12)
     assert_allclose(st["x"], -2.85, rtol=1e-12)
+
+
+# ---------------------------------------------------------------------------
+# the highest stable point, wherever it lies (issue 8, item 1)
+# ---------------------------------------------------------------------------
+
+#: Invented shunt machine whose curve has an S bend (a plateau, then a second rise): with
+#: 180-190 ohm in the field circuit there are two stable points at one load, near 310 V and
+#: near 620 V. The rheostat is short, so every setting has both.
+S_CURVE = {"machine": {"label": "S-curve set", "poles": 4, "rated_speed_rpm": 1500, "rated_voltage_v": 300,
+                       "rated_armature_current_a": 40, "armature_resistance_ohm": 0.1, "brush_drop_v": 2.0,
+                       "shunt_field_resistance_ohm": 180, "shunt_turns_per_pole": 1000, "rheostat_max_ohm": 10,
+                       "reference_temperature_c": 75},
+           "open_circuit": {"speed_rpm": 1500, "interpolation": "linear",
+                            "field_current_a": [0, 0.5, 1.0, 1.5, 2.0, 2.5, 3.0, 3.5, 4.0],
+                            "emf_v": [10, 150, 280, 310, 320, 420, 600, 640, 660]}}
+S_LIGHTING = {"load": {"kind": "lighting", "label": "S-curve lighting"}, "drive": {"speed_rpm": 1500},
+              "lighting": {"nominal_voltage_v": 308, "load_current_a": [5, 20], "tolerance_percent": 3,
+                           "feeder_resistance_ohm": 0.05}}
+
+
+def test_lighting_search_sees_the_highest_stable_point():
+    """Design note: the machine sits at the highest stable intersection. On the
+    S-curve machine the shunt setting's lower stable point (about 310 V) lies
+    in the 308 V +- 3 % band, but the machine sits near 616 V (the highest
+    stable point, found by the all-intersections solver ``operating_points``):
+    the search must see that point and refuse the setting. Before the fix it
+    looked only below 1.5 x nominal + 50 V and offered the setting as
+    feasible. The reported far-end voltage at 5 A is the normal point less
+    5 A x 0.05 ohm (hand calculation on the solver's point)."""
+    from supplycfg.loads import profile_from_dict
+    from supplycfg.search import search
+    m = machine_from_dict(S_CURVE)
+    res = search(m, profile_from_dict(S_LIGHTING))
+    shunt = [o for o in res.options if o.setting.connection == "shunt"]
+    assert shunt and not any(o.feasible for o in shunt)
+    for o in shunt:
+        assert "load_voltage_high" in o.failed
+        pt = operating_points(m, o.setting, Load.constant_current(5.0)).normal
+        assert pt["terminal_voltage_v"] > 600.0
+        assert_allclose(o.figures["load_voltage_max_v"], pt["terminal_voltage_v"] - 5.0 * 0.05, rtol=1e-6)
+
+
+def test_no_load_voltage_that_runs_away_is_unknown():
+    """Design note: the no-load voltage is the highest stable no-load
+    intersection; a runaway is reported, never a lower number. The S-curve
+    machine with its curve rising steeply at the end (800, 1000 V at 3.5,
+    4.0 A: last chord 400 V/A, continued beyond) and 180 ohm in the field
+    circuit has a stable no-load point near 316 V, but above the plateau the
+    curve climbs past the field line for ever (400 > 180, hand check): the
+    machine runs away, so its no-load voltage is unknown (NaN), not 316 V.
+    With the curve measured only to its knee and 200 ohm in the field circuit
+    the point is finite: on the first piece E = 5 + 190 x, with V = 200 x and
+    Ia = x, 200 x = 5 + 190 x - 0.3 x, x = 5 / 10.3 A (hand calculation)."""
+    from supplycfg.circuit import no_load_voltages
+    tables = {k: dict(v) for k, v in S_CURVE.items()}
+    tables["open_circuit"]["emf_v"] = [10, 150, 280, 310, 320, 420, 600, 800, 1000]
+    m = machine_from_dict(tables)
+    circ = build_circuit(m, [Setting("shunt", rheostat_ohm=0.0)])
+    assert np.isnan(no_load_voltages(circ)[0])
+    ops = operating_points(m, Setting("shunt", rheostat_ohm=0.0), Load.constant_current(0.0))
+    assert ops.runaway and ops.normal is None
+    assert any(p["stable"] and 300 < p["terminal_voltage_v"] < 330 for p in ops.points)
+    knee = make_machine({"rated_speed_rpm": 1500.0, "rated_voltage_v": 220.0, "armature_resistance_ohm": 0.3},
+                        {"speed_rpm": 1500.0, "field_current_a": [0.0, 0.5, 1.0, 1.5],
+                         "emf_v": [5.0, 100.0, 180.0, 240.0]})
+    vnl = no_load_voltages(build_circuit(knee, [Setting("shunt", rheostat_ohm=0.0),
+                                                Setting("shunt", rheostat_ohm=100.0)]))
+    assert np.isnan(vnl[0])
+    assert_allclose(vnl[1], 200.0 * 5.0 / 10.3, rtol=1e-6)
+
+
+def test_point_past_the_span_runs_away_and_is_not_the_reversed_one():
+    """Issue 8 items 1 and 4 on the demo feeder booster, long-shunt cumulative
+    on 0.1 ohm: its only intersections inside 10 x rated armature current are
+    reversed (generated EMF below zero), and the highest stable one of normal
+    polarity lies beyond that span (the series field builds it up without
+    bound on so small a resistance). The engine must not name the -316 V
+    reversed point as the one the machine sits at: no normal point, runaway
+    reported, every listed point marked reversed."""
+    m = load_machine(PROFILES / "machines" / "feeder-booster.toml")
+    ops = operating_points(m, Setting("long-shunt-cumulative"), Load.resistor(0.1))
+    assert ops.normal is None
+    assert ops.runaway and "beyond the searched span" in ops.message
+    assert ops.points and all(p["reversed"] and p["generated_emf_v"] < 0 for p in ops.points)
+
+
+def test_occ_chart_reaches_a_no_load_point_past_the_curve():
+    """Item 1 in the charts: no axis may stop short of the highest stable
+    point. Curve (0, 5), (0.5, 100), (0.75, 130), (1.0, 150) [A, V] at rated
+    speed, read on along its last chord (80 V/A); field circuit 89.7 ohm, Ra
+    0.3 ohm: at no load 150 + 80 (x - 1) = 89.7 x + 0.3 x, x = 70 / 10 =
+    7.0 A, seven times the last measured field current (hand calculation). The chart's field-current axis must reach it and carry its
+    mark."""
+    from supplycfg import charts
+    m = make_machine({"shunt_field_resistance_ohm": 89.7, "armature_resistance_ohm": 0.3},
+                     {"field_current_a": [0.0, 0.5, 0.75, 1.0], "emf_v": [5.0, 100.0, 130.0, 150.0]})
+    x_nl = 7.0
+    spec = charts.occ_chart(m, Setting("shunt", rheostat_ohm=0.0)).to_dict()
+    assert spec["layer"][0]["encoding"]["x"]["scale"]["domain"][1] >= x_nl
+    marks = spec["datasets"]["no_load"]
+    assert_allclose([r["field_current_a"] for r in marks], x_nl, rtol=1e-3)
+
+
+# ---------------------------------------------------------------------------
+# reversed states and back-feeding (issue 8, item 4)
+# ---------------------------------------------------------------------------
+
+def test_reversed_build_up_on_a_resistor_is_marked_and_never_back_feeding():
+    """Design note, reversed states: the demo charging set, shunt, rheostat cut
+    out, on 1 ohm. It sits at its built-up point (148 V, EMF 183 V); the
+    mirrored states at negative voltage have a generated EMF below zero:
+    reversed build-ups, marked so, with a stop caution, and never
+    back-feeding (a resistor cannot drive the machine: its current reverses
+    only because the machine's polarity did)."""
+    from supplycfg.cautions import operating_point_cautions
+    m = load_machine(PROFILES / "machines" / "charging-set.toml")
+    ops = operating_points(m, Setting("shunt", rheostat_ohm=0.0), Load.resistor(1.0))
+    assert ops.normal["generated_emf_v"] > 0 and ops.normal["terminal_voltage_v"] > 100
+    neg = [p for p in ops.points if p["terminal_voltage_v"] < 0]
+    assert neg and all(p["reversed"] and not p["back_feeding"] for p in neg)
+    rules = {c.rule: c.severity for c in operating_point_cautions(ops)}
+    assert rules == {"reversed-build-up": "stop"}
+
+
+def test_back_feeding_is_a_battery_driving_the_machine():
+    """Design note: back-feeding is a source driving current into the machine
+    against its EMF. The demo charging set, shunt with 90 ohm of rheostat,
+    on a 125 V bank of 0.06 ohm: the machine's open-circuit voltage is below
+    the bank's, so the point it sits at has the battery driving current back
+    (load current below zero, EMF still positive): back-feeding, a warn."""
+    from supplycfg.cautions import operating_point_cautions
+    m = load_machine(PROFILES / "machines" / "charging-set.toml")
+    ops = operating_points(m, Setting("shunt", rheostat_ohm=90.0), Load.battery(125.0, 0.06))
+    pt = ops.normal
+    assert pt["load_current_a"] < 0 and pt["generated_emf_v"] > 0 and pt["back_feeding"] and not pt["reversed"]
+    rules = {c.rule: c.severity for c in operating_point_cautions(ops)}
+    assert rules["back-feeding"] == "warn"
+
+
+def test_point_command_marks_reversed_states(capsys):
+    """The ``point`` command on the feeder booster past its span (see
+    test_point_past_the_span_runs_away_and_is_not_the_reversed_one): no
+    "sits here", every row a reversed build-up, the stop caution and the
+    runaway in the output; JSON says the same (``sits_at`` null)."""
+    import json
+    from supplycfg.cli import main
+    args = ["point", str(PROFILES / "machines" / "feeder-booster.toml"), "--connection", "long-shunt-cumulative",
+            "--load-ohm", "0.1"]
+    assert main(args) == 0
+    text = capsys.readouterr().out
+    assert "sits here" not in text and "reversed build-up" in text and "[stop]" in text
+    assert "back-feeding" not in text
+    assert main(args + ["--json"]) == 0
+    d = json.loads(capsys.readouterr().out)
+    assert d["sits_at"] is None and d["runaway"] is True
+    assert all(p["state"] == "reversed build-up" for p in d["operating_points"])
+    assert {c["rule"] for c in d["cautions"]} == {"reversed-build-up", "runaway"}

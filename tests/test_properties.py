@@ -410,7 +410,14 @@ def check_highest_found(m, s, load, note=note):
     if math.isinf(v_hi):
         assert said
         return
-    if abs(float(recompute(m, s, v_hi, load_current_on_line(load, v_hi))["ia"])) > 10 * m.rated_armature_current_a:
+    r = recompute(m, s, v_hi, load_current_on_line(load, v_hi))
+    if abs(float(r["ia"])) > 10 * m.rated_armature_current_a:
+        return
+    if float(r["e"]) < 0:
+        # a reversed build-up is listed, marked, and never the normal point (design note)
+        assert said or any(p["reversed"] and math.isclose(p["terminal_voltage_v"], v_hi, rel_tol=1e-7, abs_tol=1e-7)
+                           for p in ops.points)
+        assert ops.normal is None or ops.normal["generated_emf_v"] >= 0
         return
     pt = ops.normal
     found = pt is not None and math.isclose(pt["terminal_voltage_v"], v_hi, rel_tol=1e-7, abs_tol=1e-7)
