@@ -84,6 +84,13 @@ def option_cautions(machine, profile, setting, f):
                           "electrode and the work can get a dangerous shock.",
                           "IEC 60974-1 rated no-load voltage, DC 113 V peak (seen); lower limits as set in the profile",
                           no_load_peak_voltage_v=pk, no_load_limit_v=lim))
+        if pk is None and lim is not None:
+            out.append(_c("welding-no-load-voltage-unknown", "stop",
+                          "The no-load voltage could not be determined at some setting of the range: it runs away "
+                          "past the measured open-circuit curve, so it may exceed the limit. Measure the curve "
+                          "further before using this setting.",
+                          "IEC 60974-1 rated no-load voltage, DC 113 V peak (seen); circuit model (design note)",
+                          no_load_limit_v=lim))
         mean, mean_lim = f.get("max_no_load_voltage_v"), f.get("no_load_mean_limit_v")
         if mean is not None and mean_lim is not None and mean > mean_lim:
             out.append(_c("welding-no-load-local-limit", "stop",

@@ -42,6 +42,9 @@ END_CURRENT_FLOOR_PER_H = 0.01
 WELD_CURRENT_TOLERANCE = 0.03
 #: Lighting and booster: load currents checked across the range.
 LOAD_POINTS = 5
+#: What a limit whose figure the engine could not determine says (it counts as broken).
+UNDETERMINED = ("undetermined: the engine found no operating point for this figure within its span (the voltage "
+                "runs away past the measured curve, or the current would pass 10 x the rated armature current)")
 #: Load-line grid and bisection steps while searching, and for the reported figures.
 COARSE = {"grid": 33, "steps": 26}
 FINE = {"grid": 401, "steps": 60}
@@ -292,7 +295,7 @@ def _battery(space, base_idx, u, res=COARSE):
         "start_current_max": (_worst(i_start, n, nc, "max"), b.max_charge_current_a, "max", "A"),
         # conservative pair: the open-circuit line (issue rule) gives the higher current, the
         # charging curve the lower; the maximum is checked on the first, the minimum on the second
-        "start_current_min": (_worst(np.fmin(i_start, i_start_c), n, nc, "min"), b.min_charge_current_a, "min", "A"),
+        "start_current_min": (_worst(np.minimum(i_start, i_start_c), n, nc, "min"), b.min_charge_current_a, "min", "A"),
         "end_volts_per_cell": (_worst(vpc_end, n, nc, "max"), limit_vpc, "max", "V"),
         "end_current_floor": (_worst(i_end, n, nc, "min"), END_CURRENT_FLOOR_PER_H * cap, "min", "A"),
         "no_load_above_bank": (_worst(vnl, n, nc, "min"), (1 + NO_LOAD_MARGIN_FRACTION) * e1, "min", "V"),
@@ -314,6 +317,7 @@ def _battery(space, base_idx, u, res=COARSE):
         "bank_open_circuit_voltage_start_v": np.full(n, e0),
         "bank_open_circuit_voltage_end_v": np.full(n, e1),
         "max_armature_current_a": _worst(np.abs(ia_start), n, nc, "max"),
+        # caution figures: the worst over the points that exist (a limit's figure never skips an unknown)
         "min_net_mmf_a": _worst(np.fmin(start["x"], end["x"]), n, nc, "min"),
         "max_net_mmf_a": _worst(np.fmax(np.abs(start["x"]), np.abs(end["x"])), n, nc, "max"),
         "min_generated_emf_v": _worst(np.fmin(start["generated_emf_v"], end["generated_emf_v"]), n, nc, "min"),
@@ -530,7 +534,8 @@ def _welding(space):
     isc = np.where(rs["found"], rs["load_current_a"], np.nan)
     duty = job.duty_cycle_percent / 100.0
     deq = float(loads.thermal_equivalent_current(hi_a, duty))
-    vnl_max = np.fmax(per["low"]["vnl"], per["high"]["vnl"])
+    # an unknown no-load voltage (it runs away) leaves the no-load limits unknown, never kept
+    vnl_max = np.maximum(per["low"]["vnl"], per["high"]["vnl"])
     peak = np.asarray(loads.no_load_peak_voltage(vnl_max), float)
     cm_lo = np.asarray(loads.characteristic_margin_v_per_a(job.process, per["low"]["slope"]), float)
     cm_hi = np.asarray(loads.characteristic_margin_v_per_a(job.process, per["high"]["slope"]), float)
@@ -642,13 +647,17 @@ def search(machine, profile):
         for name, (val, limit, kind, unit) in lim.items():
             v = float(np.asarray(val)[i])
             mv, fr = _margin(v, limit, kind, unit)
+            why = None
             if not math.isfinite(fr):
                 fr, mv = -1.0, None
                 failed.append(name)
+                why = UNDETERMINED
             elif fr < 0:
                 failed.append(name)
             margins[name] = {"value": v if math.isfinite(v) else None, "limit": limit, "kind": kind,
                              "unit": unit, "margin": mv, "fraction": fr}
+            if why:
+                margins[name]["why"] = why
             fracs.append(fr)
         f = _fig_dict(figs, i)
         f["top_speed_rpm"] = top_speed
@@ -698,7 +707,8 @@ def search_text(res, top=10):
         fld = f"{s.field_current_a:.3f} A" if o.control == "field-current" else (
             "-" if s.rheostat_ohm is None or o.control == "none" else f"{s.rheostat_ohm:.2f} ohm")
         sev = sorted({c.severity for c in o.cautions}, key=["stop", "warn", "note"].index)
-        extra = ", ".join(sev) + ("" if o.feasible else "; breaks " + ", ".join(o.failed))
+        extra = ", ".join(sev) + ("" if o.feasible else "; breaks " + ", ".join(
+            f + (" (undetermined)" if "why" in o.margins.get(f, {}) else "") for f in o.failed))
         if o.extrapolated:
             extra += "; extrapolated OCC"
         lines.append(f"{o.rank:>4}  {'yes' if o.feasible else 'no':<4}  {s.connection:<25} {(s.series_turns or 0):>5g} "

@@ -217,6 +217,42 @@ def test_occ_chart_reaches_a_no_load_point_past_the_curve():
 
 
 # ---------------------------------------------------------------------------
+# an unknown figure never counts as a kept limit (issue 8, item 2)
+# ---------------------------------------------------------------------------
+
+def test_welding_no_load_limit_undetermined_when_one_end_runs_away():
+    """IEC 60974-1 (seen): a DC welding source's no-load voltage must stay below
+    113 V peak. The demo welding set with its curve cut at 1.25 A (linear, last
+    chord 24 V/A) and no site limit: on the long-shunt differential 3-turn tap
+    with a 0.003 ohm diverter, the rheostat for the 60 A end gives a finite
+    no-load voltage but the one for the 180 A end runs away past the curve
+    (unknown). The largest no-load voltage is therefore unknown, so the peak
+    limit is undetermined and counts as broken, saying why; a NaN-ignoring
+    maximum used to keep the finite end's value and pass the limit."""
+    import tomllib
+    from supplycfg.loads import profile_from_dict
+    from supplycfg.search import search
+    with open(PROFILES / "machines" / "welding-set.toml", "rb") as f:
+        mt = tomllib.load(f)
+    with open(PROFILES / "loads" / "welding.toml", "rb") as f:
+        pt = tomllib.load(f)
+    pt["welding"].pop("max_no_load_voltage_v")
+    mt["open_circuit"].update(field_current_a=[0.0, 0.25, 0.5, 0.75, 1.0, 1.25],
+                              emf_v=[3.0, 20.0, 37.0, 52.0, 64.0, 70.0], interpolation="linear")
+    res = search(machine_from_dict(mt), profile_from_dict(pt))
+    (o,) = [o for o in res.options if o.setting.connection == "long-shunt-differential"
+            and o.setting.series_turns == 3 and o.setting.diverter_ohm == 0.003]
+    ends = [c["no_load_voltage_v"] for c in o.current_settings]
+    assert ends[0] is not None and ends[1] is None
+    assert not o.feasible
+    assert o.figures["max_no_load_voltage_v"] is None and o.figures["no_load_peak_voltage_v"] is None
+    mg = o.margins["no_load_peak_voltage"]
+    assert "no_load_peak_voltage" in o.failed and mg["value"] is None and mg["margin"] is None
+    assert "undetermined" in mg["why"]
+    assert any(c.rule == "welding-no-load-voltage-unknown" and c.severity == "stop" for c in o.cautions)
+
+
+# ---------------------------------------------------------------------------
 # reversed states and back-feeding (issue 8, item 4)
 # ---------------------------------------------------------------------------
 
