@@ -1164,15 +1164,70 @@ def characteristics_of(circ, points=400):
     return result
 
 
+def _fold_kinks(circ, i, st, j, grid=257):
+    """Exact curve points near sample ``j`` where the load current may turn back at a corner.
+
+    The load current along a curve is smooth except where the net field
+    crosses a knot of a linear open-circuit curve (or zero, where armature
+    reaction meets the windings' field), or the armature current crosses a
+    knot of the armature-reaction table or the brush-drop ramp. Returns
+    ``[(V, IL)]`` of such points between samples ``j - 1`` and ``j + 1``
+    (positive side of the windings' field only).
+    """
+    if circ.kind[i] != 1:
+        return []
+    sl = slice(j - 1, j + 2)
+    v_s, ia_s = st["terminal_voltage_v"][sl], st["armature_current_a"][sl]
+    xw = st["shunt_field_current_a"][sl] + circ.c[i] * st["series_branch_current_a"][sl]
+    if np.any(xw < 0):
+        return []
+    u_s = xw - circ.ar.mmf(ia_s) / circ.nsh
+    vlo, vhi = float(v_s.min()), float(v_s.max())
+    p1 = candidate_params(circ, np.array([i]))
+    occ = circ.occ
+    u_knots = occ.field_current_a if occ.interpolation == "linear" else np.zeros(1)
+    u_knots = u_knots[(u_knots >= u_s.min()) & (u_knots <= u_s.max())]
+    ia_knots = np.concatenate([circ.ar.knots(), [circ.ir]])
+    ia_knots = ia_knots[(ia_knots >= ia_s.min()) & (ia_knots <= ia_s.max())]
+    out = []
+
+    def roots(fun, lo, hi):
+        t = np.linspace(lo, hi, grid)
+        f = fun(t)
+        k = np.flatnonzero((np.signbit(f[:-1]) != np.signbit(f[1:])) | (f[:-1] == 0))
+        if not k.size:
+            return np.zeros(0)
+        return refine_bracketed_roots(fun, t[k], t[k + 1], f[k], 80)
+
+    for uk in u_knots:
+        lam = float(_n_fun(circ, p1, np.array([uk]))[0])
+        for ia in roots(lambda a: _l_fun(circ, p1, a) - lam, 0.0, circ.imax):
+            out.append((uk, ia))
+    for ik in ia_knots:
+        lam = float(_l_fun(circ, p1, np.array([ik]))[0])
+        for u in roots(lambda uu: _n_fun(circ, p1, uu) - lam, float(u_s.min()), float(u_s.max())):
+            out.append((u, ik))
+    pts = []
+    for u, ia in out:
+        v, il = _state_from_x_ia(circ, p1, np.array([u]), np.array([ia]))
+        if vlo <= v[0] <= vhi:
+            pts.append((float(v[0]), float(il[0])))
+    return pts
+
+
 def _refine_folds(circ, states, iterations=2):
     """Largest load current where a curve turns back (the breakdown point) [A].
 
     Near the fold the load current is a smooth function of terminal voltage;
     three exact points at fixed voltage give a parabola whose vertex is the
-    next estimate, with the spacing cut eightfold each round.
+    next estimate, with the spacing cut eightfold each round. Where the
+    curve has a corner there (a knot of a linear curve, see
+    :func:`_fold_kinks`) the corner is solved exactly and no parabola is
+    fitted across it: the maximum is then exact whatever the sampling.
     """
     cand, vg, ig, dv = [], [], [], []
     fine = {}
+    kinks = {}
     for i, st in enumerate(states):
         if st is None:
             continue
@@ -1181,15 +1236,23 @@ def _refine_folds(circ, states, iterations=2):
             continue
         j = int(np.argmax(il))
         if 0 < j < il.size - 1:
-            # vertex of the parabola IL(V) through the three exact samples (unevenly spaced)
             vv, yy = v[j - 1:j + 2], il[j - 1:j + 2]
+            spacing = np.ptp(vv)
+            kk = _fold_kinks(circ, i, st, j)
+            if kk:
+                # start from the best exact point, corners included
+                kinks[i] = np.array([k[0] for k in kk])
+                best = max([(float(a), float(b)) for a, b in zip(vv, yy)] + kk, key=lambda q: q[1])
+                cand.append(i); vg.append(best[0]); ig.append(best[1])
+                dv.append(max(spacing / 8, 1e-6))
+                continue
+            # vertex of the parabola IL(V) through the three exact samples (unevenly spaced)
             with np.errstate(all="ignore"):
                 a2, a1, _ = np.polyfit(vv - vv[1], yy, 2) if np.ptp(vv) > 0 else (0.0, 0.0, 0.0)
             v0 = vv[1] - a1 / (2 * a2) if a2 < 0 else vv[1]
             peak = yy[1] - a1 ** 2 / (4 * a2) if a2 < 0 else yy[1]
             if not (min(vv) <= v0 <= max(vv)) or not yy[1] <= peak <= yy[1] + np.ptp(yy):
                 v0, peak = vv[1], yy[1]
-            spacing = np.ptp(vv)
             if spacing <= FOLD_FINE_SPACING * circ.machine.rated_voltage_v:
                 fine[i] = float(peak)  # dense samples: the parabola is already exact to O(h^3)
                 continue
@@ -1216,9 +1279,11 @@ def _refine_folds(circ, states, iterations=2):
             den = y[:, 0] - 2 * y[:, 1] + y[:, 2]
             shift = 0.5 * d * (y[:, 0] - y[:, 2]) / den
             peak = y[:, 1] - 0.125 * (y[:, 2] - y[:, 0]) ** 2 / den
-        # a parabola only where the curve is smooth there: vertex inside, modest rise
+        # a parabola only where the curve is smooth there: vertex inside, modest rise, no corner
         rise = np.abs(y[:, 1] - np.fmin(y[:, 0], y[:, 2]))
-        smooth = ok & (den < 0) & (np.abs(shift) <= d) & (peak <= ymax + rise)
+        corner = np.array([bool(np.any(np.abs(kinks[c] - v_c) < d_c)) if c in kinks else False
+                           for c, v_c, d_c in zip(cand, vs, d)], bool)
+        smooth = ok & (den < 0) & (np.abs(shift) <= d) & (peak <= ymax + rise) & ~corner
         vs = np.where(smooth, vs + np.where(smooth, shift, 0.0), vs + (jmax - 1) * d)
         il_best = np.where(smooth, np.fmax(peak, ymax), np.where(np.isfinite(ymax), np.fmax(ymax, il_best), il_best))
         d = d / 8

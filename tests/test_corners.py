@@ -253,6 +253,25 @@ def test_welding_no_load_limit_undetermined_when_one_end_runs_away():
 
 
 # ---------------------------------------------------------------------------
+# breakdown exactly at a knot of a linear curve (issue 8, item 3)
+# ---------------------------------------------------------------------------
+
+def test_breakdown_on_a_knot_is_exact_at_any_resolution():
+    """Shunt machine, linear curve (0, 2), (0.5, 100), (1.0, 180), (1.5, 220),
+    (2.0, 240) [A, V], Ra = 0.5 ohm, field circuit Rf = 100 + 30 ohm, no brush
+    drop, no armature reaction, curve speed. Along the curve V = Rf x and
+    IL = (E(x) - (Rf + Ra) x) / Ra; on each straight piece IL is linear in x,
+    rising while the slope (196, 160 V/A) exceeds Rf + Ra = 130.5 ohm and
+    falling after (80, 40 V/A), so the largest load current sits on the knot
+    x = 1.0 A: IL* = (180 - 130.5) / 0.5 = 99.0 A at V = 130 V (hand
+    calculation). It must come out to 1e-6 whatever the number of points."""
+    m = make_machine({"armature_resistance_ohm": 0.5})
+    got = [external_characteristic(m, Setting("shunt", rheostat_ohm=30.0), k).max_load_current_a
+           for k in (5, 7, 10, 20, 40, 100, 400, 1000)]
+    assert_allclose(got, 99.0, rtol=1e-6)
+
+
+# ---------------------------------------------------------------------------
 # reversed states and back-feeding (issue 8, item 4)
 # ---------------------------------------------------------------------------
 
