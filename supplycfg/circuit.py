@@ -1403,7 +1403,12 @@ def _nearest(points, v, il):
 
 @dataclass
 class SelfExcitation:
-    """Build-up of the shunt field at no load (design note definitions)."""
+    """Build-up of the shunt field at no load (design note definitions).
+
+    ``reasons`` say why it does not build up from residual; ``runaway`` (with
+    ``notes``) that it builds up past the measured curve, so its no-load
+    voltage is unknown (``None``).
+    """
 
     setting: Setting
     field_circuit_resistance_ohm: float
@@ -1415,6 +1420,8 @@ class SelfExcitation:
     reasons: list
     no_load_points: list
     converged: bool = True
+    runaway: bool = False
+    notes: list = field(default_factory=list)
 
     @property
     def extrapolated(self):
@@ -1462,12 +1469,14 @@ def self_excitation(machine, rheostat_ohm=None, speed_rpm=None, winding_temperat
     # the residual magnetism sets the polarity: a build-up rises from zero, never into reverse
     pts = [p for p in ops.points if p["terminal_voltage_v"] >= 0]
     stable = [p for p in pts if p["stable"]]
-    vnl = stable[0]["terminal_voltage_v"] if stable else None
-    reasons = []
+    # running away, the machine holds no point we can name: its no-load voltage is unknown
+    vnl = stable[0]["terminal_voltage_v"] if stable and not ops.runaway else None
+    reasons, notes = [], []
     er = circ.occ.residual_v
-    if not ops.converged and ops.message == RUNAWAY_MESSAGE:
-        reasons.append("the field line never meets the open-circuit curve again: the voltage would run away past the "
-                       "last measured point, so no no-load voltage can be given; measure the curve further or add field resistance")
+    if ops.runaway:
+        notes.append("the field line never meets the open-circuit curve again: the voltage runs away past the "
+                     "last measured point, so no no-load voltage can be given; measure the curve further or add "
+                     "field resistance")
     if er <= 0:
         reasons.append("no residual voltage: the field must be flashed from a separate supply before it can build up")
     if rf >= rcrit:
@@ -1478,7 +1487,7 @@ def self_excitation(machine, rheostat_ohm=None, speed_rpm=None, winding_temperat
     stall = None
     if stable and er > 0:
         low = stable[-1]
-        if vnl is not None and low["terminal_voltage_v"] < vnl - 1e-6 * max(1.0, vnl):
+        if ops.runaway or (vnl is not None and low["terminal_voltage_v"] < vnl - 1e-6 * max(1.0, vnl)):
             stall = low["terminal_voltage_v"]
             above = [p for p in pts if p["terminal_voltage_v"] > stall and not p["stable"]]
             i1 = low["shunt_field_current_a"]
@@ -1493,7 +1502,8 @@ def self_excitation(machine, rheostat_ohm=None, speed_rpm=None, winding_temperat
     builds = not reasons
     if builds:
         stall = None
-    return SelfExcitation(st, rf, rcrit, ncrit, builds, vnl, stall, reasons, pts, ops.converged)
+    return SelfExcitation(st, rf, rcrit, ncrit, builds, vnl, stall, reasons, pts,
+                          ops.converged or ops.runaway, ops.runaway, notes)
 
 
 def series_critical_resistance_ohm(machine, series_turns=None, speed_rpm=None, winding_temperature_c=None):

@@ -303,20 +303,25 @@ def cmd_buildup(args, out):
            "critical_field_resistance_ohm": se.critical_field_resistance_ohm,
            "critical_speed_rpm": se.critical_speed_rpm, "builds_up": se.builds_up,
            "no_load_voltage_v": se.no_load_voltage_v, "stall_voltage_v": se.stall_voltage_v,
-           "reasons": se.reasons, "extrapolated": se.extrapolated, "converged": se.converged}
+           "reasons": se.reasons, "runaway": se.runaway, "notes": se.notes, "extrapolated": se.extrapolated,
+           "converged": se.converged}
     if args.json:
         return res
     lines = [f"{m.label or args.machine}: shunt field at no load, {se.setting.describe()}",
              f"field circuit {se.field_circuit_resistance_ohm:.4g} ohm; critical {se.critical_field_resistance_ohm:.4g} ohm at this speed; "
              f"critical speed {se.critical_speed_rpm:.5g} rpm",
-             f"builds up from residual: {'yes' if se.builds_up else 'no'}",
-             f"no-load voltage once built up (or flashed): {_fmt(se.no_load_voltage_v, 'V')}"]
+             f"builds up from residual: {'yes' if se.builds_up else 'no'}"
+             + (" (and runs away past the measured curve)" if se.runaway and se.builds_up else ""),
+             "no-load voltage once built up (or flashed): "
+             + ("unknown: the voltage runs away" if se.runaway else _fmt(se.no_load_voltage_v, 'V'))]
     if se.stall_voltage_v is not None:
         lines.append(f"a build-up from residual stops near {se.stall_voltage_v:.4g} V")
     if se.extrapolated:
         lines.append("note: the no-load point lies beyond the last measured point of the open-circuit curve (extrapolated)")
     for r in se.reasons:
         lines.append(f"- {r}")
+    for n in se.notes:
+        lines.append(f"note: {n}")
     return "\n".join(lines)
 
 

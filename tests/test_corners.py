@@ -325,3 +325,54 @@ def test_point_command_marks_reversed_states(capsys):
     assert d["sits_at"] is None and d["runaway"] is True
     assert all(p["state"] == "reversed build-up" for p in d["operating_points"])
     assert {c["rule"] for c in d["cautions"]} == {"reversed-build-up", "runaway"}
+
+
+# ---------------------------------------------------------------------------
+# build-up past the end of the curve (issue 8, item 6)
+# ---------------------------------------------------------------------------
+
+#: Invented machine whose curve was measured only to its knee.
+KNEE_ONLY_TOML = """
+[machine]
+label = "knee-only curve"
+poles = 4
+rated_speed_rpm = 1500
+rated_voltage_v = 220
+rated_armature_current_a = 100
+armature_resistance_ohm = 0.3
+shunt_field_resistance_ohm = 100
+shunt_turns_per_pole = 1000
+rheostat_max_ohm = 200
+
+[open_circuit]
+speed_rpm = 1500
+field_current_a = [0.0, 0.5, 1.0, 1.5]
+emf_v = [5.0, 100.0, 180.0, 240.0]
+interpolation = "linear"
+"""
+
+def test_build_up_that_runs_away_builds_up(capsys, tmp_path):
+    """Design note, self-excitation: a build-up that runs away past the
+    measured curve counts as building up, its no-load voltage unknown. Curve
+    measured to its knee (5, 100, 180, 240 V at 0, 0.5, 1.0, 1.5 A, 1500 rpm),
+    field circuit 100 ohm: critical resistance 190 ohm (steepest chord, hand
+    calculation), critical speed 1500 x 100 / 190 = 789.5 rpm, and the last
+    chord (120 V/A) stays above the 100 ohm field line for ever. So:
+    builds_up true, no_load_voltage_v null, runaway stated."""
+    import json
+    from supplycfg.circuit import self_excitation
+    from supplycfg.cli import main
+    m = make_machine({"rated_speed_rpm": 1500.0, "rated_voltage_v": 220.0, "armature_resistance_ohm": 0.3},
+                     {"speed_rpm": 1500.0, "field_current_a": [0.0, 0.5, 1.0, 1.5],
+                      "emf_v": [5.0, 100.0, 180.0, 240.0]})
+    se = self_excitation(m, rheostat_ohm=0.0)
+    assert_allclose([se.critical_field_resistance_ohm, se.critical_speed_rpm], [190.0, 1500.0 * 100.0 / 190.0],
+                    rtol=1e-12)
+    assert se.builds_up and se.no_load_voltage_v is None and se.runaway
+    assert not se.reasons and "runs away" in se.notes[0]
+    path = tmp_path / "knee-only.toml"
+    path.write_text(KNEE_ONLY_TOML)
+    assert main(["buildup", str(path), "--json"]) == 0
+    d = json.loads(capsys.readouterr().out)
+    assert d["builds_up"] is True and d["no_load_voltage_v"] is None and d["runaway"] is True
+    assert "runs away" in d["notes"][0]
