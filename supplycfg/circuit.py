@@ -752,6 +752,8 @@ class Characteristic:
 
     Arrays follow the curve; scalar figures are ``None`` when undefined
     within the searched span (10 x rated armature current).
+    ``regulation_percent`` is ``(V_no-load - V_full) / V_full``, full load
+    being the load current at which the armature carries its rated current.
     """
 
     setting: Setting
@@ -1292,7 +1294,11 @@ def _refine_folds(circ, states, iterations=2):
 
 
 def _refine_batch(circ, states):
-    """Exact no-load, short-circuit and rated-current points near each curve's samples."""
+    """Exact no-load, short-circuit and full-load points near each curve's samples.
+
+    Full load: the rated current in the armature (the load current is less
+    by the shunt-field current of a self-excited connection).
+    """
     m = circ.machine
     rated = m.rated_armature_current_a
     idx, loads, w0, w1, who = [], [], [], [], []
@@ -1303,11 +1309,11 @@ def _refine_batch(circ, states):
         v, il = st["terminal_voltage_v"], st["load_current_a"]
         guesses = [(Load.constant_current(0.0), (v[0] / vtop[i] + 1) / 2, 0.015)]
         guesses.append((Load(0.0, 0.0, None, "short circuit"), (il[-1] / circ.imax + 1) / 2, 0.02))
-        cross = np.flatnonzero(il >= rated)
+        cross = np.flatnonzero(st["armature_current_a"] >= rated)
         if cross.size:
-            guesses.append((Load.constant_current(rated), (v[cross[0]] / vtop[i] + 1) / 2, 0.015))
+            guesses.append((Load.armature_current(rated), (v[cross[0]] / vtop[i] + 1) / 2, 0.015))
         else:
-            guesses.append((Load.constant_current(rated), None, None))
+            guesses.append((Load.armature_current(rated), None, None))
         for k, (ld, g, half) in enumerate(guesses):
             idx.append(i); loads.append(ld); who.append((i, k))
             if g is None:
@@ -1319,9 +1325,9 @@ def _refine_batch(circ, states):
         return out
     res = solve_operating_points(circ, loads, np.array(idx), grid=129, window=(np.array(w0), np.array(w1)), steps=28)
     retry = []
-    for (i, k), r, ld in zip(who, res, loads):
+    for (i, k), r, ld, a, b in zip(who, res, loads, w0, w1):
         out[i][k] = r
-        if not r.points and k != 2:
+        if not r.points and (a > 0.0 or b < 1.0):
             retry.append((i, k, ld))
     if retry:
         res2 = solve_operating_points(circ, [r[2] for r in retry], np.array([r[0] for r in retry]))
@@ -1379,10 +1385,15 @@ def _finish(circ, i, st, state, note, ops, fold=None, at_zero=False):
     vnl = nl["terminal_voltage_v"] if nl is not None else None
     reg = None
     if vnl is not None:
-        # the rated-current point reached along the curve from no load
-        cross = np.flatnonzero(ilp >= m.rated_armature_current_a)
+        # full load: the first point along the curve from no load where the armature carries its rated current
+        cross = np.flatnonzero(pts["armature_current_a"] >= m.rated_armature_current_a)
         if cross.size:
-            vr = _nearest(ops[2].points, pts["terminal_voltage_v"][cross[0]], m.rated_armature_current_a)
+            c0 = int(cross[0])
+            # the point between the samples that bracket the crossing, else the nearest one
+            vv = pts["terminal_voltage_v"][max(c0 - 1, 0):c0 + 1]
+            tol = 1e-9 * max(1.0, abs(float(vv.max())))
+            between = [q for q in ops[2].points if vv.min() - tol <= q["terminal_voltage_v"] <= vv.max() + tol]
+            vr = _nearest(between or ops[2].points, pts["terminal_voltage_v"][c0], ilp[c0])
             if vr is not None and vr["terminal_voltage_v"] > 0:
                 reg = 100.0 * (vnl - vr["terminal_voltage_v"]) / vr["terminal_voltage_v"]
     conv = all(o.converged for o in ops)

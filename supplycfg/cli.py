@@ -66,7 +66,12 @@ def _parser():
     top.add_argument("--version", action="version", version=f"supplycfg {__version__}")
     sub = top.add_subparsers(dest="command", parser_class=_Parser)
 
-    p = sub.add_parser("curve", help="external characteristic of one setting")
+    p = sub.add_parser("curve", help="external characteristic of one setting",
+                       description="External characteristic of one setting, from no load to zero volts. "
+                                   "regulation_percent = (V_no-load - V_full) / V_full, where full load is the "
+                                   "load current at which the armature carries its rated current (for a "
+                                   "self-excited connection that is less than the rated armature current by "
+                                   "the shunt-field current).")
     p.add_argument("machine"); _add_setting(p)
     p.add_argument("--points", type=_positive_int, default=40, help="points along the curve")
     p.add_argument("--json", action="store_true")
@@ -176,7 +181,8 @@ def cmd_curve(args, out):
         return res
     lines = [f"{m.label or args.machine}: {st.connection}, {st.describe()}",
              f"no-load voltage {_fmt(c.no_load_voltage_v, 'V')}; short-circuit current {_fmt(c.short_circuit_current_a, 'A')}; "
-             f"largest load current {_fmt(c.max_load_current_a, 'A')}; regulation at rated current {_fmt(c.regulation_percent, '%', '.3g')}",
+             f"largest load current {_fmt(c.max_load_current_a, 'A')}; regulation to full load (rated armature current) "
+             f"{_fmt(c.regulation_percent, '%', '.3g')}",
              ""]
     rows = c.point_list()
     lines.append(table(rows, ["load_current_a", "terminal_voltage_v", "armature_current_a", "shunt_field_current_a",

@@ -376,3 +376,38 @@ def test_build_up_that_runs_away_builds_up(capsys, tmp_path):
     d = json.loads(capsys.readouterr().out)
     assert d["builds_up"] is True and d["no_load_voltage_v"] is None and d["runaway"] is True
     assert "runs away" in d["notes"][0]
+
+
+# ---------------------------------------------------------------------------
+# regulation to full load: the rated current in the armature (issue 8, item 7)
+# ---------------------------------------------------------------------------
+
+def test_regulation_full_load_is_rated_armature_current():
+    """Regulation (VNL - VFL) / VFL (Kosow Ex 3-6, seen) with full load the load
+    current at which the armature carries its rated 100 A. Shunt, linear
+    curve as above, Ra = 0.05 ohm, Rf = 130 ohm, no brush drop or armature
+    reaction; both points lie on the piece E = 220 + 40 (x - 1.5) with
+    x = V / 130 (hand calculation):
+    no load, Ia = V/130: V (1 - 40/130 + 0.05/130) = 160;
+    full load, Ia = 100 A: V (1 - 40/130) = 220 - 60 - 5 = 155, so
+    IL = 100 - V/130 = 98.28 A (not 100 A, which would overload the armature
+    by the field current)."""
+    m = make_machine()
+    v_nl = 160.0 / (1 - 40.0 / 130.0 + 0.05 / 130.0)
+    v_fl = 155.0 / (1 - 40.0 / 130.0)
+    ch = external_characteristic(m, Setting("shunt", rheostat_ohm=30.0), 60)
+    assert_allclose(ch.no_load_voltage_v, v_nl, rtol=1e-9)
+    assert_allclose(ch.regulation_percent, 100.0 * (v_nl - v_fl) / v_fl, rtol=1e-7)
+    full = operating_points(m, Setting("shunt", rheostat_ohm=30.0), Load.armature_current(100.0)).normal
+    assert_allclose([full["terminal_voltage_v"], full["load_current_a"], full["armature_current_a"]],
+                    [v_fl, 100.0 - v_fl / 130.0, 100.0], rtol=1e-9)
+
+
+def test_curve_help_says_what_full_load_is(capsys):
+    """The command line's help for ``curve`` states the full-load rule (issue 8 item 7)."""
+    from supplycfg.cli import main
+    with pytest.raises(SystemExit):
+        main(["curve", "--help"])
+    out = " ".join(capsys.readouterr().out.split())
+    assert "full load is the load current at which the armature carries its rated current" in out
+
