@@ -111,3 +111,37 @@ def setting_cautions(machine, setting, f):
     return out
 
 
+def operating_point_cautions(ops):
+    """Cautions of the operating points of one setting on one load (``OperatingPoints``).
+
+    A reversed build-up (generated EMF below zero) is a ``stop``; a source
+    load driving current into the machine (back-feeding) a ``warn``; a
+    machine whose highest stable point lies beyond the searched span (it
+    runs away) a ``stop``.
+    """
+    out = []
+    rev = [p for p in ops.points if p.get("reversed")]
+    if rev:
+        p = next((q for q in rev if q["stable"]), rev[0])
+        out.append(caution("reversed-build-up", "stop",
+                      f"At {p['terminal_voltage_v']:.4g} V the generated EMF is {p['generated_emf_v']:.4g} V: that "
+                      "state is the machine built up with reversed polarity. If the machine is found there, stop it "
+                      "and restore the polarity (flash the field from a separate supply the right way round) "
+                      "before connecting a load.",
+                      "reversed states (design note); flashing the field: common practice",
+                      terminal_voltage_v=p["terminal_voltage_v"], generated_emf_v=p["generated_emf_v"]))
+    back = [p for p in ops.points if p.get("back_feeding") and not p.get("reversed")]
+    if back:
+        p = next((q for q in back if q["stable"]), back[0])
+        out.append(caution("back-feeding", "warn",
+                      f"At {p['terminal_voltage_v']:.4g} V the load drives {-p['load_current_a']:.4g} A back into the "
+                      "machine, which runs as a motor and discharges the source: fit a reverse-current cut-out or "
+                      "a blocking diode.",
+                      "common practice for DC charging sets (reverse-current relay)",
+                      terminal_voltage_v=p["terminal_voltage_v"], load_current_a=p["load_current_a"]))
+    if ops.runaway:
+        out.append(caution("runaway", "stop",
+                      f"No operating point can be given: {ops.message}. Do not close onto this load with this "
+                      "setting.", "circuit model (design note: the highest stable intersection)"))
+    return out
+

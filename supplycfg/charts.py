@@ -226,7 +226,14 @@ def occ_chart(machine, setting=None, temperatures_c=None, width=None):
                 exc.append((f"exciter field {machine.excitation_voltage_v / rf:.3g} A, windings {t:g} °C",
                             machine.excitation_voltage_v / rf))
     exc_a = max((a for _, a in exc), default=0.0)
-    x_top = 1.15 * max(x_last, exc_a or 0.0)
+    rsh = machine.shunt_field_resistance_ohm
+    kt = {t: float(copper_resistance_factor(t, machine.reference_temperature_c)) for t in temps}
+    ses = {t: self_excitation(machine, st.rheostat_ohm, st.speed_rpm, t) for t in temps} \
+        if st.connection in SELF_EXCITED else {}
+    # the axis reaches every built-up no-load point, even one past the measured curve
+    x_nl = max((se.no_load_voltage_v / se.field_circuit_resistance_ohm for se in ses.values()
+                if se.no_load_voltage_v is not None), default=0.0)
+    x_top = 1.15 * max(x_last, exc_a or 0.0, x_nl)
     xs = np.union1d(np.linspace(0.0, x_top, 180), [x_last])
     es = ratio * occ.emf(xs)
     e_top = float(es.max())
@@ -257,15 +264,13 @@ def occ_chart(machine, setting=None, temperatures_c=None, width=None):
                           "resistance_ohm": _f(r_ohm), "order": j})
         styles.add(label, colour, dash, width, muted)
 
-    rsh = machine.shunt_field_resistance_ohm
-    kt = {t: float(copper_resistance_factor(t, machine.reference_temperature_c)) for t in temps}
     if st.connection in SELF_EXCITED:
         tones = ((VERMILLION, DASHES["long"]), (GREEN, DASHES["dash-dot"]))
         for t, (c, dash) in zip(temps, tones if len(temps) > 1 else tones[:1]):
             r = rsh * kt[t] + st.rheostat_ohm
             lab = f"this setting: {r:.4g} Ω field circuit, {t:g} °C"
             field_line(lab, r, c, dash, BOLD)
-            se = self_excitation(machine, st.rheostat_ohm, st.speed_rpm, t)
+            se = ses[t]
             if se.no_load_voltage_v is not None:
                 marks.append({"series": lab, "point": "built-up no-load point",
                               "field_current_a": _f(se.no_load_voltage_v / se.field_circuit_resistance_ohm),

@@ -4,10 +4,12 @@ The model follows the project's design note. Every winding acts through the
 net mmf per pole, read on the open-circuit characteristic as an equivalent
 shunt-field current
 
-    x = I_sh + c * I_br - F_ar(|Ia|) / N_sh,     c = +-N_se * w / N_sh,
+    x_w = I_sh + c * I_br,     c = +-N_se * w / N_sh,
+    x = x_w - sign(x_w) min(F_ar(|Ia|) / N_sh, |x_w|)
 
 (``w`` the share of the series-branch current ``I_br`` that flows in the
-winding when a diverter is fitted) and the terminal voltage is
+winding when a diverter is fitted; armature reaction weakens the field and
+never reverses it) and the terminal voltage is
 
     V = (n / n_occ) * OCC(x) - Ia * Ra - I_br * R_br - V_b(Ia).
 
@@ -15,8 +17,9 @@ Operating points against a load are found along the load line, where every
 current is an explicit function of the terminal voltage; all intersections
 are bracketed on a fine grid and refined by vectorised bisection.
 External characteristics of self-excited connections are traced exactly
-through their turn-back: with the circuit written as ``N(x) = L(Ia)`` (both
-one-dimensional functions) the curve is followed piece by piece of monotony.
+through their turn-back: with the circuit written as ``N(u) = L(Ia)`` (both
+one-dimensional functions, one pair for each sign of the windings' field)
+the curve is followed piece by piece of monotony.
 
 References
 ----------
@@ -31,7 +34,8 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 
 from .errors import InputError
-from .magnetisation import ArmatureReaction, OpenCircuitCurve, copper_resistance_factor
+from .magnetisation import (ArmatureReaction, OpenCircuitCurve, copper_resistance_factor,
+                            field_after_armature_reaction)
 
 CONNECTIONS = (
     "separate", "separate-cumulative", "separate-differential", "shunt", "series",
@@ -54,13 +58,18 @@ LOAD_LINE_GRID = 4001
 SPAN_DOUBLINGS = 4
 RUNAWAY_MESSAGE = ("the machine's voltage keeps rising above the load beyond the searched span: the open-circuit "
                    "curve's extension past its last point never bends over; measure the curve further")
+BEYOND_SPAN_MESSAGE = ("the machine's highest stable point on this load lies beyond the searched span of 10 x the "
+                       "rated armature current: it runs away into an overload")
+CURVE_RUNAWAY_NOTE = ("no no-load voltage: the field line stays below the open-circuit curve out to the searched "
+                      "span, so the voltage runs away past the measured curve; measure the curve further or add "
+                      "field resistance")
 #: Curve samples nearer than this share of rated voltage make the fold's parabola exact enough.
 FOLD_FINE_SPACING = 1e-2
 #: Golden-section steps looking for a residual extremum between two grid points.
 EXTREMUM_STEPS = 40
 #: A refinement stops once every residual is below this [V].
 RESIDUAL_STOP_V = 1e-11
-#: Refinement steps of a bracket (half secant, half halving; see _bisect).
+#: Refinement steps of a bracket (half secant, half halving; see refine_bracketed_roots).
 BISECTION_STEPS = 40
 
 
@@ -352,8 +361,7 @@ def machine_state(circ, p, v, il):
     characteristic; negative slope in ``v`` along a load line means stable).
     """
     field, ia, ibr = currents_from_voltage(p, v, il)
-    far = circ.ar.mmf(ia) / circ.nsh
-    x = field + p["c"] * ibr - far
+    x = field_after_armature_reaction(field + p["c"] * ibr, circ.ar.mmf(ia) / circ.nsh)
     e = p["s"] * circ.occ.emf(x)
     h = e - ia * p["ra"] - ibr * p["rbr"] - brush_drop(ia, circ.vb, circ.ir) - v
     ish = field * (p["kind"] != 2)
@@ -370,7 +378,8 @@ def _winding_share(circ, p):
     return np.abs(p["c"]) * circ.nsh / np.where(nse > 0, nse, np.inf)
 
 
-def _params(circ, idx):
+def candidate_params(circ, idx):
+    """Circuit parameters of candidates ``idx`` as a dict of arrays (with ``idx`` itself)."""
     p = circ.take(idx)
     p["idx"] = idx
     return p
@@ -386,13 +395,19 @@ class Load:
 
     ``V = v0 + slope_ohm * IL`` (resistor: ``v0 = 0``; battery: EMF and
     resistance; welding load line: ``U0`` and ``k``), or a constant current
-    ``IL = current_a`` when ``current_a`` is given.
+    ``IL = current_a`` when ``current_a`` is given, or the load current at
+    which the armature carries ``armature_current_a`` (full load of a
+    self-excited machine: its armature also feeds the shunt field).
+    ``source`` marks a load that can drive current into the machine (a
+    battery, a forced current); a resistor or an arc cannot.
     """
 
     v0: float = 0.0
     slope_ohm: float = 0.0
     current_a: float | None = None
     label: str = ""
+    source: bool = False
+    armature_current_a: float | None = None
 
     @classmethod
     def resistor(cls, ohm):
@@ -400,15 +415,19 @@ class Load:
 
     @classmethod
     def constant_current(cls, amps):
-        return cls(0.0, 0.0, float(amps), f"constant current {amps:g} A")
+        return cls(0.0, 0.0, float(amps), f"constant current {amps:g} A", source=True)
 
     @classmethod
     def battery(cls, emf_v, ohm):
-        return cls(float(emf_v), float(ohm), None, f"battery {emf_v:g} V, {ohm:g} ohm")
+        return cls(float(emf_v), float(ohm), None, f"battery {emf_v:g} V, {ohm:g} ohm", source=True)
 
     @classmethod
     def line(cls, v0, slope_ohm):
         return cls(float(v0), float(slope_ohm), None, f"line {v0:g} V + {slope_ohm:g} ohm")
+
+    @classmethod
+    def armature_current(cls, amps):
+        return cls(0.0, 0.0, None, f"load with {amps:g} A in the armature", armature_current_a=float(amps))
 
 
 @dataclass
@@ -418,21 +437,36 @@ class OperatingPoints:
     Attributes
     ----------
     points : list of dict
-        Highest terminal voltage first; each with the curve-point keys and
-        ``stable``.
+        Highest terminal voltage first; each with the curve-point keys,
+        ``stable``, ``reversed`` (generated EMF below zero: a reversed
+        build-up, design note) and ``back_feeding`` (a source load driving
+        current into the machine).
     converged : bool
-        False if a bracket could not be refined to the residual tolerance.
+        False if a bracket could not be refined to the residual tolerance,
+        or the machine runs away.
+    runaway : bool
+        The highest stable point lies beyond the searched span (the voltage
+        runs away past the measured curve, or the current would pass 10 x
+        rated): the point the machine sits at is unknown.
     """
 
     points: list
     converged: bool = True
     message: str = ""
+    runaway: bool = False
 
     @property
     def normal(self):
-        """The point the machine sits at: the highest stable intersection."""
+        """The point the machine sits at: the highest stable intersection of normal polarity.
+
+        None when it runs away past the searched span, or when every stable
+        intersection is a reversed build-up (never the point the machine is
+        said to sit at, design note).
+        """
+        if self.runaway:
+            return None
         for pt in self.points:
-            if pt["stable"]:
+            if pt["stable"] and not pt["reversed"]:
                 return pt
         return None
 
@@ -441,7 +475,7 @@ POINT_KEYS = ("terminal_voltage_v", "load_current_a", "armature_current_a",
               "shunt_field_current_a", "series_field_current_a", "generated_emf_v")
 
 
-def _bisect(fun, a, b, fa, steps=BISECTION_STEPS):
+def refine_bracketed_roots(fun, a, b, fa, steps=BISECTION_STEPS):
     """Vectorised bracketing root refinement of ``fun`` on ``[a, b]`` (``fun(a) = fa``).
 
     The Illinois variant of regula falsi (Dowell & Jarratt 1971): it keeps a
@@ -458,7 +492,18 @@ def _bisect(fun, a, b, fa, steps=BISECTION_STEPS):
     fa = np.asarray(fa, float).copy()
     fb = fun(b)
     secant_steps = max(steps // 2, 1)
+
+    def settled(a, b, fb):
+        # residuals here are volts: far below the 1e-6 V the results promise
+        return (np.abs(fb) <= RESIDUAL_STOP_V) | (np.abs(b - a) <= 1e-15 * np.maximum(1.0, np.abs(b)))
+
+    # a bracket end already on the root (a grid point, a knot) is the answer
+    at_a = np.abs(fa) <= RESIDUAL_STOP_V
+    b, fb = np.where(at_a, a, b), np.where(at_a, fa, fb)
+    done = at_a | settled(a, b, fb)
     for k in range(steps):
+        if np.all(done):
+            break
         if k < secant_steps:
             den = fb - fa
             with np.errstate(divide="ignore", invalid="ignore"):
@@ -467,21 +512,25 @@ def _bisect(fun, a, b, fa, steps=BISECTION_STEPS):
             c = np.where(np.isfinite(c) & (c > lo) & (c < hi), c, 0.5 * (a + b))
         else:
             c = 0.5 * (a + b)
-        # an end already on the root stays there (a grid point can hit it exactly)
-        c = np.where(fb == 0, b, c)
+        # a settled root stays where it is while the others go on
+        c = np.where(done, b, c)
         fc = fun(c)
-        flip = np.signbit(fc) != np.signbit(fb)
+        flip = (np.signbit(fc) != np.signbit(fb)) & ~done
         a = np.where(flip, b, a)
-        fa = np.where(flip, fb, 0.5 * fa if k < secant_steps else fa)
-        b, fb = c, fc
-        # residuals here are volts: far below the 1e-6 V the results promise
-        if np.all((np.abs(fb) <= RESIDUAL_STOP_V) | (np.abs(b - a) <= 1e-15 * np.maximum(1.0, np.abs(b)))):
-            break
+        fa = np.where(flip, fb, np.where(done, fa, 0.5 * fa) if k < secant_steps else fa)
+        b, fb = c, np.where(done, fb, fc)
+        done = done | settled(a, b, fb)
     return b
 
 
-def _voltage_span(circ, idx):
-    """Highest terminal voltage worth searching for candidates ``idx`` [V]."""
+def voltage_span(circ, idx=None):
+    """Highest terminal voltage worth searching first for candidates ``idx`` [V].
+
+    The open-circuit curve read at three times its last field current (plus
+    the series and separate field), with a fifth more: a machine still above
+    its load there is looked for further out before it is called a runaway.
+    """
+    idx = np.arange(circ.n) if idx is None else idx
     xs = circ.occ.last_field_current_a
     top = circ.occ.emf(3 * xs + np.abs(circ.c[idx]) * circ.imax + circ.x0[idx])
     return 1.2 * circ.s[idx] * top + 1.0
@@ -508,14 +557,18 @@ def solve_operating_points(circ, loads, idx=None, grid=LOAD_LINE_GRID, window=No
     """
     idx = np.arange(circ.n) if idx is None else np.asarray(idx, int)
     m = len(idx)
-    p = _params(circ, idx[:, None])
+    p = candidate_params(circ, idx[:, None])
     v0 = np.array([ld.v0 for ld in loads], float)[:, None]
     k = np.array([ld.slope_ohm for ld in loads], float)[:, None]
     cur = np.array([np.nan if ld.current_a is None else ld.current_a for ld in loads], float)[:, None]
+    arm = np.array([np.nan if ld.armature_current_a is None else ld.armature_current_a for ld in loads],
+                   float)[:, None]
+    source = np.array([ld.source for ld in loads], bool)
     fixed_current = np.isfinite(cur)
-    fixed_voltage = ~fixed_current & (k <= 0)
-    vtop = _voltage_span(circ, idx)[:, None]
-    vtop = np.maximum(vtop, np.where(fixed_current, 0, v0 + 1.0))
+    fixed_arm = np.isfinite(arm)
+    fixed_voltage = ~fixed_current & ~fixed_arm & (k <= 0)
+    vtop = voltage_span(circ, idx)[:, None]
+    vtop = np.maximum(vtop, np.where(fixed_current | fixed_arm, 0, v0 + 1.0))
     lin = np.linspace(0.0, 1.0, grid)[None, :]
     if window is None:
         t = np.broadcast_to(lin, (m, grid))
@@ -531,6 +584,7 @@ def solve_operating_points(circ, loads, idx=None, grid=LOAD_LINE_GRID, window=No
         with np.errstate(divide="ignore", invalid="ignore"):
             il = np.where(fixed_current, cur,
                           np.where(by_current, (2 * tt - 1) * circ.imax, (v - v0) / np.where(k > 0, k, 1.0)))
+        il = np.where(fixed_arm, _load_current_at_armature_current(p, v, arm), il)
         return v, il
 
     def resid(tt):
@@ -561,11 +615,13 @@ def solve_operating_points(circ, loads, idx=None, grid=LOAD_LINE_GRID, window=No
         pr = {kk: vv[sel, 0] if np.ndim(vv) else vv for kk, vv in p.items()}
         vv0, kk_, cc, fc, bc, vt = (v0[sel, 0], k[sel, 0], cur[sel, 0], fixed_current[sel, 0],
                                     by_current[sel, 0], vtop[sel, 0])
+        aa, fa_ = arm[sel, 0], fixed_arm[sel, 0]
 
         def pt_rows(tt):
             v = np.where(bc, vv0, (2 * tt - 1) * vt)
             with np.errstate(divide="ignore", invalid="ignore"):
                 il = np.where(fc, cc, np.where(bc, (2 * tt - 1) * circ.imax, (v - vv0) / np.where(kk_ > 0, kk_, 1.0)))
+            il = np.where(fa_, _load_current_at_armature_current(pr, v, aa), il)
             return v, il
 
         def res_rows(tt):
@@ -608,9 +664,10 @@ def solve_operating_points(circ, loads, idx=None, grid=LOAD_LINE_GRID, window=No
                 a = np.concatenate([a, t[er, ec], tm]); b = np.concatenate([b, tm, t[er, ec + 2]])
                 fa = np.concatenate([fa, ha, fm])
                 falling = np.concatenate([falling, ha > 0, fm > 0])
+    beyond = np.zeros(m, bool)
     if rows.size:
         pr, pt_rows, res_rows = on_rows(rows)
-        root = _bisect(res_rows, a, b, fa, steps)
+        root = refine_bracketed_roots(res_rows, a, b, fa, steps)
         v, il = pt_rows(root)
         st = machine_state(circ, pr, v, il)
         scale = 1e-6 * np.maximum(1.0, np.abs(v))
@@ -618,12 +675,21 @@ def solve_operating_points(circ, loads, idx=None, grid=LOAD_LINE_GRID, window=No
         ok = bool(np.all(good))
         inside = np.abs(st["armature_current_a"]) <= circ.imax * (1 + 1e-9)
         ext = circ.occ.extrapolated(st["x"])
+        rev = st["generated_emf_v"] < 0
+        # the highest stable point of normal polarity outside the current span: the machine runs into it
+        top_v = np.full(m, -np.inf)
+        np.maximum.at(top_v, rows, np.where(falling & ~rev, v, -np.inf))
+        top_in = np.full(m, -np.inf)
+        np.maximum.at(top_in, rows, np.where(falling & ~rev & inside, v, -np.inf))
+        beyond = np.isfinite(top_v) & (top_v > top_in)
         for j in range(rows.size):
             if not inside[j]:
                 continue
             d = {kk: float(st[kk][j]) for kk in POINT_KEYS}
             d["extrapolated"] = bool(ext[j])
             d["stable"] = bool(falling[j])
+            d["reversed"] = bool(rev[j])
+            d["back_feeding"] = bool(source[rows[j]] and d["load_current_a"] < 0)
             d["residual_v"] = float(st["h"][j])
             out[rows[j]].append(d)
     res = []
@@ -631,10 +697,24 @@ def solve_operating_points(circ, loads, idx=None, grid=LOAD_LINE_GRID, window=No
         lst.sort(key=lambda d: -d["terminal_voltage_v"])
         lst = _dedupe(lst)
         if runaway[r]:
-            res.append(OperatingPoints(lst, False, RUNAWAY_MESSAGE))
+            res.append(OperatingPoints(lst, False, RUNAWAY_MESSAGE, True))
+        elif beyond[r]:
+            res.append(OperatingPoints(lst, ok, BEYOND_SPAN_MESSAGE, True))
         else:
             res.append(OperatingPoints(lst, ok, "" if ok else "a root did not reach the residual tolerance"))
     return res
+
+
+def _load_current_at_armature_current(p, v, ia):
+    """Load current [A] at terminal voltage ``v`` [V] that puts ``ia`` [A] in the armature.
+
+    Self-excited: ``Ia = IL + (V + IL Rbr [short shunt]) / Rf``; otherwise ``IL = Ia``.
+    """
+    self_ex = p["kind"] == 1
+    rf = np.where(self_ex, p["rf"], 1.0)
+    ish_v = np.where(self_ex, v / rf, 0.0)
+    gain = 1.0 + np.where(self_ex & p["short"], p["rbr"] / rf, 0.0)
+    return (ia - ish_v) / gain
 
 
 def _dedupe(lst):
@@ -674,6 +754,8 @@ class Characteristic:
 
     Arrays follow the curve; scalar figures are ``None`` when undefined
     within the searched span (10 x rated armature current).
+    ``regulation_percent`` is ``(V_no-load - V_full) / V_full``, full load
+    being the load current at which the armature carries its rated current.
     """
 
     setting: Setting
@@ -737,68 +819,115 @@ def _grids(circ):
 def _short_factor(p):
     """``1 - c`` for a short shunt (its series winding carries IL = Ia - Ish), 1 otherwise.
 
-    The circuit is written ``N(x) = L(Ia)`` with both sides multiplied by this
+    The circuit is written ``N(u) = L(Ia)`` with both sides multiplied by this
     factor rather than divided by it, so a series winding of as many turns as
-    the shunt's (factor 0) or more (negative) needs no special case: N then
-    falls steadily with x and each Ia has one x.
+    the shunt's (factor 0) or more (negative) needs no special case.
     """
     return 1.0 - p["c"] * p["short"]
 
 
-def _n_fun(circ, p, x):
-    return _short_factor(p) * p["s"] * circ.occ.emf(x) - p["rf"] * x
+def _n_fun(circ, p, u, sign=1.0):
+    """``N(u) = f s E(x) - rf u`` of the self-excited form on the side ``sign`` of the windings' field.
+
+    ``f`` is :func:`_short_factor`; ``u = x_w - sign F_ar/N_sh``; where
+    ``sign x_w >= 0`` the net field is ``x = max(u, 0)`` (sign +1) or
+    ``min(u, 0)`` (sign -1): armature reaction brings the field to zero at
+    most (design note).
+    """
+    x = np.where(np.asarray(sign) > 0, np.maximum(u, 0.0), np.minimum(u, 0.0))
+    return _short_factor(p) * p["s"] * circ.occ.emf(x) - p["rf"] * u
 
 
-def _l_fun(circ, p, ia):
+def _l_fun(circ, p, ia, sign=1.0):
+    """``L(Ia) = f (Ia Rl + Vb(Ia)) + rf (sign F_ar/N_sh - c Ia)``: the other side of ``N(u) = L(Ia)``."""
     rl = np.where(p["branch"] == 1, p["ra"] + p["rbr"], p["ra"])
     far = circ.ar.mmf(ia) / circ.nsh
-    return _short_factor(p) * (ia * rl + brush_drop(ia, circ.vb, circ.ir)) + p["rf"] * (far - p["c"] * ia)
+    return _short_factor(p) * (ia * rl + brush_drop(ia, circ.vb, circ.ir)) + p["rf"] * (sign * far - p["c"] * ia)
 
 
-def _state_from_x_ia(circ, p, x, ia):
-    """Terminal quantities of a self-excited candidate at (x, Ia)."""
+def _state_from_x_ia(circ, p, u, ia, sign=1.0):
+    """Terminal quantities of a self-excited candidate at (u, Ia) on the side ``sign``."""
     far = circ.ar.mmf(ia) / circ.nsh
+    x = np.where(np.asarray(sign) > 0, np.maximum(u, 0.0), np.minimum(u, 0.0))
     # the short shunt's field sits across the armature: Ish Rf = E - Ia Ra - Vb
     # (the mmf balance would divide by 1 - c, zero for equal turns)
     arm_v = p["s"] * circ.occ.emf(x) - ia * p["ra"] - brush_drop(ia, circ.vb, circ.ir)
-    ish = np.where(p["short"], arm_v / p["rf"], x - p["c"] * ia + far)
+    ish = np.where(p["short"], arm_v / p["rf"], u + sign * far - p["c"] * ia)
     il = ia - ish
     v = np.where(p["short"], ish * p["rf"] - il * p["rbr"], ish * p["rf"])
     return v, il
 
 
-def _trace_self_excited(circ, i, xg, ig, ng, lg, samples=48):
-    """Walk the curve N(x) = L(Ia) of candidate ``i`` from Ia = 0.
+def _field_reversal(circ, idx):
+    """Where a differential candidate's windings' field passes through zero on its curve.
 
-    Returns a list of segments ``(lam_a, lam_b, n_lo, n_hi, l_lo, l_hi)`` and
-    a note when the walk ended early.
+    There ``x_w = 0``, so ``x = 0`` and ``s E_r = B(Ia)`` with
+    ``f B(Ia) = f (Ia Rl + Vb(Ia)) - rf c Ia`` (``f`` the short-shunt factor), rising in ``Ia`` when ``c < 0``: one
+    root. Returns ``Ia`` [A] (NaN where the field does not reverse within the
+    searched span) and ``F_ar/N_sh`` there.
+    """
+    ia = np.full(idx.size, np.nan)
+    diff = idx[circ.c[idx] < 0]
+    if circ.occ.residual_v > 0 and diff.size:
+        p = candidate_params(circ, diff)
+        a0 = p["s"] * circ.occ.residual_v
+        b = lambda x: _l_fun(circ, p, x, 1.0) - p["rf"] * circ.ar.mmf(x) / circ.nsh - _short_factor(p) * a0
+        lo, hi = np.zeros(diff.size), np.full(diff.size, circ.imax)
+        root = refine_bracketed_roots(b, lo, hi, b(lo), 60)
+        ia[circ.c[idx] < 0] = np.where(b(hi) > 0, root, np.nan)
+    return ia, np.where(np.isfinite(ia), circ.ar.mmf(np.nan_to_num(ia)) / circ.nsh, np.nan)
+
+
+def _start_cell(grid, vals, at, direction):
+    """Grid cell holding ``at`` on the side the walk moves to (``direction`` +1 up, -1 down)."""
+    k = np.searchsorted(grid, at, side="right" if direction > 0 else "left") - 1
+    return int(np.clip(k, 0, grid.size - 2))
+
+
+def _walk(circ, i, xg, ig, ng, lg, sign, lam, n_cell, l_cell, dl, stop_at=None, samples=48):
+    """Walk ``N(u) = L(Ia)`` of one side from ``lam`` in cells ``n_cell``, ``l_cell``, Ia moving ``dl``.
+
+    ``stop_at = (ia, u, lam)``: a point of the curve where the walk must end
+    (the windings' field passes zero there). Returns the segments
+    ``(lam_a, lam_b, n_lo, n_hi, l_lo, l_hi, sign)``, a note, and the Ia
+    direction when the walk reached ``stop_at`` (else None).
     """
     sn, sl = _runs(ng), _runs(lg)
     run_n, run_l = _RunTable(sn), _RunTable(sl)
-    # stable no-load root: highest x where N crosses zero downward
-    down = (ng[:-1] >= 0) & (ng[1:] < 0)
-    cells = np.flatnonzero(down & (xg[:-1] >= -1e-12))
-    if cells.size == 0 and circ.short[i] and circ.c[i] >= 1:
-        # N falls steadily: its one root (Ia = 0, the series winding opposing) lies at x <= 0
-        cells = np.flatnonzero(down)
-    if cells.size == 0:
-        return [], "no built-up no-load point on the searched span"
-    cn = int(cells[-1])
-    n_lo, n_hi = run_n(cn)
-    l_lo, l_hi = run_l(0)
-    dl = 1
-    lam = float(lg[0])
+    n_lo, n_hi = run_n(n_cell)
+    l_lo, l_hi = run_l(l_cell)
     dlam = int(sl[l_lo]) * dl
     dn = dlam * int(sn[n_lo])
     segs = []
     note = ""
+    p1 = candidate_params(circ, np.array([i]))
     for _ in range(60):
         e_l = l_hi + 1 if dl > 0 else l_lo
         e_n = n_hi + 1 if dn > 0 else n_lo
         lam_l, lam_n = float(lg[e_l]), float(ng[e_n])
-        if abs(lam_l - lam) <= abs(lam_n - lam):
-            segs.append((lam, lam_l, n_lo, n_hi, l_lo, l_hi))
-            lam = lam_l
+        seg_l = abs(lam_l - lam) <= abs(lam_n - lam)
+        lam_end = lam_l if seg_l else lam_n
+        reached = False
+        if stop_at is not None:
+            ia_s, u_s, lam_s = stop_at
+            tl = 1e-9 * max(1.0, abs(lam), abs(lam_end))
+            tu = 1e-9 * max(1.0, abs(u_s))
+            reached = (min(lam, lam_end) - tl <= lam_s <= max(lam, lam_end) + tl
+                       and xg[n_lo] - tu <= u_s <= xg[n_hi + 1] + tu
+                       and ig[l_lo] - 1e-9 * max(1.0, ia_s) <= ia_s <= ig[l_hi + 1] + 1e-9 * max(1.0, ia_s))
+            if reached:
+                lam_end = lam_s
+        segs.append((lam, lam_end, n_lo, n_hi, l_lo, l_hi, sign))
+        # stop once the polyline has reached zero voltage
+        lam_p = np.linspace(segs[-1][0], segs[-1][1], samples)
+        x_a, ia_a = _invert_approx(xg, ng, ig, lg, segs[-1], lam_p)
+        v_a, _ = _state_from_x_ia(circ, p1, x_a, ia_a, sign)
+        if np.any(v_a <= 0):
+            break
+        if reached:
+            return segs, "", dl
+        lam = lam_end
+        if seg_l:
             nxt = e_l if dl > 0 else e_l - 1
             if nxt < 0 or nxt >= sl.size:
                 if dl > 0:
@@ -807,25 +936,69 @@ def _trace_self_excited(circ, i, xg, ig, ng, lg, samples=48):
             l_lo, l_hi = run_l(nxt)
             dlam, dn = -dlam, -dn
         else:
-            segs.append((lam, lam_n, n_lo, n_hi, l_lo, l_hi))
-            lam = lam_n
             nxt = e_n if dn > 0 else e_n - 1
             if nxt < 0 or nxt >= sn.size:
                 note = "the curve reaches the searched field span"
                 break
             n_lo, n_hi = run_n(nxt)
             dlam, dl = -dlam, -dl
-        # stop once the polyline has reached zero voltage
-        lam_s = np.linspace(segs[-1][0], segs[-1][1], samples)
-        x_a, ia_a = _invert_approx(xg, ng, ig, lg, segs[-1], lam_s)
-        v_a, _ = _state_from_x_ia(circ, _params(circ, np.array([i])), x_a, ia_a)
-        if np.any(v_a <= 0):
-            break
-    return segs, note
+    return segs, note, None
+
+
+def _trace_self_excited(circ, i, xg, ig, fns, reversal=(np.nan, np.nan), samples=48):
+    """Walk the curve ``N(u) = L(Ia)`` of candidate ``i`` from Ia = 0.
+
+    ``fns[sign] = (N on xg, L on ig)`` for either side of the windings'
+    field; the walk starts on the positive side at the built-up no-load
+    point and, where the field passes zero (``reversal = (Ia, F_ar/N_sh)``,
+    differential connections), goes on along the negative side. Returns a
+    list of segments ``(lam_a, lam_b, n_lo, n_hi, l_lo, l_hi, sign)`` and a
+    note when the walk ended early.
+    """
+    ng, lg = fns[1]
+    if ng[-1] > 0:
+        return [], CURVE_RUNAWAY_NOTE
+    # stable no-load root: highest x where N crosses zero downward
+    down = (ng[:-1] >= 0) & (ng[1:] < 0)
+    cells = np.flatnonzero(down & (xg[:-1] >= -1e-12))
+    if cells.size == 0 and circ.short[i] and circ.c[i] >= 1:
+        # N falls steadily: its one root (Ia = 0, the series winding opposing) lies at x <= 0
+        cells = np.flatnonzero(down)
+    if cells.size == 0:
+        return [], "no built-up no-load point on the searched span"
+    ia_r, far_r = reversal
+    stop_at = None
+    if np.isfinite(ia_r):
+        p1 = candidate_params(circ, np.array([i]))
+        stop_at = (float(ia_r), -float(far_r), float(_l_fun(circ, p1, np.array([ia_r]), 1.0)[0]))
+    segs, note, dl = _walk(circ, i, xg, ig, ng, lg, 1.0, float(lg[0]), int(cells[-1]), 0, 1, stop_at, samples)
+    if dl is None:
+        return segs, note
+    # the field has passed zero: on along the negative side from the same point. Through the zone
+    # where armature reaction holds the net field at zero, x_w = (s E_r - B(Ia)) / g falls only as Ia
+    # rises, so Ia goes on rising; with no such zone (no reaction) the curve turns a corner there and
+    # goes on into negative field, u = x_w + F_ar/N_sh falling, Ia whichever way that needs.
+    ngm, lgm = fns[-1]
+    lam = float(_l_fun(circ, p1, np.array([ia_r]), -1.0)[0])
+    sn, sl = _runs(ngm), _runs(lgm)
+    if p1["rf"][0] * far_r > 1e-12 * max(1.0, abs(lam)):
+        dl = 1
+        l_cell = _start_cell(ig, lgm, ia_r, dl)
+        dlam = int(sl[l_cell]) * dl
+        n_cell = _start_cell(xg, ngm, far_r, 1)
+        if dlam * int(sn[n_cell]) < 0:
+            n_cell = _start_cell(xg, ngm, far_r, -1)
+    else:
+        n_cell = _start_cell(xg, ngm, far_r, -1)
+        dlam = -int(sn[n_cell])
+        dl = dlam * int(sl[_start_cell(ig, lgm, ia_r, 1)]) or 1
+        l_cell = _start_cell(ig, lgm, ia_r, dl)
+    more, note, _ = _walk(circ, i, xg, ig, ngm, lgm, -1.0, lam, n_cell, l_cell, dl, None, samples)
+    return segs + more, note
 
 
 def _invert_approx(xg, ng, ig, lg, seg, lam):
-    lam_a, lam_b, n_lo, n_hi, l_lo, l_hi = seg
+    n_lo, n_hi, l_lo, l_hi = seg[2:6]
     xs, ns = xg[n_lo:n_hi + 2], ng[n_lo:n_hi + 2]
     is_, ls = ig[l_lo:l_hi + 2], lg[l_lo:l_hi + 2]
     if ns[-1] < ns[0]:
@@ -874,16 +1047,16 @@ def characteristics_of(circ, points=400):
     exp = np.flatnonzero(circ.kind != 1)
     if exp.size:
         ia_dense = np.linspace(0, circ.imax, 2001)[None, :]
-        pe = _params(circ, exp[:, None])
-        v_dense = _explicit_v(circ, pe, ia_dense)
+        pe = candidate_params(circ, exp[:, None])
+        v_dense = terminal_voltage_at_armature_current(circ, pe, ia_dense)
         below = v_dense <= 0
         first = np.where(below.any(axis=1), below.argmax(axis=1), ia_dense.shape[1] - 1)
         ia_end = ia_dense[0, first]
         # exact end: bisection between the bracketing dense points
         lo = ia_dense[0, np.maximum(first - 1, 0)]
         has_zero = below.any(axis=1) & (first > 0)
-        f = lambda ia: _explicit_v(circ, _params(circ, exp), ia)
-        ia_zero = _bisect(f, lo, ia_end, f(lo))
+        f = lambda ia: terminal_voltage_at_armature_current(circ, candidate_params(circ, exp), ia)
+        ia_zero = refine_bracketed_roots(f, lo, ia_end, f(lo))
         ia_end = np.where(has_zero, ia_zero, np.where(below.any(axis=1), 0.0, circ.imax))
         frac = np.linspace(0, 1, points)[None, :]
         ia = ia_end[:, None] * frac
@@ -891,14 +1064,27 @@ def characteristics_of(circ, points=400):
     # --- self-excited: walk N(x) = L(Ia) --------------------------------
     slf = np.flatnonzero(circ.kind == 1)
     seg_note = {}
+    at_zero = set()  # self-excited curves traced down to zero volts
     if slf.size:
         xg, ig = _grids(circ)
-        ps = _params(circ, slf[:, None])
-        ng = _n_fun(circ, ps, xg[None, :])
-        lg = _l_fun(circ, ps, ig[None, :])
-        pick_cand, pick_lam, pick_xa, pick_xb, pick_ia, pick_ib = [], [], [], [], [], []
+        ps = candidate_params(circ, slf[:, None])
+        ngp = _n_fun(circ, ps, xg[None, :], 1.0)
+        if np.any(ngp[:, -1] > 0):
+            # a no-load point beyond the grid: look as far out as the load-line solver before calling it a runaway
+            xg = np.concatenate([xg, xg[-1] * np.geomspace(1.0, 2.0 ** SPAN_DOUBLINGS, 257)[1:]])
+            ngp = _n_fun(circ, ps, xg[None, :], 1.0)
+        lgp = _l_fun(circ, ps, ig[None, :], 1.0)
+        ia_rev, far_rev = _field_reversal(circ, slf)
+        rev = np.isfinite(ia_rev)
+        ngm = np.zeros_like(ngp); lgm = np.zeros_like(lgp)
+        if rev.any():
+            pr = candidate_params(circ, slf[rev][:, None])
+            ngm[rev] = _n_fun(circ, pr, xg[None, :], -1.0)
+            lgm[rev] = _l_fun(circ, pr, ig[None, :], -1.0)
+        pick_cand, pick_lam, pick_xa, pick_xb, pick_ia, pick_ib, pick_sign = [], [], [], [], [], [], []
         for r, i in enumerate(slf):
-            segs, note = _trace_self_excited(circ, i, xg, ig, ng[r], lg[r])
+            fns = {1.0: (ngp[r], lgp[r]), -1.0: (ngm[r], lgm[r])}
+            segs, note = _trace_self_excited(circ, i, xg, ig, fns, (ia_rev[r], far_rev[r]))
             if not segs:
                 seg_note[i] = note
                 continue
@@ -907,18 +1093,25 @@ def characteristics_of(circ, points=400):
                 lam = np.linspace(seg[0], seg[1], 48)
                 lam_all.append(lam); seg_id.append(np.full(lam.size, sid))
             lam_all = np.concatenate(lam_all); seg_id = np.concatenate(seg_id)
+            seg_sign = np.array([seg[6] for seg in segs])
             xa = np.empty_like(lam_all); iaa = np.empty_like(lam_all)
             for sid, seg in enumerate(segs):
                 msk = seg_id == sid
-                xa[msk], iaa[msk] = _invert_approx(xg, ng[r], ig, lg[r], seg, lam_all[msk])
-            pi = _params(circ, np.full(lam_all.size, i))
-            va, ila = _state_from_x_ia(circ, pi, xa, iaa)
+                xa[msk], iaa[msk] = _invert_approx(xg, fns[seg[6]][0], ig, fns[seg[6]][1], seg, lam_all[msk])
+            pi = candidate_params(circ, np.full(lam_all.size, i))
+            va, ila = _state_from_x_ia(circ, pi, xa, iaa, seg_sign[seg_id])
             # from the first non-negative load current to the first zero voltage
             start = int(np.argmax(ila >= 0)) if np.any(ila >= 0) else 0
             neg = np.flatnonzero(va[start:] <= 0)
             stop = start + int(neg[0]) if neg.size else lam_all.size - 1
             sl = slice(max(start - 1, 0), stop + 1)
-            va_s, il_s, lam_s, sid_s = va[sl], ila[sl], lam_all[sl], seg_id[sl]
+            va_s, il_s, lam_s, sid_s = va[sl].copy(), ila[sl].copy(), lam_all[sl].copy(), seg_id[sl]
+            if neg.size and va_s.size >= 2 and va_s[-2] > 0 and sid_s[-1] == sid_s[-2]:
+                # end the samples where the polyline reaches zero volts, not past it
+                w0 = va_s[-2] / (va_s[-2] - va_s[-1])
+                lam_s[-1] = lam_s[-2] + w0 * (lam_s[-1] - lam_s[-2])
+                il_s[-1] = il_s[-2] + w0 * (il_s[-1] - il_s[-2])
+                va_s[-1] = 0.0
             # arclength in per-unit terms
             dv = np.diff(va_s) / circ.machine.rated_voltage_v
             di = np.diff(il_s) / circ.machine.rated_armature_current_a
@@ -933,37 +1126,47 @@ def characteristics_of(circ, points=400):
             sid_t = sid_s[j]
             for sid in np.unique(sid_t):
                 seg = segs[sid]
+                ng_s, lg_s = fns[seg[6]]
                 msk = sid_t == sid
-                xa_, xb_ = _cells(xg, ng[r], seg[2], seg[3], lam_t[msk])
-                ia_, ib_ = _cells(ig, lg[r], seg[4], seg[5], lam_t[msk])
+                xa_, xb_ = _cells(xg, ng_s, seg[2], seg[3], lam_t[msk])
+                ia_, ib_ = _cells(ig, lg_s, seg[4], seg[5], lam_t[msk])
                 pick_cand.append(np.full(msk.sum(), i)); pick_lam.append(lam_t[msk])
                 pick_xa.append(xa_); pick_xb.append(xb_); pick_ia.append(ia_); pick_ib.append(ib_)
+                pick_sign.append(np.full(msk.sum(), seg[6]))
             seg_note[i] = note
+            if neg.size:
+                at_zero.add(int(i))
         if pick_cand:
             cand = np.concatenate(pick_cand); lam = np.concatenate(pick_lam)
-            pc = _params(circ, cand)
+            sg = np.concatenate(pick_sign)
+            pc = candidate_params(circ, cand)
             xa, xb = np.concatenate(pick_xa), np.concatenate(pick_xb)
             ia_a, ia_b = np.concatenate(pick_ia), np.concatenate(pick_ib)
-            fx = lambda xx: _n_fun(circ, pc, xx) - lam
-            x = _bisect(fx, xa, xb, fx(xa), 30)
-            fi = lambda ii: _l_fun(circ, pc, ii) - lam
-            ia_s = _bisect(fi, ia_a, ia_b, fi(ia_a), 30)
-            v_s, il_s = _state_from_x_ia(circ, pc, x, ia_s)
+            fx = lambda xx: _n_fun(circ, pc, xx, sg) - lam
+            x = refine_bracketed_roots(fx, xa, xb, fx(xa), 30)
+            fi = lambda ii: _l_fun(circ, pc, ii, sg) - lam
+            ia_s = refine_bracketed_roots(fi, ia_a, ia_b, fi(ia_a), 30)
+            v_s, il_s = _state_from_x_ia(circ, pc, x, ia_s, sg)
     # --- assemble ---------------------------------------------------------
     states, notes = [None] * n, [""] * n
     for i in range(n):
         if circ.kind[i] != 1:
             r = int(np.flatnonzero(curves_exp[0] == i)[0])
             ia_i = curves_exp[1][r]
-            pi = _params(circ, np.full(ia_i.size, i))
+            pi = candidate_params(circ, np.full(ia_i.size, i))
             states[i] = _explicit_state(circ, pi, ia_i)
             notes[i] = "" if curves_exp[2][r] else "terminal voltage stays above zero up to the searched span"
         else:
             msk = cand == i if slf.size and pick_cand else np.zeros(0, bool)
             notes[i] = seg_note.get(i, "")
             if np.any(msk):
-                pi = _params(circ, np.full(int(msk.sum()), i))
-                states[i] = machine_state(circ, pi, v_s[msk], il_s[msk])
+                vi, ili = v_s[msk], il_s[msk]
+                # the curve ends at zero volts (made exact by _finish): nothing past it
+                below = np.flatnonzero(vi < 0)
+                if below.size:
+                    vi, ili = vi[:below[0] + 1], ili[:below[0] + 1]
+                pi = candidate_params(circ, np.full(vi.size, i))
+                states[i] = machine_state(circ, pi, vi, ili)
     ops = _refine_batch(circ, states)
     folds = _refine_folds(circ, states)
     result = []
@@ -973,8 +1176,59 @@ def characteristics_of(circ, points=400):
             result.append(Characteristic(st, {k: np.zeros(0) for k in POINT_KEYS + ("extrapolated",)},
                                          None, None, None, None, False, False, notes[i], [notes[i]] if notes[i] else []))
             continue
-        result.append(_finish(circ, i, st, states[i], notes[i], ops[i], folds.get(i)))
+        result.append(_finish(circ, i, st, states[i], notes[i], ops[i], folds.get(i), i in at_zero))
     return result
+
+
+def _fold_kinks(circ, i, st, j, grid=257):
+    """Exact curve points near sample ``j`` where the load current may turn back at a corner.
+
+    The load current along a curve is smooth except where the net field
+    crosses a knot of a linear open-circuit curve (or zero, where armature
+    reaction meets the windings' field), or the armature current crosses a
+    knot of the armature-reaction table or the brush-drop ramp. Returns
+    ``[(V, IL)]`` of such points between samples ``j - 1`` and ``j + 1``
+    (positive side of the windings' field only).
+    """
+    if circ.kind[i] != 1:
+        return []
+    sl = slice(j - 1, j + 2)
+    v_s, ia_s = st["terminal_voltage_v"][sl], st["armature_current_a"][sl]
+    xw = st["shunt_field_current_a"][sl] + circ.c[i] * st["series_branch_current_a"][sl]
+    if np.any(xw < 0):
+        return []
+    u_s = xw - circ.ar.mmf(ia_s) / circ.nsh
+    vlo, vhi = float(v_s.min()), float(v_s.max())
+    p1 = candidate_params(circ, np.array([i]))
+    occ = circ.occ
+    u_knots = occ.field_current_a if occ.interpolation == "linear" else np.zeros(1)
+    u_knots = u_knots[(u_knots >= u_s.min()) & (u_knots <= u_s.max())]
+    ia_knots = np.concatenate([circ.ar.knots(), [circ.ir]])
+    ia_knots = ia_knots[(ia_knots >= ia_s.min()) & (ia_knots <= ia_s.max())]
+    out = []
+
+    def roots(fun, lo, hi):
+        t = np.linspace(lo, hi, grid)
+        f = fun(t)
+        k = np.flatnonzero((np.signbit(f[:-1]) != np.signbit(f[1:])) | (f[:-1] == 0))
+        if not k.size:
+            return np.zeros(0)
+        return refine_bracketed_roots(fun, t[k], t[k + 1], f[k], 80)
+
+    for uk in u_knots:
+        lam = float(_n_fun(circ, p1, np.array([uk]))[0])
+        for ia in roots(lambda a: _l_fun(circ, p1, a) - lam, 0.0, circ.imax):
+            out.append((uk, ia))
+    for ik in ia_knots:
+        lam = float(_l_fun(circ, p1, np.array([ik]))[0])
+        for u in roots(lambda uu: _n_fun(circ, p1, uu) - lam, float(u_s.min()), float(u_s.max())):
+            out.append((u, ik))
+    pts = []
+    for u, ia in out:
+        v, il = _state_from_x_ia(circ, p1, np.array([u]), np.array([ia]))
+        if vlo <= v[0] <= vhi:
+            pts.append((float(v[0]), float(il[0])))
+    return pts
 
 
 def _refine_folds(circ, states, iterations=2):
@@ -982,10 +1236,14 @@ def _refine_folds(circ, states, iterations=2):
 
     Near the fold the load current is a smooth function of terminal voltage;
     three exact points at fixed voltage give a parabola whose vertex is the
-    next estimate, with the spacing cut eightfold each round.
+    next estimate, with the spacing cut eightfold each round. Where the
+    curve has a corner there (a knot of a linear curve, see
+    :func:`_fold_kinks`) the corner is solved exactly and no parabola is
+    fitted across it: the maximum is then exact whatever the sampling.
     """
     cand, vg, ig, dv = [], [], [], []
     fine = {}
+    kinks = {}
     for i, st in enumerate(states):
         if st is None:
             continue
@@ -994,15 +1252,23 @@ def _refine_folds(circ, states, iterations=2):
             continue
         j = int(np.argmax(il))
         if 0 < j < il.size - 1:
-            # vertex of the parabola IL(V) through the three exact samples (unevenly spaced)
             vv, yy = v[j - 1:j + 2], il[j - 1:j + 2]
+            spacing = np.ptp(vv)
+            kk = _fold_kinks(circ, i, st, j)
+            if kk:
+                # start from the best exact point, corners included
+                kinks[i] = np.array([k[0] for k in kk])
+                best = max([(float(a), float(b)) for a, b in zip(vv, yy)] + kk, key=lambda q: q[1])
+                cand.append(i); vg.append(best[0]); ig.append(best[1])
+                dv.append(max(spacing / 8, 1e-6))
+                continue
+            # vertex of the parabola IL(V) through the three exact samples (unevenly spaced)
             with np.errstate(all="ignore"):
                 a2, a1, _ = np.polyfit(vv - vv[1], yy, 2) if np.ptp(vv) > 0 else (0.0, 0.0, 0.0)
             v0 = vv[1] - a1 / (2 * a2) if a2 < 0 else vv[1]
             peak = yy[1] - a1 ** 2 / (4 * a2) if a2 < 0 else yy[1]
             if not (min(vv) <= v0 <= max(vv)) or not yy[1] <= peak <= yy[1] + np.ptp(yy):
                 v0, peak = vv[1], yy[1]
-            spacing = np.ptp(vv)
             if spacing <= FOLD_FINE_SPACING * circ.machine.rated_voltage_v:
                 fine[i] = float(peak)  # dense samples: the parabola is already exact to O(h^3)
                 continue
@@ -1029,9 +1295,11 @@ def _refine_folds(circ, states, iterations=2):
             den = y[:, 0] - 2 * y[:, 1] + y[:, 2]
             shift = 0.5 * d * (y[:, 0] - y[:, 2]) / den
             peak = y[:, 1] - 0.125 * (y[:, 2] - y[:, 0]) ** 2 / den
-        # a parabola only where the curve is smooth there: vertex inside, modest rise
+        # a parabola only where the curve is smooth there: vertex inside, modest rise, no corner
         rise = np.abs(y[:, 1] - np.fmin(y[:, 0], y[:, 2]))
-        smooth = ok & (den < 0) & (np.abs(shift) <= d) & (peak <= ymax + rise)
+        corner = np.array([bool(np.any(np.abs(kinks[c] - v_c) < d_c)) if c in kinks else False
+                           for c, v_c, d_c in zip(cand, vs, d)], bool)
+        smooth = ok & (den < 0) & (np.abs(shift) <= d) & (peak <= ymax + rise) & ~corner
         vs = np.where(smooth, vs + np.where(smooth, shift, 0.0), vs + (jmax - 1) * d)
         il_best = np.where(smooth, np.fmax(peak, ymax), np.where(np.isfinite(ymax), np.fmax(ymax, il_best), il_best))
         d = d / 8
@@ -1040,22 +1308,26 @@ def _refine_folds(circ, states, iterations=2):
 
 
 def _refine_batch(circ, states):
-    """Exact no-load, short-circuit and rated-current points near each curve's samples."""
+    """Exact no-load, short-circuit and full-load points near each curve's samples.
+
+    Full load: the rated current in the armature (the load current is less
+    by the shunt-field current of a self-excited connection).
+    """
     m = circ.machine
     rated = m.rated_armature_current_a
     idx, loads, w0, w1, who = [], [], [], [], []
-    vtop = _voltage_span(circ, np.arange(circ.n))
+    vtop = voltage_span(circ, np.arange(circ.n))
     for i, st in enumerate(states):
         if st is None:
             continue
         v, il = st["terminal_voltage_v"], st["load_current_a"]
         guesses = [(Load.constant_current(0.0), (v[0] / vtop[i] + 1) / 2, 0.015)]
         guesses.append((Load(0.0, 0.0, None, "short circuit"), (il[-1] / circ.imax + 1) / 2, 0.02))
-        cross = np.flatnonzero(il >= rated)
+        cross = np.flatnonzero(st["armature_current_a"] >= rated)
         if cross.size:
-            guesses.append((Load.constant_current(rated), (v[cross[0]] / vtop[i] + 1) / 2, 0.015))
+            guesses.append((Load.armature_current(rated), (v[cross[0]] / vtop[i] + 1) / 2, 0.015))
         else:
-            guesses.append((Load.constant_current(rated), None, None))
+            guesses.append((Load.armature_current(rated), None, None))
         for k, (ld, g, half) in enumerate(guesses):
             idx.append(i); loads.append(ld); who.append((i, k))
             if g is None:
@@ -1067,9 +1339,9 @@ def _refine_batch(circ, states):
         return out
     res = solve_operating_points(circ, loads, np.array(idx), grid=129, window=(np.array(w0), np.array(w1)), steps=28)
     retry = []
-    for (i, k), r, ld in zip(who, res, loads):
+    for (i, k), r, ld, a, b in zip(who, res, loads, w0, w1):
         out[i][k] = r
-        if not r.points and k != 2:
+        if not r.points and (a > 0.0 or b < 1.0):
             retry.append((i, k, ld))
     if retry:
         res2 = solve_operating_points(circ, [r[2] for r in retry], np.array([r[0] for r in retry]))
@@ -1078,18 +1350,20 @@ def _refine_batch(circ, states):
     return out
 
 
-def _explicit_v(circ, p, ia):
-    x = p["x0"] * (p["kind"] == 0) + p["c"] * ia - circ.ar.mmf(ia) / circ.nsh
+def terminal_voltage_at_armature_current(circ, p, ia):
+    """Terminal voltage [V] at armature current ``ia`` [A] of a connection whose field does not
+    depend on the terminal voltage (separate excitation, series)."""
+    x = field_after_armature_reaction(p["x0"] * (p["kind"] == 0) + p["c"] * ia, circ.ar.mmf(ia) / circ.nsh)
     rl = p["ra"] + np.where(p["branch"] > 0, p["rbr"], 0.0)
     return p["s"] * circ.occ.emf(x) - ia * rl - brush_drop(ia, circ.vb, circ.ir)
 
 
 def _explicit_state(circ, p, ia):
-    v = _explicit_v(circ, p, ia)
+    v = terminal_voltage_at_armature_current(circ, p, ia)
     return machine_state(circ, p, v, ia)
 
 
-def _finish(circ, i, st, state, note, ops, fold=None):
+def _finish(circ, i, st, state, note, ops, fold=None, at_zero=False):
     v = state["terminal_voltage_v"]; il = state["load_current_a"]
     # the first point is the exact no-load state
     pts = {k: np.asarray(state[k], float).copy() for k in POINT_KEYS}
@@ -1102,7 +1376,7 @@ def _finish(circ, i, st, state, note, ops, fold=None):
         for k in POINT_KEYS:
             pts[k][0] = nl[k]
         pts["extrapolated"][0] = nl["extrapolated"]
-    ended_at_zero = v.size > 1 and v[-1] <= 1e-6 * max(1.0, abs(v[0]))
+    ended_at_zero = v.size > 1 and (at_zero or v[-1] <= 1e-6 * max(1.0, abs(v[0])))
     sc = None
     if v.size > 1 and (np.any(v <= 0) or ended_at_zero or (circ.kind[i] != 1 and "stays above" not in note)):
         cand = _nearest(ops[1].points, 0.0, il[-1])
@@ -1125,10 +1399,15 @@ def _finish(circ, i, st, state, note, ops, fold=None):
     vnl = nl["terminal_voltage_v"] if nl is not None else None
     reg = None
     if vnl is not None:
-        # the rated-current point reached along the curve from no load
-        cross = np.flatnonzero(ilp >= m.rated_armature_current_a)
+        # full load: the first point along the curve from no load where the armature carries its rated current
+        cross = np.flatnonzero(pts["armature_current_a"] >= m.rated_armature_current_a)
         if cross.size:
-            vr = _nearest(ops[2].points, pts["terminal_voltage_v"][cross[0]], m.rated_armature_current_a)
+            c0 = int(cross[0])
+            # the point between the samples that bracket the crossing, else the nearest one
+            vv = pts["terminal_voltage_v"][max(c0 - 1, 0):c0 + 1]
+            tol = 1e-9 * max(1.0, abs(float(vv.max())))
+            between = [q for q in ops[2].points if vv.min() - tol <= q["terminal_voltage_v"] <= vv.max() + tol]
+            vr = _nearest(between or ops[2].points, pts["terminal_voltage_v"][c0], ilp[c0])
             if vr is not None and vr["terminal_voltage_v"] > 0:
                 reg = 100.0 * (vnl - vr["terminal_voltage_v"]) / vr["terminal_voltage_v"]
     conv = all(o.converged for o in ops)
@@ -1149,7 +1428,12 @@ def _nearest(points, v, il):
 
 @dataclass
 class SelfExcitation:
-    """Build-up of the shunt field at no load (design note definitions)."""
+    """Build-up of the shunt field at no load (design note definitions).
+
+    ``reasons`` say why it does not build up from residual; ``runaway`` (with
+    ``notes``) that it builds up past the measured curve, so its no-load
+    voltage is unknown (``None``).
+    """
 
     setting: Setting
     field_circuit_resistance_ohm: float
@@ -1161,6 +1445,8 @@ class SelfExcitation:
     reasons: list
     no_load_points: list
     converged: bool = True
+    runaway: bool = False
+    notes: list = field(default_factory=list)
 
     @property
     def extrapolated(self):
@@ -1208,12 +1494,14 @@ def self_excitation(machine, rheostat_ohm=None, speed_rpm=None, winding_temperat
     # the residual magnetism sets the polarity: a build-up rises from zero, never into reverse
     pts = [p for p in ops.points if p["terminal_voltage_v"] >= 0]
     stable = [p for p in pts if p["stable"]]
-    vnl = stable[0]["terminal_voltage_v"] if stable else None
-    reasons = []
+    # running away, the machine holds no point we can name: its no-load voltage is unknown
+    vnl = stable[0]["terminal_voltage_v"] if stable and not ops.runaway else None
+    reasons, notes = [], []
     er = circ.occ.residual_v
-    if not ops.converged and ops.message == RUNAWAY_MESSAGE:
-        reasons.append("the field line never meets the open-circuit curve again: the voltage would run away past the "
-                       "last measured point, so no no-load voltage can be given; measure the curve further or add field resistance")
+    if ops.runaway:
+        notes.append("the field line never meets the open-circuit curve again: the voltage runs away past the "
+                     "last measured point, so no no-load voltage can be given; measure the curve further or add "
+                     "field resistance")
     if er <= 0:
         reasons.append("no residual voltage: the field must be flashed from a separate supply before it can build up")
     if rf >= rcrit:
@@ -1224,7 +1512,7 @@ def self_excitation(machine, rheostat_ohm=None, speed_rpm=None, winding_temperat
     stall = None
     if stable and er > 0:
         low = stable[-1]
-        if vnl is not None and low["terminal_voltage_v"] < vnl - 1e-6 * max(1.0, vnl):
+        if ops.runaway or (vnl is not None and low["terminal_voltage_v"] < vnl - 1e-6 * max(1.0, vnl)):
             stall = low["terminal_voltage_v"]
             above = [p for p in pts if p["terminal_voltage_v"] > stall and not p["stable"]]
             i1 = low["shunt_field_current_a"]
@@ -1239,7 +1527,8 @@ def self_excitation(machine, rheostat_ohm=None, speed_rpm=None, winding_temperat
     builds = not reasons
     if builds:
         stall = None
-    return SelfExcitation(st, rf, rcrit, ncrit, builds, vnl, stall, reasons, pts, ops.converged)
+    return SelfExcitation(st, rf, rcrit, ncrit, builds, vnl, stall, reasons, pts,
+                          ops.converged or ops.runaway, ops.runaway, notes)
 
 
 def series_critical_resistance_ohm(machine, series_turns=None, speed_rpm=None, winding_temperature_c=None):
@@ -1276,13 +1565,18 @@ def normal_points(circ, lo, hi, v_of=None, il_of=None, grid=97, steps=44, vi_of=
     -------
     dict of arrays
         The curve-point keys, ``x`` (equivalent field current), ``found``
-        (bool) and ``converged`` (bool); NaN where no stable point exists.
+        (bool), ``beyond`` (bool: the machine is still above the load at the
+        end of the range, so its highest stable point lies further out or it
+        runs away; with ``il_of`` the voltage range is first widened up to
+        ``2**SPAN_DOUBLINGS`` times), ``reversed`` (bool: generated EMF
+        below zero) and ``converged`` (bool); NaN where no stable point
+        exists or it lies beyond the range.
     """
     n = circ.n
     lo = np.broadcast_to(np.asarray(lo, float), (n,))
     hi = np.broadcast_to(np.asarray(hi, float), (n,))
-    p = _params(circ, np.arange(n)[:, None])
-    t = lo[:, None] + (hi - lo)[:, None] * np.linspace(0.0, 1.0, grid)[None, :]
+    p = candidate_params(circ, np.arange(n)[:, None])
+    lin = np.linspace(0.0, 1.0, grid)[None, :]
 
     def vi(tt):
         if vi_of is not None:
@@ -1291,14 +1585,25 @@ def normal_points(circ, lo, hi, v_of=None, il_of=None, grid=97, steps=44, vi_of=
             return v_of(tt), tt
         return tt, il_of(tt)
 
+    t = lo[:, None] + (hi - lo)[:, None] * lin
     v, il = vi(t)
     h = machine_state(circ, p, v, il)["h"]
+    # along the voltage: a machine still above the load at the top is looked for further out
+    for _ in range(SPAN_DOUBLINGS if il_of is not None else 0):
+        up = h[:, -1] > 0
+        if not up.any():
+            break
+        hi = np.where(up, lo + 2.0 * (hi - lo), hi)
+        t = lo[:, None] + (hi - lo)[:, None] * lin
+        v, il = vi(t)
+        h = machine_state(circ, p, v, il)["h"]
+    beyond = h[:, -1] > 0
     stable = (h[:, :-1] > 0) & (h[:, 1:] <= 0)
-    found = stable.any(axis=1)
+    found = stable.any(axis=1) & ~beyond
     j = grid - 2 - np.argmax(stable[:, ::-1], axis=1)
     rows = np.arange(n)
     a = t[rows, j]; b = t[rows, j + 1]
-    p1 = _params(circ, rows)
+    p1 = candidate_params(circ, rows)
 
     def v_i1(tt):
         if vi_of is not None:
@@ -1313,18 +1618,24 @@ def normal_points(circ, lo, hi, v_of=None, il_of=None, grid=97, steps=44, vi_of=
         return machine_state(circ, p1, vv, ii)["h"]
 
     # rows without a stable point get an empty bracket, so they do not hold up the refinement
-    root = _bisect(res, np.where(found, a, b), b, h[rows, j], steps)
+    root = refine_bracketed_roots(res, np.where(found, a, b), b, h[rows, j], steps)
     vv, ii = v_i1(root)
     st = machine_state(circ, p1, vv, ii)
     out = {k: np.where(found, st[k], np.nan) for k in POINT_KEYS + ("x",)}
     out["found"] = found
+    out["beyond"] = beyond
+    out["reversed"] = found & (st["generated_emf_v"] < 0)
     out["converged"] = ~found | (np.abs(st["h"]) <= 1e-6 * np.maximum(1.0, np.abs(vv)))
     return out
 
 
 def no_load_voltages(circ, grid=97):
-    """Terminal voltage at zero load current for every candidate [V] (NaN if none)."""
-    top = _voltage_span(circ, np.arange(circ.n))
+    """Terminal voltage at zero load current for every candidate [V].
+
+    NaN where there is none, or where the voltage runs away past the
+    searched span (the no-load voltage is then unknown, not small).
+    """
+    top = voltage_span(circ, np.arange(circ.n))
     r = normal_points(circ, np.zeros(circ.n), top, il_of=lambda t: np.zeros_like(t), grid=grid)
     return r["terminal_voltage_v"]
 

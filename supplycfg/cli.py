@@ -144,7 +144,12 @@ def _parser():
     profile_help = "load profile (TOML): the job, its drive speeds and winding temperatures"
     json_help = "print one JSON object instead of the readable text"
 
-    p = sub.add_parser("curve", help="external characteristic of one setting")
+    p = sub.add_parser("curve", help="external characteristic of one setting",
+                       description="External characteristic of one setting, from no load to zero volts. "
+                                   "regulation_percent = (V_no-load - V_full) / V_full, where full load is the "
+                                   "load current at which the armature carries its rated current (for a "
+                                   "self-excited connection that is less than the rated armature current by "
+                                   "the shunt-field current).")
     p.add_argument("machine", help=machine_help); _add_setting(p)
     p.add_argument("--points", type=_whole(2, MAX_CURVE_POINTS), default=40,
                    help=f"points along the curve (2 to {MAX_CURVE_POINTS}; default 40)")
@@ -263,7 +268,7 @@ def _checked(machine, setting):
 POINT_WORDS = {"load_current_a": "load current [A]", "terminal_voltage_v": "terminal voltage [V]",
                "armature_current_a": "armature current [A]", "shunt_field_current_a": "shunt field current [A]",
                "series_field_current_a": "series field current [A]", "generated_emf_v": "generated EMF [V]",
-               "stable": "stable", "extrapolated": "beyond the measured curve"}
+               "stable": "stable", "extrapolated": "beyond the measured curve", "state": "state"}
 
 
 def _critical_ratio(machine, st):
@@ -347,7 +352,8 @@ def cmd_curve(args, out):
         return res
     lines = [f"{_name(m, args)}: {st.connection}, {st.describe()}",
              f"no-load voltage {_fmt(c.no_load_voltage_v, 'V')}; short-circuit current {_fmt(c.short_circuit_current_a, 'A')}; "
-             f"largest load current {_fmt(c.max_load_current_a, 'A')}; regulation at rated current {_fmt(c.regulation_percent, '%', '.3g')}",
+             f"largest load current {_fmt(c.max_load_current_a, 'A')}; regulation to full load (rated armature current) "
+             f"{_fmt(c.regulation_percent, '%', '.3g')}",
              ""]
     rows = c.point_list()
     lines.append(table(rows, ["load_current_a", "terminal_voltage_v", "armature_current_a", "shunt_field_current_a",
@@ -371,6 +377,7 @@ def _notes(notes, extrapolated, converged):
 
 
 def cmd_point(args, out):
+    from .cautions import operating_point_cautions
     from .circuit import Load, operating_points
     from .machine import load_machine
     given = {k: getattr(args, k) for k in ("load_ohm", "load_current_a", "battery_emf_v", "battery_ohm",
@@ -401,40 +408,53 @@ def cmd_point(args, out):
     m = load_machine(args.machine)
     st = _checked(m, _setting_from(args))
     ops = operating_points(m, st, load)
-    pts = [{k: v for k, v in p.items() if k != "residual_v"} for p in ops.points]
-    from .cautions import caution
+    normal = ops.normal
+    pts = []
+    for p in ops.points:
+        d = {k: v for k, v in p.items() if k != "residual_v"}
+        d["state"] = _point_state(p, p is normal)
+        pts.append(d)
     from .jobs import command_cautions
     f = _setting_figures(m, st)
-    at = ops.normal
-    if at is not None:
-        f["max_armature_current_a"] = abs(at["armature_current_a"])
-        f["min_generated_emf_v"] = at["generated_emf_v"]
-    cautions = command_cautions(m, st, f, load=kind)
-    if at is not None and kind == "battery" and at["load_current_a"] < 0:
-        cautions.append(caution("back-feed", "warn",
-                                f"The battery drives {-at['load_current_a']:.3g} A back into the machine (back-feeding): "
-                                "fit a reverse-current cut-out or blocking diode.",
-                                "common practice for DC charging sets (reverse-current relay)",
-                                load_current_a=at["load_current_a"]))
-    res = {"setting": st.as_dict(), "load": load.label, "operating_points": pts, "converged": ops.converged,
-           "cautions": [x.as_dict() for x in cautions]}
+    if normal is not None:
+        f["max_armature_current_a"] = abs(normal["armature_current_a"])
+        f["min_generated_emf_v"] = normal["generated_emf_v"]
+    cautions = command_cautions(m, st, f, load=kind) + operating_point_cautions(ops)
+    res = {"setting": st.as_dict(), "load": load.label, "operating_points": pts,
+           "sits_at": None if normal is None else ops.points.index(normal), "runaway": ops.runaway,
+           "message": ops.message, "cautions": [c.as_dict() for c in cautions], "converged": ops.converged}
     if args.json:
         return res
     lines = [f"{_name(m, args)}: {st.connection}, {st.describe()}; load: {load.label}", ""]
     if pts:
         lines.append(table(pts, ["terminal_voltage_v", "load_current_a", "armature_current_a", "shunt_field_current_a",
-                                 "series_field_current_a", "generated_emf_v", "stable", "extrapolated"], names=POINT_WORDS))
+                                 "series_field_current_a", "generated_emf_v", "extrapolated", "state"], names=POINT_WORDS))
         lines.append("")
-        lines.append("The machine sits at the highest stable point; unstable points are listed, not used.")
-        if kind != "battery" and any(p["load_current_a"] < 0 for p in pts):
-            lines.append("caution: a negative load current means the load drives the machine (back-feeding); "
-                         "fit a reverse-current cut-out or blocking diode.")
+    if normal is not None:
+        lines.append("The machine sits at the highest stable point of normal polarity; the others are listed, not used.")
+    elif ops.runaway:
+        lines.append(f"no operating point the machine sits at: {ops.message}")
+    elif pts:
+        lines.append("no stable operating point of normal polarity on this load")
     else:
         lines.append("no operating point: the characteristic does not meet this load")
-    if not ops.converged:
+    for c in sorted(cautions, key=lambda c: ["stop", "warn", "note"].index(c.severity)):
+        lines.append(f"[{c.severity}] {c.message} (basis: {c.basis})")
+    if not ops.converged and not ops.runaway:
         lines.append("warning: a point did not converge; " + ops.message)
     lines += _caution_lines(cautions)
     return "\n".join(lines)
+
+
+def _point_state(p, is_normal):
+    """One word or two for an operating point: which one the machine sits at, and why the others are not."""
+    if p["reversed"]:
+        return "reversed build-up"
+    if is_normal:
+        return "sits here, back-feeding" if p["back_feeding"] else "sits here"
+    if not p["stable"]:
+        return "unstable"
+    return "stable, back-feeding" if p["back_feeding"] else "stable, not reached"
 
 
 def cmd_buildup(args, out):
@@ -472,7 +492,8 @@ def cmd_buildup(args, out):
            "builds_up": se.builds_up if given else None,
            "no_load_voltage_v": se.no_load_voltage_v if given else None,
            "stall_voltage_v": se.stall_voltage_v if given else None,
-           "reasons": se.reasons if given else [], "extrapolated": se.extrapolated if given else None,
+           "reasons": se.reasons if given else [], "runaway": se.runaway if given else None,
+           "notes": se.notes if given else [], "extrapolated": se.extrapolated if given else None,
            "converged": se.converged, "cautions": [x.as_dict() for x in cautions]}
     if args.json:
         return res
@@ -485,14 +506,18 @@ def cmd_buildup(args, out):
     lines = [f"{_name(m, args)}: shunt field at no load, {se.setting.describe()}",
              f"field circuit {se.field_circuit_resistance_ohm:.4g} ohm; critical {se.critical_field_resistance_ohm:.4g} ohm at this speed; "
              f"critical speed {se.critical_speed_rpm:.5g} rpm",
-             f"builds up from residual: {'yes' if se.builds_up else 'no'}",
-             f"no-load voltage once built up (or flashed): {_fmt(se.no_load_voltage_v, 'V')}"]
+             f"builds up from residual: {'yes' if se.builds_up else 'no'}"
+             + (" (and runs away past the measured curve)" if se.runaway and se.builds_up else ""),
+             "no-load voltage once built up (or flashed): "
+             + ("unknown: the voltage runs away" if se.runaway else _fmt(se.no_load_voltage_v, 'V'))]
     if se.stall_voltage_v is not None:
         lines.append(f"a build-up from residual stops near {se.stall_voltage_v:.4g} V")
     if se.extrapolated:
         lines.append("note: the no-load point lies beyond the last measured point of the open-circuit curve (extrapolated)")
     for r in se.reasons:
         lines.append(f"- {r}")
+    for n in se.notes:
+        lines.append(f"note: {n}")
     lines += _caution_lines(cautions)
     return "\n".join(lines)
 

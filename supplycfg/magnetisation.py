@@ -158,9 +158,43 @@ class OpenCircuitCurve:
         return np.concatenate([-x[::-1], x[1:]])
 
 
+def field_after_armature_reaction(winding_field_a, reaction_field_a):
+    """Net equivalent field current [A] once armature reaction has weakened the windings' field.
+
+    ``x = x_w - sign(x_w) min(F_ar / N_sh, |x_w|)``: the demagnetising mmf
+    reduces the size of the windings' net mmf whichever way it points and
+    can at most bring it to zero, never reverse it (it acts through
+    saturation and cross-magnetisation, which shrink the flux, not turn it
+    over). Continuous through ``x_w = 0``.
+
+    Parameters
+    ----------
+    winding_field_a : array_like
+        Net mmf per pole of the windings ``x_w`` (shunt +- series) as an
+        equivalent shunt-field current [A].
+    reaction_field_a : array_like
+        Demagnetising mmf per pole ``F_ar(|Ia|) / N_sh`` [A], >= 0.
+
+    Returns
+    -------
+    ndarray
+        ``x`` [A], of the sign of ``x_w`` or zero.
+
+    References
+    ----------
+    Equivalent-field-current method (Chapman, DC generator chapter, from
+    memory); the rule for its sign is the project's design note.
+    """
+    xw = np.asarray(winding_field_a, float)
+    return np.sign(xw) * np.maximum(np.abs(xw) - np.asarray(reaction_field_a, float), 0.0)
+
+
 @dataclass(frozen=True)
 class ArmatureReaction:
     """Demagnetising mmf ``F_ar(|Ia|)`` [AT/pole]: linear or a table.
+
+    It weakens the windings' field and never reverses it: see
+    :func:`field_after_armature_reaction`.
 
     References
     ----------

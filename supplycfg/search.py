@@ -187,9 +187,15 @@ def _setting_for(space, i, u):
                                                 winding_temperature_c=space.nominal[1], **kw))
 
 
+#: What a limit whose figure the engine could not determine says (it counts as broken).
+UNDETERMINED = ("undetermined: the engine found no operating point for this figure within its span (the voltage "
+                "runs away past the measured curve, or the current would pass 10 x the rated armature current)")
+
+
 def _margin_entry(v, limit, kind, unit):
     if not math.isfinite(v):
-        return {"value": None, "limit": limit, "kind": kind, "unit": unit, "margin": None, "fraction": None}
+        return {"value": None, "limit": limit, "kind": kind, "unit": unit, "margin": None, "fraction": None,
+                "why": UNDETERMINED}
     mv, fr = margin(v, limit, kind, unit)
     return {"value": v, "limit": limit, "kind": kind, "unit": unit, "margin": mv, "fraction": fr}
 

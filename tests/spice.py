@@ -5,8 +5,9 @@ equivalent circuit made of its physical elements: resistors for the armature,
 the used part of the series winding, its diverter, the shunt winding and its
 rheostat; zero-volt sources that sense the shunt-field, series-winding,
 armature and load currents; a behavioural source for the brush contact drop;
-a behavioural node for the net magnetomotive force per pole (read as an
-equivalent shunt-field current, armature reaction included); and the
+a behavioural node for the windings' net magnetomotive force per pole (read
+as an equivalent shunt-field current) and one for the net field after
+armature reaction, which shrinks it towards zero and never past it; and the
 generated EMF as a behavioural source reading the open-circuit
 characteristic through ngspice's piecewise-linear ``pwl()`` table. Copper
 resistances are corrected for temperature by ngspice itself (``tc1`` with
@@ -185,15 +186,19 @@ def generator_netlist(machine, setting, sweep, title="dc generator"):
         L.append("VSH nsh 0 0")  # idle sensor: no shunt field in circuit
         L.append("RNSH nsh 0 1")
         shunt_mmf = "0"
-    # net mmf per pole as an equivalent shunt-field current [A]
+    # net mmf per pole as an equivalent shunt-field current [A]: the windings' mmf at node xw,
+    # then armature reaction shrinking it towards zero and never past it (design note)
+    L.append(f"BXW xw 0 V = {shunt_mmf}{series_mmf} + v(fl)")
     if m.ar_at_per_pole_at_rated is not None:
-        ar = f" - {num(m.ar_at_per_pole_at_rated / m.rated_armature_current_a / nsh)} * abs(i(vsa))"
+        ar = f"{num(m.ar_at_per_pole_at_rated / m.rated_armature_current_a / nsh)} * abs(i(vsa))"
     elif m.ar_table_current_a is not None:
-        ar = (f" - pwl(abs(i(vsa)), {pwl_args(m.ar_table_current_a, m.ar_table_at_per_pole)})"
-              f" / {num(nsh)}")
+        ar = f"pwl(abs(i(vsa)), {pwl_args(m.ar_table_current_a, m.ar_table_at_per_pole)}) / {num(nsh)}"
     else:
-        ar = ""
-    L.append(f"BX x 0 V = {shunt_mmf}{series_mmf}{ar} + v(fl)")
+        ar = None
+    if ar is None:
+        L.append("BX x 0 V = v(xw)")
+    else:
+        L.append(f"BX x 0 V = sgn(v(xw)) * max(abs(v(xw)) - {ar}, 0)")
     # run-up, field flash and load, stepped by the sweep node t
     run_up, flash, load, _ = sweep.path()
     ts = np.arange(load.size, dtype=float)

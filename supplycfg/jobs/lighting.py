@@ -8,7 +8,8 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from ..circuit import _explicit_v, _params, machine_state, normal_points
+from ..circuit import (candidate_params, machine_state, normal_points, terminal_voltage_at_armature_current,
+                       voltage_span)
 from ..envelope import (COARSE, FINE, critical_resistance_ratios, expand_candidates, optimise_control,
                         worst_over_corners)
 from ..readings import no_load_setting_field, option_advice
@@ -136,18 +137,19 @@ def evaluate_feeder(space, base_idx, u, booster=False, res=COARSE):
     tol = job.tolerance_percent / 100.0
     vload = np.empty((sub.n, currents.size)); ia_all = np.empty_like(vload); x_all = np.empty_like(vload)
     e_all = np.empty_like(vload); conv = np.ones(sub.n, bool)
-    p = _params(sub, np.arange(sub.n))
+    p = candidate_params(sub, np.arange(sub.n))
     for k, il in enumerate(currents):
         if booster:
             ia = np.full(sub.n, il)
-            v = _explicit_v(sub, p, ia)
+            v = terminal_voltage_at_armature_current(sub, p, ia)
             st = machine_state(sub, p, v, ia)
             vl = job.bus_voltage_v + v - il * job.feeder_resistance_ohm
             x, e, iak = st["x"], st["generated_emf_v"], st["armature_current_a"]
         else:
-            # a machine sitting below a third of the nominal voltage has failed anyway
-            top = 1.5 * nominal * (1 + tol) + 50.0
-            r = normal_points(sub, np.full(sub.n, nominal / 3), np.full(sub.n, top),
+            # a machine sitting below a third of the nominal voltage has failed anyway; the top is
+            # the engine's whole voltage span (widened further while the machine is above the load)
+            top = np.maximum(1.5 * nominal * (1 + tol) + 50.0, voltage_span(sub))
+            r = normal_points(sub, np.full(sub.n, nominal / 3), top,
                               il_of=lambda t, il=il: np.full_like(t, il), **res)
             vl = r["terminal_voltage_v"] - il * job.feeder_resistance_ohm
             x, e, iak = r["x"], r["generated_emf_v"], r["armature_current_a"]

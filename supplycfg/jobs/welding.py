@@ -11,7 +11,8 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from ..cautions import caution
-from ..circuit import USES_SERIES, _bisect, _params, machine_state, no_load_voltages, normal_points
+from ..circuit import (USES_SERIES, candidate_params, machine_state, no_load_voltages, normal_points,
+                       refine_bracketed_roots)
 from ..envelope import control_range, critical_resistance_ratios, expand_candidates, smallest_margin_fraction
 from ..errors import InputError
 from ..readings import (control_band, diverter_rating, exciter_supply, no_load_field_current_a,
@@ -365,12 +366,12 @@ def _solve_weld_control(space, base_idx, corner_idx, target_a):
 
     def h(u):
         sub, _ = expand_candidates(space, base_idx, u, corner_idx)
-        p = _params(sub, np.arange(sub.n))
+        p = candidate_params(sub, np.arange(sub.n))
         return machine_state(sub, p, vt, it)["h"]
 
     ha, hb = h(lo), h(hi)
     ok = np.signbit(ha) != np.signbit(hb)
-    u = _bisect(h, lo, hi, ha, 50)
+    u = refine_bracketed_roots(h, lo, hi, ha, 50)
     # unreachable: take the end that comes closer
     u = np.where(ok, u, np.where(np.abs(ha) < np.abs(hb), lo, hi))
     return u, ok
@@ -387,7 +388,7 @@ def _weld_current(space, base_idx, u, corner_idx=None):
 
 def _char_slope(sub, v, il):
     """Slope dV/dIL [V/A] of each candidate's characteristic at (v, il): -h_IL/h_V."""
-    p = _params(sub, np.arange(sub.n))
+    p = candidate_params(sub, np.arange(sub.n))
     dv = 1e-4 * np.maximum(1.0, np.abs(v)); di = 1e-4 * np.maximum(1.0, np.abs(il))
     h_v = (machine_state(sub, p, v + dv, il)["h"] - machine_state(sub, p, v - dv, il)["h"]) / (2 * dv)
     h_i = (machine_state(sub, p, v, il + di)["h"] - machine_state(sub, p, v, il - di)["h"]) / (2 * di)
@@ -782,6 +783,13 @@ def option_cautions(machine, profile, setting, f):
     """Welding cautions of one setting from its figures ``f``."""
     out = []
     pk, lim = f.get("no_load_peak_voltage_v"), f.get("no_load_limit_v")
+    if pk is None and lim is not None:
+        out.append(caution("welding-no-load-voltage-unknown", "stop",
+                           "The no-load voltage could not be determined at some setting of the range: it runs away "
+                           "past the measured open-circuit curve, so it may exceed the limit. Measure the curve "
+                           "further before using this setting.",
+                           "IEC 60974-1 rated no-load voltage, DC 113 V peak (seen); circuit model (design note)",
+                           no_load_limit_v=lim))
     if pk is not None and lim is not None and pk > lim:
         out.append(caution("welding-no-load-voltage", "stop",
                       f"No-load voltage reaches {pk:.1f} V peak, above the {lim:.0f} V limit: a welder touching the "
