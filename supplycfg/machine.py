@@ -63,6 +63,9 @@ class Machine:
     ar_table_at_per_pole: tuple | None = None
     winding_conductors: int | None = None
     winding_parallel_paths: int | None = None
+    rotational_loss_w: float | None = None
+    rotational_loss_speed_exponent: float | None = None
+    stray_load_loss_percent: float | None = None
     source: str = field(default="machine", compare=False)
 
     @property
@@ -107,7 +110,7 @@ def machine_from_dict(data, source="machine"):
     """Build a :class:`Machine` from parsed TOML tables, checking every rule."""
     if not isinstance(data, dict):
         raise InputError(source, "file", "must hold TOML tables")
-    known_tables = ("machine", "open_circuit", "armature_reaction", "winding")
+    known_tables = ("machine", "open_circuit", "armature_reaction", "winding", "losses")
     for k in data:
         if k not in known_tables:
             raise InputError(source, show_key(k), f"is not a known table or key; valid tables: {', '.join(known_tables)}")
@@ -212,6 +215,14 @@ def machine_from_dict(data, source="machine"):
         w.finish()
         if kw["winding_parallel_paths"] % 2:
             raise InputError(source, "winding.parallel_paths", f"is {kw['winding_parallel_paths']}; allowed: an even number (2 for wave, the pole count or a multiple for lap)")
+    if "losses" in data:
+        ls = Table(data["losses"], source, "losses")
+        # defaults and their sources: supplycfg.drive
+        kw["rotational_loss_w"] = ls.number("rotational_loss_w", None, low=0, high=1e8, what="watts at rated speed")
+        kw["rotational_loss_speed_exponent"] = ls.number("rotational_loss_speed_exponent", None, low=0, high=4)
+        kw["stray_load_loss_percent"] = ls.number("stray_load_loss_percent", None, low=0, high=20,
+                                                  what="per cent of output")
+        ls.finish()
     return Machine(**kw)
 
 
@@ -244,6 +255,10 @@ def machine_to_dict(m):
     elif m.ar_table_current_a is not None:
         out["armature_reaction"] = {"armature_current_a": list(m.ar_table_current_a),
                                     "demagnetizing_at_per_pole": list(m.ar_table_at_per_pole)}
+    losses = {k: getattr(m, k) for k in ("rotational_loss_w", "rotational_loss_speed_exponent",
+                                         "stray_load_loss_percent") if getattr(m, k) is not None}
+    if losses:
+        out["losses"] = losses
     if m.winding_conductors is not None:
         out["winding"] = {"conductors": m.winding_conductors,
                           "parallel_paths": m.winding_parallel_paths}
