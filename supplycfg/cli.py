@@ -68,11 +68,13 @@ def _parser():
 
     p = sub.add_parser("curve", help="external characteristic of one setting")
     p.add_argument("machine"); _add_setting(p)
+    p.add_argument("--profile", help="take the drive from this load profile's [drive] table")
     p.add_argument("--points", type=_positive_int, default=40, help="points along the curve")
     p.add_argument("--json", action="store_true")
 
     p = sub.add_parser("point", help="operating points of one setting against one load")
     p.add_argument("machine"); _add_setting(p)
+    p.add_argument("--profile", help="take the drive from this load profile's [drive] table")
     p.add_argument("--load-ohm", type=_number)
     p.add_argument("--load-current-a", type=_number)
     p.add_argument("--battery-emf-v", type=_number)
@@ -103,6 +105,10 @@ def _parser():
     p = sub.add_parser("search", help="settings that meet a load profile, ranked")
     p.add_argument("machine"); p.add_argument("profile")
     p.add_argument("--top", type=_positive_int, default=10)
+    p.add_argument("--json", action="store_true")
+
+    p = sub.add_parser("size", help="the smallest drive rating with which some setting meets the job")
+    p.add_argument("machine"); p.add_argument("profile")
     p.add_argument("--json", action="store_true")
 
     p = sub.add_parser("charge", help="a battery charge through time")
@@ -137,6 +143,24 @@ def _checked(machine, setting):
     return check_setting(machine, setting, "command line", SETTING_OPTIONS)
 
 
+def _drive(args, setting):
+    """The drive of ``--profile`` (None without one), and the setting with a fixed drive's speed."""
+    if not getattr(args, "profile", None):
+        return None, setting
+    from dataclasses import replace
+    from .profile import load_profile
+    drive = load_profile(args.profile).drive
+    if drive.coupled:
+        if setting.speed_rpm is not None:
+            raise InputError("command line", "--speed-rpm", f"is given with a profile whose drive is an {drive.kind}: "
+                             "its speed follows the load; allowed: omit --speed-rpm")
+        return drive, replace(setting, speed_rpm=drive.generator_speeds_rpm()[0])
+    if setting.speed_rpm is None:
+        speeds = drive.generator_speeds_rpm()
+        setting = replace(setting, speed_rpm=0.5 * (min(speeds) + max(speeds)))
+    return drive, setting
+
+
 def table(rows, headers, fmt=None):
     """Plain fixed-width table."""
     fmt = fmt or {}
@@ -166,8 +190,10 @@ def cmd_curve(args, out):
     from .circuit import external_characteristic
     from .machine import load_machine
     m = load_machine(args.machine)
-    st = _checked(m, _setting_from(args))
-    c = external_characteristic(m, st, args.points)
+    drive, st0 = _drive(args, _setting_from(args))
+    st = _checked(m, st0)
+    c = external_characteristic(m, st, args.points, drive)
+    st = c.setting
     res = {"setting": st.as_dict(), "points": c.point_list(), "no_load_voltage_v": c.no_load_voltage_v,
            "short_circuit_current_a": c.short_circuit_current_a, "max_load_current_a": c.max_load_current_a,
            "regulation_percent": c.regulation_percent, "extrapolated": c.extrapolated,
@@ -179,8 +205,11 @@ def cmd_curve(args, out):
              f"largest load current {_fmt(c.max_load_current_a, 'A')}; regulation at rated current {_fmt(c.regulation_percent, '%', '.3g')}",
              ""]
     rows = c.point_list()
+    if drive is not None:
+        lines.insert(1, f"drive: {drive.describe()}")
     lines.append(table(rows, ["load_current_a", "terminal_voltage_v", "armature_current_a", "shunt_field_current_a",
-                              "series_field_current_a", "generated_emf_v", "extrapolated"]))
+                              "series_field_current_a", "generated_emf_v", "speed_rpm", "shaft_power_kw",
+                              "efficiency", "extrapolated"]))
     lines += _notes(c.notes, c.extrapolated, c.converged)
     return "\n".join(lines)
 
@@ -233,8 +262,9 @@ def cmd_point(args, out):
             raise InputError("command line", "--line-slope-ohm", "allowed: >= 0 ohm")
         load = Load.line(given["line_v0"], given["line_slope_ohm"])
     m = load_machine(args.machine)
-    st = _checked(m, _setting_from(args))
-    ops = operating_points(m, st, load)
+    drive, st0 = _drive(args, _setting_from(args))
+    st = _checked(m, st0)
+    ops = operating_points(m, st, load, drive)
     pts = [{k: v for k, v in p.items() if k != "residual_v"} for p in ops.points]
     res = {"setting": st.as_dict(), "load": load.label, "operating_points": pts, "converged": ops.converged}
     if args.json:
@@ -242,7 +272,8 @@ def cmd_point(args, out):
     lines = [f"{m.label or args.machine}: {st.connection}, {st.describe()}; load: {load.label}", ""]
     if pts:
         lines.append(table(pts, ["terminal_voltage_v", "load_current_a", "armature_current_a", "shunt_field_current_a",
-                                 "series_field_current_a", "generated_emf_v", "stable", "extrapolated"]))
+                                 "series_field_current_a", "generated_emf_v", "speed_rpm", "shaft_power_kw",
+                                 "efficiency", "stable", "extrapolated"]))
         lines.append("")
         lines.append("The machine sits at the highest stable point; unstable points are listed, not used.")
         if any(p["load_current_a"] < 0 for p in pts):
@@ -328,6 +359,14 @@ def cmd_search(args, out):
     return search_text(res, args.top)
 
 
+def cmd_size(args, out):
+    from .machine import load_machine
+    from .profile import load_profile
+    from .sizing import required_drive_rating, size_text
+    res = required_drive_rating(load_machine(args.machine), load_profile(args.profile))
+    return res.as_dict() if args.json else size_text(res)
+
+
 def cmd_charge(args, out):
     from .simulation import charge_from_files, charge_text
     if not args.connection:
@@ -355,7 +394,7 @@ def cmd_bench(args, out):
 
 
 COMMANDS = {"curve": cmd_curve, "point": cmd_point, "buildup": cmd_buildup, "emf": cmd_emf,
-            "search": cmd_search, "charge": cmd_charge, "sheet": cmd_sheet, "bench": cmd_bench}
+            "search": cmd_search, "size": cmd_size, "charge": cmd_charge, "sheet": cmd_sheet, "bench": cmd_bench}
 
 
 def main(argv=None):
@@ -370,7 +409,7 @@ def main(argv=None):
             print(res, file=out)
         else:
             print(dumps_json(res), file=out)
-        if args.command in ("curve", "point", "buildup", "search", "charge") and isinstance(res, str):
+        if args.command in ("curve", "point", "buildup", "search", "size", "charge") and isinstance(res, str):
             print(f"\n{STANDING_NOTICE}", file=out)
         return 0
     except InputError as exc:

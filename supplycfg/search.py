@@ -12,7 +12,7 @@ golden-section search. Margins are positive inside a limit.
 
 import math
 import time
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 
@@ -21,6 +21,7 @@ from .circuit import USES_SERIES, Setting, check_setting
 from .envelope import build_space, candidate_bases, margin
 from .jobs import JOBS, option_cautions, profile_cautions
 from .machine import load_machine
+from .powerflow import idle_figures
 from .profile import load_profile
 
 __all__ = ["Option", "SearchResult", "candidate_bases", "search", "search_machine_profile", "search_text"]
@@ -40,6 +41,7 @@ class Option:
     current_settings: list | None = None
     control: str = "rheostat"
     extrapolated: bool = False
+    drive_points: list = field(default_factory=list)
 
     def setting_dict(self):
         s = self.setting
@@ -58,6 +60,7 @@ class Option:
              "cautions": [c.as_dict() for c in self.cautions]}
         if self.current_settings is not None:
             d["current_settings"] = self.current_settings
+        d["drive_points"] = self.drive_points
         return d
 
 
@@ -94,7 +97,7 @@ class SearchResult:
 def _fig_dict(figs, i):
     out = {}
     for k, v in figs.items():
-        if k == "converged":
+        if k in ("converged", "drive_points"):
             continue
         x = float(np.asarray(v)[i])
         out[k] = x if math.isfinite(x) else None
@@ -113,13 +116,16 @@ def _setting_for(space, i, u):
                                                 winding_temperature_c=space.nominal[1], **kw))
 
 
-def search(machine, profile):
+def search(machine, profile, with_drive_check=True):
     """Every setting that meets the job, ranked, with the nearest misses.
 
     Parameters
     ----------
     machine : Machine
     profile : LoadProfile
+    with_drive_check : bool, optional
+        When nothing is feasible with an engine or a motor, search again with
+        a far larger drive of the same kind to say whether the drive limits the job.
 
     Returns
     -------
@@ -138,6 +144,11 @@ def search(machine, profile):
     nb = len(space.bases)
     u_best, lim, figs, extras, evaluated = JOBS[profile.kind].solve(space)
     top_speed = max(c[0] for c in space.corners)
+    figs = dict(figs)
+    figs["idle_no_load_voltage_v"], figs["idle_builds_up"] = idle_figures(space, np.arange(nb), u_best)
+    table = figs.get("drive_points")
+    if table is not None:
+        figs.update({k: v for k, v in table.summary().items() if k not in figs})
     options = []
     for i in range(nb):
         margins, failed, fracs = {}, [], []
@@ -167,15 +178,38 @@ def search(machine, profile):
         extrap = xmax is not None and xmax > machine.occ_field_current_a[-1] * (1 + 1e-9)
         options.append(Option(0, feasible, st, f, margins, failed, cautions, float(min(fracs)) if fracs else 0.0,
                               (extras[i] or {}).get("current_settings"), {"field-current": "field-current", "none": "none"}.get(space.bases[i][3], "rheostat"),
-                              extrap))
+                              extrap, table.rows(i) if table is not None else []))
     options.sort(key=lambda o: (not o.feasible, -o.smallest_margin, o.setting.connection,
                                 o.setting.series_turns or 0, o.setting.diverter_ohm or 0))
     for k, o in enumerate(options, 1):
         o.rank = k
     if not any(o.feasible for o in options):
         notes.append("no setting meets every limit; the nearest misses are listed with the limit each breaks")
+        if profile.drive.coupled and with_drive_check:
+            notes += drive_limit_notes(machine, profile, options)
     return SearchResult(machine, profile, options, profile_cautions(machine, profile), int(evaluated),
                         time.perf_counter() - t0, notes)
+
+
+#: Rating multiple of the "far larger drive" that tells whether the drive limits a job.
+STIFF_DRIVE_FACTOR = 100.0
+
+
+def drive_limit_notes(machine, profile, options):
+    """Why nothing is feasible, when the drive is the reason: the notes of an infeasible search."""
+    drive = profile.drive
+    over = [o for o in options if "drive_power" in o.failed]
+    stiff = replace(profile, drive=drive.with_rating(STIFF_DRIVE_FACTOR * drive.rated_power_kw))
+    big = search(machine, stiff, with_drive_check=False)
+    if not big.feasible:
+        return []
+    need = min(o.figures.get("max_shaft_power_kw") or math.inf for o in big.feasible)
+    text = (f"the drive limits this job: with a larger {drive.kind} of the same figures "
+            f"{len(big.feasible)} setting(s) meet it, the least of them drawing {need:.3g} kW at the shaft against "
+            f"the {drive.rated_power_kw:g} kW rating")
+    if over:
+        text += f"; {len(over)} setting(s) here break the drive_power limit"
+    return [text + "; `supplycfg size` finds the smallest rating that works"]
 
 
 def search_machine_profile(machine_path, profile_path):

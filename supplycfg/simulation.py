@@ -37,7 +37,7 @@ from . import STANDING_NOTICE
 from .jobs import battery
 from .jobs import option_cautions, profile_cautions
 from .profile import load_profile
-from .circuit import _params, build_circuit, check_setting, machine_state, normal_points
+from .circuit import _params, build_circuit, check_setting, drive_point_keys, machine_state, normal_points
 from .errors import InputError
 
 #: Time cap when none is given [h]: a charge not finished in two days points to
@@ -105,6 +105,8 @@ class ChargeRun:
     machine_label: str = ""
     profile_label: str = ""
     setting_source: str = ""
+    speed_rpm: np.ndarray = None
+    shaft_power_kw: np.ndarray = None
 
     def as_dict(self):
         """JSON-safe: arrays as lists, NaN as None."""
@@ -130,6 +132,8 @@ class ChargeRun:
             "cells": int(self.cells), "charge_efficiency": num(self.charge_efficiency),
             "converged": bool(self.converged), "cautions": [c.as_dict() for c in self.cautions],
             "notes": list(self.notes), "notice": STANDING_NOTICE,
+            "speed_rpm": None if self.speed_rpm is None else arr(self.speed_rpm),
+            "shaft_power_kw": None if self.shaft_power_kw is None else arr(self.shaft_power_kw),
         }
 
 
@@ -199,7 +203,7 @@ def charging_current_a(machine, profile, setting, soc):
         NaN where no stable operating point exists.
     """
     _battery_job(profile)
-    circ = build_circuit(machine, [setting])
+    circ = build_circuit(machine, [setting], profile.drive)
     return _points_at(circ, profile.battery, np.atleast_1d(soc))["load_current_a"]
 
 
@@ -256,7 +260,7 @@ def charge_run(machine, profile, setting, max_hours=None):
     if isinstance(cap_h, bool) or not np.isfinite(float(cap_h)) or float(cap_h) <= 0:
         raise InputError("charge run", "max_hours", f"is {max_hours!r}; allowed: a number of hours > 0")
     cap_h = float(cap_h)
-    circ = build_circuit(machine, [setting])
+    circ = build_circuit(machine, [setting], profile.drive)
     st = circ.settings[0]
     chem = battery.chemistry(job.chemistry)
     cap, cells, eff = job.capacity_ah, job.cells, chem.charge_efficiency
@@ -331,6 +335,10 @@ def charge_run(machine, profile, setting, max_hours=None):
     vbank = vt - cur * rcab
     vpc = vbank / cells
     converged &= bool(np.all(pts["converged"]))
+    ok = np.isfinite(vt) & np.isfinite(cur)
+    flow = drive_point_keys(circ, circ.take(np.zeros(vt.size, int)), np.where(ok, vt, 0.0), np.where(ok, cur, 0.0))
+    speed = np.where(ok, flow["speed_rpm"], np.nan)
+    shaft = np.where(ok, flow["shaft_power_kw"], np.nan)
     if stop == "current-floor" and lost_at is not None and soc[-1] >= lost_at - 2 * (s_tab[1] - s_tab[0]):
         stop = "no-operating-point"
 
@@ -382,7 +390,7 @@ def charge_run(machine, profile, setting, max_hours=None):
         gassing_volts_per_cell=gas, gassing_from_h=gas_h, floor_current_a=floor, max_hours=cap_h,
         start_state_of_charge=soc0, end_state_of_charge=soc1, capacity_ah=cap, cells=cells,
         charge_efficiency=eff, converged=converged, cautions=cautions, notes=notes,
-        machine_label=machine.label, profile_label=profile.label)
+        machine_label=machine.label, profile_label=profile.label, speed_rpm=speed, shaft_power_kw=shaft)
 
 
 def _below_bank(circ, job, soc):

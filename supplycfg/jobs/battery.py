@@ -15,6 +15,7 @@ from ..circuit import no_load_voltages, normal_points
 from ..envelope import (COARSE, FINE, critical_resistance_ratios, expand_candidates, optimise_control,
                         worst_over_corners)
 from ..errors import InputError
+from ..powerflow import load_point_figures
 from ..validate import MAX_CURRENT_A, MAX_OHM, named_entry, read_pair, table_entry
 
 #: The profile table this job reads.
@@ -468,6 +469,11 @@ def evaluate(space, base_idx, u, res=COARSE):
         "critical_resistance_ratio": critical_resistance_ratios(space, sub, n),
         "converged": worst_over_corners((start["converged"] & end["converged"]).astype(float), n, nc, "min"),
     }
+    drive_lim, drive_figs = load_point_figures(space, n, [
+        ("start of charge", sub, start["terminal_voltage_v"], i_start),
+        ("end of charge", sub, end["terminal_voltage_v"], end["load_current_a"])])
+    lim.update(drive_lim)
+    figs.update(drive_figs)
     return lim, figs
 
 

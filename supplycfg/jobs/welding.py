@@ -13,6 +13,7 @@ import numpy as np
 from ..cautions import caution
 from ..circuit import _bisect, _params, machine_state, no_load_voltages, normal_points
 from ..envelope import control_range, critical_resistance_ratios, expand_candidates, worst_over_corners
+from ..powerflow import load_point_figures
 from ..validate import MAX_CURRENT_A, MAX_OHM, named_entry, read_pair, table_entry
 
 #: The profile table this job reads.
@@ -343,11 +344,13 @@ def evaluate_range_ends(space):
     limit_peak = no_load_voltage_limit(env.dc_limit).voltage_v
     per = {}
     evaluated = 0
+    drive_pts = []
     for end, target in (("low", lo_a), ("high", hi_a)):
         u, ok = _solve_weld_control(space, bi, np.full(nb, nom), target)
         evaluated += nb * 52
         r, sub = _weld_current(space, bi, u)
         evaluated += sub.n
+        drive_pts.append((f"{end} end, {target:g} A", sub, r["terminal_voltage_v"], r["load_current_a"]))
         cur = r["load_current_a"].reshape(nb, nc)
         # the control is solved at the nominal corner; elsewhere the current drifts (a figure, not a limit)
         dev = np.abs(cur[:, nom] / target - 1.0)
@@ -384,6 +387,8 @@ def evaluate_range_ends(space):
     }
     if job.max_no_load_voltage_v is not None:
         lim["no_load_mean_voltage"] = (vnl_max, job.max_no_load_voltage_v, "max", "V")
+    drive_lim, drive_figs = load_point_figures(space, nb, drive_pts)
+    lim.update(drive_lim)
     spread = {e: (worst_over_corners(per[e]["current"], nb, nc, "min"), worst_over_corners(per[e]["current"], nb, nc, "max"))
               for e in ("low", "high")}
     figs = {"low_end_current_a": per["low"]["current"][:, nom], "high_end_current_a": per["high"]["current"][:, nom],
@@ -402,6 +407,7 @@ def evaluate_range_ends(space):
     subc, _ = expand_candidates(space, np.concatenate([bi, bi]), np.concatenate([per["low"]["u"], per["high"]["u"]]))
     rr = critical_resistance_ratios(space, subc, 2 * nb)
     figs["critical_resistance_ratio"] = np.fmin(rr[:nb], rr[nb:])
+    figs.update(drive_figs)
     return lim, figs, per, evaluated
 
 
