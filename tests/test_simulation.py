@@ -61,15 +61,15 @@ def bank_curve_v(job, soc, current_a):
     return job.cells * cell + float(current_a) * (job.internal_resistance_ohm + job.cable_resistance_ohm)
 
 
-def steady_current_a(machine, setting, job, soc, iterations=30):
+def steady_current_a(machine, setting, job, soc, iterations=30, drive=None):
     """Normal operating point on the charging curve by Newton steps: each step meets the tangent
-    line of the curve at the last current (``Load.line``) with ``operating_points``."""
+    line of the curve at the last current (``Load.line``) with ``operating_points`` (on ``drive``)."""
     i = 0.0
     for _ in range(iterations):
         d = 1e-4 * max(1.0, abs(i))
         slope = (bank_curve_v(job, soc, i + d) - bank_curve_v(job, soc, max(i - d, 0.0))) / (i + d - max(i - d, 0.0))
         v0 = bank_curve_v(job, soc, i) - slope * i
-        pt = operating_points(machine, setting, Load.line(v0, slope)).normal
+        pt = operating_points(machine, setting, Load.line(v0, slope), drive).normal
         assert pt is not None
         new = pt["load_current_a"]
         if abs(new - i) < 1e-9 * max(1.0, abs(i)):
@@ -105,7 +105,7 @@ def test_current_equals_steady_state_point(machine, profile, best, soc):
     """At fixed SOC the run's current is the machine's normal operating point on the charging curve:
     independently, Newton steps on tangent lines with ``operating_points`` agree within 0.2 %
     (derived: both solve the same circuit equation and curve)."""
-    want = steady_current_a(machine, best.setting, profile.battery, soc)
+    want = steady_current_a(machine, best.setting, profile.battery, soc, drive=profile.drive)
     assert_allclose(charging_current_a(machine, profile, best.setting, [soc])[0], want, rtol=2e-3)
 
 
@@ -115,7 +115,7 @@ def test_run_arrays_are_steady_state_points(machine, profile, best, full_run):
     r, b = full_run, profile.battery
     for k in (0, 60, 150, len(r.time_h) - 1):
         s = float(r.state_of_charge[k])
-        i = steady_current_a(machine, best.setting, b, s)
+        i = steady_current_a(machine, best.setting, b, s, drive=profile.drive)
         assert_allclose(r.current_a[k], i, rtol=2e-3)
         assert_allclose(r.terminal_voltage_v[k], bank_curve_v(b, s, i), rtol=2e-4)
         assert_allclose(r.bank_voltage_v[k], r.terminal_voltage_v[k] - i * b.cable_resistance_ohm, rtol=1e-9)
