@@ -25,7 +25,7 @@ KIND_WORDS = {"battery": "battery charging", "welding": "arc welding", "lighting
 SHEET_CHART_WIDTH = 560
 
 # unit suffixes of figure names, longest first
-_UNITS = (("_v_per_a", "V/A"), ("_m3_per_h", "m³/h"), ("_percent", "%"), ("_rpm", "rpm"), ("_ohm", "Ω"),
+_UNITS = (("_v_per_a", "V/A"), ("_m3_per_h", "m³/h"), ("_percent", "%"), ("_rpm", "rpm"), ("_ohm", "Ω"), ("_kw", "kW"),
           ("_kwh", "kWh"), ("_ah", "Ah"), ("_a", "A"), ("_v", "V"), ("_h", "h"), ("_c", "°C"))
 
 #: Plain words for the figures the search reports; others are named from their key.
@@ -73,6 +73,18 @@ FIGURE_WORDS = {
     "stuck_electrode_current_a": "stuck-electrode current",
     "duty_equivalent_current_a": "duty-cycle equivalent current (an upper bound)",
     "top_speed_rpm": "top drive speed",
+    "max_shaft_power_kw": "shaft power at the job's points, highest",
+    "min_speed_rpm": "generator speed at the job's points, lowest",
+    "max_speed_rpm": "generator speed at the job's points, highest",
+    "no_load_speed_rpm": "generator speed at no load",
+    "min_efficiency_percent": "efficiency at the job's points, lowest",
+    "collapsed_load_points": ("points where the field collapses at the drive's speed", ""),
+    "max_drive_loading_percent": "drive loading (shaft power over its rating), highest",
+    "drive_rated_power_kw": "drive rating",
+    "max_drive_torque_percent": "motor torque over its rated torque, highest",
+    "breakdown_torque_percent": "motor breakdown torque",
+    "idle_no_load_voltage_v": "no-load voltage at the engine's idle",
+    "idle_builds_up": ("shunt field builds up at the engine's idle (1 yes, 0 no)", ""),
 }
 
 #: Plain words for the limits the search checks.
@@ -94,6 +106,7 @@ LIMIT_WORDS = {
     "stuck_electrode_current": "stuck-electrode current within the peak rating",
     "duty_cycle_heating": "duty-cycle heating within the continuous rating",
     "solve_not_converged": "the solve converged",
+    "drive_power": "shaft power within the drive's rating",
     "stop_caution": "no stop caution",
 }
 
@@ -208,12 +221,33 @@ def setting_rows(option, machine, profile):
         rows.append(("Field", field_control_text(option, machine)))
     if machine.has_series:
         rows.append(("Diverter across the series winding", "none" if s.diverter_ohm is None else fmt(s.diverter_ohm, "Ω")))
-    speeds = tuple(profile.speeds_rpm)
-    sp = fmt(speeds[0], "rpm") if len(speeds) == 1 else f"{fmt(speeds[0])} to {fmt(speeds[1], 'rpm')}"
-    rows.append(("Drive speed", sp))
+    rows += drive_rows(option, profile)
     temps = profile.temperatures_c
     rows.append(("Winding temperature", f"{fmt(temps[0])} to {fmt(temps[1], '°C')}" if temps
                  else fmt(machine.reference_temperature_c, "°C (the machine's reference)")))
+    return rows
+
+
+def drive_rows(option, profile):
+    """``[(what, how)]`` of the drive: its speed (fixed), or its figures and the tachometer checks."""
+    d = profile.drive
+    speeds = tuple(profile.speeds_rpm)
+    if not d.coupled:
+        sp = fmt(speeds[0], "rpm") if len(speeds) == 1 else f"{fmt(speeds[0])} to {fmt(speeds[1], 'rpm')}"
+        rows = [("Drive speed (generator shaft)", sp)]
+        if d.ratio != 1:
+            rows.append(("Drive", d.describe()))
+        return rows
+    f = option.figures
+    rows = [("Drive", d.describe())]
+    nl, lo, kw = f.get("no_load_speed_rpm"), f.get("min_speed_rpm"), f.get("max_shaft_power_kw")
+    rows.append(("Tachometer check, generator shaft at no load", "about " + fmt(nl, "rpm")))
+    heavy = "about " + fmt(lo, "rpm")
+    if kw is not None:
+        heavy += f" ({fmt(kw, 'kW')} at the shaft)"
+    rows.append(("Tachometer check, generator shaft at the heaviest point of the job", heavy))
+    if d.ratio != 1 and nl is not None and lo is not None:
+        rows.append((f"The same at the {d.kind}'s own shaft", f"about {fmt(nl / d.ratio, 'rpm')} and {fmt(lo / d.ratio, 'rpm')}"))
     return rows
 
 

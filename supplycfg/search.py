@@ -21,7 +21,7 @@ from .circuit import USES_SERIES, Setting, check_setting
 from .envelope import build_space, candidate_bases, margin
 from .jobs import JOBS, option_cautions, profile_cautions
 from .machine import load_machine
-from .powerflow import idle_figures
+from .powerflow import idle_figures, no_load_speeds
 from .profile import load_profile
 
 __all__ = ["Option", "SearchResult", "candidate_bases", "search", "search_machine_profile", "search_text"]
@@ -146,6 +146,7 @@ def search(machine, profile, with_drive_check=True):
     top_speed = max(c[0] for c in space.corners)
     figs = dict(figs)
     figs["idle_no_load_voltage_v"], figs["idle_builds_up"] = idle_figures(space, np.arange(nb), u_best)
+    figs["no_load_speed_rpm"] = no_load_speeds(space, np.arange(nb), u_best)
     table = figs.get("drive_points")
     if table is not None:
         figs.update({k: v for k, v in table.summary().items() if k not in figs})
@@ -226,6 +227,7 @@ def _short(v, f=".4g"):
 def search_text(res, top=10):
     """The ranked table a technician reads."""
     lines = [f"{res.machine.label} for {res.profile.label} ({res.profile.kind})",
+             f"drive: {res.profile.drive.describe()}",
              f"{res.candidates_evaluated} candidate evaluations in {res.search_seconds:.2f} s", ""]
     hdr = f"{'rank':>4}  {'fit':<4}  {'connection':<25} {'turns':>5} {'diverter':>9} {'field':>14} {'speed':>6}  {'least margin':>12}  cautions / limits broken"
     lines += [hdr, "-" * len(hdr)]

@@ -1,5 +1,6 @@
 """The Streamlit page, run headless through streamlit.testing.v1.AppTest."""
 
+import json
 import tomllib
 import warnings
 from pathlib import Path
@@ -272,3 +273,18 @@ def test_form_text_parsing():
     assert fields.error_field("machine.series_taps[1]") == "machine.series_taps"
     with pytest.raises(InputError, match=r"open_circuit.emf_v\[1\]: is empty"):
         fields.machine_tables_from_form({"occ": {"field current [A]": [0.0, 0.5], "EMF [V]": [3.0, None]}})
+
+
+def test_drive_inputs_and_size_section():
+    """The job form shows the drive's kind and figures; the page's drive section finds the
+    smallest rating (here the booster demo on its fixed drive: the least peak shaft power of a
+    feasible setting) and the tooltips of the curves carry speed and shaft power."""
+    at = AppTest.from_file(APP, default_timeout=120).run()
+    labels = {t.label for t in at.text_input} | {s.label for s in at.selectbox}
+    assert {"What turns the generator", "Drive rating [kW] (engine or motor)", "Motor slip at rated load [%]"} <= labels
+    at.radio(key="kind_pick").set_value("booster").run()
+    button(at, "Find the smallest drive rating that does the job").click().run()
+    assert not at.exception, at.exception
+    assert "Smallest drive rating at the shaft" in markdown_text(at)
+    spec = json.dumps(at.get("vega_lite_chart")[1].proto.spec)
+    assert "shaft power [kW]" in spec and "speed [rpm]" in spec

@@ -60,6 +60,7 @@ def main():
         st.error(err)
         return
     option = outputs.options_section(result, key)
+    outputs.drive_size_section(result, mt, pt)
     if option is not None:
         run, run_msg = state.charge(mt, pt, option.rank) if result.profile.kind == "battery" else (None, None)
         outputs.detail_section(result, option)
