@@ -34,7 +34,7 @@ from .drive import (DriveRows, drive_loading, loss_breakdown, machine_loss_expon
                     machine_stray_percent)
 from .errors import InputError
 from .magnetisation import ArmatureReaction, OpenCircuitCurve, copper_resistance_factor
-from .raytrace import trace_on_rays
+from .raytrace import follow_along_normals, trace_on_rays
 
 CONNECTIONS = (
     "separate", "separate-cumulative", "separate-differential", "shunt", "series",
@@ -999,11 +999,7 @@ def characteristics_of(circ, points=400):
     seg_note = {}
     ray_states = {}
     if slf.size and circ.drive is not None:
-        # the speed follows the load, so N(x) = L(Ia) no longer separates: trace along rays
-        m = circ.machine
-        ray_states, seg_note = trace_on_rays(
-            lambda rows, v, il: machine_state(circ, _params(circ, rows), v, il), _bisect, slf,
-            _voltage_span(circ, slf), circ.imax, m.rated_voltage_v, m.rated_armature_current_a, points)
+        ray_states, seg_note = _driven_self_excited(circ, slf, points)
         slf = slf[:0]
     if slf.size:
         xg, ig = _grids(circ)
@@ -1100,6 +1096,44 @@ def characteristics_of(circ, points=400):
     return result
 
 
+def _driven_self_excited(circ, slf, points):
+    """Curves of self-excited candidates ``slf`` on an engine or a motor: ``(states, notes)``.
+
+    The speed follows the load, so ``N(x) = L(Ia)`` no longer separates. The
+    curves are traced along rays from the origin (exact for a curve every ray
+    meets once, as shunt and compound curves with residual voltage are);
+    where that does not hold (a ray meets the curve twice, or the machine has
+    no residual voltage and its curve ends at the origin) the fixed-speed
+    curve at the drive's no-load speed is carried onto the driven one by a
+    homotopy in the drive's droop (:func:`supplycfg.raytrace.follow_along_normals`).
+    """
+    m = circ.machine
+    states, notes = trace_on_rays(
+        lambda rows, v, il: machine_state(circ, _params(circ, rows), v, il), _bisect, slf,
+        _voltage_span(circ, slf), circ.imax, m.rated_voltage_v, m.rated_armature_current_a, points)
+    doubt = np.array([i for i in slf if states.get(i) is None or notes.get(i)], int)
+    if not doubt.size:
+        return states, notes
+    fixed = characteristics_of(circ.subset(doubt).without_drive(), points)
+    start = {int(i): (c.points["load_current_a"], c.points["terminal_voltage_v"])
+             for i, c in zip(doubt, fixed) if c.points["terminal_voltage_v"].size >= 2}
+    if not start:
+        return states, notes
+
+    def family(lam, rows, v, il):
+        return machine_state(replace(circ, drive=replace(circ.drive, k=lam * circ.drive.k)),
+                             _params(circ, rows), v, il)
+
+    moved = follow_along_normals(family, _bisect, start, m.rated_voltage_v, m.rated_armature_current_a)
+    for i, (il, v, lost) in moved.items():
+        if il.size < 2 or lost > 0.1 * start[i][0].size:
+            continue  # the homotopy lost the curve: keep the rays' answer and its note
+        states[i] = machine_state(circ, _params(circ, np.full(il.size, i)), v, il)
+        c = fixed[int(np.flatnonzero(doubt == i)[0])]
+        notes[i] = "; ".join(c.notes + ([f"{lost} points could not be followed onto the drive's curve"] if lost else []))
+    return states, notes
+
+
 def _refine_folds(circ, states, iterations=2):
     """Largest load current where a curve turns back (the breakdown point) [A].
 
@@ -1119,7 +1153,8 @@ def _refine_folds(circ, states, iterations=2):
         if 0 < j < il.size - 1:
             # vertex of the parabola IL(V) through the three exact samples (unevenly spaced)
             vv, yy = v[j - 1:j + 2], il[j - 1:j + 2]
-            with np.errstate(all="ignore"):
+            with np.errstate(all="ignore"), warnings.catch_warnings():
+                warnings.simplefilter("ignore", np.exceptions.RankWarning)  # near-coincident samples: checked below
                 a2, a1, _ = np.polyfit(vv - vv[1], yy, 2) if np.ptp(vv) > 0 else (0.0, 0.0, 0.0)
             v0 = vv[1] - a1 / (2 * a2) if a2 < 0 else vv[1]
             peak = yy[1] - a1 ** 2 / (4 * a2) if a2 < 0 else yy[1]

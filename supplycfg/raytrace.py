@@ -24,14 +24,21 @@ FIRST_RAYS = 161
 RAY_GRID = 257
 #: Refinement steps of a crossing.
 RAY_STEPS = 60
+#: Rounds of rays added between neighbours that land far apart or turn sharply (each halves their angle).
+REFINE_ROUNDS = 16
+#: A turn sharper than this between consecutive samples (cosine of the angle; 30 degrees) gets more rays.
+SHARP_TURN_COS = np.cos(np.radians(30.0))
+#: Rays closer than this [rad] are not split further.
+MIN_RAY_ANGLE = 1e-9
 
 
 def _crossings(state_fn, refine, rows, theta, rmax, vs, is_):
-    """Outermost fall of ``h`` through zero along each ray; NaN where none. Also how many falls."""
+    """Outermost fall of ``h`` through zero along each ray (per unit, ``vs`` and ``is_`` the bases);
+    NaN where none. Also how many falls, and whether the fall is at the ray's end."""
     g = np.linspace(0.0, 1.0, RAY_GRID)[None, :]
     r = rmax[:, None] * g
     c, s = np.cos(theta)[:, None], np.sin(theta)[:, None]
-    h = state_fn(rows[:, None], r * s * vs[:, None], r * c * is_[:, None])["h"]
+    h = state_fn(rows[:, None], r * s * vs, r * c * is_)["h"]
     fall = (h[:, :-1] > 0) & (h[:, 1:] <= 0)
     count = fall.sum(axis=1)
     has = count > 0
@@ -91,24 +98,53 @@ def trace_on_rays(state_fn, refine, cand, vtop, imax, v_scale, i_scale, points):
     th = np.linspace(0.5 * np.pi, 0.0, k1)
     rows = np.repeat(cand, k1)
     theta = np.tile(th, nc)
-    vs = np.full(rows.size, v_scale); is_ = np.full(rows.size, i_scale)
-    root, count, edge = _crossings(state_fn, refine, rows, theta, rays(theta, rows), vs, is_)
-    root = root.reshape(nc, k1); count = count.reshape(nc, k1); edge = edge.reshape(nc, k1)
+    root, count, edge = _crossings(state_fn, refine, rows, theta, rays(theta, rows), v_scale, i_scale)
+    # where neighbouring rays land far apart along the curve (a sharp breakdown point between
+    # them), add rays between them until the samples are close enough
+    for _ in range(REFINE_ROUNDS):
+        order = np.lexsort((-theta, rows))
+        rows, theta, root, count, edge = rows[order], theta[order], root[order], count[order], edge[order]
+        il, v = root * np.cos(theta), root * np.sin(theta)
+        same = (rows[1:] == rows[:-1]) & np.isfinite(root[1:]) & np.isfinite(root[:-1])
+        dil, dv = np.diff(il), np.diff(v)
+        step = np.where(same, np.hypot(dil, dv), 0.0)
+        total = np.bincount(np.searchsorted(cand, rows[1:]), weights=step, minlength=nc)
+        target = total[np.searchsorted(cand, rows[1:])] / (2.0 * points)
+        # a sharp turn (the breakdown point) between three samples: its chords cut the corner
+        with np.errstate(invalid="ignore", divide="ignore"):
+            cos_turn = (dil[1:] * dil[:-1] + dv[1:] * dv[:-1]) / (step[1:] * step[:-1])
+        turn = same[1:] & same[:-1] & (cos_turn < SHARP_TURN_COS)
+        sharp = np.zeros(step.size, bool)
+        sharp[:-1] |= turn
+        sharp[1:] |= turn
+        narrow = np.abs(np.diff(theta)) < MIN_RAY_ANGLE
+        wide = np.flatnonzero(same & ((step > target) | sharp) & ~narrow)
+        if not wide.size:
+            break
+        t_new = 0.5 * (theta[wide] + theta[wide + 1])
+        r_new = rows[wide]
+        x, c, e = _crossings(state_fn, refine, r_new, t_new, rays(t_new, r_new), v_scale, i_scale)
+        rows = np.concatenate([rows, r_new]); theta = np.concatenate([theta, t_new])
+        root = np.concatenate([root, x]); count = np.concatenate([count, c]); edge = np.concatenate([edge, e])
+    order = np.lexsort((-theta, rows))
+    rows, theta, root, count, edge = rows[order], theta[order], root[order], count[order], edge[order]
     states, notes = {}, {}
     sel_rows, sel_theta, owner = [], [], []
-    for r, i in enumerate(cand):
-        ok = np.isfinite(root[r])
+    for i in cand:
+        sel = rows == i
+        rr_all, th_i, cnt, edg = root[sel], theta[sel], count[sel], edge[sel]
+        ok = np.isfinite(rr_all)
         note = []
         if not ok[0]:
             states[i], notes[i] = None, "no built-up no-load point on the searched span"
             continue
         # the curve from no load along consecutive rays that meet it
-        last = int(np.argmin(ok)) - 1 if not ok.all() else k1 - 1
-        if np.any(count[r, :last + 1] > 1):
+        last = int(np.argmin(ok)) - 1 if not ok.all() else ok.size - 1
+        if np.any(cnt[:last + 1] > 1):
             note.append("a ray from the origin meets this curve more than once: its outer boundary is shown")
-        if edge[r, last] or last < k1 - 1:
+        if edg[last] or last < ok.size - 1:
             note.append("the curve reaches the searched current span")
-        rr, tt = root[r, :last + 1], th[:last + 1]
+        rr, tt = rr_all[:last + 1], th_i[:last + 1]
         il = rr * np.cos(tt); v = rr * np.sin(tt)
         arc = np.concatenate([[0.0], np.cumsum(np.hypot(np.diff(il), np.diff(v)))])
         if arc[-1] <= 0:
@@ -119,8 +155,7 @@ def trace_on_rays(state_fn, refine, cand, vtop, imax, v_scale, i_scale, points):
         notes[i] = "; ".join(note)
     if sel_rows:
         rows2 = np.concatenate(sel_rows); th2 = np.concatenate(sel_theta)
-        vs2 = np.full(rows2.size, v_scale); is2 = np.full(rows2.size, i_scale)
-        root2, _, _ = _crossings(state_fn, refine, rows2, th2, rays(th2, rows2), vs2, is2)
+        root2, _, _ = _crossings(state_fn, refine, rows2, th2, rays(th2, rows2), v_scale, i_scale)
         # a ray of the second pass can only miss where the first found the curve at its edge
         v = root2 * np.sin(th2) * v_scale
         il = root2 * np.cos(th2) * i_scale
@@ -131,3 +166,90 @@ def trace_on_rays(state_fn, refine, cand, vtop, imax, v_scale, i_scale, points):
             states[i] = st
     return states, notes
 
+
+
+#: Steps of the homotopy from the fixed-speed curve to the curve on the drive.
+HOMOTOPY_STEPS = 12
+#: Half-width of the search along each point's normal, per unit of rated voltage and current.
+NORMAL_WINDOW = 0.25
+#: Grid along the normal before refining.
+NORMAL_GRID = 51
+
+
+def follow_along_normals(state_fn, refine, curves, v_scale, i_scale, steps=HOMOTOPY_STEPS):
+    """Carry sampled curves from ``lam = 0`` to ``lam = 1`` of a family ``h_lam(V, IL) = 0``.
+
+    For curves that are not star-shaped from the origin (a ray meets them
+    twice, or they end at the origin because the machine has no residual
+    voltage) the samples of the fixed-speed curve (``lam = 0``, walked
+    exactly) are moved, in ``steps`` small steps of ``lam``, along the
+    normal of the current polyline to the nearest root of the next member.
+    Every point of every curve moves at once.
+
+    Parameters
+    ----------
+    state_fn : callable
+        ``state_fn(lam, rows, v, il)`` -> dict with the residual ``h`` [V].
+    refine : callable
+        ``refine(f, a, b, f(a), steps)``: a vectorised bracketing root refiner.
+    curves : dict
+        ``{row: (il, v)}`` samples in order along each curve [A], [V].
+
+    Returns
+    -------
+    dict
+        ``{row: (il, v, lost)}`` at ``lam = 1``; ``lost`` counts samples
+        whose root could not be followed (dropped).
+    """
+    rows_l, pts, owner = [], [], []
+    for i, (il, v) in curves.items():
+        il, v = np.asarray(il, float), np.asarray(v, float)
+        rows_l.append(np.full(il.size, i)); owner.append((i, il.size))
+        pts.append(np.c_[il / i_scale, v / v_scale])
+    if not pts:
+        return {}
+    rows = np.concatenate(rows_l)
+    p = np.concatenate(pts)
+    alive = np.isfinite(p).all(axis=1)
+    t = np.linspace(-NORMAL_WINDOW, NORMAL_WINDOW, NORMAL_GRID)
+    for j in range(1, steps + 1):
+        lam = j / steps
+        nrm = np.zeros_like(p)
+        start = 0
+        for i, n in owner:
+            q = p[start:start + n]
+            ok = alive[start:start + n]
+            tan = np.zeros_like(q)
+            if ok.sum() >= 2:
+                idx = np.flatnonzero(ok)
+                tan[idx] = np.gradient(q[idx], axis=0)
+            nrm[start:start + n] = np.c_[-tan[:, 1], tan[:, 0]]
+            start += n
+        length = np.hypot(nrm[:, 0], nrm[:, 1])
+        nrm = np.where(length[:, None] > 0, nrm / np.where(length > 0, length, 1.0)[:, None], [0.0, 1.0])
+        live = np.flatnonzero(alive)
+        if not live.size:
+            break
+        q = p[live][:, None, :] + t[None, :, None] * nrm[live][:, None, :]
+        h = state_fn(lam, rows[live][:, None], q[..., 1] * v_scale, q[..., 0] * i_scale)["h"]
+        change = np.signbit(h[:, :-1]) != np.signbit(h[:, 1:])
+        dist = np.where(change, np.abs(0.5 * (t[:-1] + t[1:]))[None, :], np.inf)
+        c = np.argmin(dist, axis=1)
+        found = np.isfinite(dist[np.arange(live.size), c])
+        r_live, n_live, p_live = rows[live], nrm[live], p[live]
+
+        def hr(tt):
+            qq = p_live + tt[:, None] * n_live
+            return state_fn(lam, r_live, qq[:, 1] * v_scale, qq[:, 0] * i_scale)["h"]
+
+        a, b = t[c], t[c + 1]
+        root = refine(hr, a, b, h[np.arange(live.size), c], 40)
+        p[live] = np.where(found[:, None], p_live + root[:, None] * n_live, np.nan)
+        alive[live] = found
+    out = {}
+    start = 0
+    for i, n in owner:
+        q, ok = p[start:start + n], alive[start:start + n]
+        out[i] = (q[ok, 0] * i_scale, q[ok, 1] * v_scale, int(n - ok.sum()))
+        start += n
+    return out

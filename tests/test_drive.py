@@ -513,3 +513,37 @@ def test_sheet_gives_the_drive_and_tachometer_checks(tmp_path):
     assert "Tachometer check, generator shaft at no load" in md
     assert f"about {o.figures['min_speed_rpm']:.0f} rpm" in md
     assert o.figures["min_speed_rpm"] < o.figures["no_load_speed_rpm"] <= p.speeds_rpm[0]
+
+
+@given(st.data())
+def test_isochronous_engine_gives_the_fixed_speed_curve(data):
+    """An engine with no droop turns the set at its no-load speed whatever the load, so the curve
+    traced with the speed an unknown (along rays, or carried from the fixed-speed curve where rays
+    meet it twice) is the fixed-speed curve at that speed: the same no-load voltage, and every
+    fixed-speed sample within one sample spacing of the driven curve (a closed form: the drive's
+    equation is s = s0 identically)."""
+    from supplycfg.circuit import SELF_EXCITED
+    m = machine_from_dict(data.draw(machine_tables()))
+    s = replace(data.draw(settings_for(m, connections=SELF_EXCITED)), speed_rpm=m.rated_speed_rpm)
+    d = profile_with({"kind": "engine", "no_load_speed_rpm": m.rated_speed_rpm, "droop_percent": 0.0,
+                      "rated_power_kw": 10.0}).drive
+    fixed = external_characteristic(m, s, 60)
+    driven = external_characteristic(m, s, 60, d)
+    note(f"{s}\nfixed {fixed.notes}\ndriven {driven.notes}")
+    if fixed.no_load_voltage_v is None or not fixed.points["terminal_voltage_v"].size:
+        return
+    if driven.no_load_voltage_v is not None:
+        assert_allclose(driven.no_load_voltage_v, fixed.no_load_voltage_v, rtol=1e-6, atol=1e-9)
+    if not driven.points["terminal_voltage_v"].size:
+        return
+    vr, ir = m.rated_voltage_v, m.rated_armature_current_a
+    pa = np.c_[fixed.points["load_current_a"] / ir, fixed.points["terminal_voltage_v"] / vr]
+    pb = np.c_[driven.points["load_current_a"] / ir, driven.points["terminal_voltage_v"] / vr]
+    pa = pa[(pa[:, 0] >= 0) & (pa[:, 1] >= 0)]
+    spacing = np.max(np.hypot(*np.diff(pb, axis=0).T))
+    gap = np.min(np.hypot(pa[:, None, 0] - pb[None, :, 0], pa[:, None, 1] - pb[None, :, 1]), axis=1)
+    if "the curve reaches the searched current span" in fixed.notes:
+        gap = gap[pa[:, 0] < 0.9 * np.max(pb[:, 0])]   # both end at the searched span, not at one place
+    if any("could not be followed" in n for n in driven.notes):
+        return      # said so: the points it kept are on the curve (the energy-balance property checks them)
+    assert np.all(gap <= spacing + 1e-9)
