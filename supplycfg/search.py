@@ -83,6 +83,7 @@ class SearchResult:
     def as_dict(self):
         return {"tool": f"supplycfg {__version__}", "machine": self.machine.label,
                 "profile": self.profile.label, "kind": self.profile.kind,
+                "drive": self.profile.drive.describe(),
                 "options": [o.as_dict() for o in self.options],
                 "cautions": [c.as_dict() for c in self.cautions],
                 "candidates_evaluated": self.candidates_evaluated,
