@@ -327,7 +327,8 @@ def no_load_setting_field(space, base_idx, u):
     return no_load_field_current_a(sub, no_load_voltages(sub))
 
 
-def option_advice(space, evaluate, u, limits, setting_field, res=None):
+def option_advice(space, evaluate, u, limits, setting_field, res=None, scan=BAND_SCAN_POINTS,
+                  steps=BAND_BISECTION_STEPS):
     """Readings and band of every candidate of a search whose control is continuous.
 
     Parameters
@@ -367,7 +368,7 @@ def option_advice(space, evaluate, u, limits, setting_field, res=None):
         lim = evaluate(space, bases[k], val, **({} if res is None else {"res": res}))[0]
         return smallest_margin_fraction(lim)
 
-    band_lo, band_hi = control_band(margin_of, uu, lo, hi)
+    band_lo, band_hi = control_band(margin_of, uu, lo, hi, scan, steps)
     have = np.isfinite(band_lo)
     # field currents at the exact control and at both ends of the band
     c0, h0 = field_at_corners(setting_field(space, bases, np.where(np.isfinite(u), u, lo)), nb,

@@ -1664,7 +1664,9 @@ def solve(space):
     lim, figs, extras = plan_figures(plan)
     evaluated = plan.rows_base.size * ((PLAN_INTERVALS + 1) * 2 + SCAN_INTERVALS + 1)
     # readings at the start of charge and the band of main-charge fields that keeps every limit
-    advice, n = option_advice(space, evaluate, plan.u1, lim, start_setting_field)
+    # each band step re-solves whole plans: a coarser scan and fewer halvings (a few hundredths of
+    # an ohm, far below what the readings are rounded to) keep the search quick
+    advice, n = option_advice(space, evaluate, plan.u1, lim, start_setting_field, scan=4, steps=10)
     extras = [dict(e or {}, **a) for e, a in zip(extras, advice)]
     return plan.u1, lim, figs, extras, int(evaluated + n)
 
