@@ -387,17 +387,25 @@ def machine_state(circ, p, v, il):
     x = field_after_armature_reaction(field + p["c"] * ibr, circ.ar.mmf(ia) / circ.nsh)
     occ = circ.occ.emf(x)
     if circ.drive is None:
-        s, conv, unique = p["s"], True, True
+        s = p["s"]
     else:
         s, conv, unique = circ.drive.speed_ratio(p, occ * ia, 0.0, v * il)
     e = s * occ
     h = e - ia * p["ra"] - ibr * p["rbr"] - brush_drop(ia, circ.vb, circ.ir) - v
     ish = field * (p["kind"] != 2)
-    return {"terminal_voltage_v": v, "load_current_a": il, "armature_current_a": ia,
-            "shunt_field_current_a": ish, "series_field_current_a": ibr * _winding_share(circ, p),
-            "series_branch_current_a": ibr, "generated_emf_v": e, "x": x, "h": h,
-            "speed_rpm": np.broadcast_to(s * circ.occ.speed_rpm, h.shape),
-            "drive_converged": np.broadcast_to(conv, h.shape), "drive_unique": np.broadcast_to(unique, h.shape)}
+    out = {"terminal_voltage_v": v, "load_current_a": il, "armature_current_a": ia,
+           "shunt_field_current_a": ish, "series_field_current_a": ibr * _winding_share(circ, p),
+           "series_branch_current_a": ibr, "generated_emf_v": e, "x": x, "h": h}
+    if circ.drive is not None:
+        out.update(speed_rpm=s * circ.occ.speed_rpm, drive_converged=conv, drive_unique=unique)
+    return out
+
+
+def drive_settled(st):
+    """Where the drive's speed equation held at a state of :func:`machine_state` (True without a drive)."""
+    if "drive_converged" not in st:
+        return True
+    return st["drive_converged"] & st["drive_unique"]
 
 
 def power_flow(circ, p, v, il):
@@ -413,6 +421,8 @@ def power_flow(circ, p, v, il):
         the circuit residual ``h`` is zero.
     """
     st = machine_state(circ, p, v, il)
+    if "speed_rpm" not in st:
+        st["speed_rpm"] = np.broadcast_to(p["s"] * circ.occ.speed_rpm, np.shape(st["h"]))
     m = circ.machine
     loss_rows = (machine_rotational_loss_w(m), m.rated_speed_rpm, machine_loss_exponent(m),
                  0.01 * machine_stray_percent(m))
@@ -727,7 +737,7 @@ def solve_operating_points(circ, loads, idx=None, grid=LOAD_LINE_GRID, window=No
         v, il = pt_rows(root)
         st = machine_state(circ, pr, v, il)
         scale = 1e-6 * np.maximum(1.0, np.abs(v))
-        good = (np.abs(st["h"]) <= np.maximum(1e-6, scale)) & st["drive_converged"] & st["drive_unique"]
+        good = (np.abs(st["h"]) <= np.maximum(1e-6, scale)) & drive_settled(st)
         ok = bool(np.all(good))
         inside = np.abs(st["armature_current_a"]) <= circ.imax * (1 + 1e-9)
         ext = circ.occ.extrapolated(st["x"])
@@ -1302,7 +1312,7 @@ def characteristics_of(circ, points=400):
         ch.points.update(drive_point_keys(circ, candidate_params(circ, np.full(v.size, i)), v, ch.points["load_current_a"]))
         if circ.drive is not None and v.size and ch.converged:
             st_i = machine_state(circ, candidate_params(circ, np.full(v.size, i)), v, ch.points["load_current_a"])
-            if not np.all(st_i["drive_converged"] & st_i["drive_unique"]):
+            if not np.all(drive_settled(st_i)):
                 ch.converged, ch.message = False, "the drive's speed did not settle at a point"
         result.append(ch)
     return result
@@ -1760,8 +1770,7 @@ def normal_points(circ, lo, hi, v_of=None, il_of=None, grid=97, steps=44, vi_of=
     out["found"] = found
     out["beyond"] = beyond
     out["reversed"] = found & (st["generated_emf_v"] < 0)
-    out["converged"] = ~found | ((np.abs(st["h"]) <= 1e-6 * np.maximum(1.0, np.abs(vv)))
-                                 & st["drive_converged"] & st["drive_unique"])
+    out["converged"] = ~found | ((np.abs(st["h"]) <= 1e-6 * np.maximum(1.0, np.abs(vv))) & drive_settled(st))
     return out
 
 

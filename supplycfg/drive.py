@@ -71,9 +71,9 @@ DEFAULT_STRAY_LOAD_LOSS_PERCENT = 1.0
 RATIO_RANGE = (0.05, 20.0)
 #: Largest drive rating accepted [kW]: far above any set this tool is for.
 MAX_RATED_POWER_KW = 1e5
-#: Newton steps of the coupled speed and the step below which they stop [share of no-load speed].
+#: Newton steps of the coupled speed, and the residual below which they stop [share of no-load speed].
 SPEED_NEWTON_STEPS = 30
-SPEED_TOLERANCE = 1e-14
+SPEED_TOLERANCE = 1e-13
 #: The coupled speed is kept within these shares of the drive's no-load speed:
 #: below, the set has stalled anyway (flagged), above it is being driven hard by its load.
 SPEED_FLOOR_SHARE = 0.02
@@ -405,10 +405,18 @@ class DriveRows:
                    0.01 * machine_stray_percent(machine))
 
     def rotational_w(self, s):
-        """Rotational loss [W] at speed ratio ``s``, and its derivative in ``s``."""
-        s = np.maximum(s, 1e-300)
-        p = self.rot_w * (s / self.rot_s) ** self.rot_exp
-        return p, self.rot_exp * p / s
+        """Rotational loss [W] at speed ratio ``s`` (> 0), and its derivative in ``s``."""
+        x = s / self.rot_s
+        k = self.rot_exp
+        if k == 1.5:
+            p = self.rot_w * x * np.sqrt(x)
+        elif k == 1.0:
+            p = self.rot_w * x
+        elif k == 2.0:
+            p = self.rot_w * x * x
+        else:
+            p = self.rot_w * x ** k
+        return p, k * p / s
 
     def speed_ratio(self, p, a, b, c):
         """Generator speed ratio where the drive's characteristic meets the shaft power.
@@ -442,14 +450,13 @@ class DriveRows:
         linear_out = np.any(b != 0)
         for _ in range(SPEED_NEWTON_STEPS):
             f, df = self._residual(s, a, b, c, out_c, linear_out)
+            if np.all(np.abs(f) <= SPEED_TOLERANCE * s0):
+                break
             ok = df > 0
             step = np.where(ok, f / np.where(ok, df, 1.0), np.where(f > 0, 0.1, -0.1) * s0)
-            new = np.clip(s - step, lo, hi)
-            done = np.abs(new - s) <= SPEED_TOLERANCE * s0
-            s = new
-            if np.all(done):
-                break
-        f, df = self._residual(s, a, b, c, out_c, linear_out)
+            s = np.minimum(np.maximum(s - step, lo), hi)
+        else:
+            f, df = self._residual(s, a, b, c, out_c, linear_out)
         return s, np.abs(f) <= 1e-12 * s0, df > 0
 
     def _residual(self, s, a, b, c, out_c, linear_out):

@@ -108,6 +108,17 @@ FIGURE_WORDS = {
     "min_no_load_voltage_v": "no-load voltage (mean), lowest",
     "no_load_strike_min_v": "no-load voltage an arc needs to strike",
     "tap_changes": ("series-tap changes along the welding dial", ""),
+    "max_shaft_power_kw": ("shaft power, highest over the job's load points", "kW"),
+    "min_speed_rpm": "generator speed under load, lowest",
+    "max_speed_rpm": "generator speed under load, highest",
+    "min_efficiency": ("efficiency of the set's generator, lowest", ""),
+    "collapsed_load_points": ("load points where the field collapses at the drive's speed", ""),
+    "max_drive_loading_percent": "drive loading, highest (shaft power over its rating)",
+    "drive_rated_power_kw": ("drive rating", "kW"),
+    "max_drive_torque_percent": "motor torque, highest (share of its rated torque)",
+    "breakdown_torque_percent": "motor breakdown torque (share of its rated torque)",
+    "idle_no_load_voltage_v": "no-load voltage at the engine's idle",
+    "idle_builds_up": ("field builds up at the engine's idle (1 yes, 0 no)", ""),
 }
 
 #: Plain words for the limits the search checks.
@@ -135,6 +146,7 @@ LIMIT_WORDS = {
     "exciter_supply": "field current within the exciter's reach",
     "solve_not_converged": "the solve converged",
     "stop_caution": "no stop caution",
+    "drive_power": "shaft power within the drive's rating",
 }
 
 
