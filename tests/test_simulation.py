@@ -61,16 +61,16 @@ def full_run(machine, profile, best):
     return charge_run_for_option(machine, profile, best)
 
 
-def steady_current_a(machine, setting, job, soc, iterations=40):
+def steady_current_a(machine, setting, job, soc, iterations=40, drive=None):
     """Normal operating point on the bank's charging curve by Newton steps: each step meets the tangent
-    line of the curve at the last current (``Load.line``) with ``operating_points``."""
+    line of the curve at the last current (``Load.line``) with ``operating_points`` (on ``drive``)."""
     i = 1.0
     for _ in range(iterations):
         d = 1e-5 * max(1.0, abs(i))
         v = lambda c: float(battery.bank_voltage_v(job, soc, c))
         slope = (v(i + d) - v(i - d)) / (2 * d)
         v0 = v(i) - slope * i
-        pt = operating_points(machine, setting, Load.line(v0, slope)).normal
+        pt = operating_points(machine, setting, Load.line(v0, slope), drive).normal
         assert pt is not None
         new = pt["load_current_a"]
         if abs(new - i) < 1e-10 * max(1.0, abs(i)):
@@ -152,7 +152,7 @@ def test_current_equals_steady_state_point(machine, profile, full_run, k):
     ``operating_points`` agree within 0.1 % (derived: both solve the same circuit and curve)."""
     r = full_run
     st = r.setting if r.stage[k] == 1 else r.finish_setting
-    want = steady_current_a(machine, st, profile.battery, float(r.state_of_charge[k]))
+    want = steady_current_a(machine, st, profile.battery, float(r.state_of_charge[k]), drive=profile.drive)
     assert_allclose(r.current_a[k], want, rtol=1e-3)
     assert_allclose(charging_current_a(machine, profile, st, [r.state_of_charge[k]])[0], want, rtol=1e-3)
     assert_allclose(r.terminal_voltage_v[k], battery.bank_voltage_v(profile.battery, r.state_of_charge[k], want),
