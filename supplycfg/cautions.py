@@ -6,6 +6,8 @@ none is published it says "common practice". Local codes, the
 manufacturers' instructions and licensed practice come first.
 """
 
+import math
+
 from dataclasses import dataclass, field
 
 SEVERITIES = ("stop", "warn", "note")
@@ -156,6 +158,7 @@ def drive_cautions(machine, drive, f):
     out = []
     if drive is None or not drive.coupled:
         return out
+    f = {k: v for k, v in f.items() if v is not None and not (isinstance(v, float) and not math.isfinite(v))}
     tq, bd = f.get("max_drive_torque_percent"), f.get("breakdown_torque_percent")
     if tq is not None and bd is not None and tq > bd:
         out.append(caution("drive-stall", "stop",
