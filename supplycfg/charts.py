@@ -337,8 +337,9 @@ def curve_rows(label, characteristic, x_key="load_current_a", y_key="terminal_vo
         v = transform(il, v)
     ext = np.asarray(p.get("extrapolated", np.zeros(il.size, bool)), bool)
     nan = np.full(il.size, np.nan)
-    speed = np.asarray(p.get("speed_rpm", nan), float)
-    shaft = np.asarray(p.get("shaft_power_kw", nan), float)
+    flow = getattr(characteristic, "power", None) or {}
+    speed = np.asarray(flow.get("speed_rpm", nan), float)
+    shaft = np.asarray(flow.get("shaft_power_kw", nan), float)
     return [{"series": label, "load_current_a": _f(a), "terminal_voltage_v": _f(b),
              "extrapolated": "yes" if e else "no", "order": i, "speed_rpm": _f(n), "shaft_power_kw": _f(w)}
             for i, (a, b, e, n, w) in enumerate(zip(il, v, ext, speed, shaft)) if np.isfinite(a) and np.isfinite(b)]

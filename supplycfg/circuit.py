@@ -867,6 +867,9 @@ class Characteristic:
     within the searched span (10 x rated armature current).
     ``regulation_percent`` is ``(V_no-load - V_full) / V_full``, full load
     being the load current at which the armature carries its rated current.
+    ``power`` holds the power flow along the curve (:func:`drive_point_keys`:
+    speed, shaft power, drive loading, efficiency, losses by kind; NaN where
+    undefined).
     """
 
     setting: Setting
@@ -879,15 +882,17 @@ class Characteristic:
     converged: bool = True
     message: str = ""
     notes: list = field(default_factory=list)
+    power: dict = field(default_factory=dict)
 
     def point_list(self):
+        """Each point as a dict: the curve-point keys, ``extrapolated`` and the power flow
+        (:data:`DRIVE_POINT_KEYS`; None where undefined, e.g. efficiency without output)."""
         n = len(self.points["terminal_voltage_v"])
-        base = POINT_KEYS + ("extrapolated",)
-        extra = {k: v for k, v in self.points.items() if k not in base}
         out = []
         for i in range(n):
-            d = {k: (bool(self.points[k][i]) if k == "extrapolated" else float(self.points[k][i])) for k in base}
-            d.update(_point_at(extra, i))
+            d = {k: (bool(self.points[k][i]) if k == "extrapolated" else float(self.points[k][i]))
+                 for k in POINT_KEYS + ("extrapolated",)}
+            d.update(_point_at(self.power, i))
             out.append(d)
         return out
 
@@ -1272,9 +1277,9 @@ def characteristics_of(circ, points=400):
             xa, xb = np.concatenate(pick_xa), np.concatenate(pick_xb)
             ia_a, ia_b = np.concatenate(pick_ia), np.concatenate(pick_ib)
             fx = lambda xx: _n_fun(circ, pc, xx, sg) - lam
-            x = refine_bracketed_roots(fx, xa, xb, fx(xa), 30)
+            x = refine_bracketed_roots(fx, xa, xb, fx(xa), 50)
             fi = lambda ii: _l_fun(circ, pc, ii, sg) - lam
-            ia_s = refine_bracketed_roots(fi, ia_a, ia_b, fi(ia_a), 30)
+            ia_s = refine_bracketed_roots(fi, ia_a, ia_b, fi(ia_a), 50)
             v_s, il_s = _state_from_x_ia(circ, pc, x, ia_s, sg)
     # --- assemble ---------------------------------------------------------
     states, notes = [None] * n, [""] * n
@@ -1309,7 +1314,7 @@ def characteristics_of(circ, points=400):
             continue
         ch = _finish(circ, i, st, states[i], notes[i], ops[i], folds.get(i), i in at_zero)
         v = ch.points["terminal_voltage_v"]
-        ch.points.update(drive_point_keys(circ, candidate_params(circ, np.full(v.size, i)), v, ch.points["load_current_a"]))
+        ch.power = drive_point_keys(circ, candidate_params(circ, np.full(v.size, i)), v, ch.points["load_current_a"])
         if circ.drive is not None and v.size and ch.converged:
             st_i = machine_state(circ, candidate_params(circ, np.full(v.size, i)), v, ch.points["load_current_a"])
             if not np.all(drive_settled(st_i)):
@@ -1475,7 +1480,8 @@ def _refine_batch(circ, states):
     out = {i: [OperatingPoints([]), OperatingPoints([]), OperatingPoints([])] for i in range(circ.n)}
     if not idx:
         return out
-    res = solve_operating_points(circ, loads, np.array(idx), grid=129, window=(np.array(w0), np.array(w1)), steps=28)
+    # refined to rounding: these points are reported, and their power balance holds only as well as h = 0
+    res = solve_operating_points(circ, loads, np.array(idx), grid=129, window=(np.array(w0), np.array(w1)), steps=60)
     retry = []
     for (i, k), r, ld, a, b in zip(who, res, loads, w0, w1):
         out[i][k] = r

@@ -46,7 +46,7 @@ class DrivePoints:
             return
         nc, n, points = self._args
         vals = {k: [] for k in DRIVE_POINT_KEYS if k != "losses_w"}
-        vals.update(drive_torque_percent=[], terminal_voltage_v=[], load_current_a=[])
+        vals.update(drive_torque_percent=[], exciter_power_w=[], terminal_voltage_v=[], load_current_a=[])
         losses = {}
         collapsed = np.zeros(n * nc)
         for label, sub, v, il in points:

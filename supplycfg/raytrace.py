@@ -23,7 +23,7 @@ FIRST_RAYS = 161
 #: Grid points along each ray before refining the crossing.
 RAY_GRID = 257
 #: Refinement steps of a crossing.
-RAY_STEPS = 40
+RAY_STEPS = 60
 
 
 def _crossings(state_fn, refine, rows, theta, rmax, vs, is_):

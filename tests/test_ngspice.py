@@ -403,7 +403,8 @@ def test_driven_shunt_characteristic_matches_ngspice(tmp_path):
     """
     machine = machine_from_dict(DRIVEN_MACHINE, "driven check machine")
     setting, table, _ = DRIVEN_CASES["shunt-engine"]
-    curve = external_characteristic(machine, setting, 100, profile_drive(table)).points
+    ch = external_characteristic(machine, setting, 100, profile_drive(table))
+    curve = ch.points
     v, il = curve["terminal_voltage_v"], curve["load_current_a"]
     keep = np.flatnonzero((v > 1.0) & (il > 0))[::6]
     assert keep.size >= 8 and keep.max() > np.argmax(il)
@@ -412,4 +413,4 @@ def test_driven_shunt_characteristic_matches_ngspice(tmp_path):
                       tmp_path, "driven-curve", drive=drive_model(table, machine))
     rows = np.array([int(np.argmin(np.abs(res["load_value"] - gi))) for gi in g])
     assert_same({k: curve[k][keep] for k in QUANTITIES}, {k: res[k][rows] for k in QUANTITIES}, "driven curve")
-    assert_allclose(curve["speed_rpm"][keep], res["speed_ratio"][rows] * machine.occ_speed_rpm, rtol=RTOL)
+    assert_allclose(ch.power["speed_rpm"][keep], res["speed_ratio"][rows] * machine.occ_speed_rpm, rtol=RTOL)

@@ -579,7 +579,7 @@ BAD = [
     ("battery", "synchronous_speed_rpm = 1500", "synchronous_speed_rpm = -5", "drive.synchronous_speed_rpm"),
     ("battery", "rated_power_kw = 11", "rated_power_kw = 0", "drive.rated_power_kw"),
     ("battery", "breakdown_torque_percent = 250", "breakdown_torque_percent = 90", "drive.breakdown_torque_percent"),
-    ("battery", "rated_slip_percent = 3.3", "rated_slip_percent = 3.3\nspeed_rpm = 1450", "drive.speed_rpm"),
+    ("battery", "rated_slip_percent = 3.5", "rated_slip_percent = 3.5\nspeed_rpm = 1450", "drive.speed_rpm"),
     ("welding", 'kind = "engine"', 'kind = "turbine"', "drive.kind"),
     ("welding", "droop_percent = 5", "droop_percent = 40", "drive.droop_percent"),
     ("welding", "idle_speed_rpm = 1800", "idle_speed_rpm = 3500", "drive.idle_speed_rpm"),

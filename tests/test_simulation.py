@@ -212,7 +212,8 @@ def test_start_current_above_the_jobs_highest_gets_a_caution(machine, profile, r
 def test_stop_at_the_highest_cell_voltage(machine, profile):
     """A finish on a strong field drives the cells to the chemistry's highest voltage, 2.7 V for vented
     lead-acid (common practice, from memory): the run stops there and says so."""
-    r = charge_run(machine, profile, Setting(rheostat_ohm=21.39, **DIFF), finish_setting=Setting(rheostat_ohm=5.0, **DIFF))
+    # the demo's motor slows under load (about 1430 rpm at the generator), so the finish is set strong
+    r = charge_run(machine, profile, Setting(rheostat_ohm=21.39, **DIFF), finish_setting=Setting(rheostat_ohm=0.0, **DIFF))
     assert r.stop == "voltage-limit" and "highest voltage" in r.stop_reason
     assert r.stages[-1]["ends_because"] == "voltage-limit"
     assert_allclose(r.volts_per_cell[-1], 2.7, atol=1e-9)
@@ -421,9 +422,13 @@ def test_search_json_carries_the_plan(result):
 
 
 def test_feasible_plans_ranked_by_hours(result):
-    """The battery's objective is hours to full (design note): feasible options come in order of it."""
+    """The battery's objective is hours to full (design note): feasible options come in order of it,
+    where hours within 2 % of each other tie and go to the simpler rig, then the larger margin (the
+    stated ranking rule): no option is beaten by more than 2 % by one ranked below it."""
+    from supplycfg.search import OBJECTIVE_TIE_FRACTION
     hours = [o.figures["hours_to_full"] for o in result.feasible]
-    assert hours == sorted(hours)
+    for k, h in enumerate(hours):
+        assert all(h <= later * (1 + OBJECTIVE_TIE_FRACTION) for later in hours[k + 1:])
     assert_allclose(battery.objective({"hours_to_full": np.array(hours)}), hours)
     assert battery.OBJECTIVE_LABEL.startswith("hours to full")
 
