@@ -17,7 +17,7 @@ from dataclasses import replace
 
 import numpy as np
 
-from .circuit import DRIVE_POINT_KEYS, drive_point_keys, machine_state, no_load_voltages
+from .circuit import DRIVE_POINT_KEYS, drive_point_keys, machine_state, no_load_voltages, normal_points
 from .envelope import expand_candidates
 
 #: Relative step of terminal voltage for the slope test of a loaded self-excited point.
@@ -76,14 +76,14 @@ class DrivePoints:
 
     def summary(self):
         """Per-candidate figures: peak shaft power [kW], least and most speed [rpm], least
-        efficiency, collapsed points; with a rated drive its loading and (motor) torque [%]."""
+        efficiency [%], collapsed points; with a rated drive its loading and (motor) torque [%]."""
         self._solve()
         v = self.values
         n = v["shaft_power_kw"].shape[0]
         figs = {"max_shaft_power_kw": _nan_reduce(v["shaft_power_kw"], "max"),
                 "min_speed_rpm": _nan_reduce(v["speed_rpm"], "min"),
                 "max_speed_rpm": _nan_reduce(v["speed_rpm"], "max"),
-                "min_efficiency": _nan_reduce(v["efficiency"], "min")}
+                "min_efficiency_percent": 100.0 * _nan_reduce(v["efficiency"], "min")}
         if self.drive.coupled:
             figs["collapsed_load_points"] = self.collapsed
             figs["max_drive_loading_percent"] = _nan_reduce(v["drive_loading_percent"], "max")
@@ -190,3 +190,23 @@ def idle_figures(space, base_idx, u):
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", RuntimeWarning)
         return np.nanmin(vnl, axis=1), np.nanmin(builds, axis=1)
+
+
+def no_load_speeds(space, base_idx, u):
+    """Generator speed [rpm] at no load on an engine or a motor: the set's own losses already load it.
+
+    The highest over the envelope's corners (the tachometer check at no load); NaN where the
+    machine has no no-load point, or with a fixed drive.
+    """
+    n = len(base_idx)
+    if not space.profile.drive.coupled:
+        return np.full(n, np.nan)
+    sub, _ = expand_candidates(space, base_idx, u)
+    top = 1.5 * sub.machine.rated_voltage_v * sub.s / sub.s.min() + 50.0
+    r = normal_points(sub, np.zeros(sub.n), top, il_of=lambda t: np.zeros_like(t))
+    v = np.where(r["found"], r["terminal_voltage_v"], 0.0)
+    speed = drive_point_keys(sub, sub.take(np.arange(sub.n)), v, np.zeros(sub.n))["speed_rpm"]
+    speed = np.where(r["found"], speed, np.nan).reshape(n, space.nc)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)
+        return np.nanmax(speed, axis=1)

@@ -38,7 +38,7 @@ SHEET_CHART_WIDTH = 560
 PLAN_HEADERS = ("Stage", "Field", "Time", "Current", "Volts per cell at its end", "Ends because")
 
 # unit suffixes of figure names, longest first
-_UNITS = (("_v_per_a", "V/A"), ("_m3_per_h", "m³/h"), ("_percent", "%"), ("_rpm", "rpm"), ("_ohm", "Ω"),
+_UNITS = (("_v_per_a", "V/A"), ("_m3_per_h", "m³/h"), ("_percent", "%"), ("_rpm", "rpm"), ("_ohm", "Ω"), ("_kw", "kW"),
           ("_kwh", "kWh"), ("_ah", "Ah"), ("_a", "A"), ("_v", "V"), ("_h", "h"), ("_c", "°C"))
 
 #: Plain words for the figures the search reports; others are named from their key.
@@ -111,7 +111,8 @@ FIGURE_WORDS = {
     "max_shaft_power_kw": ("shaft power, highest over the job's load points", "kW"),
     "min_speed_rpm": "generator speed under load, lowest",
     "max_speed_rpm": "generator speed under load, highest",
-    "min_efficiency": ("efficiency of the set's generator, lowest", ""),
+    "min_efficiency_percent": "efficiency of the generator at the job's points, lowest",
+    "no_load_speed_rpm": "generator speed at no load",
     "collapsed_load_points": ("load points where the field collapses at the drive's speed", ""),
     "max_drive_loading_percent": "drive loading, highest (shaft power over its rating)",
     "drive_rated_power_kw": ("drive rating", "kW"),
@@ -387,12 +388,33 @@ def setting_rows(option, machine, profile):
     else:
         rows.append(("Field", field_control_text(option, machine)))
     rows += readings
-    speeds = tuple(profile.speeds_rpm)
-    sp = fmt(speeds[0], "rpm") if len(speeds) == 1 else f"{fmt(speeds[0])} to {fmt(speeds[1], 'rpm')}"
-    rows.append(("Drive speed", sp))
+    rows += drive_rows(option, profile)
     temps = profile.temperatures_c
     rows.append(("Winding temperature", f"{fmt(temps[0])} to {fmt(temps[1], '°C')}" if temps
                  else fmt(machine.reference_temperature_c, "°C (the machine's reference)")))
+    return rows
+
+
+def drive_rows(option, profile):
+    """``[(what, how)]`` of the drive: its speed (fixed), or its figures and the tachometer checks."""
+    d = profile.drive
+    speeds = tuple(profile.speeds_rpm)
+    if not d.coupled:
+        sp = fmt(speeds[0], "rpm") if len(speeds) == 1 else f"{fmt(speeds[0])} to {fmt(speeds[1], 'rpm')}"
+        rows = [("Drive speed (generator shaft)", sp)]
+        if d.ratio != 1:
+            rows.append(("Drive", d.describe()))
+        return rows
+    f = option.figures
+    rows = [("Drive", d.describe())]
+    nl, lo, kw = f.get("no_load_speed_rpm"), f.get("min_speed_rpm"), f.get("max_shaft_power_kw")
+    rows.append(("Tachometer check, generator shaft at no load", "about " + fmt(nl, "rpm")))
+    heavy = "about " + fmt(lo, "rpm")
+    if kw is not None:
+        heavy += f" ({fmt(kw, 'kW')} at the shaft)"
+    rows.append(("Tachometer check, generator shaft at the heaviest point of the job", heavy))
+    if d.ratio != 1 and nl is not None and lo is not None:
+        rows.append((f"The same at the {d.kind}'s own shaft", f"about {fmt(nl / d.ratio, 'rpm')} and {fmt(lo / d.ratio, 'rpm')}"))
     return rows
 
 
@@ -643,8 +665,16 @@ def checklist_rows(result, option, run=None):
         rows.append(("Voltage at the far end, light load and full load",
                      _range_text(f.get("load_voltage_min_v"), f.get("load_voltage_max_v"), "V") or note))
     speeds = tuple(p.speeds_rpm)
-    rows.append(("Drive speed on the tachometer",
-                 fmt(speeds[0], "rpm") if len(speeds) == 1 else f"{fmt(speeds[0])} to {fmt(speeds[1], 'rpm')}"))
+    if p.drive.coupled:
+        # an engine or a motor: the speed falls with the load, so two readings
+        nl_rpm, lo_rpm = f.get("no_load_speed_rpm"), f.get("min_speed_rpm")
+        rows.append(("Generator speed on the tachometer, load off",
+                     f"about {fmt(nl_rpm, 'rpm')}" if _given(nl_rpm) else fmt(speeds[0], "rpm")))
+        rows.append(("Generator speed on the tachometer, at the heaviest point of the job",
+                     f"about {fmt(lo_rpm, 'rpm')}" if _given(lo_rpm) else note))
+    else:
+        rows.append(("Drive speed on the tachometer",
+                     fmt(speeds[0], "rpm") if len(speeds) == 1 else f"{fmt(speeds[0])} to {fmt(speeds[1], 'rpm')}"))
     if kind == "battery":
         close = f.get("cutout_closing_voltage_v")
         per_cell = getattr(p.battery, "cutout_closing_volts_per_cell", None)

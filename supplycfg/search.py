@@ -22,7 +22,7 @@ from .envelope import build_space, candidate_bases, margin
 from .jobs import JOBS, option_cautions, profile_cautions
 from .readings import diverter_rating, exciter_supply
 from .machine import load_machine
-from .powerflow import idle_figures
+from .powerflow import idle_figures, no_load_speeds
 from .profile import load_profile
 from .text import visible
 
@@ -321,6 +321,7 @@ def search(machine, profile, with_drive_check=True):
     hot_t = max(c[1] for c in space.corners)
     figs = dict(figs)
     figs["idle_no_load_voltage_v"], figs["idle_builds_up"] = idle_figures(space, np.arange(nb), u_best)
+    figs["no_load_speed_rpm"] = no_load_speeds(space, np.arange(nb), u_best)
     table = figs.get("drive_points")
     if table is not None:
         figs.update({k: v for k, v in table.summary().items() if k not in figs})
@@ -501,6 +502,7 @@ def search_text(res, top=10):
     from .report import KIND_WORDS, condition_words, figure_label, limit_label
     kind = res.profile.kind
     lines = [f"{visible(res.machine.label)} for {visible(res.profile.label)} ({KIND_WORDS.get(kind, kind)})",
+             f"drive: {res.profile.drive.describe()}",
              f"{len(res.options)} distinct options; {res.candidates_evaluated} candidate evaluations in "
              f"{res.search_seconds:.2f} s", "", res.ranking_rule, ""]
     welding = kind == "welding"

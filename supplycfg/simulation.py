@@ -460,6 +460,10 @@ def charge_from_files(machine_path, profile_path, setting=None, names=None, max_
             source = f"option {pick.rank} of the search, the nearest miss (no setting meets every limit)"
         run = charge_run_for_option(m, p, pick, max_hours)
     else:
+        if p.drive.coupled and setting.speed_rpm is not None:
+            raise InputError("command line", (names or {}).get("speed_rpm", "speed_rpm"),
+                             f"is given, but the profile's drive is an {p.drive.kind} whose speed follows the load; "
+                             "allowed: omit it")
         st = check_setting(m, setting, "command line", names)
         source = "command line"
         run = charge_run(m, p, st, max_hours)

@@ -142,7 +142,7 @@ def size_text(res):
         f = o.figures
         lines.append(f"Best setting at that rating: {o.setting.describe(with_connection=True)}")
         for k, unit in (("max_shaft_power_kw", "kW"), ("min_speed_rpm", "rpm"), ("max_speed_rpm", "rpm"),
-                        ("min_efficiency", "")):
+                        ("min_efficiency_percent", "%")):
             v = f.get(k)
             if v is not None:
                 lines.append(f"  {k}: {v:.4g} {unit}".rstrip())

@@ -498,3 +498,18 @@ def test_size_json(capsys):
     fixed = json.loads(capsys.readouterr().out)
     assert fixed["required_drive_kw"] > 0 and fixed["option"]["feasible"]
     assert_allclose(fixed["required_drive_kw"], fixed["option"]["figures"]["max_shaft_power_kw"], rtol=1e-12)
+
+
+def test_sheet_gives_the_drive_and_tachometer_checks(tmp_path):
+    """The setting sheet names the drive and gives the expected generator speed at no load and at
+    the heaviest point of the job, to check with a tachometer; the figures come from the option."""
+    from supplycfg.report import sheet_markdown
+    m = load_machine(MACHINES / "charging-set.toml")
+    p = load_profile(LOADS / "battery-charging.toml")
+    res = search(m, p)
+    md = sheet_markdown(res, date="2026-01-01")
+    o = res.options[0]
+    assert "induction motor, 11 kW" in md
+    assert "Tachometer check, generator shaft at no load" in md
+    assert f"about {o.figures['min_speed_rpm']:.0f} rpm" in md
+    assert o.figures["min_speed_rpm"] < o.figures["no_load_speed_rpm"] <= p.speeds_rpm[0]
