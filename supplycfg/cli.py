@@ -281,7 +281,7 @@ def _drive(args, setting):
     drive = load_profile(args.profile).drive
     if drive.coupled:
         if setting.speed_rpm is not None:
-            raise InputError("command line", "--speed-rpm", f"is given with a profile whose drive is an {drive.kind}: "
+            raise InputError("command line", "--speed-rpm", f"is given with a profile whose drive is {'an' if drive.kind == 'engine' else 'a'} {drive.kind}: "
                              "its speed follows the load; allowed: omit --speed-rpm")
         return drive, replace(setting, speed_rpm=drive.generator_speeds_rpm()[0])
     if setting.speed_rpm is None:

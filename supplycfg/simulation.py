@@ -462,7 +462,7 @@ def charge_from_files(machine_path, profile_path, setting=None, names=None, max_
     else:
         if p.drive.coupled and setting.speed_rpm is not None:
             raise InputError("command line", (names or {}).get("speed_rpm", "speed_rpm"),
-                             f"is given, but the profile's drive is an {p.drive.kind} whose speed follows the load; "
+                             f"is given, but the profile's drive is {'an' if p.drive.kind == 'engine' else 'a'} {p.drive.kind} whose speed follows the load; "
                              "allowed: omit it")
         st = check_setting(m, setting, "command line", names)
         source = "command line"
