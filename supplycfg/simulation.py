@@ -103,6 +103,7 @@ class ChargeRun:
     setting_source: str = ""
     speed_rpm: np.ndarray = None
     shaft_power_kw: np.ndarray = None
+    drive_coupled: bool = False
 
     def as_dict(self):
         """JSON-safe: arrays as lists, NaN as None."""
@@ -370,7 +371,7 @@ def charge_run(machine, profile, setting, max_hours=None, finish_setting=None):
         standstill_backfeed_current_a=ex["standstill_backfeed_current_a"], conditions=ex["conditions"],
         figures=f, converged=converged, cautions=cautions, notes=notes,
         machine_label=machine.label, profile_label=profile.label, speed_rpm=speed,
-        shaft_power_kw=shaft)
+        shaft_power_kw=shaft, drive_coupled=profile.drive.coupled)
 
 
 def _stages_as_run(planned, out, stop, reason, duration):
@@ -509,6 +510,10 @@ def charge_text(run):
     lines.append("")
     head = ["time [h]", "stage", "charge [%]", "current [A]", "stored [A]", "machine [V]", "bank [V]", "per cell [V]",
             "charged [Ah]", "energy [kWh]"]
+    # on an engine or a motor the speed follows the load: the tachometer and the shaft power along the run
+    driven = run.speed_rpm is not None and getattr(run, "drive_coupled", False)
+    if driven:
+        head += ["speed [rpm]", "shaft [kW]"]
     rows = []
     if t.size:
         sel = np.unique(np.round(np.linspace(0, t.size - 1, min(TEXT_ROWS, t.size))).astype(int))
@@ -516,7 +521,8 @@ def charge_text(run):
             rows.append([_g(t[k], ".2f"), str(int(run.stage[k])), _g(100 * run.state_of_charge[k], ".1f"),
                          _g(run.current_a[k], ".3g"), _g(run.stored_current_a[k], ".3g"),
                          _g(run.terminal_voltage_v[k], ".1f"), _g(run.bank_voltage_v[k], ".1f"),
-                         _g(run.volts_per_cell[k], ".3f"), _g(run.ah[k], ".1f"), _g(run.kwh[k], ".2f")])
+                         _g(run.volts_per_cell[k], ".3f"), _g(run.ah[k], ".1f"), _g(run.kwh[k], ".2f")]
+                        + ([_g(run.speed_rpm[k], ".0f"), _g(run.shaft_power_kw[k], ".3g")] if driven else []))
     widths = [max(len(h), *(len(r[i]) for r in rows)) if rows else len(h) for i, h in enumerate(head)]
     lines.append("  ".join(h.rjust(w) for h, w in zip(head, widths)))
     lines.append("  ".join("-" * w for w in widths))

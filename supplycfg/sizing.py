@@ -129,7 +129,8 @@ def required_drive_rating(machine, profile, tolerance=RATING_TOLERANCE):
 def size_text(res):
     """What the ``size`` command prints."""
     p = res.profile
-    lines = [f"{res.machine.label} for {p.label} ({p.kind}), drive: {p.drive.describe()}"]
+    from .text import visible
+    lines = [f"{visible(res.machine.label)} for {visible(p.label)} ({p.kind}), drive: {p.drive.describe()}"]
     if res.required_drive_kw is None:
         lines.append("No drive rating makes this job feasible.")
     elif p.drive.coupled:
@@ -141,11 +142,13 @@ def size_text(res):
     if o is not None:
         f = o.figures
         lines.append(f"Best setting at that rating: {o.setting.describe(with_connection=True)}")
-        for k, unit in (("max_shaft_power_kw", "kW"), ("min_speed_rpm", "rpm"), ("max_speed_rpm", "rpm"),
-                        ("min_efficiency_percent", "%")):
+        from .report import figure_label
+        for k in ("max_shaft_power_kw", "max_drive_loading_percent", "min_speed_rpm", "max_speed_rpm",
+                  "min_efficiency_percent"):
             v = f.get(k)
             if v is not None:
-                lines.append(f"  {k}: {v:.4g} {unit}".rstrip())
+                words, unit = figure_label(k)
+                lines.append(f"  {words}: {v:.4g} {unit}".rstrip())
     for n in res.notes:
         lines.append(f"note: {n}")
     lines.append(f"{res.searches} searches")
