@@ -223,13 +223,20 @@ def limit_label(name):
     return LIMIT_WORDS.get(name, name.replace("_", " "))
 
 
+def speed_words(cond):
+    """A condition's speed in words: the speed itself, or on an engine or a motor its no-load speed."""
+    sp = fmt(cond["speed_rpm"], "rpm")
+    kind = cond.get("drive")
+    return f"the {kind}'s speed under load ({sp} at no load)" if kind else sp
+
+
 def condition_words(option):
     """Plain words for the conditions an option's figures hold at (``{setting}``, ``{cold}``, ``{hot}``)."""
     conds = (getattr(option, "extras", None) or {}).get("conditions") or {}
     words = {"setting": "the setting's speed and winding temperature", "cold": "cold windings, top speed",
              "hot": "hot windings, lowest speed"}
     for k, c in conds.items():
-        words[k] = f"{fmt(c['speed_rpm'], 'rpm')}, windings {fmt(c['winding_temperature_c'], '°C')}"
+        words[k] = f"{speed_words(c)}, windings {fmt(c['winding_temperature_c'], '°C')}"
     return words
 
 
@@ -396,26 +403,14 @@ def setting_rows(option, machine, profile):
 
 
 def drive_rows(option, profile):
-    """``[(what, how)]`` of the drive: its speed (fixed), or its figures and the tachometer checks."""
+    """``[(what, how)]`` of the drive on the setting card: its speed (fixed) or what it is (an engine or a
+    motor: the tachometer readings to expect are in the checklist)."""
     d = profile.drive
     speeds = tuple(profile.speeds_rpm)
     if not d.coupled:
         sp = fmt(speeds[0], "rpm") if len(speeds) == 1 else f"{fmt(speeds[0])} to {fmt(speeds[1], 'rpm')}"
-        rows = [("Drive speed (generator shaft)", sp)]
-        if d.ratio != 1:
-            rows.append(("Drive", d.describe()))
-        return rows
-    f = option.figures
-    rows = [("Drive", d.describe())]
-    nl, lo, kw = f.get("no_load_speed_rpm"), f.get("min_speed_rpm"), f.get("max_shaft_power_kw")
-    rows.append(("Tachometer check, generator shaft at no load", "about " + fmt(nl, "rpm")))
-    heavy = "about " + fmt(lo, "rpm")
-    if kw is not None:
-        heavy += f" ({fmt(kw, 'kW')} at the shaft)"
-    rows.append(("Tachometer check, generator shaft at the heaviest point of the job", heavy))
-    if d.ratio != 1 and nl is not None and lo is not None:
-        rows.append((f"The same at the {d.kind}'s own shaft", f"about {fmt(nl / d.ratio, 'rpm')} and {fmt(lo / d.ratio, 'rpm')}"))
-    return rows
+        return [("Drive speed", sp)]
+    return [("Drive", d.describe())]
 
 
 def current_setting_rows(option):
@@ -668,9 +663,9 @@ def checklist_rows(result, option, run=None):
     if p.drive.coupled:
         # an engine or a motor: the speed falls with the load, so two readings
         nl_rpm, lo_rpm = f.get("no_load_speed_rpm"), f.get("min_speed_rpm")
-        rows.append(("Generator speed on the tachometer, load off",
+        rows.append(("Drive speed on the tachometer (generator shaft), load off",
                      f"about {fmt(nl_rpm, 'rpm')}" if _given(nl_rpm) else fmt(speeds[0], "rpm")))
-        rows.append(("Generator speed on the tachometer, at the heaviest point of the job",
+        rows.append(("Drive speed on the tachometer at the heaviest point of the job",
                      f"about {fmt(lo_rpm, 'rpm')}" if _given(lo_rpm) else note))
     else:
         rows.append(("Drive speed on the tachometer",
@@ -710,7 +705,11 @@ def job_rows(profile):
     p = profile
     rows = []
     sp = tuple(p.speeds_rpm)
-    rows.append(("Drive speed", fmt(sp[0], "rpm") if len(sp) == 1 else f"{fmt(sp[0])} to {fmt(sp[1], 'rpm')}"))
+    if p.drive.coupled:
+        rows.append(("Drive", p.drive.describe()))
+        rows.append(("Drive speed", f"falls with the load (generator shaft) from {fmt(sp[0], 'rpm')}"))
+    else:
+        rows.append(("Drive speed", fmt(sp[0], "rpm") if len(sp) == 1 else f"{fmt(sp[0])} to {fmt(sp[1], 'rpm')}"))
     if p.temperatures_c:
         rows.append(("Winding temperature, cold to hot", f"{fmt(p.temperatures_c[0])} to {fmt(p.temperatures_c[1], '°C')}"))
     job = p.job
@@ -775,7 +774,7 @@ def run_rows(run):
     cond = (getattr(run, "conditions", None) or {}).get("setting")
     rows = [("Duration", fmt(run.duration_h, "h")), ("Stops because", str(run.stop_reason))]
     if cond:
-        rows.append(("Run at", f"{fmt(cond['speed_rpm'], 'rpm')}, windings {fmt(cond['winding_temperature_c'], '°C')}"))
+        rows.append(("Run at", f"{speed_words(cond)}, windings {fmt(cond['winding_temperature_c'], '°C')}"))
     hours = getattr(run, "hours_to_full", None)
     rows.append(("Hours to full", fmt(hours, "h") if hours is not None else
                  f"not within the target of {fmt(getattr(run, 'target_hours', None), 'h')}"))

@@ -481,7 +481,9 @@ def _g(v, f=".4g"):
 def charge_text(run):
     """A readable summary of a charge run: its plan, its figures and a table over time."""
     c = run.conditions.get("setting", {})
-    at = (f" at {c.get('speed_rpm', run.setting.speed_rpm):g} rpm, windings {c.get('winding_temperature_c', run.setting.winding_temperature_c):g} degC"
+    sp = c.get("speed_rpm", run.setting.speed_rpm)
+    sp_words = f"{sp:.0f} rpm at no load, lower under load on the {c['drive']}" if c.get("drive") else f"{sp:g} rpm"
+    at = (f" at {sp_words}, windings {c.get('winding_temperature_c', run.setting.winding_temperature_c):g} degC"
           if c or run.setting.speed_rpm else "")
     lines = [f"Charge run: {visible(run.machine_label)} on {visible(run.profile_label)}",
              f"setting: {run.setting.describe(with_connection=True)}" + (f" ({run.setting_source})" if run.setting_source else ""),

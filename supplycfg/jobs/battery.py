@@ -1650,6 +1650,10 @@ def plan_figures(plan):
     figs.update(drive_figs)
     conds = {name: {"speed_rpm": space.corners[c][0], "winding_temperature_c": space.corners[c][1]}
              for name, c in (("setting", nom), ("cold", cold), ("hot", hot))}
+    if space.profile.drive.coupled:
+        # the corner's speed is the drive's no-load speed; loaded, the speed falls
+        for c in conds.values():
+            c["drive"] = space.profile.drive.kind
     extras = []
     for k in range(nb):
         b = int(plan.base_idx[k])
