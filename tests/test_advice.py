@@ -196,6 +196,41 @@ def test_battery_band_ends_resolved():
             assert smallest_margin_fraction(lim)[0] < 0
 
 
+def test_battery_finish_stage_readings_and_band_resolved():
+    """Battery (best option, a two-stage plan): the finish carries its own readings and band (issue 10:
+    "each stage in plan carries its own"); the plan re-solved with the finish's field at either exact
+    end of its band keeps every limit, a step outside breaks one, and the finish's rheostat reading
+    lies inside its band (rounded inward)."""
+    m, p, res = demo("battery")
+    o = res.feasible[0]
+    stages = o.extras["plan"]
+    assert len(stages) == 2
+    assert stages[0]["readings"] == o.readings and stages[0]["band"] == o.band
+    fin = stages[1]
+    r, b = fin["readings"], fin["band"]
+    lo, hi = b["rheostat_ohm"]
+    assert lo <= r["rheostat_ohm"] <= hi
+    assert b["field_current_a"][0] <= r["field_current_a"]["hot"] <= r["field_current_a"]["cold"] <= b["field_current_a"][1]
+    from supplycfg.envelope import build_space, smallest_margin_fraction
+    from supplycfg.jobs import battery
+    space = build_space(m, p)
+    i = next(k for k, base in enumerate(space.bases) if base[:3] == (o.setting.connection, o.setting.series_turns or 0.0,
+                                                                     o.setting.diverter_ohm))
+    u1 = np.array([o.setting.rheostat_ohm])
+
+    def margin(u2):
+        lim, _, _ = battery.plan_figures(battery.charge_plan(space, np.array([i]), u1, np.array([u2])))
+        return smallest_margin_fraction(lim)[0]
+
+    a, z = b["control_exact"]
+    assert a < fin["setting"]["rheostat_ohm"] < z
+    for end in (a, z):
+        assert margin(end) >= -SLACK
+    step = 5e-3 * m.rheostat_max_ohm
+    for out in (a - step, z + step):
+        assert margin(out) < 0
+
+
 # ---------------------------------------------------------------------------
 # the welding dial, re-solved
 # ---------------------------------------------------------------------------
