@@ -1140,6 +1140,33 @@ def start_controls(space, base_idx=None):
     return _weakest_per_base(u, pos, base_idx.size, sign)
 
 
+def peak_controls(space, base_idx, u1, main, rows_base_pos, rows_corner):
+    """Main-charge field per base that holds the highest current along the charge at the start target.
+
+    Only bases whose current rises above the target somewhere along the main
+    charge get a value (the weakest over the corners); NaN elsewhere.
+    """
+    job = space.profile.battery
+    chem = chemistry(job.chemistry)
+    it = start_target_current_a(space)
+    cur = np.where(np.isfinite(main.current_a), main.current_a, -np.inf)
+    k = np.argmax(cur, axis=1)
+    peak = cur[np.arange(cur.shape[0]), k]
+    rows = np.flatnonzero(peak > it * (1 + 1e-6))
+    out = np.full(np.asarray(base_idx).size, np.nan)
+    if not rows.size:
+        return out
+    soc = main.soc[rows, k[rows]]
+    pt = cell_on_charge(chem, soc, it / job.capacity_ah, job.temperature_c, job.open_circuit_voltage_per_cell_v,
+                        bank_resistance_ohm_ah(job))
+    v = job.cells * pt.volts_per_cell + it * job.cable_resistance_ohm
+    base_idx = np.asarray(base_idx, int)
+    u, _ = control_for_point(space, base_idx[rows_base_pos[rows]], rows_corner[rows], v, it)
+    sign = _strength_sign(space, base_idx)
+    up = _weakest_per_base(u, rows_base_pos[rows], base_idx.size, sign)
+    return np.where(np.isfinite(up), _weaker(np.asarray(u1, float), up, sign), np.nan)
+
+
 def finish_controls(space, base_idx, u1, rows_base_pos, rows_corner, handed_over, handover_soc):
     """Field control of the finish per base: the strongest value that keeps the finish's current
     at most the finishing current where it starts (the hand-over, per corner) and the cells at
@@ -1253,6 +1280,7 @@ def charge_plan(space, base_idx=None, u1=None, u2=None, main_from=None):
     nb = len(space.bases)
     base_idx = np.arange(nb) if base_idx is None else np.asarray(base_idx, int)
     nc = space.nc
+    aim_start = u1 is None
     u1 = start_controls(space, base_idx) if u1 is None else np.asarray(u1, float)
     pos = np.repeat(np.arange(base_idx.size), nc)
     rows_base = base_idx[pos]
@@ -1262,6 +1290,20 @@ def charge_plan(space, base_idx=None, u1=None, u2=None, main_from=None):
     if main_from is None:
         handed, s_ho = _handover(space, rows_base, rows_corner, u1[pos], job)
         main = _stage(space, rows_base, rows_corner, u1[pos], np.full(nr, s0), s_ho)
+        if aim_start:
+            # where the current rises along the charge (a rising characteristic, a cold bank), aim the
+            # field at the target current where the peak lies, not at the start: one re-aim suffices
+            # within the setting margin
+            u_peak = peak_controls(space, base_idx, u1, main, pos, rows_corner)
+            changed = np.flatnonzero(np.isfinite(u_peak) & (u_peak != u1))
+            if changed.size:
+                u1 = np.where(np.isfinite(u_peak), u_peak, u1)
+                redo = np.flatnonzero(np.isin(pos, changed))
+                h2, s2 = _handover(space, rows_base[redo], rows_corner[redo], u1[pos][redo], job)
+                part = _stage(space, rows_base[redo], rows_corner[redo], u1[pos][redo], np.full(redo.size, s0), s2)
+                handed[redo], s_ho[redo] = h2, s2
+                for f in _STAGE_FIELDS:
+                    getattr(main, f)[redo] = getattr(part, f)
     else:
         at = {int(b): k for k, b in enumerate(main_from.base_idx)}
         rows = np.array([at[int(b)] * nc + c for b, c in zip(rows_base, rows_corner)], int)
