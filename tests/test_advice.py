@@ -10,13 +10,11 @@ drooping at least 0.10 V/A (common practice); the lighting band nominal +- toler
 person's input, common practice).
 """
 
-import functools
 import json
 import math
 import re
 import tomllib
 from dataclasses import replace
-from pathlib import Path
 
 import numpy as np
 import pytest
@@ -35,20 +33,12 @@ from supplycfg.readings import (control_band, diverter_rating, exciter_field_cur
                                 settable_step)
 from supplycfg.search import Option, merge_identical, rank_options, search
 
-ROOT = Path(__file__).resolve().parents[1]
-MACHINES = ROOT / "profiles" / "machines"
-LOADS = ROOT / "profiles" / "loads"
-DEMOS = {"battery": ("charging-set", "battery-charging"), "welding": ("welding-set", "welding"),
-         "lighting": ("lighting-set", "lighting"), "booster": ("feeder-booster", "booster")}
+try:
+    from .builders import DEMOS, LOADS, MACHINES, ROOT, demo
+except ImportError:
+    from builders import DEMOS, LOADS, MACHINES, ROOT, demo
 #: Relative slack of a re-solve with another solver at a band's exact end.
 SLACK = 1e-5
-
-
-@functools.lru_cache(maxsize=None)
-def demo(kind):
-    m, p = DEMOS[kind]
-    mach, prof = load_machine(MACHINES / f"{m}.toml"), load_profile(LOADS / f"{p}.toml")
-    return mach, prof, search(mach, prof)
 
 
 def corners(machine, profile):

@@ -51,7 +51,6 @@ import signal
 import time
 from dataclasses import replace
 from pathlib import Path
-import pytest
 
 import numpy as np
 from hypothesis import example, given, note, settings, strategies as st
