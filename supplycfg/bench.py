@@ -26,6 +26,104 @@ TARGETS = {"characteristic_ms": 5.0, "grid_seconds": 0.5, "search_seconds": 0.3,
 OPTIONAL = ("browser_render_seconds",)
 
 
+#: Stored answers of the demo searches, from the solver as it stood when the speed work began
+#: (issue 12): the bench prints the largest difference against them.
+REFERENCE_DIR = Path(__file__).resolve().parent.parent / "tests" / "data" / "reference"
+#: Below this size a figure counts as zero when differences are taken relative to it.
+RELATIVE_FLOOR = 1e-9
+
+
+def option_key(option):
+    """An option's base (connection, series turns, diverter) as one string: how answers are matched."""
+    s = option["setting"]
+    return f"{s['connection']}|{s.get('series_turns')}|{s.get('diverter_ohm')}"
+
+
+def _numbers(d, prefix=""):
+    """Numeric leaves of a nested dict or list as ``{path: float}`` (booleans and text left out)."""
+    out = {}
+    if isinstance(d, dict):
+        for k, v in d.items():
+            out.update(_numbers(v, f"{prefix}{k}."))
+    elif isinstance(d, list):
+        for k, v in enumerate(d):
+            out.update(_numbers(v, f"{prefix}{k}."))
+    elif isinstance(d, (int, float)) and not isinstance(d, bool):
+        out[prefix[:-1]] = float(d)
+    return out
+
+
+def answer_summary(result_dict):
+    """What the comparison keeps of a search's JSON: per option, feasible, setting, figures, margins."""
+    out = {}
+    for o in result_dict["options"]:
+        out[option_key(o)] = {"feasible": o["feasible"], "rank": o["rank"], "setting": o["setting"],
+                              "figures": o["figures"], "smallest_margin": o["smallest_margin"],
+                              "objective": (o.get("objective") or {}).get("value")}
+    return {"options": out}
+
+
+def compare_answers(now, ref):
+    """Feasible options lost and gained, and the largest relative difference of a number.
+
+    Parameters
+    ----------
+    now, ref : dict
+        :func:`answer_summary` of the search now and of the stored reference.
+
+    Returns
+    -------
+    dict
+        ``lost``, ``gained`` (option keys), ``missing`` (options of the
+        reference not found now), ``largest_relative_difference`` and
+        ``where`` (option key and figure).
+    """
+    a, b = now["options"], ref["options"]
+    feas_now = {k for k, v in a.items() if v["feasible"]}
+    feas_ref = {k for k, v in b.items() if v["feasible"]}
+    worst, where = 0.0, None
+    for k in sorted(set(a) & set(b)):
+        x, y = _numbers(a[k]), _numbers(b[k])
+        for name in sorted(set(x) | set(y)):
+            if name == "rank":
+                continue
+            if (name in x) != (name in y):
+                d = float("inf")
+            else:
+                scale = max(abs(x[name]), abs(y[name]))
+                d = 0.0 if scale < RELATIVE_FLOOR else abs(x[name] - y[name]) / scale
+            if d > worst:
+                worst, where = d, f"{k} {name}"
+    return {"lost": sorted(feas_ref - feas_now), "gained": sorted(feas_now - feas_ref),
+            "missing": sorted(set(b) - set(a)), "largest_relative_difference": worst, "where": where}
+
+
+def reference_differences(results=None):
+    """Compare the demo searches with the stored reference answers (None where none is stored).
+
+    ``results`` maps a job's profile stem to its ``SearchResult``; searched here when absent.
+    """
+    import json
+    from .files import jsonable
+    if not REFERENCE_DIR.is_dir():
+        return None
+    out = {}
+    for mach, prof in DEMO_PAIRS:
+        f = REFERENCE_DIR / f"{prof}.json"
+        if not f.is_file():
+            continue
+        if results is not None and prof in results:
+            res = results[prof]
+        else:
+            from .machine import load_machine
+            from .profile import load_profile
+            from .search import search
+            res = search(load_machine(PROFILES / "machines" / f"{mach}.toml"),
+                         load_profile(PROFILES / "loads" / f"{prof}.toml"))
+        out[prof] = compare_answers(answer_summary(jsonable(res.as_dict())), json.loads(f.read_text("utf-8")))
+    return out
+
+
 def _median(fn, repeat):
     fn()  # warm-up
     times = []
