@@ -71,13 +71,19 @@ def _numbers(d, prefix=""):
     return out
 
 
+#: Parts of an option compared beside its setting and figures: what a person sets and reads.
+ANSWER_PARTS = ("readings", "band", "dial", "current_settings", "plan", "diverters", "exciter")
+
+
 def answer_summary(result_dict):
-    """What the comparison keeps of a search's JSON: per option, feasible, setting, figures, margins."""
+    """What the comparison keeps of a search's JSON: per option, feasible, setting, figures, objective,
+    readings, band (and the job's dial or plan)."""
     out = {}
     for o in result_dict["options"]:
         out[option_key(o)] = {"feasible": o["feasible"], "rank": o["rank"], "setting": o["setting"],
                               "figures": o["figures"], "smallest_margin": o["smallest_margin"],
-                              "objective": (o.get("objective") or {}).get("value")}
+                              "objective": (o.get("objective") or {}).get("value"),
+                              **{k: o[k] for k in ANSWER_PARTS if k in o}}
     return {"options": out}
 
 
@@ -121,13 +127,12 @@ def reference_differences(results=None):
 
     ``results`` maps a job's profile stem to its ``SearchResult``; searched here when absent.
     """
-    import json
     from .files import jsonable
     if not REFERENCE_DIR.is_dir():
         return None
     out = {}
     for mach, prof in DEMO_PAIRS:
-        f = REFERENCE_DIR / f"{prof}.json"
+        f = REFERENCE_DIR / f"{prof}.json.gz"
         if not f.is_file():
             continue
         if results is not None and prof in results:
@@ -138,8 +143,16 @@ def reference_differences(results=None):
             from .search import search
             res = search(load_machine(PROFILES / "machines" / f"{mach}.toml"),
                          load_profile(PROFILES / "loads" / f"{prof}.toml"))
-        out[prof] = compare_answers(answer_summary(jsonable(res.as_dict())), json.loads(f.read_text("utf-8")))
+        out[prof] = compare_answers(answer_summary(jsonable(res.as_dict())), read_reference(f))
     return out
+
+
+def read_reference(path):
+    """A stored reference answer (gzip-compressed JSON of :func:`answer_summary`)."""
+    import gzip
+    import json
+    with gzip.open(path, "rt", encoding="utf-8") as fh:
+        return json.load(fh)
 
 
 def _median(fn, repeat):

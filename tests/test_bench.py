@@ -3,7 +3,6 @@
 Nothing here is timed (speed lives in ``supplycfg bench`` itself).
 """
 
-import json
 import tomllib
 
 import pytest
@@ -33,7 +32,7 @@ def test_compare_counts_feasible_options_lost_and_gained():
 def test_stored_references_cover_the_demo_jobs():
     """One stored reference per demo job, each with its options keyed by connection, tap and diverter."""
     for _, prof in bench.DEMO_PAIRS:
-        ref = json.loads((bench.REFERENCE_DIR / f"{prof}.json").read_text("utf-8"))
+        ref = bench.read_reference(bench.REFERENCE_DIR / f"{prof}.json.gz")
         assert ref["options"]
         assert any(o["feasible"] for o in ref["options"].values())
 
