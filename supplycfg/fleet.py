@@ -153,6 +153,8 @@ def fleet_search(folder, profile, workers=None):
         # one chunk of files per task (a few per worker, so a slow machine does not hold up the end)
         chunks = [files[k::CHUNKS_PER_WORKER * n] for k in range(CHUNKS_PER_WORKER * n)]
         chunks = [c for c in chunks if c]
+        # forked workers inherit the loaded engine (no second start-up); the command line forks
+        # from one thread. Where fork is missing the workers import it themselves.
         ctx = multiprocessing.get_context("fork") if "fork" in multiprocessing.get_all_start_methods() else None
         with ProcessPoolExecutor(max_workers=n, mp_context=ctx) as pool:
             done = list(pool.map(_chunk_worker, [(c, profile) for c in chunks]))
