@@ -167,8 +167,6 @@ def _median(fn, repeat):
 
 def _quiet(fn, *args):
     """Run ``fn`` with standard error closed: bare-mode AppTest logs harmless lines there."""
-    import os
-    import sys
     sys.stderr.flush()
     saved = os.dup(2)
     try:
@@ -251,18 +249,40 @@ def search_command(machine_path, profile_path):
     return [sys.executable, "-m", "supplycfg.cli", "search", str(machine_path), str(profile_path), "--json"]
 
 
-def process_seconds_and_peak_mb(argv):
-    """Wall time [s] and peak resident memory [MB] of one process run to its end."""
+#: Run by the measured process: the command line, then its own peak resident memory (``VmHWM``, which
+#: starts afresh at ``exec``; the rusage of a child counts the forked parent's pages too) on standard error.
+_PEAK_WRAPPER = """
+import atexit, sys
+def _peak():
+    with open("/proc/self/status") as fh:
+        kb = [ln.split()[1] for ln in fh if ln.startswith("VmHWM:")]
+    sys.stderr.write("\\npeak_kb=" + (kb[0] if kb else "nan") + "\\n")
+atexit.register(_peak)
+from supplycfg.cli import main
+sys.exit(main(sys.argv[1:]))
+"""
+
+
+def process_seconds(argv):
+    """Wall time [s] of one process run to its end (its start-up included)."""
     t0 = time.perf_counter()
-    proc = subprocess.Popen(argv, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
-    _, status, usage = os.wait4(proc.pid, 0)
+    proc = subprocess.run(argv, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
     seconds = time.perf_counter() - t0
-    proc.returncode = os.waitstatus_to_exitcode(status)
-    err = proc.stderr.read().decode(errors="replace")
-    proc.stderr.close()
     if proc.returncode != 0:
-        raise RuntimeError(f"{' '.join(argv[2:4])} failed ({proc.returncode}): {err.strip()[-300:]}")
-    return seconds, usage.ru_maxrss / 1024.0  # ru_maxrss is in KiB on Linux
+        err = proc.stderr.decode(errors="replace")
+        raise RuntimeError(f"{' '.join(map(str, argv[-4:]))} failed ({proc.returncode}): {err.strip()[-300:]}")
+    return seconds
+
+
+def process_peak_mb(argv):
+    """Peak resident memory [MB] of the command line run with ``argv[3:]`` (as from :func:`search_command`)."""
+    proc = subprocess.run([sys.executable, "-c", _PEAK_WRAPPER, *argv[3:]], stdout=subprocess.DEVNULL,
+                          stderr=subprocess.PIPE)
+    err = proc.stderr.decode(errors="replace")
+    if proc.returncode != 0:
+        raise RuntimeError(f"{' '.join(map(str, argv[3:6]))} failed ({proc.returncode}): {err.strip()[-300:]}")
+    found = [ln for ln in err.splitlines() if ln.startswith("peak_kb=")]
+    return float(found[-1].split("=")[1]) / 1024.0 if found else float("nan")
 
 
 def engine_against_ngspice(repeat):
@@ -336,16 +356,16 @@ def run_bench(repeat=5):
     res["candidates_evaluated"] = cands
     res["reference"] = reference_differences(results)
     argv = search_command(PROFILES / "machines" / f"{slowest[0]}.toml", PROFILES / "loads" / f"{slowest[1]}.toml")
-    process_seconds_and_peak_mb(argv)  # warm-up: the files in the system's cache
-    res["cli_search_seconds"] = statistics.median(process_seconds_and_peak_mb(argv)[0]
-                                                  for _ in range(max(1, min(repeat, 5))))
+    process_seconds(argv)  # warm-up: the files in the system's cache
+    res["cli_search_seconds"] = statistics.median(process_seconds(argv) for _ in range(max(1, min(repeat, 5))))
     res["cli_search_job"] = slowest[1]
     peak = {}
     with tempfile.TemporaryDirectory() as d:
         big = Path(d) / "machine-at-bounds.toml"
         big.write_text(machine_at_bounds_toml(), encoding="utf-8")
         for _, prof in DEMO_PAIRS:
-            peak[prof] = process_seconds_and_peak_mb(search_command(big, PROFILES / "loads" / f"{prof}.toml"))
+            argv = search_command(big, PROFILES / "loads" / f"{prof}.toml")
+            peak[prof] = (process_seconds(argv), process_peak_mb(argv))
     res["peak_memory_mb"] = max(v[1] for v in peak.values())
     res["at_bounds_by_profile"] = {k: {"seconds": v[0], "peak_memory_mb": v[1]} for k, v in peak.items()}
     try:
