@@ -224,14 +224,14 @@ def machine_at_bounds_toml(taps=None, occ_points=None, ar_rows=None):
     The largest machine file a search can be given: every bound of
     :mod:`supplycfg.machine` at once (``peak_memory_mb``).
     """
-    import tomllib
     import numpy as np
     from .files import dumps_toml
     from .machine import MAX_AR_ROWS, MAX_OCC_POINTS, MAX_SERIES_TAPS
+    from .validate import read_toml
     taps = MAX_SERIES_TAPS if taps is None else taps
     occ_points = MAX_OCC_POINTS if occ_points is None else occ_points
     ar_rows = MAX_AR_ROWS if ar_rows is None else ar_rows
-    m = tomllib.loads((PROFILES / "machines" / "welding-set.toml").read_text(encoding="utf-8"))
+    m = read_toml(PROFILES / "machines" / "welding-set.toml")
     nse = m["machine"]["series_turns_per_pole"]
     m["machine"]["series_taps"] = [float(t) for t in np.linspace(0.0, nse, taps)]
     fc, ev = m["open_circuit"]["field_current_a"], m["open_circuit"]["emf_v"]
