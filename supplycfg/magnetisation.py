@@ -276,6 +276,15 @@ class ArmatureReaction:
     table_current_a: np.ndarray | None = None
     table_at: np.ndarray | None = None
 
+    def __post_init__(self):
+        if self.table_current_a is not None:
+            # the table's end chord and its slopes, once (every solve step reads them)
+            xi, fi = self.table_current_a, self.table_at
+            chord = (fi[-1] - fi[-2]) / (xi[-1] - xi[-2])
+            object.__setattr__(self, "_chord", chord)
+            object.__setattr__(self, "_slopes", np.append(np.diff(fi) / np.diff(xi), chord))
+            object.__setattr__(self, "_inner", np.ascontiguousarray(xi[1:]))
+
     @classmethod
     def from_machine(cls, m):
         if m.ar_at_per_pole_at_rated is not None:
@@ -296,10 +305,11 @@ class ArmatureReaction:
             d = np.full_like(a, self.per_amp)
         else:
             xi, fi = self.table_current_a, self.table_at
-            chord = (fi[-1] - fi[-2]) / (xi[-1] - xi[-2])
-            f = np.where(a > xi[-1], fi[-1] + chord * (a - xi[-1]), np.interp(a, xi, fi))
-            slopes = np.append(np.diff(fi) / np.diff(xi), chord)
-            d = slopes[np.clip(np.searchsorted(xi, a, side="right") - 1, 0, len(slopes) - 1)]
+            f = np.where(a > xi[-1], fi[-1] + self._chord * (a - xi[-1]), np.interp(a, xi, fi))
+            if not with_slope:
+                return f
+            # the row of each current: searching from the second entry gives 0 .. n-1 with no clipping
+            d = self._slopes[np.searchsorted(self._inner, a, side="right")]
         d = d * np.sign(ia)
         return (f, d) if with_slope else f
 
