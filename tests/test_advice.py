@@ -101,6 +101,53 @@ def test_control_band_finds_the_interval():
     assert np.isnan(lo[2]) and np.isnan(hi[2])
 
 
+def _halving_one_per_call(margin_of, u0, lo, hi, scan, steps):
+    """The band as the bisection method states it: each end on its own, one halving per call."""
+    u0 = np.asarray(u0, float)
+    out = []
+    for end in (lo, hi):
+        edge = np.full(u0.size, np.nan)
+        for i, u in enumerate(u0):
+            if not margin_of(np.array([i]), np.array([u]))[0] >= 0:
+                continue
+            pts = u + (end - u) * (np.arange(1, scan + 1) / scan)
+            ok = margin_of(np.full(scan, i), pts) >= 0
+            if ok.all():
+                edge[i] = end
+                continue
+            first = int(np.argmin(ok))
+            a, b = (pts[first - 1] if first else u), pts[first]
+            for _ in range(steps):
+                mid = 0.5 * (a + b)
+                a, b = (mid, b) if margin_of(np.array([i]), np.array([mid]))[0] >= 0 else (a, mid)
+            edge[i] = a
+        out.append(edge)
+    return np.fmin(*out), np.fmax(*out)
+
+
+@pytest.mark.parametrize("per_round", [1, 2, 3, 5])
+def test_control_band_with_several_halvings_per_call_is_exact(per_round):
+    """Several halvings per call (every point they may visit at once) give bit for bit the edges of
+    halving one step per call (closed form: bisection of a bracket; a margin that holds on two
+    separate stretches, so the scan matters too)."""
+    calls = []
+
+    def margin_of(k, u):
+        calls.append(len(k))
+        u = np.asarray(u, float)
+        shift = 0.37 * np.asarray(k, float)
+        return np.maximum(np.minimum(u - 2.0 - shift, 7.1 - u), np.minimum(u - 8.3, 9.6 - u)) / 10.0
+
+    u0 = np.array([3.0, 6.5, 9.0, 1.0, 8.5, np.nan])
+    lo, hi = control_band(margin_of, u0, 0.0, 10.0, scan=6, steps=11, per_round=per_round)
+    ref_lo, ref_hi = _halving_one_per_call(margin_of, u0, 0.0, 10.0, 6, 11)
+    np.testing.assert_array_equal(lo, ref_lo)
+    np.testing.assert_array_equal(hi, ref_hi)
+    calls.clear()
+    control_band(margin_of, u0, 0.0, 10.0, scan=6, steps=11, per_round=per_round)
+    assert len(calls) == 1 + -(-11 // per_round)
+
+
 def test_preferred_diverter_values():
     """Diverters are E12 preferred values (IEC 60063, seen), with a 1-2-5 power rating."""
     assert preferred_resistance_ohm(0.006) == 0.0056

@@ -245,13 +245,8 @@ def charge(machine_toml, profile_toml, rank):
         return None, f"internal error in the charge run, please report it: {type(e).__name__}: {e}"
 
 
-@st.cache_data(max_entries=256, show_spinner="Drawing the curves...")
-def chart_specs(machine_toml, profile_toml, rank, trim):
-    """Vega-Lite specs ``[(name, title, spec)]`` of option ``rank`` with the field control ``trim``.
-
-    ``trim`` is ``(rheostat_ohm, field_current_a)`` for the curves of the
-    machine; the charge run always follows the option's own setting.
-    """
+def _option_specs(machine_toml, profile_toml, rank, trim, only):
+    """Specs ``[(name, title, spec)]`` of the charts ``only`` of option ``rank`` drawn with ``trim``."""
     from dataclasses import replace
     from .. import charts
     from ..report import other_tap_options
@@ -261,16 +256,47 @@ def chart_specs(machine_toml, profile_toml, rank, trim):
     opt = next((o for o in res.options if o.rank == rank), None)
     if opt is None:
         return [], None
-    shown = replace(opt, setting=replace(opt.setting, rheostat_ohm=trim[0], field_current_a=trim[1]))
+    shown = opt if trim is None else replace(opt, setting=replace(opt.setting, rheostat_ohm=trim[0],
+                                                                   field_current_a=trim[1]))
     run, _ = charge(machine_toml, profile_toml, rank) if res.profile.kind == "battery" else (None, None)
     taps = other_tap_options(res, opt) if res.profile.kind == "welding" else ()
     try:
-        out = charts.option_charts(res.machine, res.profile, shown, taps, run)
+        out = charts.option_charts(res.machine, res.profile, shown, taps, run, only=only)
         return [(name, title, charts.chart_spec(ch, validate=False)) for name, title, ch in out], None
     except InputError as e:
         return [], str(e)
     except Exception as e:
         return [], f"internal error drawing the curves, please report it: {type(e).__name__}: {e}"
+
+
+@st.cache_data(max_entries=64, show_spinner="Drawing the curves...")
+def setting_free_specs(machine_toml, profile_toml, rank):
+    """The option's charts that do not change with the field trim (the charge run, the cells' curves)."""
+    from ..charts import SETTING_FREE_CHARTS
+    return _option_specs(machine_toml, profile_toml, rank, None, SETTING_FREE_CHARTS)
+
+
+@st.cache_data(max_entries=256, show_spinner="Drawing the curves...")
+def setting_specs(machine_toml, profile_toml, rank, trim):
+    """The option's charts drawn with the field control ``trim``."""
+    from ..charts import CHART_ORDER, SETTING_FREE_CHARTS
+    return _option_specs(machine_toml, profile_toml, rank, trim,
+                         tuple(k for k in CHART_ORDER if k not in SETTING_FREE_CHARTS))
+
+
+def chart_specs(machine_toml, profile_toml, rank, trim):
+    """Vega-Lite specs ``[(name, title, spec)]`` of option ``rank`` with the field control ``trim``.
+
+    ``trim`` is ``(rheostat_ohm, field_current_a)`` for the curves of the
+    machine; the charge run always follows the option's own setting. Moving
+    the trim redraws only the charts that depend on it.
+    """
+    from ..charts import CHART_ORDER
+    drawn, err = setting_specs(machine_toml, profile_toml, rank, trim)
+    if err:
+        return drawn, err
+    fixed, err = setting_free_specs(machine_toml, profile_toml, rank)
+    return sorted(drawn + fixed, key=lambda item: CHART_ORDER.index(item[0])), err
 
 
 @st.cache_data(max_entries=64, show_spinner=False)
