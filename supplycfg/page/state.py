@@ -158,22 +158,27 @@ def _internal(exc):
     return {"key": "", "message": line, "line": line}
 
 
-def on_machine_apply():
-    vals = machine_form_values()
+def _apply_form(which, tables_of, read, write, version):
+    """Read one form into its tables: on success they are the data in use and the form starts again
+    from them (its ``version`` key moves on); on bad input one line at the form, nothing lost."""
     try:
-        tables = fields.machine_tables_from_form(vals)
-        m = machine_from_dict(tables, fields.FORM)
+        data = read(tables_of(), fields.FORM)
     except InputError as e:
-        S.machine_error = {"key": e.key, "message": e.message, "line": str(e)}
+        S[f"{which}_error"] = {"key": e.key, "message": e.message, "line": str(e)}
         return
     except Exception as e:  # a fault of ours: one line at the form, never a traceback
-        S.machine_error = _internal(e)
+        S[f"{which}_error"] = _internal(e)
         return
-    S.machine_tables = machine_to_dict(m)
-    S.machine_origin = "edited on this page"
-    S.machine_error = None
-    S.machine_msg = None
-    S.mver += 1  # the form starts again from the data now in use
+    S[f"{which}_tables"] = write(data)
+    S[f"{which}_origin"] = "edited on this page"
+    S[f"{which}_error"] = None
+    S[f"{which}_msg"] = None
+    S[version] += 1
+
+
+def on_machine_apply():
+    _apply_form("machine", lambda: fields.machine_tables_from_form(machine_form_values()),
+                machine_from_dict, machine_to_dict, "mver")
 
 
 def profile_form_values():
@@ -182,21 +187,8 @@ def profile_form_values():
 
 
 def on_profile_apply():
-    vals = profile_form_values()
-    try:
-        tables = fields.profile_tables_from_form(S.kind, vals)
-        p = profile_from_dict(tables, fields.FORM)
-    except InputError as e:
-        S.profile_error = {"key": e.key, "message": e.message, "line": str(e)}
-        return
-    except Exception as e:  # a fault of ours: one line at the form, never a traceback
-        S.profile_error = _internal(e)
-        return
-    S.profile_tables = profile_to_dict(p)
-    S.profile_origin = "edited on this page"
-    S.profile_error = None
-    S.profile_msg = None
-    S.pver += 1
+    _apply_form("profile", lambda: fields.profile_tables_from_form(S.kind, profile_form_values()),
+                profile_from_dict, profile_to_dict, "pver")
 
 
 # --- solves ------------------------------------------------------------------
