@@ -874,24 +874,40 @@ def charge_run_chart(run, width=None, stages=None):
                             resolve=alt.Resolve(scale=alt.ScaleResolveMap(x="shared", fill="shared")))
 
 
-def option_charts(machine, profile, option, other_taps=(), run=None, width=None):
-    """The charts of one option for its job: ``[(key, title, chart), ...]``."""
+#: Charts of an option in page order.
+CHART_ORDER = ("occ", "load", "run", "cells")
+#: Charts that do not depend on the field setting drawn (the charge run follows the option's own
+#: plan, the cells' curves only the chemistry): a page that trims the field need not redraw them.
+SETTING_FREE_CHARTS = ("run", "cells")
+
+
+def option_charts(machine, profile, option, other_taps=(), run=None, width=None, only=None):
+    """The charts of one option for its job: ``[(key, title, chart), ...]`` in :data:`CHART_ORDER`.
+
+    ``only``, a collection of keys, builds those charts alone.
+    """
+    want = (lambda k: True) if only is None else (lambda k: k in only)
     temps = _temperatures(profile, machine)
     st = check_setting(machine, option.setting)
-    out = [("occ", "Open-circuit characteristic", occ_chart(machine, st, temps, width))]
+    out = []
+    if want("occ"):
+        out.append(("occ", "Open-circuit characteristic", occ_chart(machine, st, temps, width)))
     if profile.kind == "battery":
         from .jobs import battery as ld
-        fin = (getattr(option, "extras", None) or {}).get("finish_setting")
-        fin = None if fin is None else Setting(**fin)
-        out.append(("load", "Against the battery", battery_chart(machine, profile, st, width, option.figures, fin)))
-        if run is not None:
+        if want("load"):
+            fin = (getattr(option, "extras", None) or {}).get("finish_setting")
+            fin = None if fin is None else Setting(**fin)
+            out.append(("load", "Against the battery", battery_chart(machine, profile, st, width, option.figures, fin)))
+        if run is not None and want("run"):
             plan = (getattr(option, "extras", None) or {}).get("plan")
             out.append(("run", "Charge run", charge_run_chart(run, width, plan if plan else None)))
-        b = profile.battery
-        family = ld.charging_curves(b.chemistry, b.temperature_c, ocv_range=b.open_circuit_voltage_per_cell_v)
-        out.append(("cells", "Charging curves of the cells", charging_curves_chart(family, width)))
+        if want("cells"):
+            b = profile.battery
+            family = ld.charging_curves(b.chemistry, b.temperature_c, ocv_range=b.open_circuit_voltage_per_cell_v)
+            out.append(("cells", "Charging curves of the cells", charging_curves_chart(family, width)))
     elif profile.kind == "welding":
-        out.append(("load", "Welding characteristics", welding_chart(machine, profile, option, other_taps, width)))
-    else:
+        if want("load"):
+            out.append(("load", "Welding characteristics", welding_chart(machine, profile, option, other_taps, width)))
+    elif want("load"):
         out.append(("load", "Load-end voltage", load_end_chart(machine, profile, st, width)))
     return out

@@ -7,12 +7,23 @@ strings, numbers, booleans and flat lists), so a saved file loads back equal.
 import json
 import math
 import os
+import sys
 import tempfile
 from pathlib import Path
 
-import numpy as np
-
 from .errors import InputError
+
+
+def _numpy_types():
+    """numpy's array, bool, integer and float types, or empty tuples while numpy is not loaded.
+
+    A value cannot be a numpy one before numpy is imported, so commands that
+    never need it (``--version``, ``--help``) start without it.
+    """
+    np = sys.modules.get("numpy")
+    if np is None:
+        return (), (), (), ()
+    return (np.ndarray,), (np.bool_,), (np.integer,), (np.floating,)
 
 
 def jsonable(obj):
@@ -23,13 +34,14 @@ def jsonable(obj):
         return {str(k): jsonable(v) for k, v in obj.items()}
     if isinstance(obj, (list, tuple)):
         return [jsonable(v) for v in obj]
-    if isinstance(obj, np.ndarray):
+    arr, npbool, npint, npfloat = _numpy_types()
+    if isinstance(obj, arr):
         return [jsonable(v) for v in obj.tolist()]
-    if isinstance(obj, (bool, np.bool_)):
+    if isinstance(obj, (bool, *npbool)):
         return bool(obj)
-    if isinstance(obj, (int, np.integer)):
+    if isinstance(obj, (int, *npint)):
         return int(obj)
-    if isinstance(obj, (float, np.floating)):
+    if isinstance(obj, (float, *npfloat)):
         f = float(obj)
         return f if math.isfinite(f) else None
     return obj
@@ -41,11 +53,12 @@ def dumps_json(obj):
 
 
 def _toml_value(v, key):
+    _, _, npint, npfloat = _numpy_types()
     if isinstance(v, bool):
         return "true" if v else "false"
-    if isinstance(v, (int, np.integer)) and not isinstance(v, bool):
+    if isinstance(v, (int, *npint)) and not isinstance(v, bool):
         return str(int(v))
-    if isinstance(v, (float, np.floating)):
+    if isinstance(v, (float, *npfloat)):
         f = float(v)
         if not math.isfinite(f):
             raise InputError("toml", key, "is not a finite number; cannot be written")

@@ -5,6 +5,7 @@ error in its own row and does not stop the others. Rows keep the order of
 the file names, whatever order the workers finish in.
 """
 
+import multiprocessing
 import os
 from concurrent.futures import ProcessPoolExecutor
 from dataclasses import dataclass, field
@@ -16,6 +17,9 @@ from .errors import InputError
 #: Most machine files one fleet run takes: a folder of a site's sets is tens of
 #: files; the bound keeps a mistaken folder (a whole disk) from running for hours.
 MAX_FLEET_FILES = 1000
+#: Chunks of files per worker: each task carries a chunk, so the profile is sent
+#: once per chunk and the workers end together within about one chunk.
+CHUNKS_PER_WORKER = 3
 
 
 @dataclass
@@ -117,6 +121,12 @@ def _worker(args):
         return FleetRow(file=str(path), error=f"internal error, please report it: {type(exc).__name__}: {exc}")
 
 
+def _chunk_worker(args):
+    """Rows of a chunk of machine files, searched one after another in one worker."""
+    paths, profile = args
+    return [_worker((p, profile)) for p in paths]
+
+
 def fleet_search(folder, profile, workers=None):
     """Search every machine file of ``folder`` for one job.
 
@@ -135,12 +145,21 @@ def fleet_search(folder, profile, workers=None):
     files = machine_files(folder)
     n = workers or os.cpu_count() or 1
     n = max(1, min(n, len(files)))
-    jobs = [(f, profile) for f in files]
+    # the engine is imported once, here: forked workers start with it loaded
+    from . import search as _preloaded  # noqa: F401
     if n == 1:
-        rows = [_worker(j) for j in jobs]
+        rows = [_worker((f, profile)) for f in files]
     else:
-        with ProcessPoolExecutor(max_workers=n) as pool:
-            rows = list(pool.map(_worker, jobs, chunksize=max(1, len(jobs) // (4 * n))))
+        # one chunk of files per task (a few per worker, so a slow machine does not hold up the end)
+        chunks = [files[k::CHUNKS_PER_WORKER * n] for k in range(CHUNKS_PER_WORKER * n)]
+        chunks = [c for c in chunks if c]
+        # forked workers inherit the loaded engine (no second start-up); the command line forks
+        # from one thread. Where fork is missing the workers import it themselves.
+        ctx = multiprocessing.get_context("fork") if "fork" in multiprocessing.get_all_start_methods() else None
+        with ProcessPoolExecutor(max_workers=n, mp_context=ctx) as pool:
+            done = list(pool.map(_chunk_worker, [(c, profile) for c in chunks]))
+        by_file = {r.file: r for rows_ in done for r in rows_}
+        rows = [by_file[str(f)] for f in files]
     notes = []
     if not any(r.feasible for r in rows):
         notes.append("no machine in the folder meets every limit of this job")

@@ -68,7 +68,8 @@ FIGURE_WORDS = {
     "cut_in_speed_hot_rpm": "speed at which the cut-out closes, hot windings",
     "standstill_backfeed_current_a": "current a full bank drives back at standstill with no cut-out",
     "start_charge_current_highest_a": "charging current at the start, highest over the range",
-    "main_charge_current_lowest_a": "main-charge current before the hand-over, lowest over the range",
+    "main_charge_current_highest_a": "main-charge current, highest along the charge and over the range",
+    "main_charge_current_lowest_a": "main-charge current, lowest along the charge and over the range",
     "finish_current_highest_a": "current above the hand-over voltage, highest over the range",
     "highest_volts_per_cell": ("volts per cell, highest over the plan and the range", "V"),
     "no_load_voltage_min_v": "no-load voltage, lowest",
@@ -124,7 +125,7 @@ FIGURE_WORDS = {
 
 #: Plain words for the limits the search checks.
 LIMIT_WORDS = {
-    "start_current_max": "starting current at most the battery's highest",
+    "charge_current_max": "main-charge current, highest along the charge, at most the battery's highest",
     "main_charge_current_min": "main-charge current at least the lowest asked",
     "finish_current_max": "current above the hand-over voltage at most the finishing current",
     "end_volts_per_cell": "volts per cell within the chemistry's highest",

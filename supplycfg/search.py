@@ -460,9 +460,25 @@ READING_POINT = {"lighting": "at no load", "booster": "at no load", "battery": "
 
 def _reading_lines(o, kind=""):
     lines = []
-    r, b = o.readings, o.band
     if o.control == "none":
         lines.append("  series winding only, no field control: the series tap and the diverter set it")
+    stages = o.extras.get("plan") or []
+    if len(stages) == 2:
+        # a two-stage charge: the attendant sets the field twice, each stage where it starts
+        for st in stages:
+            lines.append(f"  stage {st['stage']}, {st['name']}: {_num(st['from_h'], '.3g')} to {_num(st['to_h'], '.3g')} h, "
+                         f"{_num(st['start_current_a'], '.3g')} to {_num(st['end_current_a'], '.3g')} A; "
+                         f"{st['ends_reason']}")
+            where = "at the start of charge" if st["stage"] == 1 else "at the hand-over"
+            lines += ["  " + x for x in field_reading_lines(st.get("readings"), st.get("band"), where)]
+    else:
+        lines += field_reading_lines(o.readings, o.band, READING_POINT.get(kind, ""))
+    return lines + _rig_lines(o)
+
+
+def field_reading_lines(r, b, where=""):
+    """Text lines of one field setting: the meter readings and the band over which every limit holds."""
+    lines = []
     if r is not None:
         fc = r["field_current_a"]
         parts = [f"field current {_num(fc['cold'], 'g')} A with cold windings, {_num(fc['hot'], 'g')} A hot"]
@@ -470,7 +486,7 @@ def _reading_lines(o, kind=""):
             parts.append(f"rheostat {_num(r['rheostat_ohm'], 'g')} ohm"
                          + (f" ({_num(r['rheostat_travel_percent'], 'g')} % of its travel)"
                             if r["rheostat_travel_percent"] is not None else ""))
-        lines.append(f"  set {READING_POINT.get(kind, '')}: ".replace("  set : ", "  set: ") + "; ".join(parts))
+        lines.append(f"  set {where}: ".replace("  set : ", "  set: ") + "; ".join(parts))
     if b is not None:
         parts = []
         if b.get("rheostat_ohm"):
@@ -480,6 +496,11 @@ def _reading_lines(o, kind=""):
         lines.append("  every limit holds for " + " and ".join(parts))
     if r is not None and r.get("settable") is False:
         lines.append("  the band is narrower than the reading can be set: set with a finer instrument")
+    return lines
+
+
+def _rig_lines(o):
+    lines = []
     for d in o.extras.get("diverters") or []:
         lines.append(f"  diverter {d['resistance_ohm']:g} ohm across {d['series_turns']:g} series turns: carries up to "
                      f"{_num(d['current_a'], 'g')} A ({_num(d['share_percent'], 'g')} % of the branch), "

@@ -10,13 +10,11 @@ drooping at least 0.10 V/A (common practice); the lighting band nominal +- toler
 person's input, common practice).
 """
 
-import functools
 import json
 import math
 import re
 import tomllib
 from dataclasses import replace
-from pathlib import Path
 
 import numpy as np
 import pytest
@@ -35,20 +33,12 @@ from supplycfg.readings import (control_band, diverter_rating, exciter_field_cur
                                 settable_step)
 from supplycfg.search import Option, merge_identical, rank_options, search
 
-ROOT = Path(__file__).resolve().parents[1]
-MACHINES = ROOT / "profiles" / "machines"
-LOADS = ROOT / "profiles" / "loads"
-DEMOS = {"battery": ("charging-set", "battery-charging"), "welding": ("welding-set", "welding"),
-         "lighting": ("lighting-set", "lighting"), "booster": ("feeder-booster", "booster")}
+try:
+    from .builders import DEMOS, LOADS, MACHINES, ROOT, demo
+except ImportError:
+    from builders import DEMOS, LOADS, MACHINES, ROOT, demo
 #: Relative slack of a re-solve with another solver at a band's exact end.
 SLACK = 1e-5
-
-
-@functools.lru_cache(maxsize=None)
-def demo(kind):
-    m, p = DEMOS[kind]
-    mach, prof = load_machine(MACHINES / f"{m}.toml"), load_profile(LOADS / f"{p}.toml")
-    return mach, prof, search(mach, prof)
 
 
 def corners(machine, profile):
@@ -109,6 +99,53 @@ def test_control_band_finds_the_interval():
     lo, hi = control_band(margin_of, np.array([3.0, 6.5, 9.0]), 0.0, 10.0)
     assert_allclose(lo[:2], 2.0, atol=1e-4) and assert_allclose(hi[:2], 7.0, atol=1e-4)
     assert np.isnan(lo[2]) and np.isnan(hi[2])
+
+
+def _halving_one_per_call(margin_of, u0, lo, hi, scan, steps):
+    """The band as the bisection method states it: each end on its own, one halving per call."""
+    u0 = np.asarray(u0, float)
+    out = []
+    for end in (lo, hi):
+        edge = np.full(u0.size, np.nan)
+        for i, u in enumerate(u0):
+            if not margin_of(np.array([i]), np.array([u]))[0] >= 0:
+                continue
+            pts = u + (end - u) * (np.arange(1, scan + 1) / scan)
+            ok = margin_of(np.full(scan, i), pts) >= 0
+            if ok.all():
+                edge[i] = end
+                continue
+            first = int(np.argmin(ok))
+            a, b = (pts[first - 1] if first else u), pts[first]
+            for _ in range(steps):
+                mid = 0.5 * (a + b)
+                a, b = (mid, b) if margin_of(np.array([i]), np.array([mid]))[0] >= 0 else (a, mid)
+            edge[i] = a
+        out.append(edge)
+    return np.fmin(*out), np.fmax(*out)
+
+
+@pytest.mark.parametrize("per_round", [1, 2, 3, 5])
+def test_control_band_with_several_halvings_per_call_is_exact(per_round):
+    """Several halvings per call (every point they may visit at once) give bit for bit the edges of
+    halving one step per call (closed form: bisection of a bracket; a margin that holds on two
+    separate stretches, so the scan matters too)."""
+    calls = []
+
+    def margin_of(k, u):
+        calls.append(len(k))
+        u = np.asarray(u, float)
+        shift = 0.37 * np.asarray(k, float)
+        return np.maximum(np.minimum(u - 2.0 - shift, 7.1 - u), np.minimum(u - 8.3, 9.6 - u)) / 10.0
+
+    u0 = np.array([3.0, 6.5, 9.0, 1.0, 8.5, np.nan])
+    lo, hi = control_band(margin_of, u0, 0.0, 10.0, scan=6, steps=11, per_round=per_round)
+    ref_lo, ref_hi = _halving_one_per_call(margin_of, u0, 0.0, 10.0, 6, 11)
+    np.testing.assert_array_equal(lo, ref_lo)
+    np.testing.assert_array_equal(hi, ref_hi)
+    calls.clear()
+    control_band(margin_of, u0, 0.0, 10.0, scan=6, steps=11, per_round=per_round)
+    assert len(calls) == 1 + -(-11 // per_round)
 
 
 def test_preferred_diverter_values():
@@ -195,6 +232,41 @@ def test_battery_band_ends_resolved():
         if 0 < out < m.rheostat_max_ohm:
             lim, _ = battery.evaluate(space, np.array([i]), np.array([out]))
             assert smallest_margin_fraction(lim)[0] < 0
+
+
+def test_battery_finish_stage_readings_and_band_resolved():
+    """Battery (best option, a two-stage plan): the finish carries its own readings and band (issue 10:
+    "each stage in plan carries its own"); the plan re-solved with the finish's field at either exact
+    end of its band keeps every limit, a step outside breaks one, and the finish's rheostat reading
+    lies inside its band (rounded inward)."""
+    m, p, res = demo("battery")
+    o = res.feasible[0]
+    stages = o.extras["plan"]
+    assert len(stages) == 2
+    assert stages[0]["readings"] == o.readings and stages[0]["band"] == o.band
+    fin = stages[1]
+    r, b = fin["readings"], fin["band"]
+    lo, hi = b["rheostat_ohm"]
+    assert lo <= r["rheostat_ohm"] <= hi
+    assert b["field_current_a"][0] <= r["field_current_a"]["hot"] <= r["field_current_a"]["cold"] <= b["field_current_a"][1]
+    from supplycfg.envelope import build_space, smallest_margin_fraction
+    from supplycfg.jobs import battery
+    space = build_space(m, p)
+    i = next(k for k, base in enumerate(space.bases) if base[:3] == (o.setting.connection, o.setting.series_turns or 0.0,
+                                                                     o.setting.diverter_ohm))
+    u1 = np.array([o.setting.rheostat_ohm])
+
+    def margin(u2):
+        lim, _, _ = battery.plan_figures(battery.charge_plan(space, np.array([i]), u1, np.array([u2])))
+        return smallest_margin_fraction(lim)[0]
+
+    a, z = b["control_exact"]
+    assert a < fin["setting"]["rheostat_ohm"] < z
+    for end in (a, z):
+        assert margin(end) >= -SLACK
+    step = 5e-3 * m.rheostat_max_ohm
+    for out in (a - step, z + step):
+        assert margin(out) < 0
 
 
 # ---------------------------------------------------------------------------

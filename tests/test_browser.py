@@ -130,7 +130,6 @@ def test_narrow_view_clips_no_legend_title_or_axis(server, browser, tmp_path):
         page.close()
 
 
-@pytest.mark.skip(reason="known defect: after picking another row the page's chart count never reaches the expected one now that the battery page draws the cells' charging curves too; the wait must follow the picked row's charts")
 def test_pick_trim_and_download(server, browser, tmp_path):
     """A row of the options table picks that option; an unrelated rerun keeps the drawn charts; the rheostat trim
     redraws them (waiting for the new drawing itself); the printable sheet downloads with its checklist."""
@@ -146,8 +145,13 @@ def test_pick_trim_and_download(server, browser, tmp_path):
         box = table.bounding_box()
         page.mouse.click(box["x"] + 18, box["y"] + ROW_PX * 3 + ROW_PX / 2)
         page.get_by_role("heading", name="Option 3 in detail").wait_for(timeout=timing.RENDER_TIMEOUT_MS)
-        page.wait_for_function(f"() => [...document.querySelectorAll('{CHARTS}')].filter(e => !e.__kept).length "
-                               f">= {timing.DEMO_CHARTS}", timeout=timing.RENDER_TIMEOUT_MS)
+        # the picked option draws its own charts (one with no charge run draws one fewer; the cells' chart
+        # belongs to the job and may stay): wait until the rerun is over and the machine's chart is new
+        page.wait_for_function(f"() => {{ const c = [...document.querySelectorAll('{CHARTS}')];"
+                               f" return c.length > 0 && !c[0].__kept"
+                               f" && document.querySelectorAll('[data-stale=true]').length === 0; }}",
+                               timeout=timing.RENDER_TIMEOUT_MS)
+        drawn = page.locator(CHARTS).count()
 
         # an unrelated rerun (a tick box in the save form) leaves the drawn charts as they are
         _mark_charts(page)
@@ -159,7 +163,7 @@ def test_pick_trim_and_download(server, browser, tmp_path):
                                timeout=timing.RENDER_TIMEOUT_MS)
         page.wait_for_function("() => document.querySelectorAll('[data-stale=\"true\"]').length === 0",
                                timeout=timing.RENDER_TIMEOUT_MS)
-        assert _kept(page) == [True] * timing.DEMO_CHARTS
+        assert _kept(page) == [True] * drawn
 
         # the trim redraws the machine's curves: wait until those charts are new drawings
         assert page.get_by_text("Drawn with the rheostat").count() == 0
@@ -169,7 +173,7 @@ def test_pick_trim_and_download(server, browser, tmp_path):
             page.keyboard.press("ArrowRight")
         page.get_by_text("Drawn with the rheostat").first.wait_for(timeout=timing.RENDER_TIMEOUT_MS)
         page.wait_for_function(f"() => [...document.querySelectorAll('{CHARTS}')].filter(e => !e.__kept).length >= 2"
-                               f" && document.querySelectorAll('{CHARTS}').length === {timing.DEMO_CHARTS}",
+                               f" && document.querySelectorAll('{CHARTS}').length === {drawn}",
                                timeout=timing.RENDER_TIMEOUT_MS)
         _shot(page, tmp_path / "after-change.png")
 

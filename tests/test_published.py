@@ -11,35 +11,16 @@ import numpy as np
 import pytest
 from numpy.testing import assert_allclose
 
-from supplycfg.circuit import (Load, Setting, build_circuit, external_characteristic, machine_state,
-                               operating_points, self_excitation, series_critical_resistance_ohm)
-from supplycfg.machine import machine_from_dict
+from supplycfg.circuit import (Load, Setting, build_circuit, external_characteristic, operating_points,
+                               self_excitation, series_critical_resistance_ohm)
 from supplycfg.magnetisation import copper_resistance_factor, emf_from_flux, flux_from_emf
+try:
+    from .builders import make_machine, state_at
+except ImportError:
+    from builders import make_machine, state_at
 
 ARITH = 5e-4       # closed arithmetic, 0.05 %
 GRAPHICAL = 0.02   # answers read from a test curve
-
-
-def make_machine(machine=None, occ=None, **tables):
-    """A machine from TOML-like tables; ``machine`` and ``occ`` update defaults."""
-    m = {"label": "check", "poles": 4, "rated_speed_rpm": 1000.0, "rated_voltage_v": 230.0,
-         "rated_armature_current_a": 100.0, "armature_resistance_ohm": 0.05,
-         "shunt_field_resistance_ohm": 100.0, "shunt_turns_per_pole": 1000.0,
-         "rheostat_max_ohm": 200.0}
-    m.update(machine or {})
-    o = {"speed_rpm": m["rated_speed_rpm"], "field_current_a": [0.0, 0.5, 1.0, 1.5, 2.0],
-         "emf_v": [2.0, 100.0, 180.0, 220.0, 240.0], "interpolation": "linear"}
-    o.update(occ or {})
-    return machine_from_dict({"machine": m, "open_circuit": o, **tables})
-
-
-def state_at(machine, setting, v, il):
-    """The engine's circuit state at a given terminal voltage and load current."""
-    circ = build_circuit(machine, [setting])
-    idx = np.array([0])
-    p = dict(circ.take(idx), idx=idx)
-    st = machine_state(circ, p, np.array([float(v)]), np.array([float(il)]))
-    return {k: float(np.asarray(val)[0]) for k, val in st.items()}
 
 
 # ---------------------------------------------------------------------------

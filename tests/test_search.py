@@ -635,3 +635,34 @@ def test_end_volts_per_cell_uses_the_profiles_bank_resistance():
     vpc = (float(bank_curve_v(b, b.state_of_charge[1], i1)) - i1 * b.cable_resistance_ohm) / b.cells
     assert_allclose(o.figures["end_volts_per_cell"], vpc, rtol=2e-4)
     assert_allclose(o.figures["end_charge_current_a"], i1, rtol=2e-3)
+
+
+def test_golden_section_steps_per_round_are_exact():
+    """Several golden-section steps per call give bit for bit the brackets of one step per call
+    (Kiefer 1953: each step keeps the part holding the better inner point), on a smooth peak, a
+    kink (a max-min of two lines, as the search's smallest margin) and a flat top."""
+    import math
+    from supplycfg.envelope import golden_section_steps
+
+    def f(p):  # one row per function, points of shape (3, k)
+        p = np.asarray(p, float)
+        return np.stack([-(p[0] - 0.3) ** 2, np.minimum(p[1] - 0.2, 0.9 - 2 * p[1]), np.zeros_like(p[2])])
+
+    g = (math.sqrt(5) - 1) / 2
+    a0, b0 = np.zeros(3), np.ones(3)
+    c0, d0 = b0 - g * (b0 - a0), a0 + g * (b0 - a0)
+    ref = None
+    for per_round in (1, 2, 3, 5):
+        a, b, c, d = a0, b0, c0, d0
+        fc, fd = f(c[:, None])[:, 0], f(d[:, None])[:, 0]
+        done = 0
+        while done < 10:
+            k = min(per_round, 10 - done)
+            a, b, c, d, fc, fd, _ = golden_section_steps(a, b, c, d, fc, fd, k, f)
+            done += k
+        state = np.concatenate([a, b, c, d, fc, fd])
+        if ref is None:
+            ref = state
+        np.testing.assert_array_equal(state, ref)
+    a, b = ref[0:3], ref[3:6]
+    assert a[0] <= 0.3 <= b[0] and a[1] <= 1.1 / 3 <= b[1] and b[0] - a[0] < 0.02

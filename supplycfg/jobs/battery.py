@@ -1141,6 +1141,33 @@ def start_controls(space, base_idx=None):
     return _weakest_per_base(u, pos, base_idx.size, sign)
 
 
+def peak_controls(space, base_idx, u1, main, rows_base_pos, rows_corner):
+    """Main-charge field per base that holds the highest current along the charge at the start target.
+
+    Only bases whose current rises above the target somewhere along the main
+    charge get a value (the weakest over the corners); NaN elsewhere.
+    """
+    job = space.profile.battery
+    chem = chemistry(job.chemistry)
+    it = start_target_current_a(space)
+    cur = np.where(np.isfinite(main.current_a), main.current_a, -np.inf)
+    k = np.argmax(cur, axis=1)
+    peak = cur[np.arange(cur.shape[0]), k]
+    rows = np.flatnonzero(peak > it * (1 + 1e-6))
+    out = np.full(np.asarray(base_idx).size, np.nan)
+    if not rows.size:
+        return out
+    soc = main.soc[rows, k[rows]]
+    pt = cell_on_charge(chem, soc, it / job.capacity_ah, job.temperature_c, job.open_circuit_voltage_per_cell_v,
+                        bank_resistance_ohm_ah(job))
+    v = job.cells * pt.volts_per_cell + it * job.cable_resistance_ohm
+    base_idx = np.asarray(base_idx, int)
+    u, _ = control_for_point(space, base_idx[rows_base_pos[rows]], rows_corner[rows], v, it)
+    sign = _strength_sign(space, base_idx)
+    up = _weakest_per_base(u, rows_base_pos[rows], base_idx.size, sign)
+    return np.where(np.isfinite(up), _weaker(np.asarray(u1, float), up, sign), np.nan)
+
+
 def finish_controls(space, base_idx, u1, rows_base_pos, rows_corner, handed_over, handover_soc):
     """Field control of the finish per base: the strongest value that keeps the finish's current
     at most the finishing current where it starts (the hand-over, per corner) and the cells at
@@ -1222,7 +1249,7 @@ def _handover(space, rows_base, rows_corner, rows_u, job):
     return handed, soc
 
 
-def charge_plan(space, base_idx=None, u1=None, u2=None):
+def charge_plan(space, base_idx=None, u1=None, u2=None, main_from=None):
     """The charge plan of each base over every corner of the envelope.
 
     Parameters
@@ -1235,6 +1262,10 @@ def charge_plan(space, base_idx=None, u1=None, u2=None):
         Main-charge field control per base; default :func:`start_controls`.
     u2 : array, optional
         Finish field control per base; default :func:`finish_controls`.
+    main_from : Plan, optional
+        A plan of the same space holding every base of ``base_idx`` with the
+        same main-charge control: its main charge and hand-over are taken as
+        they are (only the finish is solved; a finish field's band).
 
     Returns
     -------
@@ -1250,14 +1281,35 @@ def charge_plan(space, base_idx=None, u1=None, u2=None):
     nb = len(space.bases)
     base_idx = np.arange(nb) if base_idx is None else np.asarray(base_idx, int)
     nc = space.nc
+    aim_start = u1 is None
     u1 = start_controls(space, base_idx) if u1 is None else np.asarray(u1, float)
     pos = np.repeat(np.arange(base_idx.size), nc)
     rows_base = base_idx[pos]
     rows_corner = np.tile(np.arange(nc), base_idx.size)
     nr = rows_base.size
     s0, s1 = job.state_of_charge
-    handed, s_ho = _handover(space, rows_base, rows_corner, u1[pos], job)
-    main = _stage(space, rows_base, rows_corner, u1[pos], np.full(nr, s0), s_ho)
+    if main_from is None:
+        handed, s_ho = _handover(space, rows_base, rows_corner, u1[pos], job)
+        main = _stage(space, rows_base, rows_corner, u1[pos], np.full(nr, s0), s_ho)
+        if aim_start:
+            # where the current rises along the charge (a rising characteristic, a cold bank), aim the
+            # field at the target current where the peak lies, not at the start: one re-aim suffices
+            # within the setting margin
+            u_peak = peak_controls(space, base_idx, u1, main, pos, rows_corner)
+            changed = np.flatnonzero(np.isfinite(u_peak) & (u_peak != u1))
+            if changed.size:
+                u1 = np.where(np.isfinite(u_peak), u_peak, u1)
+                redo = np.flatnonzero(np.isin(pos, changed))
+                h2, s2 = _handover(space, rows_base[redo], rows_corner[redo], u1[pos][redo], job)
+                part = _stage(space, rows_base[redo], rows_corner[redo], u1[pos][redo], np.full(redo.size, s0), s2)
+                handed[redo], s_ho[redo] = h2, s2
+                for f in _STAGE_FIELDS:
+                    getattr(main, f)[redo] = getattr(part, f)
+    else:
+        at = {int(b): k for k, b in enumerate(main_from.base_idx)}
+        rows = np.array([at[int(b)] * nc + c for b, c in zip(rows_base, rows_corner)], int)
+        handed, s_ho = main_from.handed_over[rows], main_from.handover_soc[rows]
+        main = Stage(**{f: getattr(main_from.main, f)[rows] for f in _STAGE_FIELDS})
     if u2 is None:
         u2 = finish_controls(space, base_idx, u1, pos, rows_corner, handed, s_ho)
     u2 = np.asarray(u2, float)
@@ -1455,7 +1507,11 @@ def row_figures(plan):
             "main_end_current": m.current_a[:, -1],
             "main_end_soc": m.soc[:, -1],
             "finish_start_current": np.where(reached, f.current_a[:, 0], np.nan),
-            "finish_peak": np.where(reached, f.current_a[:, 0], 0.0),
+            # the current can rise along a stage (a rising characteristic, a cold bank): limits take its
+            # highest and lowest over the stage, never just an end
+            "main_peak": np.where(np.isfinite(m.current_a[:, 0]), _nanmax_rows(m.current_a), np.nan),
+            "main_low": np.where(np.isfinite(m.current_a[:, 0]), _nanmin_rows(m.current_a), np.nan),
+            "finish_peak": np.where(reached, _nanmax_rows(f.current_a), 0.0),
             "end_current": np.where(reached, f.current_a[:, -1], m.current_a[:, -1]),
             "end_vpc": np.where(reached, f.volts_per_cell[:, -1], m.volts_per_cell[:, -1]),
             "highest_vpc": _nanmax_rows(m.volts_per_cell, f.volts_per_cell),
@@ -1585,8 +1641,8 @@ def plan_figures(plan):
     target = job.target_hours
     hours_nom = at("hours")
     lim = {
-        "start_current_max": (worst_max("start_current"), job.max_charge_current_a, "max", "A"),
-        "main_charge_current_min": (worst_min("main_end_current"), job.min_charge_current_a, "min", "A"),
+        "charge_current_max": (worst_max("main_peak"), job.max_charge_current_a, "max", "A"),
+        "main_charge_current_min": (worst_min("main_low"), job.min_charge_current_a, "min", "A"),
         "finish_current_max": (worst_max("finish_peak"), finishing_current_a(job), "max", "A"),
         "end_volts_per_cell": (worst_max("highest_vpc"), vmax, "max", "V"),
         "hours_to_full": (np.where(np.isfinite(hours_worst), hours_worst, np.inf), target, "max", "h"),
@@ -1620,7 +1676,8 @@ def plan_figures(plan):
         "cut_in_speed_hot_rpm": cut_hot,
         "standstill_backfeed_current_a": backfeed,
         "start_charge_current_highest_a": worst_max("start_current"),
-        "main_charge_current_lowest_a": worst_min("main_end_current"),
+        "main_charge_current_highest_a": worst_max("main_peak"),
+        "main_charge_current_lowest_a": worst_min("main_low"),
         "finish_current_highest_a": worst_max("finish_peak"),
         "highest_volts_per_cell": worst_max("highest_vpc"),
         "no_load_voltage_min_v": worst_over_corners(vnl_rows, nb, nc, "min"),
@@ -1688,8 +1745,55 @@ def solve(space):
     # each band step re-solves whole plans: a coarser scan and fewer halvings (a few hundredths of
     # an ohm, far below what the readings are rounded to) keep the search quick
     advice, n = option_advice(space, evaluate, plan.u1, lim, start_setting_field, scan=4, steps=10)
+    finish, n2 = finish_advice(plan, lim)
     extras = [dict(e or {}, **a) for e, a in zip(extras, advice)]
-    return plan.u1, lim, figs, extras, int(evaluated + n)
+    for e, a, f in zip(extras, advice, finish):
+        stages = e.get("plan") or []
+        # each stage carries the readings where its field is set: stage 1's are the option's
+        if stages:
+            stages[0].update(a)
+        if len(stages) == 2 and f is not None:
+            stages[1].update(f)
+    return plan.u1, lim, figs, extras, int(evaluated + n + n2)
+
+
+def finish_advice(plan, limits):
+    """Readings and band of the finish's field for every two-stage plan that keeps every limit.
+
+    The finish's field is set at the hand-over, so its readings are the field
+    currents there; its band is the interval of finish fields over which every
+    limit of the whole plan still holds with the main charge as planned.
+
+    Returns
+    -------
+    (list, int)
+        Per base ``{"readings", "band"}`` or None (one stage, or a limit
+        broken), and the candidate evaluations spent.
+    """
+    space, job = plan.space, plan.space.profile.battery
+    nb = len(space.bases)
+    u1 = np.full(nb, np.nan)
+    u1[plan.base_idx] = plan.u1
+    u2 = np.full(nb, np.nan)
+    two = np.asarray(plan.two_stage, bool)
+    u2[plan.base_idx[two]] = plan.u2[two]
+    # the hand-over's state of charge at every corner, by base (the main charge does not change)
+    soc = np.full((nb, space.nc), job.state_of_charge[1])
+    soc[plan.base_idx] = np.where(np.isfinite(plan.handover_soc), plan.handover_soc,
+                                  job.state_of_charge[1]).reshape(-1, space.nc)
+    if not np.isfinite(u2).any():
+        return [None] * nb, 0
+
+    def evaluate_finish(space_, base_idx, u, res=None):
+        lim, figs, _ = plan_figures(charge_plan(space_, base_idx, u1[base_idx], u, main_from=plan))
+        return lim, figs
+
+    def finish_field(space_, base_idx, u):
+        sub, _ = expand_candidates(space_, base_idx, u)
+        return bank_points(sub, job, soc[base_idx].ravel())["shunt_field_current_a"]
+
+    advice, n = option_advice(space, evaluate_finish, u2, limits, finish_field, scan=4, steps=10)
+    return [a if np.isfinite(u2[i]) else None for i, a in enumerate(advice)], n
 
 
 def evaluate(space, base_idx, u, res=None):

@@ -158,22 +158,27 @@ def _internal(exc):
     return {"key": "", "message": line, "line": line}
 
 
-def on_machine_apply():
-    vals = machine_form_values()
+def _apply_form(which, tables_of, read, write, version):
+    """Read one form into its tables: on success they are the data in use and the form starts again
+    from them (its ``version`` key moves on); on bad input one line at the form, nothing lost."""
     try:
-        tables = fields.machine_tables_from_form(vals)
-        m = machine_from_dict(tables, fields.FORM)
+        data = read(tables_of(), fields.FORM)
     except InputError as e:
-        S.machine_error = {"key": e.key, "message": e.message, "line": str(e)}
+        S[f"{which}_error"] = {"key": e.key, "message": e.message, "line": str(e)}
         return
     except Exception as e:  # a fault of ours: one line at the form, never a traceback
-        S.machine_error = _internal(e)
+        S[f"{which}_error"] = _internal(e)
         return
-    S.machine_tables = machine_to_dict(m)
-    S.machine_origin = "edited on this page"
-    S.machine_error = None
-    S.machine_msg = None
-    S.mver += 1  # the form starts again from the data now in use
+    S[f"{which}_tables"] = write(data)
+    S[f"{which}_origin"] = "edited on this page"
+    S[f"{which}_error"] = None
+    S[f"{which}_msg"] = None
+    S[version] += 1
+
+
+def on_machine_apply():
+    _apply_form("machine", lambda: fields.machine_tables_from_form(machine_form_values()),
+                machine_from_dict, machine_to_dict, "mver")
 
 
 def profile_form_values():
@@ -182,21 +187,8 @@ def profile_form_values():
 
 
 def on_profile_apply():
-    vals = profile_form_values()
-    try:
-        tables = fields.profile_tables_from_form(S.kind, vals)
-        p = profile_from_dict(tables, fields.FORM)
-    except InputError as e:
-        S.profile_error = {"key": e.key, "message": e.message, "line": str(e)}
-        return
-    except Exception as e:  # a fault of ours: one line at the form, never a traceback
-        S.profile_error = _internal(e)
-        return
-    S.profile_tables = profile_to_dict(p)
-    S.profile_origin = "edited on this page"
-    S.profile_error = None
-    S.profile_msg = None
-    S.pver += 1
+    _apply_form("profile", lambda: fields.profile_tables_from_form(S.kind, profile_form_values()),
+                profile_from_dict, profile_to_dict, "pver")
 
 
 # --- solves ------------------------------------------------------------------
@@ -258,13 +250,8 @@ def charge(machine_toml, profile_toml, rank):
         return None, f"internal error in the charge run, please report it: {type(e).__name__}: {e}"
 
 
-@st.cache_data(max_entries=256, show_spinner="Drawing the curves...")
-def chart_specs(machine_toml, profile_toml, rank, trim):
-    """Vega-Lite specs ``[(name, title, spec)]`` of option ``rank`` with the field control ``trim``.
-
-    ``trim`` is ``(rheostat_ohm, field_current_a)`` for the curves of the
-    machine; the charge run always follows the option's own setting.
-    """
+def _option_specs(machine_toml, profile_toml, rank, trim, only):
+    """Specs ``[(name, title, spec)]`` of the charts ``only`` of option ``rank`` drawn with ``trim``."""
     from dataclasses import replace
     from .. import charts
     from ..report import other_tap_options
@@ -274,16 +261,47 @@ def chart_specs(machine_toml, profile_toml, rank, trim):
     opt = next((o for o in res.options if o.rank == rank), None)
     if opt is None:
         return [], None
-    shown = replace(opt, setting=replace(opt.setting, rheostat_ohm=trim[0], field_current_a=trim[1]))
+    shown = opt if trim is None else replace(opt, setting=replace(opt.setting, rheostat_ohm=trim[0],
+                                                                   field_current_a=trim[1]))
     run, _ = charge(machine_toml, profile_toml, rank) if res.profile.kind == "battery" else (None, None)
     taps = other_tap_options(res, opt) if res.profile.kind == "welding" else ()
     try:
-        out = charts.option_charts(res.machine, res.profile, shown, taps, run)
+        out = charts.option_charts(res.machine, res.profile, shown, taps, run, only=only)
         return [(name, title, charts.chart_spec(ch, validate=False)) for name, title, ch in out], None
     except InputError as e:
         return [], str(e)
     except Exception as e:
         return [], f"internal error drawing the curves, please report it: {type(e).__name__}: {e}"
+
+
+@st.cache_data(max_entries=64, show_spinner="Drawing the curves...")
+def setting_free_specs(machine_toml, profile_toml, rank):
+    """The option's charts that do not change with the field trim (the charge run, the cells' curves)."""
+    from ..charts import SETTING_FREE_CHARTS
+    return _option_specs(machine_toml, profile_toml, rank, None, SETTING_FREE_CHARTS)
+
+
+@st.cache_data(max_entries=256, show_spinner="Drawing the curves...")
+def setting_specs(machine_toml, profile_toml, rank, trim):
+    """The option's charts drawn with the field control ``trim``."""
+    from ..charts import CHART_ORDER, SETTING_FREE_CHARTS
+    return _option_specs(machine_toml, profile_toml, rank, trim,
+                         tuple(k for k in CHART_ORDER if k not in SETTING_FREE_CHARTS))
+
+
+def chart_specs(machine_toml, profile_toml, rank, trim):
+    """Vega-Lite specs ``[(name, title, spec)]`` of option ``rank`` with the field control ``trim``.
+
+    ``trim`` is ``(rheostat_ohm, field_current_a)`` for the curves of the
+    machine; the charge run always follows the option's own setting. Moving
+    the trim redraws only the charts that depend on it.
+    """
+    from ..charts import CHART_ORDER
+    drawn, err = setting_specs(machine_toml, profile_toml, rank, trim)
+    if err:
+        return drawn, err
+    fixed, err = setting_free_specs(machine_toml, profile_toml, rank)
+    return sorted(drawn + fixed, key=lambda item: CHART_ORDER.index(item[0])), err
 
 
 @st.cache_data(max_entries=64, show_spinner=False)
