@@ -471,8 +471,6 @@ def cmd_point(args, out):
         lines.append("no stable operating point of normal polarity on this load")
     else:
         lines.append("no operating point: the characteristic does not meet this load")
-    for c in sorted(cautions, key=lambda c: ["stop", "warn", "note"].index(c.severity)):
-        lines.append(f"[{c.severity}] {c.message} (basis: {c.basis})")
     if not ops.converged and not ops.runaway:
         lines.append("warning: a point did not converge; " + ops.message)
     lines += _caution_lines(cautions)
@@ -482,7 +480,8 @@ def cmd_point(args, out):
 def _point_state(p, is_normal):
     """One word or two for an operating point: which one the machine sits at, and why the others are not."""
     if p["reversed"]:
-        return "reversed build-up"
+        # a reversed state the machine can hold is a reversed build-up; an unstable one only divides the branches
+        return "reversed build-up" if p["stable"] else "reversed, unstable"
     if is_normal:
         return "sits here, back-feeding" if p["back_feeding"] else "sits here"
     if not p["stable"]:

@@ -293,8 +293,8 @@ def test_back_feeding_is_a_battery_driving_the_machine():
 def test_point_command_marks_reversed_states(capsys):
     """The ``point`` command on the feeder booster past its span (see
     test_point_past_the_span_runs_away_and_is_not_the_reversed_one): no
-    "sits here", every row a reversed build-up, the stop caution and the
-    runaway in the output; JSON says the same (``sits_at`` null)."""
+    "sits here", every row reversed (a build-up where stable), the stop caution
+    once and the runaway in the output; JSON says the same (``sits_at`` null)."""
     import json
     from supplycfg.cli import main
     args = ["point", str(PROFILES / "machines" / "feeder-booster.toml"), "--connection", "long-shunt-cumulative",
@@ -307,7 +307,11 @@ def test_point_command_marks_reversed_states(capsys):
     assert main(args + ["--json"]) == 0
     d = json.loads(capsys.readouterr().out)
     assert d["sits_at"] is None and d["runaway"] is True
-    assert all(p["state"] == "reversed build-up" for p in d["operating_points"])
+    # every row reversed: the stable ones are reversed build-ups, an unstable one only divides the branches
+    assert all(p["state"] == ("reversed build-up" if p["stable"] else "reversed, unstable")
+               for p in d["operating_points"])
+    # each caution printed once (regression: the text listed them twice)
+    assert text.count("[stop]") == sum(c["severity"] == "stop" for c in d["cautions"])
     # the setting's own cautions (field switching, near critical) come with the operating points' ones
     assert {"reversed-build-up", "runaway"} <= {c["rule"] for c in d["cautions"]}
     assert "back-feeding" not in {c["rule"] for c in d["cautions"]}
