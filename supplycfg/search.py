@@ -518,6 +518,15 @@ def _rig_lines(o):
     return lines
 
 
+def at_machine_lines(option, profile):
+    """What to set and read at the machine for one option, as text lines: the welding dial, the field
+    readings and bands (per stage of a charge plan), diverters with their ratings, the exciter supply."""
+    lines = []
+    if profile.kind == "welding":
+        lines += _dial_lines(option, profile.welding.cable_resistance_ohm)
+    return lines + _reading_lines(option, profile.kind)
+
+
 def search_text(res, top=10):
     """The ranked table a technician reads, the stated ranking rule and the best option's details."""
     from .report import KIND_WORDS, condition_words, figure_label, limit_label
@@ -558,10 +567,7 @@ def search_text(res, top=10):
         lines += ["", "Limits broken:"] + tails
     if res.options:
         best = res.options[0]
-        lines += ["", f"Option {best.rank} at the machine:"]
-        if welding:
-            lines += _dial_lines(best, res.profile.welding.cable_resistance_ohm)
-        lines += _reading_lines(best, kind)
+        lines += ["", f"Option {best.rank} at the machine:"] + at_machine_lines(best, res.profile)
         lines += ["", f"Option {best.rank} in figures:"]
         at = condition_words(best)
         for k, v in best.figures.items():

@@ -141,7 +141,13 @@ def size_text(res):
     o = res.option
     if o is not None:
         f = o.figures
-        lines.append(f"Best setting at that rating: {o.setting.describe(with_connection=True)}")
+        from .search import at_machine_lines
+        from .wording import connection_words
+        st = o.setting
+        lines.append(f"Best setting at that rating: {connection_words(st.connection)}"
+                     + (f", {st.series_turns:g} series turns" if st.series_turns else ""))
+        lines += at_machine_lines(o, p)
+        lines.append("The drive with that setting:")
         from .report import figure_label
         for k in ("max_shaft_power_kw", "max_drive_loading_percent", "min_speed_rpm", "max_speed_rpm",
                   "min_efficiency_percent"):
