@@ -20,10 +20,10 @@ import pytest
 from hypothesis import given, settings, strategies as st
 
 from supplycfg import cli
+from supplycfg.bench import machine_at_bounds_toml
 from supplycfg.bench import MAX_BENCH_REPEAT, run_bench
 from supplycfg.circuit import Setting, external_characteristic
 from supplycfg.errors import InputError
-from supplycfg.files import dumps_toml
 from supplycfg.profile import load_profile
 from supplycfg.machine import MAX_AR_ROWS, MAX_OCC_POINTS, MAX_SERIES_TAPS, MIN_STEP_FRACTION, load_machine
 from supplycfg.validate import MAX_FILE_BYTES
@@ -281,21 +281,6 @@ def test_bad_option_exit_2_one_line(case, capsys):
 # bounds on what multiplies the work (issue 8 item 10)
 # ---------------------------------------------------------------------------
 
-def _machine_at_bounds(taps, occ_points, ar_rows):
-    """The demo welding set stretched to ``taps`` series taps, ``occ_points`` curve points and ``ar_rows`` rows."""
-    m = tomllib.loads((ROOT / "profiles" / "machines" / "welding-set.toml").read_text(encoding="utf-8"))
-    nse = m["machine"]["series_turns_per_pole"]
-    m["machine"]["series_taps"] = [float(t) for t in np.linspace(0.0, nse, taps)]
-    fc, ev = m["open_circuit"]["field_current_a"], m["open_circuit"]["emf_v"]
-    x = np.linspace(0.0, fc[-1], occ_points)
-    m["open_circuit"]["field_current_a"] = x.tolist()
-    m["open_circuit"]["emf_v"] = np.maximum.accumulate(np.interp(x, fc, ev)).tolist()
-    ia = np.linspace(0.0, 400.0, ar_rows)
-    m["armature_reaction"] = {"armature_current_a": ia.tolist(),
-                              "demagnetizing_at_per_pole": (125.0 * (ia / 400.0) ** 1.5).tolist()}
-    return dumps_toml(m)
-
-
 def test_bounds_are_the_documented_ones():
     """The bounds the README states are the ones the readers and options apply."""
     readme = (ROOT / "README.md").read_text(encoding="utf-8")
@@ -313,7 +298,7 @@ def test_bounds_are_the_documented_ones():
 def test_one_past_a_bound_is_refused(tmp_path, capsys, extra, key):
     """Issue 8 item 10: one entry past a bound is refused in one line, exit 2, naming file and key."""
     path = tmp_path / "machine.toml"
-    path.write_text(_machine_at_bounds(*extra), encoding="utf-8")
+    path.write_text(machine_at_bounds_toml(*extra), encoding="utf-8")
     assert cli.main(["search", str(path), str(ROOT / "profiles" / "loads" / "welding.toml")]) == 2
     out, err = capsys.readouterr()
     assert out == ""
@@ -324,7 +309,7 @@ def test_file_at_the_bounds_is_accepted_and_searched(tmp_path, capsys):
     """Issue 8 item 10: a machine at every bound at once loads, and a welding search
     on it answers (its time and memory are measured by hand, never asserted here)."""
     path = tmp_path / "machine.toml"
-    path.write_text(_machine_at_bounds(MAX_SERIES_TAPS, MAX_OCC_POINTS, MAX_AR_ROWS), encoding="utf-8")
+    path.write_text(machine_at_bounds_toml(), encoding="utf-8")
     m = load_machine(path)
     assert len(m.series_taps) == MAX_SERIES_TAPS and len(m.occ_field_current_a) == MAX_OCC_POINTS
     assert len(m.ar_table_current_a) == MAX_AR_ROWS

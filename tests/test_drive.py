@@ -19,8 +19,7 @@ from hypothesis import given, note, strategies as st
 from numpy.testing import assert_allclose
 
 from supplycfg import drive as dm
-from supplycfg.circuit import (Load, Setting, build_circuit, external_characteristic, operating_points,
-                               power_flow)
+from supplycfg.circuit import (Load, Setting, external_characteristic, operating_points)
 from supplycfg.cli import main
 from supplycfg.envelope import build_space
 from supplycfg.errors import InputError

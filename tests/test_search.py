@@ -17,11 +17,9 @@ limits written out here from their sources:
   (common practice, the person's input).
 """
 
-import functools
 import json
 import math
 from dataclasses import replace
-from pathlib import Path
 
 import numpy as np
 import pytest
@@ -32,30 +30,15 @@ from supplycfg.cautions import CRITICAL_CLEARANCE
 from supplycfg.jobs import option_cautions, profile_cautions
 from supplycfg.circuit import USES_SERIES, Load, Setting, operating_points
 from supplycfg.cli import main
-from supplycfg.profile import load_profile
-from supplycfg.machine import load_machine
 from supplycfg.search import search
 
-ROOT = Path(__file__).resolve().parents[1]
-MACHINES = ROOT / "profiles" / "machines"
-LOADS = ROOT / "profiles" / "loads"
-DEMOS = {"battery": ("charging-set", "battery-charging"), "welding": ("welding-set", "welding"),
-         "lighting": ("lighting-set", "lighting"), "booster": ("feeder-booster", "booster")}
+try:
+    from .builders import DEMOS, demo, demo_paths as paths
+except ImportError:
+    from builders import DEMOS, demo, demo_paths as paths
 
 #: Relative slack for re-solving the search's points with a different solver grid.
 SLACK = 1e-4
-
-
-def paths(kind):
-    m, p = DEMOS[kind]
-    return MACHINES / f"{m}.toml", LOADS / f"{p}.toml"
-
-
-@functools.lru_cache(maxsize=None)
-def demo(kind):
-    mp, pp = paths(kind)
-    m, p = load_machine(mp), load_profile(pp)
-    return m, p, search(m, p)
 
 
 def corners(machine, profile):
