@@ -595,9 +595,24 @@ def ranking_line(result, option):
     if option is feasible[0]:
         nxt = others[0]
         _, nwords = objective_value(nxt, kind)
+        from .search import OBJECTIVE_TIE_FRACTION, tie_break
+        why = tie_break(option, nxt)
         if words and nwords and kind == "battery":
-            return (f"Ranked first of {len(feasible)} settings that meet every limit: {words} "
-                    f"(next, option {nxt.rank}: {nwords}).")
+            head = f"Ranked first of {len(feasible)} settings that meet every limit: {words}"
+            if why == "objective":
+                return f"{head} (next, option {nxt.rank}: {nwords})."
+            tied = (f"; option {nxt.rank} ({nwords}) is within {100 * OBJECTIVE_TIE_FRACTION:g} %, a tie, "
+                    f"and the tie goes to ")
+            if why == "margin":
+                return (f"{head}{tied}the larger least margin: {100 * option.smallest_margin:.1f} % against "
+                        f"{100 * nxt.smallest_margin:.1f} %.")
+            if why == "objective-in-tie":
+                return (f"{head}; option {nxt.rank} ({nwords}) is within {100 * OBJECTIVE_TIE_FRACTION:g} %, a tie, "
+                        f"and with the same rig and least margins alike to 0.1 % ({100 * option.smallest_margin:.1f} %) "
+                        f"the quicker charge ranks first.")
+            if why == "order":
+                return f"{head}{tied}neither: they are alike by every rule, listed in a fixed order."
+            return f"{head}{tied}the simpler rig (fewer {why} " + ("in circuit)." if why == "series turns" else "needed).")
         return (f"Ranked first of {len(feasible)} settings that meet every limit: its tightest limit keeps "
                 f"{margin} margin (next, option {nxt.rank}: {fmt(100 * nxt.smallest_margin, '%')}).")
     best = feasible[0]

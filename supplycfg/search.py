@@ -31,12 +31,21 @@ __all__ = ["Option", "RANKING_RULE", "SearchResult", "candidate_bases", "rank_op
 
 #: Objectives closer than this share of the larger tie (issue rule).
 OBJECTIVE_TIE_FRACTION = 0.02
+#: Least margins are compared in steps of this share of their limit: closer ones are alike, and the
+#: better objective decides (a margin held by construction at 3 % is not beaten by 3.0001 %).
+MARGIN_STEP_FRACTION = 1e-3
+
+
+def margin_steps(smallest_margin):
+    """The least margin in whole steps of :data:`MARGIN_STEP_FRACTION` (the ranking compares these)."""
+    return round(smallest_margin / MARGIN_STEP_FRACTION) if math.isfinite(smallest_margin) else -math.inf
 
 #: The words of the ranking rule; ``{objective}`` is the job's objective label.
 RANKING_RULE = (
     "Ranking: options that meet every limit first, by {objective}; objectives within 2 % of each other "
     "tie, and a tie goes to the simpler rig (no diverter, fewer series turns in circuit, no exciter needed), "
-    "then to the larger least margin. Then the options without a stop caution, by the number of limits "
+    "then to the larger least margin (counted in steps of 0.1 % of its limit), then to the better objective. "
+    "Then the options without a stop caution, by the number of limits "
     "broken and then by the worst breach as a share of its limit. Options with a stop caution come last, "
     "marked not usable. Options with the same figures are listed once.")
 #: What "least margin" means wherever it is printed.
@@ -252,6 +261,28 @@ def _ties(a, b, tie=OBJECTIVE_TIE_FRACTION):
     return abs(a - b) <= tie * max(abs(a), abs(b))
 
 
+def tie_break(first, second, tie=OBJECTIVE_TIE_FRACTION):
+    """What puts feasible ``first`` above feasible ``second`` under the stated rule.
+
+    Returns
+    -------
+    str
+        ``objective`` (their objectives do not tie), ``diverter``, ``series
+        turns`` or ``exciter`` (a tie that goes to the simpler rig, by its
+        first difference), ``margin`` (the larger least margin),
+        ``objective-in-tie`` (alike margins: the better objective) or
+        ``order`` (nothing tells them apart; a fixed order of settings).
+    """
+    if not _ties(first.objective, second.objective, tie):
+        return "objective"
+    for name, a, b in zip(("diverter", "series turns", "exciter"), first.rig, second.rig):
+        if a != b:
+            return name
+    if margin_steps(first.smallest_margin) != margin_steps(second.smallest_margin):
+        return "margin"
+    return "objective-in-tie" if first.objective != second.objective else "order"
+
+
 def rank_options(options, tie=OBJECTIVE_TIE_FRACTION):
     """Options in the stated order (:data:`RANKING_RULE`), ranks set from 1.
 
@@ -275,7 +306,8 @@ def rank_options(options, tie=OBJECTIVE_TIE_FRACTION):
             groups.append([o])
     ordered = []
     for g in groups:
-        ordered += sorted(g, key=lambda o: (o.rig, -o.smallest_margin, stable(o)))
+        ordered += sorted(g, key=lambda o: (o.rig, -margin_steps(o.smallest_margin),
+                                            o.objective if o.objective is not None else 0.0, stable(o)))
 
     def miss_key(o):
         return (len(o.limits_broken), -o.worst_breach, stable(o))

@@ -31,7 +31,7 @@ from supplycfg.profile import load_profile, profile_from_dict
 from supplycfg.readings import (control_band, diverter_rating, exciter_field_current_max_a,
                                 preferred_resistance_ohm, readings_and_band, round_to, rounded_band,
                                 settable_step)
-from supplycfg.search import Option, merge_identical, rank_options, search
+from supplycfg.search import Option, margin_steps, merge_identical, rank_options, search
 
 try:
     from .builders import DEMOS, LOADS, MACHINES, ROOT, demo
@@ -431,7 +431,8 @@ options_strategy = st.lists(st.tuples(st.booleans(), st.booleans(), st.one_of(st
 @given(options_strategy)
 def test_ranking_rule_properties(specs):
     """No stop option above a usable one, no infeasible above a feasible one; feasible options by
-    objective with 2 % ties broken by the simpler rig then the larger least margin; misses by the
+    objective with 2 % ties broken by the simpler rig, then the larger least margin in steps of 0.1 % of
+    its limit, then the better objective; misses by the
     number of limits broken, then the worst breach (issue 10)."""
     opts = [_option(i, *sp) for i, sp in enumerate(specs)]
     ranked = rank_options(opts)
@@ -450,7 +451,8 @@ def test_ranking_rule_properties(specs):
                  abs(anchor.objective - feas[j + 1].objective) <= 0.02 * max(abs(anchor.objective), abs(feas[j + 1].objective)))):
             j += 1
         grp = feas[i:j + 1]
-        keys = [(o.rig, -o.smallest_margin) for o in grp]
+        keys = [(o.rig, -margin_steps(o.smallest_margin), o.objective if o.objective is not None else 0.0)
+                for o in grp]
         assert keys == sorted(keys)
         if j + 1 < len(feas) and anchor.objective is not None and feas[j + 1].objective is not None:
             assert feas[j + 1].objective > anchor.objective
@@ -458,6 +460,16 @@ def test_ranking_rule_properties(specs):
     for g in (1, 2):
         keys = [(len(o.limits_broken), -o.worst_breach) for o, k in zip(ranked, group) if k == g]
         assert keys == sorted(keys)
+
+
+def test_battery_tie_with_alike_margins_goes_to_the_quicker_charge():
+    """Regression: two plans of the demo tie on hours (within 2 %) with the same rig and least margins
+    equal to 1e-14 (both held at the 3 % setting margin by construction); the ranking put the slower
+    first on that round-off. Margins now compare in steps of 0.1 % of the limit, then the objective."""
+    _, _, res = demo("battery")
+    a, b = res.feasible[0], res.feasible[1]
+    if a.rig == b.rig and margin_steps(a.smallest_margin) == margin_steps(b.smallest_margin):
+        assert a.objective <= b.objective
 
 
 def test_demo_ranking_rules():
