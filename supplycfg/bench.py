@@ -338,6 +338,9 @@ def run_bench(repeat=5):
     res["characteristic_ms"] = 1e3 * _median(lambda: external_characteristic(m, st, 400), repeat)
     ng = engine_against_ngspice(repeat)
     res.update(ng or {"engine_vs_ngspice": None, "ngspice_characteristic_ms": None})
+    # the same curve with the demo's motor: the speed solved at every point (no target: for comparison)
+    motor = load_profile(PROFILES / "loads" / "battery-charging.toml").drive
+    res["driven_characteristic_ms"] = 1e3 * _median(lambda: external_characteristic(m, st, 400, motor), repeat)
     settings = grid_settings(m)
     res["grid_candidates"] = len(settings)
     res["grid_seconds"] = _median(lambda: characteristics(m, settings, 100), max(1, repeat // 2))
@@ -424,6 +427,9 @@ def bench_text(res):
                      f"of analysis (no process start); largest voltage difference "
                      f"{res['ngspice_largest_voltage_difference']:.2g} (relative)")
     lines.append(f"grid_candidates {res['grid_candidates']}; candidates_evaluated (slowest search) {res['candidates_evaluated']}")
+    if res.get("driven_characteristic_ms") is not None:
+        lines.append(f"  characteristic on the demo motor (speed solved at every point): "
+                     f"{res['driven_characteristic_ms']:.4g} ms")
     for k, v in res["search_seconds_by_profile"].items():
         lines.append(f"  search {k}: {v:.4g} s")
     lines.append(f"cli_search_seconds on {res['cli_search_job']}; fleet: {res['fleet_machines']} machines, "

@@ -6,6 +6,8 @@ none is published it says "common practice". Local codes, the
 manufacturers' instructions and licensed practice come first.
 """
 
+import math
+
 from dataclasses import dataclass, field
 
 SEVERITIES = ("stop", "warn", "note")
@@ -145,3 +147,53 @@ def operating_point_cautions(ops):
                       "setting.", "circuit model (design note: the highest stable intersection)"))
     return out
 
+def drive_cautions(machine, drive, f):
+    """Cautions of the drive that turns the set (an engine or a motor), from a setting's figures ``f``.
+
+    Keys read (each optional): ``max_drive_torque_percent``,
+    ``breakdown_torque_percent``, ``collapsed_load_points``,
+    ``min_speed_rpm``, ``max_shaft_power_kw``, ``idle_no_load_voltage_v``,
+    ``idle_builds_up``.
+    """
+    out = []
+    if drive is None or not drive.coupled:
+        return out
+    f = {k: v for k, v in f.items() if v is not None and not (isinstance(v, float) and not math.isfinite(v))}
+    tq, bd = f.get("max_drive_torque_percent"), f.get("breakdown_torque_percent")
+    if tq is not None and bd is not None and tq > bd:
+        out.append(caution("drive-stall", "stop",
+                      f"The motor would need {tq:.0f} % of its rated torque, above its breakdown torque of {bd:.0f} %: "
+                      "it stalls (its protection trips, or it overheats).",
+                      "induction-motor breakdown torque (the profile's breakdown_torque_percent; default 200-250 % "
+                      "of rated torque, common practice, from memory)",
+                      max_drive_torque_percent=tq, breakdown_torque_percent=bd))
+    col = f.get("collapsed_load_points")
+    if col is not None and col > 0:
+        out.append(caution("drive-collapse", "stop",
+                      "At the speed the drive falls to under load the self-excited field cannot hold a stable "
+                      "loaded point: the voltage collapses.",
+                      "self-excitation below critical speed, with the drive's speed solved at the load "
+                      "(Theraja Vol II ch. 28; design note)", collapsed_load_points=col))
+    lo, top = f.get("min_speed_rpm"), f.get("top_speed_rpm")
+    if lo is not None and top is not None:
+        kw = f.get("max_shaft_power_kw")
+        out.append(caution("drive-speed", "note",
+                      f"The {drive.kind} slows with load: about {top:.0f} rpm at the generator with no load, down to "
+                      f"{lo:.0f} rpm at the heaviest point of the job"
+                      + (f" ({kw:.3g} kW at the shaft)" if kw is not None else "")
+                      + ". Every figure is at the speed the drive falls to; check it with a tachometer.",
+                      "drive characteristic from the profile (engine droop or motor slip; common practice)",
+                      top_speed_rpm=top, min_speed_rpm=lo))
+    vi, bi = f.get("idle_no_load_voltage_v"), f.get("idle_builds_up")
+    if drive.idle_speed_rpm is not None and (vi is not None or bi is not None):
+        words = [f"At the engine's idle ({drive.idle_generator_speed_rpm:.0f} rpm at the generator)"]
+        if bi is not None:
+            words.append("the shunt field builds up" if bi >= 1 else
+                         "the shunt field does not build up (below its critical speed)")
+        if vi is not None:
+            words.append(f"the no-load voltage is about {vi:.0f} V")
+        out.append(caution("drive-idle", "note", ", ".join(words[:1]) + " " + " and ".join(words[1:]) +
+                      "; no limit is checked at idle.",
+                      "critical speed of self-excitation (Theraja Vol II ch. 28); engine idle from the profile",
+                      idle_no_load_voltage_v=vi, idle_builds_up=bi))
+    return out

@@ -336,9 +336,13 @@ def curve_rows(label, characteristic, x_key="load_current_a", y_key="terminal_vo
     if transform is not None:
         v = transform(il, v)
     ext = np.asarray(p.get("extrapolated", np.zeros(il.size, bool)), bool)
+    nan = np.full(il.size, np.nan)
+    flow = getattr(characteristic, "power", None) or {}
+    speed = np.asarray(flow.get("speed_rpm", nan), float)
+    shaft = np.asarray(flow.get("shaft_power_kw", nan), float)
     return [{"series": label, "load_current_a": _f(a), "terminal_voltage_v": _f(b),
-             "extrapolated": "yes" if e else "no", "order": i}
-            for i, (a, b, e) in enumerate(zip(il, v, ext)) if np.isfinite(a) and np.isfinite(b)]
+             "extrapolated": "yes" if e else "no", "order": i, "speed_rpm": _f(n), "shaft_power_kw": _f(w)}
+            for i, (a, b, e, n, w) in enumerate(zip(il, v, ext, speed, shaft)) if np.isfinite(a) and np.isfinite(b)]
 
 
 def characteristic_chart(curves, loads=(), bands=(), points=(), title="External characteristic and the load",
@@ -413,6 +417,8 @@ def characteristic_chart(curves, loads=(), bands=(), points=(), title="External 
             x=xq, y=yq, detail=alt.Detail("series:N"), order=alt.Order("order:Q"),
             tooltip=[alt.Tooltip("series:N", title="curve"), alt.Tooltip("load_current_a:Q", title="load current [A]"),
                      alt.Tooltip("terminal_voltage_v:Q", title="voltage [V]"),
+                     alt.Tooltip("speed_rpm:Q", title="speed [rpm]"),
+                     alt.Tooltip("shaft_power_kw:Q", title="shaft power [kW]"),
                      alt.Tooltip("extrapolated:N", title="beyond the measured OCC")], **enc))
     if lrows:
         layers.append(alt.Chart(sets("loads", lrows)).mark_line(clip=True).encode(
@@ -437,9 +443,9 @@ def characteristic_chart(curves, loads=(), bands=(), points=(), title="External 
     return _layered(layers, title, sets, width)
 
 
-def setting_curve(machine, setting, points=CURVE_POINTS):
-    """The external characteristic of ``setting`` (checked), for charts."""
-    return external_characteristic(machine, check_setting(machine, setting), points)
+def setting_curve(machine, setting, points=CURVE_POINTS, drive=None):
+    """The external characteristic of ``setting`` (checked) on ``drive``, for charts."""
+    return external_characteristic(machine, check_setting(machine, setting), points, drive)
 
 
 def _temperatures(profile, machine):
@@ -520,14 +526,14 @@ def battery_chart(machine, profile, setting, width=None, figures=None, finish_se
     temps = _temperatures(profile, machine)
     curves, chars = [], []
     for j, t in enumerate(temps):
-        ch = setting_curve(machine, replace(setting, winding_temperature_c=t))
+        ch = setting_curve(machine, replace(setting, winding_temperature_c=t), drive=profile.drive)
         lab = f"machine, main charge, windings {t:g} °C"
         chars.append((t, lab, ch))
         curves.append({"label": lab, "colour": (BLUE, VERMILLION)[j % 2], "dash": SOLID if j == 0 else DASHES["dense"],
                        "rows": curve_rows(lab, ch)})
     if finish_setting is not None:
         fs = check_setting(machine, finish_setting)
-        ch = setting_curve(machine, fs)
+        ch = setting_curve(machine, fs, drive=profile.drive)
         lab = f"machine, finish, windings {fs.winding_temperature_c:g} °C"
         curves.append({"label": lab, "colour": GREEN, "dash": DASHES["long"], "rows": curve_rows(lab, ch)})
     i_top = 1.6 * b.max_charge_current_a
@@ -540,7 +546,7 @@ def battery_chart(machine, profile, setting, width=None, figures=None, finish_se
     pts = []
     s0, s1 = b.state_of_charge
     for t, lab, ch in chars:
-        op = operating_points(machine, replace(setting, winding_temperature_c=t), start).normal
+        op = operating_points(machine, replace(setting, winding_temperature_c=t), start, profile.drive).normal
         if op is not None:
             pts.append({"label": "start of charge, battery at rest", "curve": lab,
                         "load_current_a": op["load_current_a"], "terminal_voltage_v": op["terminal_voltage_v"]})
@@ -612,19 +618,19 @@ def welding_chart(machine, profile, option, other_taps=(), width=None):
     line = _weld_line_load(profile)
     for j, (target, st) in enumerate(_end_settings(option)):
         st = check_setting(machine, st)
-        ch = setting_curve(machine, st)
+        ch = setting_curve(machine, st, drive=profile.drive)
         lab = (f"set for {target:g} A: " if target is not None else "") + _tap_text(st)
         curves.append({"label": lab, "colour": (BLUE, VERMILLION)[j % 2], "dash": SOLID if j == 0 else DASHES["dense"],
                        "rows": curve_rows(lab, ch)})
         if ch.short_circuit_current_a:
             i_max = max(i_max, 1.05 * ch.short_circuit_current_a)
-        op = operating_points(machine, st, line).normal
+        op = operating_points(machine, st, line, profile.drive).normal
         if op is not None:
             pts.append({"label": "arc operating point", "curve": lab, "load_current_a": op["load_current_a"],
                         "terminal_voltage_v": op["terminal_voltage_v"]})
     for k, opt in enumerate(other_taps):
         target, st = _end_settings(opt)[-1]
-        ch = setting_curve(machine, st)
+        ch = setting_curve(machine, st, drive=profile.drive)
         lab = f"other tap: {_tap_text(check_setting(machine, st))}" + (f", for {target:g} A" if target else "")
         curves.append({"label": lab, "colour": GREY, "muted": True,
                        "dash": (DASHES["short"], DASHES["dot"], DASHES["dash-dot"], DASHES["long"])[k % 4],
@@ -705,7 +711,7 @@ def load_end_chart(machine, profile, setting, width=None):
     tones = (BLUE, VERMILLION, GREEN, PURPLE, ORANGE, SKY)
     dashes = (SOLID, DASHES["dense"], DASHES["dash-dot"], DASHES["long"], DASHES["short"], DASHES["dot"])
     for j, (n, t) in enumerate(combos):
-        ch = setting_curve(machine, replace(setting, speed_rpm=n, winding_temperature_c=t))
+        ch = setting_curve(machine, replace(setting, speed_rpm=n, winding_temperature_c=t), drive=profile.drive)
         if kind == "lighting":
             tf = lambda il, v: v - il * rfd
         else:

@@ -33,9 +33,12 @@ from dataclasses import dataclass, field, replace
 
 import numpy as np
 
+from .drive import (DriveRows, drive_loading, loss_breakdown, machine_loss_exponent, machine_rotational_loss_w,
+                    machine_stray_percent)
 from .errors import InputError
 from .magnetisation import (ArmatureReaction, OpenCircuitCurve, copper_resistance_factor,
                             field_after_armature_reaction)
+from .raytrace import trace_on_rays
 
 CONNECTIONS = (
     "separate", "separate-cumulative", "separate-differential", "shunt", "series",
@@ -244,6 +247,7 @@ class Circuit:
     imax: float
     nse: np.ndarray = None    # series turns in use
     rsh: np.ndarray = None    # shunt winding alone at temperature [ohm]
+    drive: DriveRows = None   # engine or motor: the speed is an unknown of every point (s is its no-load speed)
 
     @property
     def n(self):
@@ -252,6 +256,12 @@ class Circuit:
     def take(self, idx):
         """Parameters for candidate indices ``idx`` (broadcastable)."""
         return {k: getattr(self, k)[idx] for k in ("kind", "short", "branch", "s", "ra", "rbr", "c", "rf", "x0", "nse")}
+
+    def without_drive(self):
+        """The same rows at the drive's no-load speed, held fixed (no-load voltages, build-up)."""
+        if self.drive is None:
+            return self
+        return replace(self, drive=None)
 
     def subset(self, idx, rheostat_ohm=None, field_current_a=None, exciter_v=None):
         """A circuit of candidates ``idx`` (repeats allowed) with the field control changed.
@@ -279,11 +289,20 @@ class Circuit:
             arr["x0"] = np.where(ok, f, arr["x0"])
         return Circuit(self.machine, self.occ, self.ar, [self.settings[i] for i in idx], arr["kind"],
                        arr["short"], arr["branch"], arr["s"], arr["ra"], arr["rbr"], arr["c"], arr["rf"],
-                       arr["x0"], self.vb, self.ir, self.nsh, self.imax, arr["nse"], arr["rsh"])
+                       arr["x0"], self.vb, self.ir, self.nsh, self.imax, arr["nse"], arr["rsh"],
+                       self.drive)
 
 
-def build_circuit(machine, settings):
-    """Check settings and gather their parameters as arrays."""
+def build_circuit(machine, settings, drive=None):
+    """Check settings and gather their parameters as arrays.
+
+    With ``drive`` an engine or a motor (:class:`supplycfg.drive.Drive`) the
+    speed of every row is an unknown solved with each operating point; the
+    settings' speeds are then the drive's speed at zero shaft power.
+    """
+    if drive is not None and drive.coupled:
+        top = drive.generator_speeds_rpm()[0]
+        settings = [replace(s, speed_rpm=top) for s in settings]
     settings = [check_setting(machine, s) for s in settings]
     occ = OpenCircuitCurve.from_machine(machine)
     ar = ArmatureReaction.from_machine(machine)
@@ -321,10 +340,11 @@ def build_circuit(machine, settings):
                 branch[i] = 1
             elif conn.startswith("short"):
                 branch[i], short[i] = 2, True
+    rows = DriveRows.build(machine, drive) if drive is not None and drive.coupled else None
     return Circuit(machine, occ, ar, settings, kind, short, branch, s_, ra, rbr, c, rf, x0,
                    float(machine.brush_drop_v), BRUSH_RAMP_FRACTION * machine.rated_armature_current_a,
                    float(machine.shunt_turns_per_pole), CURRENT_SPAN_FACTOR * machine.rated_armature_current_a,
-                   nse, rsh_t)
+                   nse, rsh_t, rows)
 
 
 def brush_drop(armature_current_a, full_drop_v, ramp_current_a, with_slope=False):
@@ -359,15 +379,61 @@ def machine_state(circ, p, v, il):
     Returns a dict with the currents, the equivalent field current ``x``, the
     EMF ``e`` at speed and the circuit residual ``h`` [V] (zero on the machine's
     characteristic; negative slope in ``v`` along a load line means stable).
+    With a drive (``circ.drive``) the speed is where the drive's characteristic
+    meets the shaft power at this point (``speed_rpm``, ``drive_converged``,
+    ``drive_unique``); the EMF follows it.
     """
     field, ia, ibr = currents_from_voltage(p, v, il)
     x = field_after_armature_reaction(field + p["c"] * ibr, circ.ar.mmf(ia) / circ.nsh)
-    e = p["s"] * circ.occ.emf(x)
+    occ = circ.occ.emf(x)
+    if circ.drive is None:
+        s = p["s"]
+    else:
+        s, conv, unique = circ.drive.speed_ratio(p, occ * ia, 0.0, v * il)
+    e = s * occ
     h = e - ia * p["ra"] - ibr * p["rbr"] - brush_drop(ia, circ.vb, circ.ir) - v
     ish = field * (p["kind"] != 2)
-    return {"terminal_voltage_v": v, "load_current_a": il, "armature_current_a": ia,
-            "shunt_field_current_a": ish, "series_field_current_a": ibr * _winding_share(circ, p),
-            "series_branch_current_a": ibr, "generated_emf_v": e, "x": x, "h": h}
+    out = {"terminal_voltage_v": v, "load_current_a": il, "armature_current_a": ia,
+           "shunt_field_current_a": ish, "series_field_current_a": ibr * _winding_share(circ, p),
+           "series_branch_current_a": ibr, "generated_emf_v": e, "x": x, "h": h}
+    if circ.drive is not None:
+        out.update(speed_rpm=s * circ.occ.speed_rpm, drive_converged=conv, drive_unique=unique)
+    return out
+
+
+def drive_settled(st):
+    """Where the drive's speed equation held at a state of :func:`machine_state` (True without a drive)."""
+    if "drive_converged" not in st:
+        return True
+    return st["drive_converged"] & st["drive_unique"]
+
+
+def power_flow(circ, p, v, il):
+    """Speed, shaft power, losses by kind and efficiency at terminal voltage ``v`` and load current ``il``.
+
+    Returns
+    -------
+    dict of arrays
+        :func:`machine_state`'s keys plus those of
+        :func:`supplycfg.drive.loss_breakdown` (``losses_w`` a dict by kind,
+        ``shaft_power_w``, ``exciter_power_w``, ``output_w``, ``efficiency``).
+        Shaft power plus exciter power equals output plus every loss wherever
+        the circuit residual ``h`` is zero.
+    """
+    st = machine_state(circ, p, v, il)
+    if "speed_rpm" not in st:
+        st["speed_rpm"] = np.broadcast_to(p["s"] * circ.occ.speed_rpm, np.shape(st["h"]))
+    m = circ.machine
+    loss_rows = (machine_rotational_loss_w(m), m.rated_speed_rpm, machine_loss_exponent(m),
+                 0.01 * machine_stray_percent(m))
+    sep = p["kind"] == 0
+    field = st["shunt_field_current_a"]
+    out = loss_breakdown(st["terminal_voltage_v"], st["load_current_a"], st["armature_current_a"],
+                         st["series_branch_current_a"], field, st["generated_emf_v"], st["speed_rpm"],
+                         p["ra"], p["rbr"], p["rf"], brush_drop(st["armature_current_a"], circ.vb, circ.ir),
+                         sep, loss_rows)
+    st.update(out)
+    return st
 
 
 def _winding_share(circ, p):
@@ -671,7 +737,7 @@ def solve_operating_points(circ, loads, idx=None, grid=LOAD_LINE_GRID, window=No
         v, il = pt_rows(root)
         st = machine_state(circ, pr, v, il)
         scale = 1e-6 * np.maximum(1.0, np.abs(v))
-        good = np.abs(st["h"]) <= np.maximum(1e-6, scale)
+        good = (np.abs(st["h"]) <= np.maximum(1e-6, scale)) & drive_settled(st)
         ok = bool(np.all(good))
         inside = np.abs(st["armature_current_a"]) <= circ.imax * (1 + 1e-9)
         ext = circ.occ.extrapolated(st["x"])
@@ -727,7 +793,7 @@ def _dedupe(lst):
     return keep
 
 
-def operating_points(machine, setting, load):
+def operating_points(machine, setting, load, drive=None):
     """Every operating point of one setting against one load.
 
     Parameters
@@ -735,13 +801,58 @@ def operating_points(machine, setting, load):
     machine : Machine
     setting : Setting
     load : Load
+    drive : Drive, optional
+        An engine or a motor makes the speed an unknown of each point.
 
     Returns
     -------
     OperatingPoints
+        Each point also carries its speed, shaft power, drive loading,
+        efficiency and losses by kind (:data:`DRIVE_POINT_KEYS`).
     """
-    circ = build_circuit(machine, [setting])
-    return solve_operating_points(circ, [load])[0]
+    circ = build_circuit(machine, [setting], drive)
+    ops = solve_operating_points(circ, [load])[0]
+    if ops.points:
+        v = np.array([q["terminal_voltage_v"] for q in ops.points])
+        il = np.array([q["load_current_a"] for q in ops.points])
+        keys = drive_point_keys(circ, candidate_params(circ, np.zeros(v.size, int)), v, il)
+        for j, q in enumerate(ops.points):
+            q.update(_point_at(keys, j))
+    return ops
+
+
+#: Keys of the power flow that curves, points and the search's drive points carry.
+DRIVE_POINT_KEYS = ("speed_rpm", "shaft_power_kw", "drive_loading_percent", "efficiency", "losses_w")
+
+
+def drive_point_keys(circ, p, v, il):
+    """:data:`DRIVE_POINT_KEYS` (and ``drive_torque_percent``) at terminal voltage ``v`` and load current ``il``.
+
+    ``losses_w`` is a dict of arrays by kind; ``drive_loading_percent`` is NaN
+    for a fixed drive (no rating), ``drive_torque_percent`` NaN unless the
+    drive is a motor.
+    """
+    pf = power_flow(circ, p, v, il)
+    drive = None if circ.drive is None else circ.drive.drive
+    load, torque = drive_loading(drive, pf["shaft_power_w"], pf["speed_rpm"])
+    shape = np.shape(pf["shaft_power_w"])
+    return {"speed_rpm": np.broadcast_to(pf["speed_rpm"], shape).astype(float),
+            "shaft_power_kw": 1e-3 * pf["shaft_power_w"], "drive_loading_percent": load,
+            "efficiency": pf["efficiency"], "losses_w": pf["losses_w"], "drive_torque_percent": torque,
+            "exciter_power_w": pf["exciter_power_w"]}
+
+
+def _num(x):
+    x = float(x)
+    return x if np.isfinite(x) else None
+
+
+def _point_at(keys, j):
+    """One point's drive keys as plain numbers (None where undefined)."""
+    out = {}
+    for k, val in keys.items():
+        out[k] = {kk: _num(vv[j]) for kk, vv in val.items()} if isinstance(val, dict) else _num(val[j])
+    return out
 
 
 # ---------------------------------------------------------------------------
@@ -756,6 +867,9 @@ class Characteristic:
     within the searched span (10 x rated armature current).
     ``regulation_percent`` is ``(V_no-load - V_full) / V_full``, full load
     being the load current at which the armature carries its rated current.
+    ``power`` holds the power flow along the curve (:func:`drive_point_keys`:
+    speed, shaft power, drive loading, efficiency, losses by kind; NaN where
+    undefined).
     """
 
     setting: Setting
@@ -768,11 +882,19 @@ class Characteristic:
     converged: bool = True
     message: str = ""
     notes: list = field(default_factory=list)
+    power: dict = field(default_factory=dict)
 
     def point_list(self):
+        """Each point as a dict: the curve-point keys, ``extrapolated`` and the power flow
+        (:data:`DRIVE_POINT_KEYS`; None where undefined, e.g. efficiency without output)."""
         n = len(self.points["terminal_voltage_v"])
-        return [{k: (bool(self.points[k][i]) if k == "extrapolated" else float(self.points[k][i]))
-                 for k in POINT_KEYS + ("extrapolated",)} for i in range(n)]
+        out = []
+        for i in range(n):
+            d = {k: (bool(self.points[k][i]) if k == "extrapolated" else float(self.points[k][i]))
+                 for k in POINT_KEYS + ("extrapolated",)}
+            d.update(_point_at(self.power, i))
+            out.append(d)
+        return out
 
 
 def _runs(vals):
@@ -1017,7 +1139,7 @@ def _cells(grid_x, grid_y, lo, hi, lam):
     return xs[j - 1], xs[j]
 
 
-def characteristics(machine, settings, points=400):
+def characteristics(machine, settings, points=400, drive=None):
     """External characteristics of many settings in one call.
 
     Parameters
@@ -1027,18 +1149,21 @@ def characteristics(machine, settings, points=400):
     points : int
         Points along each curve, from no load to zero terminal voltage (or
         the searched span of 10 x rated armature current).
+    drive : Drive, optional
+        An engine or a motor: the speed follows the load along each curve.
 
     Returns
     -------
     list of Characteristic
+        Each point also carries :data:`DRIVE_POINT_KEYS`.
     """
-    circ = build_circuit(machine, settings)
+    circ = build_circuit(machine, settings, drive)
     return characteristics_of(circ, points)
 
 
-def external_characteristic(machine, setting, points=400):
+def external_characteristic(machine, setting, points=400, drive=None):
     """External characteristic of one setting; see :func:`characteristics`."""
-    return characteristics(machine, [setting], points)[0]
+    return characteristics(machine, [setting], points, drive)[0]
 
 
 def characteristics_of(circ, points=400):
@@ -1065,6 +1190,15 @@ def characteristics_of(circ, points=400):
     slf = np.flatnonzero(circ.kind == 1)
     seg_note = {}
     at_zero = set()  # self-excited curves traced down to zero volts
+    ray_states = {}
+    if slf.size and circ.drive is not None:
+        # the speed follows the load, so N(x) = L(Ia) no longer separates: trace along rays
+        m = circ.machine
+        ray_states, seg_note = trace_on_rays(
+            lambda rows, v, il: machine_state(circ, candidate_params(circ, rows), v, il), refine_bracketed_roots,
+            slf,
+            voltage_span(circ, slf), circ.imax, m.rated_voltage_v, m.rated_armature_current_a, points)
+        slf = slf[:0]
     if slf.size:
         xg, ig = _grids(circ)
         ps = candidate_params(circ, slf[:, None])
@@ -1143,9 +1277,9 @@ def characteristics_of(circ, points=400):
             xa, xb = np.concatenate(pick_xa), np.concatenate(pick_xb)
             ia_a, ia_b = np.concatenate(pick_ia), np.concatenate(pick_ib)
             fx = lambda xx: _n_fun(circ, pc, xx, sg) - lam
-            x = refine_bracketed_roots(fx, xa, xb, fx(xa), 30)
+            x = refine_bracketed_roots(fx, xa, xb, fx(xa), 50)
             fi = lambda ii: _l_fun(circ, pc, ii, sg) - lam
-            ia_s = refine_bracketed_roots(fi, ia_a, ia_b, fi(ia_a), 30)
+            ia_s = refine_bracketed_roots(fi, ia_a, ia_b, fi(ia_a), 50)
             v_s, il_s = _state_from_x_ia(circ, pc, x, ia_s, sg)
     # --- assemble ---------------------------------------------------------
     states, notes = [None] * n, [""] * n
@@ -1159,7 +1293,9 @@ def characteristics_of(circ, points=400):
         else:
             msk = cand == i if slf.size and pick_cand else np.zeros(0, bool)
             notes[i] = seg_note.get(i, "")
-            if np.any(msk):
+            if i in ray_states:
+                states[i] = ray_states[i]
+            elif np.any(msk):
                 vi, ili = v_s[msk], il_s[msk]
                 # the curve ends at zero volts (made exact by _finish): nothing past it
                 below = np.flatnonzero(vi < 0)
@@ -1176,7 +1312,14 @@ def characteristics_of(circ, points=400):
             result.append(Characteristic(st, {k: np.zeros(0) for k in POINT_KEYS + ("extrapolated",)},
                                          None, None, None, None, False, False, notes[i], [notes[i]] if notes[i] else []))
             continue
-        result.append(_finish(circ, i, st, states[i], notes[i], ops[i], folds.get(i), i in at_zero))
+        ch = _finish(circ, i, st, states[i], notes[i], ops[i], folds.get(i), i in at_zero)
+        v = ch.points["terminal_voltage_v"]
+        ch.power = drive_point_keys(circ, candidate_params(circ, np.full(v.size, i)), v, ch.points["load_current_a"])
+        if circ.drive is not None and v.size and ch.converged:
+            st_i = machine_state(circ, candidate_params(circ, np.full(v.size, i)), v, ch.points["load_current_a"])
+            if not np.all(drive_settled(st_i)):
+                ch.converged, ch.message = False, "the drive's speed did not settle at a point"
+        result.append(ch)
     return result
 
 
@@ -1337,7 +1480,8 @@ def _refine_batch(circ, states):
     out = {i: [OperatingPoints([]), OperatingPoints([]), OperatingPoints([])] for i in range(circ.n)}
     if not idx:
         return out
-    res = solve_operating_points(circ, loads, np.array(idx), grid=129, window=(np.array(w0), np.array(w1)), steps=28)
+    # refined to rounding: these points are reported, and their power balance holds only as well as h = 0
+    res = solve_operating_points(circ, loads, np.array(idx), grid=129, window=(np.array(w0), np.array(w1)), steps=60)
     retry = []
     for (i, k), r, ld, a, b in zip(who, res, loads, w0, w1):
         out[i][k] = r
@@ -1355,7 +1499,14 @@ def terminal_voltage_at_armature_current(circ, p, ia):
     depend on the terminal voltage (separate excitation, series)."""
     x = field_after_armature_reaction(p["x0"] * (p["kind"] == 0) + p["c"] * ia, circ.ar.mmf(ia) / circ.nsh)
     rl = p["ra"] + np.where(p["branch"] > 0, p["rbr"], 0.0)
-    return p["s"] * circ.occ.emf(x) - ia * rl - brush_drop(ia, circ.vb, circ.ir)
+    occ = circ.occ.emf(x)
+    drops = ia * rl + brush_drop(ia, circ.vb, circ.ir)
+    if circ.drive is None:
+        s = p["s"]
+    else:
+        # no shunt current here: IL = Ia, so the output (s OCC - drops) Ia is linear in the speed
+        s = circ.drive.speed_ratio(p, occ * ia, occ * ia, -drops * ia)[0]
+    return s * occ - drops
 
 
 def _explicit_state(circ, p, ia):
@@ -1625,7 +1776,7 @@ def normal_points(circ, lo, hi, v_of=None, il_of=None, grid=97, steps=44, vi_of=
     out["found"] = found
     out["beyond"] = beyond
     out["reversed"] = found & (st["generated_emf_v"] < 0)
-    out["converged"] = ~found | (np.abs(st["h"]) <= 1e-6 * np.maximum(1.0, np.abs(vv)))
+    out["converged"] = ~found | ((np.abs(st["h"]) <= 1e-6 * np.maximum(1.0, np.abs(vv))) & drive_settled(st))
     return out
 
 
@@ -1633,8 +1784,10 @@ def no_load_voltages(circ, grid=97):
     """Terminal voltage at zero load current for every candidate [V].
 
     NaN where there is none, or where the voltage runs away past the
-    searched span (the no-load voltage is then unknown, not small).
+    searched span (the no-load voltage is then unknown, not small). With a
+    drive, at its no-load (highest) speed: the voltage limits hold there.
     """
+    circ = circ.without_drive()
     top = voltage_span(circ, np.arange(circ.n))
     r = normal_points(circ, np.zeros(circ.n), top, il_of=lambda t: np.zeros_like(t), grid=grid)
     return r["terminal_voltage_v"]

@@ -143,6 +143,8 @@ def _parser():
     machine_help = "machine file (TOML): the generator's test curve, resistances, turns and ratings"
     profile_help = "load profile (TOML): the job, its drive speeds and winding temperatures"
     json_help = "print one JSON object instead of the readable text"
+    drive_help = ("load profile (TOML) whose [drive] turns the machine: with an engine or a motor the speed "
+                  "follows the load (omit --speed-rpm)")
 
     p = sub.add_parser("curve", help="external characteristic of one setting",
                        description="External characteristic of one setting, from no load to zero volts. "
@@ -151,12 +153,14 @@ def _parser():
                                    "self-excited connection that is less than the rated armature current by "
                                    "the shunt-field current).")
     p.add_argument("machine", help=machine_help); _add_setting(p)
+    p.add_argument("--profile", help=drive_help)
     p.add_argument("--points", type=_whole(2, MAX_CURVE_POINTS), default=40,
                    help=f"points along the curve (2 to {MAX_CURVE_POINTS}; default 40)")
     p.add_argument("--json", action="store_true", help=json_help)
 
     p = sub.add_parser("point", help="operating points of one setting against one load")
     p.add_argument("machine", help=machine_help); _add_setting(p)
+    p.add_argument("--profile", help=drive_help)
     ohm = _number_in(0.0, MAX_LOAD_OHM, "ohm")
     volts = _number_in(-MAX_LOAD_VOLTAGE_V, MAX_LOAD_VOLTAGE_V, "V")
     p.add_argument("--load-ohm", type=ohm, help="load: a resistor [ohm]")
@@ -195,6 +199,10 @@ def _parser():
     p = sub.add_parser("search", help="settings that meet a load profile, ranked")
     p.add_argument("machine", help=machine_help); p.add_argument("profile", help=profile_help)
     p.add_argument("--top", type=_whole(1, MAX_TOP), default=10, help=f"options to print (1 to {MAX_TOP}; default 10)")
+    p.add_argument("--json", action="store_true", help=json_help)
+
+    p = sub.add_parser("size", help="the smallest drive rating with which some setting meets the job")
+    p.add_argument("machine", help=machine_help); p.add_argument("profile", help=profile_help + " (an engine or a motor)")
     p.add_argument("--json", action="store_true", help=json_help)
 
     p = sub.add_parser("charge", help="a battery charge through time")
@@ -264,11 +272,30 @@ def _checked(machine, setting):
     return st
 
 
+def _drive(args, setting):
+    """The drive of ``--profile`` (None without one), and the setting with a fixed drive's speed."""
+    if not getattr(args, "profile", None):
+        return None, setting
+    from dataclasses import replace
+    from .profile import load_profile
+    drive = load_profile(args.profile).drive
+    if drive.coupled:
+        if setting.speed_rpm is not None:
+            raise InputError("command line", "--speed-rpm", f"is given with a profile whose drive is {'an' if drive.kind == 'engine' else 'a'} {drive.kind}: "
+                             "its speed follows the load; allowed: omit --speed-rpm")
+        return drive, replace(setting, speed_rpm=drive.generator_speeds_rpm()[0])
+    if setting.speed_rpm is None:
+        speeds = drive.generator_speeds_rpm()
+        setting = replace(setting, speed_rpm=0.5 * (min(speeds) + max(speeds)))
+    return drive, setting
+
+
 #: Plain words and units of the operating-point keys in text tables.
 POINT_WORDS = {"load_current_a": "load current [A]", "terminal_voltage_v": "terminal voltage [V]",
                "armature_current_a": "armature current [A]", "shunt_field_current_a": "shunt field current [A]",
                "series_field_current_a": "series field current [A]", "generated_emf_v": "generated EMF [V]",
-               "stable": "stable", "extrapolated": "beyond the measured curve", "state": "state"}
+               "stable": "stable", "extrapolated": "beyond the measured curve", "state": "state",
+               "speed_rpm": "speed [rpm]", "shaft_power_kw": "shaft power [kW]", "efficiency": "efficiency"}
 
 
 def _critical_ratio(machine, st):
@@ -335,8 +362,9 @@ def cmd_curve(args, out):
     from .circuit import external_characteristic
     from .machine import load_machine
     m = load_machine(args.machine)
-    st = _checked(m, _setting_from(args))
-    c = external_characteristic(m, st, args.points)
+    drive, st0 = _drive(args, _setting_from(args))
+    st = _checked(m, st0)
+    c = external_characteristic(m, st, args.points, drive)
     from .jobs import command_cautions
     f = _setting_figures(m, st)
     pts = c.point_list()
@@ -356,8 +384,11 @@ def cmd_curve(args, out):
              f"{_fmt(c.regulation_percent, '%', '.3g')}",
              ""]
     rows = c.point_list()
+    if drive is not None:
+        lines.insert(1, f"drive: {drive.describe()}")
     lines.append(table(rows, ["load_current_a", "terminal_voltage_v", "armature_current_a", "shunt_field_current_a",
-                              "series_field_current_a", "generated_emf_v", "extrapolated"], names=POINT_WORDS))
+                              "series_field_current_a", "generated_emf_v", "speed_rpm", "shaft_power_kw",
+                              "efficiency", "extrapolated"], names=POINT_WORDS))
     lines += _notes(c.notes, c.extrapolated, c.converged)
     lines += _caution_lines(cautions)
     return "\n".join(lines)
@@ -406,8 +437,9 @@ def cmd_point(args, out):
                 raise InputError("command line", opt, "is missing; a line load needs --line-v0 and --line-slope-ohm")
         load = Load.line(given["line_v0"], given["line_slope_ohm"])
     m = load_machine(args.machine)
-    st = _checked(m, _setting_from(args))
-    ops = operating_points(m, st, load)
+    drive, st0 = _drive(args, _setting_from(args))
+    st = _checked(m, st0)
+    ops = operating_points(m, st, load, drive)
     normal = ops.normal
     pts = []
     for p in ops.points:
@@ -428,7 +460,8 @@ def cmd_point(args, out):
     lines = [f"{_name(m, args)}: {st.connection}, {st.describe()}; load: {load.label}", ""]
     if pts:
         lines.append(table(pts, ["terminal_voltage_v", "load_current_a", "armature_current_a", "shunt_field_current_a",
-                                 "series_field_current_a", "generated_emf_v", "extrapolated", "state"], names=POINT_WORDS))
+                                 "series_field_current_a", "generated_emf_v", "speed_rpm", "shaft_power_kw",
+                                 "efficiency", "extrapolated", "state"], names=POINT_WORDS))
         lines.append("")
     if normal is not None:
         lines.append("The machine sits at the highest stable point of normal polarity; the others are listed, not used.")
@@ -551,6 +584,14 @@ def cmd_search(args, out):
     return search_text(res, args.top)
 
 
+def cmd_size(args, out):
+    from .machine import load_machine
+    from .profile import load_profile
+    from .sizing import required_drive_rating, size_text
+    res = required_drive_rating(load_machine(args.machine), load_profile(args.profile))
+    return res.as_dict() if args.json else size_text(res)
+
+
 def cmd_charge(args, out):
     from .simulation import charge_from_files, charge_text
     if not args.connection:
@@ -629,7 +670,7 @@ def cmd_page(args, out):
 
 
 COMMANDS = {"curve": cmd_curve, "point": cmd_point, "buildup": cmd_buildup, "emf": cmd_emf,
-            "search": cmd_search, "charge": cmd_charge, "sheet": cmd_sheet, "fleet": cmd_fleet,
+            "search": cmd_search, "size": cmd_size, "charge": cmd_charge, "sheet": cmd_sheet, "fleet": cmd_fleet,
             "cell": cmd_cell, "bench": cmd_bench, "page": cmd_page}
 
 
@@ -650,7 +691,7 @@ def main(argv=None):
             print(visible(res, keep_newlines=True), file=out)
         else:
             print(dumps_json(res), file=out)
-        if args.command in ("curve", "point", "buildup", "search", "charge", "fleet") and isinstance(res, str):
+        if args.command in ("curve", "point", "buildup", "search", "size", "charge", "fleet") and isinstance(res, str):
             print(f"\n{STANDING_NOTICE}", file=out)
         return 0
     except InputError as exc:

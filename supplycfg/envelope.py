@@ -119,7 +119,7 @@ def build_space(machine, profile):
                 kw["field_current_a"] = 0.0
             settings.append(Setting(conn, series_turns=tap if conn in USES_SERIES else None, diverter_ohm=d,
                                     speed_rpm=sp, winding_temperature_c=tc, **kw))
-    circ = build_circuit(machine, settings) if settings else None
+    circ = build_circuit(machine, settings, profile.drive) if settings else None
     return Space(machine, profile, bases, corners, nominal, circ)
 
 

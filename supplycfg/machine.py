@@ -48,7 +48,7 @@ MAX_AR_ROWS = 500
 MIN_STEP_FRACTION = 1e-6
 
 #: Tables of a machine file, and the keys of each.
-MACHINE_TABLES = ("machine", "open_circuit", "armature_reaction", "winding")
+MACHINE_TABLES = ("machine", "open_circuit", "armature_reaction", "winding", "losses")
 MACHINE_KEYS = ("label", "poles", "rated_speed_rpm", "rated_voltage_v", "rated_armature_current_a",
                 "armature_resistance_ohm", "brush_drop_v", "shunt_field_resistance_ohm",
                 "shunt_turns_per_pole", "series_field_resistance_ohm", "series_turns_per_pole",
@@ -57,6 +57,7 @@ MACHINE_KEYS = ("label", "poles", "rated_speed_rpm", "rated_voltage_v", "rated_a
 OPEN_CIRCUIT_KEYS = ("speed_rpm", "field_current_a", "emf_v", "interpolation")
 ARMATURE_REACTION_KEYS = ("demagnetizing_at_per_pole_at_rated", "armature_current_a", "demagnetizing_at_per_pole")
 WINDING_KEYS = ("conductors", "parallel_paths")
+LOSSES_KEYS = ("rotational_loss_w", "rotational_loss_speed_exponent", "stray_load_loss_percent")
 # Tables every load profile holds: a file with these and none of ours is a
 # profile given where the machine belongs.
 _PROFILE_TABLES = ("load", "drive", "battery", "welding", "lighting", "booster")
@@ -91,6 +92,9 @@ class Machine:
     ar_table_at_per_pole: tuple | None = None
     winding_conductors: int | None = None
     winding_parallel_paths: int | None = None
+    rotational_loss_w: float | None = None
+    rotational_loss_speed_exponent: float | None = None
+    stray_load_loss_percent: float | None = None
     source: str = field(default="machine", compare=False)
 
     @property
@@ -135,7 +139,8 @@ def machine_from_dict(data, source="machine"):
     """Build a :class:`Machine` from parsed TOML tables, checking every rule."""
     check_tables(data, source, MACHINE_TABLES, "machine file", _PROFILE_TABLES, "load profile")
     refuse_unknown_keys(data, source, {"machine": MACHINE_KEYS, "open_circuit": OPEN_CIRCUIT_KEYS,
-                                       "armature_reaction": ARMATURE_REACTION_KEYS, "winding": WINDING_KEYS})
+                                       "armature_reaction": ARMATURE_REACTION_KEYS, "winding": WINDING_KEYS,
+                                       "losses": LOSSES_KEYS})
     m = Table(data.get("machine"), source, "machine", keys=MACHINE_KEYS)
     kw = {"source": source}
     kw["label"] = m.text("label", "")
@@ -239,6 +244,14 @@ def machine_from_dict(data, source="machine"):
         w.finish()
         if kw["winding_parallel_paths"] % 2:
             raise InputError(source, "winding.parallel_paths", f"is {kw['winding_parallel_paths']}; allowed: an even number (2 for wave, the pole count or a multiple for lap)")
+    if "losses" in data:
+        ls = Table(data["losses"], source, "losses", keys=LOSSES_KEYS)
+        # defaults and their sources: supplycfg.drive
+        kw["rotational_loss_w"] = ls.number("rotational_loss_w", None, low=0, high=1e8, what="watts at rated speed")
+        kw["rotational_loss_speed_exponent"] = ls.number("rotational_loss_speed_exponent", None, low=0, high=4)
+        kw["stray_load_loss_percent"] = ls.number("stray_load_loss_percent", None, low=0, high=20,
+                                                  what="per cent of output")
+        ls.finish()
     return Machine(**kw)
 
 
@@ -285,6 +298,10 @@ def machine_to_dict(m):
     elif m.ar_table_current_a is not None:
         out["armature_reaction"] = {"armature_current_a": list(m.ar_table_current_a),
                                     "demagnetizing_at_per_pole": list(m.ar_table_at_per_pole)}
+    losses = {k: getattr(m, k) for k in ("rotational_loss_w", "rotational_loss_speed_exponent",
+                                         "stray_load_loss_percent") if getattr(m, k) is not None}
+    if losses:
+        out["losses"] = losses
     if m.winding_conductors is not None:
         out["winding"] = {"conductors": m.winding_conductors,
                           "parallel_paths": m.winding_parallel_paths}

@@ -9,20 +9,24 @@ gives back the same tables so a saved profile loads unchanged.
 
 from dataclasses import dataclass, field, fields
 
+from .drive import DRIVE_KEYS, Drive, read_drive
 from .errors import InputError
 from .jobs import JOBS, KINDS
-from .validate import (MAX_SPEED_RPM, MIN_SPEED_RPM, Table, check_tables, read_pair, read_toml,
-                       refuse_unknown_keys, source_name)
+from .validate import (Table, check_tables, read_pair, read_toml, refuse_unknown_keys,
+                       source_name)
 
 __all__ = ["KINDS", "LoadProfile", "load_profile", "profile_from_dict", "profile_to_dict"]
 
 
 @dataclass(frozen=True)
 class LoadProfile:
-    """What the load needs: kind, drive speeds, winding temperatures and one job.
+    """What the load needs: kind, the drive, winding temperatures and one job.
 
-    ``speeds_rpm`` holds one speed or ``(low, high)``; ``temperatures_c`` is
-    ``(cold, hot)`` or None for the machine's reference temperature.
+    ``speeds_rpm`` holds the generator's speed or ``(low, high)`` for a fixed
+    drive, its speed at zero shaft power for an engine or a motor (whose
+    speed then follows the load, see :mod:`supplycfg.drive`);
+    ``temperatures_c`` is ``(cold, hot)`` or None for the machine's reference
+    temperature.
     """
 
     kind: str
@@ -33,7 +37,12 @@ class LoadProfile:
     welding: object = None
     lighting: object = None
     booster: object = None
+    drive: Drive | None = None
     source: str = field(default="profile", compare=False)
+
+    def __post_init__(self):
+        if self.drive is None:  # a profile built from speeds alone: a fixed drive, direct coupled
+            object.__setattr__(self, "drive", Drive(speeds_rpm=tuple(float(s) for s in self.speeds_rpm)))
 
     @property
     def job(self):
@@ -66,8 +75,8 @@ def load_profile(path, text=None):
 def profile_from_dict(data, source="profile"):
     """Build a :class:`LoadProfile` from parsed TOML tables, checking every rule."""
     check_tables(data, source, ("load", "drive") + KINDS, "load profile",
-                 ("machine", "open_circuit", "armature_reaction", "winding"), "machine file")
-    keys = {"load": ("kind", "label"), "drive": ("speed_rpm", "speed_range_rpm", "winding_temperature_range_c"),
+                 ("machine", "open_circuit", "armature_reaction", "winding", "losses"), "machine file")
+    keys = {"load": ("kind", "label"), "drive": DRIVE_KEYS + ("winding_temperature_range_c",),
             **{k: tuple(f.name for f in fields(JOBS[k].JOB_TABLE)) for k in KINDS}}
     refuse_unknown_keys(data, source, keys)
     ld = Table(data.get("load"), source, "load", keys=keys["load"])
@@ -79,18 +88,7 @@ def profile_from_dict(data, source="profile"):
             raise InputError(source, other, f"table given but load.kind is {kind!r}; allowed: only [{kind}]")
 
     dr = Table(data.get("drive"), source, "drive", keys=keys["drive"])
-    has_one, has_range = dr.has("speed_rpm"), dr.has("speed_range_rpm")
-    if has_one and has_range:
-        raise InputError(source, "drive.speed_range_rpm", "given together with speed_rpm; allowed: one of the two")
-    if has_range:
-        dr.raw("speed_rpm", None)
-        speeds = read_pair(dr, "speed_range_rpm", source, low=MIN_SPEED_RPM, high=MAX_SPEED_RPM)
-    else:
-        if not has_one:
-            raise InputError(source, "drive.speed_rpm",
-                             "is missing; give speed_rpm, or speed_range_rpm = [low, high]")
-        speeds = (dr.number("speed_rpm", low=MIN_SPEED_RPM, high=MAX_SPEED_RPM),)
-        dr.raw("speed_range_rpm", None)
+    drive = read_drive(dr, source)
     temps = read_pair(dr, "winding_temperature_range_c", source, low=-60, high=250, names=("cold", "hot"),
                   required=False)
     dr.finish()
@@ -99,8 +97,8 @@ def profile_from_dict(data, source="profile"):
     jobs = {"battery": None, "welding": None, "lighting": None, "booster": None}
     jobs[kind] = JOBS[kind].read_job(jt, source)
     jt.finish()
-    return LoadProfile(kind=kind, label=label, speeds_rpm=speeds, temperatures_c=temps,
-                       source=source, **jobs)
+    return LoadProfile(kind=kind, label=label, speeds_rpm=drive.generator_speeds_rpm(), temperatures_c=temps,
+                       drive=drive, source=source, **jobs)
 
 
 def _toml_value(v):
@@ -110,11 +108,7 @@ def _toml_value(v):
 def profile_to_dict(profile):
     """The profile's TOML tables; ``profile_from_dict`` of it gives ``profile`` back."""
     p = profile
-    drive = {}
-    if len(p.speeds_rpm) == 1:
-        drive["speed_rpm"] = p.speeds_rpm[0]
-    else:
-        drive["speed_range_rpm"] = list(p.speeds_rpm)
+    drive = p.drive.as_table()
     if p.temperatures_c is not None:
         drive["winding_temperature_range_c"] = list(p.temperatures_c)
     job = p.job

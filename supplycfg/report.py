@@ -38,7 +38,7 @@ SHEET_CHART_WIDTH = 560
 PLAN_HEADERS = ("Stage", "Field", "Time", "Current", "Volts per cell at its end", "Ends because")
 
 # unit suffixes of figure names, longest first
-_UNITS = (("_v_per_a", "V/A"), ("_m3_per_h", "m³/h"), ("_percent", "%"), ("_rpm", "rpm"), ("_ohm", "Ω"),
+_UNITS = (("_v_per_a", "V/A"), ("_m3_per_h", "m³/h"), ("_percent", "%"), ("_rpm", "rpm"), ("_ohm", "Ω"), ("_kw", "kW"),
           ("_kwh", "kWh"), ("_ah", "Ah"), ("_a", "A"), ("_v", "V"), ("_h", "h"), ("_c", "°C"))
 
 #: Plain words for the figures the search reports; others are named from their key.
@@ -109,6 +109,18 @@ FIGURE_WORDS = {
     "min_no_load_voltage_v": "no-load voltage (mean), lowest",
     "no_load_strike_min_v": "no-load voltage an arc needs to strike",
     "tap_changes": ("series-tap changes along the welding dial", ""),
+    "max_shaft_power_kw": ("shaft power, highest over the job's load points", "kW"),
+    "min_speed_rpm": "generator speed under load, lowest",
+    "max_speed_rpm": "generator speed under load, highest",
+    "min_efficiency_percent": "efficiency of the generator at the job's points, lowest",
+    "no_load_speed_rpm": "generator speed at no load",
+    "collapsed_load_points": ("load points where the field collapses at the drive's speed", ""),
+    "max_drive_loading_percent": "drive loading, highest (shaft power over its rating)",
+    "drive_rated_power_kw": ("drive rating", "kW"),
+    "max_drive_torque_percent": "motor torque, highest (share of its rated torque)",
+    "breakdown_torque_percent": "motor breakdown torque (share of its rated torque)",
+    "idle_no_load_voltage_v": "no-load voltage at the engine's idle",
+    "idle_builds_up": ("field builds up at the engine's idle (1 yes, 0 no)", ""),
 }
 
 #: Plain words for the limits the search checks.
@@ -136,6 +148,7 @@ LIMIT_WORDS = {
     "exciter_supply": "field current within the exciter's reach",
     "solve_not_converged": "the solve converged",
     "stop_caution": "no stop caution",
+    "drive_power": "shaft power within the drive's rating",
 }
 
 
@@ -211,13 +224,20 @@ def limit_label(name):
     return LIMIT_WORDS.get(name, name.replace("_", " "))
 
 
+def speed_words(cond):
+    """A condition's speed in words: the speed itself, or on an engine or a motor its no-load speed."""
+    sp = fmt(cond["speed_rpm"], "rpm")
+    kind = cond.get("drive")
+    return f"the {kind}'s speed under load ({sp} at no load)" if kind else sp
+
+
 def condition_words(option):
     """Plain words for the conditions an option's figures hold at (``{setting}``, ``{cold}``, ``{hot}``)."""
     conds = (getattr(option, "extras", None) or {}).get("conditions") or {}
     words = {"setting": "the setting's speed and winding temperature", "cold": "cold windings, top speed",
              "hot": "hot windings, lowest speed"}
     for k, c in conds.items():
-        words[k] = f"{fmt(c['speed_rpm'], 'rpm')}, windings {fmt(c['winding_temperature_c'], '°C')}"
+        words[k] = f"{speed_words(c)}, windings {fmt(c['winding_temperature_c'], '°C')}"
     return words
 
 
@@ -376,13 +396,22 @@ def setting_rows(option, machine, profile):
     else:
         rows.append(("Field", field_control_text(option, machine)))
     rows += readings
-    speeds = tuple(profile.speeds_rpm)
-    sp = fmt(speeds[0], "rpm") if len(speeds) == 1 else f"{fmt(speeds[0])} to {fmt(speeds[1], 'rpm')}"
-    rows.append(("Drive speed", sp))
+    rows += drive_rows(option, profile)
     temps = profile.temperatures_c
     rows.append(("Winding temperature", f"{fmt(temps[0])} to {fmt(temps[1], '°C')}" if temps
                  else fmt(machine.reference_temperature_c, "°C (the machine's reference)")))
     return rows
+
+
+def drive_rows(option, profile):
+    """``[(what, how)]`` of the drive on the setting card: its speed (fixed) or what it is (an engine or a
+    motor: the tachometer readings to expect are in the checklist)."""
+    d = profile.drive
+    speeds = tuple(profile.speeds_rpm)
+    if not d.coupled:
+        sp = fmt(speeds[0], "rpm") if len(speeds) == 1 else f"{fmt(speeds[0])} to {fmt(speeds[1], 'rpm')}"
+        return [("Drive speed", sp)]
+    return [("Drive", d.describe())]
 
 
 def current_setting_rows(option):
@@ -632,8 +661,16 @@ def checklist_rows(result, option, run=None):
         rows.append(("Voltage at the far end, light load and full load",
                      _range_text(f.get("load_voltage_min_v"), f.get("load_voltage_max_v"), "V") or note))
     speeds = tuple(p.speeds_rpm)
-    rows.append(("Drive speed on the tachometer",
-                 fmt(speeds[0], "rpm") if len(speeds) == 1 else f"{fmt(speeds[0])} to {fmt(speeds[1], 'rpm')}"))
+    if p.drive.coupled:
+        # an engine or a motor: the speed falls with the load, so two readings
+        nl_rpm, lo_rpm = f.get("no_load_speed_rpm"), f.get("min_speed_rpm")
+        rows.append(("Drive speed on the tachometer (generator shaft), load off",
+                     f"about {fmt(nl_rpm, 'rpm')}" if _given(nl_rpm) else fmt(speeds[0], "rpm")))
+        rows.append(("Drive speed on the tachometer at the heaviest point of the job",
+                     f"about {fmt(lo_rpm, 'rpm')}" if _given(lo_rpm) else note))
+    else:
+        rows.append(("Drive speed on the tachometer",
+                     fmt(speeds[0], "rpm") if len(speeds) == 1 else f"{fmt(speeds[0])} to {fmt(speeds[1], 'rpm')}"))
     if kind == "battery":
         close = f.get("cutout_closing_voltage_v")
         per_cell = getattr(p.battery, "cutout_closing_volts_per_cell", None)
@@ -669,7 +706,11 @@ def job_rows(profile):
     p = profile
     rows = []
     sp = tuple(p.speeds_rpm)
-    rows.append(("Drive speed", fmt(sp[0], "rpm") if len(sp) == 1 else f"{fmt(sp[0])} to {fmt(sp[1], 'rpm')}"))
+    if p.drive.coupled:
+        rows.append(("Drive", p.drive.describe()))
+        rows.append(("Drive speed", f"falls with the load (generator shaft) from {fmt(sp[0], 'rpm')}"))
+    else:
+        rows.append(("Drive speed", fmt(sp[0], "rpm") if len(sp) == 1 else f"{fmt(sp[0])} to {fmt(sp[1], 'rpm')}"))
     if p.temperatures_c:
         rows.append(("Winding temperature, cold to hot", f"{fmt(p.temperatures_c[0])} to {fmt(p.temperatures_c[1], '°C')}"))
     job = p.job
@@ -734,7 +775,7 @@ def run_rows(run):
     cond = (getattr(run, "conditions", None) or {}).get("setting")
     rows = [("Duration", fmt(run.duration_h, "h")), ("Stops because", str(run.stop_reason))]
     if cond:
-        rows.append(("Run at", f"{fmt(cond['speed_rpm'], 'rpm')}, windings {fmt(cond['winding_temperature_c'], '°C')}"))
+        rows.append(("Run at", f"{speed_words(cond)}, windings {fmt(cond['winding_temperature_c'], '°C')}"))
     hours = getattr(run, "hours_to_full", None)
     rows.append(("Hours to full", fmt(hours, "h") if hours is not None else
                  f"not within the target of {fmt(getattr(run, 'target_hours', None), 'h')}"))

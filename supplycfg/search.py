@@ -12,7 +12,7 @@ golden-section search. Margins are positive inside a limit.
 
 import math
 import time
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 
@@ -22,6 +22,7 @@ from .envelope import build_space, candidate_bases, margin
 from .jobs import JOBS, option_cautions, profile_cautions
 from .readings import diverter_rating, exciter_supply
 from .machine import load_machine
+from .powerflow import idle_figures, no_load_speeds
 from .profile import load_profile
 from .text import visible
 
@@ -103,6 +104,7 @@ class Option:
         dial = self.extras.get("dial") or []
         turns = max([r.get("series_turns") or 0.0 for r in dial] + [self.setting.series_turns or 0.0])
         return (has_div, turns, self.setting.connection.startswith("separate"))
+    drive_points: list = field(default_factory=list)
 
     def setting_dict(self):
         s = self.setting
@@ -125,6 +127,7 @@ class Option:
             d.setdefault(k, v)
         if self.current_settings is not None:
             d["current_settings"] = self.current_settings
+        d["drive_points"] = self.drive_points
         return d
 
 
@@ -168,7 +171,7 @@ class SearchResult:
 def _fig_dict(figs, i):
     out = {}
     for k, v in figs.items():
-        if k == "converged":
+        if k in ("converged", "drive_points"):
             continue
         x = float(np.asarray(v)[i])
         out[k] = x if math.isfinite(x) else None
@@ -284,13 +287,16 @@ def rank_options(options, tie=OBJECTIVE_TIE_FRACTION):
     return ordered
 
 
-def search(machine, profile):
+def search(machine, profile, with_drive_check=True):
     """Every setting that meets the job, ranked by the stated rule, with the nearest misses.
 
     Parameters
     ----------
     machine : Machine
     profile : LoadProfile
+    with_drive_check : bool, optional
+        When nothing is feasible with an engine or a motor, search again with
+        a far larger drive of the same kind to say whether the drive limits the job.
 
     Returns
     -------
@@ -313,6 +319,12 @@ def search(machine, profile):
     objective = np.asarray(job.objective(figs), float)
     top_speed = max(c[0] for c in space.corners)
     hot_t = max(c[1] for c in space.corners)
+    figs = dict(figs)
+    figs["idle_no_load_voltage_v"], figs["idle_builds_up"] = idle_figures(space, np.arange(nb), u_best)
+    figs["no_load_speed_rpm"] = no_load_speeds(space, np.arange(nb), u_best)
+    table = figs.get("drive_points")
+    if table is not None:
+        figs.update({k: v for k, v in table.summary().items() if k not in figs})
     options = []
     for i in range(nb):
         margins, failed = {}, []
@@ -350,12 +362,36 @@ def search(machine, profile):
         cs = ex.pop("current_settings", None)
         options.append(Option(0, not failed, st, f, margins, failed, cautions, float(min(fracs)) if fracs else 0.0,
                               cs, {"field-current": "field-current", "none": "none"}.get(control, "rheostat"),
-                              extrap, readings, band, ex, obj if math.isfinite(obj) else None))
+                              extrap, readings, band, ex, obj if math.isfinite(obj) else None,
+                              drive_points=table.rows(i) if table is not None else []))
     options = rank_options(merge_identical(options))
     if not any(o.feasible for o in options):
         notes.append("no setting meets every limit; the nearest misses are listed with the limit each breaks")
+        if profile.drive.coupled and with_drive_check:
+            notes += drive_limit_notes(machine, profile, options)
     return SearchResult(machine, profile, options, profile_cautions(machine, profile), int(evaluated),
                         time.perf_counter() - t0, notes)
+
+
+#: Rating multiple of the "far larger drive" that tells whether the drive limits a job.
+STIFF_DRIVE_FACTOR = 100.0
+
+
+def drive_limit_notes(machine, profile, options):
+    """Why nothing is feasible, when the drive is the reason: the notes of an infeasible search."""
+    drive = profile.drive
+    over = [o for o in options if "drive_power" in o.failed]
+    stiff = replace(profile, drive=drive.with_rating(STIFF_DRIVE_FACTOR * drive.rated_power_kw))
+    big = search(machine, stiff, with_drive_check=False)
+    if not big.feasible:
+        return []
+    need = min(o.figures.get("max_shaft_power_kw") or math.inf for o in big.feasible)
+    text = (f"the drive limits this job: with a larger {drive.kind} of the same figures "
+            f"{len(big.feasible)} setting(s) meet it, the least of them drawing {need:.3g} kW at the shaft against "
+            f"the {drive.rated_power_kw:g} kW rating")
+    if over:
+        text += f"; {len(over)} setting(s) here break the drive_power limit"
+    return [text + "; `supplycfg size` finds the smallest rating that works"]
 
 
 def search_machine_profile(machine_path, profile_path):
@@ -487,6 +523,7 @@ def search_text(res, top=10):
     from .report import KIND_WORDS, condition_words, figure_label, limit_label
     kind = res.profile.kind
     lines = [f"{visible(res.machine.label)} for {visible(res.profile.label)} ({KIND_WORDS.get(kind, kind)})",
+             f"drive: {res.profile.drive.describe()}",
              f"{len(res.options)} distinct options; {res.candidates_evaluated} candidate evaluations in "
              f"{res.search_seconds:.2f} s", "", res.ranking_rule, ""]
     welding = kind == "welding"

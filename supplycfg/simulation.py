@@ -21,7 +21,7 @@ DIN 41774 charger characteristics, from memory); the cell model of
 :mod:`supplycfg.jobs.battery`; ventilation IEC 62485-2 (seen).
 """
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 
@@ -29,7 +29,8 @@ from . import STANDING_NOTICE
 from .jobs import battery
 from .jobs import option_cautions, profile_cautions
 from .profile import load_profile
-from .circuit import Setting, build_circuit, check_setting, machine_state
+from .circuit import Setting, build_circuit, check_setting, drive_point_keys, machine_state
+from .envelope import expand_candidates
 from .errors import InputError
 from .text import visible
 
@@ -100,6 +101,9 @@ class ChargeRun:
     machine_label: str = ""
     profile_label: str = ""
     setting_source: str = ""
+    speed_rpm: np.ndarray = None
+    shaft_power_kw: np.ndarray = None
+    drive_coupled: bool = False
 
     def as_dict(self):
         """JSON-safe: arrays as lists, NaN as None."""
@@ -136,6 +140,8 @@ class ChargeRun:
             "figures": {k: num(v) for k, v in self.figures.items()},
             "converged": bool(self.converged), "cautions": [c.as_dict() for c in self.cautions],
             "notes": list(self.notes), "notice": STANDING_NOTICE,
+            "speed_rpm": None if self.speed_rpm is None else arr(self.speed_rpm),
+            "shaft_power_kw": None if self.shaft_power_kw is None else arr(self.shaft_power_kw),
         }
 
 
@@ -166,7 +172,7 @@ def charging_current_a(machine, profile, setting, soc):
     """
     job = _battery_job(profile)
     soc = np.atleast_1d(np.asarray(soc, float))
-    circ = build_circuit(machine, [setting])
+    circ = build_circuit(machine, [setting], profile.drive)
     sub = circ.subset(np.zeros(soc.size, int))
     return battery.bank_points(sub, job, soc)["load_current_a"]
 
@@ -209,6 +215,9 @@ def charge_run(machine, profile, setting, max_hours=None, finish_setting=None):
     if isinstance(cap_h, bool) or not np.isfinite(float(cap_h)) or float(cap_h) <= 0:
         raise InputError("charge run", "max_hours", f"is {max_hours!r}; allowed: a number of hours > 0")
     cap_h = float(cap_h)
+    if profile.drive.coupled:
+        # an engine or a motor: the setting's speed is the drive's no-load speed; loaded, it falls
+        setting = replace(setting, speed_rpm=profile.drive.generator_speeds_rpm()[0])
     st = check_setting(machine, setting)
     if finish_setting is not None:
         fs = check_setting(machine, finish_setting)
@@ -218,7 +227,7 @@ def charge_run(machine, profile, setting, max_hours=None, finish_setting=None):
     plan = battery.setting_plan(machine, profile, st, finish_setting)
     space = plan.space
     lim, figs, extras = battery.plan_figures(plan)
-    f = {k: float(np.asarray(v)[0]) for k, v in figs.items()}
+    f = {k: float(np.asarray(v)[0]) for k, v in figs.items() if k != "drive_points"}
     f["top_speed_rpm"] = max(c[0] for c in space.corners)
     ex = extras[0]
     nom = battery.corner_roles(space)[0]
@@ -237,7 +246,8 @@ def charge_run(machine, profile, setting, max_hours=None, finish_setting=None):
     # a one-stage plan runs on past the hand-over voltage with the same field: still its stage 1
     parts = [(m, 1)] + ([(fi, 2 if plan.two_stage[0] else 1)] if plan.handed_over[r] else [])
     cols = {k: [] for k in ("time_h", "current_a", "stored_current_a", "gas_current_a", "terminal_voltage_v",
-                            "volts_per_cell", "soc", "ah", "kwh", "armature_current_a", "found", "stage")}
+                            "volts_per_cell", "soc", "ah", "kwh", "armature_current_a", "found", "stage",
+                            "part")}
     t_off = ah_off = kwh_off = 0.0
     for stg, no in parts:
         cols["time_h"].append(stg.time_h[r] + t_off)
@@ -249,6 +259,7 @@ def charge_run(machine, profile, setting, max_hours=None, finish_setting=None):
                        ("armature_current_a", "armature_current_a"), ("found", "found")):
             cols[k].append(getattr(stg, src)[r])
         cols["stage"].append(np.full(stg.soc.shape[1], no))
+        cols["part"].append(np.full(stg.soc.shape[1], len(cols["part"])))
         t_off, ah_off, kwh_off = t_off + stg.time_h[r, -1], ah_off + stg.ah[r, -1], kwh_off + stg.kwh[r, -1]
     a = {k: np.concatenate(v) for k, v in cols.items()}
     t = a["time_h"]
@@ -289,7 +300,7 @@ def charge_run(machine, profile, setting, max_hours=None, finish_setting=None):
         dt = float(t[j] - t[lo])
         tau = w * dt
         for k in out:
-            if k != "stage":
+            if k not in ("stage", "part"):
                 out[k][-1] = a[k][lo] + w * (a[k][j] - a[k][lo])
         if dt > 0:
             i_a, i_b = a["stored_current_a"][lo], a["stored_current_a"][j]
@@ -304,6 +315,13 @@ def charge_run(machine, profile, setting, max_hours=None, finish_setting=None):
     soc = out["soc"]
     pct = f"{100 * soc[-1]:.1f} %" if soc.size else "-"
     cur = out["current_a"]
+    # speed and shaft power along the run: the main charge's field, then the finish's, at the setting's corner
+    rows, _ = expand_candidates(space, np.zeros(2, int), np.array([plan.u1[0], plan.u2[0]]), np.full(2, nom))
+    ok = np.isfinite(out["terminal_voltage_v"]) & np.isfinite(cur)
+    part = out.pop("part").astype(int)
+    flow = drive_point_keys(rows, rows.take(part), np.where(ok, out["terminal_voltage_v"], 0.0), np.where(ok, cur, 0.0))
+    speed = np.where(ok, flow["speed_rpm"], np.nan)
+    shaft = np.where(ok, flow["shaft_power_kw"], np.nan)
     if stop == "end-soc":
         reason = f"the battery reached the end state of charge {100 * soc1:.0f} %"
     elif stop == "voltage-limit":
@@ -320,7 +338,7 @@ def charge_run(machine, profile, setting, max_hours=None, finish_setting=None):
     elif stop == "no-operating-point":
         reason = (f"the machine has no stable operating point against the bank at {pct} state of charge "
                   "(its characteristic does not meet the charging curve)")
-        if _below_bank(machine, st, job, soc[-1] if soc.size else soc0):
+        if _below_bank(machine, st, profile, soc[-1] if soc.size else soc0):
             reason += ": the bank's voltage is above the machine's and current would flow back into it " \
                       "(a reverse-current cut-out must open)"
     else:
@@ -352,7 +370,8 @@ def charge_run(machine, profile, setting, max_hours=None, finish_setting=None):
         gassing_state_of_charge=gas_s, ventilation=ex["ventilation"], cut_in_speed_rpm=ex["cut_in_speed_rpm"],
         standstill_backfeed_current_a=ex["standstill_backfeed_current_a"], conditions=ex["conditions"],
         figures=f, converged=converged, cautions=cautions, notes=notes,
-        machine_label=machine.label, profile_label=profile.label)
+        machine_label=machine.label, profile_label=profile.label, speed_rpm=speed,
+        shaft_power_kw=shaft, drive_coupled=profile.drive.coupled)
 
 
 def _stages_as_run(planned, out, stop, reason, duration):
@@ -382,11 +401,12 @@ def _finite(v):
     return float(v) if np.isfinite(v) else None
 
 
-def _below_bank(machine, setting, job, soc):
+def _below_bank(machine, setting, profile, soc):
     """Whether the machine's available voltage at no load is below the bank's open-circuit voltage."""
+    job = profile.battery
     chem = battery.chemistry(job.chemistry)
     e = job.cells * float(battery.open_circuit_voltage_per_cell(chem, soc, job.open_circuit_voltage_per_cell_v))
-    circ = build_circuit(machine, [setting])
+    circ = build_circuit(machine, [setting], profile.drive)
     h = machine_state(circ, circ.take(np.zeros(1, int)), np.full(1, e), np.zeros(1))["h"]
     return bool(h[0] < 0)
 
@@ -441,6 +461,10 @@ def charge_from_files(machine_path, profile_path, setting=None, names=None, max_
             source = f"option {pick.rank} of the search, the nearest miss (no setting meets every limit)"
         run = charge_run_for_option(m, p, pick, max_hours)
     else:
+        if p.drive.coupled and setting.speed_rpm is not None:
+            raise InputError("command line", (names or {}).get("speed_rpm", "speed_rpm"),
+                             f"is given, but the profile's drive is {'an' if p.drive.kind == 'engine' else 'a'} {p.drive.kind} whose speed follows the load; "
+                             "allowed: omit it")
         st = check_setting(m, setting, "command line", names)
         source = "command line"
         run = charge_run(m, p, st, max_hours)
@@ -457,7 +481,9 @@ def _g(v, f=".4g"):
 def charge_text(run):
     """A readable summary of a charge run: its plan, its figures and a table over time."""
     c = run.conditions.get("setting", {})
-    at = (f" at {c.get('speed_rpm', run.setting.speed_rpm):g} rpm, windings {c.get('winding_temperature_c', run.setting.winding_temperature_c):g} degC"
+    sp = c.get("speed_rpm", run.setting.speed_rpm)
+    sp_words = f"{sp:.0f} rpm at no load, lower under load on the {c['drive']}" if c.get("drive") else f"{sp:g} rpm"
+    at = (f" at {sp_words}, windings {c.get('winding_temperature_c', run.setting.winding_temperature_c):g} degC"
           if c or run.setting.speed_rpm else "")
     lines = [f"Charge run: {visible(run.machine_label)} on {visible(run.profile_label)}",
              f"setting: {run.setting.describe(with_connection=True)}" + (f" ({run.setting_source})" if run.setting_source else ""),
@@ -486,6 +512,10 @@ def charge_text(run):
     lines.append("")
     head = ["time [h]", "stage", "charge [%]", "current [A]", "stored [A]", "machine [V]", "bank [V]", "per cell [V]",
             "charged [Ah]", "energy [kWh]"]
+    # on an engine or a motor the speed follows the load: the tachometer and the shaft power along the run
+    driven = run.speed_rpm is not None and getattr(run, "drive_coupled", False)
+    if driven:
+        head += ["speed [rpm]", "shaft [kW]"]
     rows = []
     if t.size:
         sel = np.unique(np.round(np.linspace(0, t.size - 1, min(TEXT_ROWS, t.size))).astype(int))
@@ -493,7 +523,8 @@ def charge_text(run):
             rows.append([_g(t[k], ".2f"), str(int(run.stage[k])), _g(100 * run.state_of_charge[k], ".1f"),
                          _g(run.current_a[k], ".3g"), _g(run.stored_current_a[k], ".3g"),
                          _g(run.terminal_voltage_v[k], ".1f"), _g(run.bank_voltage_v[k], ".1f"),
-                         _g(run.volts_per_cell[k], ".3f"), _g(run.ah[k], ".1f"), _g(run.kwh[k], ".2f")])
+                         _g(run.volts_per_cell[k], ".3f"), _g(run.ah[k], ".1f"), _g(run.kwh[k], ".2f")]
+                        + ([_g(run.speed_rpm[k], ".0f"), _g(run.shaft_power_kw[k], ".3g")] if driven else []))
     widths = [max(len(h), *(len(r[i]) for r in rows)) if rows else len(h) for i, h in enumerate(head)]
     lines.append("  ".join(h.rjust(w) for h, w in zip(head, widths)))
     lines.append("  ".join("-" * w for w in widths))

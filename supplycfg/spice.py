@@ -49,6 +49,34 @@ COPPER_INFERRED_ZERO_C = 234.5
 VECTORS = ("v(pos)", "i(vsl)", "i(vsa)", "i(vsh)", "i(vse)", "v(e)", "v(x)", "v(lv)")
 KEYS = ("terminal_voltage_v", "load_current_a", "armature_current_a", "shunt_field_current_a",
         "series_field_current_a", "generated_emf_v", "equivalent_field_current_a", "load_value")
+#: Also read back when a drive turns the machine: the speed node and the shaft power.
+DRIVE_VECTORS = ("v(sp)", "v(ps)")
+DRIVE_KEYS = ("speed_ratio", "shaft_power_w")
+#: A drive's speed is held above this share of its no-load speed (the engine's own floor, see
+#: supplycfg.drive.SPEED_FLOOR_SHARE); only a stalled set reaches it.
+SPEED_FLOOR_SHARE = 0.02
+
+
+@dataclass(frozen=True)
+class DriveModel:
+    """A drive as circuit parameters: the speed node ``sp`` (generator speed over the OCC's test speed)
+    is a behavioural source of the shaft power node ``ps``.
+
+    ``kind`` is ``"engine"`` (speed linear in power: ``s = s0 (1 - droop P / P_r)``) or ``"motor"``
+    (speed linear in torque: with ``q = s / s0``, ``q = 1 - slip T / T_r`` and
+    ``T / T_r = (P / P_r)(1 - slip) / q``, written as the upper root of
+    ``q^2 - q + slip (1 - slip) P / P_r = 0``). The shaft power is
+    ``E Ia + rot (s / s_rated)^exponent + stray |V IL|``.
+    """
+
+    kind: str
+    s0: float
+    rated_w: float
+    fraction: float          # droop (engine) or rated slip (motor), as a fraction
+    rotational_w: float
+    rated_speed_ratio: float
+    exponent: float
+    stray_fraction: float
 
 
 class SpiceError(RuntimeError):
@@ -116,7 +144,7 @@ def occ_table(machine):
     return xs, es
 
 
-def generator_netlist(machine, setting, sweep, title="dc generator", repeat=1, timed=False):
+def generator_netlist(machine, setting, sweep, title="dc generator", drive=None, repeat=1, timed=False):
     """ngspice netlist of ``machine`` run with ``setting`` against ``sweep``.
 
     Parameters
@@ -126,6 +154,8 @@ def generator_netlist(machine, setting, sweep, title="dc generator", repeat=1, t
         Defaults are filled in from the machine data here (rated speed,
         reference temperature, no rheostat, the whole series winding).
     sweep : LoadSweep
+    drive : DriveModel, optional
+        The speed becomes a circuit node solved with everything else.
     repeat : int
         Times the sweep is solved in the one run.
     timed : bool
@@ -214,7 +244,20 @@ def generator_netlist(machine, setting, sweep, title="dc generator", repeat=1, t
     run_up, flash, load, _ = sweep.path()
     ts = np.arange(load.size, dtype=float)
     L.append("VT t 0 DC 0")
-    L.append(f"BSP sp 0 V = pwl(v(t), {pwl_args(ts, run_up * ratio)})")
+    if drive is None:
+        L.append(f"BSP sp 0 V = pwl(v(t), {pwl_args(ts, run_up * ratio)})")
+    else:
+        d = drive
+        L.append(f"BRU ru 0 V = pwl(v(t), {pwl_args(ts, run_up)})")
+        L.append(f"BPS ps 0 V = v(e) * i(vsa) + {num(d.rotational_w)} * pwr(max(v(sp), 0) / "
+                 f"{num(d.rated_speed_ratio)}, {num(d.exponent)}) + {num(d.stray_fraction)} * abs(v(pos) * i(vsl))")
+        floor = num(SPEED_FLOOR_SHARE)
+        if d.kind == "engine":
+            share = f"max({floor}, 1 - {num(d.fraction / d.rated_w)} * v(ps))"
+        else:
+            c = d.fraction * (1 - d.fraction) / d.rated_w
+            share = f"max({floor}, 0.5 * (1 + sqrt(max(1 - {num(4 * c)} * v(ps), 0))))"
+        L.append(f"BSP sp 0 V = v(ru) * {num(d.s0)} * {share}")
     L.append(f"BLV lv 0 V = pwl(v(t), {pwl_args(ts, load)})")
     L.append(f"BFL fl 0 V = pwl(v(t), {pwl_args(ts, flash)})")
     L.append("VSL pos l1 0")
@@ -233,7 +276,7 @@ def generator_netlist(machine, setting, sweep, title="dc generator", repeat=1, t
           "set wr_singlescale",
           "set wr_vecnames",
           *[f"dc VT 0 {num(load.size - 1)} {num(step)}"] * int(repeat),
-          "wrdata out.txt " + " ".join(VECTORS),
+          "wrdata out.txt " + " ".join(VECTORS + (DRIVE_VECTORS if drive is not None else ())),
           *(["rusage everything"] if timed else []),
           "quit",  # leave with status 0 (batch mode without .print otherwise ends with 1)
           ".endc",
@@ -279,23 +322,25 @@ def run(netlist, workdir, name="circuit", output=None):
         raise SpiceError(f"ngspice failed ({proc.returncode}) on {cir.name}:\n{tail}")
     lines = out.read_text().split("\n")
     header = lines[0].split()
-    if len(header) != len(VECTORS) + 1:
+    names = dict(zip(VECTORS + DRIVE_VECTORS, KEYS + DRIVE_KEYS))
+    if len(header) not in (len(VECTORS) + 1, len(VECTORS) + len(DRIVE_VECTORS) + 1) or \
+            any(h.lower() not in names for h in header[1:]):
         raise SpiceError(f"unexpected wrdata header {header!r}")
     data = np.loadtxt(lines[1:], ndmin=2)
     res = {"t": data[:, 0]}
-    res.update({k: data[:, i + 1] for i, k in enumerate(KEYS)})
+    res.update({names[h.lower()]: data[:, i + 1] for i, h in enumerate(header[1:])})
     return res
 
 
-def solve(machine, setting, sweep, workdir, name="circuit"):
-    """Run the generator circuit; keep the rows at the sweep's own values.
+def solve(machine, setting, sweep, workdir, name="circuit", drive=None):
+    """Run the generator circuit (on ``drive``, a :class:`DriveModel`); keep the rows at the sweep's own values.
 
     Returns
     -------
     dict of ndarray
         One entry per value of ``sweep.values``, in the sweep's order.
     """
-    res = run(generator_netlist(machine, setting, sweep, name), workdir, name)
+    res = run(generator_netlist(machine, setting, sweep, name, drive), workdir, name)
     rows = sweep.path()[3]
     keep = np.array([int(np.argmin(np.abs(res["t"] - k))) for k in rows])
     if np.any(np.abs(res["t"][keep] - rows) > 1e-6):

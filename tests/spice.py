@@ -1,5 +1,6 @@
 """The ngspice netlist builder and runner of the tests: it lives in the package (``supplycfg.spice``),
 where ``supplycfg bench`` times ngspice on the same circuit."""
 
-from supplycfg.spice import (KEYS, NGSPICE, VECTORS, LoadSweep, SpiceError, generator_netlist, num,  # noqa: F401
-                             occ_table, pwl_args, run, solve)
+from supplycfg.spice import (DRIVE_KEYS, DRIVE_VECTORS, KEYS, NGSPICE, SPEED_FLOOR_SHARE, VECTORS,  # noqa: F401
+                             DriveModel, LoadSweep, SpiceError, generator_netlist, num, occ_table, pwl_args, run,
+                             solve)

@@ -49,8 +49,8 @@ def corners(machine, profile):
     return [(float(s), float(t)) for s in speeds for t in temps]
 
 
-def normal(machine, setting, load):
-    pt = operating_points(machine, setting, load).normal
+def normal(machine, setting, load, drive=None):
+    pt = operating_points(machine, setting, load, drive).normal
     assert pt is not None, (setting, load)
     return pt
 
@@ -203,7 +203,8 @@ def test_lighting_band_ends_resolved():
 def test_battery_band_ends_resolved():
     """Battery (best option): at the band's exact ends the start current on the open-circuit line
     stays within the profile's [min, max] and the no-load voltage 5 % above the full bank at every
-    corner (the limits that bind in the demo); a step outside breaks a limit of the search."""
+    corner (the limits that bind in the demo); a step outside breaks a limit of the search. The demo's
+    motor sets the speed of the loaded points (re-solved with the same drive)."""
     m, p, res = demo("battery")
     o = res.feasible[0]
     b = p.battery
@@ -213,8 +214,8 @@ def test_battery_band_ends_resolved():
     line = Load.battery(e0, b.internal_resistance_ohm + b.cable_resistance_ohm)
 
     def start_currents(r):
-        return [normal(m, replace(o.setting, rheostat_ohm=r, speed_rpm=sp, winding_temperature_c=tc), line)["load_current_a"]
-                for sp, tc in corners(m, p)]
+        return [normal(m, replace(o.setting, rheostat_ohm=r, speed_rpm=sp, winding_temperature_c=tc), line,
+                       p.drive)["load_current_a"] for sp, tc in corners(m, p)]
 
     a, z = o.band["control_exact"]
     for end in (a, z):
@@ -279,11 +280,13 @@ def row_setting(o, row, key=None):
 
 def row_holds(m, p, st_, target):
     """Smallest margin of one dial row, re-solved: current on the line within 3 % at the nominal
-    corner, no-load voltage inside the window at every corner, drooping at the working point."""
+    corner, no-load voltage inside the window at every corner, drooping at the working point. The
+    profile's drive turns the machine: the working point at the speed it falls to, the no-load
+    voltage at its no-load speed."""
     j = p.welding
     line = Load.line(20.0, 0.04 + j.cable_resistance_ohm)
     nominal = (0.5 * sum(p.speeds_rpm), max(p.temperatures_c))
-    pt = normal(m, replace(st_, speed_rpm=nominal[0], winding_temperature_c=nominal[1]), line)
+    pt = normal(m, replace(st_, speed_rpm=nominal[0], winding_temperature_c=nominal[1]), line, p.drive)
     ms = [(0.03 - abs(pt["load_current_a"] / target - 1)) / 0.03]
     for sp, tc in corners(m, p):
         v0 = normal(m, replace(st_, speed_rpm=sp, winding_temperature_c=tc), Load.constant_current(0.0))["terminal_voltage_v"]
@@ -574,12 +577,23 @@ def test_field_current_beyond_the_exciter_refused(capsys):
     capsys.readouterr()
 
 
-def test_charge_cautions_follow_the_search(capsys):
-    """charge with a setting: the battery's rules and the machine's, as the search applies them."""
-    d = run_json(["charge", M, str(LOADS / "battery-charging.toml"), "--connection", "shunt", "--rheostat-ohm", "60",
-                  "--speed-rpm", "1480"], capsys)
+def test_charge_cautions_follow_the_search(capsys, tmp_path):
+    """charge with a setting: the battery's rules and the machine's, as the search applies them. The
+    demo job on a fixed drive (its motor replaced by a set speed, so --speed-rpm applies); on its motor
+    the drive's own note comes with them."""
+    text = (LOADS / "battery-charging.toml").read_text(encoding="utf-8")
+    drive = re.search(r"\[drive\]\n(.*?)\n\n", text, re.S).group(1)
+    fixed = tmp_path / "fixed.toml"
+    temps = next(ln for ln in drive.splitlines() if ln.startswith("winding_temperature_range_c"))
+    fixed.write_text(text.replace(drive, "speed_rpm = 1450\n" + temps), encoding="utf-8")
+    d = run_json(["charge", M, str(fixed), "--connection", "shunt", "--rheostat-ohm", "60", "--speed-rpm", "1480"],
+                 capsys)
     r = rules(d)
     assert r["overspeed"] == "note" and "battery-reverse-current" in r
+    d = run_json(["charge", M, str(LOADS / "battery-charging.toml"), "--connection", "shunt", "--rheostat-ohm", "60"],
+                 capsys)
+    r = rules(d)
+    assert r["drive-speed"] == "note" and "battery-reverse-current" in r
 
 
 # ---------------------------------------------------------------------------

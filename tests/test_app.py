@@ -1,6 +1,7 @@
 """The Streamlit page, run headless through streamlit.testing.v1.AppTest."""
 
 import html
+import json
 import re
 from html.parser import HTMLParser
 import tomllib
@@ -413,3 +414,19 @@ def test_page_tables_are_text_never_markup():
     assert "&lt;script&gt;" in out and "a\\u202eb\\u200b" in out and "\u202e" not in out
     assert html_table(out) == [["What", "<i>x</i>"], ["<script>alert(1)</script>", "a\\u202eb\\u200b"],
                                ["**bold**", "$x$"]]
+
+
+def test_drive_inputs_and_size_section():
+    """The job form shows the drive's kind and figures; the page's drive section finds the
+    smallest rating (here the booster demo on its fixed drive: the least peak shaft power of a
+    feasible setting) and the tooltips of the curves carry speed and shaft power."""
+    at = fresh()
+    labels = {t.label for t in at.text_input} | {s.label for s in at.selectbox}
+    assert {"What turns the generator", "Drive rating [kW] (engine or motor)", "Motor slip at rated load [%]",
+            "Friction, windage and core loss at rated speed [W]"} <= labels
+    at.radio(key="kind_pick").set_value("booster").run()
+    button(at, "Find the smallest drive rating that does the job").click().run()
+    assert not at.exception, at.exception
+    assert "Smallest drive rating at the shaft" in markdown_text(at)
+    specs = [json.dumps(c.proto.spec) for c in at.get("vega_lite_chart")]
+    assert any("shaft power [kW]" in sp and "speed [rpm]" in sp for sp in specs)

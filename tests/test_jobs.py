@@ -238,7 +238,9 @@ def test_battery_demo_values():
     p = profile.load_profile(PROFILES / "battery-charging.toml")
     b = p.battery
     assert (b.chemistry, b.cells) == ("lead-acid-vented", 60)
-    assert p.speeds_rpm == (1450.0,)
+    # the demo's motor: 1500 rpm synchronous through a 140/145 mm belt, the generator's speed at zero shaft power
+    assert p.drive.kind == "motor" and p.drive.rated_power_kw == 11.0
+    assert_allclose(p.speeds_rpm, (1500.0 * 0.9655,), rtol=1e-12)
     assert_allclose(b.open_circuit_voltage_per_cell_v, (1.98, 2.12), atol=1e-12)
     # left out: the chemistry's gassing voltage, finishing rate and the cut-out rule, resolved on use
     assert b.charge_voltage_per_cell_v is None and b.finishing_rate_per_h is None

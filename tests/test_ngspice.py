@@ -318,3 +318,99 @@ def test_characteristic_near_short_circuit_matches_ngspice(machine, connection, 
     assert np.any(np.abs(x) < 1e-12)  # the zero-field stretch is checked
     assert_same({k: curve[k][keep] for k in QUANTITIES}, {k: res[k][rows] for k in QUANTITIES},
                 f"{connection} near short circuit")
+
+
+# ---------------------------------------------------------------------------
+# the speed an unknown: an engine or a motor turns the machine
+# ---------------------------------------------------------------------------
+
+#: The check machine with its losses stated: friction, windage and core 400 W at rated speed,
+#: scaling as speed^1.5, stray load loss 1 % of output.
+DRIVEN_MACHINE = dict(MACHINE, losses={"rotational_loss_w": 400.0, "rotational_loss_speed_exponent": 1.5,
+                                       "stray_load_loss_percent": 1.0})
+#: Invented drives: a governed engine direct coupled, and an induction motor through a belt.
+ENGINE = {"kind": "engine", "no_load_speed_rpm": 1560.0, "droop_percent": 6.0, "rated_power_kw": 12.0}
+MOTOR = {"kind": "motor", "synchronous_speed_rpm": 1500.0, "rated_slip_percent": 4.0, "rated_power_kw": 15.0,
+         "ratio": 1.04}
+#: (setting, drive table, load resistances [ohm]): a shunt machine and a cumulative compound.
+DRIVEN_CASES = {
+    "shunt-engine": (Setting("shunt", rheostat_ohm=40), ENGINE, (40.0, 10.0, 5.0, 3.0, 2.4)),
+    "compound-motor": (Setting("long-shunt-cumulative", rheostat_ohm=40, series_turns=8), MOTOR,
+                       (40.0, 10.0, 5.0, 3.0)),
+}
+
+
+def drive_model(table, machine):
+    """The drive as the circuit's own parameters, written out from the profile's figures."""
+    ratio = table.get("ratio", 1.0)
+    top = table["no_load_speed_rpm"] if table["kind"] == "engine" else table["synchronous_speed_rpm"]
+    frac = (table["droop_percent"] if table["kind"] == "engine" else table["rated_slip_percent"]) / 100
+    ls = DRIVEN_MACHINE["losses"]
+    return spice.DriveModel(table["kind"], ratio * top / machine.occ_speed_rpm, 1e3 * table["rated_power_kw"], frac,
+                            ls["rotational_loss_w"], machine.rated_speed_rpm / machine.occ_speed_rpm,
+                            ls["rotational_loss_speed_exponent"], ls["stray_load_loss_percent"] / 100)
+
+
+def profile_drive(table):
+    from supplycfg.profile import profile_from_dict
+    prof = {"load": {"kind": "lighting"}, "drive": dict(table),
+            "lighting": {"nominal_voltage_v": 200, "load_current_a": [0, 10]}}
+    return profile_from_dict(prof, "driven check").drive
+
+
+@pytest.mark.parametrize("case", list(DRIVEN_CASES))
+def test_driven_machine_matches_ngspice(case, tmp_path):
+    """The coupled operating point: the speed a circuit node.
+
+    Source: ngspice 39 batch solve of the equivalent circuit with the speed as
+    a node: a behavioural source gives the drive's speed from the shaft power
+    node ``E Ia + P_rot(n) + stray |V IL|`` (engine: linear droop in power;
+    motor: the upper root of its linear torque line), and the EMF source reads
+    that speed, so ngspice's own Newton iteration solves speed and circuit
+    together; nothing of the engine's speed solve is reused. The drive runs up
+    on a heavy load with the field flashed, then the load conductance is swept
+    down through each target. Currents, voltages, EMF, speed and shaft power
+    within 0.2 %.
+    """
+    machine = machine_from_dict(DRIVEN_MACHINE, "driven check machine")
+    setting, table, resistances = DRIVEN_CASES[case]
+    model = drive_model(table, machine)
+    drive = profile_drive(table)
+    path = conductance_path([1.0 / r for r in resistances], heavy_s=2.0)
+    res = spice.solve(machine, setting, spice.LoadSweep("conductance", path, flash_a=FLASH_A), tmp_path, case,
+                      drive=model)
+    rows = [int(np.argmin(np.abs(res["load_value"] - 1.0 / r))) for r in resistances]
+    normals = []
+    for j in rows:
+        op = operating_points(machine, setting, Load.resistor(1.0 / res["load_value"][j]), drive)
+        assert op.converged and op.normal is not None
+        normals.append(op.normal)
+    ngs = {k: res[k][rows] for k in QUANTITIES}
+    assert_same(engine_arrays(normals), ngs, case)
+    speed = np.array([p["speed_rpm"] for p in normals])
+    shaft = np.array([p["shaft_power_kw"] for p in normals])
+    assert_allclose(speed, res["speed_ratio"][rows] * machine.occ_speed_rpm, rtol=RTOL)
+    assert_allclose(shaft, 1e-3 * res["shaft_power_w"][rows], rtol=RTOL)
+    # the drive really slows: at least 1 % between the lightest and the heaviest load
+    assert speed.max() > 1.01 * speed.min()
+
+
+def test_driven_shunt_characteristic_matches_ngspice(tmp_path):
+    """The driven shunt machine's external characteristic through its turn-back (traced along rays).
+
+    Source: ngspice 39 as above, the load conductance swept from a heavy load down through each
+    point's ``IL / V``. Within 0.2 %.
+    """
+    machine = machine_from_dict(DRIVEN_MACHINE, "driven check machine")
+    setting, table, _ = DRIVEN_CASES["shunt-engine"]
+    ch = external_characteristic(machine, setting, 100, profile_drive(table))
+    curve = ch.points
+    v, il = curve["terminal_voltage_v"], curve["load_current_a"]
+    keep = np.flatnonzero((v > 1.0) & (il > 0))[::6]
+    assert keep.size >= 8 and keep.max() > np.argmax(il)
+    g = il[keep] / v[keep]
+    res = spice.solve(machine, setting, spice.LoadSweep("conductance", conductance_path(g), flash_a=FLASH_A),
+                      tmp_path, "driven-curve", drive=drive_model(table, machine))
+    rows = np.array([int(np.argmin(np.abs(res["load_value"] - gi))) for gi in g])
+    assert_same({k: curve[k][keep] for k in QUANTITIES}, {k: res[k][rows] for k in QUANTITIES}, "driven curve")
+    assert_allclose(ch.power["speed_rpm"][keep], res["speed_ratio"][rows] * machine.occ_speed_rpm, rtol=RTOL)

@@ -61,16 +61,16 @@ def full_run(machine, profile, best):
     return charge_run_for_option(machine, profile, best)
 
 
-def steady_current_a(machine, setting, job, soc, iterations=40):
+def steady_current_a(machine, setting, job, soc, iterations=40, drive=None):
     """Normal operating point on the bank's charging curve by Newton steps: each step meets the tangent
-    line of the curve at the last current (``Load.line``) with ``operating_points``."""
+    line of the curve at the last current (``Load.line``) with ``operating_points`` (on ``drive``)."""
     i = 1.0
     for _ in range(iterations):
         d = 1e-5 * max(1.0, abs(i))
         v = lambda c: float(battery.bank_voltage_v(job, soc, c))
         slope = (v(i + d) - v(i - d)) / (2 * d)
         v0 = v(i) - slope * i
-        pt = operating_points(machine, setting, Load.line(v0, slope)).normal
+        pt = operating_points(machine, setting, Load.line(v0, slope), drive).normal
         assert pt is not None
         new = pt["load_current_a"]
         if abs(new - i) < 1e-10 * max(1.0, abs(i)):
@@ -133,8 +133,9 @@ def test_run_is_the_searchs_plan(full_run, best):
     assert r.setting == best.setting
     assert r.finish_setting == finish_setting_of(best)
     assert r.conditions == best.extras["conditions"]
+    # on the demo's motor the condition names the drive: its speed is the motor's no-load speed
     assert r.conditions["setting"] == {"speed_rpm": best.setting.speed_rpm,
-                                       "winding_temperature_c": best.setting.winding_temperature_c}
+                                       "winding_temperature_c": best.setting.winding_temperature_c, "drive": "motor"}
     for a, b in zip(r.stages, best.extras["plan"]):
         assert a["setting"] == b["setting"] and a["ends_because"] == b["ends_because"]
         for k in ("from_h", "to_h", "start_current_a", "end_current_a", "end_volts_per_cell"):
@@ -152,7 +153,7 @@ def test_current_equals_steady_state_point(machine, profile, full_run, k):
     ``operating_points`` agree within 0.1 % (derived: both solve the same circuit and curve)."""
     r = full_run
     st = r.setting if r.stage[k] == 1 else r.finish_setting
-    want = steady_current_a(machine, st, profile.battery, float(r.state_of_charge[k]))
+    want = steady_current_a(machine, st, profile.battery, float(r.state_of_charge[k]), drive=profile.drive)
     assert_allclose(r.current_a[k], want, rtol=1e-3)
     assert_allclose(charging_current_a(machine, profile, st, [r.state_of_charge[k]])[0], want, rtol=1e-3)
     assert_allclose(r.terminal_voltage_v[k], battery.bank_voltage_v(profile.battery, r.state_of_charge[k], want),
@@ -162,12 +163,20 @@ def test_current_equals_steady_state_point(machine, profile, full_run, k):
 def test_run_is_monotone_and_steps_down_at_the_handover(full_run):
     """Within a stage the state of charge and the cell voltage rise and the current falls (constant
     field against a rising bank voltage; textbook taper charging, from memory); at the hand-over the
-    time repeats and the current steps down to the finish."""
+    time repeats and the current steps down to the finish. The demo's main charge (on its motor, at
+    1500 rpm no load) sits on the heavy differential winding's near-flat part: early in the charge
+    the shunt field's rise with the bank voltage holds the current level, so there it may rise by a
+    few hundredths of a per cent (the same at a fixed speed: a property of the setting, not of the
+    drive); over the stage it falls."""
     r = full_run
     for no in (1, 2):
         sel = r.stage == no
+        cur = r.current_a[sel]
         assert np.all(np.diff(r.state_of_charge[sel]) > 0)
-        assert np.all(np.diff(r.current_a[sel]) < 0)
+        if no == 1:
+            assert np.all(np.diff(cur) < 5e-4 * cur[0]) and cur[-1] < cur[0]
+        else:
+            assert np.all(np.diff(cur) < 0)
         assert np.all(np.diff(r.volts_per_cell[sel]) > 0)
     k = int(np.flatnonzero(r.stage == 2)[0])
     assert r.time_h[k] == r.time_h[k - 1] and r.current_a[k] < 0.6 * r.current_a[k - 1]
@@ -204,7 +213,8 @@ def test_start_current_above_the_jobs_highest_gets_a_caution(machine, profile, r
 def test_stop_at_the_highest_cell_voltage(machine, profile):
     """A finish on a strong field drives the cells to the chemistry's highest voltage, 2.7 V for vented
     lead-acid (common practice, from memory): the run stops there and says so."""
-    r = charge_run(machine, profile, Setting(rheostat_ohm=21.39, **DIFF), finish_setting=Setting(rheostat_ohm=5.0, **DIFF))
+    # the demo's motor slows under load (about 1430 rpm at the generator), so the finish is set strong
+    r = charge_run(machine, profile, Setting(rheostat_ohm=21.39, **DIFF), finish_setting=Setting(rheostat_ohm=0.0, **DIFF))
     assert r.stop == "voltage-limit" and "highest voltage" in r.stop_reason
     assert r.stages[-1]["ends_because"] == "voltage-limit"
     assert_allclose(r.volts_per_cell[-1], 2.7, atol=1e-9)
@@ -413,9 +423,13 @@ def test_search_json_carries_the_plan(result):
 
 
 def test_feasible_plans_ranked_by_hours(result):
-    """The battery's objective is hours to full (design note): feasible options come in order of it."""
+    """The battery's objective is hours to full (design note): feasible options come in order of it,
+    where hours within 2 % of each other tie and go to the simpler rig, then the larger margin (the
+    stated ranking rule): no option is beaten by more than 2 % by one ranked below it."""
+    from supplycfg.search import OBJECTIVE_TIE_FRACTION
     hours = [o.figures["hours_to_full"] for o in result.feasible]
-    assert hours == sorted(hours)
+    for k, h in enumerate(hours):
+        assert all(h <= later * (1 + OBJECTIVE_TIE_FRACTION) for later in hours[k + 1:])
     assert_allclose(battery.objective({"hours_to_full": np.array(hours)}), hours)
     assert battery.OBJECTIVE_LABEL.startswith("hours to full")
 

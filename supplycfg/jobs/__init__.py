@@ -8,7 +8,7 @@ the job; the profile reader (:mod:`supplycfg.profile`) dispatches to
 ``read_job``. Imports run one way: profile reader -> jobs -> engine.
 """
 
-from ..cautions import setting_cautions
+from ..cautions import drive_cautions, setting_cautions
 from . import battery, booster, lighting, welding
 
 #: Job modules by ``load.kind``.
@@ -37,7 +37,8 @@ def option_cautions(machine, profile, setting, f):
     -------
     list of Caution
     """
-    return JOBS[profile.kind].option_cautions(machine, profile, setting, f) + setting_cautions(machine, setting, f)
+    return (JOBS[profile.kind].option_cautions(machine, profile, setting, f) + setting_cautions(machine, setting, f)
+            + drive_cautions(machine, profile.drive, f))
 
 
 def profile_cautions(machine, profile):

@@ -40,7 +40,7 @@ shape parameter of our own model.
 """
 
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 
@@ -49,6 +49,7 @@ from ..circuit import Setting, USES_SERIES, build_circuit, check_setting, machin
 from ..envelope import (Space, control_kind, control_range, critical_resistance_ratios, envelope_corners,
                         expand_candidates, worst_over_corners)
 from ..errors import InputError
+from ..powerflow import load_point_figures
 from ..readings import option_advice
 from ..validate import MAX_CURRENT_A, MAX_OHM, named_entry, read_pair, table_entry
 
@@ -1369,6 +1370,7 @@ def cut_in_speeds_rpm(space, base_idx, u, corner_idx):
     job = space.profile.battery
     base_idx = np.asarray(base_idx, int)
     sub, _ = expand_candidates(space, base_idx, u, corner_idx)
+    sub = sub.without_drive()  # the speed here is the unknown of the question, not the drive's
     p = sub.take(np.arange(sub.n))
     v = np.full(sub.n, cutout_closing_voltage_v(job))
     st = machine_state(sub, p, v, np.zeros(sub.n))
@@ -1396,6 +1398,7 @@ def standstill_backfeed_current_a(space, base_idx, u, corner_idx):
     job = space.profile.battery
     chem = chemistry(job.chemistry)
     sub, _ = expand_candidates(space, base_idx, u, corner_idx)
+    sub = sub.without_drive()  # standstill: no drive turns the machine
     p = sub.take(np.arange(sub.n))
     p["s"] = np.zeros(sub.n)
     vb = job.cells * float(open_circuit_voltage_per_cell(chem, job.state_of_charge[1],
@@ -1688,8 +1691,26 @@ def plan_figures(plan):
         "critical_resistance_ratio": crit,
         "converged": grid["converged"].all(axis=1).astype(float),
     }
+    # the drive at the plan's load points (at the coupled speed of each)
+    mn, fn = plan.main, plan.finish
+    with np.errstate(invalid="ignore"):
+        pw = np.where(np.isfinite(mn.terminal_voltage_v * mn.current_a), mn.terminal_voltage_v * mn.current_a, -np.inf)
+    kmax = np.argmax(pw, axis=1)
+    rr = np.arange(kmax.size)
+    drive_lim, drive_figs = load_point_figures(space, nb, [
+        ("start of charge", sub1, mn.terminal_voltage_v[:, 0], mn.current_a[:, 0]),
+        ("heaviest point of the main charge", sub1, mn.terminal_voltage_v[rr, kmax], mn.current_a[rr, kmax]),
+        ("hand-over", sub1, mn.terminal_voltage_v[:, -1], mn.current_a[:, -1]),
+        ("start of the finish", sub2, fn.terminal_voltage_v[:, 0], fn.current_a[:, 0]),
+        ("end of charge", sub2, fn.terminal_voltage_v[:, -1], fn.current_a[:, -1])], missing_collapses=False)
+    lim.update(drive_lim)
+    figs.update(drive_figs)
     conds = {name: {"speed_rpm": space.corners[c][0], "winding_temperature_c": space.corners[c][1]}
              for name, c in (("setting", nom), ("cold", cold), ("hot", hot))}
+    if space.profile.drive.coupled:
+        # the corner's speed is the drive's no-load speed; loaded, the speed falls
+        for c in conds.values():
+            c["drive"] = space.profile.drive.kind
     extras = []
     for k in range(nb):
         b = int(plan.base_idx[k])
@@ -1816,6 +1837,9 @@ def setting_space(machine, profile, setting):
     (Space, float)
         The space and the setting's control value.
     """
+    if profile.drive.coupled:
+        # an engine or a motor: the setting's speed is the drive's no-load speed; loaded, it falls
+        setting = replace(setting, speed_rpm=profile.drive.generator_speeds_rpm()[0])
     st = check_setting(machine, setting)
     conn = st.connection
     control = "field-current" if st.field_current_a is not None else control_kind(machine, conn)
@@ -1835,7 +1859,7 @@ def setting_space(machine, profile, setting):
         kw = {"field_current_a": 0.0} if control == "field-current" else {}
         settings.append(Setting(conn, series_turns=base[1] if conn in USES_SERIES else None, diverter_ohm=base[2],
                                 speed_rpm=sp, winding_temperature_c=tc, **kw))
-    space = Space(machine, profile, [base], corners, own, build_circuit(machine, settings))
+    space = Space(machine, profile, [base], corners, own, build_circuit(machine, settings, profile.drive))
     return space, float(u)
 
 

@@ -12,6 +12,7 @@ from ..circuit import (candidate_params, machine_state, normal_points, terminal_
                        voltage_span)
 from ..envelope import (COARSE, FINE, critical_resistance_ratios, expand_candidates, optimise_control,
                         worst_over_corners)
+from ..powerflow import load_point_figures
 from ..readings import no_load_setting_field, option_advice
 from ..validate import MAX_CURRENT_A, MAX_OHM, MAX_VOLTAGE_V, MIN_VOLTAGE_V, named_entry, read_pair, table_entry
 
@@ -137,6 +138,7 @@ def evaluate_feeder(space, base_idx, u, booster=False, res=COARSE):
     tol = job.tolerance_percent / 100.0
     vload = np.empty((sub.n, currents.size)); ia_all = np.empty_like(vload); x_all = np.empty_like(vload)
     e_all = np.empty_like(vload); conv = np.ones(sub.n, bool)
+    drive_pts = []
     p = candidate_params(sub, np.arange(sub.n))
     for k, il in enumerate(currents):
         if booster:
@@ -145,6 +147,7 @@ def evaluate_feeder(space, base_idx, u, booster=False, res=COARSE):
             st = machine_state(sub, p, v, ia)
             vl = job.bus_voltage_v + v - il * job.feeder_resistance_ohm
             x, e, iak = st["x"], st["generated_emf_v"], st["armature_current_a"]
+            drive_pts.append((f"{il:g} A", sub, v, np.full(sub.n, il)))
         else:
             # a machine sitting below a third of the nominal voltage has failed anyway; the top is
             # the engine's whole voltage span (widened further while the machine is above the load)
@@ -154,6 +157,7 @@ def evaluate_feeder(space, base_idx, u, booster=False, res=COARSE):
             vl = r["terminal_voltage_v"] - il * job.feeder_resistance_ohm
             x, e, iak = r["x"], r["generated_emf_v"], r["armature_current_a"]
             conv &= r["converged"]
+            drive_pts.append((f"{il:g} A", sub, r["terminal_voltage_v"], r["load_current_a"]))
         vload[:, k], ia_all[:, k], x_all[:, k], e_all[:, k] = vl, iak, x, e
     nc = space.nc
     with np.errstate(invalid="ignore"):
@@ -174,6 +178,9 @@ def evaluate_feeder(space, base_idx, u, booster=False, res=COARSE):
             "min_generated_emf_v": worst_over_corners(e_all.min(axis=1), n, nc, "min"),
             "critical_resistance_ratio": critical_resistance_ratios(space, sub, n),
             "converged": worst_over_corners(conv.astype(float), n, nc, "min")}
+    drive_lim, drive_figs = load_point_figures(space, n, drive_pts)
+    lim.update(drive_lim)
+    figs.update(drive_figs)
     if not booster:
         figs["regulation_band_percent"] = 100.0 * (vmax - vmin) / nominal
         lp = lamp(job.lamp)

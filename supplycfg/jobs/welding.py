@@ -15,6 +15,7 @@ from ..circuit import (USES_SERIES, candidate_params, machine_state, no_load_vol
                        refine_bracketed_roots)
 from ..envelope import control_range, critical_resistance_ratios, expand_candidates, smallest_margin_fraction
 from ..errors import InputError
+from ..powerflow import load_point_figures
 from ..readings import (control_band, diverter_rating, exciter_supply, no_load_field_current_a,
                         readings_and_band, weak_end_is_high)
 from ..validate import MAX_CURRENT_A, MAX_OHM, named_entry, read_pair, table_entry
@@ -617,9 +618,16 @@ def solve(space):
     lim["duty_cycle_heating"] = (np.full(nb, deq), m.rated_armature_current_a, "max", "A")
     # the two ends at every corner: the current's spread and the machine's figures
     ends = np.concatenate([pidx[:, 0], pidx[:, -1]])
-    r_end, _ = _weld_current(space, bi[ends], u_all[ends])
+    r_end, sub_end = _weld_current(space, bi[ends], u_all[ends])
     evaluated += ends.size * space.nc
     nc = space.nc
+    # the drive at the two ends of each dial, every corner (at the speed the drive falls to)
+    half = np.arange(nb * nc)
+    drive_lim, drive_figs = load_point_figures(space, nb, [
+        (f"{end} end, {target:g} A", sub_end.subset(half + off), r_end["terminal_voltage_v"][half + off],
+         r_end["load_current_a"][half + off])
+        for end, target, off in (("low", targets[0], 0), ("high", targets[-1], nb * nc))])
+    lim.update(drive_lim)
     cur_end = r_end["load_current_a"].reshape(2 * nb, nc)
     spread_min, spread_max = _worst(cur_end, "min"), _worst(cur_end, "max")
     ia_end = np.abs(r_end["armature_current_a"]).reshape(2 * nb, nc).max(axis=1)
@@ -659,6 +667,7 @@ def solve(space):
             "min_net_mmf_a": min_x, "max_net_mmf_a": max_x, "min_generated_emf_v": min_e,
             "critical_resistance_ratio": _worst(rr, "min"),
             "tap_changes": changes,
+            **drive_figs,
             "converged": (ev["converged"][pidx].all(axis=1) & r_end["converged"].reshape(2 * nb, nc).all(axis=1)[:nb]
                           & r_end["converged"].reshape(2 * nb, nc).all(axis=1)[nb:]).astype(float)}
     option_ok = (smallest_margin_fraction(lim) >= 0) & (figs["converged"] >= 1)

@@ -79,6 +79,7 @@ def main():
             best_run, _ = state.charge(mt, pt, best.rank)
         outputs.recommended_card(result, best_run)
         option = outputs.options_section(result, key)
+        outputs.drive_size_section(result, mt, pt)
         if option is not None:
             run, run_msg = state.charge(mt, pt, option.rank) if result.profile.kind == "battery" else (None, None)
             outputs.detail_section(result, option)

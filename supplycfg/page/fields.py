@@ -9,6 +9,7 @@ import math
 import re
 from pathlib import Path
 
+from ..drive import DRIVE_KINDS
 from ..errors import InputError
 from ..jobs.battery import CHEMISTRIES
 from ..jobs.lighting import LAMPS
@@ -48,6 +49,10 @@ MACHINE_FIELDS = (
      "num?", "used when 'Armature reaction' is 'in proportion to current'"),
     ("winding", "conductors", "Armature conductors", "num?", "optional; with the parallel paths"),
     ("winding", "parallel_paths", "Parallel paths", "num?", "2 for wave, the pole count for lap"),
+    ("losses", "rotational_loss_w", "Friction, windage and core loss at rated speed [W]", "num?",
+     "from a no-load running test; blank for 3 % of rated output"),
+    ("losses", "rotational_loss_speed_exponent", "How that loss grows with speed (exponent)", "num?", "blank for 1.5"),
+    ("losses", "stray_load_loss_percent", "Stray load loss [% of output]", "num?", "blank for 1 %"),
 )
 
 AR_MODES = {"none": "not given", "linear": "in proportion to current", "table": "from a table"}
@@ -100,18 +105,34 @@ PROFILE_FIELDS = {
 
 DRIVE_FIELDS = (
     ("load", "label", "Name of the job", "text", "printed on the setting sheet"),
-    ("drive", "speed", "Drive speed [rpm]", "list", "one speed, or the lowest and highest: 1400, 1500"),
+    ("drive", "kind", "What turns the generator", "choice:drive_kind",
+     "fixed: a set speed; engine: governed, slows with power; motor: induction, slows with torque"),
+    ("drive", "speed", "Drive speed [rpm]", "list?",
+     "a fixed drive: one speed, or the lowest and highest: 1400, 1500; blank for an engine or a motor"),
+    ("drive", "ratio", "Belt or gearing [generator rpm per drive rpm]", "num?", "blank for direct coupling"),
+    ("drive", "rated_power_kw", "Drive rating [kW] (engine or motor)", "num?", None),
+    ("drive", "no_load_speed_rpm", "Engine speed at no load [rpm]", "num?", "the governor's high idle"),
+    ("drive", "droop_percent", "Engine droop [%]", "num?", "speed fall from no load to rated power"),
+    ("drive", "idle_speed_rpm", "Engine idle [rpm]", "num?", "optional; checked as a note"),
+    ("drive", "synchronous_speed_rpm", "Motor synchronous speed [rpm]", "num?", "1500 for 4 poles on 50 Hz"),
+    ("drive", "rated_slip_percent", "Motor slip at rated load [%]", "num?", None),
+    ("drive", "breakdown_torque_percent", "Motor breakdown torque [% of rated]", "num?", "blank for 225 %"),
     ("drive", "winding_temperature_range_c", "Winding temperature, cold and hot [°C]", "list?",
      "blank: the machine's reference temperature"),
 )
 
-CHOICES = {"interpolation": ("monotone-cubic", "linear"), "chemistry": tuple(CHEMISTRIES),
+CHOICES = {"interpolation": ("monotone-cubic", "linear"), "drive_kind": DRIVE_KINDS, "chemistry": tuple(CHEMISTRIES),
            "process": tuple(WELDING_PROCESSES), "environment": tuple(ENVIRONMENTS), "lamp": tuple(LAMPS)}
 
 #: Demo pairs: each job kind with its demo machine (file stems under profiles/).
 DEMO_PAIRS = {"battery": ("charging-set", "battery-charging"), "welding": ("welding-set", "welding"),
               "lighting": ("lighting-set", "lighting"), "booster": ("feeder-booster", "booster")}
 DEFAULT_KIND = "battery"
+
+
+#: The drive's figures besides its kind, speed and winding temperatures (each a plain number).
+DRIVE_FIGURES = ("ratio", "rated_power_kw", "no_load_speed_rpm", "droop_percent", "idle_speed_rpm",
+                 "synchronous_speed_rpm", "rated_slip_percent", "breakdown_torque_percent")
 
 
 def demo_folder():
@@ -286,7 +307,7 @@ def machine_tables_from_form(vals):
     """Machine TOML tables from the form's values (blank fields omitted)."""
     t = {"machine": {}, "open_circuit": {}}
     for table, key, _, kind, _ in MACHINE_FIELDS:
-        if table in ("armature_reaction", "winding"):
+        if table in ("armature_reaction", "winding", "losses"):
             continue
         v = parse_field(kind, vals.get(field_id(table, key), ""), field_id(table, key))
         if v is None or (kind == "text" and v == "" and key != "label"):
@@ -312,6 +333,13 @@ def machine_tables_from_form(vals):
             w[key] = v
     if w:
         t["winding"] = w
+    ls = {}
+    for key in ("rotational_loss_w", "rotational_loss_speed_exponent", "stray_load_loss_percent"):
+        v = parse_field("num?", vals.get(field_id("losses", key), ""), field_id("losses", key))
+        if v is not None:
+            ls[key] = v
+    if ls:
+        t["losses"] = ls
     return t
 
 
@@ -323,6 +351,9 @@ def profile_form_values(tables):
     vals["load.label"] = to_text(tables.get("load", {}).get("label", ""))
     vals["drive.speed"] = to_text(speed)
     vals["drive.winding_temperature_range_c"] = to_text(drive.get("winding_temperature_range_c"))
+    vals["drive.kind"] = to_text(drive.get("kind", "fixed"))
+    for key in DRIVE_FIGURES:
+        vals[field_id("drive", key)] = to_text(drive.get(key))
     for kind, specs in PROFILE_FIELDS.items():
         for table, key, _, ftype, _ in specs:
             v = tables.get(table, {}).get(key)
@@ -335,6 +366,13 @@ def profile_form_values(tables):
 def profile_tables_from_form(kind, vals):
     """Profile TOML tables of ``kind`` from the form's values."""
     t = {"load": {"kind": kind, "label": vals.get("load.label", "")}, "drive": {}, kind: {}}
+    dk = vals.get("drive.kind", "fixed") or "fixed"
+    if dk != "fixed":
+        t["drive"]["kind"] = dk
+    for key in DRIVE_FIGURES:
+        v = parse_field("num?", vals.get(field_id("drive", key), ""), field_id("drive", key))
+        if v is not None:
+            t["drive"][key] = v
     sp = parse_field("list", vals.get("drive.speed", ""), "drive.speed")
     if sp is not None:
         if len(sp) == 1:

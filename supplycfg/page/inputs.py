@@ -98,7 +98,10 @@ def _machine_form(err):
                                                 "machine.reference_temperature_c")),
                   ("Series winding", ("machine.series_field_resistance_ohm", "machine.series_turns_per_pole",
                                       "machine.series_taps")),
-                  ("Open-circuit test", ("open_circuit.speed_rpm", "open_circuit.interpolation")))
+                  ("Open-circuit test", ("open_circuit.speed_rpm", "open_circuit.interpolation")),
+                  ("Losses (optional; blank for the defaults)", ("losses.rotational_loss_w",
+                                                                 "losses.rotational_loss_speed_exponent",
+                                                                 "losses.stray_load_loss_percent")))
         spec = {fields.field_id(t, k): (lab, kind, hlp) for t, k, lab, kind, hlp in fields.MACHINE_FIELDS}
         for title, ids in groups:
             st.markdown(f"**{title}**")

@@ -251,6 +251,31 @@ def curves_section(result, option, run, run_msg, key, texts):
     st.caption("Drag to pan, scroll to zoom, double-click to reset; point at a line for its values.")
 
 
+def drive_size_section(result, machine_toml, profile_toml):
+    """The smallest drive rating with which some setting meets the job (on request: a few searches)."""
+    st.subheader("The drive this job needs")
+    d = result.profile.drive
+    st.markdown(f"Drive in the job: {_md(d.describe())}.")
+    if not st.button("Find the smallest drive rating that does the job", key="size_go"):
+        return
+    res, err = state.size(machine_toml, profile_toml)
+    if res is None:
+        st.error(_md(err))
+        return
+    if res.required_drive_kw is None:
+        st.warning(_md("; ".join(res.notes) or "no rating makes this job feasible"))
+        return
+    what = f"{d.kind} rating" if d.coupled else "drive rating at the shaft"
+    st.markdown(f"**Smallest {what}: {fmt(res.required_drive_kw, 'kW')}**"
+                + (f" (the job gives {fmt(d.rated_power_kw, 'kW')})" if d.coupled else ""))
+    o = res.option
+    st.markdown(f"Best setting at that rating: {_md(o.setting.describe(with_connection=True))}; "
+                f"peak shaft power {fmt(o.figures.get('max_shaft_power_kw'), 'kW')}, speed down to "
+                f"{fmt(o.figures.get('min_speed_rpm'), 'rpm')}.")
+    for n in res.notes:
+        st.caption(_md(n))
+
+
 def _slug(text):
     s = re.sub(r"[^a-z0-9]+", "-", str(text).lower()).strip("-")
     return s[:40] or "machine"

@@ -224,6 +224,19 @@ def solve(machine_toml, profile_toml):
         return None, f"internal error, please report it: {type(e).__name__}: {e}"
 
 
+@st.cache_data(max_entries=16, show_spinner="Trying drive ratings...")
+def size(machine_toml, profile_toml):
+    """``(SizeResult, None)`` or ``(None, message)``: the smallest drive rating for the job."""
+    from ..sizing import required_drive_rating
+    try:
+        return required_drive_rating(load_machine("machine.toml", machine_toml),
+                                     load_profile("profile.toml", profile_toml)), None
+    except InputError as e:
+        return None, str(e)
+    except Exception as e:
+        return None, f"internal error sizing the drive, please report it: {type(e).__name__}: {e}"
+
+
 @st.cache_data(max_entries=64, show_spinner="Running the charge...")
 def charge(machine_toml, profile_toml, rank):
     """The charge run of option ``rank``: ``(ChargeRun or None, message or None)``."""

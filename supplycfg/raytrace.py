@@ -1,0 +1,133 @@
+"""External characteristics traced along rays from the origin of the (load current, voltage) plane.
+
+When the drive's speed follows the load, a self-excited machine's circuit no
+longer separates into ``N(x) = L(Ia)`` (the speed depends on both), so its
+external characteristic is traced another way. The curve is the outer
+boundary of the region where the circuit residual ``h(V, IL)`` is positive:
+at the origin the residual magnetism makes ``h > 0``, and far out the drops
+make it negative. Along a ray from the origin at angle ``theta`` (in
+per-unit voltage and current) the characteristic is the outermost fall of
+``h`` through zero; as ``theta`` runs from 90 degrees (no load) to 0 (short
+circuit) the point runs along the whole curve, through the turn-back, as
+long as every ray meets it once (the curve is star-shaped from the origin,
+as shunt and compound characteristics are). A ray that meets it more than
+once is reported. Every ray is bracketed on a grid and refined by bisection,
+all rays and candidates at once; a second pass places the samples evenly
+along the curve.
+"""
+
+import numpy as np
+
+#: Rays of the first pass (at least; twice the samples asked for when more).
+FIRST_RAYS = 161
+#: Grid points along each ray before refining the crossing.
+RAY_GRID = 257
+#: Refinement steps of a crossing.
+RAY_STEPS = 60
+
+
+def _crossings(state_fn, refine, rows, theta, rmax, vs, is_):
+    """Outermost fall of ``h`` through zero along each ray; NaN where none. Also how many falls."""
+    g = np.linspace(0.0, 1.0, RAY_GRID)[None, :]
+    r = rmax[:, None] * g
+    c, s = np.cos(theta)[:, None], np.sin(theta)[:, None]
+    h = state_fn(rows[:, None], r * s * vs[:, None], r * c * is_[:, None])["h"]
+    fall = (h[:, :-1] > 0) & (h[:, 1:] <= 0)
+    count = fall.sum(axis=1)
+    has = count > 0
+    j = RAY_GRID - 2 - np.argmax(fall[:, ::-1], axis=1)
+    k = np.arange(rows.size)
+    a, b = r[k, j], r[k, j + 1]
+    c1, s1 = c[:, 0], s[:, 0]
+
+    def hr(rr):
+        return state_fn(rows, rr * s1 * vs, rr * c1 * is_)["h"]
+
+    root = np.where(has, refine(hr, a, b, h[k, j], RAY_STEPS), np.nan)
+    at_edge = has & (j >= RAY_GRID - 3)
+    return root, count, at_edge
+
+
+def trace_on_rays(state_fn, refine, cand, vtop, imax, v_scale, i_scale, points):
+    """Sample the characteristics of candidates ``cand`` from no load to short circuit.
+
+    Parameters
+    ----------
+    state_fn : callable
+        ``state_fn(rows, v, il)`` -> dict with the circuit residual ``h`` [V]
+        and the curve-point keys, broadcasting over arrays of rows.
+    refine : callable
+        ``refine(f, a, b, f(a), steps)``: a vectorised bracketing root refiner.
+    cand : array of int
+        Candidate rows.
+    vtop : array
+        Highest terminal voltage worth searching per candidate [V].
+    imax : float
+        Largest load current searched [A].
+    v_scale, i_scale : float
+        Per-unit bases of voltage and current (rated values).
+    points : int
+        Samples per curve.
+
+    Returns
+    -------
+    (states, notes)
+        ``states[i]`` a dict of arrays along the curve (None where no curve
+        was found) and ``notes[i]`` a string.
+    """
+    cand = np.asarray(cand, int)
+    nc = cand.size
+    vt_of = np.zeros(int(cand.max()) + 1 if nc else 0)
+    vt_of[cand] = np.asarray(vtop, float)
+
+    def rays(theta_rows, rows):
+        """Length of each ray inside the searched box (per unit)."""
+        s, c = np.sin(theta_rows), np.cos(theta_rows)
+        rv = np.where(s > 1e-12, vt_of[rows] / (v_scale * np.maximum(s, 1e-12)), np.inf)
+        ri = np.where(c > 1e-12, imax / (i_scale * np.maximum(c, 1e-12)), np.inf)
+        return np.minimum(rv, ri)
+
+    k1 = max(FIRST_RAYS, 2 * points)
+    th = np.linspace(0.5 * np.pi, 0.0, k1)
+    rows = np.repeat(cand, k1)
+    theta = np.tile(th, nc)
+    vs = np.full(rows.size, v_scale); is_ = np.full(rows.size, i_scale)
+    root, count, edge = _crossings(state_fn, refine, rows, theta, rays(theta, rows), vs, is_)
+    root = root.reshape(nc, k1); count = count.reshape(nc, k1); edge = edge.reshape(nc, k1)
+    states, notes = {}, {}
+    sel_rows, sel_theta, owner = [], [], []
+    for r, i in enumerate(cand):
+        ok = np.isfinite(root[r])
+        note = []
+        if not ok[0]:
+            states[i], notes[i] = None, "no built-up no-load point on the searched span"
+            continue
+        # the curve from no load along consecutive rays that meet it
+        last = int(np.argmin(ok)) - 1 if not ok.all() else k1 - 1
+        if np.any(count[r, :last + 1] > 1):
+            note.append("a ray from the origin meets this curve more than once: its outer boundary is shown")
+        if edge[r, last] or last < k1 - 1:
+            note.append("the curve reaches the searched current span")
+        rr, tt = root[r, :last + 1], th[:last + 1]
+        il = rr * np.cos(tt); v = rr * np.sin(tt)
+        arc = np.concatenate([[0.0], np.cumsum(np.hypot(np.diff(il), np.diff(v)))])
+        if arc[-1] <= 0:
+            t_new = np.full(points, tt[0])
+        else:
+            t_new = np.interp(np.linspace(0.0, arc[-1], points), arc, tt)
+        sel_rows.append(np.full(points, i)); sel_theta.append(t_new); owner.append(i)
+        notes[i] = "; ".join(note)
+    if sel_rows:
+        rows2 = np.concatenate(sel_rows); th2 = np.concatenate(sel_theta)
+        vs2 = np.full(rows2.size, v_scale); is2 = np.full(rows2.size, i_scale)
+        root2, _, _ = _crossings(state_fn, refine, rows2, th2, rays(th2, rows2), vs2, is2)
+        # a ray of the second pass can only miss where the first found the curve at its edge
+        v = root2 * np.sin(th2) * v_scale
+        il = root2 * np.cos(th2) * i_scale
+        for k, i in enumerate(owner):
+            sl = slice(k * points, (k + 1) * points)
+            good = np.isfinite(v[sl])
+            st = state_fn(rows2[sl][good], v[sl][good], il[sl][good])
+            states[i] = st
+    return states, notes
+

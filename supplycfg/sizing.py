@@ -1,0 +1,155 @@
+"""The drive rating a job needs: the smallest with which some setting meets it.
+
+The profile's drive keeps its kind and every other figure (speeds, droop or
+slip, breakdown torque, belt ratio); only its rated power changes. With an
+engine or a motor the rating matters twice: the ``drive_power`` limit, and the
+speed, which droops further under the same load on a smaller drive. Whether
+some setting meets the job is found by the full search at each trial rating;
+the ratings are bracketed and then halved geometrically until the feasible
+and the infeasible rating lie within 1 % of each other. With a fixed-speed
+drive the speed does not depend on the rating, so the answer is the peak
+shaft power of the feasible setting that needs the least.
+"""
+
+import math
+from dataclasses import dataclass, field, replace
+
+from . import STANDING_NOTICE, __version__
+from .drive import MAX_RATED_POWER_KW
+from .search import search
+
+#: The rating is found to this share (issue rule: to 1 %).
+RATING_TOLERANCE = 0.01
+#: Growth of the trial rating while no setting meets the job, and the most trials that way.
+GROW_FACTOR = 4.0
+GROW_STEPS = 8
+#: Shrink of the trial rating while every trial still meets the job.
+SHRINK_FACTOR = 0.7
+
+
+@dataclass
+class SizeResult:
+    """The smallest drive rating for a job, with the best setting at that rating."""
+
+    machine: object
+    profile: object
+    required_drive_kw: float | None
+    option: object
+    drive: object
+    infeasible_below_kw: float | None
+    searches: int
+    notes: list = field(default_factory=list)
+
+    def as_dict(self):
+        return {"tool": f"supplycfg {__version__}", "machine": self.machine.label, "profile": self.profile.label,
+                "kind": self.profile.kind, "drive_kind": self.profile.drive.kind,
+                "required_drive_kw": self.required_drive_kw,
+                "infeasible_below_kw": self.infeasible_below_kw,
+                "drive": None if self.drive is None else self.drive.as_table(),
+                "option": None if self.option is None else self.option.as_dict(),
+                "searches": self.searches, "notes": list(self.notes), "notice": STANDING_NOTICE}
+
+
+def _peak(option):
+    v = option.figures.get("max_shaft_power_kw")
+    return math.inf if v is None else v
+
+
+def required_drive_rating(machine, profile, tolerance=RATING_TOLERANCE):
+    """Smallest drive rating [kW] with which some setting meets the job.
+
+    Parameters
+    ----------
+    machine : Machine
+    profile : LoadProfile
+    tolerance : float, optional
+        Relative width of the final bracket (0.01: to 1 %).
+
+    Returns
+    -------
+    SizeResult
+        ``required_drive_kw`` is the feasible end of the final bracket
+        (None when no rating makes the job feasible: the machine itself
+        cannot do it); ``infeasible_below_kw`` the infeasible end, within
+        ``tolerance`` below it; ``option`` the best setting at the rating.
+    """
+    drive = profile.drive
+    count = 0
+
+    def trial(kw):
+        nonlocal count
+        count += 1
+        return search(machine, replace(profile, drive=drive.with_rating(kw)), with_drive_check=False)
+
+    if not drive.coupled:
+        count += 1
+        res = search(machine, profile, with_drive_check=False)
+        if not res.feasible:
+            return SizeResult(machine, profile, None, None, None, None, count,
+                              ["no setting meets the job at this fixed speed, whatever the drive's rating"])
+        best = min(res.feasible, key=_peak)
+        need = _peak(best)
+        return SizeResult(machine, profile, need, best, drive, None, count,
+                          ["a fixed-speed drive: the rating is the peak shaft power of the feasible setting "
+                           "that needs the least, anywhere in the envelope"])
+    hi = drive.rated_power_kw
+    res = trial(hi)
+    steps = 0
+    while not res.feasible:
+        if steps >= GROW_STEPS or hi >= MAX_RATED_POWER_KW:
+            return SizeResult(machine, profile, None, None, None, None, count,
+                              [f"no rating up to {hi:g} kW makes the job feasible: the machine itself cannot do it "
+                               "(see the limits each setting breaks in `supplycfg search`)"])
+        hi = min(hi * GROW_FACTOR, MAX_RATED_POWER_KW)
+        res = trial(hi)
+        steps += 1
+    best_res = res
+    lo = None
+    while lo is None:
+        est = min(_peak(o) for o in best_res.feasible)
+        cand = min(SHRINK_FACTOR * hi, est)
+        r = trial(cand)
+        if r.feasible:
+            hi, best_res = cand, r
+        else:
+            lo = cand
+    while hi / lo > 1.0 + tolerance:
+        mid = math.sqrt(hi * lo)
+        r = trial(mid)
+        if r.feasible:
+            hi, best_res = mid, r
+        else:
+            lo = mid
+    best = best_res.feasible[0]
+    notes = [f"the {drive.kind}'s other figures are the profile's; only its rating changed",
+             f"at {lo:.4g} kW no setting meets the job"]
+    return SizeResult(machine, profile, hi, best, drive.with_rating(hi), lo, count, notes)
+
+
+def size_text(res):
+    """What the ``size`` command prints."""
+    p = res.profile
+    from .text import visible
+    lines = [f"{visible(res.machine.label)} for {visible(p.label)} ({p.kind}), drive: {p.drive.describe()}"]
+    if res.required_drive_kw is None:
+        lines.append("No drive rating makes this job feasible.")
+    elif p.drive.coupled:
+        lines.append(f"Smallest {p.drive.kind} rating that meets the job: {res.required_drive_kw:.4g} kW "
+                     f"(to {100 * RATING_TOLERANCE:g} %; the profile gives {p.drive.rated_power_kw:g} kW)")
+    else:
+        lines.append(f"Drive rating the job needs: {res.required_drive_kw:.4g} kW at the shaft")
+    o = res.option
+    if o is not None:
+        f = o.figures
+        lines.append(f"Best setting at that rating: {o.setting.describe(with_connection=True)}")
+        from .report import figure_label
+        for k in ("max_shaft_power_kw", "max_drive_loading_percent", "min_speed_rpm", "max_speed_rpm",
+                  "min_efficiency_percent"):
+            v = f.get(k)
+            if v is not None:
+                words, unit = figure_label(k)
+                lines.append(f"  {words}: {v:.4g} {unit}".rstrip())
+    for n in res.notes:
+        lines.append(f"note: {n}")
+    lines.append(f"{res.searches} searches")
+    return "\n".join(lines)
