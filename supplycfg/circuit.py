@@ -355,7 +355,7 @@ def brush_drop(armature_current_a, full_drop_v, ramp_current_a, with_slope=False
     About 2 V for a pair of carbon brushes (Theraja Vol II Ex 26.4-26.5; common practice).
     """
     ia = np.asarray(armature_current_a, float)
-    u = np.clip(ia / ramp_current_a, -1.0, 1.0)
+    u = np.maximum(np.minimum(ia / ramp_current_a, 1.0), -1.0)
     v = full_drop_v * u
     if with_slope:
         return v, np.where(np.abs(ia) < ramp_current_a, full_drop_v / ramp_current_a, 0.0)
@@ -371,6 +371,18 @@ def currents_from_voltage(p, v, il):
     ibr = ia * (branch == 1) + il * (branch == 2)
     field = np.where(kind == 0, p["x0"], ish)
     return field, ia, ibr
+
+
+def circuit_residual(circ, p, v, il):
+    """The circuit residual ``h`` [V] of :func:`machine_state` alone (what a root search needs).
+
+    The same arithmetic as :func:`machine_state`, so the two agree bit for bit.
+    """
+    field, ia, ibr = currents_from_voltage(p, v, il)
+    x = field_after_armature_reaction(field + p["c"] * ibr, circ.ar.mmf(ia) / circ.nsh)
+    occ = circ.occ.emf(x)
+    s = p["s"] if circ.drive is None else circ.drive.speed_ratio(p, occ * ia, 0.0, v * il)[0]
+    return s * occ - ia * p["ra"] - ibr * p["rbr"] - brush_drop(ia, circ.vb, circ.ir) - v
 
 
 def machine_state(circ, p, v, il):
@@ -655,7 +667,7 @@ def solve_operating_points(circ, loads, idx=None, grid=LOAD_LINE_GRID, window=No
 
     def resid(tt):
         v, il = point(tt)
-        return machine_state(circ, p, v, il)["h"]
+        return circuit_residual(circ, p, v, il)
 
     h = resid(t)
     # a machine still above the load at the top of the span: widen the span (full searches only)
@@ -692,7 +704,7 @@ def solve_operating_points(circ, loads, idx=None, grid=LOAD_LINE_GRID, window=No
 
         def res_rows(tt):
             v, il = pt_rows(tt)
-            return machine_state(circ, pr, v, il)["h"]
+            return circuit_residual(circ, pr, v, il)
         return pr, pt_rows, res_rows
 
     # two intersections closer than a grid step: the residual turns towards zero between
@@ -1738,7 +1750,7 @@ def normal_points(circ, lo, hi, v_of=None, il_of=None, grid=97, steps=44, vi_of=
 
     t = lo[:, None] + (hi - lo)[:, None] * lin
     v, il = vi(t)
-    h = machine_state(circ, p, v, il)["h"]
+    h = circuit_residual(circ, p, v, il)
     # along the voltage: a machine still above the load at the top is looked for further out
     for _ in range(SPAN_DOUBLINGS if il_of is not None else 0):
         up = h[:, -1] > 0
@@ -1747,7 +1759,7 @@ def normal_points(circ, lo, hi, v_of=None, il_of=None, grid=97, steps=44, vi_of=
         hi = np.where(up, lo + 2.0 * (hi - lo), hi)
         t = lo[:, None] + (hi - lo)[:, None] * lin
         v, il = vi(t)
-        h = machine_state(circ, p, v, il)["h"]
+        h = circuit_residual(circ, p, v, il)
     beyond = h[:, -1] > 0
     stable = (h[:, :-1] > 0) & (h[:, 1:] <= 0)
     found = stable.any(axis=1) & ~beyond
@@ -1766,7 +1778,7 @@ def normal_points(circ, lo, hi, v_of=None, il_of=None, grid=97, steps=44, vi_of=
 
     def res(tt):
         vv, ii = v_i1(tt)
-        return machine_state(circ, p1, vv, ii)["h"]
+        return circuit_residual(circ, p1, vv, ii)
 
     # rows without a stable point get an empty bracket, so they do not hold up the refinement
     root = refine_bracketed_roots(res, np.where(found, a, b), b, h[rows, j], steps)

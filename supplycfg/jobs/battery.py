@@ -45,7 +45,8 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 
 from ..cautions import caution
-from ..circuit import Setting, USES_SERIES, build_circuit, check_setting, machine_state, no_load_voltages, normal_points
+from ..circuit import (Setting, USES_SERIES, build_circuit, check_setting, circuit_residual, machine_state,
+                       no_load_voltages, normal_points)
 from ..envelope import (Space, control_kind, control_range, critical_resistance_ratios, envelope_corners,
                         expand_candidates, worst_over_corners)
 from ..errors import InputError
@@ -981,7 +982,7 @@ def control_for_point(space, base_idx, corner_idx, terminal_voltage_v, load_curr
 
     def h(u):
         sub, _ = expand_candidates(space, base_idx, u, corner_idx)
-        return machine_state(sub, sub.take(np.arange(sub.n)), v, i)["h"]
+        return circuit_residual(sub, sub.take(np.arange(sub.n)), v, i)
 
     if n == 0:
         return np.zeros(0), np.zeros(0, bool)
@@ -1233,7 +1234,7 @@ def _handover(space, rows_base, rows_corner, rows_u, job):
         def h(soc_):
             p = cell_at_voltage(chem, soc_, vho, job.temperature_c, job.open_circuit_voltage_per_cell_v, rbah)
             i = job.capacity_ah * p.rate_per_h
-            return machine_state(sub, params, job.cells * vho + i * job.cable_resistance_ohm, i)["h"]
+            return circuit_residual(sub, params, job.cells * vho + i * job.cable_resistance_ohm, i)
 
         k = first[idx]
         a, b = scan.soc[idx, k - 1], scan.soc[idx, k]
@@ -1406,7 +1407,7 @@ def standstill_backfeed_current_a(space, base_idx, u, corner_idx):
     rext = job.internal_resistance_ohm + job.cable_resistance_ohm
 
     def h(il):
-        return machine_state(sub, p, vb + il * rext, il)["h"]
+        return circuit_residual(sub, p, vb + il * rext, il)
 
     a, b = np.full(sub.n, -vb / rext), np.zeros(sub.n)
     fa = h(a)
