@@ -1295,44 +1295,74 @@ def characteristics_of(circ, points=400):
             v_s, il_s = _state_from_x_ia(circ, pc, x, ia_s, sg)
     # --- assemble ---------------------------------------------------------
     states, notes = [None] * n, [""] * n
-    for i in range(n):
-        if circ.kind[i] != 1:
-            r = int(np.flatnonzero(curves_exp[0] == i)[0])
-            ia_i = curves_exp[1][r]
-            pi = candidate_params(circ, np.full(ia_i.size, i))
-            states[i] = _explicit_state(circ, pi, ia_i)
+    if exp.size:
+        # every explicit curve in one call (rows of Ia, one per candidate)
+        ia_e = curves_exp[1]
+        st_e = _explicit_state(circ, candidate_params(circ, np.broadcast_to(exp[:, None], ia_e.shape)), ia_e)
+        for r, i in enumerate(exp):
+            states[i] = {k: (val[r] if np.ndim(val) == 2 else val) for k, val in st_e.items()}
             notes[i] = "" if curves_exp[2][r] else "terminal voltage stays above zero up to the searched span"
-        else:
-            msk = cand == i if slf.size and pick_cand else np.zeros(0, bool)
+    if slf.size and pick_cand:
+        # the samples of every traced curve in one call, split by candidate (they are grouped by candidate)
+        order = np.argsort(cand, kind="stable")
+        cs = cand[order]
+        st_s = machine_state(circ, candidate_params(circ, cs), v_s[order], il_s[order])
+        first = np.searchsorted(cs, np.arange(n), side="left")
+        last = np.searchsorted(cs, np.arange(n), side="right")
+    for i in range(n):
+        if circ.kind[i] == 1:
             notes[i] = seg_note.get(i, "")
             if i in ray_states:
                 states[i] = ray_states[i]
-            elif np.any(msk):
-                vi, ili = v_s[msk], il_s[msk]
+            elif slf.size and pick_cand and last[i] > first[i]:
+                sl_i = slice(first[i], last[i])
+                vi = st_s["terminal_voltage_v"][sl_i]
                 # the curve ends at zero volts (made exact by _finish): nothing past it
                 below = np.flatnonzero(vi < 0)
                 if below.size:
-                    vi, ili = vi[:below[0] + 1], ili[:below[0] + 1]
-                pi = candidate_params(circ, np.full(vi.size, i))
-                states[i] = machine_state(circ, pi, vi, ili)
-    ops = _refine_batch(circ, states)
+                    sl_i = slice(first[i], first[i] + below[0] + 1)
+                states[i] = {k: (val[sl_i] if np.ndim(val) else val) for k, val in st_s.items()}
+    wants_sc = [states[i] is not None and short_circuit_wanted(circ, i, states[i], notes[i], i in at_zero)
+                for i in range(n)]
+    ops = _refine_batch(circ, states, wants_sc)
     folds = _refine_folds(circ, states)
-    result = []
+    result = [None] * n
+    done = []
     for i in range(n):
         st = circ.settings[i]
         if states[i] is None:
-            result.append(Characteristic(st, {k: np.zeros(0) for k in POINT_KEYS + ("extrapolated",)},
-                                         None, None, None, None, False, False, notes[i], [notes[i]] if notes[i] else []))
+            result[i] = Characteristic(st, {k: np.zeros(0) for k in POINT_KEYS + ("extrapolated",)},
+                                       None, None, None, None, False, False, notes[i], [notes[i]] if notes[i] else [])
             continue
-        ch = _finish(circ, i, st, states[i], notes[i], ops[i], folds.get(i), i in at_zero)
-        v = ch.points["terminal_voltage_v"]
-        ch.power = drive_point_keys(circ, candidate_params(circ, np.full(v.size, i)), v, ch.points["load_current_a"])
-        if circ.drive is not None and v.size and ch.converged:
-            st_i = machine_state(circ, candidate_params(circ, np.full(v.size, i)), v, ch.points["load_current_a"])
-            if not np.all(drive_settled(st_i)):
+        result[i] = _finish(circ, i, st, states[i], notes[i], ops[i], folds.get(i), i in at_zero)
+        done.append(i)
+    if done:
+        # the power flow along every curve in one call, split back by candidate
+        sizes = [result[i].points["terminal_voltage_v"].size for i in done]
+        rows = np.repeat(np.array(done), sizes)
+        v = np.concatenate([result[i].points["terminal_voltage_v"] for i in done])
+        il = np.concatenate([result[i].points["load_current_a"] for i in done])
+        pr = candidate_params(circ, rows)
+        power = drive_point_keys(circ, pr, v, il)
+        settled = np.ones(v.size, bool)
+        if circ.drive is not None:
+            settled = np.asarray(drive_settled(machine_state(circ, pr, v, il)), bool)
+        ends = np.cumsum([0] + sizes)
+        for i, a, b in zip(done, ends[:-1], ends[1:]):
+            ch = result[i]
+            ch.power = {k: ({kk: vv[a:b] for kk, vv in val.items()} if isinstance(val, dict) else val[a:b])
+                        for k, val in power.items()}
+            if circ.drive is not None and b > a and ch.converged and not np.all(settled[a:b]):
                 ch.converged, ch.message = False, "the drive's speed did not settle at a point"
-        result.append(ch)
     return result
+
+
+def short_circuit_wanted(circ, i, state, note, at_zero):
+    """Whether a curve's end is its short-circuit point (it reaches zero volts), so the exact
+    short-circuit current is looked for; a curve still above zero at the end of the span has none."""
+    v = state["terminal_voltage_v"]
+    ended_at_zero = v.size > 1 and (at_zero or v[-1] <= 1e-6 * max(1.0, abs(v[0])))
+    return bool(v.size > 1 and (np.any(v <= 0) or ended_at_zero or (circ.kind[i] != 1 and "stays above" not in note)))
 
 
 def _fold_kinks(circ, i, st, j, grid=257):
@@ -1462,11 +1492,13 @@ def _refine_folds(circ, states, iterations=2):
     return fine
 
 
-def _refine_batch(circ, states):
+def _refine_batch(circ, states, wants_sc=None):
     """Exact no-load, short-circuit and full-load points near each curve's samples.
 
     Full load: the rated current in the armature (the load current is less
-    by the shunt-field current of a self-excited connection).
+    by the shunt-field current of a self-excited connection). The short
+    circuit is looked for only where ``wants_sc[i]`` (the curve reaches zero
+    volts: :func:`short_circuit_wanted`); elsewhere its entry stays empty.
     """
     m = circ.machine
     rated = m.rated_armature_current_a
@@ -1477,13 +1509,19 @@ def _refine_batch(circ, states):
             continue
         v, il = st["terminal_voltage_v"], st["load_current_a"]
         guesses = [(Load.constant_current(0.0), (v[0] / vtop[i] + 1) / 2, 0.015)]
-        guesses.append((Load(0.0, 0.0, None, "short circuit"), (il[-1] / circ.imax + 1) / 2, 0.02))
+        if wants_sc is None or wants_sc[i]:
+            guesses.append((Load(0.0, 0.0, None, "short circuit"), (il[-1] / circ.imax + 1) / 2, 0.02))
+        else:
+            guesses.append(None)
         cross = np.flatnonzero(st["armature_current_a"] >= rated)
         if cross.size:
             guesses.append((Load.armature_current(rated), (v[cross[0]] / vtop[i] + 1) / 2, 0.015))
         else:
             guesses.append((Load.armature_current(rated), None, None))
-        for k, (ld, g, half) in enumerate(guesses):
+        for k, guess in enumerate(guesses):
+            if guess is None:
+                continue
+            ld, g, half = guess
             idx.append(i); loads.append(ld); who.append((i, k))
             if g is None:
                 w0.append(0.0); w1.append(1.0)
@@ -1539,9 +1577,8 @@ def _finish(circ, i, st, state, note, ops, fold=None, at_zero=False):
         for k in POINT_KEYS:
             pts[k][0] = nl[k]
         pts["extrapolated"][0] = nl["extrapolated"]
-    ended_at_zero = v.size > 1 and (at_zero or v[-1] <= 1e-6 * max(1.0, abs(v[0])))
     sc = None
-    if v.size > 1 and (np.any(v <= 0) or ended_at_zero or (circ.kind[i] != 1 and "stays above" not in note)):
+    if short_circuit_wanted(circ, i, state, note, at_zero):
         cand = _nearest(ops[1].points, 0.0, il[-1])
         if cand is not None:
             sc = cand["load_current_a"]
