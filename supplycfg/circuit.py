@@ -922,6 +922,42 @@ def _runs(vals):
     return d[idx]
 
 
+def slope_runs_rows(vals):
+    """:func:`_runs` of every row of a 2-D array at once (the same signs row by row)."""
+    d = np.sign(np.diff(vals, axis=1))
+    nzm = d != 0
+    ar = np.arange(d.shape[1])
+    idx = np.maximum.accumulate(np.where(nzm, ar, -1), axis=1)
+    first = np.argmax(nzm, axis=1)
+    idx = np.where(idx < 0, first[:, None], idx)
+    out = np.take_along_axis(d, idx, axis=1)
+    out[~nzm.any(axis=1)] = 1.0
+    return out
+
+
+def run_bounds_rows(sign):
+    """First and last cell of the run of equal sign holding each cell, for every row of ``sign``."""
+    m, k = sign.shape
+    ar = np.broadcast_to(np.arange(k), (m, k))
+    start = np.ones((m, k), bool)
+    start[:, 1:] = sign[:, 1:] != sign[:, :-1]
+    lo = np.maximum.accumulate(np.where(start, ar, 0), axis=1)
+    end = np.ones((m, k), bool)
+    end[:, :-1] = start[:, 1:]
+    hi = np.minimum.accumulate(np.where(end, ar, k - 1)[:, ::-1], axis=1)[:, ::-1]
+    return lo, hi
+
+
+class _RowRuns:
+    """A run table read from :func:`run_bounds_rows` for one row (the interface of :class:`_RunTable`)."""
+
+    def __init__(self, lo, hi):
+        self.lo, self.hi = lo, hi
+
+    def __call__(self, cell):
+        return int(self.lo[cell]), int(self.hi[cell])
+
+
 class _RunTable:
     """Runs of equal slope sign along a grid: run id of each cell, first and last cell of each run."""
 
@@ -1018,16 +1054,21 @@ def _start_cell(grid, vals, at, direction):
     return int(np.clip(k, 0, grid.size - 2))
 
 
-def _walk(circ, i, xg, ig, ng, lg, sign, lam, n_cell, l_cell, dl, stop_at=None, samples=48):
+def _walk(circ, i, xg, ig, ng, lg, sign, lam, n_cell, l_cell, dl, stop_at=None, samples=48, runs=None):
     """Walk ``N(u) = L(Ia)`` of one side from ``lam`` in cells ``n_cell``, ``l_cell``, Ia moving ``dl``.
 
     ``stop_at = (ia, u, lam)``: a point of the curve where the walk must end
     (the windings' field passes zero there). Returns the segments
     ``(lam_a, lam_b, n_lo, n_hi, l_lo, l_hi, sign)``, a note, and the Ia
-    direction when the walk reached ``stop_at`` (else None).
+    direction when the walk reached ``stop_at`` (else None). ``runs = (sn, sl,
+    run_n, run_l)``: slope signs and run tables of ``ng``, ``lg`` already
+    computed for many rows at once.
     """
-    sn, sl = _runs(ng), _runs(lg)
-    run_n, run_l = _RunTable(sn), _RunTable(sl)
+    if runs is None:
+        sn, sl = _runs(ng), _runs(lg)
+        run_n, run_l = _RunTable(sn), _RunTable(sl)
+    else:
+        sn, sl, run_n, run_l = runs
     n_lo, n_hi = run_n(n_cell)
     l_lo, l_hi = run_l(l_cell)
     dlam = int(sl[l_lo]) * dl
@@ -1089,7 +1130,9 @@ def _trace_self_excited(circ, i, xg, ig, fns, reversal=(np.nan, np.nan), samples
     list of segments ``(lam_a, lam_b, n_lo, n_hi, l_lo, l_hi, sign)`` and a
     note when the walk ended early.
     """
-    ng, lg = fns[1]
+    ng, lg = fns[1][:2]
+    runs_p = fns[1][2] if len(fns[1]) > 2 else None
+    runs_m = fns[-1][2] if len(fns[-1]) > 2 else None
     if ng[-1] > 0:
         return [], CURVE_RUNAWAY_NOTE
     # stable no-load root: highest x where N crosses zero downward
@@ -1105,16 +1148,17 @@ def _trace_self_excited(circ, i, xg, ig, fns, reversal=(np.nan, np.nan), samples
     if np.isfinite(ia_r):
         p1 = candidate_params(circ, np.array([i]))
         stop_at = (float(ia_r), -float(far_r), float(_l_fun(circ, p1, np.array([ia_r]), 1.0)[0]))
-    segs, note, dl = _walk(circ, i, xg, ig, ng, lg, 1.0, float(lg[0]), int(cells[-1]), 0, 1, stop_at, samples)
+    segs, note, dl = _walk(circ, i, xg, ig, ng, lg, 1.0, float(lg[0]), int(cells[-1]), 0, 1, stop_at, samples,
+                           runs_p)
     if dl is None:
         return segs, note
     # the field has passed zero: on along the negative side from the same point. Through the zone
     # where armature reaction holds the net field at zero, x_w = (s E_r - B(Ia)) / g falls only as Ia
     # rises, so Ia goes on rising; with no such zone (no reaction) the curve turns a corner there and
     # goes on into negative field, u = x_w + F_ar/N_sh falling, Ia whichever way that needs.
-    ngm, lgm = fns[-1]
+    ngm, lgm = fns[-1][:2]
     lam = float(_l_fun(circ, p1, np.array([ia_r]), -1.0)[0])
-    sn, sl = _runs(ngm), _runs(lgm)
+    sn, sl = (_runs(ngm), _runs(lgm)) if runs_m is None else runs_m[:2]
     if p1["rf"][0] * far_r > 1e-12 * max(1.0, abs(lam)):
         dl = 1
         l_cell = _start_cell(ig, lgm, ia_r, dl)
@@ -1127,7 +1171,7 @@ def _trace_self_excited(circ, i, xg, ig, fns, reversal=(np.nan, np.nan), samples
         dlam = -int(sn[n_cell])
         dl = dlam * int(sl[_start_cell(ig, lgm, ia_r, 1)]) or 1
         l_cell = _start_cell(ig, lgm, ia_r, dl)
-    more, note, _ = _walk(circ, i, xg, ig, ngm, lgm, -1.0, lam, n_cell, l_cell, dl, None, samples)
+    more, note, _ = _walk(circ, i, xg, ig, ngm, lgm, -1.0, lam, n_cell, l_cell, dl, None, samples, runs_m)
     return segs + more, note
 
 
@@ -1228,8 +1272,16 @@ def characteristics_of(circ, points=400):
             ngm[rev] = _n_fun(circ, pr, xg[None, :], -1.0)
             lgm[rev] = _l_fun(circ, pr, ig[None, :], -1.0)
         pick_cand, pick_lam, pick_xa, pick_xb, pick_ia, pick_ib, pick_sign = [], [], [], [], [], [], []
+        # slope signs and their runs for every row at once (the walks read them cell by cell)
+        tables = {}
+        for sgn_, ng_, lg_ in ((1.0, ngp, lgp), (-1.0, ngm, lgm)):
+            sn_, sl_ = slope_runs_rows(ng_), slope_runs_rows(lg_)
+            tables[sgn_] = (sn_, sl_, run_bounds_rows(sn_), run_bounds_rows(sl_))
         for r, i in enumerate(slf):
-            fns = {1.0: (ngp[r], lgp[r]), -1.0: (ngm[r], lgm[r])}
+            fns = {}
+            for sgn_, (ng_, lg_) in ((1.0, (ngp[r], lgp[r])), (-1.0, (ngm[r], lgm[r]))):
+                sn_, sl_, (nlo, nhi), (llo, lhi) = tables[sgn_]
+                fns[sgn_] = (ng_, lg_, (sn_[r], sl_[r], _RowRuns(nlo[r], nhi[r]), _RowRuns(llo[r], lhi[r])))
             segs, note = _trace_self_excited(circ, i, xg, ig, fns, (ia_rev[r], far_rev[r]))
             if not segs:
                 seg_note[i] = note
@@ -1272,7 +1324,7 @@ def characteristics_of(circ, points=400):
             sid_t = sid_s[j]
             for sid in np.unique(sid_t):
                 seg = segs[sid]
-                ng_s, lg_s = fns[seg[6]]
+                ng_s, lg_s = fns[seg[6]][:2]
                 msk = sid_t == sid
                 xa_, xb_ = _cells(xg, ng_s, seg[2], seg[3], lam_t[msk])
                 ia_, ib_ = _cells(ig, lg_s, seg[4], seg[5], lam_t[msk])
