@@ -948,13 +948,18 @@ def _weaker(u_a, u_b, sign):
 
 def _weakest_per_base(u_rows, rows_base, nb, sign):
     """The weakest control value of each base over its rows (NaN where a base has none)."""
-    out = np.full(nb, np.nan)
-    for b in range(nb):
-        vals = u_rows[rows_base == b]
-        vals = vals[np.isfinite(vals)]
-        if vals.size and sign[b] != 0:
-            out[b] = vals.min() if sign[b] > 0 else vals.max()
-    return out
+    u_rows = np.asarray(u_rows, float)
+    rows_base = np.asarray(rows_base, int)
+    sign = np.broadcast_to(np.asarray(sign), (nb,))
+    keep = np.isfinite(u_rows) & (rows_base >= 0) & (rows_base < nb)
+    rb, u = rows_base[keep], u_rows[keep]
+    # one reduction over all rows in place of a mask per base
+    lo = np.full(nb, np.inf)
+    hi = np.full(nb, -np.inf)
+    np.minimum.at(lo, rb, u)
+    np.maximum.at(hi, rb, u)
+    has = np.bincount(rb, minlength=nb) > 0
+    return np.where(has & (sign > 0), lo, np.where(has & (sign < 0), hi, np.nan))
 
 
 def control_for_point(space, base_idx, corner_idx, terminal_voltage_v, load_current_a):
