@@ -443,17 +443,26 @@ class DriveRows:
             speed may also balance).
         """
         s0 = self.s0
-        a, b, c = np.broadcast_arrays(np.asarray(a, float), np.asarray(b, float), np.asarray(c, float))
+        if np.ndim(b) == 0 and b == 0:
+            # no output term linear in the speed (the common call): skip broadcasting a zero array
+            a, c = np.broadcast_arrays(np.asarray(a, float), np.asarray(c, float))
+            b, linear_out = 0.0, False
+        else:
+            a, b, c = np.broadcast_arrays(np.asarray(a, float), np.asarray(b, float), np.asarray(c, float))
+            linear_out = np.any(b != 0)
         s = np.full(a.shape, s0)
         lo, hi = SPEED_FLOOR_SHARE * s0, SPEED_CEILING_SHARE * s0
         out_c = self.stray * np.abs(c)
-        linear_out = np.any(b != 0)
+        tol = SPEED_TOLERANCE * s0
         for _ in range(SPEED_NEWTON_STEPS):
             f, df = self._residual(s, a, b, c, out_c, linear_out)
-            if np.all(np.abs(f) <= SPEED_TOLERANCE * s0):
+            if np.abs(f).max(initial=0.0) <= tol:
                 break
             ok = df > 0
-            step = np.where(ok, f / np.where(ok, df, 1.0), np.where(f > 0, 0.1, -0.1) * s0)
+            if ok.all():
+                step = f / df  # the usual case: the same step without the guarded division
+            else:
+                step = np.where(ok, f / np.where(ok, df, 1.0), np.where(f > 0, 0.1, -0.1) * s0)
             s = np.minimum(np.maximum(s - step, lo), hi)
         else:
             f, df = self._residual(s, a, b, c, out_c, linear_out)
