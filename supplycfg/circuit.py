@@ -274,23 +274,39 @@ class Circuit:
         idx = np.asarray(idx, int)
         arr = {k: getattr(self, k)[idx].copy() for k in ("kind", "short", "branch", "s", "ra", "rbr", "c",
                                                          "rf", "x0", "nse", "rsh")}
-        if rheostat_ohm is not None:
-            r = np.asarray(rheostat_ohm, float)
-            ok = np.isfinite(r)
-            rf_new = arr["rsh"] + np.where(ok, r, 0.0)
-            arr["rf"] = np.where(ok, rf_new, arr["rf"])
-            if exciter_v is not None:
-                ev = np.asarray(exciter_v, float)
-                sep = ok & (arr["kind"] == 0) & np.isfinite(ev)
-                arr["x0"] = np.where(sep, np.where(np.isfinite(ev), ev, 0.0) / rf_new, arr["x0"])
-        if field_current_a is not None:
-            f = np.asarray(field_current_a, float)
-            ok = np.isfinite(f) & (arr["kind"] == 0)
-            arr["x0"] = np.where(ok, f, arr["x0"])
+        _apply_field_control(arr, rheostat_ohm, field_current_a, exciter_v)
         return Circuit(self.machine, self.occ, self.ar, [self.settings[i] for i in idx], arr["kind"],
                        arr["short"], arr["branch"], arr["s"], arr["ra"], arr["rbr"], arr["c"], arr["rf"],
                        arr["x0"], self.vb, self.ir, self.nsh, self.imax, arr["nse"], arr["rsh"],
                        self.drive)
+
+
+    def params_with_control(self, rheostat_ohm=None, field_current_a=None, exciter_v=None):
+        """Parameters of every row (as :meth:`take`) with the field control changed as
+        :meth:`subset` changes it, without building a new circuit: a search over one
+        control value per row calls this at every step."""
+        arr = {k: getattr(self, k) for k in ("kind", "short", "branch", "s", "ra", "rbr", "c", "rf", "x0", "nse",
+                                             "rsh")}
+        _apply_field_control(arr, rheostat_ohm, field_current_a, exciter_v)
+        del arr["rsh"]
+        return arr
+
+
+def _apply_field_control(arr, rheostat_ohm, field_current_a, exciter_v):
+    """Set ``rf`` and ``x0`` of the row parameters ``arr`` (see :meth:`Circuit.subset`); NaN leaves a row as is."""
+    if rheostat_ohm is not None:
+        r = np.asarray(rheostat_ohm, float)
+        ok = np.isfinite(r)
+        rf_new = arr["rsh"] + np.where(ok, r, 0.0)
+        arr["rf"] = np.where(ok, rf_new, arr["rf"])
+        if exciter_v is not None:
+            ev = np.asarray(exciter_v, float)
+            sep = ok & (arr["kind"] == 0) & np.isfinite(ev)
+            arr["x0"] = np.where(sep, np.where(np.isfinite(ev), ev, 0.0) / rf_new, arr["x0"])
+    if field_current_a is not None:
+        f = np.asarray(field_current_a, float)
+        ok = np.isfinite(f) & (arr["kind"] == 0)
+        arr["x0"] = np.where(ok, f, arr["x0"])
 
 
 def build_circuit(machine, settings, drive=None):
@@ -657,12 +673,15 @@ def solve_operating_points(circ, loads, idx=None, grid=LOAD_LINE_GRID, window=No
     # parameter: terminal voltage in [0, vtop], or load current in [-imax, imax]
     by_current = fixed_voltage
 
+    any_arm = bool(fixed_arm.any())
+
     def point(tt):
         v = np.where(by_current, v0, (2 * tt - 1) * vtop)
         with np.errstate(divide="ignore", invalid="ignore"):
             il = np.where(fixed_current, cur,
                           np.where(by_current, (2 * tt - 1) * circ.imax, (v - v0) / np.where(k > 0, k, 1.0)))
-        il = np.where(fixed_arm, _load_current_at_armature_current(p, v, arm), il)
+        if any_arm:  # only rows at a given armature current need it
+            il = np.where(fixed_arm, _load_current_at_armature_current(p, v, arm), il)
         return v, il
 
     def resid(tt):
@@ -694,12 +713,15 @@ def solve_operating_points(circ, loads, idx=None, grid=LOAD_LINE_GRID, window=No
         vv0, kk_, cc, fc, bc, vt = (v0[sel, 0], k[sel, 0], cur[sel, 0], fixed_current[sel, 0],
                                     by_current[sel, 0], vtop[sel, 0])
         aa, fa_ = arm[sel, 0], fixed_arm[sel, 0]
+        arm_rows = bool(fa_.any())
+        slope_k = np.where(kk_ > 0, kk_, 1.0)
 
         def pt_rows(tt):
             v = np.where(bc, vv0, (2 * tt - 1) * vt)
             with np.errstate(divide="ignore", invalid="ignore"):
-                il = np.where(fc, cc, np.where(bc, (2 * tt - 1) * circ.imax, (v - vv0) / np.where(kk_ > 0, kk_, 1.0)))
-            il = np.where(fa_, _load_current_at_armature_current(pr, v, aa), il)
+                il = np.where(fc, cc, np.where(bc, (2 * tt - 1) * circ.imax, (v - vv0) / slope_k))
+            if arm_rows:
+                il = np.where(fa_, _load_current_at_armature_current(pr, v, aa), il)
             return v, il
 
         def res_rows(tt):

@@ -985,12 +985,19 @@ def control_for_point(space, base_idx, corner_idx, terminal_voltage_v, load_curr
     i = np.broadcast_to(np.asarray(load_current_a, float), (n,))
     fixed = ~np.isfinite(lo)
 
-    def h(u):
-        sub, _ = expand_candidates(space, base_idx, u, corner_idx)
-        return circuit_residual(sub, sub.take(np.arange(sub.n)), v, i)
-
     if n == 0:
         return np.zeros(0), np.zeros(0, bool)
+    # the rows once; each step changes only their field control (as expand_candidates would)
+    sub, _ = expand_candidates(space, base_idx, np.zeros(n), corner_idx)
+    controls = np.array([space.bases[b][3] for b in base_idx])
+    by_rheostat = (controls == "rheostat") | (controls == "exciter")
+    by_current = controls == "field-current"
+    ev = m.excitation_voltage_v
+    ev = np.full(n, np.nan if ev is None else ev)
+
+    def h(u):
+        p = sub.params_with_control(np.where(by_rheostat, u, np.nan), np.where(by_current, u, np.nan), ev)
+        return circuit_residual(sub, p, v, i)
     h_lo, h_hi = h(np.where(fixed, 0.0, lo)), h(np.where(fixed, 0.0, hi))
     ok = (np.signbit(h_lo) != np.signbit(h_hi)) & np.isfinite(h_lo) & np.isfinite(h_hi)
     a, b, fa = lo.copy(), hi.copy(), h_lo.copy()
