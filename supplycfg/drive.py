@@ -451,10 +451,6 @@ class DriveRows:
         else:
             a, b, c = np.broadcast_arrays(np.asarray(a, float), np.asarray(b, float), np.asarray(c, float))
             linear_out = np.any(b != 0)
-        shape = a.shape
-        a, c = a.ravel(), c.ravel()
-        if linear_out:
-            b = b.ravel()
         s = np.full(a.shape, s0)
         lo, hi = SPEED_FLOOR_SHARE * s0, SPEED_CEILING_SHARE * s0
         out_c = self.stray * np.abs(c)
@@ -465,8 +461,10 @@ class DriveRows:
             if not open_.any():
                 break
             # Newton goes on only where the drive equation does not hold yet (a few rows can take
-            # every step, e.g. held at the speed floor): the settled rows keep their speed
-            rows = None if open_.all() else np.flatnonzero(open_)
+            # every step, e.g. held at the speed floor): the settled rows keep their speed. Rows are
+            # gathered only once few remain open (gathers of most rows would cost memory and time).
+            few = np.count_nonzero(open_) * 4 < open_.size
+            rows = np.nonzero(open_) if few else None
             fs, dfs, ss = (f, df, s) if rows is None else (f[rows], df[rows], s[rows])
             ok = dfs > 0
             if ok.all():
@@ -474,14 +472,16 @@ class DriveRows:
             else:
                 step = np.where(ok, fs / np.where(ok, dfs, 1.0), np.where(fs > 0, 0.1, -0.1) * s0)
             ss = np.minimum(np.maximum(ss - step, lo), hi)
+            del fs, dfs, step, ok  # free before the next residual (peak memory at large inputs)
             if rows is None:
-                s = ss
+                s = np.where(open_, ss, s)
+                del ss, open_
                 f, df = self._residual(s, a, b, c, out_c, linear_out)
             else:
                 s[rows] = ss
                 f[rows], df[rows] = self._residual(ss, a[rows], b[rows] if linear_out else b, c[rows],
                                                    out_c[rows], linear_out)
-        return s.reshape(shape), (np.abs(f) <= 1e-12 * s0).reshape(shape), (df > 0).reshape(shape)
+        return s, np.abs(f) <= 1e-12 * s0, df > 0
 
     def _residual(self, s, a, b, c, out_c, linear_out):
         rot, drot = self.rotational_w(s)
