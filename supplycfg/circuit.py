@@ -274,23 +274,39 @@ class Circuit:
         idx = np.asarray(idx, int)
         arr = {k: getattr(self, k)[idx].copy() for k in ("kind", "short", "branch", "s", "ra", "rbr", "c",
                                                          "rf", "x0", "nse", "rsh")}
-        if rheostat_ohm is not None:
-            r = np.asarray(rheostat_ohm, float)
-            ok = np.isfinite(r)
-            rf_new = arr["rsh"] + np.where(ok, r, 0.0)
-            arr["rf"] = np.where(ok, rf_new, arr["rf"])
-            if exciter_v is not None:
-                ev = np.asarray(exciter_v, float)
-                sep = ok & (arr["kind"] == 0) & np.isfinite(ev)
-                arr["x0"] = np.where(sep, np.where(np.isfinite(ev), ev, 0.0) / rf_new, arr["x0"])
-        if field_current_a is not None:
-            f = np.asarray(field_current_a, float)
-            ok = np.isfinite(f) & (arr["kind"] == 0)
-            arr["x0"] = np.where(ok, f, arr["x0"])
+        _apply_field_control(arr, rheostat_ohm, field_current_a, exciter_v)
         return Circuit(self.machine, self.occ, self.ar, [self.settings[i] for i in idx], arr["kind"],
                        arr["short"], arr["branch"], arr["s"], arr["ra"], arr["rbr"], arr["c"], arr["rf"],
                        arr["x0"], self.vb, self.ir, self.nsh, self.imax, arr["nse"], arr["rsh"],
                        self.drive)
+
+
+    def params_with_control(self, rheostat_ohm=None, field_current_a=None, exciter_v=None):
+        """Parameters of every row (as :meth:`take`) with the field control changed as
+        :meth:`subset` changes it, without building a new circuit: a search over one
+        control value per row calls this at every step."""
+        arr = {k: getattr(self, k) for k in ("kind", "short", "branch", "s", "ra", "rbr", "c", "rf", "x0", "nse",
+                                             "rsh")}
+        _apply_field_control(arr, rheostat_ohm, field_current_a, exciter_v)
+        del arr["rsh"]
+        return arr
+
+
+def _apply_field_control(arr, rheostat_ohm, field_current_a, exciter_v):
+    """Set ``rf`` and ``x0`` of the row parameters ``arr`` (see :meth:`Circuit.subset`); NaN leaves a row as is."""
+    if rheostat_ohm is not None:
+        r = np.asarray(rheostat_ohm, float)
+        ok = np.isfinite(r)
+        rf_new = arr["rsh"] + np.where(ok, r, 0.0)
+        arr["rf"] = np.where(ok, rf_new, arr["rf"])
+        if exciter_v is not None:
+            ev = np.asarray(exciter_v, float)
+            sep = ok & (arr["kind"] == 0) & np.isfinite(ev)
+            arr["x0"] = np.where(sep, np.where(np.isfinite(ev), ev, 0.0) / rf_new, arr["x0"])
+    if field_current_a is not None:
+        f = np.asarray(field_current_a, float)
+        ok = np.isfinite(f) & (arr["kind"] == 0)
+        arr["x0"] = np.where(ok, f, arr["x0"])
 
 
 def build_circuit(machine, settings, drive=None):
@@ -355,7 +371,7 @@ def brush_drop(armature_current_a, full_drop_v, ramp_current_a, with_slope=False
     About 2 V for a pair of carbon brushes (Theraja Vol II Ex 26.4-26.5; common practice).
     """
     ia = np.asarray(armature_current_a, float)
-    u = np.clip(ia / ramp_current_a, -1.0, 1.0)
+    u = np.maximum(np.minimum(ia / ramp_current_a, 1.0), -1.0)
     v = full_drop_v * u
     if with_slope:
         return v, np.where(np.abs(ia) < ramp_current_a, full_drop_v / ramp_current_a, 0.0)
@@ -371,6 +387,18 @@ def currents_from_voltage(p, v, il):
     ibr = ia * (branch == 1) + il * (branch == 2)
     field = np.where(kind == 0, p["x0"], ish)
     return field, ia, ibr
+
+
+def circuit_residual(circ, p, v, il):
+    """The circuit residual ``h`` [V] of :func:`machine_state` alone (what a root search needs).
+
+    The same arithmetic as :func:`machine_state`, so the two agree bit for bit.
+    """
+    field, ia, ibr = currents_from_voltage(p, v, il)
+    x = field_after_armature_reaction(field + p["c"] * ibr, circ.ar.mmf(ia) / circ.nsh)
+    occ = circ.occ.emf(x)
+    s = p["s"] if circ.drive is None else circ.drive.speed_ratio(p, occ * ia, 0.0, v * il)[0]
+    return s * occ - ia * p["ra"] - ibr * p["rbr"] - brush_drop(ia, circ.vb, circ.ir) - v
 
 
 def machine_state(circ, p, v, il):
@@ -645,17 +673,20 @@ def solve_operating_points(circ, loads, idx=None, grid=LOAD_LINE_GRID, window=No
     # parameter: terminal voltage in [0, vtop], or load current in [-imax, imax]
     by_current = fixed_voltage
 
+    any_arm = bool(fixed_arm.any())
+
     def point(tt):
         v = np.where(by_current, v0, (2 * tt - 1) * vtop)
         with np.errstate(divide="ignore", invalid="ignore"):
             il = np.where(fixed_current, cur,
                           np.where(by_current, (2 * tt - 1) * circ.imax, (v - v0) / np.where(k > 0, k, 1.0)))
-        il = np.where(fixed_arm, _load_current_at_armature_current(p, v, arm), il)
+        if any_arm:  # only rows at a given armature current need it
+            il = np.where(fixed_arm, _load_current_at_armature_current(p, v, arm), il)
         return v, il
 
     def resid(tt):
         v, il = point(tt)
-        return machine_state(circ, p, v, il)["h"]
+        return circuit_residual(circ, p, v, il)
 
     h = resid(t)
     # a machine still above the load at the top of the span: widen the span (full searches only)
@@ -682,17 +713,20 @@ def solve_operating_points(circ, loads, idx=None, grid=LOAD_LINE_GRID, window=No
         vv0, kk_, cc, fc, bc, vt = (v0[sel, 0], k[sel, 0], cur[sel, 0], fixed_current[sel, 0],
                                     by_current[sel, 0], vtop[sel, 0])
         aa, fa_ = arm[sel, 0], fixed_arm[sel, 0]
+        arm_rows = bool(fa_.any())
+        slope_k = np.where(kk_ > 0, kk_, 1.0)
 
         def pt_rows(tt):
             v = np.where(bc, vv0, (2 * tt - 1) * vt)
             with np.errstate(divide="ignore", invalid="ignore"):
-                il = np.where(fc, cc, np.where(bc, (2 * tt - 1) * circ.imax, (v - vv0) / np.where(kk_ > 0, kk_, 1.0)))
-            il = np.where(fa_, _load_current_at_armature_current(pr, v, aa), il)
+                il = np.where(fc, cc, np.where(bc, (2 * tt - 1) * circ.imax, (v - vv0) / slope_k))
+            if arm_rows:
+                il = np.where(fa_, _load_current_at_armature_current(pr, v, aa), il)
             return v, il
 
         def res_rows(tt):
             v, il = pt_rows(tt)
-            return machine_state(circ, pr, v, il)["h"]
+            return circuit_residual(circ, pr, v, il)
         return pr, pt_rows, res_rows
 
     # two intersections closer than a grid step: the residual turns towards zero between
@@ -910,6 +944,42 @@ def _runs(vals):
     return d[idx]
 
 
+def slope_runs_rows(vals):
+    """:func:`_runs` of every row of a 2-D array at once (the same signs row by row)."""
+    d = np.sign(np.diff(vals, axis=1))
+    nzm = d != 0
+    ar = np.arange(d.shape[1])
+    idx = np.maximum.accumulate(np.where(nzm, ar, -1), axis=1)
+    first = np.argmax(nzm, axis=1)
+    idx = np.where(idx < 0, first[:, None], idx)
+    out = np.take_along_axis(d, idx, axis=1)
+    out[~nzm.any(axis=1)] = 1.0
+    return out
+
+
+def run_bounds_rows(sign):
+    """First and last cell of the run of equal sign holding each cell, for every row of ``sign``."""
+    m, k = sign.shape
+    ar = np.broadcast_to(np.arange(k), (m, k))
+    start = np.ones((m, k), bool)
+    start[:, 1:] = sign[:, 1:] != sign[:, :-1]
+    lo = np.maximum.accumulate(np.where(start, ar, 0), axis=1)
+    end = np.ones((m, k), bool)
+    end[:, :-1] = start[:, 1:]
+    hi = np.minimum.accumulate(np.where(end, ar, k - 1)[:, ::-1], axis=1)[:, ::-1]
+    return lo, hi
+
+
+class _RowRuns:
+    """A run table read from :func:`run_bounds_rows` for one row (the interface of :class:`_RunTable`)."""
+
+    def __init__(self, lo, hi):
+        self.lo, self.hi = lo, hi
+
+    def __call__(self, cell):
+        return int(self.lo[cell]), int(self.hi[cell])
+
+
 class _RunTable:
     """Runs of equal slope sign along a grid: run id of each cell, first and last cell of each run."""
 
@@ -1006,16 +1076,21 @@ def _start_cell(grid, vals, at, direction):
     return int(np.clip(k, 0, grid.size - 2))
 
 
-def _walk(circ, i, xg, ig, ng, lg, sign, lam, n_cell, l_cell, dl, stop_at=None, samples=48):
+def _walk(circ, i, xg, ig, ng, lg, sign, lam, n_cell, l_cell, dl, stop_at=None, samples=48, runs=None):
     """Walk ``N(u) = L(Ia)`` of one side from ``lam`` in cells ``n_cell``, ``l_cell``, Ia moving ``dl``.
 
     ``stop_at = (ia, u, lam)``: a point of the curve where the walk must end
     (the windings' field passes zero there). Returns the segments
     ``(lam_a, lam_b, n_lo, n_hi, l_lo, l_hi, sign)``, a note, and the Ia
-    direction when the walk reached ``stop_at`` (else None).
+    direction when the walk reached ``stop_at`` (else None). ``runs = (sn, sl,
+    run_n, run_l)``: slope signs and run tables of ``ng``, ``lg`` already
+    computed for many rows at once.
     """
-    sn, sl = _runs(ng), _runs(lg)
-    run_n, run_l = _RunTable(sn), _RunTable(sl)
+    if runs is None:
+        sn, sl = _runs(ng), _runs(lg)
+        run_n, run_l = _RunTable(sn), _RunTable(sl)
+    else:
+        sn, sl, run_n, run_l = runs
     n_lo, n_hi = run_n(n_cell)
     l_lo, l_hi = run_l(l_cell)
     dlam = int(sl[l_lo]) * dl
@@ -1077,7 +1152,9 @@ def _trace_self_excited(circ, i, xg, ig, fns, reversal=(np.nan, np.nan), samples
     list of segments ``(lam_a, lam_b, n_lo, n_hi, l_lo, l_hi, sign)`` and a
     note when the walk ended early.
     """
-    ng, lg = fns[1]
+    ng, lg = fns[1][:2]
+    runs_p = fns[1][2] if len(fns[1]) > 2 else None
+    runs_m = fns[-1][2] if len(fns[-1]) > 2 else None
     if ng[-1] > 0:
         return [], CURVE_RUNAWAY_NOTE
     # stable no-load root: highest x where N crosses zero downward
@@ -1093,16 +1170,17 @@ def _trace_self_excited(circ, i, xg, ig, fns, reversal=(np.nan, np.nan), samples
     if np.isfinite(ia_r):
         p1 = candidate_params(circ, np.array([i]))
         stop_at = (float(ia_r), -float(far_r), float(_l_fun(circ, p1, np.array([ia_r]), 1.0)[0]))
-    segs, note, dl = _walk(circ, i, xg, ig, ng, lg, 1.0, float(lg[0]), int(cells[-1]), 0, 1, stop_at, samples)
+    segs, note, dl = _walk(circ, i, xg, ig, ng, lg, 1.0, float(lg[0]), int(cells[-1]), 0, 1, stop_at, samples,
+                           runs_p)
     if dl is None:
         return segs, note
     # the field has passed zero: on along the negative side from the same point. Through the zone
     # where armature reaction holds the net field at zero, x_w = (s E_r - B(Ia)) / g falls only as Ia
     # rises, so Ia goes on rising; with no such zone (no reaction) the curve turns a corner there and
     # goes on into negative field, u = x_w + F_ar/N_sh falling, Ia whichever way that needs.
-    ngm, lgm = fns[-1]
+    ngm, lgm = fns[-1][:2]
     lam = float(_l_fun(circ, p1, np.array([ia_r]), -1.0)[0])
-    sn, sl = _runs(ngm), _runs(lgm)
+    sn, sl = (_runs(ngm), _runs(lgm)) if runs_m is None else runs_m[:2]
     if p1["rf"][0] * far_r > 1e-12 * max(1.0, abs(lam)):
         dl = 1
         l_cell = _start_cell(ig, lgm, ia_r, dl)
@@ -1115,7 +1193,7 @@ def _trace_self_excited(circ, i, xg, ig, fns, reversal=(np.nan, np.nan), samples
         dlam = -int(sn[n_cell])
         dl = dlam * int(sl[_start_cell(ig, lgm, ia_r, 1)]) or 1
         l_cell = _start_cell(ig, lgm, ia_r, dl)
-    more, note, _ = _walk(circ, i, xg, ig, ngm, lgm, -1.0, lam, n_cell, l_cell, dl, None, samples)
+    more, note, _ = _walk(circ, i, xg, ig, ngm, lgm, -1.0, lam, n_cell, l_cell, dl, None, samples, runs_m)
     return segs + more, note
 
 
@@ -1216,8 +1294,16 @@ def characteristics_of(circ, points=400):
             ngm[rev] = _n_fun(circ, pr, xg[None, :], -1.0)
             lgm[rev] = _l_fun(circ, pr, ig[None, :], -1.0)
         pick_cand, pick_lam, pick_xa, pick_xb, pick_ia, pick_ib, pick_sign = [], [], [], [], [], [], []
+        # slope signs and their runs for every row at once (the walks read them cell by cell)
+        tables = {}
+        for sgn_, ng_, lg_ in ((1.0, ngp, lgp), (-1.0, ngm, lgm)):
+            sn_, sl_ = slope_runs_rows(ng_), slope_runs_rows(lg_)
+            tables[sgn_] = (sn_, sl_, run_bounds_rows(sn_), run_bounds_rows(sl_))
         for r, i in enumerate(slf):
-            fns = {1.0: (ngp[r], lgp[r]), -1.0: (ngm[r], lgm[r])}
+            fns = {}
+            for sgn_, (ng_, lg_) in ((1.0, (ngp[r], lgp[r])), (-1.0, (ngm[r], lgm[r]))):
+                sn_, sl_, (nlo, nhi), (llo, lhi) = tables[sgn_]
+                fns[sgn_] = (ng_, lg_, (sn_[r], sl_[r], _RowRuns(nlo[r], nhi[r]), _RowRuns(llo[r], lhi[r])))
             segs, note = _trace_self_excited(circ, i, xg, ig, fns, (ia_rev[r], far_rev[r]))
             if not segs:
                 seg_note[i] = note
@@ -1260,7 +1346,7 @@ def characteristics_of(circ, points=400):
             sid_t = sid_s[j]
             for sid in np.unique(sid_t):
                 seg = segs[sid]
-                ng_s, lg_s = fns[seg[6]]
+                ng_s, lg_s = fns[seg[6]][:2]
                 msk = sid_t == sid
                 xa_, xb_ = _cells(xg, ng_s, seg[2], seg[3], lam_t[msk])
                 ia_, ib_ = _cells(ig, lg_s, seg[4], seg[5], lam_t[msk])
@@ -1283,44 +1369,74 @@ def characteristics_of(circ, points=400):
             v_s, il_s = _state_from_x_ia(circ, pc, x, ia_s, sg)
     # --- assemble ---------------------------------------------------------
     states, notes = [None] * n, [""] * n
-    for i in range(n):
-        if circ.kind[i] != 1:
-            r = int(np.flatnonzero(curves_exp[0] == i)[0])
-            ia_i = curves_exp[1][r]
-            pi = candidate_params(circ, np.full(ia_i.size, i))
-            states[i] = _explicit_state(circ, pi, ia_i)
+    if exp.size:
+        # every explicit curve in one call (rows of Ia, one per candidate)
+        ia_e = curves_exp[1]
+        st_e = _explicit_state(circ, candidate_params(circ, np.broadcast_to(exp[:, None], ia_e.shape)), ia_e)
+        for r, i in enumerate(exp):
+            states[i] = {k: (val[r] if np.ndim(val) == 2 else val) for k, val in st_e.items()}
             notes[i] = "" if curves_exp[2][r] else "terminal voltage stays above zero up to the searched span"
-        else:
-            msk = cand == i if slf.size and pick_cand else np.zeros(0, bool)
+    if slf.size and pick_cand:
+        # the samples of every traced curve in one call, split by candidate (they are grouped by candidate)
+        order = np.argsort(cand, kind="stable")
+        cs = cand[order]
+        st_s = machine_state(circ, candidate_params(circ, cs), v_s[order], il_s[order])
+        first = np.searchsorted(cs, np.arange(n), side="left")
+        last = np.searchsorted(cs, np.arange(n), side="right")
+    for i in range(n):
+        if circ.kind[i] == 1:
             notes[i] = seg_note.get(i, "")
             if i in ray_states:
                 states[i] = ray_states[i]
-            elif np.any(msk):
-                vi, ili = v_s[msk], il_s[msk]
+            elif slf.size and pick_cand and last[i] > first[i]:
+                sl_i = slice(first[i], last[i])
+                vi = st_s["terminal_voltage_v"][sl_i]
                 # the curve ends at zero volts (made exact by _finish): nothing past it
                 below = np.flatnonzero(vi < 0)
                 if below.size:
-                    vi, ili = vi[:below[0] + 1], ili[:below[0] + 1]
-                pi = candidate_params(circ, np.full(vi.size, i))
-                states[i] = machine_state(circ, pi, vi, ili)
-    ops = _refine_batch(circ, states)
+                    sl_i = slice(first[i], first[i] + below[0] + 1)
+                states[i] = {k: (val[sl_i] if np.ndim(val) else val) for k, val in st_s.items()}
+    wants_sc = [states[i] is not None and short_circuit_wanted(circ, i, states[i], notes[i], i in at_zero)
+                for i in range(n)]
+    ops = _refine_batch(circ, states, wants_sc)
     folds = _refine_folds(circ, states)
-    result = []
+    result = [None] * n
+    done = []
     for i in range(n):
         st = circ.settings[i]
         if states[i] is None:
-            result.append(Characteristic(st, {k: np.zeros(0) for k in POINT_KEYS + ("extrapolated",)},
-                                         None, None, None, None, False, False, notes[i], [notes[i]] if notes[i] else []))
+            result[i] = Characteristic(st, {k: np.zeros(0) for k in POINT_KEYS + ("extrapolated",)},
+                                       None, None, None, None, False, False, notes[i], [notes[i]] if notes[i] else [])
             continue
-        ch = _finish(circ, i, st, states[i], notes[i], ops[i], folds.get(i), i in at_zero)
-        v = ch.points["terminal_voltage_v"]
-        ch.power = drive_point_keys(circ, candidate_params(circ, np.full(v.size, i)), v, ch.points["load_current_a"])
-        if circ.drive is not None and v.size and ch.converged:
-            st_i = machine_state(circ, candidate_params(circ, np.full(v.size, i)), v, ch.points["load_current_a"])
-            if not np.all(drive_settled(st_i)):
+        result[i] = _finish(circ, i, st, states[i], notes[i], ops[i], folds.get(i), i in at_zero)
+        done.append(i)
+    if done:
+        # the power flow along every curve in one call, split back by candidate
+        sizes = [result[i].points["terminal_voltage_v"].size for i in done]
+        rows = np.repeat(np.array(done), sizes)
+        v = np.concatenate([result[i].points["terminal_voltage_v"] for i in done])
+        il = np.concatenate([result[i].points["load_current_a"] for i in done])
+        pr = candidate_params(circ, rows)
+        power = drive_point_keys(circ, pr, v, il)
+        settled = np.ones(v.size, bool)
+        if circ.drive is not None:
+            settled = np.asarray(drive_settled(machine_state(circ, pr, v, il)), bool)
+        ends = np.cumsum([0] + sizes)
+        for i, a, b in zip(done, ends[:-1], ends[1:]):
+            ch = result[i]
+            ch.power = {k: ({kk: vv[a:b] for kk, vv in val.items()} if isinstance(val, dict) else val[a:b])
+                        for k, val in power.items()}
+            if circ.drive is not None and b > a and ch.converged and not np.all(settled[a:b]):
                 ch.converged, ch.message = False, "the drive's speed did not settle at a point"
-        result.append(ch)
     return result
+
+
+def short_circuit_wanted(circ, i, state, note, at_zero):
+    """Whether a curve's end is its short-circuit point (it reaches zero volts), so the exact
+    short-circuit current is looked for; a curve still above zero at the end of the span has none."""
+    v = state["terminal_voltage_v"]
+    ended_at_zero = v.size > 1 and (at_zero or v[-1] <= 1e-6 * max(1.0, abs(v[0])))
+    return bool(v.size > 1 and (np.any(v <= 0) or ended_at_zero or (circ.kind[i] != 1 and "stays above" not in note)))
 
 
 def _fold_kinks(circ, i, st, j, grid=257):
@@ -1450,11 +1566,13 @@ def _refine_folds(circ, states, iterations=2):
     return fine
 
 
-def _refine_batch(circ, states):
+def _refine_batch(circ, states, wants_sc=None):
     """Exact no-load, short-circuit and full-load points near each curve's samples.
 
     Full load: the rated current in the armature (the load current is less
-    by the shunt-field current of a self-excited connection).
+    by the shunt-field current of a self-excited connection). The short
+    circuit is looked for only where ``wants_sc[i]`` (the curve reaches zero
+    volts: :func:`short_circuit_wanted`); elsewhere its entry stays empty.
     """
     m = circ.machine
     rated = m.rated_armature_current_a
@@ -1465,13 +1583,19 @@ def _refine_batch(circ, states):
             continue
         v, il = st["terminal_voltage_v"], st["load_current_a"]
         guesses = [(Load.constant_current(0.0), (v[0] / vtop[i] + 1) / 2, 0.015)]
-        guesses.append((Load(0.0, 0.0, None, "short circuit"), (il[-1] / circ.imax + 1) / 2, 0.02))
+        if wants_sc is None or wants_sc[i]:
+            guesses.append((Load(0.0, 0.0, None, "short circuit"), (il[-1] / circ.imax + 1) / 2, 0.02))
+        else:
+            guesses.append(None)
         cross = np.flatnonzero(st["armature_current_a"] >= rated)
         if cross.size:
             guesses.append((Load.armature_current(rated), (v[cross[0]] / vtop[i] + 1) / 2, 0.015))
         else:
             guesses.append((Load.armature_current(rated), None, None))
-        for k, (ld, g, half) in enumerate(guesses):
+        for k, guess in enumerate(guesses):
+            if guess is None:
+                continue
+            ld, g, half = guess
             idx.append(i); loads.append(ld); who.append((i, k))
             if g is None:
                 w0.append(0.0); w1.append(1.0)
@@ -1527,9 +1651,8 @@ def _finish(circ, i, st, state, note, ops, fold=None, at_zero=False):
         for k in POINT_KEYS:
             pts[k][0] = nl[k]
         pts["extrapolated"][0] = nl["extrapolated"]
-    ended_at_zero = v.size > 1 and (at_zero or v[-1] <= 1e-6 * max(1.0, abs(v[0])))
     sc = None
-    if v.size > 1 and (np.any(v <= 0) or ended_at_zero or (circ.kind[i] != 1 and "stays above" not in note)):
+    if short_circuit_wanted(circ, i, state, note, at_zero):
         cand = _nearest(ops[1].points, 0.0, il[-1])
         if cand is not None:
             sc = cand["load_current_a"]
@@ -1738,7 +1861,7 @@ def normal_points(circ, lo, hi, v_of=None, il_of=None, grid=97, steps=44, vi_of=
 
     t = lo[:, None] + (hi - lo)[:, None] * lin
     v, il = vi(t)
-    h = machine_state(circ, p, v, il)["h"]
+    h = circuit_residual(circ, p, v, il)
     # along the voltage: a machine still above the load at the top is looked for further out
     for _ in range(SPAN_DOUBLINGS if il_of is not None else 0):
         up = h[:, -1] > 0
@@ -1747,7 +1870,7 @@ def normal_points(circ, lo, hi, v_of=None, il_of=None, grid=97, steps=44, vi_of=
         hi = np.where(up, lo + 2.0 * (hi - lo), hi)
         t = lo[:, None] + (hi - lo)[:, None] * lin
         v, il = vi(t)
-        h = machine_state(circ, p, v, il)["h"]
+        h = circuit_residual(circ, p, v, il)
     beyond = h[:, -1] > 0
     stable = (h[:, :-1] > 0) & (h[:, 1:] <= 0)
     found = stable.any(axis=1) & ~beyond
@@ -1766,7 +1889,7 @@ def normal_points(circ, lo, hi, v_of=None, il_of=None, grid=97, steps=44, vi_of=
 
     def res(tt):
         vv, ii = v_i1(tt)
-        return machine_state(circ, p1, vv, ii)["h"]
+        return circuit_residual(circ, p1, vv, ii)
 
     # rows without a stable point get an empty bracket, so they do not hold up the refinement
     root = refine_bracketed_roots(res, np.where(found, a, b), b, h[rows, j], steps)

@@ -425,7 +425,8 @@ class DriveRows:
         ``P(s) = a s + P_rot(s) + stray |b s + c|`` [W] (``a = OCC(x) Ia``,
         and the output ``V IL = b s + c``). The drive gives
         ``s = s0 - s0 k P(s)`` (engine) or ``s = s0 - s0 k P(s) s0 / s``
-        (motor); Newton steps from ``s0``.
+        (motor); Newton steps from ``s0``, each row stopping once its
+        equation holds to ``SPEED_TOLERANCE`` of ``s0``.
 
         Parameters
         ----------
@@ -443,20 +444,43 @@ class DriveRows:
             speed may also balance).
         """
         s0 = self.s0
-        a, b, c = np.broadcast_arrays(np.asarray(a, float), np.asarray(b, float), np.asarray(c, float))
+        if np.ndim(b) == 0 and b == 0:
+            # no output term linear in the speed (the common call): skip broadcasting a zero array
+            a, c = np.broadcast_arrays(np.asarray(a, float), np.asarray(c, float))
+            b, linear_out = 0.0, False
+        else:
+            a, b, c = np.broadcast_arrays(np.asarray(a, float), np.asarray(b, float), np.asarray(c, float))
+            linear_out = np.any(b != 0)
         s = np.full(a.shape, s0)
         lo, hi = SPEED_FLOOR_SHARE * s0, SPEED_CEILING_SHARE * s0
         out_c = self.stray * np.abs(c)
-        linear_out = np.any(b != 0)
+        tol = SPEED_TOLERANCE * s0
+        f, df = self._residual(s, a, b, c, out_c, linear_out)
         for _ in range(SPEED_NEWTON_STEPS):
-            f, df = self._residual(s, a, b, c, out_c, linear_out)
-            if np.all(np.abs(f) <= SPEED_TOLERANCE * s0):
+            open_ = ~(np.abs(f) <= tol)
+            if not open_.any():
                 break
-            ok = df > 0
-            step = np.where(ok, f / np.where(ok, df, 1.0), np.where(f > 0, 0.1, -0.1) * s0)
-            s = np.minimum(np.maximum(s - step, lo), hi)
-        else:
-            f, df = self._residual(s, a, b, c, out_c, linear_out)
+            # Newton goes on only where the drive equation does not hold yet (a few rows can take
+            # every step, e.g. held at the speed floor): the settled rows keep their speed. Rows are
+            # gathered only once few remain open (gathers of most rows would cost memory and time).
+            few = np.count_nonzero(open_) * 4 < open_.size
+            rows = np.nonzero(open_) if few else None
+            fs, dfs, ss = (f, df, s) if rows is None else (f[rows], df[rows], s[rows])
+            ok = dfs > 0
+            if ok.all():
+                step = fs / dfs
+            else:
+                step = np.where(ok, fs / np.where(ok, dfs, 1.0), np.where(fs > 0, 0.1, -0.1) * s0)
+            ss = np.minimum(np.maximum(ss - step, lo), hi)
+            del fs, dfs, step, ok  # free before the next residual (peak memory at large inputs)
+            if rows is None:
+                s = np.where(open_, ss, s)
+                del ss, open_
+                f, df = self._residual(s, a, b, c, out_c, linear_out)
+            else:
+                s[rows] = ss
+                f[rows], df[rows] = self._residual(ss, a[rows], b[rows] if linear_out else b, c[rows],
+                                                   out_c[rows], linear_out)
         return s, np.abs(f) <= 1e-12 * s0, df > 0
 
     def _residual(self, s, a, b, c, out_c, linear_out):

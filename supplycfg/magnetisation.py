@@ -171,6 +171,16 @@ class OpenCircuitCurve:
             # cubic coefficients per interval, highest power first
             object.__setattr__(self, "_ct", tuple(np.ascontiguousarray(row) for row in c))
         object.__setattr__(self, "_slopes", np.diff(y) / np.diff(x))
+        # interval starts, then the chord's extension as one more interval from the last point: it takes
+        # over just past it (the next float up), where the curve itself ends
+        object.__setattr__(self, "_inner", np.append(x[1:-1], np.nextafter(self._xl, np.inf)))
+        object.__setattr__(self, "_start", np.append(x[:-1], self._xl))
+        object.__setattr__(self, "_slopes_ext", np.append(self._slopes, self._chord))
+        object.__setattr__(self, "_emf_ext", np.append(y[:-1], self._yl))
+        if self._cubic:
+            # rows (c0, c1, c2, c3) per interval; the extension is the line yl + chord t
+            ext = np.array([[0.0], [0.0], [self._chord], [self._yl]])
+            object.__setattr__(self, "_table", tuple(np.ascontiguousarray(r) for r in np.hstack([np.array(self._ct), ext])))
 
     @property
     def residual_v(self):
@@ -181,23 +191,23 @@ class OpenCircuitCurve:
         return self._xl
 
     def _base(self, ax, slope=True):
-        """EMF and (if asked) slope for ``ax >= 0`` at the test speed."""
-        inside = np.minimum(ax, self._xl)
-        xk = self.field_current_a
-        idx = np.clip(np.searchsorted(xk, inside, side="right") - 1, 0, len(xk) - 2)
-        t = inside - xk[idx]
+        """EMF and (if asked) slope for ``ax >= 0`` at the test speed.
+
+        Beyond the last point the chord continues the curve: it is stored as
+        one more interval (starting just past the last point), so one lookup
+        serves both and no second pass picks the extension out.
+        """
+        idx = np.searchsorted(self._inner, ax, side="right")
+        t = ax - self._start[idx]
         if not self._cubic:
-            de = self._slopes[idx]
-            e = self.emf_v[idx] + de * t
-        else:
-            c0, c1, c2, c3 = self._ct
-            a0, a1, a2 = c0[idx], c1[idx], c2[idx]
-            e = ((a0 * t + a1) * t + a2) * t + c3[idx]
-            de = ((3 * a0 * t + 2 * a1) * t + a2) if slope else None
-        over = ax > self._xl
-        e = np.where(over, self._yl + self._chord * (ax - self._xl), e)
-        if slope:
-            de = np.where(over, self._chord, de)
+            de = self._slopes_ext[idx]
+            e = self._emf_ext[idx] + de * t
+            return e, de
+        c0, c1, c2, c3 = self._table
+        a0, a1, a2 = c0[idx], c1[idx], c2[idx]
+        a3 = c3[idx]
+        e = ((a0 * t + a1) * t + a2) * t + a3
+        de = ((3 * a0 * t + 2 * a1) * t + a2) if slope else None
         return e, de
 
     def emf(self, x, with_slope=False):

@@ -17,7 +17,7 @@ from dataclasses import replace
 
 import numpy as np
 
-from .circuit import DRIVE_POINT_KEYS, drive_point_keys, machine_state, no_load_voltages, normal_points
+from .circuit import DRIVE_POINT_KEYS, circuit_residual, drive_point_keys, no_load_voltages, normal_points
 from .envelope import expand_candidates
 
 #: Relative step of terminal voltage for the slope test of a loaded self-excited point.
@@ -129,8 +129,8 @@ def _on_lower_branch(sub, p, v, il):
     winding can hold a normal point there, so compounds are not judged this way.
     """
     dv = SLOPE_STEP * np.maximum(1.0, np.abs(v))
-    hp = machine_state(sub, p, v + dv, il)["h"]
-    hm = machine_state(sub, p, v - dv, il)["h"]
+    hp = circuit_residual(sub, p, v + dv, il)
+    hm = circuit_residual(sub, p, v - dv, il)
     return (hp - hm) >= 0
 
 

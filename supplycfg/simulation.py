@@ -29,7 +29,7 @@ from . import STANDING_NOTICE
 from .jobs import battery
 from .jobs import option_cautions, profile_cautions
 from .profile import load_profile
-from .circuit import Setting, build_circuit, check_setting, drive_point_keys, machine_state
+from .circuit import Setting, build_circuit, check_setting, circuit_residual, drive_point_keys
 from .envelope import expand_candidates
 from .errors import InputError
 from .text import visible
@@ -407,7 +407,7 @@ def _below_bank(machine, setting, profile, soc):
     chem = battery.chemistry(job.chemistry)
     e = job.cells * float(battery.open_circuit_voltage_per_cell(chem, soc, job.open_circuit_voltage_per_cell_v))
     circ = build_circuit(machine, [setting], profile.drive)
-    h = machine_state(circ, circ.take(np.zeros(1, int)), np.full(1, e), np.zeros(1))["h"]
+    h = circuit_residual(circ, circ.take(np.zeros(1, int)), np.full(1, e), np.zeros(1))
     return bool(h[0] < 0)
 
 

@@ -45,7 +45,8 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 
 from ..cautions import caution
-from ..circuit import Setting, USES_SERIES, build_circuit, check_setting, machine_state, no_load_voltages, normal_points
+from ..circuit import (Setting, USES_SERIES, build_circuit, check_setting, circuit_residual, machine_state,
+                       no_load_voltages, normal_points)
 from ..envelope import (Space, control_kind, control_range, critical_resistance_ratios, envelope_corners,
                         expand_candidates, worst_over_corners)
 from ..errors import InputError
@@ -947,13 +948,18 @@ def _weaker(u_a, u_b, sign):
 
 def _weakest_per_base(u_rows, rows_base, nb, sign):
     """The weakest control value of each base over its rows (NaN where a base has none)."""
-    out = np.full(nb, np.nan)
-    for b in range(nb):
-        vals = u_rows[rows_base == b]
-        vals = vals[np.isfinite(vals)]
-        if vals.size and sign[b] != 0:
-            out[b] = vals.min() if sign[b] > 0 else vals.max()
-    return out
+    u_rows = np.asarray(u_rows, float)
+    rows_base = np.asarray(rows_base, int)
+    sign = np.broadcast_to(np.asarray(sign), (nb,))
+    keep = np.isfinite(u_rows) & (rows_base >= 0) & (rows_base < nb)
+    rb, u = rows_base[keep], u_rows[keep]
+    # one reduction over all rows in place of a mask per base
+    lo = np.full(nb, np.inf)
+    hi = np.full(nb, -np.inf)
+    np.minimum.at(lo, rb, u)
+    np.maximum.at(hi, rb, u)
+    has = np.bincount(rb, minlength=nb) > 0
+    return np.where(has & (sign > 0), lo, np.where(has & (sign < 0), hi, np.nan))
 
 
 def control_for_point(space, base_idx, corner_idx, terminal_voltage_v, load_current_a):
@@ -979,12 +985,19 @@ def control_for_point(space, base_idx, corner_idx, terminal_voltage_v, load_curr
     i = np.broadcast_to(np.asarray(load_current_a, float), (n,))
     fixed = ~np.isfinite(lo)
 
-    def h(u):
-        sub, _ = expand_candidates(space, base_idx, u, corner_idx)
-        return machine_state(sub, sub.take(np.arange(sub.n)), v, i)["h"]
-
     if n == 0:
         return np.zeros(0), np.zeros(0, bool)
+    # the rows once; each step changes only their field control (as expand_candidates would)
+    sub, _ = expand_candidates(space, base_idx, np.zeros(n), corner_idx)
+    controls = np.array([space.bases[b][3] for b in base_idx])
+    by_rheostat = (controls == "rheostat") | (controls == "exciter")
+    by_current = controls == "field-current"
+    ev = m.excitation_voltage_v
+    ev = np.full(n, np.nan if ev is None else ev)
+
+    def h(u):
+        p = sub.params_with_control(np.where(by_rheostat, u, np.nan), np.where(by_current, u, np.nan), ev)
+        return circuit_residual(sub, p, v, i)
     h_lo, h_hi = h(np.where(fixed, 0.0, lo)), h(np.where(fixed, 0.0, hi))
     ok = (np.signbit(h_lo) != np.signbit(h_hi)) & np.isfinite(h_lo) & np.isfinite(h_hi)
     a, b, fa = lo.copy(), hi.copy(), h_lo.copy()
@@ -1233,7 +1246,7 @@ def _handover(space, rows_base, rows_corner, rows_u, job):
         def h(soc_):
             p = cell_at_voltage(chem, soc_, vho, job.temperature_c, job.open_circuit_voltage_per_cell_v, rbah)
             i = job.capacity_ah * p.rate_per_h
-            return machine_state(sub, params, job.cells * vho + i * job.cable_resistance_ohm, i)["h"]
+            return circuit_residual(sub, params, job.cells * vho + i * job.cable_resistance_ohm, i)
 
         k = first[idx]
         a, b = scan.soc[idx, k - 1], scan.soc[idx, k]
@@ -1406,7 +1419,7 @@ def standstill_backfeed_current_a(space, base_idx, u, corner_idx):
     rext = job.internal_resistance_ohm + job.cable_resistance_ohm
 
     def h(il):
-        return machine_state(sub, p, vb + il * rext, il)["h"]
+        return circuit_residual(sub, p, vb + il * rext, il)
 
     a, b = np.full(sub.n, -vb / rext), np.zeros(sub.n)
     fa = h(a)

@@ -11,7 +11,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from ..cautions import caution
-from ..circuit import (USES_SERIES, candidate_params, machine_state, no_load_voltages, normal_points,
+from ..circuit import (USES_SERIES, candidate_params, circuit_residual, no_load_voltages, normal_points,
                        refine_bracketed_roots)
 from ..envelope import control_range, critical_resistance_ratios, expand_candidates, smallest_margin_fraction
 from ..errors import InputError
@@ -368,7 +368,7 @@ def _solve_weld_control(space, base_idx, corner_idx, target_a):
     def h(u):
         sub, _ = expand_candidates(space, base_idx, u, corner_idx)
         p = candidate_params(sub, np.arange(sub.n))
-        return machine_state(sub, p, vt, it)["h"]
+        return circuit_residual(sub, p, vt, it)
 
     ha, hb = h(lo), h(hi)
     ok = np.signbit(ha) != np.signbit(hb)
@@ -391,8 +391,8 @@ def _char_slope(sub, v, il):
     """Slope dV/dIL [V/A] of each candidate's characteristic at (v, il): -h_IL/h_V."""
     p = candidate_params(sub, np.arange(sub.n))
     dv = 1e-4 * np.maximum(1.0, np.abs(v)); di = 1e-4 * np.maximum(1.0, np.abs(il))
-    h_v = (machine_state(sub, p, v + dv, il)["h"] - machine_state(sub, p, v - dv, il)["h"]) / (2 * dv)
-    h_i = (machine_state(sub, p, v, il + di)["h"] - machine_state(sub, p, v, il - di)["h"]) / (2 * di)
+    h_v = (circuit_residual(sub, p, v + dv, il) - circuit_residual(sub, p, v - dv, il)) / (2 * dv)
+    h_i = (circuit_residual(sub, p, v, il + di) - circuit_residual(sub, p, v, il - di)) / (2 * di)
     return -h_i / h_v
 
 
