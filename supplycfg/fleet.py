@@ -98,7 +98,8 @@ def search_one_machine(path, profile):
     row = FleetRow(file=str(path))
     try:
         m = load_machine(path)
-        res = search(m, profile)
+        # a row shows the best setting only: its meter readings and bands are left to `search`
+        res = search(m, profile, advice=False)
     except InputError as exc:
         row.error = str(exc)
         return row

@@ -319,7 +319,7 @@ def rank_options(options, tie=OBJECTIVE_TIE_FRACTION):
     return ordered
 
 
-def search(machine, profile, with_drive_check=True):
+def search(machine, profile, with_drive_check=True, advice=True):
     """Every setting that meets the job, ranked by the stated rule, with the nearest misses.
 
     Parameters
@@ -329,6 +329,12 @@ def search(machine, profile, with_drive_check=True):
     with_drive_check : bool, optional
         When nothing is feasible with an engine or a motor, search again with
         a far larger drive of the same kind to say whether the drive limits the job.
+    advice : bool, optional
+        Search each option's meter readings and band (what a person sets at
+        the machine). False leaves the bands out (and, for a battery, the
+        readings): the ranking does not use them, so a fleet row or a trial
+        rating of ``size``, which show only the setting or ask only whether
+        any setting is feasible, need not pay for them.
 
     Returns
     -------
@@ -347,7 +353,7 @@ def search(machine, profile, with_drive_check=True):
         return res
     nb = len(space.bases)
     job = JOBS[profile.kind]
-    u_best, lim, figs, extras, evaluated = job.solve(space)
+    u_best, lim, figs, extras, evaluated = job.solve(space, advice=advice)
     objective = np.asarray(job.objective(figs), float)
     top_speed = max(c[0] for c in space.corners)
     hot_t = max(c[1] for c in space.corners)
@@ -414,7 +420,7 @@ def drive_limit_notes(machine, profile, options):
     drive = profile.drive
     over = [o for o in options if "drive_power" in o.failed]
     stiff = replace(profile, drive=drive.with_rating(STIFF_DRIVE_FACTOR * drive.rated_power_kw))
-    big = search(machine, stiff, with_drive_check=False)
+    big = search(machine, stiff, with_drive_check=False, advice=False)
     if not big.feasible:
         return []
     need = min(o.figures.get("max_shaft_power_kw") or math.inf for o in big.feasible)

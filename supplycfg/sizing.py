@@ -79,7 +79,8 @@ def required_drive_rating(machine, profile, tolerance=RATING_TOLERANCE):
     def trial(kw):
         nonlocal count
         count += 1
-        return search(machine, replace(profile, drive=drive.with_rating(kw)), with_drive_check=False)
+        # a trial asks only whether some setting is feasible: no readings or bands
+        return search(machine, replace(profile, drive=drive.with_rating(kw)), with_drive_check=False, advice=False)
 
     if not drive.coupled:
         count += 1
@@ -120,7 +121,10 @@ def required_drive_rating(machine, profile, tolerance=RATING_TOLERANCE):
             hi, best_res = mid, r
         else:
             lo = mid
-    best = best_res.feasible[0]
+    # the chosen rating once more, with the readings and bands a person sets the machine by
+    final = search(machine, replace(profile, drive=drive.with_rating(hi)), with_drive_check=False)
+    count += 1
+    best = final.feasible[0] if final.feasible else best_res.feasible[0]
     notes = [f"the {drive.kind}'s other figures are the profile's; only its rating changed",
              f"at {lo:.4g} kW no setting meets the job"]
     return SizeResult(machine, profile, hi, best, drive.with_rating(hi), lo, count, notes)

@@ -100,6 +100,23 @@ def test_demo_has_a_feasible_option(kind):
     assert res.candidates_evaluated > 0 and res.search_seconds >= 0
 
 
+@pytest.mark.parametrize("kind", list(DEMOS))
+def test_search_without_advice_ranks_the_same(kind):
+    """Leaving out the readings and bands (a fleet row, a trial rating of ``size``) changes no option,
+    figure or rank: the ranking rule does not read them (the project's own stated rule)."""
+    m, p, res = demo(kind)
+    lean = search(m, p, advice=False)
+    assert [o.setting_dict() for o in lean.options] == [o.setting_dict() for o in res.options]
+    assert [(o.feasible, o.failed, o.smallest_margin, o.objective) for o in lean.options] == \
+        [(o.feasible, o.failed, o.smallest_margin, o.objective) for o in res.options]
+    for a, b in zip(lean.options, res.options):
+        assert a.figures.keys() == b.figures.keys()
+        assert_allclose([x if x is not None else np.nan for x in a.figures.values()],
+                        [x if x is not None else np.nan for x in b.figures.values()], rtol=0, atol=0)
+        assert a.band is None and a.extras.get("exciter") == b.extras.get("exciter")
+    assert lean.candidates_evaluated <= res.candidates_evaluated
+
+
 # ---------------------------------------------------------------------------
 # independent re-checks of every feasible option
 # ---------------------------------------------------------------------------

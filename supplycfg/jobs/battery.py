@@ -1742,8 +1742,11 @@ def plan_figures(plan):
     return lim, figs, extras
 
 
-def solve(space):
+def solve(space, advice=True):
     """The charge plan of every candidate base, with its limits and figures.
+
+    ``advice=False`` leaves out the stages' readings and bands (see
+    :func:`supplycfg.search.search`).
 
     Returns
     -------
@@ -1754,6 +1757,8 @@ def solve(space):
     plan = charge_plan(space)
     lim, figs, extras = plan_figures(plan)
     evaluated = plan.rows_base.size * ((PLAN_INTERVALS + 1) * 2 + SCAN_INTERVALS + 1)
+    if not advice:
+        return plan.u1, lim, figs, extras, int(evaluated)
     # readings at the start of charge and the band of main-charge fields that keeps every limit
     # each band step re-solves whole plans: a coarser scan and fewer halvings (a few hundredths of
     # an ohm, far below what the readings are rounded to) keep the search quick

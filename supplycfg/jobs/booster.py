@@ -44,11 +44,11 @@ def evaluate(space, base_idx, u, res=COARSE):
     return evaluate_feeder(space, base_idx, u, True, res)
 
 
-def solve(space):
+def solve(space, advice=True):
     """Best control value of every candidate and its limits and figures (fine solve).
 
     A series booster has no field control: its trim is the diverter, so it
-    has no readings or band of its own.
+    has no readings or band of its own (``advice`` changes nothing).
     """
     u, evaluated = optimise_control(space, evaluate)
     lim, figs = evaluate(space, np.arange(len(space.bases)), u, FINE)

@@ -198,13 +198,16 @@ def evaluate(space, base_idx, u, res=COARSE):
     return evaluate_feeder(space, base_idx, u, False, res)
 
 
-def solve(space):
+def solve(space, advice=True):
     """Best control value of every candidate, its limits and figures (fine solve), readings and band.
 
-    The technician sets the field at no load.
+    The technician sets the field at no load. ``advice=False`` leaves out
+    the readings and bands (see :func:`supplycfg.search.search`).
     """
     u, evaluated = optimise_control(space, evaluate)
     lim, figs = evaluate(space, np.arange(len(space.bases)), u, FINE)
+    if not advice:
+        return u, lim, figs, [{"readings": None, "band": None} for _ in space.bases], evaluated
     extras, n = option_advice(space, evaluate, u, lim, no_load_setting_field)
     return u, lim, figs, extras, evaluated + n
 

@@ -577,7 +577,7 @@ def _row_field(space, base_idx, u):
     return f[:n], f[n:]
 
 
-def solve(space):
+def solve(space, advice=True):
     """The welding dial of every option, its limits and figures.
 
     Every base (connection, tap, diverter) is solved for every dial current
@@ -590,7 +590,8 @@ def solve(space):
     (u, limits, figures, extras, evaluated)
         ``u`` is the control at the low end; ``extras`` holds each option's
         ``dial``, ``current_settings`` (the two ends), ``diverters`` and
-        ``exciter``.
+        ``exciter``. ``advice=False`` leaves out the dial rows' bands (see
+        :func:`supplycfg.search.search`).
     """
     m, job = space.machine, space.profile.welding
     nb = len(space.bases)
@@ -671,16 +672,17 @@ def solve(space):
             "converged": (ev["converged"][pidx].all(axis=1) & r_end["converged"].reshape(2 * nb, nc).all(axis=1)[:nb]
                           & r_end["converged"].reshape(2 * nb, nc).all(axis=1)[nb:]).astype(float)}
     option_ok = (smallest_margin_fraction(lim) >= 0) & (figs["converged"] >= 1)
-    extras, n_adv = dial_advice(space, targets, paths, u_all, reach, ev, valid, option_ok)
+    extras, n_adv = dial_advice(space, targets, paths, u_all, reach, ev, valid, option_ok, bands=advice)
     evaluated += n_adv
     return u_all[pidx[:, 0]], lim, figs, extras, evaluated
 
 
-def dial_advice(space, targets, paths, u_all, reach, ev, valid, option_ok):
+def dial_advice(space, targets, paths, u_all, reach, ev, valid, option_ok, bands=True):
     """Each option's dial rows with readings and bands, its two ends, diverters and exciter.
 
     Bands are searched for the rows of options that hold every limit (a band
-    is where the limits still hold; an option that breaks one has none).
+    is where the limits still hold; an option that breaks one has none);
+    ``bands=False`` leaves every band out.
     """
     m, job = space.machine, space.profile.welding
     nb, nr = paths.shape
@@ -698,7 +700,7 @@ def dial_advice(space, targets, paths, u_all, reach, ev, valid, option_ok):
     hi = np.array([control_range(m, c)[1] for c in controls])
     banded = np.zeros(nb * nr, bool)
     banded[(paths * nr + np.arange(nr)[None, :])[option_ok].ravel()] = True
-    ok = valid.ravel()[used] & banded[used]
+    ok = valid.ravel()[used] & banded[used] & bands
     counter = [0]
 
     def margin_of(k, val):
@@ -708,9 +710,12 @@ def dial_advice(space, targets, paths, u_all, reach, ev, valid, option_ok):
 
     band_lo, band_hi = control_band(margin_of, np.where(ok, pu, np.nan), lo, hi, scan=4, steps=16)
     have = np.isfinite(band_lo)
-    cl, hl = _row_field(space, pb, np.where(have, band_lo, pu))
-    ch, hh = _row_field(space, pb, np.where(have, band_hi, pu))
-    counter[0] += 4 * used.size * space.nc
+    if have.any():
+        cl, hl = _row_field(space, pb, np.where(have, band_lo, pu))
+        ch, hh = _row_field(space, pb, np.where(have, band_hi, pu))
+        counter[0] += 4 * used.size * space.nc
+    else:
+        cl = hl = ch = hh = np.full(used.size, np.nan)
     pos = {int(p): j for j, p in enumerate(used)}
     rc = job.cable_resistance_ohm
     di = current_change_per_arc_volt_a_per_v(ev["slope_v_per_a"], rc)
