@@ -621,6 +621,8 @@ def search_text(res, top=10):
             lines.append(f"  {limit_label(name)}: " + ("unknown" if frac is None else f"{100 * frac:+.1f} %")
                          + ("" if frac is not None and frac >= 0 else "  BROKEN"))
         lines += ["", "Cautions of option %d:" % best.rank]
+        if not best.cautions:
+            lines.append("  none of its own (the job's cautions below apply)")
         for c in sorted(best.cautions, key=lambda c: ["stop", "warn", "note"].index(c.severity)):
             lines.append(f"  [{c.severity}] {c.message} (basis: {c.basis})")
     if res.cautions:
