@@ -558,6 +558,12 @@ def _num(x):
     return x if math.isfinite(x) else None
 
 
+def nums(x):
+    """An array as a list of floats for JSON, None where a value is not finite."""
+    x = np.asarray(x, float)
+    return [v if f else None for v, f in zip(x.tolist(), np.isfinite(x).tolist())]
+
+
 def reading_corners(space):
     """Corner indices of the readings: the nominal speed with the coldest and with the hottest windings."""
     speeds = sorted({c[0] for c in space.corners})
@@ -682,7 +688,8 @@ def dial_advice(space, targets, paths, u_all, reach, ev, valid, option_ok, bands
 
     Bands are searched for the rows of options that hold every limit (a band
     is where the limits still hold; an option that breaks one has none);
-    ``bands=False`` leaves every band out.
+    ``bands=False`` leaves every band and reading out (the rows keep their
+    settings, voltages and currents).
     """
     m, job = space.machine, space.profile.welding
     nb, nr = paths.shape
@@ -693,7 +700,7 @@ def dial_advice(space, targets, paths, u_all, reach, ev, valid, option_ok, bands
     pu = u_all[used]
     controls = [space.bases[b][3] for b in pb]
     # readings: no-load field current at the nominal speed, cold and hot
-    c0, h0 = _row_field(space, pb, pu)
+    c0, h0 = _row_field(space, pb, pu) if bands else (np.full(used.size, np.nan),) * 2
     vnl_nom = no_load_voltage_v(expand_candidates(space, pb, pu, np.full(used.size, nom))[0])
     # bands of the rows inside every limit
     lo = np.array([control_range(m, c)[0] for c in controls])
@@ -720,29 +727,37 @@ def dial_advice(space, targets, paths, u_all, reach, ev, valid, option_ok, bands
     rc = job.cable_resistance_ohm
     di = current_change_per_arc_volt_a_per_v(ev["slope_v_per_a"], rc)
     hot_t = max(c[1] for c in space.corners)
+    # each row's numbers as JSON-ready columns (one conversion per column, not per cell)
+    cur = np.asarray(ev["current_a"], float)[used]
+    col = {k: nums(a) for k, a in (
+        ("welding_current_a", cur), ("terminal_voltage_v", np.asarray(ev["terminal_voltage_v"], float)[used]),
+        ("arc_voltage_v", conventional_load_voltage(job.process, cur)), ("no_load_voltage_v", vnl_nom),
+        ("no_load_voltage_min_v", np.asarray(ev["no_load_min_v"], float)[used]),
+        ("no_load_voltage_max_v", np.asarray(ev["no_load_max_v"], float)[used]),
+        ("short_circuit_current_a", np.asarray(ev["short_circuit_current_a"], float)[used]),
+        ("slope_v_per_a", np.asarray(ev["slope_v_per_a"], float)[used]),
+        ("current_change_per_arc_volt_a_per_v", np.asarray(di, float)[used]))}
+    pu_l, h0_l = nums(pu), nums(h0)
+    reach_l, valid_l = np.asarray(reach, bool)[used].tolist(), valid.ravel()[used].tolist()
+    target_l = np.asarray(targets, float).tolist()
     rows_of = []
-    for j, p in enumerate(used):
+    for j in range(used.size):
         b, r = int(pb[j]), int(pr[j])
         conn, tap, d, ctl = space.bases[b]
-        band_u = band_field = None
-        if have[j]:
-            band_u = (band_lo[j], band_hi[j])
-            band_field = (hh[j], cl[j]) if weak_end_is_high(ctl) else (hl[j], ch[j])
-        rd, bd = readings_and_band(ctl, float(pu[j]), float(c0[j]), float(h0[j]), band_u, band_field,
-                                   m.rheostat_max_ohm)
-        row = {"current_a": float(targets[r]), "series_turns": tap if conn in USES_SERIES else None,
+        rd = bd = None
+        if bands:
+            band_u = band_field = None
+            if have[j]:
+                band_u = (band_lo[j], band_hi[j])
+                band_field = (hh[j], cl[j]) if weak_end_is_high(ctl) else (hl[j], ch[j])
+            rd, bd = readings_and_band(ctl, float(pu[j]), float(c0[j]), float(h0[j]), band_u, band_field,
+                                       m.rheostat_max_ohm)
+        row = {"current_a": target_l[r], "series_turns": tap if conn in USES_SERIES else None,
                "diverter_ohm": d,
-               "field_current_a": _num(pu[j]) if ctl == "field-current" else _num(h0[j]),
-               "rheostat_ohm": _num(pu[j]) if ctl in ("rheostat", "exciter") else None,
-               "welding_current_a": _num(ev["current_a"][p]),
-               "terminal_voltage_v": _num(ev["terminal_voltage_v"][p]),
-               "arc_voltage_v": _num(conventional_load_voltage(job.process, ev["current_a"][p])),
-               "no_load_voltage_v": _num(vnl_nom[j]), "no_load_voltage_min_v": _num(ev["no_load_min_v"][p]),
-               "no_load_voltage_max_v": _num(ev["no_load_max_v"][p]),
-               "short_circuit_current_a": _num(ev["short_circuit_current_a"][p]),
-               "slope_v_per_a": _num(ev["slope_v_per_a"][p]),
-               "current_change_per_arc_volt_a_per_v": _num(di[p]),
-               "reachable": bool(reach[p]), "inside_limits": bool(valid.ravel()[p]),
+               "field_current_a": pu_l[j] if ctl == "field-current" else h0_l[j],
+               "rheostat_ohm": pu_l[j] if ctl in ("rheostat", "exciter") else None,
+               **{k: v[j] for k, v in col.items()},
+               "reachable": reach_l[j], "inside_limits": valid_l[j],
                "readings": rd, "band": bd}
         rows_of.append(row)
     extras = []
