@@ -1762,7 +1762,8 @@ def solve(space, advice=True):
     # readings at the start of charge and the band of main-charge fields that keeps every limit
     # each band step re-solves whole plans: a coarser scan and fewer halvings (a few hundredths of
     # an ohm, far below what the readings are rounded to) keep the search quick
-    advice, n = option_advice(space, evaluate, plan.u1, lim, start_setting_field, scan=4, steps=10)
+    advice, n = option_advice(space, evaluate, plan.u1, lim, start_setting_field, scan=4, steps=10,
+                              refine="root")
     finish, n2 = finish_advice(plan, lim)
     extras = [dict(e or {}, **a) for e, a in zip(extras, advice)]
     for e, a, f in zip(extras, advice, finish):
@@ -1810,7 +1811,8 @@ def finish_advice(plan, limits):
         sub, _ = expand_candidates(space_, base_idx, u)
         return bank_points(sub, job, soc[base_idx].ravel())["shunt_field_current_a"]
 
-    advice, n = option_advice(space, evaluate_finish, u2, limits, finish_field, scan=4, steps=10)
+    advice, n = option_advice(space, evaluate_finish, u2, limits, finish_field, scan=4, steps=10,
+                              refine="root")
     return [a if np.isfinite(u2[i]) else None for i, a in enumerate(advice)], n
 
 
