@@ -211,6 +211,13 @@ def bisection_grid_point(a, b, k, depth):
 #: Rounds of the guided search of a band's edge before each round also halves the bracket, so a
 #: margin the estimates aim poorly at still ends within ``steps`` more rounds (model choice).
 BAND_GUIDED_ROUNDS = 2
+#: Each guided round also evaluates a guard point this share of the way from the estimate to the
+#: bracket's far end, so the next round has the edge close on both sides (measured on the battery
+#: demo's bands, whole calls of that search: 1/8, 1/16, 1/32, 1/64 take 4, 4, 3, 3-4 rounds after the scan's).
+BAND_GUARD_SHARE = 1.0 / 32
+#: Grid points of the first scan point's bracket evaluated with it, as shares of that bracket from
+#: ``u0`` (measured as above: 1/4 and 1/16 beat 1/4 to 1/256, 1/8 alone, or none).
+BAND_AHEAD_SHARES = (1.0 / 16, 1.0 / 4)
 
 
 def _band_by_root(margin_of, u0, lo, hi, scan, steps, per_round, m0):
@@ -256,12 +263,13 @@ def _band_by_root(margin_of, u0, lo, hi, scan, steps, per_round, m0):
                 asks += [(i, p, key, "scan", j) for j, p in zip(js, u0[i] + (st["end"] - u0[i]) * frac[js])]
                 if first:
                     # the edge usually lies before the first scan point: points of that bracket's grid
-                    # at geometric distances from u0 come in the same call, for the guided search
+                    # come in the same call, for the guided search
                     g1 = u0[i] + (st["end"] - u0[i]) * frac[0]
-                    asks += [(i, float(bisection_grid_point(u0[i], g1, k, steps)), key, "ahead", k)
-                             for k in _ahead_points(steps)]
+                    ks = _ahead_points(steps)
+                    asks += [(i, u, key, "ahead", k) for k, u in zip(ks, bisection_grid_point(u0[i], g1, ks, steps))]
             elif st["phase"] == "root":
-                asks += [(i, st["grid"](k), key, "root", k) for k in _guided_points(st)]
+                ks = _guided_points(st)
+                asks += [(i, u, key, "root", k) for k, u in zip(ks, st["grid"](ks))]
             else:
                 st["depth"] = min(max(1, int(per_round)), steps - st["done"])
                 tree = bisection_tree(np.array([st["a"]]), np.array([st["b"]]), st["depth"])[0]
@@ -295,7 +303,7 @@ def _band_by_root(margin_of, u0, lo, hi, scan, steps, per_round, m0):
                     if j == 0 and ahead and not _guided_update(st, sorted(ahead, key=lambda r: r[0]), count=False):
                         st.update(phase="bisect", a=st["g0"], b=st["b0"], done=0)
                     elif st["phase"] == "root" and st["khi"] - st["klo"] == 1:
-                        edges[side][i] = st["grid"](st["klo"])
+                        edges[side][i] = st["grid"]([st["klo"]])[0]
                         del state[key]
                 elif res[-1][0] == scan - 1:
                     edges[side][i] = st["end"]
@@ -307,7 +315,7 @@ def _band_by_root(margin_of, u0, lo, hi, scan, steps, per_round, m0):
                     # the points contradict one crossing: halve the bracket as the bisection does
                     st.update(phase="bisect", a=st["g0"], b=st["b0"], done=0)
                 elif st["khi"] - st["klo"] == 1:
-                    edges[side][i] = st["grid"](st["klo"])
+                    edges[side][i] = st["grid"]([st["klo"]])[0]
                     del state[key]
             else:
                 holds = np.array([[np.min(r[2]) >= 0 for r in res]])
@@ -326,7 +334,7 @@ def _start_guided(st, g, mg, b, mb, steps):
     g0, b0 = float(g), float(b)
     st.update(phase="root", g0=g0, b0=b0, klo=0, khi=2 ** steps, rounds=0,
               seen={0: np.asarray(mg, float), 2 ** steps: np.asarray(mb, float)},
-              grid=lambda k: float(bisection_grid_point(g0, b0, k, steps)))
+              grid=lambda ks: bisection_grid_point(np.full(len(ks), g0), np.full(len(ks), b0), ks, steps))
 
 
 def _quadratic_root(pts, a, b):
@@ -385,21 +393,20 @@ def _guided_points(st):
     t = min(ts) if ts else 0.5 * (klo + khi)
     kf = min(max(int(math.floor(t)), klo), khi - 1)
     pts = {kf, kf + 1}
-    # the guard goes to the wider side of the estimate, a sixteenth of the way to the bracket's end
+    # the guard goes to the wider side of the estimate, part of the way to the bracket's end
     if khi - t >= t - klo:
-        pts.add(int(math.ceil(t + max(1.0, (khi - t) / 16))))
+        pts.add(int(math.ceil(t + max(1.0, BAND_GUARD_SHARE * (khi - t)))))
     else:
-        pts.add(int(math.floor(t - max(1.0, (t - klo) / 16))))
+        pts.add(int(math.floor(t - max(1.0, BAND_GUARD_SHARE * (t - klo)))))
     if st["rounds"] >= BAND_GUIDED_ROUNDS:
         pts.add((klo + khi) // 2)
     return sorted(p for p in pts if klo < p < khi)
 
 
 def _ahead_points(steps):
-    """Grid indices evaluated with the first scan point: a quarter, a sixteenth, ... of the bracket
-    (four at most), so the guided search starts within a factor four of the edge."""
+    """Grid indices evaluated with the first scan point (:data:`BAND_AHEAD_SHARES` of its bracket)."""
     top = 2 ** steps
-    return sorted({top >> (2 * m) for m in range(1, 5) if top >> (2 * m) >= 1})
+    return sorted({min(max(int(round(f * top)), 1), top - 1) for f in BAND_AHEAD_SHARES})
 
 
 def _guided_update(st, res, count=True):

@@ -183,20 +183,54 @@ def test_control_band_guided_by_roots_gives_the_halving_edges(scan, steps):
     margin_of = _two_limits(calls)
     u0 = np.array([3.0, 6.5, 4.0, 1.0, 8.5, np.nan, 2.5])
     ref = control_band(lambda k, u: margin_of(k, u, rows=False), u0, 0.0, 10.0, scan=scan, steps=steps)
-    n_halving = len(calls)
     for rows in (True, False):
         calls.clear()
         got = control_band(lambda k, u: margin_of(k, u, rows), u0, 0.0, 10.0, scan=scan, steps=steps,
                            refine="root")
         np.testing.assert_array_equal(got[0], ref[0])
         np.testing.assert_array_equal(got[1], ref[1])
-        if steps >= 10 and scan >= 4:
-            # the bands' own settings and finer: fewer rounds than halving
-            assert len(calls) < n_halving
     known = margin_of(np.arange(u0.size), np.nan_to_num(u0))
     got = control_band(margin_of, u0, 0.0, 10.0, scan=scan, steps=steps, refine="root", m0=known)
     np.testing.assert_array_equal(got[0], ref[0])
     np.testing.assert_array_equal(got[1], ref[1])
+
+
+def test_battery_bands_guided_by_roots_are_the_halving_bands():
+    """The battery demo's bands of the main charge's and of the finish's field, found by the guided
+    search, are bit for bit those of halving (the method the bands state), in fewer calls."""
+    from supplycfg.envelope import build_space
+    from supplycfg.jobs import battery
+    from supplycfg import readings
+    m, p = (load_machine(MACHINES / "charging-set.toml"), load_profile(LOADS / "battery-charging.toml"))
+    space = build_space(m, p)
+    seen = {}
+    real = readings.control_band
+
+    def recording(margin_of, *args, **kw):
+        calls = []
+
+        def counted(k, u):
+            calls.append(len(k))
+            return margin_of(k, u)
+        out = real(counted, *args, **kw)
+        seen.setdefault(kw.get("refine", "bisection"), []).append((out, len(calls)))
+        return out
+
+    try:
+        readings.control_band = recording
+        battery.solve(space)
+        plan = battery.charge_plan(space)
+        lim, _, _ = battery.plan_figures(plan)
+        readings.option_advice(space, battery.evaluate_limits, plan.u1, lim, battery.start_setting_field, scan=4,
+                               steps=10)
+    finally:
+        readings.control_band = real
+    (guided, n_guided), _ = seen["root"]
+    [(halved, n_halved)] = seen["bisection"]
+    assert np.isfinite(guided[0]).sum() >= 4
+    np.testing.assert_array_equal(guided[0], halved[0])
+    np.testing.assert_array_equal(guided[1], halved[1])
+    assert n_guided < n_halved
 
 
 def test_control_band_guided_by_roots_with_a_second_stretch():
