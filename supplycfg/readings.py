@@ -708,14 +708,18 @@ def option_advice(space, evaluate, u, limits, setting_field, res=None, scan=BAND
     band_lo, band_hi = control_band(margin_of, uu, lo, hi, scan, steps, refine=refine,
                                     m0=m_at_u if refine == "root" else None)
     have = np.isfinite(band_lo)
-    # field currents at the exact control and at both ends of the band
-    c0, h0 = field_at_corners(setting_field(space, bases, np.where(np.isfinite(u), u, lo)), nb,
-                              space.corners, space.nominal)
-    cl, hl = field_at_corners(setting_field(space, bases, np.where(have, band_lo, lo)), nb,
-                              space.corners, space.nominal)
-    ch, hh = field_at_corners(setting_field(space, bases, np.where(have, band_hi, lo)), nb,
-                              space.corners, space.nominal)
-    count[0] += 3 * nb * space.nc
+    # field currents at the exact control and at both ends of the band (of the bases with one), in
+    # one solve: each row's operating point is its own
+    hv = np.flatnonzero(have)
+    cold, hot = field_at_corners(setting_field(space, np.concatenate([bases, hv, hv]),
+                                               np.concatenate([np.where(np.isfinite(u), u, lo), band_lo[hv],
+                                                               band_hi[hv]])),
+                                 nb + 2 * hv.size, space.corners, space.nominal)
+    c0, h0 = cold[:nb], hot[:nb]
+    cl, hl, ch, hh = (np.full(nb, np.nan) for _ in range(4))
+    cl[hv], hl[hv] = cold[nb:nb + hv.size], hot[nb:nb + hv.size]
+    ch[hv], hh[hv] = cold[nb + hv.size:], hot[nb + hv.size:]
+    count[0] += (nb + 2 * hv.size) * space.nc
     out = []
     for i in range(nb):
         ctl = controls[i]

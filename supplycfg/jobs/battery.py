@@ -337,6 +337,33 @@ def reaction_rates_per_h(chem, soc, internal_v, temperature_c=REFERENCE_TEMPERAT
     return stored, gas
 
 
+class _CellRates:
+    """The rate laws of :func:`reaction_rates_per_h` with what depends only on the state of charge
+    and the temperature worked out once (the same numbers; a Newton or a load-curve solve calls the
+    laws many times at one state of charge)."""
+
+    def __init__(self, chem, soc, temperature_c, ocv_range):
+        self.e = open_circuit_voltage_per_cell(chem, soc, ocv_range)
+        self.bc, self.bg, self.uref = chem.charge_slope_v, chem.gas_slope_v, chem.gas_reference_voltage_v
+        self.a = charge_acceptance_per_h(chem, soc) * _temperature_speedup(chem, temperature_c, self.bc)
+        self.g = 1e-3 * chem.gas_reference_ma_per_ah * _temperature_speedup(chem, temperature_c, self.bg)
+        with np.errstate(over="ignore"):
+            self.ge = np.exp((self.e - self.uref) / self.bg)
+
+    def rates(self, u):
+        """``(r_s, r_g)`` at internal voltage ``u`` [1/h]."""
+        with np.errstate(over="ignore"):
+            return self.a * np.expm1((u - self.e) / self.bc), self.g * (np.exp((u - self.uref) / self.bg) - self.ge)
+
+    def rates_and_slopes(self, u):
+        """``(r_s, r_g, d r_s/dU, d r_g/dU)`` at ``u``."""
+        with np.errstate(over="ignore"):
+            x = (u - self.e) / self.bc
+            eg = np.exp((u - self.uref) / self.bg)
+            return (self.a * np.expm1(x), self.g * (eg - self.ge), self.a * np.exp(x) / self.bc,
+                    self.g * eg / self.bg)
+
+
 def _rate_slopes(chem, soc, internal_v, temperature_c, ocv_range):
     """d r_s/dU and d r_g/dU [1/(h V)]."""
     e = open_circuit_voltage_per_cell(chem, soc, ocv_range)
@@ -432,15 +459,15 @@ def cell_on_charge(chem, soc, rate_per_h, temperature_c=REFERENCE_TEMPERATURE_C,
                                   np.asarray(temperature_c, float))
     e = open_circuit_voltage_per_cell(chem, s, ocv_range)
     rp = np.maximum(r, 0.0)
+    laws = _CellRates(chem, s, t, ocv_range)
 
     def fun(u):
-        st, gs = reaction_rates_per_h(chem, s, u, t, ocv_range)
-        d1, d2 = _rate_slopes(chem, s, u, t, ocv_range)
+        st, gs, d1, d2 = laws.rates_and_slopes(u)
         return st + gs - rp, d1 + d2
 
     u = np.where(rp > 0, _internal_voltage_bound(chem, s, rp, t, ocv_range), e)
     u = np.maximum(_newton_down(fun, u), e)
-    st, gs = reaction_rates_per_h(chem, s, u, t, ocv_range)
+    st, gs = laws.rates(u)
     charge = r > 0
     stored = np.where(charge, st, r)
     gas = np.where(charge, gs, 0.0)
@@ -459,15 +486,15 @@ def cell_at_voltage(chem, soc, volts_per_cell, temperature_c=REFERENCE_TEMPERATU
                                   np.asarray(temperature_c, float))
     e = open_circuit_voltage_per_cell(chem, s, ocv_range)
     rc = chem.resistance_ohm_ah if resistance_ohm_ah is None else float(resistance_ohm_ah)
+    laws = _CellRates(chem, s, t, ocv_range)
 
     def fun(u):
-        st, gs = reaction_rates_per_h(chem, s, u, t, ocv_range)
-        d1, d2 = _rate_slopes(chem, s, u, t, ocv_range)
+        st, gs, d1, d2 = laws.rates_and_slopes(u)
         return u + rc * (st + gs) - v, 1.0 + rc * (d1 + d2)
 
     charge = v > e
     u = np.where(charge, _newton_down(fun, np.where(charge, v, e)), e)
-    st, gs = reaction_rates_per_h(chem, s, u, t, ocv_range)
+    st, gs = laws.rates(u)
     r = np.where(charge, st + gs, (v - e) / rc)
     return CellPoint(v.astype(float), u, r, np.where(charge, st, r), np.where(charge, gs, 0.0))
 
@@ -871,9 +898,10 @@ def bank_line(job, soc):
     rb, rc = job.internal_resistance_ohm, job.cable_resistance_ohm
     ocv = job.open_circuit_voltage_per_cell_v
     e = open_circuit_voltage_per_cell(chem, s, ocv)
+    laws = _CellRates(chem, s, job.temperature_c, ocv)
 
     def vi(u):
-        st, gs = reaction_rates_per_h(chem, s, u, job.temperature_c, ocv)
+        st, gs = laws.rates(u)
         on = u >= e
         i = np.where(on, cap * (st + gs), n * (u - e) / rb)
         v = np.where(on, n * u + i * rb, n * u) + i * rc
