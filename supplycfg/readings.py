@@ -224,15 +224,21 @@ def _band_by_root(margin_of, u0, lo, hi, scan, steps, per_round, m0):
     """:func:`control_band` with each edge found by a guided search on the bisection's grid (``refine="root"``).
 
     The scan stops at its first point that breaks a limit (the points past it
-    never decide the bracket). In the bracket, each round evaluates the two
-    grid points either side of an estimate of the edge: the first crossing
-    of the limits that break at the bracket's far end, each by a secant
-    through its two values nearest zero (regula falsi where that falls
-    outside its sign change). Once a point that holds and one that breaks are
-    neighbours on the grid of ``steps`` halvings, the lower is the edge that
-    halving reaches wherever the limits break only once inside the bracket.
-    An edge whose points contradict that (a point that holds beyond one
-    that breaks) is halved as :func:`control_band` does, from its bracket.
+    never decide the bracket); the points :data:`BAND_AHEAD_SHARES` of the
+    way to the first scan point come in the same call. In the bracket, each
+    round evaluates the two grid points either side of an estimate of the
+    edge, and a guard point beyond it: the estimate is the first crossing of
+    the limits that break at the bracket's far end, each by a parabola
+    through its sign change and a neighbouring point (regula falsi where that
+    fails). Once a point that holds and one that breaks are neighbours on the
+    grid of ``steps`` halvings (:func:`bisection_grid_point`), the lower is
+    the edge that halving reaches wherever the limits break only once inside
+    the bracket. An edge whose points contradict that (a point that holds
+    beyond one that breaks) is halved as :func:`control_band` does, from its
+    bracket.
+
+    ``margin_of`` may return every limit's margin (shape ``(limits, n)``):
+    the estimates then follow each limit, the decisions their smallest.
     """
     u0 = np.asarray(u0, float)
     n = u0.size
@@ -440,6 +446,8 @@ def control_band(margin_of, u0, lo, hi, scan=BAND_SCAN_POINTS, steps=BAND_BISECT
         ``margin_of(k, u)`` -> smallest margin (fraction, positive inside) of
         candidates ``k`` (indices into ``u0``) at control values ``u``;
         NaN counts as broken. Each row's answer must not depend on the others.
+        With ``refine="root"`` it may return every limit's margin instead,
+        shape ``(limits, len(k))``.
     u0 : array_like
         The exact control of each candidate (inside its band).
     lo, hi : array_like

@@ -233,6 +233,22 @@ def test_battery_bands_guided_by_roots_are_the_halving_bands():
     assert n_guided < n_halved
 
 
+def test_control_band_guided_by_roots_halves_where_points_contradict_one_crossing():
+    """A margin broken in a narrow hole inside the bracket (closed form: the hole 5.078 +- 0.01 lies on
+    a grid point the guided search evaluates first, the edge at 6): a point that breaks before one that
+    holds sends that edge back to halving, which never visits the hole, so the edges are halving's."""
+    def margin_of(k, u):
+        u = np.asarray(u, float)
+        return np.minimum(6.0 - u, np.abs(u - 5.078125) - 0.01) / 10.0
+
+    u0 = np.array([5.0])
+    ref = control_band(margin_of, u0, 4.999, 10.0, scan=4, steps=10)
+    got = control_band(margin_of, u0, 4.999, 10.0, scan=4, steps=10, refine="root")
+    assert_allclose(ref[1], 6.0, atol=2e-3)
+    np.testing.assert_array_equal(got[0], ref[0])
+    np.testing.assert_array_equal(got[1], ref[1])
+
+
 def test_control_band_guided_by_roots_with_a_second_stretch():
     """Where the scan separates two stretches that hold (closed form: bisection of a bracket), the
     guided edges are those of halving too."""
