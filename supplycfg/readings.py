@@ -211,9 +211,10 @@ def bisection_grid_point(a, b, k, depth):
 #: Rounds of the guided search of a band's edge before each round also halves the bracket, so a
 #: margin the estimates aim poorly at still ends within ``steps`` more rounds (model choice).
 BAND_GUIDED_ROUNDS = 2
-#: Each guided round also evaluates a guard point this share of the way from the estimate to the
-#: bracket's far end, so the next round has the edge close on both sides (measured on the battery
-#: demo's bands, whole calls of that search: 1/8, 1/16, 1/32, 1/64 take 4, 4, 3, 3-4 rounds after the scan's).
+#: Each guided round also evaluates a guard point beyond the estimate, at least this share of the way
+#: to the bracket's end, so the next round has the edge close on both sides (measured on the battery
+#: demo's bands: 1/8, 1/16, 1/32, 1/64 take 4, 4, 3, 3-4 calls each; the guard also goes as far as
+#: the estimate moved since the last round, which saves a call on some variants of the demo job).
 BAND_GUARD_SHARE = 1.0 / 32
 #: Grid points of the first scan point's bracket evaluated with it, as shares of that bracket from
 #: ``u0`` (measured as above: 1/4 and 1/16 beat 1/4 to 1/256, 1/8 alone, or none).
@@ -399,11 +400,15 @@ def _guided_points(st):
     t = min(ts) if ts else 0.5 * (klo + khi)
     kf = min(max(int(math.floor(t)), klo), khi - 1)
     pts = {kf, kf + 1}
-    # the guard goes to the wider side of the estimate, part of the way to the bracket's end
-    if khi - t >= t - klo:
-        pts.add(int(math.ceil(t + max(1.0, BAND_GUARD_SHARE * (khi - t)))))
-    else:
-        pts.add(int(math.floor(t - max(1.0, BAND_GUARD_SHARE * (t - klo)))))
+    # the guard goes the way the estimate moved since the last round (it creeps up on the edge; at
+    # first to the wider side), a share of the way to the bracket's end or as far as the estimate
+    # moved, at most half way
+    moved = t - st["t"] if "t" in st else 0.0
+    st["t"] = t
+    up = moved > 0 if moved else khi - t >= t - klo
+    room = khi - t if up else t - klo
+    reach = max(1.0, min(max(BAND_GUARD_SHARE * room, abs(moved)), 0.5 * room))
+    pts.add(int(math.ceil(t + reach)) if up else int(math.floor(t - reach)))
     if st["rounds"] >= BAND_GUIDED_ROUNDS:
         pts.add((klo + khi) // 2)
     return sorted(p for p in pts if klo < p < khi)
