@@ -464,7 +464,8 @@ def control_band(margin_of, u0, lo, hi, scan=BAND_SCAN_POINTS, steps=BAND_BISECT
         wherever the limits break once inside an edge's bracket, from a few
         guided points per edge (:func:`_band_by_root`); fewer and smaller calls.
     m0 : array_like, optional
-        The margins at ``u0`` where already known; ``refine="root"`` then does
+        The margins at ``u0`` where already known, shaped as ``margin_of``
+        answers (one row per limit, or one row); ``refine="root"`` then does
         not evaluate them again.
 
     Returns
