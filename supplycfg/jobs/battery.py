@@ -902,10 +902,29 @@ def bank_line(job, soc):
     laws = _CellRates(chem, s, job.temperature_c, ocv)
 
     def vi(u):
-        st, gs = laws.rates(u)
+        # the numbers of reaction_rates_per_h and of the expressions in the docstring, with fewer
+        # temporaries (a load-curve grid is large): products and sums in place, each once
+        u = np.asarray(u, float)
+        over = u - e
+        with np.errstate(over="ignore"):
+            st = np.expm1(over / laws.bc)
+            gs = u - laws.uref
+            gs /= laws.bg
+            np.exp(gs, out=gs)
+        st *= laws.a
+        gs -= laws.ge
+        gs *= laws.g
+        st += gs
+        st *= cap                      # the charging current, cap (r_s + r_g)
+        over *= n
+        over /= rb                     # the discharge through the bank, n (U - E) / Rb
         on = u >= e
-        i = np.where(on, cap * (st + gs), n * (u - e) / rb)
-        v = np.where(on, n * u + i * rb, n * u) + i * rc
+        i = np.where(on, st, over)
+        nu = u * n
+        v = i * rb
+        v += nu
+        v = np.where(on, v, nu)
+        v += i * rc
         return v, i
     return vi
 
