@@ -183,8 +183,259 @@ def walk_bisection_tree(a, b, holds, depth):
     return a, b
 
 
+def bisection_grid_point(a, b, k, depth):
+    """Point ``k`` (0 to ``2**depth``) of the grid ``depth`` halvings of ``[a, b]`` reach, computed exactly as a halving does.
+
+    ``k = 0`` is ``a`` and ``k = 2**depth`` is ``b``; every other ``k`` is the
+    midpoint of the cell halving reaches it from, so a search that knows the
+    edge lies between grid points ``k`` and ``k + 1`` has the numbers that
+    :func:`walk_bisection_tree` would give, bit for bit.
+    """
+    a = np.asarray(a, float).copy()
+    b = np.asarray(b, float).copy()
+    k = np.asarray(k, np.int64)
+    top = 2 ** depth
+    out = np.where(k == 0, a, np.where(k == top, b, np.nan))
+    lo_k = np.zeros(k.shape, np.int64)
+    hi_k = np.full(k.shape, top, np.int64)
+    for _ in range(depth):
+        mid_k = (lo_k + hi_k) // 2
+        mid = 0.5 * (a + b)
+        out = np.where(k == mid_k, mid, out)
+        left = k < mid_k
+        b, hi_k = np.where(left, mid, b), np.where(left, mid_k, hi_k)
+        a, lo_k = np.where(left, a, mid), np.where(left, lo_k, mid_k)
+    return out
+
+
+#: Rounds of the guided search of a band's edge before each round also halves the bracket, so a
+#: margin the estimates aim poorly at still ends within ``steps`` more rounds (model choice).
+BAND_GUIDED_ROUNDS = 2
+#: Each guided round also evaluates a guard point beyond the estimate, at least this share of the way
+#: to the bracket's end, so the next round has the edge close on both sides (measured on the battery
+#: demo's bands: 1/8, 1/16, 1/32, 1/64 take 4, 4, 3, 3-4 calls each; the guard also goes as far as
+#: the estimate moved since the last round, which saves a call on some variants of the demo job).
+BAND_GUARD_SHARE = 1.0 / 32
+#: Grid points of the first scan point's bracket evaluated with it, as shares of that bracket from
+#: ``u0`` (measured as above: 1/4 and 1/16 beat 1/4 to 1/256, 1/8 alone, or none).
+BAND_AHEAD_SHARES = (1.0 / 16, 1.0 / 4)
+
+
+def _band_by_root(margin_of, u0, lo, hi, scan, steps, per_round, m0):
+    """:func:`control_band` with each edge found by a guided search on the bisection's grid (``refine="root"``).
+
+    The scan stops at its first point that breaks a limit (the points past it
+    never decide the bracket); the points :data:`BAND_AHEAD_SHARES` of the
+    way to the first scan point come in the same call. In the bracket, each
+    round evaluates the two grid points either side of an estimate of the
+    edge, and a guard point beyond it: the estimate is the first crossing of
+    the limits that break at the bracket's far end, each by a parabola
+    through its sign change and a neighbouring point (regula falsi where that
+    fails). Once a point that holds and one that breaks are neighbours on the
+    grid of ``steps`` halvings (:func:`bisection_grid_point`), the lower is
+    the edge that halving reaches wherever the limits break only once inside
+    the bracket. An edge whose points contradict that (a point that holds
+    beyond one that breaks) is halved as :func:`control_band` does, from its
+    bracket.
+
+    ``margin_of`` may return every limit's margin (shape ``(limits, n)``):
+    the estimates then follow each limit, the decisions their smallest.
+    """
+    u0 = np.asarray(u0, float)
+    n = u0.size
+    lo = np.broadcast_to(np.asarray(lo, float), (n,))
+    hi = np.broadcast_to(np.asarray(hi, float), (n,))
+    live = np.isfinite(u0) & np.isfinite(lo) & np.isfinite(hi)
+    frac = np.arange(1, scan + 1) / scan
+    known = m0 is not None
+    if known:
+        m0 = np.asarray(m0, float)
+        m0 = np.array(np.broadcast_to(m0 if m0.ndim == 2 else m0[None, :], (m0.shape[0] if m0.ndim == 2 else 1, n)))
+        live &= np.min(m0, axis=0) >= 0
+    edges = [np.where(live, end, np.nan) for end in (lo, hi)]
+    state = {}
+    for i in np.flatnonzero(live):
+        for side, end in enumerate((lo, hi)):
+            if end[i] != u0[i]:
+                state[(int(i), side)] = {"phase": "scan", "end": float(end[i])}
+    first = True
+    while state:
+        asks = []  # (candidate, value, edge or None, kind, index)
+        if first and not known:
+            asks += [(int(i), u0[i], None, "u0", int(i)) for i in np.flatnonzero(live)]
+        for key, st in state.items():
+            i = key[0]
+            if st["phase"] == "scan":
+                js = [0] if first else list(range(1, scan))
+                asks += [(i, p, key, "scan", j) for j, p in zip(js, u0[i] + (st["end"] - u0[i]) * frac[js])]
+                if first:
+                    # the edge usually lies before the first scan point: points of that bracket's grid
+                    # come in the same call, for the guided search
+                    g1 = u0[i] + (st["end"] - u0[i]) * frac[0]
+                    ks = _ahead_points(steps)
+                    asks += [(i, u, key, "ahead", k) for k, u in zip(ks, bisection_grid_point(u0[i], g1, ks, steps))]
+            elif st["phase"] == "root":
+                ks = _guided_points(st)
+                asks += [(i, u, key, "root", k) for k, u in zip(ks, st["grid"](ks))]
+            else:
+                st["depth"] = min(max(1, int(per_round)), steps - st["done"])
+                tree = bisection_tree(np.array([st["a"]]), np.array([st["b"]]), st["depth"])[0]
+                asks += [(i, p, key, "tree", j) for j, p in enumerate(tree)]
+        m = np.asarray(margin_of(np.array([q[0] for q in asks], int), np.array([q[1] for q in asks], float)), float)
+        m = m if m.ndim == 2 else m[None, :]
+        got = {}
+        for col, (i, u, key, what, j) in enumerate(asks):
+            if key is None:
+                if m0 is None:
+                    m0 = np.full((m.shape[0], n), np.nan)
+                m0[:, i] = m[:, col]
+            else:
+                got.setdefault(key, []).append((what, j, u, m[:, col]))
+        if first and not known:
+            live &= np.min(m0, axis=0) >= 0
+            edges = [np.where(live, e, np.nan) for e in edges]
+            state = {k: v for k, v in state.items() if live[k[0]]}
+        first = False
+        for key in list(state):
+            st, (i, side) = state[key], key
+            ahead = [r[1:] for r in got.get(key, []) if r[0] == "ahead"]
+            res = sorted((r[1:] for r in got.get(key, []) if r[0] != "ahead"), key=lambda r: r[0])
+            if st["phase"] == "scan":
+                bad = [r for r in res if not np.min(r[2]) >= 0]
+                if bad:
+                    j = bad[0][0]
+                    good = [r for r in res if r[0] == j - 1]
+                    g, mg = (good[0][1], good[0][2]) if good else ((u0[i], m0[:, i]) if j == 0 else (st["g"], st["mg"]))
+                    _start_guided(st, g, mg, bad[0][1], bad[0][2], steps)
+                    if j == 0 and ahead and not _guided_update(st, sorted(ahead, key=lambda r: r[0]), count=False):
+                        st.update(phase="bisect", a=st["g0"], b=st["b0"], done=0)
+                    elif st["phase"] == "root" and st["khi"] - st["klo"] == 1:
+                        edges[side][i] = st["grid"]([st["klo"]])[0]
+                        del state[key]
+                elif res[-1][0] == scan - 1:
+                    edges[side][i] = st["end"]
+                    del state[key]
+                else:
+                    st["g"], st["mg"] = res[-1][1], res[-1][2]
+            elif st["phase"] == "root":
+                if not _guided_update(st, res):
+                    # the points contradict one crossing: halve the bracket as the bisection does
+                    st.update(phase="bisect", a=st["g0"], b=st["b0"], done=0)
+                elif st["khi"] - st["klo"] == 1:
+                    edges[side][i] = st["grid"]([st["klo"]])[0]
+                    del state[key]
+            else:
+                holds = np.array([[np.min(r[2]) >= 0 for r in res]])
+                a, b = walk_bisection_tree(np.array([st["a"]]), np.array([st["b"]]), holds, st["depth"])
+                st["a"], st["b"], st["done"] = float(a[0]), float(b[0]), st["done"] + st["depth"]
+                if st["done"] >= steps:
+                    edges[side][i] = st["a"]
+                    del state[key]
+    low = np.fmin(edges[0], edges[1])
+    high = np.fmax(edges[0], edges[1])
+    return np.where(live, low, np.nan), np.where(live, high, np.nan)
+
+
+def _start_guided(st, g, mg, b, mb, steps):
+    """An edge's guided search from its bracket: ``g`` holds (margins ``mg``), ``b`` breaks (``mb``)."""
+    g0, b0 = float(g), float(b)
+    st.update(phase="root", g0=g0, b0=b0, klo=0, khi=2 ** steps, rounds=0,
+              seen={0: np.asarray(mg, float), 2 ** steps: np.asarray(mb, float)},
+              grid=lambda ks: bisection_grid_point(np.full(len(ks), g0), np.full(len(ks), b0), ks, steps))
+
+
+def _quadratic_root(pts, a, b):
+    """The root in ``[a, b]`` of the parabola through three ``(x, y)`` points; None if not exactly one."""
+    (x0, y0), (x1, y1), (x2, y2) = pts
+    if len({x0, x1, x2}) < 3:
+        return None
+    d01 = (y1 - y0) / (x1 - x0)
+    d12 = (y2 - y1) / (x2 - x1)
+    c2 = (d12 - d01) / (x2 - x0)
+    # in s = x - x1: y = y1 + c1 s + c2 s^2
+    c1 = d01 + c2 * (x1 - x0)
+    if c2 == 0.0 or abs(c2) * (b - a) ** 2 < 1e-12 * (abs(c1) * (b - a) + abs(y1)):
+        roots = [x1 - y1 / c1] if c1 != 0.0 else []
+    else:
+        disc = c1 * c1 - 4.0 * c2 * y1
+        if disc < 0:
+            return None
+        q = -0.5 * (c1 + math.copysign(math.sqrt(disc), c1))
+        roots = [x1 + r for r in ((q / c2) if c2 else None, (y1 / q) if q else None) if r is not None]
+    inside = [r for r in roots if a <= r <= b]
+    return inside[0] if len(inside) == 1 else None
+
+
+def _limit_crossing(ks, vs):
+    """Grid index where one limit's margins ``vs`` (at sorted indices ``ks``, first >= 0, last < 0)
+    first cross zero: a parabola through its sign change and a neighbouring point, or regula
+    falsi on the change where that fails, or the change's middle."""
+    j = next(q for q in range(len(vs)) if not vs[q] >= 0)
+    a, b = ks[j - 1], ks[j]
+    if not (np.isfinite(vs[j - 1]) and np.isfinite(vs[j])):
+        return 0.5 * (a + b)
+    pts = [(ks[q], vs[q]) for q in range(len(vs))]
+    triples = []
+    if j >= 2 and np.isfinite(vs[j - 2]):
+        triples.append((b - a + a - ks[j - 2], [pts[j - 2], pts[j - 1], pts[j]]))
+    if j + 1 < len(vs) and np.isfinite(vs[j + 1]):
+        triples.append((ks[j + 1] - a, [pts[j - 1], pts[j], pts[j + 1]]))
+    for _, tri in sorted(triples, key=lambda t: t[0]):
+        t = _quadratic_root(tri, a, b)
+        if t is not None:
+            return t
+    if vs[j - 1] != vs[j]:
+        return b - vs[j] * (b - a) / (vs[j] - vs[j - 1])
+    return 0.5 * (a + b)
+
+
+def _guided_points(st):
+    """Grid indices a round evaluates for one edge: the neighbours of the estimated edge, a guard
+    point beyond it (so the next round has the edge close on both sides), and the bracket's middle
+    after :data:`BAND_GUIDED_ROUNDS` rounds."""
+    klo, khi = st["klo"], st["khi"]
+    ks = sorted(k for k in st["seen"] if klo <= k <= khi)
+    vals = np.array([st["seen"][k] for k in ks])
+    ts = [_limit_crossing(ks, vals[:, li]) for li in range(vals.shape[1]) if not vals[-1, li] >= 0]
+    t = min(ts) if ts else 0.5 * (klo + khi)
+    kf = min(max(int(math.floor(t)), klo), khi - 1)
+    pts = {kf, kf + 1}
+    # the guard goes the way the estimate moved since the last round (it creeps up on the edge; at
+    # first to the wider side), a share of the way to the bracket's end or as far as the estimate
+    # moved, at most half way
+    moved = t - st["t"] if "t" in st else 0.0
+    st["t"] = t
+    up = moved > 0 if moved else khi - t >= t - klo
+    room = khi - t if up else t - klo
+    reach = max(1.0, min(max(BAND_GUARD_SHARE * room, abs(moved)), 0.5 * room))
+    pts.add(int(math.ceil(t + reach)) if up else int(math.floor(t - reach)))
+    if st["rounds"] >= BAND_GUIDED_ROUNDS:
+        pts.add((klo + khi) // 2)
+    return sorted(p for p in pts if klo < p < khi)
+
+
+def _ahead_points(steps):
+    """Grid indices evaluated with the first scan point (:data:`BAND_AHEAD_SHARES` of its bracket)."""
+    top = 2 ** steps
+    return sorted({min(max(int(round(f * top)), 1), top - 1) for f in BAND_AHEAD_SHARES})
+
+
+def _guided_update(st, res, count=True):
+    """Narrow an edge's bracket by a round's points; False where they contradict one crossing."""
+    st["rounds"] += int(count)
+    hold = [r[0] for r in res if np.min(r[2]) >= 0]
+    brk = [r[0] for r in res if not np.min(r[2]) >= 0]
+    if hold and brk and max(hold) > min(brk):
+        return False
+    for k, _, v in res:
+        st["seen"][k] = np.asarray(v, float)
+    st["klo"] = max([st["klo"]] + hold)
+    st["khi"] = min([st["khi"]] + brk)
+    return True
+
+
 def control_band(margin_of, u0, lo, hi, scan=BAND_SCAN_POINTS, steps=BAND_BISECTION_STEPS,
-                 per_round=BAND_HALVINGS_PER_ROUND):
+                 per_round=BAND_HALVINGS_PER_ROUND, refine="bisection", m0=None):
     """Interval of a control around ``u0`` over which every limit holds.
 
     The limits are checked at ``u0`` and at ``scan`` points towards each end
@@ -200,12 +451,22 @@ def control_band(margin_of, u0, lo, hi, scan=BAND_SCAN_POINTS, steps=BAND_BISECT
         ``margin_of(k, u)`` -> smallest margin (fraction, positive inside) of
         candidates ``k`` (indices into ``u0``) at control values ``u``;
         NaN counts as broken. Each row's answer must not depend on the others.
+        With ``refine="root"`` it may return every limit's margin instead,
+        shape ``(limits, len(k))``.
     u0 : array_like
         The exact control of each candidate (inside its band).
     lo, hi : array_like
         The control's range (the rheostat's 0 and its maximum, say).
     per_round : int
         Halvings per call of ``margin_of`` (``2**per_round - 1`` points per edge).
+    refine : str
+        ``bisection`` (every halving, as above) or ``root``: the same edges
+        wherever the limits break once inside an edge's bracket, from a few
+        guided points per edge (:func:`_band_by_root`); fewer and smaller calls.
+    m0 : array_like, optional
+        The margins at ``u0`` where already known, shaped as ``margin_of``
+        answers (one row per limit, or one row); ``refine="root"`` then does
+        not evaluate them again.
 
     Returns
     -------
@@ -213,6 +474,8 @@ def control_band(margin_of, u0, lo, hi, scan=BAND_SCAN_POINTS, steps=BAND_BISECT
         The band's ends; NaN where ``u0`` itself breaks a limit. An end equal
         to ``lo`` or ``hi`` means the limits hold up to the end of the range.
     """
+    if refine == "root":
+        return _band_by_root(margin_of, u0, lo, hi, scan, steps, per_round, m0)
     u0 = np.asarray(u0, float)
     n = u0.size
     lo = np.broadcast_to(np.asarray(lo, float), (n,))
@@ -396,8 +659,21 @@ def no_load_setting_field(space, base_idx, u):
     return no_load_field_current_a(sub, no_load_voltages(sub))
 
 
+def limit_margin_fractions(limits):
+    """Margin fraction of every limit, shape ``(limits, candidates)``; NaN counts as broken (-inf).
+
+    Their smallest over the limits is :func:`supplycfg.envelope.smallest_margin_fraction`.
+    """
+    from .envelope import margin
+    rows = []
+    for name, (val, limit, kind, unit) in limits.items():
+        _, f = margin(np.asarray(val, float), limit, kind, unit)
+        rows.append(np.where(np.isnan(f), -np.inf, f))
+    return np.vstack(rows)
+
+
 def option_advice(space, evaluate, u, limits, setting_field, res=None, scan=BAND_SCAN_POINTS,
-                  steps=BAND_BISECTION_STEPS):
+                  steps=BAND_BISECTION_STEPS, refine="bisection"):
     """Readings and band of every candidate of a search whose control is continuous.
 
     Parameters
@@ -415,19 +691,23 @@ def option_advice(space, evaluate, u, limits, setting_field, res=None, scan=BAND
         (shape (n * nc,)).
     res : dict, optional
         Solver resolution passed to ``evaluate``.
+    refine : str
+        How :func:`control_band` refines the band's edges (``bisection`` or
+        ``root``; with ``root`` the margins at ``u`` are taken from ``limits``).
 
     Returns
     -------
     (list of dict, int)
         One ``{"readings", "band"}`` per base, and the candidate evaluations spent.
     """
-    from .envelope import control_range, smallest_margin_fraction
+    from .envelope import control_range
     nb = len(space.bases)
     bases = np.arange(nb)
     controls = [b[3] for b in space.bases]
     lo = np.array([control_range(space.machine, c)[0] for c in controls])
     hi = np.array([control_range(space.machine, c)[1] for c in controls])
-    ok = smallest_margin_fraction(limits) >= 0
+    m_at_u = limit_margin_fractions(limits)
+    ok = np.min(m_at_u, axis=0) >= 0
     u = np.asarray(u, float)
     uu = np.where(ok, u, np.nan)
     count = [0]
@@ -435,18 +715,25 @@ def option_advice(space, evaluate, u, limits, setting_field, res=None, scan=BAND
     def margin_of(k, val):
         count[0] += len(k) * space.nc
         lim = evaluate(space, bases[k], val, **({} if res is None else {"res": res}))[0]
-        return smallest_margin_fraction(lim)
+        m = limit_margin_fractions(lim)
+        # the guided search aims at each limit's own crossing; halving needs the smallest only
+        return m if refine == "root" else np.min(m, axis=0)
 
-    band_lo, band_hi = control_band(margin_of, uu, lo, hi, scan, steps)
+    band_lo, band_hi = control_band(margin_of, uu, lo, hi, scan, steps, refine=refine,
+                                    m0=m_at_u if refine == "root" else None)
     have = np.isfinite(band_lo)
-    # field currents at the exact control and at both ends of the band
-    c0, h0 = field_at_corners(setting_field(space, bases, np.where(np.isfinite(u), u, lo)), nb,
-                              space.corners, space.nominal)
-    cl, hl = field_at_corners(setting_field(space, bases, np.where(have, band_lo, lo)), nb,
-                              space.corners, space.nominal)
-    ch, hh = field_at_corners(setting_field(space, bases, np.where(have, band_hi, lo)), nb,
-                              space.corners, space.nominal)
-    count[0] += 3 * nb * space.nc
+    # field currents at the exact control and at both ends of the band (of the bases with one), in
+    # one solve: each row's operating point is its own
+    hv = np.flatnonzero(have)
+    cold, hot = field_at_corners(setting_field(space, np.concatenate([bases, hv, hv]),
+                                               np.concatenate([np.where(np.isfinite(u), u, lo), band_lo[hv],
+                                                               band_hi[hv]])),
+                                 nb + 2 * hv.size, space.corners, space.nominal)
+    c0, h0 = cold[:nb], hot[:nb]
+    cl, hl, ch, hh = (np.full(nb, np.nan) for _ in range(4))
+    cl[hv], hl[hv] = cold[nb:nb + hv.size], hot[nb:nb + hv.size]
+    ch[hv], hh[hv] = cold[nb + hv.size:], hot[nb + hv.size:]
+    count[0] += (nb + 2 * hv.size) * space.nc
     out = []
     for i in range(nb):
         ctl = controls[i]

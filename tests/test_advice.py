@@ -28,7 +28,8 @@ from supplycfg.circuit import Load, Setting, check_setting, operating_points
 from supplycfg.jobs import command_cautions, welding
 from supplycfg.machine import load_machine, machine_from_dict
 from supplycfg.profile import load_profile, profile_from_dict
-from supplycfg.readings import (control_band, diverter_rating, exciter_field_current_max_a,
+from supplycfg.readings import (bisection_grid_point, bisection_tree, control_band, diverter_rating,
+                                exciter_field_current_max_a,
                                 preferred_resistance_ohm, readings_and_band, round_to, rounded_band,
                                 settable_step)
 from supplycfg.search import Option, margin_steps, merge_identical, rank_options, search
@@ -146,6 +147,121 @@ def test_control_band_with_several_halvings_per_call_is_exact(per_round):
     calls.clear()
     control_band(margin_of, u0, 0.0, 10.0, scan=6, steps=11, per_round=per_round)
     assert len(calls) == 1 + -(-11 // per_round)
+
+
+def test_bisection_grid_point_is_the_halving_number():
+    """Every point of the grid of ``depth`` halvings, computed as a halving reaches it (closed form:
+    the bisection tree's nodes, in heap order, are the grid's odd multiples level by level)."""
+    a, b, depth = np.array([3.0, 0.1]), np.array([0.7, 9.3]), 5
+    tree = bisection_tree(a, b, depth)
+    top = 2 ** depth
+    for level in range(depth):
+        for pos in range(2 ** level):
+            k = (2 * pos + 1) * (top >> (level + 1))
+            np.testing.assert_array_equal(bisection_grid_point(a, b, np.full(2, k), depth),
+                                          tree[:, 2 ** level - 1 + pos])
+    np.testing.assert_array_equal(bisection_grid_point(a, b, np.array([0, top]), depth), [3.0, 9.3])
+
+
+def _two_limits(calls):
+    """Two limits per candidate: a rising line and a falling exponential (the edges 2 + 0.37 k and
+    7 - ln(1 + 0.1 k), closed forms), with their smallest as the margin when asked for one row."""
+    def margin_of(k, u, rows=True):
+        calls.append(len(k))
+        u = np.asarray(u, float)
+        k = np.asarray(k, float)
+        m = np.vstack([(u - 2.0 - 0.37 * k) / 10.0, 1.0 + 0.1 * k - np.exp(u - 7.0)])
+        return m if rows else m.min(axis=0)
+    return margin_of
+
+
+@pytest.mark.parametrize("scan,steps", [(6, 11), (4, 10), (8, 18), (1, 12)])
+def test_control_band_guided_by_roots_gives_the_halving_edges(scan, steps):
+    """``refine="root"`` gives bit for bit the edges of halving (closed form: each limit breaks once),
+    per limit or from the smallest margin alone; the margins at ``u0`` may be given."""
+    calls = []
+    margin_of = _two_limits(calls)
+    u0 = np.array([3.0, 6.5, 4.0, 1.0, 8.5, np.nan, 2.5])
+    ref = control_band(lambda k, u: margin_of(k, u, rows=False), u0, 0.0, 10.0, scan=scan, steps=steps)
+    for rows in (True, False):
+        calls.clear()
+        got = control_band(lambda k, u: margin_of(k, u, rows), u0, 0.0, 10.0, scan=scan, steps=steps,
+                           refine="root")
+        np.testing.assert_array_equal(got[0], ref[0])
+        np.testing.assert_array_equal(got[1], ref[1])
+    known = margin_of(np.arange(u0.size), np.nan_to_num(u0))
+    got = control_band(margin_of, u0, 0.0, 10.0, scan=scan, steps=steps, refine="root", m0=known)
+    np.testing.assert_array_equal(got[0], ref[0])
+    np.testing.assert_array_equal(got[1], ref[1])
+
+
+def test_battery_bands_guided_by_roots_are_the_halving_bands():
+    """The battery demo's bands of the main charge's and of the finish's field, found by the guided
+    search, are bit for bit those of halving (the method the bands state), in fewer calls."""
+    from supplycfg.envelope import build_space
+    from supplycfg.jobs import battery
+    from supplycfg import readings
+    m, p = (load_machine(MACHINES / "charging-set.toml"), load_profile(LOADS / "battery-charging.toml"))
+    space = build_space(m, p)
+    seen = {}
+    real = readings.control_band
+
+    def recording(margin_of, *args, **kw):
+        calls = []
+
+        def counted(k, u):
+            calls.append(len(k))
+            return margin_of(k, u)
+        out = real(counted, *args, **kw)
+        seen.setdefault(kw.get("refine", "bisection"), []).append((out, len(calls)))
+        return out
+
+    try:
+        readings.control_band = recording
+        battery.solve(space)
+        plan = battery.charge_plan(space)
+        lim, _, _ = battery.plan_figures(plan)
+        readings.option_advice(space, battery.evaluate_limits, plan.u1, lim, battery.start_setting_field, scan=4,
+                               steps=10)
+    finally:
+        readings.control_band = real
+    (guided, n_guided), _ = seen["root"]
+    [(halved, n_halved)] = seen["bisection"]
+    assert np.isfinite(guided[0]).sum() >= 4
+    np.testing.assert_array_equal(guided[0], halved[0])
+    np.testing.assert_array_equal(guided[1], halved[1])
+    assert n_guided < n_halved
+
+
+def test_control_band_guided_by_roots_halves_where_points_contradict_one_crossing():
+    """A margin broken in a narrow hole inside the bracket (closed form: the hole 5.078 +- 0.01 lies on
+    a grid point the guided search evaluates first, the edge at 6): a point that breaks before one that
+    holds sends that edge back to halving, which never visits the hole, so the edges are halving's."""
+    def margin_of(k, u):
+        u = np.asarray(u, float)
+        return np.minimum(6.0 - u, np.abs(u - 5.078125) - 0.01) / 10.0
+
+    u0 = np.array([5.0])
+    ref = control_band(margin_of, u0, 4.999, 10.0, scan=4, steps=10)
+    got = control_band(margin_of, u0, 4.999, 10.0, scan=4, steps=10, refine="root")
+    assert_allclose(ref[1], 6.0, atol=2e-3)
+    np.testing.assert_array_equal(got[0], ref[0])
+    np.testing.assert_array_equal(got[1], ref[1])
+
+
+def test_control_band_guided_by_roots_with_a_second_stretch():
+    """Where the scan separates two stretches that hold (closed form: bisection of a bracket), the
+    guided edges are those of halving too."""
+    def margin_of(k, u):
+        u = np.asarray(u, float)
+        shift = 0.37 * np.asarray(k, float)
+        return np.maximum(np.minimum(u - 2.0 - shift, 7.1 - u), np.minimum(u - 8.3, 9.6 - u)) / 10.0
+
+    u0 = np.array([3.0, 6.5, 9.0, 1.0, 8.5, np.nan])
+    ref = control_band(margin_of, u0, 0.0, 10.0, scan=6, steps=11)
+    got = control_band(margin_of, u0, 0.0, 10.0, scan=6, steps=11, refine="root")
+    np.testing.assert_array_equal(got[0], ref[0])
+    np.testing.assert_array_equal(got[1], ref[1])
 
 
 def test_preferred_diverter_values():

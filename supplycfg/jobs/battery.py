@@ -46,7 +46,7 @@ import numpy as np
 
 from ..cautions import caution
 from ..circuit import (Setting, USES_SERIES, build_circuit, check_setting, circuit_residual, machine_state,
-                       no_load_voltages, normal_points)
+                       no_load_voltages, normal_points, refine_bracketed_roots)
 from ..envelope import (Space, control_kind, control_range, critical_resistance_ratios, envelope_corners,
                         expand_candidates, worst_over_corners)
 from ..errors import InputError
@@ -337,6 +337,33 @@ def reaction_rates_per_h(chem, soc, internal_v, temperature_c=REFERENCE_TEMPERAT
     return stored, gas
 
 
+class _CellRates:
+    """The rate laws of :func:`reaction_rates_per_h` with what depends only on the state of charge
+    and the temperature worked out once (the same numbers; a Newton or a load-curve solve calls the
+    laws many times at one state of charge)."""
+
+    def __init__(self, chem, soc, temperature_c, ocv_range):
+        self.e = open_circuit_voltage_per_cell(chem, soc, ocv_range)
+        self.bc, self.bg, self.uref = chem.charge_slope_v, chem.gas_slope_v, chem.gas_reference_voltage_v
+        self.a = charge_acceptance_per_h(chem, soc) * _temperature_speedup(chem, temperature_c, self.bc)
+        self.g = 1e-3 * chem.gas_reference_ma_per_ah * _temperature_speedup(chem, temperature_c, self.bg)
+        with np.errstate(over="ignore"):
+            self.ge = np.exp((self.e - self.uref) / self.bg)
+
+    def rates(self, u):
+        """``(r_s, r_g)`` at internal voltage ``u`` [1/h]."""
+        with np.errstate(over="ignore"):
+            return self.a * np.expm1((u - self.e) / self.bc), self.g * (np.exp((u - self.uref) / self.bg) - self.ge)
+
+    def rates_and_slopes(self, u):
+        """``(r_s, r_g, d r_s/dU, d r_g/dU)`` at ``u``."""
+        with np.errstate(over="ignore"):
+            x = (u - self.e) / self.bc
+            eg = np.exp((u - self.uref) / self.bg)
+            return (self.a * np.expm1(x), self.g * (eg - self.ge), self.a * np.exp(x) / self.bc,
+                    self.g * eg / self.bg)
+
+
 def _rate_slopes(chem, soc, internal_v, temperature_c, ocv_range):
     """d r_s/dU and d r_g/dU [1/(h V)]."""
     e = open_circuit_voltage_per_cell(chem, soc, ocv_range)
@@ -432,15 +459,15 @@ def cell_on_charge(chem, soc, rate_per_h, temperature_c=REFERENCE_TEMPERATURE_C,
                                   np.asarray(temperature_c, float))
     e = open_circuit_voltage_per_cell(chem, s, ocv_range)
     rp = np.maximum(r, 0.0)
+    laws = _CellRates(chem, s, t, ocv_range)
 
     def fun(u):
-        st, gs = reaction_rates_per_h(chem, s, u, t, ocv_range)
-        d1, d2 = _rate_slopes(chem, s, u, t, ocv_range)
+        st, gs, d1, d2 = laws.rates_and_slopes(u)
         return st + gs - rp, d1 + d2
 
     u = np.where(rp > 0, _internal_voltage_bound(chem, s, rp, t, ocv_range), e)
     u = np.maximum(_newton_down(fun, u), e)
-    st, gs = reaction_rates_per_h(chem, s, u, t, ocv_range)
+    st, gs = laws.rates(u)
     charge = r > 0
     stored = np.where(charge, st, r)
     gas = np.where(charge, gs, 0.0)
@@ -459,15 +486,15 @@ def cell_at_voltage(chem, soc, volts_per_cell, temperature_c=REFERENCE_TEMPERATU
                                   np.asarray(temperature_c, float))
     e = open_circuit_voltage_per_cell(chem, s, ocv_range)
     rc = chem.resistance_ohm_ah if resistance_ohm_ah is None else float(resistance_ohm_ah)
+    laws = _CellRates(chem, s, t, ocv_range)
 
     def fun(u):
-        st, gs = reaction_rates_per_h(chem, s, u, t, ocv_range)
-        d1, d2 = _rate_slopes(chem, s, u, t, ocv_range)
+        st, gs, d1, d2 = laws.rates_and_slopes(u)
         return u + rc * (st + gs) - v, 1.0 + rc * (d1 + d2)
 
     charge = v > e
     u = np.where(charge, _newton_down(fun, np.where(charge, v, e)), e)
-    st, gs = reaction_rates_per_h(chem, s, u, t, ocv_range)
+    st, gs = laws.rates(u)
     r = np.where(charge, st + gs, (v - e) / rc)
     return CellPoint(v.astype(float), u, r, np.where(charge, st, r), np.where(charge, gs, 0.0))
 
@@ -825,8 +852,11 @@ PLAN_SOLVE = {"grid": 49, "steps": 40}
 PLAN_INTERVALS = 32
 #: Intervals of the first look along the main charge for the hand-over voltage.
 SCAN_INTERVALS = 16
-#: Regula-falsi (Illinois) steps placing the hand-over on the hand-over voltage.
+#: Regula-falsi (Illinois) steps placing the hand-over on the hand-over voltage (at most).
 HANDOVER_STEPS = 30
+#: ... ending once every bracket is this narrow relative to the state of charge (a few units in
+#: the last place: the steps after it move the hand-over by about 1e-15).
+HANDOVER_TOLERANCE = 8e-16
 #: Below half the float current the machine no longer charges the bank in any useful sense
 #: (model choice; IEC 62485-2 float currents are about 1 mA/Ah, seen).
 CURRENT_FLOOR_PER_H = 5e-4
@@ -836,7 +866,8 @@ CURRENT_MARGIN_FRACTION = 0.03
 #: ... and this much below the highest cell voltage [V per cell]: about the reading of a cell
 #: voltmeter (common practice).
 VOLTAGE_MARGIN_V_PER_CELL = 0.01
-#: Halvings of the field control when it is solved for a target point (2^-48 of its range).
+#: Refinement steps of the field control when it is solved for a target point (at most; half regula
+#: falsi, half halving, see :func:`supplycfg.circuit.refine_bracketed_roots`).
 CONTROL_STEPS = 48
 
 
@@ -868,12 +899,32 @@ def bank_line(job, soc):
     rb, rc = job.internal_resistance_ohm, job.cable_resistance_ohm
     ocv = job.open_circuit_voltage_per_cell_v
     e = open_circuit_voltage_per_cell(chem, s, ocv)
+    laws = _CellRates(chem, s, job.temperature_c, ocv)
 
     def vi(u):
-        st, gs = reaction_rates_per_h(chem, s, u, job.temperature_c, ocv)
+        # the numbers of reaction_rates_per_h and of the expressions in the docstring, with fewer
+        # temporaries (a load-curve grid is large): products and sums in place, each once
+        u = np.asarray(u, float)
+        over = u - e
+        with np.errstate(over="ignore"):
+            st = np.expm1(over / laws.bc)
+            gs = u - laws.uref
+            gs /= laws.bg
+            np.exp(gs, out=gs)
+        st *= laws.a
+        gs -= laws.ge
+        gs *= laws.g
+        st += gs
+        st *= cap                      # the charging current, cap (r_s + r_g)
+        over *= n
+        over /= rb                     # the discharge through the bank, n (U - E) / Rb
         on = u >= e
-        i = np.where(on, cap * (st + gs), n * (u - e) / rb)
-        v = np.where(on, n * u + i * rb, n * u) + i * rc
+        i = np.where(on, st, over)
+        nu = u * n
+        v = i * rb
+        v += nu
+        v = np.where(on, v, nu)
+        v += i * rc
         return v, i
     return vi
 
@@ -966,8 +1017,9 @@ def control_for_point(space, base_idx, corner_idx, terminal_voltage_v, load_curr
     """Field control that puts each (base, corner) row at a given terminal voltage and load current.
 
     The circuit residual at the point rises with the field's strength, so the
-    control is found by halving its range; where no value reaches the point,
-    the end of the range that comes closest is returned.
+    control is the root of the residual over its range (bracketed regula
+    falsi, then halving); where no value reaches the point, the end of the
+    range that comes closest is returned.
 
     Returns
     -------
@@ -1000,13 +1052,11 @@ def control_for_point(space, base_idx, corner_idx, terminal_voltage_v, load_curr
         return circuit_residual(sub, p, v, i)
     h_lo, h_hi = h(np.where(fixed, 0.0, lo)), h(np.where(fixed, 0.0, hi))
     ok = (np.signbit(h_lo) != np.signbit(h_hi)) & np.isfinite(h_lo) & np.isfinite(h_hi)
-    a, b, fa = lo.copy(), hi.copy(), h_lo.copy()
-    for _ in range(CONTROL_STEPS):
-        c = 0.5 * (a + b)
-        fc = h(np.where(fixed, 0.0, c))
-        same = np.signbit(fc) == np.signbit(fa)
-        a, fa, b = np.where(same, c, a), np.where(same, fc, fa), np.where(same, b, c)
-    u = np.where(ok, 0.5 * (a + b), np.where(np.abs(h_lo) < np.abs(h_hi), lo, hi))
+    # regula falsi (Illinois), then halving: the root to the residual's 1e-11 V in a dozen steps or so
+    # where halving took 48; rows without a sign change get an empty bracket and wait
+    lo0 = np.where(fixed, 0.0, lo)
+    root = refine_bracketed_roots(h, lo0, np.where(ok, hi, lo0), np.where(ok, h_lo, 0.0), CONTROL_STEPS)
+    u = np.where(ok, root, np.where(np.abs(h_lo) < np.abs(h_hi), lo, hi))
     return np.where(fixed, np.nan, u), ok & ~fixed
 
 
@@ -1201,12 +1251,17 @@ def finish_controls(space, base_idx, u1, rows_base_pos, rows_corner, handed_over
     # (a) the finishing current where the finish starts
     ia = (1.0 - CURRENT_MARGIN_FRACTION) * finishing_current_a(job)
     pa = cell_on_charge(chem, handover_soc[sel], ia / cap, temp, ocv, rbah)
-    ua, _ = control_for_point(space, rb_, rc_, n * pa.volts_per_cell + ia * job.cable_resistance_ohm, ia)
+    va = n * pa.volts_per_cell + ia * job.cable_resistance_ohm
     # (b) the highest cell voltage at the end of charge
     vt = float(highest_volts_per_cell(chem, temp)) - VOLTAGE_MARGIN_V_PER_CELL
     pb = cell_at_voltage(chem, np.full(sel.size, job.state_of_charge[1]), vt, temp, ocv, rbah)
     ib = cap * pb.rate_per_h
-    ub, _ = control_for_point(space, rb_, rc_, n * vt + ib * job.cable_resistance_ohm, ib)
+    vb = n * vt + ib * job.cable_resistance_ohm
+    # both points in one solve (each row is halved on its own)
+    u_ab, _ = control_for_point(space, np.concatenate([rb_, rb_]), np.concatenate([rc_, rc_]),
+                                np.concatenate([np.broadcast_to(va, sel.shape), np.broadcast_to(vb, sel.shape)]),
+                                np.concatenate([np.full(sel.size, ia), np.broadcast_to(ib, sel.shape)]))
+    ua, ub = u_ab[:sel.size], u_ab[sel.size:]
     rows_sign = sign[rows_base_pos[sel]]
     u2 = _weakest_per_base(_weaker(ua, ub, rows_sign), rows_base_pos[sel], base_idx.size, sign)
     u2 = np.where(np.isnan(u2), u1, u2)
@@ -1258,6 +1313,10 @@ def _handover(space, rows_base, rows_corner, rows_u, job):
             flip = np.signbit(fc) != np.signbit(fb)
             a, fa = np.where(flip, b, a), np.where(flip, fb, 0.5 * fa)
             b, fb = c, fc
+            # every row on its root, or its bracket down to a few units in the last place: further
+            # steps only trade ulps
+            if np.all((fa == 0) | (fb == 0) | (np.abs(b - a) <= HANDOVER_TOLERANCE * np.abs(b))):
+                break
         soc[idx] = np.where(np.abs(fa) < np.abs(fb), a, b)
     return handed, soc
 
@@ -1301,7 +1360,20 @@ def charge_plan(space, base_idx=None, u1=None, u2=None, main_from=None):
     rows_corner = np.tile(np.arange(nc), base_idx.size)
     nr = rows_base.size
     s0, s1 = job.state_of_charge
-    if main_from is None:
+    finish_part = None
+    if main_from is None and not aim_start:
+        # the field of each stage is known before either is solved: both stages in one solve (the
+        # finish of every row that hands over; those whose main charge stalls are dropped below)
+        handed, s_ho = _handover(space, rows_base, rows_corner, u1[pos], job)
+        if u2 is None:
+            u2 = finish_controls(space, base_idx, u1, pos, rows_corner, handed, s_ho)
+        u2 = np.asarray(u2, float)
+        ho = np.flatnonzero(handed)
+        both = _stage(space, np.concatenate([rows_base, rows_base[ho]]), np.concatenate([rows_corner, rows_corner[ho]]),
+                      np.concatenate([u1[pos], u2[pos][ho]]), np.concatenate([np.full(nr, s0), s_ho[ho]]),
+                      np.concatenate([s_ho, np.full(ho.size, s1)]))
+        main, finish_part = _stage_rows(both, slice(0, nr)), (ho, _stage_rows(both, slice(nr, None)))
+    elif main_from is None:
         handed, s_ho = _handover(space, rows_base, rows_corner, u1[pos], job)
         main = _stage(space, rows_base, rows_corner, u1[pos], np.full(nr, s0), s_ho)
         if aim_start:
@@ -1330,7 +1402,12 @@ def charge_plan(space, base_idx=None, u1=None, u2=None, main_from=None):
     reached = handed & np.isfinite(main.time_h[:, -1])
     finish = _held(main)
     sel = np.flatnonzero(reached)
-    if sel.size:
+    if sel.size and finish_part is not None:
+        ho, part = finish_part
+        at = np.searchsorted(ho, sel)
+        for f in _STAGE_FIELDS:
+            getattr(finish, f)[sel] = getattr(part, f)[at]
+    elif sel.size:
         part = _stage(space, rows_base[sel], rows_corner[sel], u2[pos][sel], s_ho[sel], np.full(sel.size, s1))
         for f in _STAGE_FIELDS:
             getattr(finish, f)[sel] = getattr(part, f)
@@ -1339,6 +1416,11 @@ def charge_plan(space, base_idx=None, u1=None, u2=None, main_from=None):
 
 _STAGE_FIELDS = ("soc", "time_h", "ah", "kwh", "current_a", "terminal_voltage_v", "volts_per_cell", "stored_current_a",
                  "gas_current_a", "armature_current_a", "x", "generated_emf_v", "found", "converged", "stalled_at")
+
+
+def _stage_rows(stage, rows):
+    """The rows ``rows`` (an index or a slice) of a stage."""
+    return Stage(**{f: getattr(stage, f)[rows] for f in _STAGE_FIELDS})
 
 
 def _held(stage):
@@ -1609,6 +1691,49 @@ def condition_text(cond):
     return f"{cond['speed_rpm']:g} rpm, windings {cond['winding_temperature_c']:g} degC"
 
 
+def _plan_limits(plan, rf, sub1, sub2, vnl_rows):
+    """The limits of a plan (see :func:`plan_figures`) from its row figures, the circuits of its two
+    fields and the no-load voltages of the first; and the drive's figures at its load points."""
+    space = plan.space
+    job = space.profile.battery
+    nb, nc = plan.base_idx.size, space.nc
+    worst_max = lambda k: worst_over_corners(rf[k], nb, nc, "max")
+    hours_worst = np.asarray(rf["hours"]).reshape(nb, nc).max(axis=1)
+    lim = {
+        "charge_current_max": (worst_max("main_peak"), job.max_charge_current_a, "max", "A"),
+        "main_charge_current_min": (worst_over_corners(rf["main_low"], nb, nc, "min"), job.min_charge_current_a,
+                                    "min", "A"),
+        "finish_current_max": (worst_max("finish_peak"), finishing_current_a(job), "max", "A"),
+        "end_volts_per_cell": (worst_max("highest_vpc"),
+                               float(highest_volts_per_cell(chemistry(job.chemistry), job.temperature_c)), "max", "V"),
+        "hours_to_full": (np.where(np.isfinite(hours_worst), hours_worst, np.inf), job.target_hours, "max", "h"),
+        "no_load_above_cutout": (worst_over_corners(vnl_rows, nb, nc, "min"), cutout_closing_voltage_v(job), "min",
+                                 "V"),
+        "armature_current_rating": (worst_max("max_ia"), space.machine.rated_armature_current_a, "max", "A"),
+    }
+    # the drive at the plan's load points (at the coupled speed of each)
+    mn, fn = plan.main, plan.finish
+    with np.errstate(invalid="ignore"):
+        pw = np.where(np.isfinite(mn.terminal_voltage_v * mn.current_a), mn.terminal_voltage_v * mn.current_a, -np.inf)
+    kmax = np.argmax(pw, axis=1)
+    rr = np.arange(kmax.size)
+    drive_lim, drive_figs = load_point_figures(space, nb, [
+        ("start of charge", sub1, mn.terminal_voltage_v[:, 0], mn.current_a[:, 0]),
+        ("heaviest point of the main charge", sub1, mn.terminal_voltage_v[rr, kmax], mn.current_a[rr, kmax]),
+        ("hand-over", sub1, mn.terminal_voltage_v[:, -1], mn.current_a[:, -1]),
+        ("start of the finish", sub2, fn.terminal_voltage_v[:, 0], fn.current_a[:, 0]),
+        ("end of charge", sub2, fn.terminal_voltage_v[:, -1], fn.current_a[:, -1])], missing_collapses=False)
+    lim.update(drive_lim)
+    return lim, drive_figs
+
+
+def plan_limits(plan):
+    """The limits of :func:`plan_figures` alone (what a band's margins need; no figures or extras)."""
+    sub1, _ = expand_candidates(plan.space, plan.base_idx, plan.u1)
+    sub2, _ = expand_candidates(plan.space, plan.base_idx, plan.u2)
+    return _plan_limits(plan, row_figures(plan), sub1, sub2, no_load_voltages(sub1))[0]
+
+
 def plan_figures(plan):
     """Limits, figures and extras of every planned base (the search's contract).
 
@@ -1627,7 +1752,6 @@ def plan_figures(plan):
     space = plan.space
     job = space.profile.battery
     chem = chemistry(job.chemistry)
-    m_ = space.machine
     nb, nc = plan.base_idx.size, space.nc
     rf = row_figures(plan)
     grid = {k: np.asarray(v).reshape(nb, nc) for k, v in rf.items()}
@@ -1653,15 +1777,7 @@ def plan_figures(plan):
     at = lambda k, c=nom: grid[k][:, c]
     target = job.target_hours
     hours_nom = at("hours")
-    lim = {
-        "charge_current_max": (worst_max("main_peak"), job.max_charge_current_a, "max", "A"),
-        "main_charge_current_min": (worst_min("main_low"), job.min_charge_current_a, "min", "A"),
-        "finish_current_max": (worst_max("finish_peak"), finishing_current_a(job), "max", "A"),
-        "end_volts_per_cell": (worst_max("highest_vpc"), vmax, "max", "V"),
-        "hours_to_full": (np.where(np.isfinite(hours_worst), hours_worst, np.inf), target, "max", "h"),
-        "no_load_above_cutout": (worst_over_corners(vnl_rows, nb, nc, "min"), close_v, "min", "V"),
-        "armature_current_rating": (worst_max("max_ia"), m_.rated_armature_current_a, "max", "A"),
-    }
+    lim, drive_figs = _plan_limits(plan, rf, sub1, sub2, vnl_rows)
     nanify = lambda a: np.where(np.isfinite(a), a, np.nan)
     figs = {
         "hours_to_full": np.where(hours_nom <= target, hours_nom, np.nan),
@@ -1704,19 +1820,6 @@ def plan_figures(plan):
         "critical_resistance_ratio": crit,
         "converged": grid["converged"].all(axis=1).astype(float),
     }
-    # the drive at the plan's load points (at the coupled speed of each)
-    mn, fn = plan.main, plan.finish
-    with np.errstate(invalid="ignore"):
-        pw = np.where(np.isfinite(mn.terminal_voltage_v * mn.current_a), mn.terminal_voltage_v * mn.current_a, -np.inf)
-    kmax = np.argmax(pw, axis=1)
-    rr = np.arange(kmax.size)
-    drive_lim, drive_figs = load_point_figures(space, nb, [
-        ("start of charge", sub1, mn.terminal_voltage_v[:, 0], mn.current_a[:, 0]),
-        ("heaviest point of the main charge", sub1, mn.terminal_voltage_v[rr, kmax], mn.current_a[rr, kmax]),
-        ("hand-over", sub1, mn.terminal_voltage_v[:, -1], mn.current_a[:, -1]),
-        ("start of the finish", sub2, fn.terminal_voltage_v[:, 0], fn.current_a[:, 0]),
-        ("end of charge", sub2, fn.terminal_voltage_v[:, -1], fn.current_a[:, -1])], missing_collapses=False)
-    lim.update(drive_lim)
     figs.update(drive_figs)
     conds = {name: {"speed_rpm": space.corners[c][0], "winding_temperature_c": space.corners[c][1]}
              for name, c in (("setting", nom), ("cold", cold), ("hot", hot))}
@@ -1762,7 +1865,8 @@ def solve(space, advice=True):
     # readings at the start of charge and the band of main-charge fields that keeps every limit
     # each band step re-solves whole plans: a coarser scan and fewer halvings (a few hundredths of
     # an ohm, far below what the readings are rounded to) keep the search quick
-    advice, n = option_advice(space, evaluate, plan.u1, lim, start_setting_field, scan=4, steps=10)
+    advice, n = option_advice(space, evaluate_limits, plan.u1, lim, start_setting_field, scan=4, steps=10,
+                              refine="root")
     finish, n2 = finish_advice(plan, lim)
     extras = [dict(e or {}, **a) for e, a in zip(extras, advice)]
     for e, a, f in zip(extras, advice, finish):
@@ -1803,14 +1907,14 @@ def finish_advice(plan, limits):
         return [None] * nb, 0
 
     def evaluate_finish(space_, base_idx, u, res=None):
-        lim, figs, _ = plan_figures(charge_plan(space_, base_idx, u1[base_idx], u, main_from=plan))
-        return lim, figs
+        return plan_limits(charge_plan(space_, base_idx, u1[base_idx], u, main_from=plan)), None
 
     def finish_field(space_, base_idx, u):
         sub, _ = expand_candidates(space_, base_idx, u)
         return bank_points(sub, job, soc[base_idx].ravel())["shunt_field_current_a"]
 
-    advice, n = option_advice(space, evaluate_finish, u2, limits, finish_field, scan=4, steps=10)
+    advice, n = option_advice(space, evaluate_finish, u2, limits, finish_field, scan=4, steps=10,
+                              refine="root")
     return [a if np.isfinite(u2[i]) else None for i, a in enumerate(advice)], n
 
 
@@ -1822,6 +1926,11 @@ def evaluate(space, base_idx, u, res=None):
     plan = charge_plan(space, np.asarray(base_idx, int), np.asarray(u, float))
     lim, figs, _ = plan_figures(plan)
     return lim, figs
+
+
+def evaluate_limits(space, base_idx, u, res=None):
+    """The limits of :func:`evaluate` alone (the figures are None): what a band's margins need."""
+    return plan_limits(charge_plan(space, np.asarray(base_idx, int), np.asarray(u, float))), None
 
 
 def start_setting_field(space, base_idx, u):
