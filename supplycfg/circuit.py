@@ -397,7 +397,7 @@ def circuit_residual(circ, p, v, il):
     field, ia, ibr = currents_from_voltage(p, v, il)
     x = field_after_armature_reaction(field + p["c"] * ibr, circ.ar.mmf(ia) / circ.nsh)
     occ = circ.occ.emf(x)
-    s = p["s"] if circ.drive is None else circ.drive.speed_ratio(p, occ * ia, 0.0, v * il)[0]
+    s = p["s"] if circ.drive is None else circ.drive.speed_ratio(p, occ * ia, 0.0, v * il, flags=False)[0]
     return s * occ - ia * p["ra"] - ibr * p["rbr"] - brush_drop(ia, circ.vb, circ.ir) - v
 
 
@@ -1629,7 +1629,7 @@ def terminal_voltage_at_armature_current(circ, p, ia):
         s = p["s"]
     else:
         # no shunt current here: IL = Ia, so the output (s OCC - drops) Ia is linear in the speed
-        s = circ.drive.speed_ratio(p, occ * ia, occ * ia, -drops * ia)[0]
+        s = circ.drive.speed_ratio(p, occ * ia, occ * ia, -drops * ia, flags=False)[0]
     return s * occ - drops
 
 

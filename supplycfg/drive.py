@@ -418,7 +418,7 @@ class DriveRows:
             p = self.rot_w * x ** k
         return p, k * p / s
 
-    def speed_ratio(self, p, a, b, c):
+    def speed_ratio(self, p, a, b, c, flags=True):
         """Generator speed ratio where the drive's characteristic meets the shaft power.
 
         The shaft power as a function of the speed ratio ``s`` is
@@ -434,6 +434,10 @@ class DriveRows:
             Row parameters (unused: one drive turns every row).
         a, b, c : array_like
             [W]
+        flags : bool
+            Also return ``converged`` and ``unique``; False gives None for
+            both (a residual needs the speed alone, and the last slope is
+            then not evaluated).
 
         Returns
         -------
@@ -451,10 +455,12 @@ class DriveRows:
         else:
             a, b, c = np.broadcast_arrays(np.asarray(a, float), np.asarray(b, float), np.asarray(c, float))
             linear_out = np.any(b != 0)
-        s = np.full(a.shape, s0)
         lo, hi = SPEED_FLOOR_SHARE * s0, SPEED_CEILING_SHARE * s0
         out_c = self.stray * np.abs(c)
         tol = SPEED_TOLERANCE * s0
+        if not linear_out and self.rot_exp == 1.5:
+            return self._speed_ratio_sqrt(a, out_c, lo, hi, tol, flags)
+        s = np.full(a.shape, s0)
         f, df = self._residual(s, a, b, c, out_c, linear_out)
         for _ in range(SPEED_NEWTON_STEPS):
             open_ = ~(np.abs(f) <= tol)
@@ -481,6 +487,78 @@ class DriveRows:
                 s[rows] = ss
                 f[rows], df[rows] = self._residual(ss, a[rows], b[rows] if linear_out else b, c[rows],
                                                    out_c[rows], linear_out)
+        return s, np.abs(f) <= 1e-12 * s0, df > 0
+
+    def _speed_ratio_sqrt(self, a, out_c, lo, hi, tol, flags):
+        """:meth:`speed_ratio` for the common case: no output term linear in the speed, and
+        rotational loss as ``s^1.5``. The same Newton steps and stop test, with the drive
+        equation gathered into a few coefficients per row so that each step costs few passes:
+        engine ``f = s (A + R sqrt(s)) + C``, motor ``f = s + A + R sqrt(s) + C / s``."""
+        s0 = self.s0
+        g = s0 * self.k
+        rc = self.rot_w / self.rot_s ** 1.5  # P_rot = rc s^1.5
+        motor = self.motor
+        if motor:
+            gm = g * s0
+            aa = gm * a - s0
+            cc = gm * out_c
+            rr = gm * rc
+        else:
+            aa = 1.0 + g * a
+            cc = g * out_c - s0
+            rr = g * rc
+
+        def fun(s, sq):
+            if motor:
+                return s + aa + rr * sq + cc / s
+            return s * (aa + rr * sq) + cc
+
+        def slope(s, sq, rows):
+            if motor:
+                return 1.0 + (0.5 * rr) / sq - cc[rows] / (s * s)
+            return aa[rows] + (1.5 * rr) * sq
+
+        sq0 = float(np.sqrt(s0))
+        f = fun(s0, sq0)
+        s = np.full(a.shape, s0)
+        sq = None  # sqrt(s), once s is not s0 everywhere
+        for _ in range(SPEED_NEWTON_STEPS):
+            open_ = ~(np.abs(f) <= tol)
+            if not open_.any():
+                break
+            # as speed_ratio: settled rows keep their speed; open rows gathered once few remain
+            few = np.count_nonzero(open_) * 4 < open_.size
+            rows = np.nonzero(open_) if few else slice(None)
+            fs, ss = f[rows], s[rows]
+            sqs = sq0 if sq is None else sq[rows]
+            dfs = slope(ss, sqs, rows)
+            ok = dfs > 0
+            if ok.all():
+                step = fs / dfs
+            else:
+                step = np.where(ok, fs / np.where(ok, dfs, 1.0), np.where(fs > 0, 0.1, -0.1) * s0)
+            ss = np.minimum(np.maximum(ss - step, lo), hi)
+            del fs, dfs, step, ok, sqs  # free before the next residual (peak memory at large inputs)
+            if sq is None:
+                sq = np.full(a.shape, sq0)
+            sqs = np.sqrt(ss)
+            if few:
+                s[rows] = ss
+                sq[rows] = sqs
+                if motor:
+                    f[rows] = ss + aa[rows] + rr * sqs + cc[rows] / ss
+                else:
+                    f[rows] = ss * (aa[rows] + rr * sqs) + cc[rows]
+            else:
+                if not open_.all():
+                    ss = np.where(open_, ss, s)
+                    sqs = np.where(open_, sqs, sq)
+                s, sq = ss, sqs
+                del ss, sqs, open_
+                f = fun(s, sq)
+        if not flags:
+            return s, None, None
+        df = slope(s, np.sqrt(s) if sq is None else sq, slice(None))
         return s, np.abs(f) <= 1e-12 * s0, df > 0
 
     def _residual(self, s, a, b, c, out_c, linear_out):
