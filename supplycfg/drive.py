@@ -522,44 +522,88 @@ class DriveRows:
         f = fun(s0, sq0)
         s = np.full(a.shape, s0)
         sq = None  # sqrt(s), once s is not s0 everywhere
+        idx = None  # flat indices of the rows still open, once few remain (then worked on alone)
+        moved = None  # rows whose speed moved at the last step (one that did not stays put from then on)
+        bad = np.isnan(f)
+        if bad.any():
+            # rows of undefined power (NaN a or c) never settle: Newton's steps would take them where
+            # these lines put them at once (NaN where the slope is still defined, else up by a tenth
+            # of s0 per step to the ceiling)
+            up = s0
+            for _ in range(SPEED_NEWTON_STEPS):
+                up = min(max(up - (-0.1 * s0), lo), hi)
+            # (the motor's slope holds the power itself, so it is undefined there too)
+            s[bad] = up if motor else np.where(slope(s0, sq0, slice(None))[bad] > 0, np.nan, up)
+            sq = np.sqrt(s)
+            moved = ~bad
+        else:
+            bad = None
         for _ in range(SPEED_NEWTON_STEPS):
-            open_ = ~(np.abs(f) <= tol)
-            if not open_.any():
-                break
-            # as speed_ratio: settled rows keep their speed; open rows gathered once few remain
-            few = np.count_nonzero(open_) * 4 < open_.size
-            rows = np.nonzero(open_) if few else slice(None)
-            fs, ss = f[rows], s[rows]
-            sqs = sq0 if sq is None else sq[rows]
-            dfs = slope(ss, sqs, rows)
+            if idx is None:
+                open_ = ~(np.abs(f) <= tol)
+                if moved is not None:
+                    open_ &= moved
+                n_open = np.count_nonzero(open_)
+                if n_open == 0:
+                    break
+                if n_open * 4 >= open_.size:
+                    # most rows open: whole arrays, the settled rows keep their speed
+                    dfs = slope(s, sq0 if sq is None else sq, slice(None))
+                    ok = dfs > 0
+                    if ok.all():
+                        step = f / dfs
+                    else:
+                        step = np.where(ok, f / np.where(ok, dfs, 1.0), np.where(f > 0, 0.1, -0.1) * s0)
+                    ss = np.minimum(np.maximum(s - step, lo), hi)
+                    del dfs, step, ok  # free before the next residual (peak memory at large inputs)
+                    sqs = np.sqrt(ss)
+                    if n_open < open_.size:
+                        ss = np.where(open_, ss, s)
+                        sqs = np.where(open_, sqs, sq0 if sq is None else sq)
+                    moved = open_ & (ss != s)  # (a settled row never opens again: its residual stays)
+                    s, sq = ss, sqs
+                    del ss, sqs, open_
+                    f = fun(s, sq)
+                    continue
+                # few open: gather them once; the settled rows never change again
+                if sq is None:
+                    sq = np.full(a.shape, sq0)
+                idx = np.flatnonzero(open_)
+                del open_
+                s_f, sq_f, f_f = s.reshape(-1), sq.reshape(-1), f.reshape(-1)
+                so, fo = s_f[idx], f_f[idx]
+                ao, co = aa.reshape(-1)[idx], cc.reshape(-1)[idx]
+            else:
+                keep = ~(np.abs(fo) <= tol)
+                if not keep.any():
+                    break
+                if not keep.all():
+                    idx, so, fo, ao, co = idx[keep], so[keep], fo[keep], ao[keep], co[keep]
+            sqo = np.sqrt(so)
+            dfs = 1.0 + (0.5 * rr) / sqo - co / (so * so) if motor else ao + (1.5 * rr) * sqo
             ok = dfs > 0
             if ok.all():
-                step = fs / dfs
+                step = fo / dfs
             else:
-                step = np.where(ok, fs / np.where(ok, dfs, 1.0), np.where(fs > 0, 0.1, -0.1) * s0)
-            ss = np.minimum(np.maximum(ss - step, lo), hi)
-            del fs, dfs, step, ok, sqs  # free before the next residual (peak memory at large inputs)
-            if sq is None:
-                sq = np.full(a.shape, sq0)
-            sqs = np.sqrt(ss)
-            if few:
-                s[rows] = ss
-                sq[rows] = sqs
-                if motor:
-                    f[rows] = ss + aa[rows] + rr * sqs + cc[rows] / ss
-                else:
-                    f[rows] = ss * (aa[rows] + rr * sqs) + cc[rows]
-            else:
-                if not open_.all():
-                    ss = np.where(open_, ss, s)
-                    sqs = np.where(open_, sqs, sq)
-                s, sq = ss, sqs
-                del ss, sqs, open_
-                f = fun(s, sq)
+                step = np.where(ok, fo / np.where(ok, dfs, 1.0), np.where(fo > 0, 0.1, -0.1) * s0)
+            sn = np.minimum(np.maximum(so - step, lo), hi)
+            sqn = np.sqrt(sn)
+            fo = sn + ao + rr * sqn + co / sn if motor else sn * (ao + rr * sqn) + co
+            s_f[idx], sq_f[idx], f_f[idx] = sn, sqn, fo
+            # a row whose speed did not move stays where it is at every later step: drop it
+            moved = sn != so
+            so = sn
+            if not moved.all():
+                idx, so, fo, ao, co = idx[moved], so[moved], fo[moved], ao[moved], co[moved]
+                if not idx.size:
+                    break
         if not flags:
             return s, None, None
         df = slope(s, np.sqrt(s) if sq is None else sq, slice(None))
-        return s, np.abs(f) <= 1e-12 * s0, df > 0
+        unique = df > 0
+        if bad is not None:
+            unique &= ~bad  # the slope of a row of undefined power is undefined too
+        return s, np.abs(f) <= 1e-12 * s0, unique
 
     def _residual(self, s, a, b, c, out_c, linear_out):
         rot, drot = self.rotational_w(s)
