@@ -371,7 +371,7 @@ def brush_drop(armature_current_a, full_drop_v, ramp_current_a, with_slope=False
     About 2 V for a pair of carbon brushes (Theraja Vol II Ex 26.4-26.5; common practice).
     """
     ia = np.asarray(armature_current_a, float)
-    u = np.maximum(np.minimum(ia / ramp_current_a, 1.0), -1.0)
+    u = np.clip(ia / ramp_current_a, -1.0, 1.0)
     v = full_drop_v * u
     if with_slope:
         return v, np.where(np.abs(ia) < ramp_current_a, full_drop_v / ramp_current_a, 0.0)
@@ -381,10 +381,11 @@ def brush_drop(armature_current_a, full_drop_v, ramp_current_a, with_slope=False
 def currents_from_voltage(p, v, il):
     """Shunt, armature and branch currents from terminal voltage and load current."""
     kind, branch = p["kind"], p["branch"]
-    ish_self = (v + il * p["rbr"] * p["short"]) / p["rf"]
-    ish = ish_self * (kind == 1)
+    # per-row factors first (rows are few beside their points): the same values as
+    # (v + il Rbr short) / Rf * (kind == 1), with a pass fewer each
+    ish = (v + il * (p["rbr"] * p["short"])) / np.where(kind == 1, p["rf"], np.inf)
     ia = il + ish
-    ibr = ia * (branch == 1) + il * (branch == 2)
+    ibr = np.where(branch == 1, ia, il * (branch == 2))
     field = np.where(kind == 0, p["x0"], ish)
     return field, ia, ibr
 

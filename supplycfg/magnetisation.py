@@ -139,6 +139,26 @@ def hermite_coefficients(x, y, slopes):
     return np.stack((t / dx, (chord - slopes[:-1]) / dx - t, slopes[:-1], y[:-1]))
 
 
+#: Up to this many knots an interval is found by counting the knots at or below each value
+#: (a pass per knot, each cheaper than a binary search's step per value); beyond, by binary search.
+COUNT_KNOTS_UP_TO = 24
+
+
+def interval_index(knots, values):
+    """Number of ``knots`` (sorted) at or below each value: ``searchsorted(knots, values, "right")``.
+
+    Found by counting for a few knots (all of them less those above: a NaN, above none, goes
+    last as in a binary search).
+    """
+    values = np.asarray(values, float)
+    if knots.size > COUNT_KNOTS_UP_TO or values.size < 64:
+        return np.searchsorted(knots, values, side="right")
+    idx = np.full(values.shape, knots.size, np.uint8)
+    for k in knots:
+        np.subtract(idx, values < k, out=idx, casting="unsafe")
+    return idx
+
+
 @dataclass(frozen=True)
 class OpenCircuitCurve:
     """The OCC at its test speed, evaluable at any equivalent field current.
@@ -181,6 +201,11 @@ class OpenCircuitCurve:
             # rows (c0, c1, c2, c3) per interval; the extension is the line yl + chord t
             ext = np.array([[0.0], [0.0], [self._chord], [self._yl]])
             object.__setattr__(self, "_table", tuple(np.ascontiguousarray(r) for r in np.hstack([np.array(self._ct), ext])))
+            # one row per interval (start, c0..c3): one gather reads all of an interval
+            packed = np.stack([self._start, *self._table], axis=1)
+        else:
+            packed = np.stack([self._start, self._slopes_ext, self._emf_ext], axis=1)
+        object.__setattr__(self, "_packed", np.ascontiguousarray(packed))
 
     @property
     def residual_v(self):
@@ -197,15 +222,19 @@ class OpenCircuitCurve:
         one more interval (starting just past the last point), so one lookup
         serves both and no second pass picks the extension out.
         """
-        idx = np.searchsorted(self._inner, ax, side="right")
-        t = ax - self._start[idx]
+        idx = interval_index(self._inner, ax)
+        if np.ndim(idx):
+            row = self._packed.take(idx, axis=0)
+            start = row[..., 0]
+        else:
+            row = self._packed[idx]
+            start = row[0]
+        t = ax - start
         if not self._cubic:
-            de = self._slopes_ext[idx]
-            e = self._emf_ext[idx] + de * t
+            de = row[..., 1]
+            e = row[..., 2] + de * t
             return e, de
-        c0, c1, c2, c3 = self._table
-        a0, a1, a2 = c0[idx], c1[idx], c2[idx]
-        a3 = c3[idx]
+        a0, a1, a2, a3 = row[..., 1], row[..., 2], row[..., 3], row[..., 4]
         e = ((a0 * t + a1) * t + a2) * t + a3
         de = ((3 * a0 * t + 2 * a1) * t + a2) if slope else None
         return e, de
@@ -221,7 +250,10 @@ class OpenCircuitCurve:
         """
         x = np.asarray(x, dtype=float)
         e, de = self._base(np.abs(x), with_slope)
-        e = np.where(x >= 0, e, 2.0 * self.residual_v - e)
+        if x.size and not x.min() >= 0:  # (a NaN takes this way too, as in the where itself)
+            e = np.where(x >= 0, e, 2.0 * self.residual_v - e)
+        else:
+            e = np.asarray(e)
         return (e, de) if with_slope else e
 
     def extrapolated(self, x):
@@ -266,7 +298,9 @@ def field_after_armature_reaction(winding_field_a, reaction_field_a):
     memory); the rule for its sign is the project's design note.
     """
     xw = np.asarray(winding_field_a, float)
-    return np.sign(xw) * np.maximum(np.abs(xw) - np.asarray(reaction_field_a, float), 0.0)
+    r = np.asarray(reaction_field_a, float)
+    # the same as sign(xw) max(|xw| - r, 0) (zero carries no sign), in three passes instead of five
+    return xw - np.clip(xw, -r, r)
 
 
 @dataclass(frozen=True)
