@@ -1077,7 +1077,7 @@ def _start_cell(grid, vals, at, direction):
     return int(np.clip(k, 0, grid.size - 2))
 
 
-def _walk(circ, i, xg, ig, ng, lg, sign, lam, n_cell, l_cell, dl, stop_at=None, samples=48, runs=None):
+def _walk(circ, i, xg, ig, ng, lg, sign, lam, n_cell, l_cell, dl, stop_at=None, samples=48, runs=None, kept=None):
     """Walk ``N(u) = L(Ia)`` of one side from ``lam`` in cells ``n_cell``, ``l_cell``, Ia moving ``dl``.
 
     ``stop_at = (ia, u, lam)``: a point of the curve where the walk must end
@@ -1085,7 +1085,8 @@ def _walk(circ, i, xg, ig, ng, lg, sign, lam, n_cell, l_cell, dl, stop_at=None, 
     ``(lam_a, lam_b, n_lo, n_hi, l_lo, l_hi, sign)``, a note, and the Ia
     direction when the walk reached ``stop_at`` (else None). ``runs = (sn, sl,
     run_n, run_l)``: slope signs and run tables of ``ng``, ``lg`` already
-    computed for many rows at once.
+    computed for many rows at once. ``kept``: a list that receives each
+    segment's samples ``(lam, x, Ia, V, IL)`` as the walk computes them.
     """
     if runs is None:
         sn, sl = _runs(ng), _runs(lg)
@@ -1119,7 +1120,9 @@ def _walk(circ, i, xg, ig, ng, lg, sign, lam, n_cell, l_cell, dl, stop_at=None, 
         # stop once the polyline has reached zero voltage
         lam_p = np.linspace(segs[-1][0], segs[-1][1], samples)
         x_a, ia_a = _invert_approx(xg, ng, ig, lg, segs[-1], lam_p)
-        v_a, _ = _state_from_x_ia(circ, p1, x_a, ia_a, sign)
+        v_a, il_a = _state_from_x_ia(circ, p1, x_a, ia_a, sign)
+        if kept is not None:
+            kept.append((lam_p, x_a, ia_a, v_a, il_a))
         if np.any(v_a <= 0):
             break
         if reached:
@@ -1143,7 +1146,7 @@ def _walk(circ, i, xg, ig, ng, lg, sign, lam, n_cell, l_cell, dl, stop_at=None, 
     return segs, note, None
 
 
-def _trace_self_excited(circ, i, xg, ig, fns, reversal=(np.nan, np.nan), samples=48):
+def _trace_self_excited(circ, i, xg, ig, fns, reversal=(np.nan, np.nan), samples=48, kept=None):
     """Walk the curve ``N(u) = L(Ia)`` of candidate ``i`` from Ia = 0.
 
     ``fns[sign] = (N on xg, L on ig)`` for either side of the windings'
@@ -1151,7 +1154,7 @@ def _trace_self_excited(circ, i, xg, ig, fns, reversal=(np.nan, np.nan), samples
     point and, where the field passes zero (``reversal = (Ia, F_ar/N_sh)``,
     differential connections), goes on along the negative side. Returns a
     list of segments ``(lam_a, lam_b, n_lo, n_hi, l_lo, l_hi, sign)`` and a
-    note when the walk ended early.
+    note when the walk ended early. ``kept`` receives each segment's samples (see :func:`_walk`).
     """
     ng, lg = fns[1][:2]
     runs_p = fns[1][2] if len(fns[1]) > 2 else None
@@ -1172,7 +1175,7 @@ def _trace_self_excited(circ, i, xg, ig, fns, reversal=(np.nan, np.nan), samples
         p1 = candidate_params(circ, np.array([i]))
         stop_at = (float(ia_r), -float(far_r), float(_l_fun(circ, p1, np.array([ia_r]), 1.0)[0]))
     segs, note, dl = _walk(circ, i, xg, ig, ng, lg, 1.0, float(lg[0]), int(cells[-1]), 0, 1, stop_at, samples,
-                           runs_p)
+                           runs_p, kept)
     if dl is None:
         return segs, note
     # the field has passed zero: on along the negative side from the same point. Through the zone
@@ -1194,7 +1197,7 @@ def _trace_self_excited(circ, i, xg, ig, fns, reversal=(np.nan, np.nan), samples
         dlam = -int(sn[n_cell])
         dl = dlam * int(sl[_start_cell(ig, lgm, ia_r, 1)]) or 1
         l_cell = _start_cell(ig, lgm, ia_r, dl)
-    more, note, _ = _walk(circ, i, xg, ig, ngm, lgm, -1.0, lam, n_cell, l_cell, dl, None, samples, runs_m)
+    more, note, _ = _walk(circ, i, xg, ig, ngm, lgm, -1.0, lam, n_cell, l_cell, dl, None, samples, runs_m, kept)
     return segs + more, note
 
 
@@ -1305,22 +1308,16 @@ def characteristics_of(circ, points=400):
             for sgn_, (ng_, lg_) in ((1.0, (ngp[r], lgp[r])), (-1.0, (ngm[r], lgm[r]))):
                 sn_, sl_, (nlo, nhi), (llo, lhi) = tables[sgn_]
                 fns[sgn_] = (ng_, lg_, (sn_[r], sl_[r], _RowRuns(nlo[r], nhi[r]), _RowRuns(llo[r], lhi[r])))
-            segs, note = _trace_self_excited(circ, i, xg, ig, fns, (ia_rev[r], far_rev[r]))
+            kept = []
+            segs, note = _trace_self_excited(circ, i, xg, ig, fns, (ia_rev[r], far_rev[r]), kept=kept)
             if not segs:
                 seg_note[i] = note
                 continue
-            lam_all, seg_id = [], []
-            for sid, seg in enumerate(segs):
-                lam = np.linspace(seg[0], seg[1], 48)
-                lam_all.append(lam); seg_id.append(np.full(lam.size, sid))
-            lam_all = np.concatenate(lam_all); seg_id = np.concatenate(seg_id)
-            seg_sign = np.array([seg[6] for seg in segs])
-            xa = np.empty_like(lam_all); iaa = np.empty_like(lam_all)
-            for sid, seg in enumerate(segs):
-                msk = seg_id == sid
-                xa[msk], iaa[msk] = _invert_approx(xg, fns[seg[6]][0], ig, fns[seg[6]][1], seg, lam_all[msk])
-            pi = candidate_params(circ, np.full(lam_all.size, i))
-            va, ila = _state_from_x_ia(circ, pi, xa, iaa, seg_sign[seg_id])
+            # the polyline's samples, as the walk computed them segment by segment (48 each)
+            lam_all = np.concatenate([q[0] for q in kept])
+            seg_id = np.repeat(np.arange(len(kept)), [q[0].size for q in kept])
+            va = np.concatenate([q[3] for q in kept])
+            ila = np.concatenate([q[4] for q in kept])
             # from the first non-negative load current to the first zero voltage
             start = int(np.argmax(ila >= 0)) if np.any(ila >= 0) else 0
             neg = np.flatnonzero(va[start:] <= 0)

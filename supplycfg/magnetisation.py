@@ -151,7 +151,8 @@ def interval_index(knots, values):
     last as in a binary search).
     """
     values = np.asarray(values, float)
-    if knots.size > COUNT_KNOTS_UP_TO or values.size < 64:
+    # (a count costs about a microsecond per knot besides its passes: small arrays search)
+    if knots.size > COUNT_KNOTS_UP_TO or values.size < 160 * knots.size:
         return np.searchsorted(knots, values, side="right")
     idx = np.full(values.shape, knots.size, np.uint8)
     for k in knots:

@@ -74,7 +74,7 @@ def test_interval_index_is_a_binary_search(knots):
     (numpy's documented ordering puts NaN last)."""
     rng = np.random.default_rng(knots)
     k = np.sort(rng.uniform(0.0, 5.0, knots))
-    v = np.concatenate([rng.uniform(-1.0, 6.0, 300), k, [np.inf, -np.inf, np.nan, 0.0, -0.0]])
+    v = np.concatenate([rng.uniform(-1.0, 6.0, 4000), k, [np.inf, -np.inf, np.nan, 0.0, -0.0]])
     v = v[:v.size - v.size % 5]
     for shape in ((v.size,), (v.size // 5, 5)):
         vv = v.reshape(shape)
