@@ -275,7 +275,7 @@ class Circuit:
         arr = {k: getattr(self, k)[idx].copy() for k in ("kind", "short", "branch", "s", "ra", "rbr", "c",
                                                          "rf", "x0", "nse", "rsh")}
         _apply_field_control(arr, rheostat_ohm, field_current_a, exciter_v)
-        return Circuit(self.machine, self.occ, self.ar, [self.settings[i] for i in idx], arr["kind"],
+        return Circuit(self.machine, self.occ, self.ar, [self.settings[i] for i in idx.tolist()], arr["kind"],
                        arr["short"], arr["branch"], arr["s"], arr["ra"], arr["rbr"], arr["c"], arr["rf"],
                        arr["x0"], self.vb, self.ir, self.nsh, self.imax, arr["nse"], arr["rsh"],
                        self.drive)
@@ -604,7 +604,8 @@ def refine_bracketed_roots(fun, a, b, fa, steps=BISECTION_STEPS):
             with np.errstate(divide="ignore", invalid="ignore"):
                 c = b - fb * (b - a) / den
             lo, hi = np.minimum(a, b), np.maximum(a, b)
-            c = np.where(np.isfinite(c) & (c > lo) & (c < hi), c, 0.5 * (a + b))
+            # (strictly inside a finite bracket: no NaN or infinity passes)
+            c = np.where((c > lo) & (c < hi), c, 0.5 * (a + b))
         else:
             c = 0.5 * (a + b)
         # a settled root stays where it is while the others go on
