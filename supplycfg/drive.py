@@ -524,20 +524,35 @@ class DriveRows:
         sq = None  # sqrt(s), once s is not s0 everywhere
         idx = None  # flat indices of the rows still open, once few remain (then worked on alone)
         moved = None  # rows whose speed moved at the last step (one that did not stays put from then on)
+        # where every step would go up by a tenth of s0 (the fallback of a slope <= 0 below a negative
+        # residual), the steps end here, at the ceiling when they reach it
+        up = s0
+        for _ in range(SPEED_NEWTON_STEPS):
+            up = min(max(up - (-0.1 * s0), lo), hi)
         bad = np.isnan(f)
         if bad.any():
             # rows of undefined power (NaN a or c) never settle: Newton's steps would take them where
-            # these lines put them at once (NaN where the slope is still defined, else up by a tenth
-            # of s0 per step to the ceiling)
-            up = s0
-            for _ in range(SPEED_NEWTON_STEPS):
-                up = min(max(up - (-0.1 * s0), lo), hi)
+            # these lines put them at once (NaN where the slope is still defined, else up to the ceiling)
             # (the motor's slope holds the power itself, so it is undefined there too)
             s[bad] = up if motor else np.where(slope(s0, sq0, slice(None))[bad] > 0, np.nan, up)
             sq = np.sqrt(s)
             moved = ~bad
         else:
             bad = None
+        climb_margin = 1e-9  # far above rounding: these rows' tests come out the same at every step
+        sq_hi = float(np.sqrt(hi))
+        if not motor and a.size and np.nanmin(aa) + (1.5 * rr) * sq_hi <= -climb_margin:
+            # an engine driven so hard (a large negative E Ia) that the equation's slope stays below
+            # zero up to the ceiling: its residual only falls as the speed rises, so from a negative
+            # residual every step is the fallback's, up to the ceiling
+            climb = (aa + (1.5 * rr) * sq_hi <= -climb_margin) & (f <= -climb_margin)
+            if climb.any():
+                s[climb] = up
+                if sq is None:
+                    sq = np.full(a.shape, sq0)
+                sq[climb] = np.sqrt(up)
+                f[climb] = up * (aa[climb] + rr * np.sqrt(up)) + cc[climb]
+                moved = ~climb if moved is None else moved & ~climb
         for _ in range(SPEED_NEWTON_STEPS):
             if idx is None:
                 open_ = ~(np.abs(f) <= tol)
