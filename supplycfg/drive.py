@@ -39,6 +39,7 @@ Governor droop and induction-motor slip: common practice (see the
 constants below).
 """
 
+import math
 from dataclasses import dataclass, replace
 
 import numpy as np
@@ -73,6 +74,8 @@ RATIO_RANGE = (0.05, 20.0)
 MAX_RATED_POWER_KW = 1e5
 #: Newton steps of the coupled speed, and the residual below which they stop [share of no-load speed].
 SPEED_NEWTON_STEPS = 30
+#: Open rows at or below this number finish their Newton steps one by one (see DriveRows.speed_ratio).
+SPEED_SCALAR_ROWS = 8
 SPEED_TOLERANCE = 1e-13
 #: The coupled speed is kept within these shares of the drive's no-load speed:
 #: below, the set has stalled anyway (flagged), above it is being driven hard by its load.
@@ -553,7 +556,7 @@ class DriveRows:
                 sq[climb] = np.sqrt(up)
                 f[climb] = up * (aa[climb] + rr * np.sqrt(up)) + cc[climb]
                 moved = ~climb if moved is None else moved & ~climb
-        for _ in range(SPEED_NEWTON_STEPS):
+        for step_no in range(SPEED_NEWTON_STEPS):
             if idx is None:
                 open_ = ~(np.abs(f) <= tol)
                 if moved is not None:
@@ -594,6 +597,12 @@ class DriveRows:
                     break
                 if not keep.all():
                     idx, so, fo, ao, co = idx[keep], so[keep], fo[keep], ao[keep], co[keep]
+            if idx.size <= SPEED_SCALAR_ROWS:
+                # the last few rows one by one in plain floats (the same operations in the same
+                # order): array calls on a handful of values cost far more than the arithmetic
+                self._finish_rows(idx, so, fo, ao, co, rr, lo, hi, tol, SPEED_NEWTON_STEPS - step_no,
+                                  s_f, sq_f, f_f)
+                break
             sqo = np.sqrt(so)
             dfs = 1.0 + (0.5 * rr) / sqo - co / (so * so) if motor else ao + (1.5 * rr) * sqo
             ok = dfs > 0
@@ -619,6 +628,23 @@ class DriveRows:
         if bad is not None:
             unique &= ~bad  # the slope of a row of undefined power is undefined too
         return s, np.abs(f) <= 1e-12 * s0, unique
+
+    def _finish_rows(self, idx, so, fo, ao, co, rr, lo, hi, tol, steps, s_f, sq_f, f_f):
+        """Newton steps of :meth:`_speed_ratio_sqrt` for a few open rows, each on its own in floats."""
+        s0, motor = self.s0, self.motor
+        for j, k in enumerate(idx.tolist()):
+            s, f, a, c = float(so[j]), float(fo[j]), float(ao[j]), float(co[j])
+            for _ in range(steps):
+                sq = math.sqrt(s)
+                d = 1.0 + (0.5 * rr) / sq - c / (s * s) if motor else a + (1.5 * rr) * sq
+                step = f / d if d > 0 else (0.1 if f > 0 else -0.1) * s0
+                sn = min(max(s - step, lo), hi)
+                sqn = math.sqrt(sn)
+                f = sn + a + rr * sqn + c / sn if motor else sn * (a + rr * sqn) + c
+                s_f[k], sq_f[k], f_f[k] = sn, sqn, f
+                if sn == s or abs(f) <= tol:  # stays put, or settled
+                    break
+                s = sn
 
     def _residual(self, s, a, b, c, out_c, linear_out):
         rot, drot = self.rotational_w(s)

@@ -205,6 +205,11 @@ def test_speed_solve_rows_of_every_kind(kind):
     ok = np.isfinite(a) & np.isfinite(c) & (a > -1e5)
     assert conv[ok].all() and unique[ok].all() and not conv[~ok].any()
     assert not unique[~(np.isfinite(a) & np.isfinite(c))].any()
+    # many rows at once (whole-array steps, then the open rows gathered, then the last few alone)
+    rng = np.random.default_rng(7)
+    a2 = np.concatenate([np.tile(a, 10), rng.uniform(-6e4, 4e4, 300)])
+    c2 = np.concatenate([np.tile(c, 10), rng.uniform(0.0, 3e4, 300)])
+    assert_allclose(rows.speed_ratio({}, a2, 0.0, c2)[0], _newton_speed(rows, a2, c2), rtol=1e-12, atol=0)
     pw = a * s + rows.rotational_w(s)[0] + rows.stray * np.abs(c)
     n_gen = s * m.occ_speed_rpm
     if kind == "engine":
