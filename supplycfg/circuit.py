@@ -385,9 +385,10 @@ def currents_from_voltage(p, v, il):
     # (v + il Rbr short) / Rf * (kind == 1), with a pass fewer each
     ish = (v + il * (p["rbr"] * p["short"])) / np.where(kind == 1, p["rf"], np.inf)
     ia = il + ish
-    ibr = np.where(branch == 1, ia, il * (branch == 2))
-    field = np.where(kind == 0, p["x0"], ish)
-    return field, ia, ibr
+    ibr = ia * (branch == 1) + il * (branch == 2)
+    # the field current is the shunt's, or the separate excitation's (written over it in place)
+    np.copyto(ish, p["x0"], where=kind == 0)
+    return ish, ia, ibr
 
 
 def circuit_residual(circ, p, v, il):
