@@ -36,7 +36,7 @@ import numpy as np
 from .drive import (DriveRows, drive_loading, loss_breakdown, machine_loss_exponent, machine_rotational_loss_w,
                     machine_stray_percent)
 from .errors import InputError
-from .magnetisation import (ArmatureReaction, OpenCircuitCurve, copper_resistance_factor,
+from .magnetisation import (ArmatureReaction, OpenCircuitCurve, bounded, copper_resistance_factor,
                             field_after_armature_reaction)
 from .raytrace import trace_on_rays
 
@@ -371,7 +371,7 @@ def brush_drop(armature_current_a, full_drop_v, ramp_current_a, with_slope=False
     About 2 V for a pair of carbon brushes (Theraja Vol II Ex 26.4-26.5; common practice).
     """
     ia = np.asarray(armature_current_a, float)
-    u = np.clip(ia / ramp_current_a, -1.0, 1.0)
+    u = bounded(ia / ramp_current_a, -1.0, 1.0)
     v = full_drop_v * u
     if with_slope:
         return v, np.where(np.abs(ia) < ramp_current_a, full_drop_v / ramp_current_a, 0.0)
