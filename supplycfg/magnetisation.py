@@ -223,8 +223,12 @@ class OpenCircuitCurve:
         one more interval (starting just past the last point), so one lookup
         serves both and no second pass picks the extension out.
         """
-        idx = interval_index(self._inner, ax)
-        if np.ndim(idx):
+        inner = self._inner
+        if inner.size > COUNT_KNOTS_UP_TO or ax.size < 160 * inner.size:
+            idx = np.searchsorted(inner, ax, side="right")  # (small arrays: fewer calls)
+        else:
+            idx = interval_index(inner, ax)
+        if idx.ndim:
             row = self._packed.take(idx, axis=0)
             start = row[..., 0]
         else:
@@ -251,7 +255,7 @@ class OpenCircuitCurve:
         """
         x = np.asarray(x, dtype=float)
         e, de = self._base(np.abs(x), with_slope)
-        if x.size and not x.min() >= 0:  # (a NaN takes this way too, as in the where itself)
+        if x.size and not np.minimum.reduce(x, axis=None) >= 0:  # (a NaN takes this way, as in the where)
             e = np.where(x >= 0, e, 2.0 * self.residual_v - e)
         else:
             e = np.asarray(e)
@@ -277,9 +281,9 @@ CLIP_UFUNC_BELOW = 4096
 
 
 def bounded(x, lo, hi):
-    """``x`` held within ``[lo, hi]``, NaN kept: ``np.clip`` for large arrays, two ufuncs for small ones
-    (the same values either way)."""
-    if np.size(x) < CLIP_UFUNC_BELOW:
+    """Array ``x`` held within ``[lo, hi]``, NaN kept: ``np.clip`` for large arrays, two ufuncs for
+    small ones (the same values either way)."""
+    if x.size < CLIP_UFUNC_BELOW:
         return np.minimum(np.maximum(x, lo), hi)
     return np.clip(x, lo, hi)
 
