@@ -367,7 +367,8 @@ class ArmatureReaction:
             d = np.full_like(a, self.per_amp)
         else:
             xi, fi = self.table_current_a, self.table_at
-            f = np.where(a > xi[-1], fi[-1] + self._chord * (a - xi[-1]), np.interp(a, xi, fi))
+            # past the table np.interp holds its last value: the end chord adds on from there (zero before)
+            f = np.interp(a, xi, fi) + self._chord * np.maximum(a - xi[-1], 0.0)
             if not with_slope:
                 return f
             # the row of each current: searching from the second entry gives 0 .. n-1 with no clipping
