@@ -670,8 +670,8 @@ def solve_operating_points(circ, loads, idx=None, grid=LOAD_LINE_GRID, window=No
     if window is None:
         t = np.broadcast_to(lin, (m, grid))
     else:
-        w0 = np.clip(np.asarray(window[0], float), 0, 1)[:, None]
-        w1 = np.clip(np.asarray(window[1], float), 0, 1)[:, None]
+        w0 = np.minimum(np.maximum(np.asarray(window[0], float), 0.0), 1.0)[:, None]
+        w1 = np.minimum(np.maximum(np.asarray(window[1], float), 0.0), 1.0)[:, None]
         t = w0 + (w1 - w0) * lin
     # parameter: terminal voltage in [0, vtop], or load current in [-imax, imax]
     by_current = fixed_voltage
@@ -1076,7 +1076,7 @@ def _field_reversal(circ, idx):
 def _start_cell(grid, vals, at, direction):
     """Grid cell holding ``at`` on the side the walk moves to (``direction`` +1 up, -1 down)."""
     k = np.searchsorted(grid, at, side="right" if direction > 0 else "left") - 1
-    return int(np.clip(k, 0, grid.size - 2))
+    return min(max(int(k), 0), grid.size - 2)
 
 
 def _walk(circ, i, xg, ig, ng, lg, sign, lam, n_cell, l_cell, dl, stop_at=None, samples=48, runs=None, kept=None):
@@ -1219,7 +1219,8 @@ def _cells(grid_x, grid_y, lo, hi, lam):
     xs, ys = grid_x[lo:hi + 2], grid_y[lo:hi + 2]
     if ys[-1] < ys[0]:
         xs, ys = xs[::-1], ys[::-1]
-    j = np.clip(np.searchsorted(ys, lam), 1, len(ys) - 1)
+    # (np.minimum/np.maximum: np.clip of integers checks their limits at every call)
+    j = np.minimum(np.maximum(np.searchsorted(ys, lam), 1), len(ys) - 1)
     return xs[j - 1], xs[j]
 
 
@@ -1337,7 +1338,7 @@ def characteristics_of(circ, points=400):
             di = np.diff(il_s) / circ.machine.rated_armature_current_a
             arc = np.concatenate([[0], np.cumsum(np.hypot(dv, di))])
             target = np.linspace(0, arc[-1], points)
-            j = np.clip(np.searchsorted(arc, target, side="right") - 1, 0, max(arc.size - 2, 0))
+            j = np.minimum(np.maximum(np.searchsorted(arc, target, side="right") - 1, 0), max(arc.size - 2, 0))
             # interpolate lambda within the same segment only
             same = sid_s[np.minimum(j + 1, sid_s.size - 1)] == sid_s[j]
             w = np.where(arc[np.minimum(j + 1, arc.size - 1)] > arc[j],
