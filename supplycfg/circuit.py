@@ -1021,6 +1021,13 @@ def _short_factor(p):
     return 1.0 - p["c"] * p["short"]
 
 
+def _field_on_side(u, sign):
+    """``max(u, 0)`` where ``sign > 0``, else ``min(u, 0)`` (one side when ``sign`` is a number)."""
+    if isinstance(sign, float):
+        return np.maximum(u, 0.0) if sign > 0 else np.minimum(u, 0.0)
+    return np.where(np.asarray(sign) > 0, np.maximum(u, 0.0), np.minimum(u, 0.0))
+
+
 def _n_fun(circ, p, u, sign=1.0):
     """``N(u) = f s E(x) - rf u`` of the self-excited form on the side ``sign`` of the windings' field.
 
@@ -1029,7 +1036,7 @@ def _n_fun(circ, p, u, sign=1.0):
     ``min(u, 0)`` (sign -1): armature reaction brings the field to zero at
     most (design note).
     """
-    x = np.where(np.asarray(sign) > 0, np.maximum(u, 0.0), np.minimum(u, 0.0))
+    x = _field_on_side(u, sign)
     return _short_factor(p) * p["s"] * circ.occ.emf(x) - p["rf"] * u
 
 
@@ -1043,7 +1050,7 @@ def _l_fun(circ, p, ia, sign=1.0):
 def _state_from_x_ia(circ, p, u, ia, sign=1.0):
     """Terminal quantities of a self-excited candidate at (u, Ia) on the side ``sign``."""
     far = circ.ar.mmf(ia) / circ.nsh
-    x = np.where(np.asarray(sign) > 0, np.maximum(u, 0.0), np.minimum(u, 0.0))
+    x = _field_on_side(u, sign)
     # the short shunt's field sits across the armature: Ish Rf = E - Ia Ra - Vb
     # (the mmf balance would divide by 1 - c, zero for equal turns)
     arm_v = p["s"] * circ.occ.emf(x) - ia * p["ra"] - brush_drop(ia, circ.vb, circ.ir)
