@@ -36,7 +36,7 @@ import numpy as np
 from .drive import (DriveRows, drive_loading, loss_breakdown, machine_loss_exponent, machine_rotational_loss_w,
                     machine_stray_percent)
 from .errors import InputError
-from .magnetisation import (ArmatureReaction, OpenCircuitCurve, copper_resistance_factor,
+from .magnetisation import (ArmatureReaction, OpenCircuitCurve, bounded, copper_resistance_factor,
                             field_after_armature_reaction)
 from .raytrace import trace_on_rays
 
@@ -275,7 +275,7 @@ class Circuit:
         arr = {k: getattr(self, k)[idx].copy() for k in ("kind", "short", "branch", "s", "ra", "rbr", "c",
                                                          "rf", "x0", "nse", "rsh")}
         _apply_field_control(arr, rheostat_ohm, field_current_a, exciter_v)
-        return Circuit(self.machine, self.occ, self.ar, [self.settings[i] for i in idx], arr["kind"],
+        return Circuit(self.machine, self.occ, self.ar, [self.settings[i] for i in idx.tolist()], arr["kind"],
                        arr["short"], arr["branch"], arr["s"], arr["ra"], arr["rbr"], arr["c"], arr["rf"],
                        arr["x0"], self.vb, self.ir, self.nsh, self.imax, arr["nse"], arr["rsh"],
                        self.drive)
@@ -371,7 +371,7 @@ def brush_drop(armature_current_a, full_drop_v, ramp_current_a, with_slope=False
     About 2 V for a pair of carbon brushes (Theraja Vol II Ex 26.4-26.5; common practice).
     """
     ia = np.asarray(armature_current_a, float)
-    u = np.maximum(np.minimum(ia / ramp_current_a, 1.0), -1.0)
+    u = bounded(ia / ramp_current_a, -1.0, 1.0)
     v = full_drop_v * u
     if with_slope:
         return v, np.where(np.abs(ia) < ramp_current_a, full_drop_v / ramp_current_a, 0.0)
@@ -381,12 +381,14 @@ def brush_drop(armature_current_a, full_drop_v, ramp_current_a, with_slope=False
 def currents_from_voltage(p, v, il):
     """Shunt, armature and branch currents from terminal voltage and load current."""
     kind, branch = p["kind"], p["branch"]
-    ish_self = (v + il * p["rbr"] * p["short"]) / p["rf"]
-    ish = ish_self * (kind == 1)
+    # per-row factors first (rows are few beside their points): the same values as
+    # (v + il Rbr short) / Rf * (kind == 1), with a pass fewer each
+    ish = (v + il * (p["rbr"] * p["short"])) / np.where(kind == 1, p["rf"], np.inf)
     ia = il + ish
     ibr = ia * (branch == 1) + il * (branch == 2)
-    field = np.where(kind == 0, p["x0"], ish)
-    return field, ia, ibr
+    # the field current is the shunt's, or the separate excitation's (written over it in place)
+    np.copyto(ish, p["x0"], where=kind == 0)
+    return ish, ia, ibr
 
 
 def circuit_residual(circ, p, v, il):
@@ -397,7 +399,7 @@ def circuit_residual(circ, p, v, il):
     field, ia, ibr = currents_from_voltage(p, v, il)
     x = field_after_armature_reaction(field + p["c"] * ibr, circ.ar.mmf(ia) / circ.nsh)
     occ = circ.occ.emf(x)
-    s = p["s"] if circ.drive is None else circ.drive.speed_ratio(p, occ * ia, 0.0, v * il)[0]
+    s = p["s"] if circ.drive is None else circ.drive.speed_ratio(p, occ * ia, 0.0, v * il, flags=False)[0]
     return s * occ - ia * p["ra"] - ibr * p["rbr"] - brush_drop(ia, circ.vb, circ.ir) - v
 
 
@@ -603,7 +605,8 @@ def refine_bracketed_roots(fun, a, b, fa, steps=BISECTION_STEPS):
             with np.errstate(divide="ignore", invalid="ignore"):
                 c = b - fb * (b - a) / den
             lo, hi = np.minimum(a, b), np.maximum(a, b)
-            c = np.where(np.isfinite(c) & (c > lo) & (c < hi), c, 0.5 * (a + b))
+            # (strictly inside a finite bracket: no NaN or infinity passes)
+            c = np.where((c > lo) & (c < hi), c, 0.5 * (a + b))
         else:
             c = 0.5 * (a + b)
         # a settled root stays where it is while the others go on
@@ -667,8 +670,8 @@ def solve_operating_points(circ, loads, idx=None, grid=LOAD_LINE_GRID, window=No
     if window is None:
         t = np.broadcast_to(lin, (m, grid))
     else:
-        w0 = np.clip(np.asarray(window[0], float), 0, 1)[:, None]
-        w1 = np.clip(np.asarray(window[1], float), 0, 1)[:, None]
+        w0 = np.minimum(np.maximum(np.asarray(window[0], float), 0.0), 1.0)[:, None]
+        w1 = np.minimum(np.maximum(np.asarray(window[1], float), 0.0), 1.0)[:, None]
         t = w0 + (w1 - w0) * lin
     # parameter: terminal voltage in [0, vtop], or load current in [-imax, imax]
     by_current = fixed_voltage
@@ -1018,6 +1021,13 @@ def _short_factor(p):
     return 1.0 - p["c"] * p["short"]
 
 
+def _field_on_side(u, sign):
+    """``max(u, 0)`` where ``sign > 0``, else ``min(u, 0)`` (one side when ``sign`` is a number)."""
+    if isinstance(sign, float):
+        return np.maximum(u, 0.0) if sign > 0 else np.minimum(u, 0.0)
+    return np.where(np.asarray(sign) > 0, np.maximum(u, 0.0), np.minimum(u, 0.0))
+
+
 def _n_fun(circ, p, u, sign=1.0):
     """``N(u) = f s E(x) - rf u`` of the self-excited form on the side ``sign`` of the windings' field.
 
@@ -1026,7 +1036,7 @@ def _n_fun(circ, p, u, sign=1.0):
     ``min(u, 0)`` (sign -1): armature reaction brings the field to zero at
     most (design note).
     """
-    x = np.where(np.asarray(sign) > 0, np.maximum(u, 0.0), np.minimum(u, 0.0))
+    x = _field_on_side(u, sign)
     return _short_factor(p) * p["s"] * circ.occ.emf(x) - p["rf"] * u
 
 
@@ -1040,7 +1050,7 @@ def _l_fun(circ, p, ia, sign=1.0):
 def _state_from_x_ia(circ, p, u, ia, sign=1.0):
     """Terminal quantities of a self-excited candidate at (u, Ia) on the side ``sign``."""
     far = circ.ar.mmf(ia) / circ.nsh
-    x = np.where(np.asarray(sign) > 0, np.maximum(u, 0.0), np.minimum(u, 0.0))
+    x = _field_on_side(u, sign)
     # the short shunt's field sits across the armature: Ish Rf = E - Ia Ra - Vb
     # (the mmf balance would divide by 1 - c, zero for equal turns)
     arm_v = p["s"] * circ.occ.emf(x) - ia * p["ra"] - brush_drop(ia, circ.vb, circ.ir)
@@ -1073,10 +1083,10 @@ def _field_reversal(circ, idx):
 def _start_cell(grid, vals, at, direction):
     """Grid cell holding ``at`` on the side the walk moves to (``direction`` +1 up, -1 down)."""
     k = np.searchsorted(grid, at, side="right" if direction > 0 else "left") - 1
-    return int(np.clip(k, 0, grid.size - 2))
+    return min(max(int(k), 0), grid.size - 2)
 
 
-def _walk(circ, i, xg, ig, ng, lg, sign, lam, n_cell, l_cell, dl, stop_at=None, samples=48, runs=None):
+def _walk(circ, i, xg, ig, ng, lg, sign, lam, n_cell, l_cell, dl, stop_at=None, samples=48, runs=None, kept=None):
     """Walk ``N(u) = L(Ia)`` of one side from ``lam`` in cells ``n_cell``, ``l_cell``, Ia moving ``dl``.
 
     ``stop_at = (ia, u, lam)``: a point of the curve where the walk must end
@@ -1084,7 +1094,8 @@ def _walk(circ, i, xg, ig, ng, lg, sign, lam, n_cell, l_cell, dl, stop_at=None, 
     ``(lam_a, lam_b, n_lo, n_hi, l_lo, l_hi, sign)``, a note, and the Ia
     direction when the walk reached ``stop_at`` (else None). ``runs = (sn, sl,
     run_n, run_l)``: slope signs and run tables of ``ng``, ``lg`` already
-    computed for many rows at once.
+    computed for many rows at once. ``kept``: a list that receives each
+    segment's samples ``(lam, x, Ia, V, IL)`` as the walk computes them.
     """
     if runs is None:
         sn, sl = _runs(ng), _runs(lg)
@@ -1118,7 +1129,9 @@ def _walk(circ, i, xg, ig, ng, lg, sign, lam, n_cell, l_cell, dl, stop_at=None, 
         # stop once the polyline has reached zero voltage
         lam_p = np.linspace(segs[-1][0], segs[-1][1], samples)
         x_a, ia_a = _invert_approx(xg, ng, ig, lg, segs[-1], lam_p)
-        v_a, _ = _state_from_x_ia(circ, p1, x_a, ia_a, sign)
+        v_a, il_a = _state_from_x_ia(circ, p1, x_a, ia_a, sign)
+        if kept is not None:
+            kept.append((lam_p, x_a, ia_a, v_a, il_a))
         if np.any(v_a <= 0):
             break
         if reached:
@@ -1142,7 +1155,7 @@ def _walk(circ, i, xg, ig, ng, lg, sign, lam, n_cell, l_cell, dl, stop_at=None, 
     return segs, note, None
 
 
-def _trace_self_excited(circ, i, xg, ig, fns, reversal=(np.nan, np.nan), samples=48):
+def _trace_self_excited(circ, i, xg, ig, fns, reversal=(np.nan, np.nan), samples=48, kept=None):
     """Walk the curve ``N(u) = L(Ia)`` of candidate ``i`` from Ia = 0.
 
     ``fns[sign] = (N on xg, L on ig)`` for either side of the windings'
@@ -1150,7 +1163,7 @@ def _trace_self_excited(circ, i, xg, ig, fns, reversal=(np.nan, np.nan), samples
     point and, where the field passes zero (``reversal = (Ia, F_ar/N_sh)``,
     differential connections), goes on along the negative side. Returns a
     list of segments ``(lam_a, lam_b, n_lo, n_hi, l_lo, l_hi, sign)`` and a
-    note when the walk ended early.
+    note when the walk ended early. ``kept`` receives each segment's samples (see :func:`_walk`).
     """
     ng, lg = fns[1][:2]
     runs_p = fns[1][2] if len(fns[1]) > 2 else None
@@ -1171,7 +1184,7 @@ def _trace_self_excited(circ, i, xg, ig, fns, reversal=(np.nan, np.nan), samples
         p1 = candidate_params(circ, np.array([i]))
         stop_at = (float(ia_r), -float(far_r), float(_l_fun(circ, p1, np.array([ia_r]), 1.0)[0]))
     segs, note, dl = _walk(circ, i, xg, ig, ng, lg, 1.0, float(lg[0]), int(cells[-1]), 0, 1, stop_at, samples,
-                           runs_p)
+                           runs_p, kept)
     if dl is None:
         return segs, note
     # the field has passed zero: on along the negative side from the same point. Through the zone
@@ -1193,7 +1206,7 @@ def _trace_self_excited(circ, i, xg, ig, fns, reversal=(np.nan, np.nan), samples
         dlam = -int(sn[n_cell])
         dl = dlam * int(sl[_start_cell(ig, lgm, ia_r, 1)]) or 1
         l_cell = _start_cell(ig, lgm, ia_r, dl)
-    more, note, _ = _walk(circ, i, xg, ig, ngm, lgm, -1.0, lam, n_cell, l_cell, dl, None, samples, runs_m)
+    more, note, _ = _walk(circ, i, xg, ig, ngm, lgm, -1.0, lam, n_cell, l_cell, dl, None, samples, runs_m, kept)
     return segs + more, note
 
 
@@ -1213,7 +1226,8 @@ def _cells(grid_x, grid_y, lo, hi, lam):
     xs, ys = grid_x[lo:hi + 2], grid_y[lo:hi + 2]
     if ys[-1] < ys[0]:
         xs, ys = xs[::-1], ys[::-1]
-    j = np.clip(np.searchsorted(ys, lam), 1, len(ys) - 1)
+    # (np.minimum/np.maximum: np.clip of integers checks their limits at every call)
+    j = np.minimum(np.maximum(np.searchsorted(ys, lam), 1), len(ys) - 1)
     return xs[j - 1], xs[j]
 
 
@@ -1304,22 +1318,16 @@ def characteristics_of(circ, points=400):
             for sgn_, (ng_, lg_) in ((1.0, (ngp[r], lgp[r])), (-1.0, (ngm[r], lgm[r]))):
                 sn_, sl_, (nlo, nhi), (llo, lhi) = tables[sgn_]
                 fns[sgn_] = (ng_, lg_, (sn_[r], sl_[r], _RowRuns(nlo[r], nhi[r]), _RowRuns(llo[r], lhi[r])))
-            segs, note = _trace_self_excited(circ, i, xg, ig, fns, (ia_rev[r], far_rev[r]))
+            kept = []
+            segs, note = _trace_self_excited(circ, i, xg, ig, fns, (ia_rev[r], far_rev[r]), kept=kept)
             if not segs:
                 seg_note[i] = note
                 continue
-            lam_all, seg_id = [], []
-            for sid, seg in enumerate(segs):
-                lam = np.linspace(seg[0], seg[1], 48)
-                lam_all.append(lam); seg_id.append(np.full(lam.size, sid))
-            lam_all = np.concatenate(lam_all); seg_id = np.concatenate(seg_id)
-            seg_sign = np.array([seg[6] for seg in segs])
-            xa = np.empty_like(lam_all); iaa = np.empty_like(lam_all)
-            for sid, seg in enumerate(segs):
-                msk = seg_id == sid
-                xa[msk], iaa[msk] = _invert_approx(xg, fns[seg[6]][0], ig, fns[seg[6]][1], seg, lam_all[msk])
-            pi = candidate_params(circ, np.full(lam_all.size, i))
-            va, ila = _state_from_x_ia(circ, pi, xa, iaa, seg_sign[seg_id])
+            # the polyline's samples, as the walk computed them segment by segment (48 each)
+            lam_all = np.concatenate([q[0] for q in kept])
+            seg_id = np.repeat(np.arange(len(kept)), [q[0].size for q in kept])
+            va = np.concatenate([q[3] for q in kept])
+            ila = np.concatenate([q[4] for q in kept])
             # from the first non-negative load current to the first zero voltage
             start = int(np.argmax(ila >= 0)) if np.any(ila >= 0) else 0
             neg = np.flatnonzero(va[start:] <= 0)
@@ -1337,7 +1345,7 @@ def characteristics_of(circ, points=400):
             di = np.diff(il_s) / circ.machine.rated_armature_current_a
             arc = np.concatenate([[0], np.cumsum(np.hypot(dv, di))])
             target = np.linspace(0, arc[-1], points)
-            j = np.clip(np.searchsorted(arc, target, side="right") - 1, 0, max(arc.size - 2, 0))
+            j = np.minimum(np.maximum(np.searchsorted(arc, target, side="right") - 1, 0), max(arc.size - 2, 0))
             # interpolate lambda within the same segment only
             same = sid_s[np.minimum(j + 1, sid_s.size - 1)] == sid_s[j]
             w = np.where(arc[np.minimum(j + 1, arc.size - 1)] > arc[j],
@@ -1629,7 +1637,7 @@ def terminal_voltage_at_armature_current(circ, p, ia):
         s = p["s"]
     else:
         # no shunt current here: IL = Ia, so the output (s OCC - drops) Ia is linear in the speed
-        s = circ.drive.speed_ratio(p, occ * ia, occ * ia, -drops * ia)[0]
+        s = circ.drive.speed_ratio(p, occ * ia, occ * ia, -drops * ia, flags=False)[0]
     return s * occ - drops
 
 

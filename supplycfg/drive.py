@@ -39,6 +39,7 @@ Governor droop and induction-motor slip: common practice (see the
 constants below).
 """
 
+import math
 from dataclasses import dataclass, replace
 
 import numpy as np
@@ -73,6 +74,8 @@ RATIO_RANGE = (0.05, 20.0)
 MAX_RATED_POWER_KW = 1e5
 #: Newton steps of the coupled speed, and the residual below which they stop [share of no-load speed].
 SPEED_NEWTON_STEPS = 30
+#: Open rows at or below this number finish their Newton steps one by one (see DriveRows.speed_ratio).
+SPEED_SCALAR_ROWS = 8
 SPEED_TOLERANCE = 1e-13
 #: The coupled speed is kept within these shares of the drive's no-load speed:
 #: below, the set has stalled anyway (flagged), above it is being driven hard by its load.
@@ -418,7 +421,7 @@ class DriveRows:
             p = self.rot_w * x ** k
         return p, k * p / s
 
-    def speed_ratio(self, p, a, b, c):
+    def speed_ratio(self, p, a, b, c, flags=True):
         """Generator speed ratio where the drive's characteristic meets the shaft power.
 
         The shaft power as a function of the speed ratio ``s`` is
@@ -434,6 +437,10 @@ class DriveRows:
             Row parameters (unused: one drive turns every row).
         a, b, c : array_like
             [W]
+        flags : bool
+            Also return ``converged`` and ``unique``; False gives None for
+            both (a residual needs the speed alone, and the last slope is
+            then not evaluated).
 
         Returns
         -------
@@ -451,10 +458,12 @@ class DriveRows:
         else:
             a, b, c = np.broadcast_arrays(np.asarray(a, float), np.asarray(b, float), np.asarray(c, float))
             linear_out = np.any(b != 0)
-        s = np.full(a.shape, s0)
         lo, hi = SPEED_FLOOR_SHARE * s0, SPEED_CEILING_SHARE * s0
         out_c = self.stray * np.abs(c)
         tol = SPEED_TOLERANCE * s0
+        if not linear_out and self.rot_exp == 1.5:
+            return self._speed_ratio_sqrt(a, out_c, lo, hi, tol, flags)
+        s = np.full(a.shape, s0)
         f, df = self._residual(s, a, b, c, out_c, linear_out)
         for _ in range(SPEED_NEWTON_STEPS):
             open_ = ~(np.abs(f) <= tol)
@@ -482,6 +491,160 @@ class DriveRows:
                 f[rows], df[rows] = self._residual(ss, a[rows], b[rows] if linear_out else b, c[rows],
                                                    out_c[rows], linear_out)
         return s, np.abs(f) <= 1e-12 * s0, df > 0
+
+    def _speed_ratio_sqrt(self, a, out_c, lo, hi, tol, flags):
+        """:meth:`speed_ratio` for the common case: no output term linear in the speed, and
+        rotational loss as ``s^1.5``. The same Newton steps and stop test, with the drive
+        equation gathered into a few coefficients per row so that each step costs few passes:
+        engine ``f = s (A + R sqrt(s)) + C``, motor ``f = s + A + R sqrt(s) + C / s``."""
+        s0 = self.s0
+        g = s0 * self.k
+        rc = self.rot_w / self.rot_s ** 1.5  # P_rot = rc s^1.5
+        motor = self.motor
+        if motor:
+            gm = g * s0
+            aa = gm * a - s0
+            cc = gm * out_c
+            rr = gm * rc
+        else:
+            aa = 1.0 + g * a
+            cc = g * out_c - s0
+            rr = g * rc
+
+        def fun(s, sq):
+            if motor:
+                return s + aa + rr * sq + cc / s
+            return s * (aa + rr * sq) + cc
+
+        def slope(s, sq, rows):
+            if motor:
+                return 1.0 + (0.5 * rr) / sq - cc[rows] / (s * s)
+            return aa[rows] + (1.5 * rr) * sq
+
+        sq0 = float(np.sqrt(s0))
+        f = fun(s0, sq0)
+        s = np.full(a.shape, s0)
+        sq = None  # sqrt(s), once s is not s0 everywhere
+        idx = None  # flat indices of the rows still open, once few remain (then worked on alone)
+        moved = None  # rows whose speed moved at the last step (one that did not stays put from then on)
+        # where every step would go up by a tenth of s0 (the fallback of a slope <= 0 below a negative
+        # residual), the steps end here, at the ceiling when they reach it
+        up = s0
+        for _ in range(SPEED_NEWTON_STEPS):
+            up = min(max(up - (-0.1 * s0), lo), hi)
+        bad = np.isnan(f)
+        if bad.any():
+            # rows of undefined power (NaN a or c) never settle: Newton's steps would take them where
+            # these lines put them at once (NaN where the slope is still defined, else up to the ceiling)
+            # (the motor's slope holds the power itself, so it is undefined there too)
+            s[bad] = up if motor else np.where(slope(s0, sq0, slice(None))[bad] > 0, np.nan, up)
+            sq = np.sqrt(s)
+            moved = ~bad
+        else:
+            bad = None
+        climb_margin = 1e-9  # far above rounding: these rows' tests come out the same at every step
+        sq_hi = float(np.sqrt(hi))
+        if not motor and a.size and np.nanmin(aa) + (1.5 * rr) * sq_hi <= -climb_margin:
+            # an engine driven so hard (a large negative E Ia) that the equation's slope stays below
+            # zero up to the ceiling: its residual only falls as the speed rises, so from a negative
+            # residual every step is the fallback's, up to the ceiling
+            climb = (aa + (1.5 * rr) * sq_hi <= -climb_margin) & (f <= -climb_margin)
+            if climb.any():
+                s[climb] = up
+                if sq is None:
+                    sq = np.full(a.shape, sq0)
+                sq[climb] = np.sqrt(up)
+                f[climb] = up * (aa[climb] + rr * np.sqrt(up)) + cc[climb]
+                moved = ~climb if moved is None else moved & ~climb
+        for step_no in range(SPEED_NEWTON_STEPS):
+            if idx is None:
+                open_ = ~(np.abs(f) <= tol)
+                if moved is not None:
+                    open_ &= moved
+                n_open = np.count_nonzero(open_)
+                if n_open == 0:
+                    break
+                if n_open * 4 >= open_.size:
+                    # most rows open: whole arrays, the settled rows keep their speed
+                    dfs = slope(s, sq0 if sq is None else sq, slice(None))
+                    ok = dfs > 0
+                    if ok.all():
+                        step = f / dfs
+                    else:
+                        step = np.where(ok, f / np.where(ok, dfs, 1.0), np.where(f > 0, 0.1, -0.1) * s0)
+                    ss = np.minimum(np.maximum(s - step, lo), hi)
+                    del dfs, step, ok  # free before the next residual (peak memory at large inputs)
+                    sqs = np.sqrt(ss)
+                    if n_open < open_.size:
+                        ss = np.where(open_, ss, s)
+                        sqs = np.where(open_, sqs, sq0 if sq is None else sq)
+                    moved = open_ & (ss != s)  # (a settled row never opens again: its residual stays)
+                    s, sq = ss, sqs
+                    del ss, sqs, open_
+                    f = fun(s, sq)
+                    continue
+                # few open: gather them once; the settled rows never change again
+                if sq is None:
+                    sq = np.full(a.shape, sq0)
+                idx = np.flatnonzero(open_)
+                del open_
+                s_f, sq_f, f_f = s.reshape(-1), sq.reshape(-1), f.reshape(-1)
+                so, fo = s_f[idx], f_f[idx]
+                ao, co = aa.reshape(-1)[idx], cc.reshape(-1)[idx]
+            else:
+                keep = ~(np.abs(fo) <= tol)
+                if not keep.any():
+                    break
+                if not keep.all():
+                    idx, so, fo, ao, co = idx[keep], so[keep], fo[keep], ao[keep], co[keep]
+            if idx.size <= SPEED_SCALAR_ROWS:
+                # the last few rows one by one in plain floats (the same operations in the same
+                # order): array calls on a handful of values cost far more than the arithmetic
+                self._finish_rows(idx, so, fo, ao, co, rr, lo, hi, tol, SPEED_NEWTON_STEPS - step_no,
+                                  s_f, sq_f, f_f)
+                break
+            sqo = np.sqrt(so)
+            dfs = 1.0 + (0.5 * rr) / sqo - co / (so * so) if motor else ao + (1.5 * rr) * sqo
+            ok = dfs > 0
+            if ok.all():
+                step = fo / dfs
+            else:
+                step = np.where(ok, fo / np.where(ok, dfs, 1.0), np.where(fo > 0, 0.1, -0.1) * s0)
+            sn = np.minimum(np.maximum(so - step, lo), hi)
+            sqn = np.sqrt(sn)
+            fo = sn + ao + rr * sqn + co / sn if motor else sn * (ao + rr * sqn) + co
+            s_f[idx], sq_f[idx], f_f[idx] = sn, sqn, fo
+            # a row whose speed did not move stays where it is at every later step: drop it
+            moved = sn != so
+            so = sn
+            if not moved.all():
+                idx, so, fo, ao, co = idx[moved], so[moved], fo[moved], ao[moved], co[moved]
+                if not idx.size:
+                    break
+        if not flags:
+            return s, None, None
+        df = slope(s, np.sqrt(s) if sq is None else sq, slice(None))
+        unique = df > 0
+        if bad is not None:
+            unique &= ~bad  # the slope of a row of undefined power is undefined too
+        return s, np.abs(f) <= 1e-12 * s0, unique
+
+    def _finish_rows(self, idx, so, fo, ao, co, rr, lo, hi, tol, steps, s_f, sq_f, f_f):
+        """Newton steps of :meth:`_speed_ratio_sqrt` for a few open rows, each on its own in floats."""
+        s0, motor = self.s0, self.motor
+        for j, k in enumerate(idx.tolist()):
+            s, f, a, c = float(so[j]), float(fo[j]), float(ao[j]), float(co[j])
+            for _ in range(steps):
+                sq = math.sqrt(s)
+                d = 1.0 + (0.5 * rr) / sq - c / (s * s) if motor else a + (1.5 * rr) * sq
+                step = f / d if d > 0 else (0.1 if f > 0 else -0.1) * s0
+                sn = min(max(s - step, lo), hi)
+                sqn = math.sqrt(sn)
+                f = sn + a + rr * sqn + c / sn if motor else sn * (a + rr * sqn) + c
+                s_f[k], sq_f[k], f_f[k] = sn, sqn, f
+                if sn == s or abs(f) <= tol:  # stays put, or settled
+                    break
+                s = sn
 
     def _residual(self, s, a, b, c, out_c, linear_out):
         rot, drot = self.rotational_w(s)

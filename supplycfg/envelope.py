@@ -143,9 +143,11 @@ def expand_candidates(space, base_idx, u, corner_idx=None):
     else:
         rows = base_idx * nc + np.asarray(corner_idx, int)
         uu, bb = u, base_idx
-    controls = np.array([space.bases[b][3] for b in bb]) if bb.size else np.array([], str)
-    rh = np.where((controls == "rheostat") | (controls == "exciter"), uu, np.nan)
-    fc = np.where(controls == "field-current", uu, np.nan)
+    # the control of each base once, then read per row
+    controls = np.array([b[3] for b in space.bases] or [""])
+    by_rheostat = ((controls == "rheostat") | (controls == "exciter"))[bb]
+    rh = np.where(by_rheostat, uu, np.nan)
+    fc = np.where((controls == "field-current")[bb], uu, np.nan)
     ev = space.machine.excitation_voltage_v
     sub = space.circ.subset(rows, rheostat_ohm=rh, field_current_a=fc,
                             exciter_v=np.full(rows.size, np.nan if ev is None else ev))

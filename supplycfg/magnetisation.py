@@ -139,6 +139,27 @@ def hermite_coefficients(x, y, slopes):
     return np.stack((t / dx, (chord - slopes[:-1]) / dx - t, slopes[:-1], y[:-1]))
 
 
+#: Up to this many knots an interval is found by counting the knots at or below each value
+#: (a pass per knot, each cheaper than a binary search's step per value); beyond, by binary search.
+COUNT_KNOTS_UP_TO = 24
+
+
+def interval_index(knots, values):
+    """Number of ``knots`` (sorted) at or below each value: ``searchsorted(knots, values, "right")``.
+
+    Found by counting for a few knots (all of them less those above: a NaN, above none, goes
+    last as in a binary search).
+    """
+    values = np.asarray(values, float)
+    # (a count costs about a microsecond per knot besides its passes: small arrays search)
+    if knots.size > COUNT_KNOTS_UP_TO or values.size < 160 * knots.size:
+        return np.searchsorted(knots, values, side="right")
+    idx = np.full(values.shape, knots.size, np.uint8)
+    for k in knots:
+        np.subtract(idx, values < k, out=idx, casting="unsafe")
+    return idx
+
+
 @dataclass(frozen=True)
 class OpenCircuitCurve:
     """The OCC at its test speed, evaluable at any equivalent field current.
@@ -181,6 +202,11 @@ class OpenCircuitCurve:
             # rows (c0, c1, c2, c3) per interval; the extension is the line yl + chord t
             ext = np.array([[0.0], [0.0], [self._chord], [self._yl]])
             object.__setattr__(self, "_table", tuple(np.ascontiguousarray(r) for r in np.hstack([np.array(self._ct), ext])))
+            # one row per interval (start, c0..c3): one gather reads all of an interval
+            packed = np.stack([self._start, *self._table], axis=1)
+        else:
+            packed = np.stack([self._start, self._slopes_ext, self._emf_ext], axis=1)
+        object.__setattr__(self, "_packed", np.ascontiguousarray(packed))
 
     @property
     def residual_v(self):
@@ -197,15 +223,23 @@ class OpenCircuitCurve:
         one more interval (starting just past the last point), so one lookup
         serves both and no second pass picks the extension out.
         """
-        idx = np.searchsorted(self._inner, ax, side="right")
-        t = ax - self._start[idx]
+        inner = self._inner
+        if inner.size > COUNT_KNOTS_UP_TO or ax.size < 160 * inner.size:
+            idx = np.searchsorted(inner, ax, side="right")  # (small arrays: fewer calls)
+        else:
+            idx = interval_index(inner, ax)
+        if idx.ndim:
+            row = self._packed.take(idx, axis=0)
+            start = row[..., 0]
+        else:
+            row = self._packed[idx]
+            start = row[0]
+        t = ax - start
         if not self._cubic:
-            de = self._slopes_ext[idx]
-            e = self._emf_ext[idx] + de * t
+            de = row[..., 1]
+            e = row[..., 2] + de * t
             return e, de
-        c0, c1, c2, c3 = self._table
-        a0, a1, a2 = c0[idx], c1[idx], c2[idx]
-        a3 = c3[idx]
+        a0, a1, a2, a3 = row[..., 1], row[..., 2], row[..., 3], row[..., 4]
         e = ((a0 * t + a1) * t + a2) * t + a3
         de = ((3 * a0 * t + 2 * a1) * t + a2) if slope else None
         return e, de
@@ -221,7 +255,10 @@ class OpenCircuitCurve:
         """
         x = np.asarray(x, dtype=float)
         e, de = self._base(np.abs(x), with_slope)
-        e = np.where(x >= 0, e, 2.0 * self.residual_v - e)
+        if x.size and not np.minimum.reduce(x, axis=None) >= 0:  # (a NaN takes this way, as in the where)
+            e = np.where(x >= 0, e, 2.0 * self.residual_v - e)
+        else:
+            e = np.asarray(e)
         return (e, de) if with_slope else e
 
     def extrapolated(self, x):
@@ -236,6 +273,19 @@ class OpenCircuitCurve:
         """Measured field currents and their mirrors, for exact grids [A]."""
         x = self.field_current_a
         return np.concatenate([-x[::-1], x[1:]])
+
+
+#: Below this many values ``np.minimum(np.maximum(...))`` beats ``np.clip`` (whose Python layers
+#: cost more than a second pass over a small array).
+CLIP_UFUNC_BELOW = 4096
+
+
+def bounded(x, lo, hi):
+    """Array ``x`` held within ``[lo, hi]``, NaN kept: ``np.clip`` for large arrays, two ufuncs for
+    small ones (the same values either way)."""
+    if x.size < CLIP_UFUNC_BELOW:
+        return np.minimum(np.maximum(x, lo), hi)
+    return np.clip(x, lo, hi)
 
 
 def field_after_armature_reaction(winding_field_a, reaction_field_a):
@@ -266,7 +316,9 @@ def field_after_armature_reaction(winding_field_a, reaction_field_a):
     memory); the rule for its sign is the project's design note.
     """
     xw = np.asarray(winding_field_a, float)
-    return np.sign(xw) * np.maximum(np.abs(xw) - np.asarray(reaction_field_a, float), 0.0)
+    r = np.asarray(reaction_field_a, float)
+    # the same as sign(xw) max(|xw| - r, 0) (zero carries no sign), in three passes instead of five
+    return xw - bounded(xw, -r, r)
 
 
 @dataclass(frozen=True)
@@ -315,7 +367,8 @@ class ArmatureReaction:
             d = np.full_like(a, self.per_amp)
         else:
             xi, fi = self.table_current_a, self.table_at
-            f = np.where(a > xi[-1], fi[-1] + self._chord * (a - xi[-1]), np.interp(a, xi, fi))
+            # past the table np.interp holds its last value: the end chord adds on from there (zero before)
+            f = np.interp(a, xi, fi) + self._chord * np.maximum(a - xi[-1], 0.0)
             if not with_slope:
                 return f
             # the row of each current: searching from the second entry gives 0 .. n-1 with no clipping

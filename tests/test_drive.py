@@ -163,6 +163,62 @@ def test_speed_solve_reports_several_solutions():
     assert not (conv[1] and unique[1])
 
 
+def _newton_speed(rows, a, c):
+    """The drive equation solved row by row with plain Newton steps from s0 (the documented method,
+    written out here with scalars): P = a s + P_rot(s) + stray |c|, clipped to the speed limits."""
+    s0, g = rows.s0, rows.s0 * rows.k
+    lo, hi = dm.SPEED_FLOOR_SHARE * s0, dm.SPEED_CEILING_SHARE * s0
+    out = []
+    for ai, ci in zip(a, c):
+        s = s0
+        for _ in range(dm.SPEED_NEWTON_STEPS):
+            rot, drot = rows.rotational_w(s)
+            pw, dpw = ai * s + rot + rows.stray * abs(ci), ai + drot
+            if rows.motor:
+                f, df = s - s0 + g * pw * s0 / s, 1.0 + g * s0 / s * (dpw - pw / s)
+            else:
+                f, df = s - s0 + g * pw, 1.0 + g * dpw
+            if abs(f) <= dm.SPEED_TOLERANCE * s0:
+                break
+            step = f / df if df > 0 else (0.1 if f > 0 else -0.1) * s0
+            s = min(max(s - step, lo), hi)
+        out.append(s)
+    return np.array(out)
+
+
+@pytest.mark.parametrize("kind", ["engine", "motor"])
+def test_speed_solve_rows_of_every_kind(kind):
+    """Generating rows, a motoring row held at the speed ceiling, and rows of undefined power (NaN):
+    the vectorised solve gives each row what Newton's steps from the no-load speed give it alone
+    (derived), and the generating rows meet the drive's own characteristic (common practice:
+    linear droop, or slip linear in torque)."""
+    m = load_machine(MACHINES / "charging-set.toml")
+    table = ({"kind": "engine", "no_load_speed_rpm": 1500, "droop_percent": 5, "rated_power_kw": 10}
+             if kind == "engine" else
+             {"kind": "motor", "synchronous_speed_rpm": 1500, "rated_slip_percent": 4, "rated_power_kw": 10})
+    rows = dm.DriveRows.build(m, profile_with(table).drive)
+    a = np.array([0.0, 2e3, 8e3, 15e3, -1e6, np.nan, 1e3, 5e3])
+    c = np.array([0.0, 1e3, 7e3, 12e3, 5e4, 1e3, np.nan, 4e3])
+    s, conv, unique = rows.speed_ratio({}, a, 0.0, c)
+    assert_allclose(s, _newton_speed(rows, a, c), rtol=1e-12, atol=0)
+    assert_allclose(rows.speed_ratio({}, a, 0.0, c, flags=False)[0], s, rtol=0, atol=0)
+    ok = np.isfinite(a) & np.isfinite(c) & (a > -1e5)
+    assert conv[ok].all() and unique[ok].all() and not conv[~ok].any()
+    assert not unique[~(np.isfinite(a) & np.isfinite(c))].any()
+    # many rows at once (whole-array steps, then the open rows gathered, then the last few alone)
+    rng = np.random.default_rng(7)
+    a2 = np.concatenate([np.tile(a, 10), rng.uniform(-6e4, 4e4, 300)])
+    c2 = np.concatenate([np.tile(c, 10), rng.uniform(0.0, 3e4, 300)])
+    assert_allclose(rows.speed_ratio({}, a2, 0.0, c2)[0], _newton_speed(rows, a2, c2), rtol=1e-12, atol=0)
+    pw = a * s + rows.rotational_w(s)[0] + rows.stray * np.abs(c)
+    n_gen = s * m.occ_speed_rpm
+    if kind == "engine":
+        n_drive = dm.engine_speed_rpm(pw, 1500, 5, 10)
+    else:
+        n_drive = dm.motor_speed_rpm(pw, 1500, 4, 10)
+    assert_allclose(n_gen[ok], n_drive[ok], rtol=1e-11)
+
+
 # ---------------------------------------------------------------------------
 # closed form: separately excited, resistor, linear droop, linear curve
 # ---------------------------------------------------------------------------

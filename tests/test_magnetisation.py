@@ -20,7 +20,7 @@ from numpy.testing import assert_allclose
 from scipy.interpolate import PchipInterpolator
 
 from supplycfg.machine import load_machine
-from supplycfg.magnetisation import OpenCircuitCurve, pchip_slopes
+from supplycfg.magnetisation import OpenCircuitCurve, field_after_armature_reaction, interval_index, pchip_slopes
 
 PROFILES = Path(__file__).resolve().parent.parent / "profiles" / "machines"
 #: Relative agreement asked of the slopes and values (the issue's 1e-12).
@@ -65,3 +65,28 @@ def test_random_knots_agree_with_scipy(steps, values):
     y = np.asarray(values[: x.size])
     ref = _scipy_slopes(x, y)
     assert_allclose(pchip_slopes(x, y), ref, rtol=RTOL, atol=RTOL * max(1.0, np.abs(ref).max()))
+
+
+@pytest.mark.parametrize("knots", [5, 12, 40])
+def test_interval_index_is_a_binary_search(knots):
+    """The knot count below each value, found by counting for a few knots, is numpy's
+    ``searchsorted(..., side="right")`` exactly: knots themselves, values outside, inf and NaN
+    (numpy's documented ordering puts NaN last)."""
+    rng = np.random.default_rng(knots)
+    k = np.sort(rng.uniform(0.0, 5.0, knots))
+    v = np.concatenate([rng.uniform(-1.0, 6.0, 4000), k, [np.inf, -np.inf, np.nan, 0.0, -0.0]])
+    v = v[:v.size - v.size % 5]
+    for shape in ((v.size,), (v.size // 5, 5)):
+        vv = v.reshape(shape)
+        np.testing.assert_array_equal(interval_index(k, vv), np.searchsorted(k, vv, side="right"))
+
+
+def test_field_after_armature_reaction_is_its_formula():
+    """``x = sign(x_w) max(|x_w| - F_ar/N_sh, 0)`` (the design note's rule) value for value,
+    through zero, inside the dead zone, and for NaN."""
+    rng = np.random.default_rng(3)
+    xw = np.concatenate([rng.normal(0.0, 2.0, 400), [0.0, -0.0, np.nan, 1.0, -1.0]])
+    r = np.concatenate([rng.uniform(0.0, 1.5, 400), [0.5, 0.5, 0.5, 1.0, 1.0]])
+    want = np.sign(xw) * np.maximum(np.abs(xw) - r, 0.0)
+    got = field_after_armature_reaction(xw, r)
+    np.testing.assert_array_equal(got, want)  # (a zero's sign is not compared: -0.0 == 0.0)

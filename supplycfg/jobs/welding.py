@@ -572,14 +572,20 @@ def reading_corners(space):
     return min(ks, key=lambda k: space.corners[k][1]), max(ks, key=lambda k: space.corners[k][1])
 
 
-def _row_field(space, base_idx, u):
-    """No-load field current [A] of each (base, control) at the nominal speed: (cold, hot)."""
+def _row_field(space, base_idx, u, voltages=False):
+    """No-load field current [A] of each (base, control) at the nominal speed: (cold, hot).
+
+    With ``voltages`` also the no-load voltages [V] there, (cold, hot).
+    """
     base_idx = np.asarray(base_idx, int)
     n = base_idx.size
     cold, hot = reading_corners(space)
     sub, _ = expand_candidates(space, np.concatenate([base_idx, base_idx]), np.concatenate([u, u]),
                                np.concatenate([np.full(n, cold), np.full(n, hot)]))
-    f = no_load_field_current_a(sub, no_load_voltage_v(sub))
+    v = no_load_voltage_v(sub)
+    f = no_load_field_current_a(sub, v)
+    if voltages:
+        return f[:n], f[n:], v[:n], v[n:]
     return f[:n], f[n:]
 
 
@@ -700,8 +706,14 @@ def dial_advice(space, targets, paths, u_all, reach, ev, valid, option_ok, bands
     pu = u_all[used]
     controls = [space.bases[b][3] for b in pb]
     # readings: no-load field current at the nominal speed, cold and hot
-    c0, h0 = _row_field(space, pb, pu) if bands else (np.full(used.size, np.nan),) * 2
-    vnl_nom = no_load_voltage_v(expand_candidates(space, pb, pu, np.full(used.size, nom))[0])
+    if bands:
+        c0, h0, _, v_hot = _row_field(space, pb, pu, voltages=True)
+    else:
+        c0 = h0 = v_hot = np.full(used.size, np.nan)
+    if bands and reading_corners(space)[1] == nom:
+        vnl_nom = v_hot  # the nominal corner is the readings' hot one: its no-load voltages are solved there
+    else:
+        vnl_nom = no_load_voltage_v(expand_candidates(space, pb, pu, np.full(used.size, nom))[0])
     # bands of the rows inside every limit
     lo = np.array([control_range(m, c)[0] for c in controls])
     hi = np.array([control_range(m, c)[1] for c in controls])
