@@ -361,6 +361,7 @@ def test_upload_size_check_before_parsing():
 
 def test_save_into_a_folder_asks_before_overwriting(tmp_path):
     at = fresh()
+    at.toggle(key="show_save_form").set_value(True).run()
     text_field(at, "Folder").input(str(tmp_path))
     at.multiselect(key="save_pick").set_value(["sheet.md", "machine.toml"])
     button(at, "Save").click().run()

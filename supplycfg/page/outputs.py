@@ -332,7 +332,8 @@ def downloads_section(result, option, run, key, machine_toml, profile_toml):
             # a sheet built on click shows a spinner in its button while the charts are exported
             st.download_button(label, data=data, file_name=name, mime=mime, key=f"dl_{k}",
                                type="primary" if k == "sheet.html" else "secondary", on_click="ignore")
-    with st.expander("Save them into a folder on this computer"):
+    # drawn when asked for, like the forms at the foot: its four widgets cost the browser time on load
+    if st.toggle("Save them into a folder on this computer", key="show_save_form"):
         _save_form(files)
 
 
