@@ -361,6 +361,7 @@ def test_upload_size_check_before_parsing():
 
 def test_save_into_a_folder_asks_before_overwriting(tmp_path):
     at = fresh()
+    at.toggle(key="show_save_form").set_value(True).run()
     text_field(at, "Folder").input(str(tmp_path))
     at.multiselect(key="save_pick").set_value(["sheet.md", "machine.toml"])
     button(at, "Save").click().run()
@@ -430,3 +431,20 @@ def test_drive_inputs_and_size_section():
     assert "Smallest drive rating at the shaft" in markdown_text(at)
     specs = [json.dumps(c.proto.spec) for c in at.get("vega_lite_chart")]
     assert any("shaft power [kW]" in sp and "speed [rpm]" in sp for sp in specs)
+
+
+def test_page_charts_carry_their_rows_in_the_views():
+    """The page's chart specs hold their rows in the views that draw them (no named datasets for Streamlit to
+    convert), the same rows the chart builders give."""
+    from supplycfg.page.state import inline_data
+    spec = {"datasets": {"a": [{"x": 1}], "b": [{"x": 2}]},
+            "vconcat": [{"layer": [{"data": {"name": "a"}, "mark": "line"}, {"data": {"name": "b"}, "mark": "rule"}]},
+                        {"data": {"name": "a"}, "mark": "line"}]}
+    out = inline_data(spec)
+    assert "datasets" not in out
+    assert out["vconcat"][0]["layer"][0]["data"] == {"values": [{"x": 1}]}
+    assert out["vconcat"][0]["layer"][1]["data"] == {"values": [{"x": 2}]}
+    assert out["vconcat"][1]["data"] == {"values": [{"x": 1}]}
+    at = fresh(forms=False)
+    for c in at.get("vega_lite_chart"):
+        assert '"datasets"' not in c.proto.spec and '"values"' in c.proto.spec and not c.proto.datasets

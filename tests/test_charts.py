@@ -464,3 +464,50 @@ def test_chart_text_contrast_at_least_4_5():
                        cfg["title"]["color"], cfg["title"]["subtitleColor"]):
             assert contrast(colour, bg) >= 4.5
         assert cfg["legend"]["labelLimit"] == 0 and cfg["title"]["limit"] == 0  # nothing cut short
+
+
+def _distance_to_polyline(px, py, xs, ys):
+    """Shortest distance of a point to a polyline (closed form of the point-segment distance)."""
+    best = np.inf
+    for (ax, ay, bx, by) in zip(xs[:-1], ys[:-1], xs[1:], ys[1:]):
+        dx, dy = bx - ax, by - ay
+        t = 0.0 if dx == dy == 0 else min(1.0, max(0.0, ((px - ax) * dx + (py - ay) * dy) / (dx * dx + dy * dy)))
+        best = min(best, float(np.hypot(px - ax - t * dx, py - ay - t * dy)))
+    return best
+
+
+def test_polyline_keep_drops_straight_runs_and_stays_within_the_tolerance():
+    """Points on a straight line go (only the ends stay); on a curve every left-out point lies within the
+    tolerance of the kept polyline (Douglas & Peucker 1973, the distance checked in closed form)."""
+    x = np.linspace(0.0, 1.0, 50)
+    assert charts.polyline_keep(x, 2 * x + 1, 1e-9).tolist() == [0, 49]
+    y = 1 - np.exp(-4 * x)
+    keep = charts.polyline_keep(x, y, 1e-3)
+    assert keep[0] == 0 and keep[-1] == 49 and 3 < len(keep) < 50
+    for i in range(50):
+        assert _distance_to_polyline(x[i], y[i], x[keep], y[keep]) <= 1e-3 + 1e-12
+    # a curve that turns back keeps its turn
+    t = np.linspace(0, np.pi, 40)
+    keep = charts.polyline_keep(np.sin(t), np.cos(t), 1e-3)
+    assert 20 in keep or 19 in keep
+
+
+def test_thinned_page_charts_keep_the_core_points_and_every_legend(charging):
+    """Thinning leaves out rows only: every row kept is the core's own, the ends of each line stay, points and
+    limit lines are untouched, and the legends are the same."""
+    from supplycfg.search import search
+    m, p = charging
+    o = search(m, p).options[0]
+    for _, _, ch in charts.option_charts(m, p, o):
+        full, thin = charts.chart_spec(ch), charts.chart_spec(ch, thin=True)
+        assert {k: v for k, v in full.items() if k != "datasets"} == {k: v for k, v in thin.items() if k != "datasets"}
+        for name, rows_full in full["datasets"].items():
+            rows_thin = thin["datasets"][name]
+            assert all(r in rows_full for r in rows_thin)
+            assert {r.get("series") for r in rows_thin} == {r.get("series") for r in rows_full}
+            if name in ("measured", "no_load", "points", "bands", "levels", "limit", "stages"):
+                assert rows_thin == rows_full
+        assert sum(map(len, thin["datasets"].values())) < sum(map(len, full["datasets"].values()))
+    spec = charts.chart_spec(charts.occ_chart(m, o.setting), thin=True)
+    xs = [r["field_current_a"] for r in spec["datasets"]["occ"]]
+    assert xs[0] == 0.0

@@ -50,14 +50,17 @@ def _served_beyond_loopback():
 
 
 def main():
-    """Draw the whole page: the answer first, the ranked options, the detail, the inputs at the foot."""
+    """Draw the whole page: the answer first, the ranked options, the detail, the inputs at the foot.
+
+    The parts are placed in page order but filled charts first: the browser
+    fetches and draws the charts (its longest work) while the rest of the
+    page arrives, instead of after it.
+    """
     st.set_page_config(page_title="supplycfg · DC generator settings", layout="centered",
                        initial_sidebar_state="auto")
     st.markdown(PAGE_CSS, unsafe_allow_html=True)
     from . import inputs, outputs, state
     state.init()
-    with st.sidebar:
-        inputs.sidebar_picks()
     st.title("supplycfg", anchor=False)
     st.markdown("Put a DC generator on its load: the setting to use, how to wire it and what to check at the machine.")
     if _served_beyond_loopback():
@@ -73,17 +76,24 @@ def main():
     elif not result.options:
         st.warning("No setting to show: " + "; ".join(result.notes))
     else:
+        card = outputs.card_box()
+        ranked, drive, detail, curves, sheet = (st.container() for _ in range(5))
+        option = outputs.picked_option(result, key)
+        run, run_msg = state.charge(mt, pt, option.rank) if result.profile.kind == "battery" else (None, None)
+        with curves:
+            outputs.curves_section(result, option, run, run_msg, key, (mt, pt))
         best = result.options[0]
         best_run = None
         if result.profile.kind == "battery":
             best_run, _ = state.charge(mt, pt, best.rank)
-        outputs.recommended_card(result, best_run)
-        option = outputs.options_section(result, key)
-        outputs.drive_size_section(result, mt, pt)
-        if option is not None:
-            run, run_msg = state.charge(mt, pt, option.rank) if result.profile.kind == "battery" else (None, None)
+        outputs.recommended_card(result, best_run, card)
+        with ranked:
+            outputs.options_section(result, key)
+        with drive:
+            outputs.drive_size_section(result, mt, pt)
+        with detail:
             outputs.detail_section(result, option)
-            outputs.curves_section(result, option, run, run_msg, key, (mt, pt))
+        with sheet:
             outputs.downloads_section(result, option, run, key, mt, pt)
     st.header("The machine and the job in detail", anchor="data")
     inputs.machine_section()
@@ -91,3 +101,5 @@ def main():
     st.divider()
     st.markdown(f"**{STANDING_NOTICE}**")
     st.caption(f"supplycfg {__version__}")
+    with st.sidebar:  # last: its widgets' callbacks ran before the script, so nothing above waits on them
+        inputs.sidebar_picks()

@@ -50,11 +50,19 @@ def _caution(c):
 # the answer first
 # ---------------------------------------------------------------------------
 
-def recommended_card(result, run=None):
-    """The recommended setting (rank 1) in a card keyed ``recommended``: what to set, why, what to check."""
+def card_box():
+    """The recommended card's container, keyed ``recommended`` (its place on the page)."""
+    return st.container(key="recommended", border=True)
+
+
+def recommended_card(result, run=None, box=None):
+    """The recommended setting (rank 1) in a card keyed ``recommended``: what to set, why, what to check.
+
+    ``box``: the card's container made beforehand (:func:`card_box`), to fill it later in the run.
+    """
     o = result.options[0]
     m, p = result.machine, result.profile
-    with st.container(key="recommended", border=True):
+    with box if box is not None else card_box():
         if o.feasible:
             st.subheader(f"Recommended: {connection_words(o.setting.connection)}", anchor="recommended")
         else:
@@ -111,6 +119,15 @@ def option_rows(result):
     return rows
 
 
+def picked_option(result, key):
+    """The option picked in the table or the list (the first until one is picked), before they are drawn."""
+    by_rank = {o.rank: o for o in result.options}
+    pick_key = f"pick_{key}"
+    if S.get(pick_key) not in by_rank:
+        S[pick_key] = result.options[0].rank
+    return by_rank[S[pick_key]]
+
+
 def _option_label(o):
     s = o.setting
     fit = "meets all" if o.feasible else "near miss"
@@ -136,8 +153,7 @@ def options_section(result, key):
     ranks = [o.rank for o in result.options]
     pick_key = f"pick_{key}"
     table_key = f"table_{key}"
-    if pick_key not in S:
-        S[pick_key] = ranks[0]
+    picked_option(result, key)
 
     def on_table():
         sel = S.get(table_key)
@@ -231,6 +247,11 @@ def _trim(result, option, key):
     return replace(s, rheostat_ohm=v), f"rheostat {fmt(v, 'Ω')} (the option: {fmt(s.rheostat_ohm, 'Ω')})"
 
 
+#: Charts drawn when asked for, with the toggle's words: the cells' charging curves belong to the
+#: battery's chemistry, not to the option, and each chart drawn on load costs the browser time.
+ON_REQUEST_CHARTS = {"cells": "Show the charging curves of the cells"}
+
+
 @st.fragment
 def curves_section(result, option, run, run_msg, key, texts):
     """The curves; moving the trim reruns this part only, and unchanged charts keep their drawing."""
@@ -243,6 +264,8 @@ def curves_section(result, option, run, run_msg, key, texts):
     if err:
         st.error(md_data(err))
     for name, title, spec in specs:
+        if name in ON_REQUEST_CHARTS and not st.toggle(ON_REQUEST_CHARTS[name], key=f"show_{name}"):
+            continue
         st.vega_lite_chart(spec, width="stretch", theme=None, key=f"chart_{name}")
         if name == "run" and run is not None:
             _table(("What", "Value"), run_rows(run))
@@ -309,7 +332,8 @@ def downloads_section(result, option, run, key, machine_toml, profile_toml):
             # a sheet built on click shows a spinner in its button while the charts are exported
             st.download_button(label, data=data, file_name=name, mime=mime, key=f"dl_{k}",
                                type="primary" if k == "sheet.html" else "secondary", on_click="ignore")
-    with st.expander("Save them into a folder on this computer"):
+    # drawn when asked for, like the forms at the foot: its four widgets cost the browser time on load
+    if st.toggle("Save them into a folder on this computer", key="show_save_form"):
         _save_form(files)
 
 

@@ -250,6 +250,29 @@ def charge(machine_toml, profile_toml, rank):
         return None, f"internal error in the charge run, please report it: {type(e).__name__}: {e}"
 
 
+def inline_data(spec):
+    """The spec with each named dataset written into the views that draw it (in place).
+
+    Streamlit turns named datasets into Arrow tables on every run and the
+    browser turns them back into rows; rows written in the views travel in
+    the spec as they are.
+    """
+    sets = spec.pop("datasets", None) or {}
+
+    def walk(view):
+        data = view.get("data")
+        if isinstance(data, dict) and data.get("name") in sets:
+            view["data"] = {"values": sets[data["name"]]}
+        for key in ("layer", "vconcat", "hconcat", "concat"):
+            for sub in view.get(key) or []:
+                walk(sub)
+
+    for key in ("layer", "vconcat", "hconcat", "concat"):
+        for sub in spec.get(key) or []:
+            walk(sub)
+    return spec
+
+
 def _option_specs(machine_toml, profile_toml, rank, trim, only):
     """Specs ``[(name, title, spec)]`` of the charts ``only`` of option ``rank`` drawn with ``trim``."""
     from dataclasses import replace
@@ -267,7 +290,8 @@ def _option_specs(machine_toml, profile_toml, rank, trim, only):
     taps = other_tap_options(res, opt) if res.profile.kind == "welding" else ()
     try:
         out = charts.option_charts(res.machine, res.profile, shown, taps, run, only=only)
-        return [(name, title, charts.chart_spec(ch, validate=False)) for name, title, ch in out], None
+        return [(name, title, inline_data(charts.chart_spec(ch, validate=False, thin=True)))
+                for name, title, ch in out], None
     except InputError as e:
         return [], str(e)
     except Exception as e:
