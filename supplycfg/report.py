@@ -225,10 +225,14 @@ def limit_label(name):
 
 
 def speed_words(cond):
-    """A condition's speed in words: the speed itself, or on an engine or a motor its no-load speed."""
+    """A condition's speed in words: the speed itself, or on an engine or a motor its top speed.
+
+    The top speed is the drive's at zero shaft power; the generator's own no-load
+    speed is a little lower (its rotational losses load the drive).
+    """
     sp = fmt(cond["speed_rpm"], "rpm")
     kind = cond.get("drive")
-    return f"the {kind}'s speed under load ({sp} at no load)" if kind else sp
+    return f"the {kind}'s speed under load (top speed {sp})" if kind else sp
 
 
 def condition_words(option):
@@ -247,7 +251,10 @@ def figure_rows(option):
     at = condition_words(option)
     for k, v in option.figures.items():
         words, unit = figure_label(k)
-        rows.append((words.format(**at) if "{" in words else words, fmt(v, unit)))
+        row = (words.format(**at) if "{" in words else words, fmt(v, unit))
+        # two corners that coincide (hot windings at the nominal speed) read the same: say it once
+        if row not in rows:
+            rows.append(row)
     return rows
 
 

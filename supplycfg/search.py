@@ -608,13 +608,18 @@ def search_text(res, top=10):
         lines += ["", f"Option {best.rank} at the machine:"] + at_machine_lines(best, res.profile)
         lines += ["", f"Option {best.rank} in figures:"]
         at = condition_words(best)
+        said = set()
         for k, v in best.figures.items():
             if v is None:
                 continue
             words, unit = figure_label(k)
             words = words.format(**at) if "{" in words else words
             unit = {"Ω": "ohm", "°C": "degC", "m³/h": "m3/h"}.get(unit, unit)
-            lines.append(f"  {words}: {_num(v, '.4g')}" + (f" {unit}" if unit else ""))
+            line = f"  {words}: {_num(v, '.4g')}" + (f" {unit}" if unit else "")
+            # two corners that coincide (hot windings at the nominal speed) read the same: say it once
+            if line not in said:
+                said.add(line)
+                lines.append(line)
         lines += ["", f"Option {best.rank} against its limits (margin as a share of the limit):"]
         for name, m in best.margins.items():
             frac = m["fraction"]

@@ -751,6 +751,17 @@ def test_search_text_is_readable(capsys):
     assert float(first["rheostat [ohm]"]) == o.extras["dial"][0]["readings"]["rheostat_ohm"]
 
 
+def test_search_text_says_each_figure_once(capsys):
+    """Regression: the battery demo printed its start current at the hot corner twice (the hot corner
+    is the nominal one on the demo's motor); a figure line that reads the same is said once."""
+    out = cli_output(["search", str(MACHINES / "charging-set.toml"), str(LOADS / "battery-charging.toml"),
+                      "--top", "2"], capsys)
+    lines = out.split("in figures:")[1].split("against its limits")[0].splitlines()
+    figs = [line for line in lines if line.startswith("  ")]
+    assert figs and len(figs) == len(set(figs))
+    assert "(top speed " in out and "at no load)" not in out
+
+
 def cli_output(argv, capsys):
     assert cli.main(argv) == 0
     return capsys.readouterr().out

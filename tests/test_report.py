@@ -155,14 +155,17 @@ def test_battery_sheet_carries_the_plan_and_the_cut_out(results):
     md = report.sheet_markdown(res, run=report.charge_run_for(res, o))
     assert "## Charge plan" in md and "1: main charge" in md and "2: finish" in md
     cond = o.extras["conditions"]["setting"]
-    # on the demo's motor the speed is named as its no-load speed, lower under load
-    assert (f"At the motor's speed under load ({report.fmt(cond['speed_rpm'], 'rpm')} at no load), "
+    # on the demo's motor the speed is named as its top speed, lower under load
+    assert (f"At the motor's speed under load (top speed {report.fmt(cond['speed_rpm'], 'rpm')}), "
             f"windings {cond['winding_temperature_c']:g} °C") in md
     f = o.figures
     assert f"| Machine reaches it at | {f['cut_in_speed_cold_rpm']:.0f} rpm cold, {f['cut_in_speed_hot_rpm']:.0f} rpm hot |" in md
     assert f"{f['cutout_closing_voltage_v']:.1f} V" in md
-    assert (f"charging current at the start, the motor's speed under load ({report.fmt(cond['speed_rpm'], 'rpm')} "
-            f"at no load), windings {cond['winding_temperature_c']:g} °C") in md
+    assert (f"charging current at the start, the motor's speed under load (top speed "
+            f"{report.fmt(cond['speed_rpm'], 'rpm')}), windings {cond['winding_temperature_c']:g} °C") in md
+    # the hot corner is the nominal one here: its figure is said once, not twice
+    rows = report.figure_rows(o)
+    assert len(rows) == len(set(rows))
     assert f"| Hours to full | {report.fmt(f['hours_to_full'], 'h')} |" in md
     html = report.sheet_html(res, charts=False)
     assert "Charge plan" in html and "Reverse-current cut-out" in html
