@@ -19,6 +19,7 @@ from .errors import InputError
 from .bench import MAX_BENCH_REPEAT
 from .files import check_output_path, dumps_json
 from .text import visible
+from .wording import source_text
 
 SETTING_OPTIONS = {"rheostat_ohm": "--rheostat-ohm", "field_current_a": "--field-current-a",
                    "series_turns": "--series-turns", "diverter_ohm": "--diverter-ohm",
@@ -323,7 +324,7 @@ def _caution_lines(cautions):
         return []
     out = ["", "Cautions:"]
     for c in sorted(cautions, key=lambda c: ["stop", "warn", "note"].index(c.severity)):
-        out.append(f"  [{c.severity}] {c.message} (basis: {c.basis})")
+        out.append(f"  [{c.severity}] {c.message} ({source_text(c.basis)})")
     return out
 
 

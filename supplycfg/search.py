@@ -25,6 +25,7 @@ from .machine import load_machine
 from .powerflow import idle_figures, no_load_speeds
 from .profile import load_profile
 from .text import visible
+from .wording import source_text
 
 __all__ = ["Option", "RANKING_RULE", "SearchResult", "candidate_bases", "rank_options", "ranking_rule", "search",
            "search_machine_profile", "search_text"]
@@ -629,11 +630,11 @@ def search_text(res, top=10):
         if not best.cautions:
             lines.append("  none of its own (the job's cautions below apply)")
         for c in sorted(best.cautions, key=lambda c: ["stop", "warn", "note"].index(c.severity)):
-            lines.append(f"  [{c.severity}] {c.message} (basis: {c.basis})")
+            lines.append(f"  [{c.severity}] {c.message} ({source_text(c.basis)})")
     if res.cautions:
         lines += ["", "Cautions of the job:"]
         for c in res.cautions:
-            lines.append(f"  [{c.severity}] {c.message} (basis: {c.basis})")
+            lines.append(f"  [{c.severity}] {c.message} ({source_text(c.basis)})")
     for n in res.notes:
         lines.append(f"note: {n}")
     return "\n".join(lines)

@@ -33,6 +33,7 @@ from .circuit import Setting, build_circuit, check_setting, circuit_residual, dr
 from .envelope import expand_candidates
 from .errors import InputError
 from .text import visible
+from .wording import source_text
 
 #: Time cap when none is given [h]: a charge not finished in two days points to
 #: a fault of the set or the battery (model choice).
@@ -533,7 +534,7 @@ def charge_text(run):
         lines += ["", "Cautions:"]
         order = {"stop": 0, "warn": 1, "note": 2}
         for c in sorted(run.cautions, key=lambda c: order.get(c.severity, 3)):
-            lines.append(f"  [{c.severity}] {c.message} (basis: {c.basis})")
+            lines.append(f"  [{c.severity}] {c.message} ({source_text(c.basis)})")
     for n in run.notes:
         lines.append(f"note: {n}")
     if not run.converged:

@@ -762,6 +762,15 @@ def test_search_text_says_each_figure_once(capsys):
     assert "(top speed " in out and "at no load)" not in out
 
 
+def test_command_line_cautions_name_their_source_in_words(capsys):
+    """Issue 13's wording on the command line too: "Source: ...", no "(seen)" or "from memory"."""
+    for argv in (["search", str(MACHINES / "charging-set.toml"), str(LOADS / "battery-charging.toml"), "--top", "2"],
+                 ["charge", str(MACHINES / "charging-set.toml"), str(LOADS / "battery-charging.toml")]):
+        out = cli_output(argv, capsys)
+        assert "(Source: IEC 62485-2" in out
+        assert "(seen)" not in out and "from memory" not in out and "(basis:" not in out
+
+
 def cli_output(argv, capsys):
     assert cli.main(argv) == 0
     return capsys.readouterr().out
