@@ -71,3 +71,12 @@ def test_bench_text_prints_every_key_with_its_target_and_status():
     assert row["fleet_seconds"].endswith("NOT met")
     assert row["engine_vs_ngspice"].endswith("skipped (ngspice absent)")
     assert any("feasible options lost 0, gained 0" in ln for ln in lines)
+
+
+def test_command_line_timing_runs_with_the_bytecode_cache_on(tmp_path, monkeypatch):
+    """cli_search_seconds times the process as a user runs it: Python's bytecode cache on (kept in a folder
+    of the bench's own), even where the environment turns it off."""
+    monkeypatch.setenv("PYTHONDONTWRITEBYTECODE", "1")
+    env = bench.bytecode_cache_env(tmp_path)
+    assert "PYTHONDONTWRITEBYTECODE" not in env
+    assert env["PYTHONPYCACHEPREFIX"].startswith(str(tmp_path))
