@@ -5,6 +5,7 @@ error in its own row and does not stop the others. Rows keep the order of
 the file names, whatever order the workers finish in.
 """
 
+import math
 import multiprocessing
 import os
 from concurrent.futures import ProcessPoolExecutor
@@ -24,7 +25,14 @@ CHUNKS_PER_WORKER = 3
 
 @dataclass
 class FleetRow:
-    """One machine file's answer: can it do the job, and its best option."""
+    """One machine file's answer: can it do the job, and its best option.
+
+    ``objective`` is the job's objective as a table shows it (``objective_label``
+    names it with its unit: hours to full, tap changes, the load-end voltage's
+    margin); ``shaft_power_kw`` is the best option's highest shaft power over
+    the job's load points, what the drive must give, and ``drive_loading_percent``
+    that power over the profile's drive rating (None for a fixed speed).
+    """
 
     file: str
     label: str | None = None
@@ -32,13 +40,15 @@ class FleetRow:
     best: dict | None = None
     objective: float | None = None
     objective_label: str | None = None
-    required_drive_kw: float | None = None
+    shaft_power_kw: float | None = None
+    drive_loading_percent: float | None = None
     error: str | None = None
 
     def as_dict(self):
         return {"file": self.file, "label": self.label, "feasible": self.feasible, "best": self.best,
                 "objective": self.objective, "objective_label": self.objective_label,
-                "required_drive_kw": self.required_drive_kw, "error": self.error}
+                "shaft_power_kw": self.shaft_power_kw, "drive_loading_percent": self.drive_loading_percent,
+                "error": self.error}
 
 
 @dataclass
@@ -71,22 +81,38 @@ def machine_files(folder):
     return files
 
 
-def _objective_of(profile, option):
-    """The job's objective figure of an option and its label, where the job defines one."""
+def objective_shown(profile, option):
+    """``(value, label)``: an option's objective as a table shows it (the job's ``OBJECTIVE_SHOWN``).
+
+    None where the job or the option has none (an option that breaks a limit may
+    have no objective: it is ranked by its breaches).
+    """
     from .jobs import JOBS
-    job = JOBS[profile.kind]
-    label = getattr(job, "OBJECTIVE_LABEL", None)
-    value = option.figures.get(getattr(job, "OBJECTIVE_FIGURE", ""), None) if option is not None else None
-    return value, label
+    shown = getattr(JOBS[profile.kind], "OBJECTIVE_SHOWN", None)
+    if shown is None:
+        return None, None
+    words, unit, factor = shown
+    label = f"{words} [{unit}]" if unit else words
+    v = None if option is None else option.objective
+    if v is None or not math.isfinite(v):
+        return None, label
+    return factor * float(v) + 0.0, label
 
 
-def search_one_machine(path, profile):
+def _finite_or_none(v):
+    return float(v) if v is not None and math.isfinite(v) else None
+
+
+def search_one_machine(path, profile, text=None):
     """Search one machine file for ``profile``; a :class:`FleetRow` whatever happens to the file.
 
     Parameters
     ----------
     path : str or Path
+        The file, or the name its ``text`` is known by (an upload on the page).
     profile : LoadProfile
+    text : str, optional
+        The file's text, when it is not read from ``path``.
 
     Returns
     -------
@@ -97,7 +123,7 @@ def search_one_machine(path, profile):
     from .search import search
     row = FleetRow(file=str(path))
     try:
-        m = load_machine(path)
+        m = load_machine(path, text)
         # a row shows the best setting only: its meter readings and bands are left to `search`
         res = search(m, profile, advice=False)
     except InputError as exc:
@@ -109,15 +135,16 @@ def search_one_machine(path, profile):
     if best is not None:
         row.best = {"rank": best.rank, "feasible": best.feasible, "setting": best.setting_dict(),
                     "smallest_margin": best.smallest_margin, "failed": list(best.failed)}
-        row.objective, row.objective_label = _objective_of(profile, best)
-        row.required_drive_kw = best.figures.get("required_drive_kw")
+        row.objective, row.objective_label = objective_shown(profile, best)
+        row.shaft_power_kw = _finite_or_none(best.figures.get("max_shaft_power_kw"))
+        row.drive_loading_percent = _finite_or_none(best.figures.get("max_drive_loading_percent"))
     return row
 
 
 def _worker(args):
-    path, profile = args
+    path, profile, text = args if len(args) == 3 else (*args, None)
     try:
-        return search_one_machine(path, profile)
+        return search_one_machine(path, profile, text)
     except Exception as exc:  # a fault of ours on one file must not lose the others
         return FleetRow(file=str(path), error=f"internal error, please report it: {type(exc).__name__}: {exc}")
 
@@ -167,34 +194,71 @@ def fleet_search(folder, profile, workers=None):
     return FleetResult(str(folder), profile.label, profile.kind, rows, n, notes)
 
 
+def setting_words(setting):
+    """A best setting in a line: the connection as typed on the command line, taps, diverter, field."""
+    desc = setting["connection"]
+    if setting.get("series_turns"):
+        desc += f", {setting['series_turns']:g} series turns"
+    if setting.get("diverter_ohm") is not None:
+        desc += f", diverter {setting['diverter_ohm']:.3g} ohm"
+    if setting.get("rheostat_ohm") is not None:
+        desc += f", rheostat {setting['rheostat_ohm']:.3g} ohm"
+    if setting.get("field_current_a") is not None:
+        desc += f", field {setting['field_current_a']:.3g} A"
+    return desc
+
+
+def fleet_rows(res):
+    """One row per machine in words, for a table (the command line's and the page's).
+
+    Keys: ``machine file``, ``machine``, ``can do it`` (yes, no or error),
+    ``best setting``, ``objective`` (with the job's words and unit), ``shaft
+    power``, ``breaks`` (the limits the best option breaks, in words) and
+    ``error``.
+    """
+    from .report import limit_label
+    out = []
+    for r in res.machines:
+        row = {"machine file": Path(r.file).name, "machine": r.label or "", "can do it": "error", "best setting": "",
+               "objective": "", "shaft power": "", "breaks": "", "error": r.error or ""}
+        if r.error is None:
+            row["can do it"] = "yes" if r.feasible else "no"
+            if r.best is None:
+                row["best setting"] = "no connection of this machine suits the job"
+            else:
+                row["best setting"] = setting_words(r.best["setting"])
+                if r.objective is not None:
+                    row["objective"] = f"{r.objective_label}: {r.objective:.3g}"
+                if r.shaft_power_kw is not None and r.shaft_power_kw < 0:
+                    # at every load point the load drives the machine: no shaft power to size a drive by
+                    row["shaft power"] = "none: the load drives the machine (back-feeding)"
+                elif r.shaft_power_kw is not None:
+                    row["shaft power"] = f"{r.shaft_power_kw:.3g} kW" + (
+                        f" ({r.drive_loading_percent:.0f} % of the drive's rating)"
+                        if r.drive_loading_percent is not None else "")
+                row["breaks"] = ", ".join(limit_label(n) for n in r.best["failed"])
+        out.append(row)
+    return out
+
+
 def fleet_text(res):
     """One row per machine a plant engineer reads."""
     lines = [f"{len(res.machines)} machines for {res.profile_label} ({res.kind}), {res.workers} worker(s)", ""]
     hdr = f"{'machine file':<32} {'can do it':<9}  best setting"
     lines += [hdr, "-" * len(hdr)]
-    for r in res.machines:
-        name = Path(r.file).name
-        if r.error:
-            lines.append(f"{name:<32} {'error':<9}  {r.error}")
+    for row in fleet_rows(res):
+        name = row["machine file"]
+        if row["error"]:
+            lines.append(f"{name:<32} {'error':<9}  {row['error']}")
             continue
-        if r.best is None:
-            lines.append(f"{name:<32} {'no':<9}  no connection of this machine suits the job")
-            continue
-        s = r.best["setting"]
-        desc = s["connection"]
-        if s.get("series_turns"):
-            desc += f", {s['series_turns']:g} series turns"
-        if s.get("rheostat_ohm") is not None:
-            desc += f", rheostat {s['rheostat_ohm']:.3g} ohm"
-        if s.get("field_current_a") is not None:
-            desc += f", field {s['field_current_a']:.3g} A"
-        if r.objective is not None and r.objective_label:
-            desc += f"; {r.objective_label} {r.objective:.3g}"
-        if r.required_drive_kw is not None:
-            desc += f"; drive needed {r.required_drive_kw:.3g} kW"
-        if not r.feasible:
-            desc += "; breaks " + ", ".join(r.best["failed"])
-        lines.append(f"{name:<32} {'yes' if r.feasible else 'no':<9}  {desc}")
+        desc = row["best setting"]
+        if row["objective"]:
+            desc += f"; {row['objective']}"
+        if row["shaft power"]:
+            desc += f"; shaft power {row['shaft power']}"
+        if row["breaks"]:
+            desc += "; breaks: " + row["breaks"]
+        lines.append(f"{name:<32} {row['can do it']:<9}  {desc}")
     for n in res.notes:
         lines.append(f"note: {n}")
     return "\n".join(lines)

@@ -59,3 +59,24 @@ def test_fleet_refuses_a_folder_without_machines(tmp_path, capsys):
     assert main(["fleet", str(tmp_path), str(WELDING)]) == 2
     err = capsys.readouterr().err.strip()
     assert len(err.splitlines()) == 1 and "no machine files" in err
+
+
+def test_fleet_rows_carry_the_objective_and_the_shaft_power_in_words(tmp_path):
+    """Regression: every row's objective and drive figure were empty (the jobs named no objective figure).
+    A row now shows the job's objective as ``search`` ranks by it (hours to full for a battery), the best
+    option's highest shaft power, and the limits it breaks in words, not file keys."""
+    from supplycfg.fleet import fleet_rows
+    for name in ("charging-set.toml", "welding-set.toml"):
+        shutil.copy(MACHINES / name, tmp_path / name)
+    p = load_profile(ROOT / "profiles" / "loads" / "battery-charging.toml")
+    res = fleet_search(tmp_path, p, workers=1)
+    good = res.machines[0]
+    single = search(load_machine(good.file), p).options[0]
+    assert good.feasible and good.objective_label == "hours to full [h]"
+    assert good.objective == pytest.approx(single.figures["hours_to_full"], rel=1e-9)
+    assert good.shaft_power_kw == pytest.approx(single.figures["max_shaft_power_kw"], rel=1e-9)
+    rows = fleet_rows(res)
+    assert rows[0]["objective"].startswith("hours to full [h]: ")
+    assert rows[0]["shaft power"].endswith("% of the drive's rating)")
+    # the welding set cannot charge the bank: what it breaks, in words
+    assert rows[1]["can do it"] == "no" and rows[1]["breaks"] and "_" not in rows[1]["breaks"]

@@ -58,6 +58,8 @@ from ..validate import MAX_CURRENT_A, MAX_OHM, named_entry, read_pair, table_ent
 TABLE = "battery"
 #: What the battery job's ranking minimises (the objective hook of the search).
 OBJECTIVE_LABEL = "hours to full [h]"
+#: The objective as a table shows it: words, unit and the factor from the objective's value.
+OBJECTIVE_SHOWN = ("hours to full", "h", 1.0)
 
 _IEC = "IEC 62485-2, table of charging voltages and gas-producing currents (seen)"
 _IEC_VENT = "IEC 62485-2, ventilation airflow formula (seen)"

@@ -215,6 +215,9 @@ def solve(space, advice=True):
 #: What the lighting job ranks its feasible options by.
 OBJECTIVE_LABEL = ("the widest margin of the load-end voltage inside its band (the objective's value is minus "
                    "that margin, as a fraction of the band's end)")
+#: The objective as a table shows it: words, unit and the factor from the objective's value
+#: (minus a fraction: the load-end voltage's margin inside its band in per cent).
+OBJECTIVE_SHOWN = ("load-end voltage's margin inside its band", "%", -100.0)
 
 
 def voltage_band_objective(figures):

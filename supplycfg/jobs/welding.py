@@ -805,6 +805,8 @@ def dial_advice(space, targets, paths, u_all, reach, ev, valid, option_ok, bands
 
 
 OBJECTIVE_LABEL = "the fewest series-tap changes along the welding dial (every row inside the no-load window)"
+#: The objective as a table shows it: words, unit and the factor from the objective's value.
+OBJECTIVE_SHOWN = ("series-tap changes along the dial", "", 1.0)
 
 
 def objective(figures):
