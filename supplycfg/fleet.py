@@ -241,6 +241,28 @@ def fleet_rows(res):
     return out
 
 
+def fleet_search_texts(items, profile, source="machine files"):
+    """Search machine files given as ``(name, text, error)`` for one job, one after another in this process.
+
+    For the page, whose uploads are in memory (a page's server is threaded: it
+    does not fork workers). ``error`` is None, or the one-line message met
+    while reading the file (too large, say): that row carries it and the file
+    is not searched.
+
+    Returns
+    -------
+    FleetResult
+        Rows in the order of ``items``.
+    """
+    items = list(items)
+    if len(items) > MAX_FLEET_FILES:
+        raise InputError(source, "files", f"are {len(items)}; allowed: at most {MAX_FLEET_FILES}")
+    rows = [FleetRow(file=str(name), error=str(error)) if error is not None else _worker((name, profile, text))
+            for name, text, error in items]
+    notes = [] if any(r.feasible for r in rows) else ["no machine given meets every limit of this job"]
+    return FleetResult(source, profile.label, profile.kind, rows, 1, notes)
+
+
 def fleet_text(res):
     """One row per machine a plant engineer reads."""
     lines = [f"{len(res.machines)} machines for {res.profile_label} ({res.kind}), {res.workers} worker(s)", ""]

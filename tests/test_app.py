@@ -346,7 +346,7 @@ def test_a_job_number_of_thousands_of_digits_gets_a_line():
 
 
 def test_upload_size_check_before_parsing():
-    from supplycfg.page.state import _upload_bytes
+    from supplycfg.page.state import upload_bytes
 
     class Big:
         name = "huge.toml"
@@ -356,7 +356,7 @@ def test_upload_size_check_before_parsing():
             raise AssertionError("read before the size check")
 
     with pytest.raises(InputError, match="at most 1000000"):
-        _upload_bytes(Big())
+        upload_bytes(Big())
 
 
 def test_save_into_a_folder_asks_before_overwriting(tmp_path):
@@ -448,3 +448,21 @@ def test_page_charts_carry_their_rows_in_the_views():
     at = fresh(forms=False)
     for c in at.get("vega_lite_chart"):
         assert '"datasets"' not in c.proto.spec and '"values"' in c.proto.spec and not c.proto.datasets
+
+
+def test_several_machines_for_the_job_on_the_page():
+    """Issue 12: several machine files at once on the page. Folded away on load; with the demo machines
+    added, one row per machine from the core's fleet rows, the demo job's own machine able to do it."""
+    at = fresh(forms=False)
+    assert not any(getattr(c, "label", "") == "Add the demo machines" for c in at.checkbox)
+    at.toggle(key="show_fleet").set_value(True).run()
+    assert not at.exception, at.exception
+    assert any(i.value.startswith("Give machine files") for i in at.info)
+    at.checkbox(key="fleet_demos").check().run()
+    assert not at.exception, at.exception
+    table = next(df.value for df in at.dataframe if "can do it" in df.value.columns)
+    assert len(table) == len(list((DEMO / "machines").glob("*.toml")))
+    assert "error" not in table.columns
+    yes = table[table["can do it"] == "yes"]["machine file"].tolist()
+    assert "charging-set.toml" in yes  # the default job is the charging set's battery
+    assert any(m.value.startswith("**") and "machines meet every limit" in m.value for m in at.markdown)

@@ -80,3 +80,18 @@ def test_fleet_rows_carry_the_objective_and_the_shaft_power_in_words(tmp_path):
     assert rows[0]["shaft power"].endswith("% of the drive's rating)")
     # the welding set cannot charge the bank: what it breaks, in words
     assert rows[1]["can do it"] == "no" and rows[1]["breaks"] and "_" not in rows[1]["breaks"]
+
+
+def test_fleet_of_texts_keeps_refused_and_bad_files_in_their_rows():
+    """The page's fleet (files in memory): a refused file and a bad one get their one line each, the
+    good one the same best option as ``search`` on the file."""
+    from supplycfg.fleet import fleet_search_texts
+    p = load_profile(WELDING)
+    good = (MACHINES / "welding-set.toml").read_bytes()
+    res = fleet_search_texts([("big.toml", None, "big.toml: file: is 2000000 bytes; at most 1048576 allowed"),
+                              ("bad.toml", b"[machine]\nlabel = 'x'\n", None),
+                              ("welding-set.toml", good, None)], p)
+    big, bad, ok = res.machines
+    assert big.error.startswith("big.toml: file:") and bad.error and "bad.toml" in bad.error
+    assert ok.error is None and ok.feasible
+    assert ok.best["setting"] == search(load_machine(MACHINES / "welding-set.toml"), p).options[0].setting_dict()

@@ -95,6 +95,8 @@ def main():
             outputs.detail_section(result, option)
         with sheet:
             outputs.downloads_section(result, option, run, key, mt, pt)
+    from .fleet import fleet_section
+    fleet_section(pt)  # several machines for this job, drawn when asked for
     st.header("The machine and the job in detail", anchor="data")
     inputs.machine_section()
     inputs.job_section()

@@ -62,7 +62,7 @@ def load_demo_profile(stem):
     _set_profile(load_profile(path), f"demo:{stem}")
 
 
-def _upload_bytes(up):
+def upload_bytes(up):
     """Bytes of an upload, refused above the size limit (before any parsing)."""
     size = getattr(up, "size", None)
     if size is not None and size > MAX_FILE_BYTES:
@@ -86,7 +86,7 @@ def _read_upload(widget_key, reader, msg_key):
     if up is None:
         return None, None
     try:
-        obj = reader(up.name, text=_upload_bytes(up))
+        obj = reader(up.name, text=upload_bytes(up))
     except InputError as e:
         S[msg_key] = ("error", str(e))
         return None, None
