@@ -194,9 +194,11 @@ def fleet_search(folder, profile, workers=None):
     return FleetResult(str(folder), profile.label, profile.kind, rows, n, notes)
 
 
-def setting_words(setting):
-    """A best setting in a line: the connection as typed on the command line, taps, diverter, field."""
-    desc = setting["connection"]
+def setting_words(setting, trade_words=False):
+    """A best setting in a line: the connection (as typed on the command line, or in the trade's words),
+    taps, diverter, field."""
+    from .wording import connection_words
+    desc = connection_words(setting["connection"]) if trade_words else setting["connection"]
     if setting.get("series_turns"):
         desc += f", {setting['series_turns']:g} series turns"
     if setting.get("diverter_ohm") is not None:
@@ -208,8 +210,8 @@ def setting_words(setting):
     return desc
 
 
-def fleet_rows(res):
-    """One row per machine in words, for a table (the command line's and the page's).
+def fleet_rows(res, trade_words=False):
+    """One row per machine in words, for a table (the command line's and, with ``trade_words``, the page's).
 
     Keys: ``machine file``, ``machine``, ``can do it`` (yes, no or error),
     ``best setting``, ``objective`` (with the job's words and unit), ``shaft
@@ -226,7 +228,7 @@ def fleet_rows(res):
             if r.best is None:
                 row["best setting"] = "no connection of this machine suits the job"
             else:
-                row["best setting"] = setting_words(r.best["setting"])
+                row["best setting"] = setting_words(r.best["setting"], trade_words)
                 if r.objective is not None:
                     row["objective"] = f"{r.objective_label}: {r.objective:.3g}"
                 if r.shaft_power_kw is not None and r.shaft_power_kw < 0:

@@ -465,4 +465,7 @@ def test_several_machines_for_the_job_on_the_page():
     assert "error" not in table.columns
     yes = table[table["can do it"] == "yes"]["machine file"].tolist()
     assert "charging-set.toml" in yes  # the default job is the charging set's battery
+    from supplycfg.wording import CONNECTION_WORDS
+    # trade words, not program names
+    assert all(s.split(",")[0] in CONNECTION_WORDS.values() for s in table["best setting"])
     assert any(m.value.startswith("**") and "machines meet every limit" in m.value for m in at.markdown)

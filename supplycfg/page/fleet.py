@@ -63,7 +63,7 @@ def fleet_section(profile_toml):
         st.error(md_data(err))
         return
     from ..fleet import fleet_rows
-    rows = fleet_rows(res)
+    rows = fleet_rows(res, trade_words=True)
     n_ok = sum(r["can do it"] == "yes" for r in rows)
     st.markdown(f"**{n_ok}** of {len(rows)} machines meet every limit of this job with their best setting.")
     for n in res.notes:
