@@ -17,7 +17,7 @@ from dataclasses import replace
 import altair as alt
 import numpy as np
 
-from .circuit import (SELF_EXCITED, SEPARATE, Load, Setting, check_setting, external_characteristic,
+from .circuit import (SELF_EXCITED, SEPARATE, Load, Setting, characteristics, check_setting, external_characteristic,
                       operating_points, self_excitation)
 from .magnetisation import OpenCircuitCurve, copper_resistance_factor
 from .wording import connection_words
@@ -81,11 +81,28 @@ def chart_spec(chart, validate=True, thin=False):
     tell from the straight path between their neighbours (:func:`thin_lines`):
     the browser draws the page's charts in a fraction of the time.
     """
-    spec = chart.to_dict(validate=validate)
+    # The rows go round Altair's walk: it checks every value of every row against its classes,
+    # most of a page rerun's drawing time, and the rows are plain numbers and words already.
+    rows = chart._get("datasets")
+    if rows is not alt.Undefined:
+        chart.datasets = alt.Undefined
+        try:
+            spec = chart.to_dict(validate=validate)
+        finally:
+            chart.datasets = rows
+        spec["datasets"] = {name: [{k: plain_value(v) for k, v in r.items()} for r in rs]
+                            for name, rs in rows.items()}
+    else:
+        spec = chart.to_dict(validate=validate)
     spec.setdefault("config", {}).setdefault("legend", {})["layout"] = LEGEND_LAYOUT
     if thin:
         thin_lines(spec)
     return spec
+
+
+def plain_value(v):
+    """A dataset cell as Altair writes it: numpy scalars as Python numbers."""
+    return v.item() if isinstance(v, np.generic) else v
 
 
 #: Farthest a thinned line may stray from the line through every computed point, as a share of each
@@ -593,6 +610,12 @@ def setting_curve(machine, setting, points=CURVE_POINTS, drive=None):
     return external_characteristic(machine, check_setting(machine, setting), points, drive)
 
 
+def setting_curves(machine, settings, points=CURVE_POINTS, drive=None):
+    """The external characteristics of several settings (checked) in one solve: a chart's corners
+    share the engine's fixed cost per call."""
+    return characteristics(machine, [check_setting(machine, s) for s in settings], points, drive)
+
+
 def _temperatures(profile, machine):
     return tuple(profile.temperatures_c) if profile.temperatures_c else (machine.reference_temperature_c,)
 
@@ -670,15 +693,19 @@ def battery_chart(machine, profile, setting, width=None, figures=None, finish_se
     b = profile.battery
     temps = _temperatures(profile, machine)
     curves, chars = [], []
+    wanted = [replace(setting, winding_temperature_c=t) for t in temps]
+    if finish_setting is not None:
+        fs = check_setting(machine, finish_setting)
+        wanted.append(fs)
+    solved = setting_curves(machine, wanted, drive=profile.drive)
     for j, t in enumerate(temps):
-        ch = setting_curve(machine, replace(setting, winding_temperature_c=t), drive=profile.drive)
+        ch = solved[j]
         lab = f"machine, main charge, windings {t:g} °C"
         chars.append((t, lab, ch))
         curves.append({"label": lab, "colour": (BLUE, VERMILLION)[j % 2], "dash": SOLID if j == 0 else DASHES["dense"],
                        "rows": curve_rows(lab, ch)})
     if finish_setting is not None:
-        fs = check_setting(machine, finish_setting)
-        ch = setting_curve(machine, fs, drive=profile.drive)
+        ch = solved[-1]
         lab = f"machine, finish, windings {fs.winding_temperature_c:g} °C"
         curves.append({"label": lab, "colour": GREEN, "dash": DASHES["long"], "rows": curve_rows(lab, ch)})
     i_top = 1.6 * b.max_charge_current_a
@@ -761,9 +788,11 @@ def welding_chart(machine, profile, option, other_taps=(), width=None):
     curves, pts = [], []
     i_max = 1.3 * hi
     line = _weld_line_load(profile)
-    for j, (target, st) in enumerate(_end_settings(option)):
-        st = check_setting(machine, st)
-        ch = setting_curve(machine, st, drive=profile.drive)
+    ends = [(target, check_setting(machine, st)) for target, st in _end_settings(option)]
+    tap_ends = [_end_settings(opt)[-1] for opt in other_taps]
+    solved = setting_curves(machine, [st for _, st in ends] + [st for _, st in tap_ends], drive=profile.drive)
+    for j, (target, st) in enumerate(ends):
+        ch = solved[j]
         lab = (f"set for {target:g} A: " if target is not None else "") + _tap_text(st)
         curves.append({"label": lab, "colour": (BLUE, VERMILLION)[j % 2], "dash": SOLID if j == 0 else DASHES["dense"],
                        "rows": curve_rows(lab, ch)})
@@ -773,9 +802,8 @@ def welding_chart(machine, profile, option, other_taps=(), width=None):
         if op is not None:
             pts.append({"label": "arc operating point", "curve": lab, "load_current_a": op["load_current_a"],
                         "terminal_voltage_v": op["terminal_voltage_v"]})
-    for k, opt in enumerate(other_taps):
-        target, st = _end_settings(opt)[-1]
-        ch = setting_curve(machine, st, drive=profile.drive)
+    for k, (target, st) in enumerate(tap_ends):
+        ch = solved[len(ends) + k]
         lab = f"other tap: {_tap_text(check_setting(machine, st))}" + (f", for {target:g} A" if target else "")
         curves.append({"label": lab, "colour": GREY, "muted": True,
                        "dash": (DASHES["short"], DASHES["dot"], DASHES["dash-dot"], DASHES["long"])[k % 4],
@@ -855,8 +883,10 @@ def load_end_chart(machine, profile, setting, width=None):
     combos = [(n, t) for n in sorted(set(_speeds(profile))) for t in sorted(set(_temperatures(profile, machine)))]
     tones = (BLUE, VERMILLION, GREEN, PURPLE, ORANGE, SKY)
     dashes = (SOLID, DASHES["dense"], DASHES["dash-dot"], DASHES["long"], DASHES["short"], DASHES["dot"])
+    solved = setting_curves(machine, [replace(setting, speed_rpm=n, winding_temperature_c=t) for n, t in combos],
+                            drive=profile.drive)
     for j, (n, t) in enumerate(combos):
-        ch = setting_curve(machine, replace(setting, speed_rpm=n, winding_temperature_c=t), drive=profile.drive)
+        ch = solved[j]
         if kind == "lighting":
             tf = lambda il, v: v - il * rfd
         else:

@@ -511,3 +511,35 @@ def test_thinned_page_charts_keep_the_core_points_and_every_legend(charging):
     spec = charts.chart_spec(charts.occ_chart(m, o.setting), thin=True)
     xs = [r["field_current_a"] for r in spec["datasets"]["occ"]]
     assert xs[0] == 0.0
+
+
+def test_chart_spec_writes_the_rows_as_altair_would():
+    """The rows go round Altair's walk (page speed): the spec must not change by it.
+
+    Reference: Altair's own ``to_dict`` of the same chart with its rows in it.
+    """
+    import altair as alt
+    rows_ = [{"x": np.float64(1.5), "y": np.int64(2), "series": "a"}, {"x": 2.0, "y": float("nan"), "series": "a"}]
+    ch = alt.LayerChart(layer=[alt.Chart(alt.NamedData(name="d")).mark_line().encode(x="x:Q", y="y:Q")],
+                        datasets={"d": rows_})
+    want = ch.to_dict(validate=False)
+    got = charts.chart_spec(ch, validate=False)
+    assert got["datasets"]["d"][0] == {"x": 1.5, "y": 2, "series": "a"}
+    assert type(got["datasets"]["d"][0]["x"]) is float and type(got["datasets"]["d"][0]["y"]) is int
+    assert np.isnan(got["datasets"]["d"][1]["y"])
+    got.pop("config"), want.pop("config", None)
+    assert got.keys() == want.keys() and got["layer"] == want["layer"]
+    assert ch["datasets"] is not alt.Undefined  # the chart keeps its rows
+
+
+def test_setting_curves_in_one_solve_equal_one_by_one(charging):
+    """A chart's corners solved together (page speed) give the curves solved one by one (same engine)."""
+    m, p = charging
+    base = Setting(connection="shunt", rheostat_ohm=30.0, speed_rpm=1450.0)
+    wanted = [replace(base, winding_temperature_c=t) for t in (20.0, 75.0)] + [replace(base, rheostat_ohm=45.0)]
+    together = charts.setting_curves(m, wanted, drive=p.drive)
+    for s, ch in zip(wanted, together):
+        alone = external_characteristic(m, check_setting(m, s), charts.CURVE_POINTS, p.drive)
+        v1 = np.asarray(ch.points["terminal_voltage_v"], float)
+        v2 = np.asarray(alone.points["terminal_voltage_v"], float)
+        assert_allclose(v1, v2, rtol=1e-9, atol=1e-9)
