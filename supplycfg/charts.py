@@ -1059,8 +1059,15 @@ SETTING_FREE_CHARTS = ("run", "cells")
 def option_charts(machine, profile, option, other_taps=(), run=None, width=None, only=None):
     """The charts of one option for its job: ``[(key, title, chart), ...]`` in :data:`CHART_ORDER`.
 
-    ``only``, a collection of keys, builds those charts alone.
+    ``only``, a collection of keys, builds those charts alone. Altair's check
+    of each part as it is made is off here (a fifth of the page's drawing
+    time); :func:`chart_spec` checks the whole spec where it is asked to.
     """
+    with alt.utils.schemapi.debug_mode(False):
+        return _option_charts(machine, profile, option, other_taps, run, width, only)
+
+
+def _option_charts(machine, profile, option, other_taps, run, width, only):
     want = (lambda k: True) if only is None else (lambda k: k in only)
     temps = _temperatures(profile, machine)
     st = check_setting(machine, option.setting)
