@@ -24,6 +24,10 @@ FIRST_RAYS = 161
 RAY_GRID = 257
 #: Refinement steps of a crossing.
 RAY_STEPS = 60
+#: Second pass: grid points across the stretch of a ray between its two first-pass neighbours'
+#: crossings, widened by :data:`LOCAL_MARGIN` of them on each side.
+LOCAL_GRID = 9
+LOCAL_MARGIN = 0.05
 
 
 def _crossings(state_fn, refine, rows, theta, rmax, vs, is_):
@@ -46,6 +50,33 @@ def _crossings(state_fn, refine, rows, theta, rmax, vs, is_):
     root = np.where(has, refine(hr, a, b, h[k, j], RAY_STEPS), np.nan)
     at_edge = has & (j >= RAY_GRID - 3)
     return root, count, at_edge
+
+
+def crossings_near(state_fn, refine, rows, theta, lo, hi, vs, is_):
+    """The fall of ``h`` through zero on ``[lo, hi]`` along each ray, where it is the only one there.
+
+    Returns the root and where it holds: ``h(lo) > 0``, ``h(hi) <= 0`` and
+    one fall on the grid between; the other rows are NaN and not found.
+    """
+    g = np.linspace(0.0, 1.0, LOCAL_GRID)[None, :]
+    r = lo[:, None] + (hi - lo)[:, None] * g
+    c, s = np.cos(theta), np.sin(theta)
+    h = state_fn(rows[:, None], r * (s * vs)[:, None], r * (c * is_)[:, None])["h"]
+    fall = (h[:, :-1] > 0) & (h[:, 1:] <= 0)
+    found = (h[:, 0] > 0) & (h[:, -1] <= 0) & (fall.sum(axis=1) == 1)
+    j = np.argmax(fall, axis=1)
+    k = np.arange(rows.size)
+    root = np.full(rows.size, np.nan)
+    if found.any():
+        f = np.flatnonzero(found)
+        rf, tf = rows[f], theta[f]
+        cf, sf = np.cos(tf), np.sin(tf)
+
+        def hr(rr):
+            return state_fn(rf, rr * sf * vs[f], rr * cf * is_[f])["h"]
+
+        root[f] = refine(hr, r[f, j[f]], r[f, j[f] + 1], h[k[f], j[f]], RAY_STEPS)
+    return root, found
 
 
 def trace_on_rays(state_fn, refine, cand, vtop, imax, v_scale, i_scale, points):
@@ -96,6 +127,7 @@ def trace_on_rays(state_fn, refine, cand, vtop, imax, v_scale, i_scale, points):
     root = root.reshape(nc, k1); count = count.reshape(nc, k1); edge = edge.reshape(nc, k1)
     states, notes = {}, {}
     sel_rows, sel_theta, owner = [], [], []
+    sel_near, sel_lo, sel_hi = [], [], []
     for r, i in enumerate(cand):
         ok = np.isfinite(root[r])
         note = []
@@ -115,12 +147,36 @@ def trace_on_rays(state_fn, refine, cand, vtop, imax, v_scale, i_scale, points):
             t_new = np.full(points, tt[0])
         else:
             t_new = np.interp(np.linspace(0.0, arc[-1], points), arc, tt)
+        # where both first-pass neighbours met the curve once, inside the box, the new ray's crossing
+        # lies between theirs (the curve is continuous): look there first
+        if last > 0:
+            tr, rr_up = tt[::-1], rr[::-1]
+            one = (count[r, :last + 1] == 1)[::-1] & ~edge[r, :last + 1][::-1]
+            k = np.clip(np.searchsorted(tr, t_new), 1, last)
+            near = one[k - 1] & one[k]
+            lo_r = np.minimum(rr_up[k - 1], rr_up[k]) * (1.0 - LOCAL_MARGIN)
+            hi_r = np.maximum(rr_up[k - 1], rr_up[k]) * (1.0 + LOCAL_MARGIN)
+        else:
+            near = np.zeros(points, bool); lo_r = hi_r = np.zeros(points)
         sel_rows.append(np.full(points, i)); sel_theta.append(t_new); owner.append(i)
+        sel_near.append(near); sel_lo.append(lo_r); sel_hi.append(hi_r)
         notes[i] = "; ".join(note)
     if sel_rows:
         rows2 = np.concatenate(sel_rows); th2 = np.concatenate(sel_theta)
         vs2 = np.full(rows2.size, v_scale); is2 = np.full(rows2.size, i_scale)
-        root2, _, _ = _crossings(state_fn, refine, rows2, th2, rays(th2, rows2), vs2, is2)
+        rmax2 = rays(th2, rows2)
+        near = np.concatenate(sel_near)
+        root2 = np.full(rows2.size, np.nan)
+        if near.any():
+            nn = np.flatnonzero(near)
+            hi2 = np.minimum(np.concatenate(sel_hi)[nn], rmax2[nn])
+            got, found = crossings_near(state_fn, refine, rows2[nn], th2[nn], np.concatenate(sel_lo)[nn], hi2,
+                                         vs2[nn], is2[nn])
+            root2[nn[found]] = got[found]
+            near[nn[~found]] = False
+        far = np.flatnonzero(~near)
+        if far.size:
+            root2[far], _, _ = _crossings(state_fn, refine, rows2[far], th2[far], rmax2[far], vs2[far], is2[far])
         # a ray of the second pass can only miss where the first found the curve at its edge
         v = root2 * np.sin(th2) * v_scale
         il = root2 * np.cos(th2) * i_scale
