@@ -346,7 +346,8 @@ def _cell(v, f):
     if isinstance(v, bool):
         return "yes" if v else "no"
     if isinstance(v, float):
-        return format(v, f or ".4g")
+        # (+ 0.0 turns a negative zero, which reads as a sign of something, into zero)
+        return format(v + 0.0, f or ".4g")
     return str(v)
 
 

@@ -177,3 +177,12 @@ def test_extreme_accepted_values_leave_stderr_empty(capsys, argv):
         assert cli.main(argv + ["--json"]) == 0
     assert [str(w.message) for w in caught] == []
     assert capsys.readouterr().err == ""
+
+
+def test_table_prints_a_negative_zero_as_zero():
+    """Regression: a reversed point's series field current printed as "-0" (IEEE negative zero)."""
+    from supplycfg.cli import table
+    out = table([{"series_field_current_a": -0.0, "generated_emf_v": -36.74}],
+                ["series_field_current_a", "generated_emf_v"])
+    cells = out.splitlines()[2].split()
+    assert cells == ["0", "-36.74"]
