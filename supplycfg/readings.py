@@ -19,6 +19,7 @@ lighting and booster, at the start of charge for a battery, per dial row for
 welding); the job hands the field currents at that point to these functions.
 """
 
+import functools
 import math
 
 import numpy as np
@@ -94,14 +95,23 @@ def settable_step(value, band_width=None):
     return max(fine, coarse)
 
 
+@functools.lru_cache(maxsize=256)
 def _decimals(step):
+    # (cached: a search rounds thousands of readings to a handful of steps)
     return max(0, -int(math.floor(math.log10(step) + 1e-9)))
 
 
 def round_to(value, step, how="nearest"):
     """``value`` rounded to a multiple of ``step``: ``nearest``, ``up`` or ``down``."""
     k = float(value) / step
-    k = {"nearest": round(k), "up": math.ceil(k - 1e-9), "down": math.floor(k + 1e-9)}[how]
+    if how == "nearest":
+        k = round(k)
+    elif how == "up":
+        k = math.ceil(k - 1e-9)
+    elif how == "down":
+        k = math.floor(k + 1e-9)
+    else:
+        raise ValueError(f"how: {how!r}; allowed: nearest, up, down")
     return round(k * step, _decimals(step))
 
 

@@ -829,3 +829,14 @@ def test_bisection_keeps_a_root_found_on_the_grid():
     r = normal_points(circ, np.array([36.0]), np.array([108.0]), v_of=lambda t: 16.0 + 0.0625 * t, grid=9, steps=40)
     assert r["converged"][0]
     assert_allclose(r["load_current_a"][0], 72.0, rtol=1e-12)
+
+
+def test_round_to_directions_and_an_unknown_direction():
+    """Rounding to a settable step (closed form): nearest, up and down; a wrong direction is refused."""
+    assert round_to(48.61, 0.1) == 48.6
+    assert round_to(48.61, 0.1, "up") == 48.7
+    assert round_to(48.69, 0.1, "down") == 48.6
+    assert round_to(0.2802, 0.001, "up") == 0.281
+    assert round_to(30.0, 0.5, "down") == 30.0  # a value on the step stays (no step lost to rounding)
+    with pytest.raises(ValueError, match="allowed: nearest, up, down"):
+        round_to(1.0, 0.1, "sideways")
