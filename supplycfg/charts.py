@@ -83,7 +83,7 @@ def chart_spec(chart, validate=True, thin=False):
     """
     # The rows go round Altair's walk: it checks every value of every row against its classes,
     # most of a page rerun's drawing time, and the rows are plain numbers and words already.
-    rows = chart._get("datasets")
+    rows = getattr(chart, "datasets", alt.Undefined)
     if rows is not alt.Undefined:
         chart.datasets = alt.Undefined
         try:
