@@ -372,6 +372,21 @@ def machine_stray_percent(machine):
 # the coupled speed, vectorised
 # ---------------------------------------------------------------------------
 
+def newton_speed_step(s, f, df, s0, lo, hi):
+    """One Newton step of the drive equation ``f(s) = 0`` from speed ratios ``s``, kept in ``[lo, hi]``.
+
+    Where the slope ``df`` is not positive the step is a tenth of ``s0``
+    towards the root's side instead (the equation falls there, so Newton
+    would go the wrong way).
+    """
+    ok = df > 0
+    if ok.all():
+        step = f / df
+    else:
+        step = np.where(ok, f / np.where(ok, df, 1.0), np.where(f > 0, 0.1, -0.1) * s0)
+    return np.minimum(np.maximum(s - step, lo), hi)
+
+
 @dataclass
 class DriveRows:
     """A coupled drive and the machine's losses, as a circuit uses them.
@@ -475,13 +490,8 @@ class DriveRows:
             few = np.count_nonzero(open_) * 4 < open_.size
             rows = np.nonzero(open_) if few else None
             fs, dfs, ss = (f, df, s) if rows is None else (f[rows], df[rows], s[rows])
-            ok = dfs > 0
-            if ok.all():
-                step = fs / dfs
-            else:
-                step = np.where(ok, fs / np.where(ok, dfs, 1.0), np.where(fs > 0, 0.1, -0.1) * s0)
-            ss = np.minimum(np.maximum(ss - step, lo), hi)
-            del fs, dfs, step, ok  # free before the next residual (peak memory at large inputs)
+            ss = newton_speed_step(ss, fs, dfs, s0, lo, hi)
+            del fs, dfs  # free before the next residual (peak memory at large inputs)
             if rows is None:
                 s = np.where(open_, ss, s)
                 del ss, open_
@@ -567,13 +577,8 @@ class DriveRows:
                 if n_open * 4 >= open_.size:
                     # most rows open: whole arrays, the settled rows keep their speed
                     dfs = slope(s, sq0 if sq is None else sq, slice(None))
-                    ok = dfs > 0
-                    if ok.all():
-                        step = f / dfs
-                    else:
-                        step = np.where(ok, f / np.where(ok, dfs, 1.0), np.where(f > 0, 0.1, -0.1) * s0)
-                    ss = np.minimum(np.maximum(s - step, lo), hi)
-                    del dfs, step, ok  # free before the next residual (peak memory at large inputs)
+                    ss = newton_speed_step(s, f, dfs, s0, lo, hi)
+                    del dfs  # free before the next residual (peak memory at large inputs)
                     sqs = np.sqrt(ss)
                     if n_open < open_.size:
                         ss = np.where(open_, ss, s)
@@ -605,12 +610,7 @@ class DriveRows:
                 break
             sqo = np.sqrt(so)
             dfs = 1.0 + (0.5 * rr) / sqo - co / (so * so) if motor else ao + (1.5 * rr) * sqo
-            ok = dfs > 0
-            if ok.all():
-                step = fo / dfs
-            else:
-                step = np.where(ok, fo / np.where(ok, dfs, 1.0), np.where(fo > 0, 0.1, -0.1) * s0)
-            sn = np.minimum(np.maximum(so - step, lo), hi)
+            sn = newton_speed_step(so, fo, dfs, s0, lo, hi)
             sqn = np.sqrt(sn)
             fo = sn + ao + rr * sqn + co / sn if motor else sn * (ao + rr * sqn) + co
             s_f[idx], sq_f[idx], f_f[idx] = sn, sqn, fo

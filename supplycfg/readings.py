@@ -231,6 +231,17 @@ BAND_GUARD_SHARE = 1.0 / 32
 BAND_AHEAD_SHARES = (1.0 / 16, 1.0 / 4)
 
 
+def _band_start(u0, lo, hi, scan):
+    """The controls and their range as arrays of one shape, the rows that can have a band, and the scan's
+    fractions of the way to each end."""
+    u0 = np.asarray(u0, float)
+    n = u0.size
+    lo = np.broadcast_to(np.asarray(lo, float), (n,))
+    hi = np.broadcast_to(np.asarray(hi, float), (n,))
+    live = np.isfinite(u0) & np.isfinite(lo) & np.isfinite(hi)
+    return u0, lo, hi, live, np.arange(1, scan + 1) / scan
+
+
 def _band_by_root(margin_of, u0, lo, hi, scan, steps, per_round, m0):
     """:func:`control_band` with each edge found by a guided search on the bisection's grid (``refine="root"``).
 
@@ -251,12 +262,8 @@ def _band_by_root(margin_of, u0, lo, hi, scan, steps, per_round, m0):
     ``margin_of`` may return every limit's margin (shape ``(limits, n)``):
     the estimates then follow each limit, the decisions their smallest.
     """
-    u0 = np.asarray(u0, float)
+    u0, lo, hi, live, frac = _band_start(u0, lo, hi, scan)
     n = u0.size
-    lo = np.broadcast_to(np.asarray(lo, float), (n,))
-    hi = np.broadcast_to(np.asarray(hi, float), (n,))
-    live = np.isfinite(u0) & np.isfinite(lo) & np.isfinite(hi)
-    frac = np.arange(1, scan + 1) / scan
     known = m0 is not None
     if known:
         m0 = np.asarray(m0, float)
@@ -486,12 +493,8 @@ def control_band(margin_of, u0, lo, hi, scan=BAND_SCAN_POINTS, steps=BAND_BISECT
     """
     if refine == "root":
         return _band_by_root(margin_of, u0, lo, hi, scan, steps, per_round, m0)
-    u0 = np.asarray(u0, float)
+    u0, lo, hi, live, frac = _band_start(u0, lo, hi, scan)
     n = u0.size
-    lo = np.broadcast_to(np.asarray(lo, float), (n,))
-    hi = np.broadcast_to(np.asarray(hi, float), (n,))
-    live = np.isfinite(u0) & np.isfinite(lo) & np.isfinite(hi)
-    frac = np.arange(1, scan + 1) / scan
     # one call: the exact control and the scan towards both ends
     idx = [np.flatnonzero(live & (end != u0)) for end in (lo, hi)]
     pts = [u0[i, None] + (end[i] - u0[i])[:, None] * frac[None, :] for i, end in zip(idx, (lo, hi))]
