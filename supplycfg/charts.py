@@ -12,6 +12,7 @@ the chosen option is drawn bold and other options thin and grey; the axes
 fit the data; all text is dark on white (contrast above 4.5:1).
 """
 
+import copy
 from dataclasses import replace
 
 import altair as alt
@@ -84,7 +85,9 @@ def chart_spec(chart, validate=True, thin=False):
     # The rows go round Altair's walk: it checks every value of every row against its classes,
     # most of a page rerun's drawing time, and the rows are plain numbers and words already.
     rows = getattr(chart, "datasets", alt.Undefined)
-    if rows is not alt.Undefined:
+    if isinstance(chart, LayeredChart):
+        spec = chart.to_dict(validate=validate)
+    elif rows is not alt.Undefined:
         chart.datasets = alt.Undefined
         try:
             spec = chart.to_dict(validate=validate)
@@ -253,10 +256,6 @@ def _f(v, digits=4):
     return float(f"{v:.{digits}g}")
 
 
-def _zoom():
-    return alt.selection_interval(bind="scales", name="zoom")
-
-
 class _Styles:
     """Colour, dash, width and opacity per series label: one legend shows them all."""
 
@@ -334,11 +333,50 @@ def _title(text, subtitle=None):
     return alt.TitleParams(text=text, subtitle=subtitle) if subtitle else text
 
 
+#: Name of the view that carries a layered chart's zoom (the chart's first layer).
+ZOOM_VIEW = "view_zoom"
+
+
+class LayeredChart:
+    """Layers over one pair of axes with a zoom, their rows kept once: what :func:`_layered` builds.
+
+    Altair's own layer chart copies every layer deeply, and again on each
+    ``to_dict``, to lift selection parameters to the top: most of a page
+    rerun's drawing time. Here each layer is turned into its spec once and
+    the zoom is written at the top as Vega-Lite has it (``params`` with
+    ``views`` naming the first layer). ``to_dict`` gives the same spec as
+    Altair's, the view's name aside.
+    """
+
+    def __init__(self, layers, datasets, top):
+        self.layers, self.datasets, self.top = layers, datasets, top
+
+    def to_dict(self, validate=True):
+        """The Vega-Lite spec (checked against Altair's schema when ``validate``)."""
+        layer = [ly.to_dict(validate=False, context={"top_level": False}) for ly in self.layers]
+        layer[0]["name"] = ZOOM_VIEW
+        spec = {"$schema": alt.SCHEMA_URL, "layer": layer,
+                "params": [{"name": "zoom", "select": {"type": "interval"}, "bind": "scales", "views": [ZOOM_VIEW]}],
+                **{k: (v.to_dict(validate=False) if isinstance(v, alt.SchemaBase) else copy.deepcopy(v))
+                   for k, v in self.top.items()}}
+        theme = alt.theme.get()
+        if theme is not None:
+            spec = alt.utils.update_nested(theme(), spec, copy=True)
+        if self.datasets:
+            spec["datasets"] = {name: [{k: plain_value(v) for k, v in r.items()} for r in rows]
+                                for name, rows in self.datasets.items()}
+        if validate:
+            alt.LayerChart.validate(spec)
+        return spec
+
+
 def _layered(layers, title, sets, width=None):
+    """The layers as one chart with a zoom on the first (:class:`LayeredChart`)."""
     layers = [ly for ly in layers if ly is not None]
-    kw = {"width": width} if width is not None else {}
-    return alt.LayerChart(layer=layers, datasets=sets.data, title=title, height=HEIGHT, autosize=FIT_WIDTH,
-                          config=CHART_CONFIG, **kw)
+    top = {"title": title, "height": HEIGHT, "autosize": FIT_WIDTH, "config": CHART_CONFIG}
+    if width is not None:
+        top["width"] = width
+    return LayeredChart(layers, sets.data, top)
 
 
 # ---------------------------------------------------------------------------
@@ -460,7 +498,7 @@ def occ_chart(machine, setting=None, temperatures_c=None, width=None):
         tooltip=[alt.Tooltip("field_current_a:Q", title="field current [A]"),
                  alt.Tooltip("emf_v:Q", title="EMF [V]"),
                  alt.Tooltip("extrapolated:N", title="beyond the measured points")], **enc,
-    ).add_params(_zoom())
+    )
     measured = alt.Chart(sets("measured", pts)).mark_point(filled=True, size=36, shape="diamond").encode(
         x=alt.X("field_current_a:Q"), y=alt.Y("emf_v:Q"), color=styles.colour(),
         tooltip=[alt.Tooltip("field_current_a:Q", title="field current [A]"),
@@ -601,7 +639,6 @@ def characteristic_chart(curves, loads=(), bands=(), points=(), title="External 
     if not layers:
         layers.append(alt.Chart(sets("empty", [{"load_current_a": 0, "terminal_voltage_v": 0}])).mark_point(
             opacity=0).encode(x=xq, y=yq))
-    layers[0] = layers[0].add_params(_zoom())
     return _layered(layers, title, sets, width)
 
 
@@ -930,7 +967,6 @@ def charging_curves_chart(family, width=None):
                  for si, v, sf in zip(s, c["volts_per_cell"], c["stored_fraction"])]
     labels = list(dict.fromkeys(r["series"] for r in rows))
     sets = _Sets()
-    zoom = _zoom()
     x = alt.X("state_of_charge_pct:Q", title="State of charge [%]", scale=alt.Scale(domain=[0, 100]))
     colour = alt.Color("series:N", scale=alt.Scale(domain=labels, range=[BLUE, VERMILLION, GREEN, PURPLE][:len(labels)]),
                        legend=_legend())
@@ -942,7 +978,7 @@ def charging_curves_chart(family, width=None):
         strokeDash=dash,
         tooltip=[alt.Tooltip("series:N", title="current"), alt.Tooltip("state_of_charge_pct:Q", title="charge [%]"),
                  alt.Tooltip("volts_per_cell:Q", title="volts per cell"),
-                 alt.Tooltip("stored_pct:Q", title="stored [% of current]")]).add_params(zoom)
+                 alt.Tooltip("stored_pct:Q", title="stored [% of current]")])
     lines = [{"label": f"gassing voltage {family['gassing_volts_per_cell']:.3f} V", "v": _f(family["gassing_volts_per_cell"])},
              {"label": f"highest cell voltage {family['highest_volts_per_cell']:.3f} V", "v": _f(family["highest_volts_per_cell"])}]
     rules = alt.Chart(sets("levels", lines)).mark_rule(color=BLACK, strokeDash=DASHES["long-short"], strokeWidth=1.6).encode(

@@ -543,3 +543,33 @@ def test_setting_curves_in_one_solve_equal_one_by_one(charging):
         v1 = np.asarray(ch.points["terminal_voltage_v"], float)
         v2 = np.asarray(alone.points["terminal_voltage_v"], float)
         assert_allclose(v1, v2, rtol=1e-9, atol=1e-9)
+
+
+def test_layered_chart_spec_is_altairs_own(charging):
+    """A layered chart's spec, built without Altair's layer chart (page speed), is the one Altair's
+    ``LayerChart`` writes for the same layers with the zoom on the first, the view's name aside.
+
+    Reference: Altair's own ``to_dict``.
+    """
+    import json
+    import re
+    import altair as alt
+    m, p = charging
+    st = Setting("shunt", rheostat_ohm=30.0)
+    for ch in (charts.occ_chart(m, st, p.temperatures_c), charts.battery_chart(m, p, st)):
+        assert isinstance(ch, charts.LayeredChart)
+        layers = [ch.layers[0].add_params(alt.selection_interval(bind="scales", name="zoom"))] + ch.layers[1:]
+        want = alt.LayerChart(layer=layers, datasets=ch.datasets, **ch.top).to_dict()
+        got = ch.to_dict()
+        norm = lambda spec: re.sub(r'"view_[0-9a-f]+_0"', f'"{charts.ZOOM_VIEW}"', json.dumps(spec, sort_keys=True))
+        assert norm(got) == norm(want)
+
+
+def test_layered_chart_spec_is_checked_against_the_schema(charging):
+    """``to_dict(validate=True)`` refuses a spec that Vega-Lite's schema does not allow (as Altair's would)."""
+    m, p = charging
+    ch = charts.occ_chart(m, Setting("shunt", rheostat_ohm=30.0))
+    ch.top["height"] = "tall"
+    with pytest.raises(Exception, match="height|tall"):
+        ch.to_dict(validate=True)
+    ch.to_dict(validate=False)  # the page's path does not check
