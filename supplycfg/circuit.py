@@ -1289,7 +1289,8 @@ def characteristics_of(circ, points=400):
         ray_states, seg_note = trace_on_rays(
             lambda rows, v, il: machine_state(circ, candidate_params(circ, rows), v, il), refine_bracketed_roots,
             slf,
-            voltage_span(circ, slf), circ.imax, m.rated_voltage_v, m.rated_armature_current_a, points)
+            voltage_span(circ, slf), circ.imax, m.rated_voltage_v, m.rated_armature_current_a, points,
+            residual_fn=lambda rows, v, il: circuit_residual(circ, candidate_params(circ, rows), v, il))
         slf = slf[:0]
     if slf.size:
         xg, ig = _grids(circ)

@@ -30,12 +30,12 @@ LOCAL_GRID = 9
 LOCAL_MARGIN = 0.05
 
 
-def _crossings(state_fn, refine, rows, theta, rmax, vs, is_):
+def _crossings(residual_fn, refine, rows, theta, rmax, vs, is_):
     """Outermost fall of ``h`` through zero along each ray; NaN where none. Also how many falls."""
     g = np.linspace(0.0, 1.0, RAY_GRID)[None, :]
     r = rmax[:, None] * g
     c, s = np.cos(theta)[:, None], np.sin(theta)[:, None]
-    h = state_fn(rows[:, None], r * s * vs[:, None], r * c * is_[:, None])["h"]
+    h = residual_fn(rows[:, None], r * s * vs[:, None], r * c * is_[:, None])
     fall = (h[:, :-1] > 0) & (h[:, 1:] <= 0)
     count = fall.sum(axis=1)
     has = count > 0
@@ -45,14 +45,14 @@ def _crossings(state_fn, refine, rows, theta, rmax, vs, is_):
     c1, s1 = c[:, 0], s[:, 0]
 
     def hr(rr):
-        return state_fn(rows, rr * s1 * vs, rr * c1 * is_)["h"]
+        return residual_fn(rows, rr * s1 * vs, rr * c1 * is_)
 
     root = np.where(has, refine(hr, a, b, h[k, j], RAY_STEPS), np.nan)
     at_edge = has & (j >= RAY_GRID - 3)
     return root, count, at_edge
 
 
-def crossings_near(state_fn, refine, rows, theta, lo, hi, vs, is_):
+def crossings_near(residual_fn, refine, rows, theta, lo, hi, vs, is_):
     """The fall of ``h`` through zero on ``[lo, hi]`` along each ray, where it is the only one there.
 
     Returns the root and where it holds: ``h(lo) > 0``, ``h(hi) <= 0`` and
@@ -61,7 +61,7 @@ def crossings_near(state_fn, refine, rows, theta, lo, hi, vs, is_):
     g = np.linspace(0.0, 1.0, LOCAL_GRID)[None, :]
     r = lo[:, None] + (hi - lo)[:, None] * g
     c, s = np.cos(theta), np.sin(theta)
-    h = state_fn(rows[:, None], r * (s * vs)[:, None], r * (c * is_)[:, None])["h"]
+    h = residual_fn(rows[:, None], r * (s * vs)[:, None], r * (c * is_)[:, None])
     fall = (h[:, :-1] > 0) & (h[:, 1:] <= 0)
     found = (h[:, 0] > 0) & (h[:, -1] <= 0) & (fall.sum(axis=1) == 1)
     j = np.argmax(fall, axis=1)
@@ -73,13 +73,13 @@ def crossings_near(state_fn, refine, rows, theta, lo, hi, vs, is_):
         cf, sf = np.cos(tf), np.sin(tf)
 
         def hr(rr):
-            return state_fn(rf, rr * sf * vs[f], rr * cf * is_[f])["h"]
+            return residual_fn(rf, rr * sf * vs[f], rr * cf * is_[f])
 
         root[f] = refine(hr, r[f, j[f]], r[f, j[f] + 1], h[k[f], j[f]], RAY_STEPS)
     return root, found
 
 
-def trace_on_rays(state_fn, refine, cand, vtop, imax, v_scale, i_scale, points):
+def trace_on_rays(state_fn, refine, cand, vtop, imax, v_scale, i_scale, points, residual_fn=None):
     """Sample the characteristics of candidates ``cand`` from no load to short circuit.
 
     Parameters
@@ -99,6 +99,9 @@ def trace_on_rays(state_fn, refine, cand, vtop, imax, v_scale, i_scale, points):
         Per-unit bases of voltage and current (rated values).
     points : int
         Samples per curve.
+    residual_fn : callable, optional
+        ``residual_fn(rows, v, il)`` -> ``h`` alone, as ``state_fn`` gives it
+        (the crossings need nothing else); default taken from ``state_fn``.
 
     Returns
     -------
@@ -123,7 +126,9 @@ def trace_on_rays(state_fn, refine, cand, vtop, imax, v_scale, i_scale, points):
     rows = np.repeat(cand, k1)
     theta = np.tile(th, nc)
     vs = np.full(rows.size, v_scale); is_ = np.full(rows.size, i_scale)
-    root, count, edge = _crossings(state_fn, refine, rows, theta, rays(theta, rows), vs, is_)
+    if residual_fn is None:
+        residual_fn = lambda rows, v, il: state_fn(rows, v, il)["h"]  # noqa: E731
+    root, count, edge = _crossings(residual_fn, refine, rows, theta, rays(theta, rows), vs, is_)
     root = root.reshape(nc, k1); count = count.reshape(nc, k1); edge = edge.reshape(nc, k1)
     states, notes = {}, {}
     sel_rows, sel_theta, owner = [], [], []
@@ -170,13 +175,13 @@ def trace_on_rays(state_fn, refine, cand, vtop, imax, v_scale, i_scale, points):
         if near.any():
             nn = np.flatnonzero(near)
             hi2 = np.minimum(np.concatenate(sel_hi)[nn], rmax2[nn])
-            got, found = crossings_near(state_fn, refine, rows2[nn], th2[nn], np.concatenate(sel_lo)[nn], hi2,
+            got, found = crossings_near(residual_fn, refine, rows2[nn], th2[nn], np.concatenate(sel_lo)[nn], hi2,
                                          vs2[nn], is2[nn])
             root2[nn[found]] = got[found]
             near[nn[~found]] = False
         far = np.flatnonzero(~near)
         if far.size:
-            root2[far], _, _ = _crossings(state_fn, refine, rows2[far], th2[far], rmax2[far], vs2[far], is2[far])
+            root2[far], _, _ = _crossings(residual_fn, refine, rows2[far], th2[far], rmax2[far], vs2[far], is2[far])
         # a ray of the second pass can only miss where the first found the curve at its edge
         v = root2 * np.sin(th2) * v_scale
         il = root2 * np.cos(th2) * i_scale
