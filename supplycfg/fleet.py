@@ -32,6 +32,9 @@ class FleetRow:
     margin); ``shaft_power_kw`` is the best option's highest shaft power over
     the job's load points, what the drive must give, and ``drive_loading_percent``
     that power over the profile's drive rating (None for a fixed speed).
+    ``drive_needed_kw``, where no setting meets the job because the drive is
+    too small: the least highest shaft power of a setting that meets it with
+    a larger drive of the same kind [kW].
     """
 
     file: str
@@ -42,13 +45,14 @@ class FleetRow:
     objective_label: str | None = None
     shaft_power_kw: float | None = None
     drive_loading_percent: float | None = None
+    drive_needed_kw: float | None = None
     error: str | None = None
 
     def as_dict(self):
         return {"file": self.file, "label": self.label, "feasible": self.feasible, "best": self.best,
                 "objective": self.objective, "objective_label": self.objective_label,
                 "shaft_power_kw": self.shaft_power_kw, "drive_loading_percent": self.drive_loading_percent,
-                "error": self.error}
+                "drive_needed_kw": self.drive_needed_kw, "error": self.error}
 
 
 @dataclass
@@ -138,6 +142,7 @@ def search_one_machine(path, profile, text=None):
         row.objective, row.objective_label = objective_shown(profile, best)
         row.shaft_power_kw = _finite_or_none(best.figures.get("max_shaft_power_kw"))
         row.drive_loading_percent = _finite_or_none(best.figures.get("max_drive_loading_percent"))
+    row.drive_needed_kw = _finite_or_none(res.drive_needed_kw)
     return row
 
 
@@ -215,14 +220,14 @@ def fleet_rows(res, trade_words=False):
 
     Keys: ``machine file``, ``machine``, ``can do it`` (yes, no or error),
     ``best setting``, ``objective`` (with the job's words and unit), ``shaft
-    power``, ``breaks`` (the limits the best option breaks, in words) and
-    ``error``.
+    power``, ``drive needed`` (where the drive is why nothing meets the job),
+    ``breaks`` (the limits the best option breaks, in words) and ``error``.
     """
     from .report import limit_label
     out = []
     for r in res.machines:
         row = {"machine file": Path(r.file).name, "machine": r.label or "", "can do it": "error", "best setting": "",
-               "objective": "", "shaft power": "", "breaks": "", "error": r.error or ""}
+               "objective": "", "shaft power": "", "drive needed": "", "breaks": "", "error": r.error or ""}
         if r.error is None:
             row["can do it"] = "yes" if r.feasible else "no"
             if r.best is None:
@@ -239,6 +244,10 @@ def fleet_rows(res, trade_words=False):
                         f" ({r.drive_loading_percent:.0f} % of the drive's rating)"
                         if r.drive_loading_percent is not None else "")
                 row["breaks"] = ", ".join(limit_label(n) for n in r.best["failed"])
+            if r.drive_needed_kw is not None:
+                # nothing works because the drive is too small: what a larger one must give
+                row["drive needed"] = (f"the drive limits it: with a larger drive a setting meets the job, "
+                                       f"{r.drive_needed_kw:.3g} kW at the shaft")
         out.append(row)
     return out
 
@@ -280,6 +289,8 @@ def fleet_text(res):
             desc += f"; {row['objective']}"
         if row["shaft power"]:
             desc += f"; shaft power {row['shaft power']}"
+        if row["drive needed"]:
+            desc += f"; {row['drive needed']}"
         if row["breaks"]:
             desc += "; breaks: " + row["breaks"]
         lines.append(f"{name:<32} {row['can do it']:<9}  {desc}")

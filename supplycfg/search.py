@@ -152,6 +152,9 @@ class SearchResult:
     candidates_evaluated: int
     search_seconds: float
     notes: list = field(default_factory=list)
+    #: Where nothing is feasible and the drive is the reason: the least highest shaft power [kW] of a
+    #: setting that meets the job with a far larger drive of the same kind (what the drive must give).
+    drive_needed_kw: float | None = None
 
     @property
     def feasible(self):
@@ -171,7 +174,7 @@ class SearchResult:
                 "cautions": [c.as_dict() for c in self.cautions],
                 "candidates_evaluated": self.candidates_evaluated,
                 "search_seconds": self.search_seconds, "notes": list(self.notes),
-                "notice": STANDING_NOTICE}
+                "drive_needed_kw": self.drive_needed_kw, "notice": STANDING_NOTICE}
 
 
 # ---------------------------------------------------------------------------
@@ -404,12 +407,14 @@ def search(machine, profile, with_drive_check=True, advice=True):
                               extrap, readings, band, ex, obj if math.isfinite(obj) else None,
                               drive_points=table.rows(i) if table is not None else []))
     options = rank_options(merge_identical(options))
+    need = None
     if not any(o.feasible for o in options):
         notes.append("no setting meets every limit; the nearest misses are listed with the limit each breaks")
         if profile.drive.coupled and with_drive_check:
-            notes += drive_limit_notes(machine, profile, options)
+            need, more = drive_limit_notes(machine, profile, options)
+            notes += more
     return SearchResult(machine, profile, options, profile_cautions(machine, profile), int(evaluated),
-                        time.perf_counter() - t0, notes)
+                        time.perf_counter() - t0, notes, need)
 
 
 #: Rating multiple of the "far larger drive" that tells whether the drive limits a job.
@@ -417,20 +422,26 @@ STIFF_DRIVE_FACTOR = 100.0
 
 
 def drive_limit_notes(machine, profile, options):
-    """Why nothing is feasible, when the drive is the reason: the notes of an infeasible search."""
+    """Whether the drive is why nothing is feasible: ``(need_kw, notes)`` of an infeasible search.
+
+    The job is searched again with a drive of :data:`STIFF_DRIVE_FACTOR` times
+    the rating (same kind and figures). ``need_kw`` is the least highest
+    shaft power of a setting that meets it then [kW], None where none does
+    (the drive is not the reason).
+    """
     drive = profile.drive
     over = [o for o in options if "drive_power" in o.failed]
     stiff = replace(profile, drive=drive.with_rating(STIFF_DRIVE_FACTOR * drive.rated_power_kw))
     big = search(machine, stiff, with_drive_check=False, advice=False)
     if not big.feasible:
-        return []
+        return None, []
     need = min(o.figures.get("max_shaft_power_kw") or math.inf for o in big.feasible)
     text = (f"the drive limits this job: with a larger {drive.kind} of the same figures "
             f"{len(big.feasible)} setting(s) meet it, the least of them drawing {need:.3g} kW at the shaft against "
             f"the {drive.rated_power_kw:g} kW rating")
     if over:
         text += f"; {len(over)} setting(s) here break the drive_power limit"
-    return [text + "; `supplycfg size` finds the smallest rating that works"]
+    return (need if math.isfinite(need) else None), [text + "; `supplycfg size` finds the smallest rating that works"]
 
 
 def search_machine_profile(machine_path, profile_path):

@@ -95,3 +95,26 @@ def test_fleet_of_texts_keeps_refused_and_bad_files_in_their_rows():
     assert big.error.startswith("big.toml: file:") and bad.error and "bad.toml" in bad.error
     assert ok.error is None and ok.feasible
     assert ok.best["setting"] == search(load_machine(MACHINES / "welding-set.toml"), p).options[0].setting_dict()
+
+
+def test_fleet_row_says_what_a_larger_drive_must_give_where_the_drive_limits_the_job(tmp_path):
+    """A motor too small for the booster (as in test_drive): the row says the drive limits the job and
+    what a larger drive must give at the shaft, the same figure as the single search's; with the
+    drive large enough the row has no such figure (issue 12: "the drive rating it needs")."""
+    from supplycfg.fleet import fleet_rows
+    from supplycfg.profile import profile_from_dict, profile_to_dict
+    shutil.copy(MACHINES / "feeder-booster.toml", tmp_path / "feeder-booster.toml")
+    d = profile_to_dict(load_profile(ROOT / "profiles" / "loads" / "booster.toml"))
+    d["drive"] = {"kind": "motor", "synchronous_speed_rpm": 1000, "rated_slip_percent": 4, "rated_power_kw": 12,
+                  "winding_temperature_range_c": [20, 75]}
+    small = profile_from_dict(d, "small motor")
+    res = fleet_search(tmp_path, small, workers=1)
+    row = res.machines[0]
+    single = search(load_machine(row.file), small)
+    assert not row.feasible and row.drive_needed_kw is not None and row.drive_needed_kw > 12
+    assert row.drive_needed_kw == pytest.approx(single.drive_needed_kw, rel=1e-12)
+    assert "the drive limits it" in fleet_rows(res)[0]["drive needed"]
+    assert res.as_dict()["machines"][0]["drive_needed_kw"] == pytest.approx(row.drive_needed_kw)
+    d["drive"]["rated_power_kw"] = 2 * row.drive_needed_kw
+    roomy = fleet_search(tmp_path, profile_from_dict(d, "larger motor"), workers=1).machines[0]
+    assert roomy.feasible and roomy.drive_needed_kw is None
