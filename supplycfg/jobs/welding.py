@@ -705,6 +705,15 @@ def dial_advice(space, targets, paths, u_all, reach, ev, valid, option_ok, bands
     pb, pr = used // nr, used % nr
     pu = u_all[used]
     controls = [space.bases[b][3] for b in pb]
+    # readings: no-load field current at the nominal speed, cold and hot
+    if bands:
+        c0, h0, _, v_hot = _row_field(space, pb, pu, voltages=True)
+    else:
+        c0 = h0 = v_hot = np.full(used.size, np.nan)
+    if bands and reading_corners(space)[1] == nom:
+        vnl_nom = v_hot  # the nominal corner is the readings' hot one: its no-load voltages are solved there
+    else:
+        vnl_nom = no_load_voltage_v(expand_candidates(space, pb, pu, np.full(used.size, nom))[0])
     # bands of the rows inside every limit
     lo = np.array([control_range(m, c)[0] for c in controls])
     hi = np.array([control_range(m, c)[1] for c in controls])
@@ -720,22 +729,12 @@ def dial_advice(space, targets, paths, u_all, reach, ev, valid, option_ok, bands
 
     band_lo, band_hi = control_band(margin_of, np.where(ok, pu, np.nan), lo, hi, scan=4, steps=16)
     have = np.isfinite(band_lo)
-    # readings: no-load field current at the nominal speed, cold and hot, at the setting and at the
-    # band's ends, in one solve (each row is solved on its own, so together is the same as apart)
-    nan = np.full(used.size, np.nan)
-    c0 = h0 = v_hot = cl = hl = ch = hh = nan
-    if bands:
-        ends = [pu] + ([np.where(have, band_lo, pu), np.where(have, band_hi, pu)] if have.any() else [])
-        f_cold, f_hot, _, v_all = _row_field(space, np.tile(pb, len(ends)), np.concatenate(ends), voltages=True)
-        k = used.size
-        c0, h0, v_hot = f_cold[:k], f_hot[:k], v_all[:k]
-        if have.any():
-            cl, hl, ch, hh = f_cold[k:2 * k], f_hot[k:2 * k], f_cold[2 * k:], f_hot[2 * k:]
-            counter[0] += 4 * used.size * space.nc
-    if bands and reading_corners(space)[1] == nom:
-        vnl_nom = v_hot  # the nominal corner is the readings' hot one: its no-load voltages are solved there
+    if have.any():
+        cl, hl = _row_field(space, pb, np.where(have, band_lo, pu))
+        ch, hh = _row_field(space, pb, np.where(have, band_hi, pu))
+        counter[0] += 4 * used.size * space.nc
     else:
-        vnl_nom = no_load_voltage_v(expand_candidates(space, pb, pu, np.full(used.size, nom))[0])
+        cl = hl = ch = hh = np.full(used.size, np.nan)
     pos = {int(p): j for j, p in enumerate(used)}
     rc = job.cable_resistance_ohm
     di = current_change_per_arc_volt_a_per_v(ev["slope_v_per_a"], rc)
