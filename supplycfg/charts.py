@@ -18,7 +18,7 @@ from dataclasses import replace
 import altair as alt
 import numpy as np
 
-from .circuit import (SELF_EXCITED, SEPARATE, Load, Setting, characteristics, check_setting, external_characteristic,
+from .circuit import (SELF_EXCITED, SEPARATE, Load, Setting, characteristics, check_setting,
                       operating_points, self_excitation)
 from .magnetisation import OpenCircuitCurve, copper_resistance_factor
 from .wording import connection_words
@@ -84,17 +84,14 @@ def chart_spec(chart, validate=True, thin=False):
     """
     # The rows go round Altair's walk: it checks every value of every row against its classes,
     # most of a page rerun's drawing time, and the rows are plain numbers and words already.
-    rows = getattr(chart, "datasets", alt.Undefined)
-    if isinstance(chart, LayeredChart):
-        spec = chart.to_dict(validate=validate)
-    elif rows is not alt.Undefined:
+    rows = alt.Undefined if isinstance(chart, LayeredChart) else getattr(chart, "datasets", alt.Undefined)
+    if rows is not alt.Undefined:
         chart.datasets = alt.Undefined
         try:
             spec = chart.to_dict(validate=validate)
         finally:
             chart.datasets = rows
-        spec["datasets"] = {name: [{k: plain_value(v) for k, v in r.items()} for r in rs]
-                            for name, rs in rows.items()}
+        spec["datasets"] = plain_datasets(rows)
     else:
         spec = chart.to_dict(validate=validate)
     spec.setdefault("config", {}).setdefault("legend", {})["layout"] = LEGEND_LAYOUT
@@ -103,9 +100,10 @@ def chart_spec(chart, validate=True, thin=False):
     return spec
 
 
-def plain_value(v):
-    """A dataset cell as Altair writes it: numpy scalars as Python numbers."""
-    return v.item() if isinstance(v, np.generic) else v
+def plain_datasets(datasets):
+    """Named datasets as Altair writes them: numpy scalars in the rows as Python numbers."""
+    return {name: [{k: v.item() if isinstance(v, np.generic) else v for k, v in r.items()} for r in rows]
+            for name, rows in datasets.items()}
 
 
 #: Farthest a thinned line may stray from the line through every computed point, as a share of each
@@ -363,8 +361,7 @@ class LayeredChart:
         if theme is not None:
             spec = alt.utils.update_nested(theme(), spec, copy=True)
         if self.datasets:
-            spec["datasets"] = {name: [{k: plain_value(v) for k, v in r.items()} for r in rows]
-                                for name, rows in self.datasets.items()}
+            spec["datasets"] = plain_datasets(self.datasets)
         if validate:
             alt.LayerChart.validate(spec)
         return spec
@@ -642,11 +639,6 @@ def characteristic_chart(curves, loads=(), bands=(), points=(), title="External 
     return _layered(layers, title, sets, width)
 
 
-def setting_curve(machine, setting, points=CURVE_POINTS, drive=None):
-    """The external characteristic of ``setting`` (checked) on ``drive``, for charts."""
-    return external_characteristic(machine, check_setting(machine, setting), points, drive)
-
-
 def setting_curves(machine, settings, points=CURVE_POINTS, drive=None):
     """The external characteristics of several settings (checked) in one solve: a chart's corners
     share the engine's fixed cost per call."""
@@ -732,8 +724,7 @@ def battery_chart(machine, profile, setting, width=None, figures=None, finish_se
     curves, chars = [], []
     wanted = [replace(setting, winding_temperature_c=t) for t in temps]
     if finish_setting is not None:
-        fs = check_setting(machine, finish_setting)
-        wanted.append(fs)
+        wanted.append(finish_setting)
     solved = setting_curves(machine, wanted, drive=profile.drive)
     for j, t in enumerate(temps):
         ch = solved[j]
@@ -743,7 +734,7 @@ def battery_chart(machine, profile, setting, width=None, figures=None, finish_se
                        "rows": curve_rows(lab, ch)})
     if finish_setting is not None:
         ch = solved[-1]
-        lab = f"machine, finish, windings {fs.winding_temperature_c:g} °C"
+        lab = f"machine, finish, windings {ch.setting.winding_temperature_c:g} °C"
         curves.append({"label": lab, "colour": GREEN, "dash": DASHES["long"], "rows": curve_rows(lab, ch)})
     i_top = 1.6 * b.max_charge_current_a
     lines, bands, start, on_charge = battery_lines(profile, i_top)
@@ -826,7 +817,7 @@ def welding_chart(machine, profile, option, other_taps=(), width=None):
     i_max = 1.3 * hi
     line = _weld_line_load(profile)
     ends = [(target, check_setting(machine, st)) for target, st in _end_settings(option)]
-    tap_ends = [_end_settings(opt)[-1] for opt in other_taps]
+    tap_ends = [(target, check_setting(machine, st)) for target, st in (_end_settings(opt)[-1] for opt in other_taps)]
     solved = setting_curves(machine, [st for _, st in ends] + [st for _, st in tap_ends], drive=profile.drive)
     for j, (target, st) in enumerate(ends):
         ch = solved[j]
@@ -841,7 +832,7 @@ def welding_chart(machine, profile, option, other_taps=(), width=None):
                         "terminal_voltage_v": op["terminal_voltage_v"]})
     for k, (target, st) in enumerate(tap_ends):
         ch = solved[len(ends) + k]
-        lab = f"other tap: {_tap_text(check_setting(machine, st))}" + (f", for {target:g} A" if target else "")
+        lab = f"other tap: {_tap_text(st)}" + (f", for {target:g} A" if target else "")
         curves.append({"label": lab, "colour": GREY, "muted": True,
                        "dash": (DASHES["short"], DASHES["dot"], DASHES["dash-dot"], DASHES["long"])[k % 4],
                        "rows": curve_rows(lab, ch)})

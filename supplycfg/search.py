@@ -411,7 +411,7 @@ def search(machine, profile, with_drive_check=True, advice=True):
     if not any(o.feasible for o in options):
         notes.append("no setting meets every limit; the nearest misses are listed with the limit each breaks")
         if profile.drive.coupled and with_drive_check:
-            need, more = drive_limit_notes(machine, profile, options)
+            need, more = drive_limit_check(machine, profile, options)
             notes += more
     return SearchResult(machine, profile, options, profile_cautions(machine, profile), int(evaluated),
                         time.perf_counter() - t0, notes, need)
@@ -421,7 +421,7 @@ def search(machine, profile, with_drive_check=True, advice=True):
 STIFF_DRIVE_FACTOR = 100.0
 
 
-def drive_limit_notes(machine, profile, options):
+def drive_limit_check(machine, profile, options):
     """Whether the drive is why nothing is feasible: ``(need_kw, notes)`` of an infeasible search.
 
     The job is searched again with a drive of :data:`STIFF_DRIVE_FACTOR` times

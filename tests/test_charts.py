@@ -255,7 +255,7 @@ def test_load_end_chart_is_terminal_voltage_less_feeder_drop():
     """Lighting: load-end voltage = terminal voltage - I x R_feeder at each curve point."""
     m, p = machine("lighting-set"), profile("lighting")
     st = check_setting(m, Setting("shunt", rheostat_ohm=20.0, winding_temperature_c=40.0))
-    ch = charts.setting_curve(m, st)
+    ch = charts.setting_curves(m, [st])[0]
     spec = charts.load_end_chart(m, p, st).to_dict()
     cold = [r for r in rows(spec, "curves") if "40 °C" in r["series"]]
     il = np.asarray(ch.points["load_current_a"])
