@@ -461,6 +461,11 @@ def charge_from_files(machine_path, profile_path, setting=None, names=None, max_
                                  "see `supplycfg search` for the limits each setting breaks")
             source = f"option {pick.rank} of the search, the nearest miss (no setting meets every limit)"
         run = charge_run_for_option(m, p, pick, max_hours)
+        # the plan's meter readings, rounded to what can be set, go with the stages they belong to
+        readings = {q.get("stage"): q.get("readings") for q in (pick.extras or {}).get("plan") or []}
+        for q in run.stages:
+            if readings.get(q.get("stage")) is not None:
+                q["readings"] = readings[q["stage"]]
     else:
         if p.drive.coupled and setting.speed_rpm is not None:
             raise InputError("command line", (names or {}).get("speed_rpm", "speed_rpm"),
@@ -487,7 +492,9 @@ def charge_text(run):
     at = (f" at {sp_words}, windings {c.get('winding_temperature_c', run.setting.winding_temperature_c):g} degC"
           if c or run.setting.speed_rpm else "")
     lines = [f"Charge run: {visible(run.machine_label)} on {visible(run.profile_label)}",
-             f"setting: {run.setting.describe(with_connection=True)}" + (f" ({run.setting_source})" if run.setting_source else ""),
+             f"setting: {run.setting.describe(with_connection=True)}" + (f" ({run.setting_source})" if run.setting_source else "")
+             + ("; simulated at these exact values, set the meter readings of the plan below"
+                if any(q.get("readings") for q in run.stages) else ""),
              f"battery: {run.cells} cells, {run.capacity_ah:g} Ah, from {100 * run.start_state_of_charge:.0f} % "
              f"to {100 * run.end_state_of_charge:.0f} % state of charge",
              f"stopped after {run.duration_h:.2f} h because {run.stop_reason}", "", f"Plan{at}:"]

@@ -501,3 +501,22 @@ def test_hand_checkable_two_stage_separately_excited():
     assert_allclose([s1["to_h"], s2["to_h"] - s2["from_h"]], [t1, t2], rtol=3e-3)
     assert_allclose(run.ah_charge_factor, (ah1 + ah2) / (0.8 * cap), rtol=3e-3)
     assert_allclose(s2["end_volts_per_cell"], cell_volts(e2, 1.0), rtol=1e-6)
+
+
+def test_charge_plan_shows_the_readings_a_technician_sets():
+    """Regression: `charge` and the page's plan table printed the exact simulated rheostat (20.21 ohm),
+    which nobody can set, while `search` gave the rounded meter reading (20 ohm). The plan now shows
+    each stage's reading, the same as the search's, and says the run used the exact values."""
+    from supplycfg.jobs.battery import plan_rows
+    from supplycfg.search import search_machine_profile
+    from supplycfg.simulation import charge_from_files, charge_text
+    root = Path(__file__).resolve().parent.parent / "profiles"
+    m, p = root / "machines" / "charging-set.toml", root / "loads" / "battery-charging.toml"
+    best = search_machine_profile(m, p).feasible[0]
+    want = [q["readings"]["rheostat_ohm"] for q in best.extras["plan"]]
+    run = charge_from_files(m, p)
+    assert [q["readings"]["rheostat_ohm"] for q in run.stages] == want
+    fields = [row[1] for row in plan_rows(run.stages)]
+    assert fields == [f"rheostat {r:g} ohm" for r in want]
+    assert [row[1] for row in plan_rows(best.extras["plan"])] == fields
+    assert "set the meter readings of the plan" in charge_text(run)

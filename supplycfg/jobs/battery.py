@@ -1672,14 +1672,21 @@ def _fmt(v, f):
 
 
 def plan_rows(stages):
-    """The stages in plain words: ``[(stage, field setting, hours, current, end volts per cell, ends because)]``."""
+    """The stages in plain words: ``[(stage, field setting, hours, current, end volts per cell, ends because)]``.
+
+    The field setting is the stage's meter reading, rounded to what can be
+    set, where the stage carries one (``readings``); else the exact value.
+    """
     rows = []
     for s in stages:
         st = s["setting"]
+        rd = s.get("readings") or {}
         if st.get("field_current_a") is not None:
             fld = f"field current {st['field_current_a']:.4g} A"
         elif st["connection"] == "series":
             fld = "series winding only"
+        elif rd.get("rheostat_ohm") is not None:
+            fld = f"rheostat {rd['rheostat_ohm']:g} ohm"
         else:
             fld = f"rheostat {st.get('rheostat_ohm') or 0:.4g} ohm"
         rows.append((f"{s['stage']}: {s['name']}", fld, f"{_fmt(s['from_h'], '.2f')} to {_fmt(s['to_h'], '.2f')} h",
