@@ -973,6 +973,24 @@ def run_bounds_rows(sign):
     return lo, hi
 
 
+def _runs_where(ng, lg, rows):
+    """Slope signs and run tables of ``ng``, ``lg`` computed on ``rows`` only; other rows as for flat values."""
+    out = []
+    for vals in (ng, lg):
+        sign = np.ones((vals.shape[0], vals.shape[1] - 1))
+        if rows.any():
+            sign[rows] = slope_runs_rows(vals[rows])
+        out.append(sign)
+    bounds = []
+    for sign in out:
+        m, k = sign.shape
+        lo, hi = np.zeros((m, k), int), np.full((m, k), k - 1)
+        if rows.any():
+            lo[rows], hi[rows] = run_bounds_rows(sign[rows])
+        bounds.append((lo, hi))
+    return out[0], out[1], bounds[0], bounds[1]
+
+
 class _RowRuns:
     """A run table read from :func:`run_bounds_rows` for one row (the interface of :class:`_RunTable`)."""
 
@@ -1210,6 +1228,288 @@ def _trace_self_excited(circ, i, xg, ig, fns, reversal=(np.nan, np.nan), samples
     return segs + more, note
 
 
+#: From this many self-excited curves the walks go in lock-step, all curves a segment at a time;
+#: fewer go one by one. Measured on the charging set: a lock-step walk's fixed numpy cost per
+#: step makes 2-8 curves a third slower, 16 about even, 650 curves (the bench grid) twice as fast.
+LOCKSTEP_MIN_CURVES = 24
+
+
+def run_position(vals, rows, first, last, target, right=False):
+    """Bisection in many monotone runs at once.
+
+    ``vals[rows, first..last]`` (grid indices, both ends included) is monotone
+    for each element; read in its rising order, returns how many of its
+    values lie below ``target`` (``right=False``, as ``searchsorted`` side
+    "left") or at or below it (``right=True``), and whether the run rises
+    (its last value not below its first).
+    """
+    rising = ~(vals[rows, last] < vals[rows, first])
+    n = last - first + 1
+    shape = np.broadcast_shapes(np.shape(target), np.shape(n), np.shape(rows))
+    flat = np.ascontiguousarray(vals).reshape(-1)
+    # each run read in its rising order: flat index origin + stride * k of its k-th value
+    origin = np.broadcast_to(rows * vals.shape[1] + np.where(rising, first, last), shape)
+    stride = np.broadcast_to(np.where(rising, 1, -1), shape)
+    n = np.broadcast_to(n, shape)
+    pos = np.zeros(shape, int)
+    step = 1 << (int(np.max(n)).bit_length() - 1) if np.size(n) else 0
+    # binary lifting: add each power of two, largest first, while the value before stays below the target
+    while step:
+        nxt = pos + step
+        y = flat.take(origin + stride * (np.minimum(nxt, n) - 1))
+        pos += step * ((nxt <= n) & ((y <= target) if right else (y < target)))
+        step >>= 1
+    return pos, rising
+
+
+def run_interp(grid, vals, rows, first, last, target):
+    """``np.interp(target, run, grid[run])`` on monotone runs of ``vals`` (see :func:`run_position`), many at once."""
+    count, rising = run_position(vals, rows, first, last, target, right=True)
+    n = last - first + 1
+    j = count - 1
+    jj = np.minimum(np.maximum(j, 0), n - 2)
+    g0 = np.where(rising, first + jj, last - jj)
+    g1 = np.where(rising, g0 + 1, g0 - 1)
+    y0, y1 = vals[rows, g0], vals[rows, g1]
+    x0, x1 = grid[g0], grid[g1]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        slope = (x1 - x0) / (y1 - y0)
+        out = slope * (target - y0) + x0
+        # as np.interp: from the far end where the near one gives NaN, the cell's value where flat
+        out = np.where(np.isnan(out), slope * (target - y1) + x1, out)
+    out = np.where(np.isnan(out) & (x0 == x1), x0, out)
+    out = np.where(y0 == target, x0, out)
+    out = np.where(j < 0, grid[np.where(rising, first, last)], out)
+    return np.where(j >= n - 1, grid[np.where(rising, last, first)], out)
+
+
+def run_cell(grid, vals, rows, first, last, target):
+    """Bracketing grid values of ``target`` on monotone runs of ``vals``, many at once (as :func:`_cells`)."""
+    count, rising = run_position(vals, rows, first, last, target)
+    n = last - first + 1
+    jj = np.minimum(np.maximum(count, 1), n - 1)
+    ga = np.where(rising, first + jj - 1, last - jj + 1)
+    gb = np.where(rising, first + jj, last - jj)
+    return grid[ga], grid[gb]
+
+
+def _walk_lockstep(circ, cand, r, xg, ig, ng, lg, runs, sign, lam, n_cell, l_cell, dl, active, stop=None,
+                   samples=48):
+    """:func:`_walk` of many curves at once, a segment per step.
+
+    ``cand`` the candidates, ``r`` their rows of ``ng``/``lg`` (``N`` and
+    ``L`` on the side ``sign``) and of the run tables ``runs = (sn, sl, (nlo,
+    nhi), (llo, lhi))`` (:func:`slope_runs_rows`, :func:`run_bounds_rows`);
+    ``lam``, ``n_cell``, ``l_cell``, ``dl`` where each walk starts; ``active``
+    the curves that walk; ``stop = (ia, u, lam)`` where a curve must end (NaN
+    for none). Returns the steps as a list of ``(active, n_lo, n_hi, l_lo,
+    l_hi, lam, V, IL)`` (``lam``, ``V``, ``IL`` the segment's samples, rows of
+    ``samples``), a note code per curve (0 none, 1 the current span reached,
+    2 the field span reached), the curves that reached their stop and their
+    ``dl`` there.
+    """
+    sn, sl, (nlo, nhi), (llo, lhi) = runs
+    p = candidate_params(circ, cand[:, None])
+    rr = r[:, None]
+    lam = np.asarray(lam, float).copy()
+    n_lo, n_hi = nlo[r, n_cell], nhi[r, n_cell]
+    l_lo, l_hi = llo[r, l_cell], lhi[r, l_cell]
+    dlam = sl[r, l_lo].astype(int) * dl
+    dn = dlam * sn[r, n_lo].astype(int)
+    note = np.zeros(r.size, int)
+    reached_all = np.zeros(r.size, bool)
+    steps = []
+    for _ in range(60):
+        if not active.any():
+            break
+        e_l = np.where(dl > 0, l_hi + 1, l_lo)
+        e_n = np.where(dn > 0, n_hi + 1, n_lo)
+        lam_l, lam_n = lg[r, e_l], ng[r, e_n]
+        seg_l = np.abs(lam_l - lam) <= np.abs(lam_n - lam)
+        lam_end = np.where(seg_l, lam_l, lam_n)
+        reached = np.zeros(r.size, bool)
+        if stop is not None:
+            ia_s, u_s, lam_s = stop
+            with np.errstate(invalid="ignore"):
+                tl = 1e-9 * np.maximum(np.maximum(1.0, np.abs(lam)), np.abs(lam_end))
+                tu = 1e-9 * np.maximum(1.0, np.abs(u_s))
+                ti = 1e-9 * np.maximum(1.0, ia_s)
+                reached = (active & (np.minimum(lam, lam_end) - tl <= lam_s) & (lam_s <= np.maximum(lam, lam_end) + tl)
+                           & (xg[n_lo] - tu <= u_s) & (u_s <= xg[n_hi + 1] + tu)
+                           & (ig[l_lo] - ti <= ia_s) & (ia_s <= ig[l_hi + 1] + ti))
+            lam_end = np.where(reached, lam_s, lam_end)
+        lam_p = np.linspace(lam, lam_end, samples, axis=1)
+        x_a = run_interp(xg, ng, rr, n_lo[:, None], n_hi[:, None] + 1, lam_p)
+        ia_a = run_interp(ig, lg, rr, l_lo[:, None], l_hi[:, None] + 1, lam_p)
+        v_a, il_a = _state_from_x_ia(circ, p, x_a, ia_a, sign)
+        steps.append((active.copy(), n_lo, n_hi, l_lo, l_hi, lam_p, v_a, il_a))
+        # stop once the polyline has reached zero voltage, or the stop, or the walk leaves the grid
+        go = active & ~np.any(v_a <= 0, axis=1)
+        reached_all |= go & reached
+        go &= ~reached
+        lam = np.where(go, lam_end, lam)
+        nxt_l = np.where(dl > 0, e_l, e_l - 1)
+        nxt_n = np.where(dn > 0, e_n, e_n - 1)
+        out_l = (nxt_l < 0) | (nxt_l >= sl.shape[1])
+        out_n = (nxt_n < 0) | (nxt_n >= sn.shape[1])
+        note = np.where(go & seg_l & out_l & (dl > 0), 1, note)
+        note = np.where(go & ~seg_l & out_n, 2, note)
+        mv_l = go & seg_l & ~out_l
+        mv_n = go & ~seg_l & ~out_n
+        cl = np.minimum(np.maximum(nxt_l, 0), sl.shape[1] - 1)
+        cn = np.minimum(np.maximum(nxt_n, 0), sn.shape[1] - 1)
+        l_lo, l_hi = np.where(mv_l, llo[r, cl], l_lo), np.where(mv_l, lhi[r, cl], l_hi)
+        n_lo, n_hi = np.where(mv_n, nlo[r, cn], n_lo), np.where(mv_n, nhi[r, cn], n_hi)
+        dlam = np.where(mv_l | mv_n, -dlam, dlam)
+        dn = np.where(mv_l, -dn, dn)
+        dl = np.where(mv_n, -dl, dl)
+        active = mv_l | mv_n
+    return steps, note, reached_all, dl
+
+
+def start_cells(grid, at, direction):
+    """:func:`_start_cell` of many points at once (``direction`` an array of +1 or -1)."""
+    k = np.where(direction > 0, np.searchsorted(grid, at, side="right"), np.searchsorted(grid, at, side="left")) - 1
+    return np.minimum(np.maximum(k, 0), grid.size - 2)
+
+
+WALK_NOTES = ("", "the curve reaches the searched current span", "the curve reaches the searched field span")
+
+
+def _trace_lockstep(circ, slf, rows, xg, ig, sides, tables, reversal, points, samples=48):
+    """The curves of candidates ``slf[rows]`` traced in lock-step.
+
+    The same steps as :func:`_trace_self_excited` and the sampling in
+    :func:`characteristics_of`, over all curves at once. ``sides[sign] = (N on
+    xg, L on ig)`` and ``tables[sign]`` its run tables, rows as ``slf``;
+    ``reversal = (Ia, F_ar/N_sh)`` where a differential curve's field passes
+    zero (see :func:`_field_reversal`). Returns the picked points ``(cand,
+    lam, xa, xb, ia, ib, sign)`` (brackets of ``N(u) = lam`` and ``L(Ia) =
+    lam`` on the side ``sign``), a note per candidate and the candidates
+    traced to zero volts.
+    """
+    notes, at_zero = {}, set()
+    if rows.size == 0:
+        return None, notes, at_zero
+    ngp, lgp = sides[1.0]
+    ng_r = ngp[rows]
+    runaway = ng_r[:, -1] > 0
+    down = (ng_r[:, :-1] >= 0) & (ng_r[:, 1:] < 0)
+    first = down & (xg[:-1] >= -1e-12)[None, :]
+    k = down.shape[1]
+    cell = np.where(first.any(axis=1), k - 1 - np.argmax(first[:, ::-1], axis=1), -1)
+    # N falls steadily: its one root (Ia = 0, the series winding opposing) lies at x <= 0
+    alone = (cell < 0) & circ.short[slf[rows]] & (circ.c[slf[rows]] >= 1) & down.any(axis=1)
+    cell = np.where(alone, k - 1 - np.argmax(down[:, ::-1], axis=1), cell)
+    for q in np.flatnonzero(runaway | (cell < 0)):
+        notes[int(slf[rows[q]])] = CURVE_RUNAWAY_NOTE if runaway[q] else "no built-up no-load point on the searched span"
+    ok = ~runaway & (cell >= 0)
+    walk, cell = rows[ok], cell[ok]
+    if walk.size == 0:
+        return None, notes, at_zero
+    cand = slf[walk]
+    nw = walk.size
+    ia_r, far_r = reversal[0][walk], reversal[1][walk]
+    rev = np.isfinite(ia_r)
+    ia0, far0 = np.nan_to_num(ia_r), np.nan_to_num(far_r)
+    p = candidate_params(circ, cand)
+    stop = None
+    if rev.any():
+        stop = (ia_r, -far_r, np.where(rev, _l_fun(circ, p, ia0, 1.0), np.nan))
+    one = np.ones(nw, int)
+    steps, code, reached, _ = _walk_lockstep(circ, cand, walk, xg, ig, ngp, lgp, tables[1.0], 1.0, lgp[walk, 0],
+                                             cell, np.zeros(nw, int), one, np.ones(nw, bool), stop, samples)
+    signs = [1.0] * len(steps)
+    if reached.any():
+        # the field has passed zero: on along the negative side from the same point (as _trace_self_excited)
+        ngm, lgm = sides[-1.0]
+        sn_m, sl_m = tables[-1.0][:2]
+        lam2 = _l_fun(circ, p, ia0, -1.0)
+        turn = p["rf"] * far0 > 1e-12 * np.maximum(1.0, np.abs(lam2))
+        l_a = start_cells(ig, ia0, one)
+        n_a = start_cells(xg, far0, one)
+        flip = sl_m[walk, l_a] * sn_m[walk, n_a] < 0
+        n_a = np.where(flip, start_cells(xg, far0, -one), n_a)
+        n_b = start_cells(xg, far0, -one)
+        dl_b = (-sn_m[walk, n_b] * sl_m[walk, start_cells(ig, ia0, one)]).astype(int)
+        dl_b = np.where(dl_b == 0, 1, dl_b)
+        n2 = np.where(turn, n_a, n_b)
+        dl2 = np.where(turn, 1, dl_b)
+        l2 = start_cells(ig, ia0, dl2)
+        more, code2, _, _ = _walk_lockstep(circ, cand, walk, xg, ig, ngm, lgm, tables[-1.0], -1.0, lam2, n2, l2,
+                                           dl2, reached.copy(), None, samples)
+        code = np.where(reached, code2, code)
+        steps += more
+        signs += [-1.0] * len(more)
+    # each curve's steps in order, first (a curve that went on past its field reversal skips steps between)
+    held = np.stack([s[0] for s in steps], axis=1)
+    order = np.argsort(~held, axis=1, kind="stable")
+    nseg = held.sum(axis=1)
+    ar = np.arange(nw)[:, None]
+    sign_c = np.asarray(signs)[order]
+    n_lo, n_hi, l_lo, l_hi = (np.stack([s[k] for s in steps], axis=1)[ar, order] for k in (1, 2, 3, 4))
+    lam_all, va, ila = (np.stack([s[k] for s in steps], axis=1)[ar, order].reshape(nw, -1) for k in (5, 6, 7))
+    n_valid = nseg * samples
+    col = np.arange(lam_all.shape[1])[None, :]
+    valid = col < n_valid[:, None]
+    # from the first non-negative load current to the first zero voltage
+    nonneg = valid & (ila >= 0)
+    start = np.where(nonneg.any(axis=1), np.argmax(nonneg, axis=1), 0)
+    zero = valid & (va <= 0) & (col >= start[:, None])
+    has_neg = zero.any(axis=1)
+    stop = np.where(has_neg, np.argmax(zero, axis=1), n_valid - 1)
+    s0 = np.maximum(start - 1, 0)
+    ls = stop - s0 + 1
+    q = np.arange(int(ls.max()))[None, :]
+    take = s0[:, None] + np.minimum(q, ls[:, None] - 1)
+    va_s, il_s, lam_s = va[ar, take], ila[ar, take], lam_all[ar, take]
+    sid_s = take // samples
+    last = ls - 1
+    iw = np.arange(nw)
+    cut = has_neg & (ls >= 2)
+    cut &= (va_s[iw, np.maximum(last - 1, 0)] > 0) & (sid_s[iw, last] == sid_s[iw, np.maximum(last - 1, 0)])
+    if cut.any():
+        # end the samples where the polyline reaches zero volts, not past it
+        c, e = iw[cut], last[cut]
+        v1, v2 = va_s[c, e - 1], va_s[c, e]
+        w0 = v1 / (v1 - v2)
+        lam_s[c, e] = lam_s[c, e - 1] + w0 * (lam_s[c, e] - lam_s[c, e - 1])
+        il_s[c, e] = il_s[c, e - 1] + w0 * (il_s[c, e] - il_s[c, e - 1])
+        va_s[c, e] = 0.0
+        pad = np.minimum(q, last[:, None])
+        va_s, il_s, lam_s = va_s[ar, pad], il_s[ar, pad], lam_s[ar, pad]
+    # arclength in per-unit terms (nothing added past each curve's last sample)
+    dv = np.diff(va_s, axis=1) / circ.machine.rated_voltage_v
+    di = np.diff(il_s, axis=1) / circ.machine.rated_armature_current_a
+    arc = np.concatenate([np.zeros((nw, 1)), np.cumsum(np.hypot(dv, di), axis=1)], axis=1)
+    target = np.linspace(np.zeros(nw), arc[iw, last], points, axis=1)
+    cnt, _ = run_position(arc, ar, np.zeros((nw, 1), int), last[:, None], target, right=True)
+    j = np.minimum(np.maximum(cnt - 1, 0), np.maximum(last - 1, 0)[:, None])
+    j1 = np.minimum(j + 1, last[:, None])
+    # interpolate lambda within the same segment only
+    same = sid_s[ar, j1] == sid_s[ar, j]
+    a_j, a_1 = arc[ar, j], arc[ar, j1]
+    w = np.where(a_1 > a_j, (target - a_j) / np.maximum(a_1 - a_j, 1e-300), 0)
+    lam_t = np.where(same, lam_s[ar, j] + w * (lam_s[ar, j1] - lam_s[ar, j]), lam_s[ar, j])
+    sid_t = sid_s[ar, j]
+    sign_t = sign_c[ar, sid_t]
+    xa, xb, ia, ib = (np.empty(lam_t.shape) for _ in range(4))
+    for sgn in (1.0, -1.0):
+        on = sign_t == sgn
+        if on.any():
+            ng_s, lg_s = sides[sgn]
+            rw, pt = np.nonzero(on)
+            sid = sid_t[rw, pt]
+            xa[rw, pt], xb[rw, pt] = run_cell(xg, ng_s, walk[rw], n_lo[rw, sid], n_hi[rw, sid] + 1, lam_t[rw, pt])
+            ia[rw, pt], ib[rw, pt] = run_cell(ig, lg_s, walk[rw], l_lo[rw, sid], l_hi[rw, sid] + 1, lam_t[rw, pt])
+    for c_, code_, z in zip(cand, code, has_neg):
+        notes[int(c_)] = WALK_NOTES[code_]
+        if z:
+            at_zero.add(int(c_))
+    cand_t = np.repeat(cand, points)
+    return (cand_t, lam_t.ravel(), xa.ravel(), xb.ravel(), ia.ravel(), ib.ravel(), sign_t.ravel()), notes, at_zero
+
+
 def _invert_approx(xg, ng, ig, lg, seg, lam):
     n_lo, n_hi, l_lo, l_hi = seg[2:6]
     xs, ns = xg[n_lo:n_hi + 2], ng[n_lo:n_hi + 2]
@@ -1312,9 +1612,25 @@ def characteristics_of(circ, points=400):
         # slope signs and their runs for every row at once (the walks read them cell by cell)
         tables = {}
         for sgn_, ng_, lg_ in ((1.0, ngp, lgp), (-1.0, ngm, lgm)):
+            if sgn_ < 0 and not rev.all():
+                # the negative side is walked only where the field reverses: the other rows read flat (one run)
+                tables[sgn_] = _runs_where(ng_, lg_, rev)
+                continue
             sn_, sl_ = slope_runs_rows(ng_), slope_runs_rows(lg_)
             tables[sgn_] = (sn_, sl_, run_bounds_rows(sn_), run_bounds_rows(sl_))
+        # the curves in lock-step when there are enough of them
+        lock = np.full(slf.size, slf.size >= LOCKSTEP_MIN_CURVES)
+        picked, lock_notes, lock_zero = _trace_lockstep(circ, slf, np.flatnonzero(lock), xg, ig,
+                                                        {1.0: (ngp, lgp), -1.0: (ngm, lgm)}, tables,
+                                                        (ia_rev, far_rev), points)
+        seg_note.update(lock_notes)
+        at_zero |= lock_zero
+        if picked is not None:
+            for lst, arr in zip((pick_cand, pick_lam, pick_xa, pick_xb, pick_ia, pick_ib, pick_sign), picked):
+                lst.append(arr)
         for r, i in enumerate(slf):
+            if lock[r]:
+                continue
             fns = {}
             for sgn_, (ng_, lg_) in ((1.0, (ngp[r], lgp[r])), (-1.0, (ngm[r], lgm[r]))):
                 sn_, sl_, (nlo, nhi), (llo, lhi) = tables[sgn_]
@@ -1548,13 +1864,9 @@ def _refine_folds(circ, states, iterations=2):
     for _ in range(iterations):
         idx = np.repeat(cand, 3)
         vv = (vs[:, None] + d[:, None] * np.array([-1.0, 0.0, 1.0])[None, :]).ravel()
-        loads = [Load(float(x), 0.0, None, "fixed voltage") for x in vv]
         guess = np.repeat(il_best, 3)
-        t = (guess / circ.imax + 1) / 2
-        span = np.repeat(np.maximum(0.02 * il_best, 2 * d) / circ.imax, 3)
-        res = solve_operating_points(circ, loads, idx, grid=33, window=(t - span, t + span), steps=24)
-        y = np.array([min((p["load_current_a"] for p in r.points), key=lambda q: abs(q - g), default=np.nan)
-                      for r, g in zip(res, guess)]).reshape(-1, 3)
+        span = np.repeat(np.maximum(0.02 * il_best, 2 * d), 3)
+        y = load_current_at_voltage_near(circ, idx, vv, guess, span).reshape(-1, 3)
         ok = np.isfinite(y).all(axis=1)
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", RuntimeWarning)
@@ -1573,6 +1885,42 @@ def _refine_folds(circ, states, iterations=2):
         d = d / 8
     fine.update({int(i): float(x) for i, x in zip(cand, il_best)})
     return fine
+
+
+def load_current_at_voltage_near(circ, idx, v, guess, span):
+    """Load current [A] of candidates ``idx`` at terminal voltage ``v`` [V] within ``2 span`` of ``guess`` [A].
+
+    The window's ends bracket the one crossing near a curve's fold, which is
+    refined at once; a window whose ends do not bracket a crossing goes
+    through :func:`solve_operating_points` on the same window, and the
+    crossing nearest the guess is taken (NaN where there is none).
+    """
+    imax = circ.imax
+    # the same window as solve_operating_points' load-current parameter (2t - 1) imax, t = (IL/imax + 1)/2 +- span/imax
+    lo = np.maximum(guess - 2 * span, -imax)
+    hi = np.minimum(guess + 2 * span, imax)
+    h = circuit_residual(circ, candidate_params(circ, np.concatenate([idx, idx])), np.concatenate([v, v]),
+                         np.concatenate([lo, hi]))
+    ha, hb = h[:idx.size], h[idx.size:]
+    one = (np.signbit(ha) != np.signbit(hb)) | (ha == 0)
+    y = np.full(idx.size, np.nan)
+    if one.any():
+        pr = candidate_params(circ, idx[one])
+        vr = v[one]
+        root = refine_bracketed_roots(lambda il: circuit_residual(circ, pr, vr, il), lo[one], hi[one], ha[one], 24)
+        st = machine_state(circ, pr, vr, root)
+        good = (np.abs(st["h"]) <= np.maximum(1e-6, 1e-6 * np.abs(vr))) & drive_settled(st) \
+            & (np.abs(st["armature_current_a"]) <= imax * (1 + 1e-9))
+        y[one] = np.where(good, root, np.nan)
+    rest = np.flatnonzero(~one | np.isnan(y))
+    if rest.size:
+        t = (guess[rest] / imax + 1) / 2
+        loads = [Load(float(x), 0.0, None, "fixed voltage") for x in v[rest]]
+        res = solve_operating_points(circ, loads, idx[rest], grid=33,
+                                     window=(t - span[rest] / imax, t + span[rest] / imax), steps=24)
+        y[rest] = [min((q["load_current_a"] for q in r.points), key=lambda q: abs(q - g), default=np.nan)
+                   for r, g in zip(res, guess[rest])]
+    return y
 
 
 def _refine_batch(circ, states, wants_sc=None):

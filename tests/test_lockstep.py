@@ -1,0 +1,62 @@
+"""The lock-step walk of many self-excited characteristics against the same walk one curve at a time,
+and its bisection helpers against numpy's ``searchsorted`` and ``interp`` (closed form: the same
+numbers by two routes)."""
+
+from pathlib import Path
+
+import numpy as np
+import pytest
+from numpy.testing import assert_allclose, assert_array_equal
+
+from supplycfg import circuit
+from supplycfg.bench import grid_settings
+from supplycfg.machine import load_machine
+
+MACHINES = Path(__file__).resolve().parents[1] / "profiles" / "machines"
+
+
+@pytest.mark.parametrize("name", ["charging-set", "welding-set", "lighting-set", "feeder-booster"])
+def test_lockstep_walk_matches_curve_by_curve(monkeypatch, name):
+    """Every connection, tap and a spread of rheostat values of a demo machine (differential
+    connections whose field reverses included): the same points, notes and figures either way."""
+    m = load_machine(MACHINES / f"{name}.toml")
+    settings = grid_settings(m, rheostats=7)
+    assert sum(s.connection in circuit.SELF_EXCITED for s in settings) >= circuit.LOCKSTEP_MIN_CURVES
+    together = circuit.characteristics(m, settings, 60)
+    monkeypatch.setattr(circuit, "LOCKSTEP_MIN_CURVES", 10 ** 9)
+    alone = circuit.characteristics(m, settings, 60)
+    for a, b in zip(together, alone):
+        assert a.notes == b.notes and a.converged == b.converged, a.setting
+        for k in circuit.POINT_KEYS:
+            assert_allclose(a.points[k], b.points[k], rtol=1e-10, atol=1e-9, err_msg=f"{a.setting} {k}")
+        for att in ("no_load_voltage_v", "short_circuit_current_a", "max_load_current_a", "regulation_percent"):
+            x, y = getattr(a, att), getattr(b, att)
+            assert (x is None) == (y is None), (a.setting, att)
+            if x is not None:
+                assert_allclose(x, y, rtol=1e-10, atol=1e-9, err_msg=f"{a.setting} {att}")
+
+
+def test_run_helpers_agree_with_numpy():
+    """Rising and falling runs with flats, values outside the run and on its knots."""
+    rng = np.random.default_rng(7)
+    grid = np.linspace(-1.0, 4.0, 41)
+    rows, lo, hi, tgt, want_l, want_r, want_i, want_c = [], [], [], [], [], [], [], []
+    vals = np.zeros((6, grid.size))
+    for r in range(6):
+        steps = rng.choice([0.0, 0.5, 1.0, 2.0], grid.size)
+        vals[r] = np.cumsum(steps) * (1 if r % 2 else -1)
+        a, b = sorted(rng.choice(grid.size, 2, replace=False))
+        ys, xs = vals[r, a:b + 1], grid[a:b + 1]
+        if ys[-1] < ys[0]:
+            ys, xs = ys[::-1], xs[::-1]
+        for t in np.concatenate([ys, ys + 0.25, [ys[0] - 3, ys[-1] + 3]]):
+            rows.append(r); lo.append(a); hi.append(b); tgt.append(t)
+            want_l.append(np.searchsorted(ys, t, "left")); want_r.append(np.searchsorted(ys, t, "right"))
+            want_i.append(np.interp(t, ys, xs))
+            j = min(max(np.searchsorted(ys, t), 1), ys.size - 1)
+            want_c.append((xs[j - 1], xs[j]))
+    rows, lo, hi, tgt = map(np.array, (rows, lo, hi, tgt))
+    assert_array_equal(circuit.run_position(vals, rows, lo, hi, tgt)[0], want_l)
+    assert_array_equal(circuit.run_position(vals, rows, lo, hi, tgt, right=True)[0], want_r)
+    assert_allclose(circuit.run_interp(grid, vals, rows, lo, hi, tgt), want_i, rtol=0, atol=1e-12)
+    assert_array_equal(np.stack(circuit.run_cell(grid, vals, rows, lo, hi, tgt), axis=1), want_c)
