@@ -96,22 +96,27 @@ class DrivePoints:
     def rows(self, i):
         """Candidate ``i``'s points as JSON-ready dicts (None where a point does not exist)."""
         self._solve()
+        # each table read into nested lists once (a search asks for every candidate's rows)
+        vals = {key: finite_or_none_lists(arr[i]) for key, arr in self.values.items()
+                if not (key == "drive_torque_percent" and self.drive.kind != "motor")}
+        losses = {kind: finite_or_none_lists(arr[i]) for kind, arr in self.losses.items()}
         out = []
         for j, (speed, temp) in enumerate(self.corners):
             for k, label in enumerate(self.labels):
                 d = {"load_point": label, "winding_temperature_c": temp}
-                for key, arr in self.values.items():
-                    if key == "drive_torque_percent" and self.drive.kind != "motor":
-                        continue
-                    d[key] = _num(arr[i, j, k])
-                d["losses_w"] = {kind: _num(arr[i, j, k]) for kind, arr in self.losses.items()}
+                for key, v in vals.items():
+                    d[key] = v[j][k]
+                d["losses_w"] = {kind: v[j][k] for kind, v in losses.items()}
                 out.append(d)
         return out
 
 
-def _num(x):
-    x = float(x)
-    return x if np.isfinite(x) else None
+def finite_or_none_lists(a):
+    """``a`` as nested lists of floats, None where a value is not finite."""
+    a = np.asarray(a, float)
+    o = a.astype(object)
+    o[~np.isfinite(a)] = None
+    return o.tolist()
 
 
 def _nan_reduce(a, how):

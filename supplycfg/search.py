@@ -336,7 +336,8 @@ def search(machine, profile, with_drive_check=True, advice=True):
     advice : bool, optional
         Search each option's meter readings and band (what a person sets at
         the machine). False leaves the bands out (and, for a battery, the
-        readings): the ranking does not use them, so a fleet row or a trial
+        readings; for a welding dial, each row's no-load voltage at the
+        nominal speed): the ranking does not use them, so a fleet row or a trial
         rating of ``size``, which show only the setting or ask only whether
         any setting is feasible, need not pay for them.
 

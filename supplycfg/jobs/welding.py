@@ -365,9 +365,16 @@ def _solve_weld_control(space, base_idx, corner_idx, target_a):
     it = np.broadcast_to(np.asarray(target_a, float), (n,))
     vt = welding_line_voltage_v(job, it)
 
+    # the rows once; each step changes only their field control (as expand_candidates would)
+    sub, _ = expand_candidates(space, base_idx, np.zeros(n), corner_idx)
+    controls = np.array([space.bases[b][3] for b in base_idx] or [""])[:n]
+    by_rheostat = (controls == "rheostat") | (controls == "exciter")
+    by_current = controls == "field-current"
+    ev = space.machine.excitation_voltage_v
+    ev = np.full(n, np.nan if ev is None else ev)
+
     def h(u):
-        sub, _ = expand_candidates(space, base_idx, u, corner_idx)
-        p = candidate_params(sub, np.arange(sub.n))
+        p = sub.params_with_control(np.where(by_rheostat, u, np.nan), np.where(by_current, u, np.nan), ev)
         return circuit_residual(sub, p, vt, it)
 
     ha, hb = h(lo), h(hi)
@@ -694,8 +701,9 @@ def dial_advice(space, targets, paths, u_all, reach, ev, valid, option_ok, bands
 
     Bands are searched for the rows of options that hold every limit (a band
     is where the limits still hold; an option that breaks one has none);
-    ``bands=False`` leaves every band and reading out (the rows keep their
-    settings, voltages and currents).
+    ``bands=False`` leaves every band and reading out, and each row's no-load
+    voltage at the nominal speed (the rows keep their settings, their no-load
+    voltages over the envelope, their voltages and currents).
     """
     m, job = space.machine, space.profile.welding
     nb, nr = paths.shape
@@ -712,6 +720,8 @@ def dial_advice(space, targets, paths, u_all, reach, ev, valid, option_ok, bands
         c0 = h0 = v_hot = np.full(used.size, np.nan)
     if bands and reading_corners(space)[1] == nom:
         vnl_nom = v_hot  # the nominal corner is the readings' hot one: its no-load voltages are solved there
+    elif not bands:
+        vnl_nom = np.full(used.size, np.nan)  # a row's no-load voltage at nominal speed is advice too
     else:
         vnl_nom = no_load_voltage_v(expand_candidates(space, pb, pu, np.full(used.size, nom))[0])
     # bands of the rows inside every limit
