@@ -40,6 +40,7 @@ class DrivePoints:
         self.labels = [p[0] for p in points]
         self._args = (space.nc, n, points)
         self._done = False
+        self._lists = None
 
     def _solve(self):
         if self._done:
@@ -96,10 +97,13 @@ class DrivePoints:
     def rows(self, i):
         """Candidate ``i``'s points as JSON-ready dicts (None where a point does not exist)."""
         self._solve()
-        # each table read into nested lists once (a search asks for every candidate's rows)
-        vals = {key: finite_or_none_lists(arr[i]) for key, arr in self.values.items()
-                if not (key == "drive_torque_percent" and self.drive.kind != "motor")}
-        losses = {kind: finite_or_none_lists(arr[i]) for kind, arr in self.losses.items()}
+        if self._lists is None:
+            # every table read into nested lists once: a search asks for every candidate's rows
+            self._lists = ({key: finite_or_none_lists(arr) for key, arr in self.values.items()
+                            if not (key == "drive_torque_percent" and self.drive.kind != "motor")},
+                           {kind: finite_or_none_lists(arr) for kind, arr in self.losses.items()})
+        vals = {key: v[i] for key, v in self._lists[0].items()}
+        losses = {kind: v[i] for kind, v in self._lists[1].items()}
         out = []
         for j, (speed, temp) in enumerate(self.corners):
             for k, label in enumerate(self.labels):
