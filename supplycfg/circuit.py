@@ -1887,39 +1887,43 @@ def _refine_folds(circ, states, iterations=2):
     return fine
 
 
-def load_current_at_voltage_near(circ, idx, v, guess, span):
+def load_current_at_voltage_near(circ, idx, v, guess, span, grid=33):
     """Load current [A] of candidates ``idx`` at terminal voltage ``v`` [V] within ``2 span`` of ``guess`` [A].
 
-    The window's ends bracket the one crossing near a curve's fold, which is
-    refined at once; a window whose ends do not bracket a crossing goes
-    through :func:`solve_operating_points` on the same window, and the
+    The window is sampled on ``grid`` points (as :func:`solve_operating_points`
+    samples it) and the crossing in the cell nearest the guess refined; a
+    window with no crossing goes through :func:`solve_operating_points`, whose
     crossing nearest the guess is taken (NaN where there is none).
     """
     imax = circ.imax
-    # the same window as solve_operating_points' load-current parameter (2t - 1) imax, t = (IL/imax + 1)/2 +- span/imax
+    # the window of solve_operating_points' load-current parameter (2t - 1) imax, t = (IL/imax + 1)/2 +- span/imax
     lo = np.maximum(guess - 2 * span, -imax)
     hi = np.minimum(guess + 2 * span, imax)
-    h = circuit_residual(circ, candidate_params(circ, np.concatenate([idx, idx])), np.concatenate([v, v]),
-                         np.concatenate([lo, hi]))
-    ha, hb = h[:idx.size], h[idx.size:]
-    one = (np.signbit(ha) != np.signbit(hb)) | (ha == 0)
+    il = lo[:, None] + (hi - lo)[:, None] * np.linspace(0.0, 1.0, grid)[None, :]
+    h = circuit_residual(circ, candidate_params(circ, idx[:, None]), v[:, None], il)
+    cross = (np.signbit(h[:, :-1]) != np.signbit(h[:, 1:])) | (h[:, :-1] == 0)
+    mid = 0.5 * (il[:, :-1] + il[:, 1:])
+    cell = np.argmin(np.where(cross, np.abs(mid - guess[:, None]), np.inf), axis=1)
+    one = cross.any(axis=1)
     y = np.full(idx.size, np.nan)
     if one.any():
-        pr = candidate_params(circ, idx[one])
-        vr = v[one]
-        root = refine_bracketed_roots(lambda il: circuit_residual(circ, pr, vr, il), lo[one], hi[one], ha[one], 24)
+        r = np.flatnonzero(one)
+        pr = candidate_params(circ, idx[r])
+        vr = v[r]
+        root = refine_bracketed_roots(lambda x: circuit_residual(circ, pr, vr, x), il[r, cell[r]], il[r, cell[r] + 1],
+                                      h[r, cell[r]], 24)
         st = machine_state(circ, pr, vr, root)
         good = (np.abs(st["h"]) <= np.maximum(1e-6, 1e-6 * np.abs(vr))) & drive_settled(st) \
             & (np.abs(st["armature_current_a"]) <= imax * (1 + 1e-9))
-        y[one] = np.where(good, root, np.nan)
-    rest = np.flatnonzero(~one | np.isnan(y))
+        y[r] = np.where(good, root, np.nan)
+    rest = np.flatnonzero(np.isnan(y))
     if rest.size:
         t = (guess[rest] / imax + 1) / 2
         loads = [Load(float(x), 0.0, None, "fixed voltage") for x in v[rest]]
-        res = solve_operating_points(circ, loads, idx[rest], grid=33,
+        res = solve_operating_points(circ, loads, idx[rest], grid=grid,
                                      window=(t - span[rest] / imax, t + span[rest] / imax), steps=24)
-        y[rest] = [min((q["load_current_a"] for q in r.points), key=lambda q: abs(q - g), default=np.nan)
-                   for r, g in zip(res, guess[rest])]
+        y[rest] = [min((q["load_current_a"] for q in r_.points), key=lambda q: abs(q - g), default=np.nan)
+                   for r_, g in zip(res, guess[rest])]
     return y
 
 
