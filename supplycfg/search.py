@@ -428,9 +428,14 @@ def drive_limit_check(machine, profile, options):
     The job is searched again with a drive of :data:`STIFF_DRIVE_FACTOR` times
     the rating (same kind and figures). ``need_kw`` is the least highest
     shaft power of a setting that meets it then [kW], None where none does
-    (the drive is not the reason).
+    (the drive is not the reason). Where every option breaks one of the job's
+    ``DRIVE_FREE_LIMITS`` (limits no drive changes) the answer is known
+    without that search: None.
     """
     drive = profile.drive
+    free = getattr(JOBS[profile.kind], "DRIVE_FREE_LIMITS", ())
+    if options and all(set(o.failed) & set(free) for o in options):
+        return None, []  # every option breaks a limit no drive changes: a larger one meets nothing either
     over = [o for o in options if "drive_power" in o.failed]
     stiff = replace(profile, drive=drive.with_rating(STIFF_DRIVE_FACTOR * drive.rated_power_kw))
     big = search(machine, stiff, with_drive_check=False, advice=False)

@@ -596,6 +596,12 @@ def _row_field(space, base_idx, u, voltages=False):
     return f[:n], f[n:]
 
 
+#: Limits no drive can change: the duty cycle's equivalent current against the armature's
+#: rating (the job and the machine alone). Where every option breaks one of them, a larger
+#: drive cannot make any feasible, so the search does not try one (search.drive_limit_check).
+DRIVE_FREE_LIMITS = ("duty_cycle_heating",)
+
+
 def solve(space, advice=True):
     """The welding dial of every option, its limits and figures.
 
