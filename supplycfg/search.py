@@ -418,6 +418,9 @@ def search(machine, profile, with_drive_check=True, advice=True):
                         time.perf_counter() - t0, notes, need)
 
 
+#: Stop cautions a larger drive of the same speeds keeps: the overspeed stop is the drive's top
+#: speed against the machine's rating, whatever the drive's power (see drive_limit_check).
+RATING_FREE_STOPS = ("overspeed",)
 #: Rating multiple of the "far larger drive" that tells whether the drive limits a job.
 STIFF_DRIVE_FACTOR = 100.0
 
@@ -429,13 +432,14 @@ def drive_limit_check(machine, profile, options):
     the rating (same kind and figures). ``need_kw`` is the least highest
     shaft power of a setting that meets it then [kW], None where none does
     (the drive is not the reason). Where every option breaks one of the job's
-    ``DRIVE_FREE_LIMITS`` (limits no drive changes) the answer is known
-    without that search: None.
+    ``DRIVE_FREE_LIMITS`` (limits no drive changes) or has a stop of
+    :data:`RATING_FREE_STOPS` the answer is known without that search: None.
     """
     drive = profile.drive
-    free = getattr(JOBS[profile.kind], "DRIVE_FREE_LIMITS", ())
-    if options and all(set(o.failed) & set(free) for o in options):
-        return None, []  # every option breaks a limit no drive changes: a larger one meets nothing either
+    free = set(getattr(JOBS[profile.kind], "DRIVE_FREE_LIMITS", ()))
+    if options and all(set(o.failed) & free or any(c.severity == "stop" and c.rule in RATING_FREE_STOPS
+                                                    for c in o.cautions) for o in options):
+        return None, []  # every option breaks what a larger drive of the same speeds keeps: it meets nothing either
     over = [o for o in options if "drive_power" in o.failed]
     stiff = replace(profile, drive=drive.with_rating(STIFF_DRIVE_FACTOR * drive.rated_power_kw))
     big = search(machine, stiff, with_drive_check=False, advice=False)

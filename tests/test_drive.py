@@ -571,23 +571,35 @@ def test_sheet_gives_the_drive_and_tachometer_checks(tmp_path):
     assert o.figures["min_speed_rpm"] < o.figures["no_load_speed_rpm"] <= p.speeds_rpm[0]
 
 
-def test_drive_check_skipped_where_a_limit_no_drive_changes_fails(monkeypatch):
+@pytest.mark.parametrize("why", ["duty cycle", "overspeed"])
+def test_drive_check_skipped_where_a_larger_drive_cannot_help(monkeypatch, why):
     """A welding set rated below the duty cycle's equivalent current breaks that limit in every
-    option whatever drives it: the drive-limit check answers None without searching again, the same
-    answer as the search with a 100 x drive gives (regression: the fleet paid that search for
-    every such machine)."""
+    option whatever drives it; one belted up past 1.2 x its rated speed has the overspeed stop in
+    every option, which a larger drive of the same speeds keeps. Either way the drive-limit check
+    answers None without searching again, the same answer as the search with a 100 x drive gives
+    (regression: the fleet paid that search for every such machine)."""
     from supplycfg import search as search_mod
     from supplycfg.jobs import welding
     m = load_machine(MACHINES / "welding-set.toml")
     prof = load_profile(ROOT / "profiles" / "loads" / "welding.toml")
-    small = replace(m, rated_armature_current_a=0.5 * m.rated_armature_current_a)
-    res = search(small, prof, with_drive_check=False, advice=False)
-    assert res.options and all("duty_cycle_heating" in o.failed for o in res.options)
+    if why == "duty cycle":
+        m = replace(m, rated_armature_current_a=0.5 * m.rated_armature_current_a)
+    else:
+        table = profile_to_dict(prof)
+        table["drive"]["ratio"] = 1.3 * m.rated_speed_rpm / prof.drive.top_speed_rpm
+        prof = profile_from_dict(table, "overspeed test")
+    res = search(m, prof, with_drive_check=False, advice=False)
+    assert res.options and not res.feasible
+    if why == "duty cycle":
+        assert all("duty_cycle_heating" in o.failed for o in res.options)
+    else:
+        assert all(any(c.rule == "overspeed" and c.severity == "stop" for c in o.cautions) for o in res.options)
     calls = []
     real = search_mod.search
     monkeypatch.setattr(search_mod, "search", lambda *a, **k: calls.append(1) or real(*a, **k))
-    assert search_mod.drive_limit_check(small, prof, res.options) == (None, [])
+    assert search_mod.drive_limit_check(m, prof, res.options) == (None, [])
     assert calls == []
     monkeypatch.setattr(welding, "DRIVE_FREE_LIMITS", ())
-    assert search_mod.drive_limit_check(small, prof, res.options) == (None, [])
+    monkeypatch.setattr(search_mod, "RATING_FREE_STOPS", ())
+    assert search_mod.drive_limit_check(m, prof, res.options) == (None, [])
     assert calls == [1]
