@@ -1733,7 +1733,7 @@ def characteristics_of(circ, points=400):
             result[i] = Characteristic(st, {k: np.zeros(0) for k in POINT_KEYS + ("extrapolated",)},
                                        None, None, None, None, False, False, notes[i], [notes[i]] if notes[i] else [])
             continue
-        result[i] = _finish(circ, i, st, states[i], notes[i], ops[i], folds.get(i), i in at_zero)
+        result[i] = _finish(circ, i, st, states[i], notes[i], ops[i], folds.get(i), wants_sc[i])
         done.append(i)
     if done:
         # the power flow along every curve in one call, split back by candidate
@@ -1999,7 +1999,8 @@ def _explicit_state(circ, p, ia):
     return machine_state(circ, p, v, ia)
 
 
-def _finish(circ, i, st, state, note, ops, fold=None, at_zero=False):
+def _finish(circ, i, st, state, note, ops, fold=None, wants_sc=False):
+    """The curve's points with the exact ones put in; ``wants_sc`` as :func:`short_circuit_wanted` said."""
     v = state["terminal_voltage_v"]; il = state["load_current_a"]
     # the first point is the exact no-load state
     pts = {k: np.asarray(state[k], float).copy() for k in POINT_KEYS}
@@ -2013,7 +2014,7 @@ def _finish(circ, i, st, state, note, ops, fold=None, at_zero=False):
             pts[k][0] = nl[k]
         pts["extrapolated"][0] = nl["extrapolated"]
     sc = None
-    if short_circuit_wanted(circ, i, state, note, at_zero):
+    if wants_sc:
         cand = _nearest(ops[1].points, 0.0, il[-1])
         if cand is not None:
             sc = cand["load_current_a"]
