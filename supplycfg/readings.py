@@ -767,7 +767,12 @@ def option_advice(space, evaluate, u, limits, setting_field, res=None, scan=BAND
 
 def preferred_resistance_ohm(ohm):
     """The E12 preferred value (IEC 60063) nearest to ``ohm`` on a log scale [ohm]."""
-    x = float(ohm)
+    return nearest_e12_ohm(float(ohm))
+
+
+@functools.lru_cache(maxsize=4096)  # a search asks for the same few values again and again
+def nearest_e12_ohm(x):
+    """:func:`preferred_resistance_ohm` of a float ``x`` [ohm]."""
     if not x > 0:
         raise ValueError("a resistance must be positive")
     dec = math.floor(math.log10(x))

@@ -539,16 +539,22 @@ def dial_paths(space, valid, margin):
     family = {}
     for i, c in enumerate(conn):
         family.setdefault(c, []).append(i)
+    # where a row leaves the limits the tap changed to depends on the connection and the row only
+    best = {}
+    for c, fam in family.items():
+        for r in range(1, nr):
+            ok = [b for b in fam if valid[b, r]]
+            best[c, r] = min(ok, key=lambda b: (-run[b, r], _simplicity(space.bases[b]), -margin[b, r])) if ok else None
     paths = np.zeros((nb, nr), int)
+    valid_l = valid.tolist()
     for i in range(nb):
         cur = i
         paths[i, 0] = cur
-        fam = family[conn[i]]
         for r in range(1, nr):
-            if not valid[cur, r]:
-                ok = [b for b in fam if valid[b, r]]
-                if ok:
-                    cur = min(ok, key=lambda b: (-run[b, r], _simplicity(space.bases[b]), -margin[b, r]))
+            if not valid_l[cur][r]:
+                b = best[conn[i], r]
+                if b is not None:
+                    cur = b
             paths[i, r] = cur
     return paths
 
