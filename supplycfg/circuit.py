@@ -38,7 +38,7 @@ from .drive import (DriveRows, drive_loading, loss_breakdown, machine_loss_expon
 from .errors import InputError
 from .magnetisation import (ArmatureReaction, OpenCircuitCurve, bounded, copper_resistance_factor,
                             field_after_armature_reaction)
-from .raytrace import trace_on_rays
+from .raytrace import NO_BUILD_UP_NOTE, trace_on_rays
 
 CONNECTIONS = (
     "separate", "separate-cumulative", "separate-differential", "shunt", "series",
@@ -1098,10 +1098,9 @@ def _field_reversal(circ, idx):
     return ia, np.where(np.isfinite(ia), circ.ar.mmf(np.nan_to_num(ia)) / circ.nsh, np.nan)
 
 
-def _start_cell(grid, vals, at, direction):
-    """Grid cell holding ``at`` on the side the walk moves to (``direction`` +1 up, -1 down)."""
-    k = np.searchsorted(grid, at, side="right" if direction > 0 else "left") - 1
-    return min(max(int(k), 0), grid.size - 2)
+def _start_cell(grid, at, direction):
+    """Grid cell holding ``at`` on the side the walk moves to (``direction`` +1 up, -1 down): one of :func:`start_cells`."""
+    return int(start_cells(grid, at, direction))
 
 
 def _walk(circ, i, xg, ig, ng, lg, sign, lam, n_cell, l_cell, dl, stop_at=None, samples=48, runs=None, kept=None):
@@ -1173,6 +1172,27 @@ def _walk(circ, i, xg, ig, ng, lg, sign, lam, n_cell, l_cell, dl, stop_at=None, 
     return segs, note, None
 
 
+def no_load_cells(circ, cand, ng, xg):
+    """Grid cell of each curve's built-up no-load point, where its walk starts (-1 where none), and why none.
+
+    ``ng`` holds ``N`` on ``xg`` of candidates ``cand``, a row each. The
+    stable no-load root is the highest ``x`` where ``N`` crosses zero
+    downward; a curve whose ``N`` is still above zero at the grid's end runs
+    away past the measured curve.
+    """
+    runaway = ng[:, -1] > 0
+    down = (ng[:, :-1] >= 0) & (ng[:, 1:] < 0)
+    first = down & (xg[:-1] >= -1e-12)[None, :]
+    k = down.shape[1]
+    cell = np.where(first.any(axis=1), k - 1 - np.argmax(first[:, ::-1], axis=1), -1)
+    # N falls steadily: its one root (Ia = 0, the series winding opposing) lies at x <= 0
+    alone = (cell < 0) & circ.short[cand] & (circ.c[cand] >= 1) & down.any(axis=1)
+    cell = np.where(alone, k - 1 - np.argmax(down[:, ::-1], axis=1), cell)
+    cell = np.where(runaway, -1, cell)
+    why = [CURVE_RUNAWAY_NOTE if r else (NO_BUILD_UP_NOTE if c < 0 else "") for r, c in zip(runaway, cell)]
+    return cell, why
+
+
 def _trace_self_excited(circ, i, xg, ig, fns, reversal=(np.nan, np.nan), samples=48, kept=None):
     """Walk the curve ``N(u) = L(Ia)`` of candidate ``i`` from Ia = 0.
 
@@ -1186,22 +1206,15 @@ def _trace_self_excited(circ, i, xg, ig, fns, reversal=(np.nan, np.nan), samples
     ng, lg = fns[1][:2]
     runs_p = fns[1][2] if len(fns[1]) > 2 else None
     runs_m = fns[-1][2] if len(fns[-1]) > 2 else None
-    if ng[-1] > 0:
-        return [], CURVE_RUNAWAY_NOTE
-    # stable no-load root: highest x where N crosses zero downward
-    down = (ng[:-1] >= 0) & (ng[1:] < 0)
-    cells = np.flatnonzero(down & (xg[:-1] >= -1e-12))
-    if cells.size == 0 and circ.short[i] and circ.c[i] >= 1:
-        # N falls steadily: its one root (Ia = 0, the series winding opposing) lies at x <= 0
-        cells = np.flatnonzero(down)
-    if cells.size == 0:
-        return [], "no built-up no-load point on the searched span"
+    cell, note = no_load_cells(circ, np.array([i]), ng[None, :], xg)
+    if note[0]:
+        return [], note[0]
     ia_r, far_r = reversal
     stop_at = None
     if np.isfinite(ia_r):
         p1 = candidate_params(circ, np.array([i]))
         stop_at = (float(ia_r), -float(far_r), float(_l_fun(circ, p1, np.array([ia_r]), 1.0)[0]))
-    segs, note, dl = _walk(circ, i, xg, ig, ng, lg, 1.0, float(lg[0]), int(cells[-1]), 0, 1, stop_at, samples,
+    segs, note, dl = _walk(circ, i, xg, ig, ng, lg, 1.0, float(lg[0]), int(cell[0]), 0, 1, stop_at, samples,
                            runs_p, kept)
     if dl is None:
         return segs, note
@@ -1214,16 +1227,16 @@ def _trace_self_excited(circ, i, xg, ig, fns, reversal=(np.nan, np.nan), samples
     sn, sl = (_runs(ngm), _runs(lgm)) if runs_m is None else runs_m[:2]
     if p1["rf"][0] * far_r > 1e-12 * max(1.0, abs(lam)):
         dl = 1
-        l_cell = _start_cell(ig, lgm, ia_r, dl)
+        l_cell = _start_cell(ig, ia_r, dl)
         dlam = int(sl[l_cell]) * dl
-        n_cell = _start_cell(xg, ngm, far_r, 1)
+        n_cell = _start_cell(xg, far_r, 1)
         if dlam * int(sn[n_cell]) < 0:
-            n_cell = _start_cell(xg, ngm, far_r, -1)
+            n_cell = _start_cell(xg, far_r, -1)
     else:
-        n_cell = _start_cell(xg, ngm, far_r, -1)
+        n_cell = _start_cell(xg, far_r, -1)
         dlam = -int(sn[n_cell])
-        dl = dlam * int(sl[_start_cell(ig, lgm, ia_r, 1)]) or 1
-        l_cell = _start_cell(ig, lgm, ia_r, dl)
+        dl = dlam * int(sl[_start_cell(ig, ia_r, 1)]) or 1
+        l_cell = _start_cell(ig, ia_r, dl)
     more, note, _ = _walk(circ, i, xg, ig, ngm, lgm, -1.0, lam, n_cell, l_cell, dl, None, samples, runs_m, kept)
     return segs + more, note
 
@@ -1305,8 +1318,7 @@ def _walk_lockstep(circ, cand, r, xg, ig, ng, lg, runs, sign, lam, n_cell, l_cel
     for none). Returns the steps as a list of ``(active, n_lo, n_hi, l_lo,
     l_hi, lam, V, IL)`` (``lam``, ``V``, ``IL`` the segment's samples, rows of
     ``samples``), a note code per curve (0 none, 1 the current span reached,
-    2 the field span reached), the curves that reached their stop and their
-    ``dl`` there.
+    2 the field span reached) and the curves that reached their stop.
     """
     sn, sl, (nlo, nhi), (llo, lhi) = runs
     p = candidate_params(circ, cand[:, None])
@@ -1364,11 +1376,11 @@ def _walk_lockstep(circ, cand, r, xg, ig, ng, lg, runs, sign, lam, n_cell, l_cel
         dn = np.where(mv_l, -dn, dn)
         dl = np.where(mv_n, -dl, dl)
         active = mv_l | mv_n
-    return steps, note, reached_all, dl
+    return steps, note, reached_all
 
 
 def start_cells(grid, at, direction):
-    """:func:`_start_cell` of many points at once (``direction`` an array of +1 or -1)."""
+    """Grid cell holding each ``at`` on the side its walk moves to (``direction`` +1 up, -1 down)."""
     k = np.where(direction > 0, np.searchsorted(grid, at, side="right"), np.searchsorted(grid, at, side="left")) - 1
     return np.minimum(np.maximum(k, 0), grid.size - 2)
 
@@ -1392,18 +1404,10 @@ def _trace_lockstep(circ, slf, rows, xg, ig, sides, tables, reversal, points, sa
     if rows.size == 0:
         return None, notes, at_zero
     ngp, lgp = sides[1.0]
-    ng_r = ngp[rows]
-    runaway = ng_r[:, -1] > 0
-    down = (ng_r[:, :-1] >= 0) & (ng_r[:, 1:] < 0)
-    first = down & (xg[:-1] >= -1e-12)[None, :]
-    k = down.shape[1]
-    cell = np.where(first.any(axis=1), k - 1 - np.argmax(first[:, ::-1], axis=1), -1)
-    # N falls steadily: its one root (Ia = 0, the series winding opposing) lies at x <= 0
-    alone = (cell < 0) & circ.short[slf[rows]] & (circ.c[slf[rows]] >= 1) & down.any(axis=1)
-    cell = np.where(alone, k - 1 - np.argmax(down[:, ::-1], axis=1), cell)
-    for q in np.flatnonzero(runaway | (cell < 0)):
-        notes[int(slf[rows[q]])] = CURVE_RUNAWAY_NOTE if runaway[q] else "no built-up no-load point on the searched span"
-    ok = ~runaway & (cell >= 0)
+    cell, why = no_load_cells(circ, slf[rows], ngp[rows], xg)
+    for q in np.flatnonzero(cell < 0):
+        notes[int(slf[rows[q]])] = why[q]
+    ok = cell >= 0
     walk, cell = rows[ok], cell[ok]
     if walk.size == 0:
         return None, notes, at_zero
@@ -1417,8 +1421,8 @@ def _trace_lockstep(circ, slf, rows, xg, ig, sides, tables, reversal, points, sa
     if rev.any():
         stop = (ia_r, -far_r, np.where(rev, _l_fun(circ, p, ia0, 1.0), np.nan))
     one = np.ones(nw, int)
-    steps, code, reached, _ = _walk_lockstep(circ, cand, walk, xg, ig, ngp, lgp, tables[1.0], 1.0, lgp[walk, 0],
-                                             cell, np.zeros(nw, int), one, np.ones(nw, bool), stop, samples)
+    steps, code, reached = _walk_lockstep(circ, cand, walk, xg, ig, ngp, lgp, tables[1.0], 1.0, lgp[walk, 0],
+                                          cell, np.zeros(nw, int), one, np.ones(nw, bool), stop, samples)
     signs = [1.0] * len(steps)
     if reached.any():
         # the field has passed zero: on along the negative side from the same point (as _trace_self_excited)
@@ -1436,8 +1440,8 @@ def _trace_lockstep(circ, slf, rows, xg, ig, sides, tables, reversal, points, sa
         n2 = np.where(turn, n_a, n_b)
         dl2 = np.where(turn, 1, dl_b)
         l2 = start_cells(ig, ia0, dl2)
-        more, code2, _, _ = _walk_lockstep(circ, cand, walk, xg, ig, ngm, lgm, tables[-1.0], -1.0, lam2, n2, l2,
-                                           dl2, reached.copy(), None, samples)
+        more, code2, _ = _walk_lockstep(circ, cand, walk, xg, ig, ngm, lgm, tables[-1.0], -1.0, lam2, n2, l2,
+                                        dl2, reached.copy(), None, samples)
         code = np.where(reached, code2, code)
         steps += more
         signs += [-1.0] * len(more)
@@ -1611,13 +1615,10 @@ def characteristics_of(circ, points=400):
         pick_cand, pick_lam, pick_xa, pick_xb, pick_ia, pick_ib, pick_sign = [], [], [], [], [], [], []
         # slope signs and their runs for every row at once (the walks read them cell by cell)
         tables = {}
-        for sgn_, ng_, lg_ in ((1.0, ngp, lgp), (-1.0, ngm, lgm)):
-            if sgn_ < 0 and not rev.all():
-                # the negative side is walked only where the field reverses: the other rows read flat (one run)
-                tables[sgn_] = _runs_where(ng_, lg_, rev)
-                continue
-            sn_, sl_ = slope_runs_rows(ng_), slope_runs_rows(lg_)
-            tables[sgn_] = (sn_, sl_, run_bounds_rows(sn_), run_bounds_rows(sl_))
+        sn_, sl_ = slope_runs_rows(ngp), slope_runs_rows(lgp)
+        tables[1.0] = (sn_, sl_, run_bounds_rows(sn_), run_bounds_rows(sl_))
+        # the negative side is walked only where the field reverses: the other rows read flat (one run)
+        tables[-1.0] = _runs_where(ngm, lgm, rev)
         # the curves in lock-step when there are enough of them
         lock = np.full(slf.size, slf.size >= LOCKSTEP_MIN_CURVES)
         picked, lock_notes, lock_zero = _trace_lockstep(circ, slf, np.flatnonzero(lock), xg, ig,

@@ -143,15 +143,27 @@ def expand_candidates(space, base_idx, u, corner_idx=None):
     else:
         rows = base_idx * nc + np.asarray(corner_idx, int)
         uu, bb = u, base_idx
+    sub = space.circ.subset(rows, *control_of_rows(space, bb)(uu))
+    return sub, rows
+
+
+def control_of_rows(space, base_idx):
+    """How control values act on rows of bases ``base_idx``, read once.
+
+    Returns a function of the rows' control values ``u`` giving
+    ``(rheostat_ohm, field_current_a, exciter_v)`` as :meth:`Circuit.subset`
+    and :meth:`Circuit.params_with_control` take them (NaN where a row's
+    control is not of that kind): a search that changes only the field
+    control step by step reads the bases once, not at every step.
+    """
+    base_idx = np.asarray(base_idx, int)
     # the control of each base once, then read per row
     controls = np.array([b[3] for b in space.bases] or [""])
-    by_rheostat = ((controls == "rheostat") | (controls == "exciter"))[bb]
-    rh = np.where(by_rheostat, uu, np.nan)
-    fc = np.where((controls == "field-current")[bb], uu, np.nan)
+    by_rheostat = ((controls == "rheostat") | (controls == "exciter"))[base_idx]
+    by_current = (controls == "field-current")[base_idx]
     ev = space.machine.excitation_voltage_v
-    sub = space.circ.subset(rows, rheostat_ohm=rh, field_current_a=fc,
-                            exciter_v=np.full(rows.size, np.nan if ev is None else ev))
-    return sub, rows
+    ev = np.full(base_idx.size, np.nan if ev is None else ev)
+    return lambda u: (np.where(by_rheostat, u, np.nan), np.where(by_current, u, np.nan), ev)
 
 
 def worst_over_corners(values, n, nc, how):

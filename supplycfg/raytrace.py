@@ -18,6 +18,8 @@ along the curve.
 
 import numpy as np
 
+#: A curve's note where the machine has no no-load point to start from.
+NO_BUILD_UP_NOTE = "no built-up no-load point on the searched span"
 #: Rays of the first pass (at least; twice the samples asked for when more).
 FIRST_RAYS = 161
 #: Grid points along each ray before refining the crossing.
@@ -137,7 +139,7 @@ def trace_on_rays(state_fn, refine, cand, vtop, imax, v_scale, i_scale, points, 
         ok = np.isfinite(root[r])
         note = []
         if not ok[0]:
-            states[i], notes[i] = None, "no built-up no-load point on the searched span"
+            states[i], notes[i] = None, NO_BUILD_UP_NOTE
             continue
         # the curve from no load along consecutive rays that meet it
         last = int(np.argmin(ok)) - 1 if not ok.all() else k1 - 1

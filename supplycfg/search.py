@@ -437,9 +437,14 @@ def drive_limit_check(machine, profile, options):
     """
     drive = profile.drive
     free = set(getattr(JOBS[profile.kind], "DRIVE_FREE_LIMITS", ()))
-    if options and all(set(o.failed) & free or any(c.severity == "stop" and c.rule in RATING_FREE_STOPS
-                                                    for c in o.cautions) for o in options):
-        return None, []  # every option breaks what a larger drive of the same speeds keeps: it meets nothing either
+
+    def kept_by_larger_drive(o):
+        """The option breaks what a larger drive of the same speeds would keep broken."""
+        return bool(set(o.failed) & free) or any(c.severity == "stop" and c.rule in RATING_FREE_STOPS
+                                                 for c in o.cautions)
+
+    if options and all(kept_by_larger_drive(o) for o in options):
+        return None, []  # a larger drive meets nothing either
     over = [o for o in options if "drive_power" in o.failed]
     stiff = replace(profile, drive=drive.with_rating(STIFF_DRIVE_FACTOR * drive.rated_power_kw))
     big = search(machine, stiff, with_drive_check=False, advice=False)

@@ -47,8 +47,8 @@ import numpy as np
 from ..cautions import caution
 from ..circuit import (Setting, USES_SERIES, build_circuit, check_setting, circuit_residual, machine_state,
                        no_load_voltages, normal_points, refine_bracketed_roots)
-from ..envelope import (Space, control_kind, control_range, critical_resistance_ratios, envelope_corners,
-                        expand_candidates, worst_over_corners)
+from ..envelope import (Space, control_kind, control_of_rows, control_range, critical_resistance_ratios,
+                        envelope_corners, expand_candidates, worst_over_corners)
 from ..errors import InputError
 from ..powerflow import load_point_figures
 from ..readings import option_advice
@@ -1043,15 +1043,10 @@ def control_for_point(space, base_idx, corner_idx, terminal_voltage_v, load_curr
         return np.zeros(0), np.zeros(0, bool)
     # the rows once; each step changes only their field control (as expand_candidates would)
     sub, _ = expand_candidates(space, base_idx, np.zeros(n), corner_idx)
-    controls = np.array([space.bases[b][3] for b in base_idx])
-    by_rheostat = (controls == "rheostat") | (controls == "exciter")
-    by_current = controls == "field-current"
-    ev = m.excitation_voltage_v
-    ev = np.full(n, np.nan if ev is None else ev)
+    controls_at = control_of_rows(space, base_idx)
 
     def h(u):
-        p = sub.params_with_control(np.where(by_rheostat, u, np.nan), np.where(by_current, u, np.nan), ev)
-        return circuit_residual(sub, p, v, i)
+        return circuit_residual(sub, sub.params_with_control(*controls_at(u)), v, i)
     h_lo, h_hi = h(np.where(fixed, 0.0, lo)), h(np.where(fixed, 0.0, hi))
     ok = (np.signbit(h_lo) != np.signbit(h_hi)) & np.isfinite(h_lo) & np.isfinite(h_hi)
     # regula falsi (Illinois), then halving: the root to the residual's 1e-11 V in a dozen steps or so

@@ -13,9 +13,10 @@ import numpy as np
 from ..cautions import caution
 from ..circuit import (USES_SERIES, candidate_params, circuit_residual, no_load_voltages, normal_points,
                        refine_bracketed_roots)
-from ..envelope import control_range, critical_resistance_ratios, expand_candidates, smallest_margin_fraction
+from ..envelope import (control_of_rows, control_range, critical_resistance_ratios, expand_candidates,
+                        smallest_margin_fraction)
 from ..errors import InputError
-from ..powerflow import load_point_figures
+from ..powerflow import finite_or_none_lists, load_point_figures
 from ..readings import (control_band, diverter_rating, exciter_supply, no_load_field_current_a,
                         readings_and_band, weak_end_is_high)
 from ..validate import MAX_CURRENT_A, MAX_OHM, named_entry, read_pair, table_entry
@@ -367,15 +368,10 @@ def _solve_weld_control(space, base_idx, corner_idx, target_a):
 
     # the rows once; each step changes only their field control (as expand_candidates would)
     sub, _ = expand_candidates(space, base_idx, np.zeros(n), corner_idx)
-    controls = np.array([space.bases[b][3] for b in base_idx] or [""])[:n]
-    by_rheostat = (controls == "rheostat") | (controls == "exciter")
-    by_current = controls == "field-current"
-    ev = space.machine.excitation_voltage_v
-    ev = np.full(n, np.nan if ev is None else ev)
+    controls_at = control_of_rows(space, base_idx)
 
     def h(u):
-        p = sub.params_with_control(np.where(by_rheostat, u, np.nan), np.where(by_current, u, np.nan), ev)
-        return circuit_residual(sub, p, vt, it)
+        return circuit_residual(sub, sub.params_with_control(*controls_at(u)), vt, it)
 
     ha, hb = h(lo), h(hi)
     ok = np.signbit(ha) != np.signbit(hb)
@@ -571,12 +567,6 @@ def _num(x):
     return x if math.isfinite(x) else None
 
 
-def nums(x):
-    """An array as a list of floats for JSON, None where a value is not finite."""
-    x = np.asarray(x, float)
-    return [v if f else None for v, f in zip(x.tolist(), np.isfinite(x).tolist())]
-
-
 def reading_corners(space):
     """Corner indices of the readings: the nominal speed with the coldest and with the hottest windings."""
     speeds = sorted({c[0] for c in space.corners})
@@ -763,7 +753,7 @@ def dial_advice(space, targets, paths, u_all, reach, ev, valid, option_ok, bands
     hot_t = max(c[1] for c in space.corners)
     # each row's numbers as JSON-ready columns (one conversion per column, not per cell)
     cur = np.asarray(ev["current_a"], float)[used]
-    col = {k: nums(a) for k, a in (
+    col = {k: finite_or_none_lists(a) for k, a in (
         ("welding_current_a", cur), ("terminal_voltage_v", np.asarray(ev["terminal_voltage_v"], float)[used]),
         ("arc_voltage_v", conventional_load_voltage(job.process, cur)), ("no_load_voltage_v", vnl_nom),
         ("no_load_voltage_min_v", np.asarray(ev["no_load_min_v"], float)[used]),
@@ -771,7 +761,7 @@ def dial_advice(space, targets, paths, u_all, reach, ev, valid, option_ok, bands
         ("short_circuit_current_a", np.asarray(ev["short_circuit_current_a"], float)[used]),
         ("slope_v_per_a", np.asarray(ev["slope_v_per_a"], float)[used]),
         ("current_change_per_arc_volt_a_per_v", np.asarray(di, float)[used]))}
-    pu_l, h0_l = nums(pu), nums(h0)
+    pu_l, h0_l = finite_or_none_lists(pu), finite_or_none_lists(h0)
     reach_l, valid_l = np.asarray(reach, bool)[used].tolist(), valid.ravel()[used].tolist()
     target_l = np.asarray(targets, float).tolist()
     rows_of = []
