@@ -2186,7 +2186,7 @@ def series_critical_resistance_ohm(machine, series_turns=None, speed_rpm=None, w
                  * st.speed_rpm / machine.occ_speed_rpm)
 
 
-def normal_points(circ, lo, hi, v_of=None, il_of=None, grid=97, steps=44, vi_of=None):
+def normal_points(circ, lo, hi, v_of=None, il_of=None, grid=97, steps=44, vi_of=None, alike=False):
     """The point each candidate sits at along a load curve: the highest stable intersection.
 
     The load curve is parameterised by ``t`` in ``[lo, hi]`` (arrays, one per
@@ -2208,10 +2208,21 @@ def normal_points(circ, lo, hi, v_of=None, il_of=None, grid=97, steps=44, vi_of=
         ``2**SPAN_DOUBLINGS`` times), ``reversed`` (bool: generated EMF
         below zero) and ``converged`` (bool); NaN where no stable point
         exists or it lies beyond the range.
+
+    With ``alike`` the load curve is one function of ``t`` for every
+    candidate (the callables do not depend on which row they are given):
+    candidates equal in every row parameter and in ``lo``, ``hi`` are then
+    solved once. Each row's point is found on its own, so the answers are
+    the same bit for bit; a search's dial rows and band ends repeat many.
     """
     n = circ.n
     lo = np.broadcast_to(np.asarray(lo, float), (n,))
     hi = np.broadcast_to(np.asarray(hi, float), (n,))
+    if alike:
+        first, inverse = identical_rows(circ, lo, hi)
+        if first.size < n:
+            r = normal_points(circ.subset(first), lo[first], hi[first], v_of, il_of, grid, steps, vi_of)
+            return {k: v[inverse] for k, v in r.items()}
     p = candidate_params(circ, np.arange(n)[:, None])
     lin = np.linspace(0.0, 1.0, grid)[None, :]
 
@@ -2266,6 +2277,26 @@ def normal_points(circ, lo, hi, v_of=None, il_of=None, grid=97, steps=44, vi_of=
     return out
 
 
+#: Row parameters a candidate's operating point depends on (with ``nse``, which splits the branch
+#: current between the series winding and its diverter in the reported currents).
+ROW_KEYS = ("kind", "short", "branch", "s", "ra", "rbr", "c", "rf", "x0", "nse")
+
+
+def identical_rows(circ, *columns):
+    """First row of each set of candidates equal bit for bit in :data:`ROW_KEYS` and ``columns``.
+
+    Returns ``(first, inverse)``, ``first[inverse]`` being the row that
+    stands for each row (``np.unique`` on the rows' bytes, so ``0.0`` and
+    ``-0.0``, or NaNs of other bits, stay apart).
+    """
+    cols = [np.asarray(getattr(circ, k), float) for k in ROW_KEYS if getattr(circ, k) is not None]
+    table = np.ascontiguousarray(np.stack(cols + [np.broadcast_to(np.asarray(c, float), (circ.n,)) for c in columns],
+                                          axis=1))
+    raw = table.view(np.dtype((np.void, table.dtype.itemsize * table.shape[1]))).ravel()
+    _, first, inverse = np.unique(raw, return_index=True, return_inverse=True)
+    return first, inverse.ravel()
+
+
 def no_load_voltages(circ, grid=97):
     """Terminal voltage at zero load current for every candidate [V].
 
@@ -2275,7 +2306,7 @@ def no_load_voltages(circ, grid=97):
     """
     circ = circ.without_drive()
     top = voltage_span(circ, np.arange(circ.n))
-    r = normal_points(circ, np.zeros(circ.n), top, il_of=lambda t: np.zeros_like(t), grid=grid)
+    r = normal_points(circ, np.zeros(circ.n), top, il_of=lambda t: np.zeros_like(t), grid=grid, alike=True)
     return r["terminal_voltage_v"]
 
 

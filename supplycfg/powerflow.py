@@ -212,7 +212,7 @@ def no_load_speeds(space, base_idx, u):
         return np.full(n, np.nan)
     sub, _ = expand_candidates(space, base_idx, u)
     top = 1.5 * sub.machine.rated_voltage_v * sub.s / sub.s.min() + 50.0
-    r = normal_points(sub, np.zeros(sub.n), top, il_of=lambda t: np.zeros_like(t))
+    r = normal_points(sub, np.zeros(sub.n), top, il_of=lambda t: np.zeros_like(t), alike=True)
     v = np.where(r["found"], r["terminal_voltage_v"], 0.0)
     speed = drive_point_keys(sub, sub.take(np.arange(sub.n)), v, np.zeros(sub.n))["speed_rpm"]
     speed = np.where(r["found"], speed, np.nan).reshape(n, space.nc)

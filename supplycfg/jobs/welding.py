@@ -386,7 +386,7 @@ def _weld_current(space, base_idx, u, corner_idx=None):
     job = space.profile.welding
     sub, rows = expand_candidates(space, base_idx, u, corner_idx)
     r = normal_points(sub, np.zeros(sub.n), np.full(sub.n, sub.imax),
-                      v_of=lambda t: welding_line_voltage_v(job, t))
+                      v_of=lambda t: welding_line_voltage_v(job, t), alike=True)
     return r, sub
 
 
@@ -457,7 +457,7 @@ def evaluate_rows(space, base_idx, u, target_a, near=False):
     if near:
         subn, _ = expand_candidates(space, base_idx, u, np.full(n, nom))
         rn = normal_points(subn, (1 - BAND_CURRENT_WINDOW) * target, (1 + BAND_CURRENT_WINDOW) * target,
-                           v_of=lambda t: welding_line_voltage_v(job, t), grid=9, steps=40)
+                           v_of=lambda t: welding_line_voltage_v(job, t), grid=9, steps=40, alike=True)
     else:
         rn, subn = _weld_current(space, base_idx, u, np.full(n, nom))
     cur = rn["load_current_a"]
@@ -471,7 +471,7 @@ def evaluate_rows(space, base_idx, u, target_a, near=False):
     vnl = no_load_voltage_v(sub2)
     subs, _ = expand_candidates(space, base_idx, u, np.full(n, strong))
     rs = normal_points(subs, np.zeros(n), np.full(n, subs.imax), v_of=lambda t: job.cable_resistance_ohm * t,
-                       **({"grid": 33} if near else {}))
+                       alike=True, **({"grid": 33} if near else {}))
     isc = np.where(rs["found"], rs["load_current_a"], np.nan)
     return {"current_a": cur, "terminal_voltage_v": rn["terminal_voltage_v"], "deviation": dev,
             "slope_v_per_a": slope, "no_load_min_v": vnl[:n], "no_load_max_v": vnl[n:],

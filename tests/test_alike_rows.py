@@ -1,0 +1,49 @@
+"""Candidates alike in every row parameter are solved once (``normal_points(..., alike=True)``):
+the same numbers, bit for bit, as solving every row, with and without a drive (two routes to one answer)."""
+
+from pathlib import Path
+
+import numpy as np
+import pytest
+from numpy.testing import assert_array_equal
+
+from supplycfg import circuit
+from supplycfg.bench import grid_settings
+from supplycfg.machine import load_machine
+from supplycfg.profile import load_profile
+
+PROFILES = Path(__file__).resolve().parents[1] / "profiles"
+
+
+@pytest.mark.parametrize("name, job", [("welding-set", "welding"), ("charging-set", "battery-charging"),
+                                       ("lighting-set", "lighting")])
+@pytest.mark.parametrize("coupled", [False, True])
+def test_alike_rows_solved_once_give_the_same_points(name, job, coupled):
+    m = load_machine(PROFILES / "machines" / f"{name}.toml")
+    drive = load_profile(PROFILES / "loads" / f"{job}.toml").drive if coupled else None
+    settings = grid_settings(m, rheostats=4)
+    # every setting three times, shuffled: most rows have twins
+    order = np.random.default_rng(7).permutation(np.repeat(np.arange(len(settings)), 3))
+    circ = circuit.build_circuit(m, [settings[i] for i in order], drive)
+    first, inverse = circuit.identical_rows(circ)
+    assert first.size < circ.n
+    line = dict(v_of=lambda t: 20.0 + 0.04 * t)
+    for kw in (line, dict(il_of=lambda t: np.zeros_like(t))):
+        lo, hi = np.zeros(circ.n), np.full(circ.n, circ.imax if "v_of" in kw else 2.0 * m.rated_voltage_v)
+        once = circuit.normal_points(circ, lo, hi, alike=True, **kw)
+        every = circuit.normal_points(circ, lo, hi, **kw)
+        assert set(once) == set(every)
+        for k in every:
+            assert_array_equal(once[k], every[k], err_msg=k)
+
+
+def test_identical_rows_tell_signed_zeros_and_ranges_apart():
+    """Rows equal in value but not in bits (0.0 and -0.0) stay apart, and an extra column splits rows too."""
+    m = load_machine(PROFILES / "machines" / "charging-set.toml")
+    s = grid_settings(m, rheostats=2)[0]
+    circ = circuit.build_circuit(m, [s] * 4)
+    circ.x0[:] = [0.0, -0.0, 0.0, 0.0]
+    first, inverse = circuit.identical_rows(circ, np.array([1.0, 1.0, 1.0, 2.0]))
+    assert inverse[0] == inverse[2]
+    assert len({inverse[0], inverse[1], inverse[3]}) == 3
+    assert_array_equal(first[inverse][[0, 2]], [0, 0])
