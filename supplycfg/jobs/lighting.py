@@ -153,7 +153,7 @@ def evaluate_feeder(space, base_idx, u, booster=False, res=COARSE):
             # the engine's whole voltage span (widened further while the machine is above the load)
             top = np.maximum(1.5 * nominal * (1 + tol) + 50.0, voltage_span(sub))
             r = normal_points(sub, np.full(sub.n, nominal / 3), top,
-                              il_of=lambda t, il=il: np.full_like(t, il), alike=True, **res)
+                              il_of=lambda t, il=il: np.full_like(t, il), **res)
             vl = r["terminal_voltage_v"] - il * job.feeder_resistance_ohm
             x, e, iak = r["x"], r["generated_emf_v"], r["armature_current_a"]
             conv &= r["converged"]
