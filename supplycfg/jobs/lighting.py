@@ -140,6 +140,15 @@ def evaluate_feeder(space, base_idx, u, booster=False, res=COARSE):
     e_all = np.empty_like(vload); conv = np.ones(sub.n, bool)
     drive_pts = []
     p = candidate_params(sub, np.arange(sub.n))
+    if not booster:
+        # every load current in one solve, a copy of the rows for each (each row's point is its own):
+        # a machine sitting below a third of the nominal voltage has failed anyway; the top is
+        # the engine's whole voltage span (widened further while the machine is above the load)
+        top = np.maximum(1.5 * nominal * (1 + tol) + 50.0, voltage_span(sub))
+        each = sub.subset(np.tile(np.arange(sub.n), currents.size))
+        il_rows = np.repeat(currents, sub.n)[:, None]
+        r_all = normal_points(each, np.full(each.n, nominal / 3), np.tile(top, currents.size),
+                              il_of=lambda t: np.broadcast_to(il_rows, t.shape), **res)
     for k, il in enumerate(currents):
         if booster:
             ia = np.full(sub.n, il)
@@ -149,11 +158,7 @@ def evaluate_feeder(space, base_idx, u, booster=False, res=COARSE):
             x, e, iak = st["x"], st["generated_emf_v"], st["armature_current_a"]
             drive_pts.append((f"{il:g} A", sub, v, np.full(sub.n, il)))
         else:
-            # a machine sitting below a third of the nominal voltage has failed anyway; the top is
-            # the engine's whole voltage span (widened further while the machine is above the load)
-            top = np.maximum(1.5 * nominal * (1 + tol) + 50.0, voltage_span(sub))
-            r = normal_points(sub, np.full(sub.n, nominal / 3), top,
-                              il_of=lambda t, il=il: np.full_like(t, il), **res)
+            r = {key: val[k * sub.n:(k + 1) * sub.n] for key, val in r_all.items()}
             vl = r["terminal_voltage_v"] - il * job.feeder_resistance_ohm
             x, e, iak = r["x"], r["generated_emf_v"], r["armature_current_a"]
             conv &= r["converged"]
