@@ -2186,7 +2186,11 @@ def series_critical_resistance_ohm(machine, series_turns=None, speed_rpm=None, w
                  * st.speed_rpm / machine.occ_speed_rpm)
 
 
-def normal_points(circ, lo, hi, v_of=None, il_of=None, grid=97, steps=44, vi_of=None, alike=False):
+#: Grid points along a load curve where :func:`normal_points` looks for crossings, unless told.
+NORMAL_POINTS_GRID = 97
+
+
+def normal_points(circ, lo, hi, v_of=None, il_of=None, grid=NORMAL_POINTS_GRID, steps=44, vi_of=None, alike=False):
     """The point each candidate sits at along a load curve: the highest stable intersection.
 
     The load curve is parameterised by ``t`` in ``[lo, hi]`` (arrays, one per

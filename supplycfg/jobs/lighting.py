@@ -8,8 +8,8 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from ..circuit import (candidate_params, machine_state, normal_points, terminal_voltage_at_armature_current,
-                       voltage_span)
+from ..circuit import (NORMAL_POINTS_GRID, candidate_params, machine_state, normal_points,
+                       terminal_voltage_at_armature_current, voltage_span)
 from ..envelope import (COARSE, FINE, critical_resistance_ratios, expand_candidates, optimise_control,
                         worst_over_corners)
 from ..powerflow import load_point_figures
@@ -20,6 +20,11 @@ from ..validate import MAX_CURRENT_A, MAX_OHM, MAX_VOLTAGE_V, MIN_VOLTAGE_V, nam
 TABLE = "lighting"
 #: Load currents checked across the range.
 LOAD_POINTS = 5
+#: Most grid points (rows x grid) in one solve of the feeder's load points: several currents share a
+#: call (the solver's fixed cost is paid once) up to this size, beyond which the arrays, not the
+#: calls, cost (measured at the machine file's bounds, whose final solve has a 401-point grid: all
+#: five currents in one call took the search to 157 MB, one current at a time 64 MB).
+FEEDER_BATCH_POINTS = 2 ** 18
 
 _IES = "IES Lighting Handbook, gas-filled tungsten lamps near rated voltage (from memory)"
 #: Exponents of light output, power and life against voltage (IES Lighting
@@ -141,14 +146,20 @@ def evaluate_feeder(space, base_idx, u, booster=False, res=COARSE):
     drive_pts = []
     p = candidate_params(sub, np.arange(sub.n))
     if not booster:
-        # every load current in one solve, a copy of the rows for each (each row's point is its own):
+        # several load currents in one solve, a copy of the rows for each (each row's point is its own):
         # a machine sitting below a third of the nominal voltage has failed anyway; the top is
         # the engine's whole voltage span (widened further while the machine is above the load)
         top = np.maximum(1.5 * nominal * (1 + tol) + 50.0, voltage_span(sub))
-        each = sub.subset(np.tile(np.arange(sub.n), currents.size))
-        il_rows = np.repeat(currents, sub.n)[:, None]
-        r_all = normal_points(each, np.full(each.n, nominal / 3), np.tile(top, currents.size),
-                              il_of=lambda t: np.broadcast_to(il_rows, t.shape), **res)
+        grid = res.get("grid", NORMAL_POINTS_GRID)
+        per_call = max(1, min(currents.size, FEEDER_BATCH_POINTS // max(sub.n * grid, 1)))
+        parts = []
+        for c0 in range(0, currents.size, per_call):
+            cur = currents[c0:c0 + per_call]
+            each = sub.subset(np.tile(np.arange(sub.n), cur.size))
+            il_rows = np.repeat(cur, sub.n)[:, None]
+            parts.append(normal_points(each, np.full(each.n, nominal / 3), np.tile(top, cur.size),
+                                       il_of=lambda t, il_rows=il_rows: np.broadcast_to(il_rows, t.shape), **res))
+        r_all = {key: np.concatenate([q[key] for q in parts]) for key in parts[0]}
     for k, il in enumerate(currents):
         if booster:
             ia = np.full(sub.n, il)
