@@ -715,17 +715,6 @@ def dial_advice(space, targets, paths, u_all, reach, ev, valid, option_ok, bands
     pb, pr = used // nr, used % nr
     pu = u_all[used]
     controls = [space.bases[b][3] for b in pb]
-    # readings: no-load field current at the nominal speed, cold and hot
-    if bands:
-        c0, h0, _, v_hot = _row_field(space, pb, pu, voltages=True)
-    else:
-        c0 = h0 = v_hot = np.full(used.size, np.nan)
-    if bands and reading_corners(space)[1] == nom:
-        vnl_nom = v_hot  # the nominal corner is the readings' hot one: its no-load voltages are solved there
-    elif not bands:
-        vnl_nom = np.full(used.size, np.nan)  # a row's no-load voltage at nominal speed is advice too
-    else:
-        vnl_nom = no_load_voltage_v(expand_candidates(space, pb, pu, np.full(used.size, nom))[0])
     # bands of the rows inside every limit
     lo = np.array([control_range(m, c)[0] for c in controls])
     hi = np.array([control_range(m, c)[1] for c in controls])
@@ -741,12 +730,27 @@ def dial_advice(space, targets, paths, u_all, reach, ev, valid, option_ok, bands
 
     band_lo, band_hi = control_band(margin_of, np.where(ok, pu, np.nan), lo, hi, scan=4, steps=16)
     have = np.isfinite(band_lo)
+    # readings: no-load field current at the nominal speed, cold and hot, at each row's control and
+    # at both ends of its band, in one solve (most rows have no band: their copies are solved once)
+    n_used = used.size
+    if bands:
+        c3, h3, _, v3 = _row_field(space, np.tile(pb, 3), np.concatenate(
+            [pu, np.where(have, band_lo, pu), np.where(have, band_hi, pu)]), voltages=True)
+        c0, cl, ch = c3[:n_used], c3[n_used:2 * n_used], c3[2 * n_used:]
+        h0, hl, hh = h3[:n_used], h3[n_used:2 * n_used], h3[2 * n_used:]
+        v_hot = v3[:n_used]
+    else:
+        c0 = h0 = v_hot = np.full(n_used, np.nan)
     if have.any():
-        cl, hl = _row_field(space, pb, np.where(have, band_lo, pu))
-        ch, hh = _row_field(space, pb, np.where(have, band_hi, pu))
         counter[0] += 4 * used.size * space.nc
     else:
         cl = hl = ch = hh = np.full(used.size, np.nan)
+    if bands and reading_corners(space)[1] == nom:
+        vnl_nom = v_hot  # the nominal corner is the readings' hot one: its no-load voltages are solved there
+    elif not bands:
+        vnl_nom = np.full(used.size, np.nan)  # a row's no-load voltage at nominal speed is advice too
+    else:
+        vnl_nom = no_load_voltage_v(expand_candidates(space, pb, pu, np.full(used.size, nom))[0])
     pos = {int(p): j for j, p in enumerate(used)}
     rc = job.cable_resistance_ohm
     di = current_change_per_arc_volt_a_per_v(ev["slope_v_per_a"], rc)
