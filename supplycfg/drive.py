@@ -384,7 +384,12 @@ def newton_speed_step(s, f, df, s0, lo, hi):
         step = f / df
     else:
         step = np.where(ok, f / np.where(ok, df, 1.0), np.where(f > 0, 0.1, -0.1) * s0)
-    return np.minimum(np.maximum(s - step, lo), hi)
+    out = s - step
+    if not isinstance(out, np.ndarray):
+        return np.minimum(np.maximum(out, lo), hi)
+    # (in place: the same values, without two more arrays)
+    np.maximum(out, lo, out=out)
+    return np.minimum(out, hi, out=out)
 
 
 @dataclass
@@ -502,6 +507,20 @@ class DriveRows:
                                                    out_c[rows], linear_out)
         return s, np.abs(f) <= 1e-12 * s0, df > 0
 
+    def fallback_end(self, lo, hi):
+        """Speed ratio where every Newton step goes up by a tenth of ``s0`` (the fallback of a slope
+        <= 0 below a negative residual): the steps end here, at the ceiling ``hi`` when they reach it.
+        The same float steps as the loop takes, once per drive and bounds (every solve asked it)."""
+        key = (lo, hi)
+        got = self.__dict__.setdefault("_fallback_ends", {})
+        if key not in got:
+            s0 = self.s0
+            up = s0
+            for _ in range(SPEED_NEWTON_STEPS):
+                up = min(max(up - (-0.1 * s0), lo), hi)
+            got[key] = up
+        return got[key]
+
     def _speed_ratio_sqrt(self, a, out_c, lo, hi, tol, flags):
         """:meth:`speed_ratio` for the common case: no output term linear in the speed, and
         rotational loss as ``s^1.5``. The same Newton steps and stop test, with the drive
@@ -537,11 +556,7 @@ class DriveRows:
         sq = None  # sqrt(s), once s is not s0 everywhere
         idx = None  # flat indices of the rows still open, once few remain (then worked on alone)
         moved = None  # rows whose speed moved at the last step (one that did not stays put from then on)
-        # where every step would go up by a tenth of s0 (the fallback of a slope <= 0 below a negative
-        # residual), the steps end here, at the ceiling when they reach it
-        up = s0
-        for _ in range(SPEED_NEWTON_STEPS):
-            up = min(max(up - (-0.1 * s0), lo), hi)
+        up = self.fallback_end(lo, hi)
         bad = np.isnan(f)
         if bad.any():
             # rows of undefined power (NaN a or c) never settle: Newton's steps would take them where
@@ -554,7 +569,8 @@ class DriveRows:
             bad = None
         climb_margin = 1e-9  # far above rounding: these rows' tests come out the same at every step
         sq_hi = float(np.sqrt(hi))
-        if not motor and a.size and np.nanmin(aa) + (1.5 * rr) * sq_hi <= -climb_margin:
+        # (fmin skips NaN as nanmin does, without its copy and warning)
+        if not motor and a.size and np.fmin.reduce(aa, axis=None) + (1.5 * rr) * sq_hi <= -climb_margin:
             # an engine driven so hard (a large negative E Ia) that the equation's slope stays below
             # zero up to the ceiling: its residual only falls as the speed rises, so from a negative
             # residual every step is the fallback's, up to the ceiling
