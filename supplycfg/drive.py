@@ -383,7 +383,13 @@ def newton_speed_step(s, f, df, s0, lo, hi):
     if ok.all():
         step = f / df
     else:
-        step = np.where(ok, f / np.where(ok, df, 1.0), np.where(f > 0, 0.1, -0.1) * s0)
+        step = f / np.where(ok, df, 1.0)
+        if isinstance(step, np.ndarray):
+            # the fallback on the few rows that need it (the same values as a where over every row)
+            bad = ~ok
+            step[bad] = np.where(f[bad] > 0, 0.1, -0.1) * s0
+        else:
+            step = np.where(ok, step, np.where(f > 0, 0.1, -0.1) * s0)
     out = s - step
     if not isinstance(out, np.ndarray):
         return np.minimum(np.maximum(out, lo), hi)
