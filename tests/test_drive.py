@@ -603,3 +603,20 @@ def test_drive_check_skipped_where_a_larger_drive_cannot_help(monkeypatch, why):
     monkeypatch.setattr(search_mod, "RATING_FREE_STOPS", ())
     assert search_mod.drive_limit_check(m, prof, res.options) == (None, [])
     assert calls == [1]
+
+
+def test_newton_speed_step_fallback_rows_only_matches_the_whole_where():
+    """The fallback step worked out on the rows with a non-positive slope gives the numbers of the
+    where over every row (closed form: s - f/df, or -+0.1 s0 towards the root, held in [lo, hi])."""
+    from supplycfg.drive import newton_speed_step
+    rng = np.random.default_rng(3)
+    s = rng.uniform(0.5, 1.5, 400); f = rng.normal(0, 0.2, 400); df = rng.normal(0.5, 1.0, 400)
+    f[::37] = np.nan
+    s0, lo, hi = 1.0, 0.02, 3.0
+    ok = df > 0
+    ref = np.minimum(np.maximum(s - np.where(ok, f / np.where(ok, df, 1.0), np.where(f > 0, 0.1, -0.1) * s0), lo), hi)
+    np.testing.assert_array_equal(newton_speed_step(s, f, df, s0, lo, hi), ref)
+    for k in (0, 1, 5):  # one row: numpy scalars take the same route
+        got = newton_speed_step(np.float64(s[k]), np.float64(f[k]), np.float64(-abs(df[k])), s0, lo, hi)
+        want = min(max(s[k] - (0.1 if f[k] > 0 else -0.1) * s0, lo), hi)
+        np.testing.assert_allclose(got, want, rtol=0, atol=0)
