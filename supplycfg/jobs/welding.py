@@ -375,9 +375,16 @@ def _solve_weld_control(space, base_idx, corner_idx, target_a):
 
     ha, hb = h(lo), h(hi)
     ok = np.signbit(ha) != np.signbit(hb)
-    u = refine_bracketed_roots(h, lo, hi, ha, 50)
     # unreachable: take the end that comes closer
-    u = np.where(ok, u, np.where(np.abs(ha) < np.abs(hb), lo, hi))
+    u = np.where(np.abs(ha) < np.abs(hb), lo, hi)
+    k = np.flatnonzero(ok)
+    if k.size:
+        # only the rows with a bracket are refined (each row's search is its own: a row with none
+        # would take every step and hold the others' calls to its length)
+        subk = sub.subset(k)
+        at_k = control_of_rows(space, base_idx[k])
+        u[k] = refine_bracketed_roots(lambda x: circuit_residual(subk, subk.params_with_control(*at_k(x)), vt[k], it[k]),
+                                      lo[k], hi[k], ha[k], 50)
     return u, ok
 
 
