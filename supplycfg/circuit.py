@@ -1089,12 +1089,20 @@ def _field_reversal(circ, idx):
     ia = np.full(idx.size, np.nan)
     diff = idx[circ.c[idx] < 0]
     if circ.occ.residual_v > 0 and diff.size:
-        p = candidate_params(circ, diff)
-        a0 = p["s"] * circ.occ.residual_v
-        b = lambda x: _l_fun(circ, p, x, 1.0) - p["rf"] * circ.ar.mmf(x) / circ.nsh - _short_factor(p) * a0
-        lo, hi = np.zeros(diff.size), np.full(diff.size, circ.imax)
-        root = refine_bracketed_roots(b, lo, hi, b(lo), 60)
-        ia[circ.c[idx] < 0] = np.where(b(hi) > 0, root, np.nan)
+        def balance(rows):
+            p = candidate_params(circ, rows)
+            a0 = p["s"] * circ.occ.residual_v
+            return lambda x: _l_fun(circ, p, x, 1.0) - p["rf"] * circ.ar.mmf(x) / circ.nsh - _short_factor(p) * a0
+
+        reverses = balance(diff)(np.full(diff.size, circ.imax)) > 0
+        root = np.full(diff.size, np.nan)
+        r = np.flatnonzero(reverses)
+        if r.size:
+            # only the rows whose field reverses within the span (each row's root is its own)
+            b = balance(diff[r])
+            lo = np.zeros(r.size)
+            root[r] = refine_bracketed_roots(b, lo, np.full(r.size, circ.imax), b(lo), 60)
+        ia[circ.c[idx] < 0] = root
     return ia, np.where(np.isfinite(ia), circ.ar.mmf(np.nan_to_num(ia)) / circ.nsh, np.nan)
 
 
@@ -1576,8 +1584,14 @@ def characteristics_of(circ, points=400):
         # exact end: bisection between the bracketing dense points
         lo = ia_dense[0, np.maximum(first - 1, 0)]
         has_zero = below.any(axis=1) & (first > 0)
-        f = lambda ia: terminal_voltage_at_armature_current(circ, candidate_params(circ, exp), ia)
-        ia_zero = refine_bracketed_roots(f, lo, ia_end, f(lo))
+        ia_zero = np.zeros(exp.size)
+        z = np.flatnonzero(has_zero)
+        if z.size:
+            # only the curves that reach zero volts (each row's root is its own; one with no
+            # bracket would take every step)
+            pz = candidate_params(circ, exp[z])
+            f = lambda ia: terminal_voltage_at_armature_current(circ, pz, ia)  # noqa: E731
+            ia_zero[z] = refine_bracketed_roots(f, lo[z], ia_end[z], f(lo[z]))
         ia_end = np.where(has_zero, ia_zero, np.where(below.any(axis=1), 0.0, circ.imax))
         frac = np.linspace(0, 1, points)[None, :]
         ia = ia_end[:, None] * frac
