@@ -224,6 +224,12 @@ def check_setting(machine, setting, source="setting", names=None):
 # vectorised circuit parameters
 # ---------------------------------------------------------------------------
 
+#: Row parameters a candidate's operating point depends on (with ``nse``, which splits the branch
+#: current between the series winding and its diverter in the reported currents): what
+#: :meth:`Circuit.take` gives; a circuit's rows also keep ``rsh``, which the field control acts on.
+ROW_KEYS = ("kind", "short", "branch", "s", "ra", "rbr", "c", "rf", "x0", "nse")
+
+
 @dataclass
 class Circuit:
     """Per-candidate circuit parameters, each an array of shape (n,)."""
@@ -255,7 +261,7 @@ class Circuit:
 
     def take(self, idx):
         """Parameters for candidate indices ``idx`` (broadcastable)."""
-        return {k: getattr(self, k)[idx] for k in ("kind", "short", "branch", "s", "ra", "rbr", "c", "rf", "x0", "nse")}
+        return {k: getattr(self, k)[idx] for k in ROW_KEYS}
 
     def without_drive(self):
         """The same rows at the drive's no-load speed, held fixed (no-load voltages, build-up)."""
@@ -272,8 +278,7 @@ class Circuit:
         entries leave a candidate's control as it is.
         """
         idx = np.asarray(idx, int)
-        arr = {k: getattr(self, k)[idx].copy() for k in ("kind", "short", "branch", "s", "ra", "rbr", "c",
-                                                         "rf", "x0", "nse", "rsh")}
+        arr = {k: getattr(self, k)[idx].copy() for k in ROW_KEYS + ("rsh",)}
         _apply_field_control(arr, rheostat_ohm, field_current_a, exciter_v)
         return Circuit(self.machine, self.occ, self.ar, [self.settings[i] for i in idx.tolist()], arr["kind"],
                        arr["short"], arr["branch"], arr["s"], arr["ra"], arr["rbr"], arr["c"], arr["rf"],
@@ -285,8 +290,7 @@ class Circuit:
         """Parameters of every row (as :meth:`take`) with the field control changed as
         :meth:`subset` changes it, without building a new circuit: a search over one
         control value per row calls this at every step."""
-        arr = {k: getattr(self, k) for k in ("kind", "short", "branch", "s", "ra", "rbr", "c", "rf", "x0", "nse",
-                                             "rsh")}
+        arr = {k: getattr(self, k) for k in ROW_KEYS + ("rsh",)}
         _apply_field_control(arr, rheostat_ohm, field_current_a, exciter_v)
         del arr["rsh"]
         return arr
@@ -2295,11 +2299,6 @@ def normal_points(circ, lo, hi, v_of=None, il_of=None, grid=NORMAL_POINTS_GRID, 
     return out
 
 
-#: Row parameters a candidate's operating point depends on (with ``nse``, which splits the branch
-#: current between the series winding and its diverter in the reported currents).
-ROW_KEYS = ("kind", "short", "branch", "s", "ra", "rbr", "c", "rf", "x0", "nse")
-
-
 def identical_rows(circ, *columns):
     """First row of each set of candidates equal bit for bit in :data:`ROW_KEYS` and ``columns``.
 
@@ -2315,7 +2314,7 @@ def identical_rows(circ, *columns):
     return first, inverse.ravel()
 
 
-def no_load_voltages(circ, grid=97):
+def no_load_voltages(circ, grid=NORMAL_POINTS_GRID):
     """Terminal voltage at zero load current for every candidate [V].
 
     NaN where there is none, or where the voltage runs away past the
@@ -2328,7 +2327,7 @@ def no_load_voltages(circ, grid=97):
     return r["terminal_voltage_v"]
 
 
-def current_at_voltage(circ, v_target, lo, hi, grid=97):
+def current_at_voltage(circ, v_target, lo, hi, grid=NORMAL_POINTS_GRID):
     """Load current [A] at which each candidate's characteristic passes ``v_target`` [V]
     on the normal branch (the largest such current below the fold)."""
     vt = np.broadcast_to(np.asarray(v_target, float), (circ.n,))

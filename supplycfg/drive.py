@@ -39,6 +39,7 @@ Governor droop and induction-motor slip: common practice (see the
 constants below).
 """
 
+import functools
 import math
 from dataclasses import dataclass, replace
 
@@ -398,6 +399,17 @@ def newton_speed_step(s, f, df, s0, lo, hi):
     return np.minimum(out, hi, out=out)
 
 
+@functools.lru_cache(maxsize=64)  # (every coupled solve asks it; a search has one drive and bounds)
+def newton_fallback_end(s0, lo, hi):
+    """Speed ratio where :data:`SPEED_NEWTON_STEPS` fallback steps of :func:`newton_speed_step` from
+    ``s0`` end when each goes up by a tenth of ``s0`` (a slope <= 0 below a negative residual), held
+    in ``[lo, hi]``: the ceiling when they reach it. The same float steps, taken once."""
+    up = s0
+    for _ in range(SPEED_NEWTON_STEPS):
+        up = min(max(up - (-0.1 * s0), lo), hi)
+    return up
+
+
 @dataclass
 class DriveRows:
     """A coupled drive and the machine's losses, as a circuit uses them.
@@ -513,20 +525,6 @@ class DriveRows:
                                                    out_c[rows], linear_out)
         return s, np.abs(f) <= 1e-12 * s0, df > 0
 
-    def fallback_end(self, lo, hi):
-        """Speed ratio where every Newton step goes up by a tenth of ``s0`` (the fallback of a slope
-        <= 0 below a negative residual): the steps end here, at the ceiling ``hi`` when they reach it.
-        The same float steps as the loop takes, once per drive and bounds (every solve asked it)."""
-        key = (lo, hi)
-        got = self.__dict__.setdefault("_fallback_ends", {})
-        if key not in got:
-            s0 = self.s0
-            up = s0
-            for _ in range(SPEED_NEWTON_STEPS):
-                up = min(max(up - (-0.1 * s0), lo), hi)
-            got[key] = up
-        return got[key]
-
     def _speed_ratio_sqrt(self, a, out_c, lo, hi, tol, flags):
         """:meth:`speed_ratio` for the common case: no output term linear in the speed, and
         rotational loss as ``s^1.5``. The same Newton steps and stop test, with the drive
@@ -562,7 +560,7 @@ class DriveRows:
         sq = None  # sqrt(s), once s is not s0 everywhere
         idx = None  # flat indices of the rows still open, once few remain (then worked on alone)
         moved = None  # rows whose speed moved at the last step (one that did not stays put from then on)
-        up = self.fallback_end(lo, hi)
+        up = newton_fallback_end(s0, lo, hi)
         bad = np.isnan(f)
         if bad.any():
             # rows of undefined power (NaN a or c) never settle: Newton's steps would take them where

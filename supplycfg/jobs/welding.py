@@ -366,13 +366,16 @@ def _solve_weld_control(space, base_idx, corner_idx, target_a):
     it = np.broadcast_to(np.asarray(target_a, float), (n,))
     vt = welding_line_voltage_v(job, it)
 
-    # the rows once; each step changes only their field control (as expand_candidates would)
-    sub, _ = expand_candidates(space, base_idx, np.zeros(n), corner_idx)
-    controls_at = control_of_rows(space, base_idx)
+    corner_idx = np.asarray(corner_idx, int)
 
-    def h(u):
-        return circuit_residual(sub, sub.params_with_control(*controls_at(u)), vt, it)
+    def residual(rows):
+        """The residual of ``rows`` as a function of their control: the rows are read once, each
+        step changes only their field control (as expand_candidates would)."""
+        sub, _ = expand_candidates(space, base_idx[rows], np.zeros(rows.size), corner_idx[rows])
+        controls_at = control_of_rows(space, base_idx[rows])
+        return lambda u: circuit_residual(sub, sub.params_with_control(*controls_at(u)), vt[rows], it[rows])
 
+    h = residual(np.arange(n))
     ha, hb = h(lo), h(hi)
     ok = np.signbit(ha) != np.signbit(hb)
     # unreachable: take the end that comes closer
@@ -381,10 +384,7 @@ def _solve_weld_control(space, base_idx, corner_idx, target_a):
     if k.size:
         # only the rows with a bracket are refined (each row's search is its own: a row with none
         # would take every step and hold the others' calls to its length)
-        subk = sub.subset(k)
-        at_k = control_of_rows(space, base_idx[k])
-        u[k] = refine_bracketed_roots(lambda x: circuit_residual(subk, subk.params_with_control(*at_k(x)), vt[k], it[k]),
-                                      lo[k], hi[k], ha[k], 50)
+        u[k] = refine_bracketed_roots(residual(k), lo[k], hi[k], ha[k], 50)
     return u, ok
 
 
@@ -569,11 +569,6 @@ def _worst(values, kind):
     return np.where(np.isnan(v).any(axis=1), np.nan, w)
 
 
-def _num(x):
-    x = float(x)
-    return x if math.isfinite(x) else None
-
-
 def reading_corners(space):
     """Corner indices of the readings: the nominal speed with the coldest and with the hottest windings."""
     speeds = sorted({c[0] for c in space.corners})
@@ -745,19 +740,15 @@ def dial_advice(space, targets, paths, u_all, reach, ev, valid, option_ok, bands
             [pu, np.where(have, band_lo, pu), np.where(have, band_hi, pu)]), voltages=True)
         c0, cl, ch = c3[:n_used], c3[n_used:2 * n_used], c3[2 * n_used:]
         h0, hl, hh = h3[:n_used], h3[n_used:2 * n_used], h3[2 * n_used:]
-        v_hot = v3[:n_used]
+        if reading_corners(space)[1] == nom:
+            vnl_nom = v3[:n_used]  # the nominal corner is the readings' hot one: its no-load voltages are solved there
+        else:
+            vnl_nom = no_load_voltage_v(expand_candidates(space, pb, pu, np.full(n_used, nom))[0])
     else:
-        c0 = h0 = v_hot = np.full(n_used, np.nan)
+        # no readings, and no row's no-load voltage at nominal speed: that is advice too
+        c0 = h0 = cl = hl = ch = hh = vnl_nom = np.full(n_used, np.nan)
     if have.any():
         counter[0] += 4 * used.size * space.nc
-    else:
-        cl = hl = ch = hh = np.full(used.size, np.nan)
-    if bands and reading_corners(space)[1] == nom:
-        vnl_nom = v_hot  # the nominal corner is the readings' hot one: its no-load voltages are solved there
-    elif not bands:
-        vnl_nom = np.full(used.size, np.nan)  # a row's no-load voltage at nominal speed is advice too
-    else:
-        vnl_nom = no_load_voltage_v(expand_candidates(space, pb, pu, np.full(used.size, nom))[0])
     pos = {int(p): j for j, p in enumerate(used)}
     rc = job.cable_resistance_ohm
     di = current_change_per_arc_volt_a_per_v(ev["slope_v_per_a"], rc)
