@@ -17,7 +17,8 @@ from dataclasses import replace
 
 import numpy as np
 
-from .circuit import DRIVE_POINT_KEYS, circuit_residual, drive_point_keys, no_load_voltages, normal_points
+from .circuit import (DRIVE_POINT_KEYS, NO_LOAD_SCAN_TOP_SHARE, circuit_residual, drive_point_keys, no_load_voltages,
+                      normal_points, zero_load_current)
 from .envelope import expand_candidates
 
 #: Relative step of terminal voltage for the slope test of a loaded self-excited point.
@@ -212,7 +213,7 @@ def no_load_speeds(space, base_idx, u):
         return np.full(n, np.nan)
     sub, _ = expand_candidates(space, base_idx, u)
     top = 1.5 * sub.machine.rated_voltage_v * sub.s / sub.s.min() + 50.0
-    r = normal_points(sub, np.zeros(sub.n), top, il_of=lambda t: np.zeros_like(t), alike=True)
+    r = normal_points(sub, np.zeros(sub.n), top, il_of=zero_load_current, alike=True, top_share=NO_LOAD_SCAN_TOP_SHARE)
     v = np.where(r["found"], r["terminal_voltage_v"], 0.0)
     speed = drive_point_keys(sub, sub.take(np.arange(sub.n)), v, np.zeros(sub.n))["speed_rpm"]
     speed = np.where(r["found"], speed, np.nan).reshape(n, space.nc)

@@ -47,3 +47,41 @@ def test_identical_rows_tell_signed_zeros_and_ranges_apart():
     assert inverse[0] == inverse[2]
     assert len({inverse[0], inverse[1], inverse[3]}) == 3
     assert_array_equal(first[inverse][[0, 2]], [0, 0])
+
+
+@pytest.mark.parametrize("name, job", [("welding-set", "welding"), ("charging-set", "battery-charging"),
+                                       ("lighting-set", "lighting")])
+@pytest.mark.parametrize("coupled", [False, True])
+@pytest.mark.parametrize("share", [0.05, 0.3, 0.7, 1.0])
+def test_scan_from_the_top_gives_the_same_points(name, job, coupled, share):
+    """``top_share`` scans the grid's top first and the rest only where no stable point lies there:
+    the same points bit for bit as the whole scan, for points high and low in the range, rows with none,
+    and rows whose range is doubled (a no-load search whose machine is still above the load at its top)."""
+    m = load_machine(PROFILES / "machines" / f"{name}.toml")
+    drive = load_profile(PROFILES / "loads" / f"{job}.toml").drive if coupled else None
+    settings = grid_settings(m, rheostats=6)
+    circ = circuit.build_circuit(m, settings, drive)
+    # a rising line whose offset differs by row (the callable reads the rows it is given)
+    offset = np.linspace(0.0, 1.6, circ.n) * m.rated_voltage_v
+    line = dict(v_of=lambda t, rows=None: (offset if rows is None else offset[rows])[:, None] + 0.04 * t)
+    tops = {"v_of": np.full(circ.n, circ.imax),
+            # a range too short for some rows: they are doubled, some still above it at the end
+            "il_of": np.linspace(0.02, 2.0, circ.n) * m.rated_voltage_v}
+    seen = {"found": False, "none": False, "beyond": False}
+    for kw in (line, dict(il_of=circuit.zero_load_current)):
+        hi = tops[next(iter(kw))]
+        lo = np.zeros(circ.n)
+        whole = circuit.normal_points(circ, lo, hi, **kw)
+        top = circuit.normal_points(circ, lo, hi, top_share=share, **kw)
+        for k in whole:
+            assert_array_equal(top[k], whole[k], err_msg=k)
+        # a coarse grid split at every cell: each point's cell is the one joining the two parts for one split
+        coarse = circuit.normal_points(circ, lo, hi, grid=9, **kw)
+        for split in range(1, 9):
+            top = circuit.normal_points(circ, lo, hi, grid=9, top_share=split / 8, **kw)
+            for k in coarse:
+                assert_array_equal(top[k], coarse[k], err_msg=f"{k}, split {split}")
+        seen["found"] |= bool(whole["found"].any())
+        seen["none"] |= bool((~whole["found"] & ~whole["beyond"]).any())
+        seen["beyond"] |= bool(whole["beyond"].any())
+    assert all(seen.values()), seen
