@@ -28,16 +28,28 @@ Equivalent-field-current method and generator connections: S. J. Chapman,
 *A Textbook of Electrical Technology* Vol II, ch. 26-28.
 """
 
+import bisect
 import warnings
 from dataclasses import dataclass, field, replace
 
 import numpy as np
 
-from .drive import (DriveRows, drive_loading, loss_breakdown, machine_loss_exponent, machine_rotational_loss_w,
-                    machine_stray_percent)
+from .drive import (
+    DriveRows,
+    drive_loading,
+    loss_breakdown,
+    machine_loss_exponent,
+    machine_rotational_loss_w,
+    machine_stray_percent,
+)
 from .errors import InputError
-from .magnetisation import (ArmatureReaction, OpenCircuitCurve, bounded, copper_resistance_factor,
-                            field_after_armature_reaction)
+from .magnetisation import (
+    ArmatureReaction,
+    OpenCircuitCurve,
+    bounded,
+    copper_resistance_factor,
+    field_after_armature_reaction,
+)
 from .raytrace import NO_BUILD_UP_NOTE, trace_on_rays
 
 CONNECTIONS = (
@@ -951,58 +963,104 @@ def _runs(vals):
     return d[idx]
 
 
-def slope_runs_rows(vals):
-    """:func:`_runs` of every row of a 2-D array at once (the same signs row by row)."""
-    d = np.sign(np.diff(vals, axis=1))
-    nzm = d != 0
-    ar = np.arange(d.shape[1])
-    idx = np.maximum.accumulate(np.where(nzm, ar, -1), axis=1)
-    first = np.argmax(nzm, axis=1)
-    idx = np.where(idx < 0, first[:, None], idx)
-    out = np.take_along_axis(d, idx, axis=1)
-    out[~nzm.any(axis=1)] = 1.0
-    return out
+class SlopeRuns:
+    """Slope signs of each row of a grid of values and the runs of equal sign, kept as the sign changes.
+
+    The same signs as :func:`_runs` row by row (flats take the sign before
+    them, leading flats the first sign; a row without a slope reads +1) and
+    the same runs as :class:`_RunTable`, without tables for every cell: the
+    rows change sign a few times in thousands of cells, and a walk reads a
+    few cells. Read as ``runs[r, c]`` (the sign, float) and
+    ``runs.lo[r, c]``, ``runs.hi[r, c]`` (first and last cell of the run
+    holding cell ``c`` of row ``r``), arrays broadcasting; ``runs.row(r)``
+    for one row. With ``rows`` (a mask) only those rows have runs; the
+    others read flat, one run of +1.
+    """
+
+    def __init__(self, vals, rows=None):
+        m, k = vals.shape[0], vals.shape[1] - 1
+        self.shape = (m, k)
+        self._k, self._first = k, np.ones(m)
+        self._starts, self._run_sign = np.zeros(0, int), np.zeros(0)
+        if rows is not None and not rows.any():
+            self.lo, self.hi = _RunEnd(self, 0), _RunEnd(self, 1)
+            return
+        full = np.arange(m) if rows is None else np.flatnonzero(rows)
+        merged = np.sign(np.diff(vals if rows is None else vals[rows], axis=1))
+        flat = (merged == 0).any(axis=1)
+        if flat.any():
+            # flats take the sign before them (leading ones the first sign; a row of flats +1), as _runs
+            d = merged[flat]
+            nz = d != 0
+            last = np.maximum.accumulate(np.where(nz, np.arange(k), -1), axis=1)
+            d = np.take_along_axis(d, np.where(last < 0, np.argmax(nz, axis=1)[:, None], last), axis=1)
+            d[~nz.any(axis=1)] = 1.0
+            merged[flat] = d
+        # a run starts where the sign differs from the cell before (a NaN differs even from itself)
+        er, ec = np.nonzero(merged[:, 1:] != merged[:, :-1])
+        self._first[full] = merged[:, 0]
+        self._starts, self._run_sign = full[er] * k + ec + 1, merged[er, ec + 1]
+        self.lo, self.hi = _RunEnd(self, 0), _RunEnd(self, 1)
+
+    def _run_index(self, r, c):
+        """Per cell: the index of the last run start at or before it (any row), whether that start is in
+        the cell's row (else the cell lies in its row's first run), and the row's first flat index."""
+        base = r * self._k
+        i = np.searchsorted(self._starts, base + c, side="right") - 1
+        mine = (i >= 0) & (self._starts[np.maximum(i, 0)] >= base) if self._starts.size else i >= 0
+        return i, mine, base
+
+    def __getitem__(self, rc):
+        r, c = (np.asarray(x) for x in rc)
+        if not self._starts.size:
+            return self._first[r] + 0 * c
+        i, mine, _ = self._run_index(r, c)
+        return np.where(mine, self._run_sign[np.maximum(i, 0)], self._first[r])
+
+    def bounds(self, r, c):
+        """First and last cell of the run holding cell ``c`` of row ``r``."""
+        r, c = np.asarray(r), np.asarray(c)
+        k, st = self._k, self._starts
+        if not st.size:
+            z = np.zeros(np.broadcast_shapes(r.shape, c.shape), int)
+            return z, z + (k - 1)
+        i, mine, base = self._run_index(r, c)
+        lo = np.where(mine, st[np.maximum(i, 0)] - base, 0)
+        # the next start after the cell, if it is in the same row
+        nxt = st[np.minimum(i + 1, st.size - 1)]
+        hi = np.where((i + 1 < st.size) & (nxt < base + k), nxt - base - 1, k - 1)
+        return lo, hi
+
+    def row(self, r):
+        """Row ``r`` as :func:`_walk` reads it: ``[c]`` the sign, ``(c)`` the run, ``size``."""
+        return _OneRow(self, int(r))
 
 
-def run_bounds_rows(sign):
-    """First and last cell of the run of equal sign holding each cell, for every row of ``sign``."""
-    m, k = sign.shape
-    ar = np.broadcast_to(np.arange(k), (m, k))
-    start = np.ones((m, k), bool)
-    start[:, 1:] = sign[:, 1:] != sign[:, :-1]
-    lo = np.maximum.accumulate(np.where(start, ar, 0), axis=1)
-    end = np.ones((m, k), bool)
-    end[:, :-1] = start[:, 1:]
-    hi = np.minimum.accumulate(np.where(end, ar, k - 1)[:, ::-1], axis=1)[:, ::-1]
-    return lo, hi
+class _RunEnd:
+    """``SlopeRuns.lo`` / ``.hi``: one end of the runs, read as ``[r, c]``."""
+
+    def __init__(self, runs, end):
+        self.runs, self.end = runs, end
+
+    def __getitem__(self, rc):
+        return self.runs.bounds(*rc)[self.end]
 
 
-def _runs_where(ng, lg, rows):
-    """Slope signs and run tables of ``ng``, ``lg`` computed on ``rows`` only; other rows as for flat values."""
-    out = []
-    for vals in (ng, lg):
-        sign = np.ones((vals.shape[0], vals.shape[1] - 1))
-        if rows.any():
-            sign[rows] = slope_runs_rows(vals[rows])
-        out.append(sign)
-    bounds = []
-    for sign in out:
-        m, k = sign.shape
-        lo, hi = np.zeros((m, k), int), np.full((m, k), k - 1)
-        if rows.any():
-            lo[rows], hi[rows] = run_bounds_rows(sign[rows])
-        bounds.append((lo, hi))
-    return out[0], out[1], bounds[0], bounds[1]
+class _OneRow:
+    """One row of :class:`SlopeRuns` as plain lists (a walk of one curve reads it a cell at a time)."""
 
+    def __init__(self, runs, r):
+        k = self.size = runs.shape[1]
+        a, b = np.searchsorted(runs._starts, [r * k, (r + 1) * k])
+        self._starts = (runs._starts[a:b] - r * k).tolist()
+        self._signs = [float(runs._first[r])] + runs._run_sign[a:b].tolist()
 
-class _RowRuns:
-    """A run table read from :func:`run_bounds_rows` for one row (the interface of :class:`_RunTable`)."""
-
-    def __init__(self, lo, hi):
-        self.lo, self.hi = lo, hi
+    def __getitem__(self, c):
+        return self._signs[bisect.bisect_right(self._starts, c)]
 
     def __call__(self, cell):
-        return int(self.lo[cell]), int(self.hi[cell])
+        i = bisect.bisect_right(self._starts, cell)
+        return (self._starts[i - 1] if i > 0 else 0), (self._starts[i] - 1 if i < len(self._starts) else self.size - 1)
 
 
 class _RunTable:
@@ -1324,7 +1382,7 @@ def _walk_lockstep(circ, cand, r, xg, ig, ng, lg, runs, sign, lam, n_cell, l_cel
 
     ``cand`` the candidates, ``r`` their rows of ``ng``/``lg`` (``N`` and
     ``L`` on the side ``sign``) and of the run tables ``runs = (sn, sl, (nlo,
-    nhi), (llo, lhi))`` (:func:`slope_runs_rows`, :func:`run_bounds_rows`);
+    nhi), (llo, lhi))`` (:class:`SlopeRuns` and its ends);
     ``lam``, ``n_cell``, ``l_cell``, ``dl`` where each walk starts; ``active``
     the curves that walk; ``stop = (ia, u, lam)`` where a curve must end (NaN
     for none). Returns the steps as a list of ``(active, n_lo, n_hi, l_lo,
@@ -1633,10 +1691,10 @@ def characteristics_of(circ, points=400):
         pick_cand, pick_lam, pick_xa, pick_xb, pick_ia, pick_ib, pick_sign = [], [], [], [], [], [], []
         # slope signs and their runs for every row at once (the walks read them cell by cell)
         tables = {}
-        sn_, sl_ = slope_runs_rows(ngp), slope_runs_rows(lgp)
-        tables[1.0] = (sn_, sl_, run_bounds_rows(sn_), run_bounds_rows(sl_))
-        # the negative side is walked only where the field reverses: the other rows read flat (one run)
-        tables[-1.0] = _runs_where(ngm, lgm, rev)
+        for sgn_, (ng_, lg_, where_) in ((1.0, (ngp, lgp, None)), (-1.0, (ngm, lgm, rev))):
+            # the negative side is walked only where the field reverses: the other rows read flat (one run)
+            tn, tl = SlopeRuns(ng_, where_), SlopeRuns(lg_, where_)
+            tables[sgn_] = (tn, tl, (tn.lo, tn.hi), (tl.lo, tl.hi))
         # the curves in lock-step when there are enough of them
         lock = np.full(slf.size, slf.size >= LOCKSTEP_MIN_CURVES)
         picked, lock_notes, lock_zero = _trace_lockstep(circ, slf, np.flatnonzero(lock), xg, ig,
@@ -1652,8 +1710,8 @@ def characteristics_of(circ, points=400):
                 continue
             fns = {}
             for sgn_, (ng_, lg_) in ((1.0, (ngp[r], lgp[r])), (-1.0, (ngm[r], lgm[r]))):
-                sn_, sl_, (nlo, nhi), (llo, lhi) = tables[sgn_]
-                fns[sgn_] = (ng_, lg_, (sn_[r], sl_[r], _RowRuns(nlo[r], nhi[r]), _RowRuns(llo[r], lhi[r])))
+                tn, tl = tables[sgn_][0].row(r), tables[sgn_][1].row(r)
+                fns[sgn_] = (ng_, lg_, (tn, tl, tn, tl))
             kept = []
             segs, note = _trace_self_excited(circ, i, xg, ig, fns, (ia_rev[r], far_rev[r]), kept=kept)
             if not segs:

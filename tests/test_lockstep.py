@@ -60,3 +60,33 @@ def test_run_helpers_agree_with_numpy():
     assert_array_equal(circuit.run_position(vals, rows, lo, hi, tgt, right=True)[0], want_r)
     assert_allclose(circuit.run_interp(grid, vals, rows, lo, hi, tgt), want_i, rtol=0, atol=1e-12)
     assert_array_equal(np.stack(circuit.run_cell(grid, vals, rows, lo, hi, tgt), axis=1), want_c)
+
+
+def test_slope_runs_match_one_row_at_a_time():
+    """``SlopeRuns`` keeps only the sign changes: every cell's sign and run read from it are those of
+    ``_runs`` and ``_RunTable`` on the row alone, with flats (leading, inner, whole rows), NaN slopes
+    and rows left out by a mask (one flat run of +1)."""
+    rng = np.random.default_rng(12)
+    for trial in range(400):
+        m, k = int(rng.integers(1, 6)), int(rng.integers(2, 40))
+        v = np.cumsum(rng.choice([-1.0, 0.0, 1.0], size=(m, k + 1), p=[0.3, 0.4, 0.3]), axis=1)
+        if trial % 3 == 0:
+            v[rng.random(v.shape) < 0.1] = np.nan
+        v[0] = 3.0 if trial % 5 == 0 else v[0]
+        mask = None if trial % 2 else rng.random(m) < 0.6
+        runs = circuit.SlopeRuns(v, mask)
+        rows, cells = np.meshgrid(np.arange(m), np.arange(k), indexing="ij")
+        sign, lo, hi = runs[rows, cells], runs.lo[rows, cells], runs.hi[rows, cells]
+        for r in range(m):
+            if mask is not None and not mask[r]:
+                assert_array_equal(sign[r], 1.0)
+                assert_array_equal(lo[r], 0)
+                assert_array_equal(hi[r], k - 1)
+                continue
+            want = circuit._runs(v[r])
+            table = circuit._RunTable(want)
+            one = runs.row(r)
+            assert_array_equal(sign[r], want)
+            assert_array_equal([one[c] for c in range(k)], want)
+            for c in range(k):
+                assert (int(lo[r, c]), int(hi[r, c])) == table(c) == one(c), (trial, r, c)
