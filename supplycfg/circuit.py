@@ -801,16 +801,16 @@ def solve_operating_points(circ, loads, idx=None, grid=LOAD_LINE_GRID, window=No
         top_in = np.full(m, -np.inf)
         np.maximum.at(top_in, rows, np.where(falling & ~rev & inside, v, -np.inf))
         beyond = np.isfinite(top_v) & (top_v > top_in)
-        for j in range(rows.size):
-            if not inside[j]:
-                continue
-            d = {kk: float(st[kk][j]) for kk in POINT_KEYS}
-            d["extrapolated"] = bool(ext[j])
-            d["stable"] = bool(falling[j])
-            d["reversed"] = bool(rev[j])
-            d["back_feeding"] = bool(source[rows[j]] and d["load_current_a"] < 0)
-            d["residual_v"] = float(st["h"][j])
-            out[rows[j]].append(d)
+        # each point a dict of Python numbers (columns converted once, the same values as float() of each)
+        keep = np.flatnonzero(inside)
+        cols = [st[kk][keep].tolist() for kk in POINT_KEYS]
+        flags = zip(ext[keep].tolist(), falling[keep].tolist(), rev[keep].tolist(), source[rows[keep]].tolist(),
+                    st["h"][keep].tolist(), rows[keep].tolist())
+        for vals, (e_, f_, r_, s_, h_, row) in zip(zip(*cols), flags):
+            d = dict(zip(POINT_KEYS, vals))
+            d.update(extrapolated=e_, stable=f_, reversed=r_, back_feeding=bool(s_ and d["load_current_a"] < 0),
+                     residual_v=h_)
+            out[row].append(d)
     res = []
     for r, lst in enumerate(out):
         lst.sort(key=lambda d: -d["terminal_voltage_v"])
