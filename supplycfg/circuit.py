@@ -1632,20 +1632,37 @@ def external_characteristic(machine, setting, points=400, drive=None):
     return characteristics(machine, [setting], points, drive)[0]
 
 
+#: Points of the dense armature-current grid on which an explicit curve's end (zero volts) is looked
+#: for, from zero to the current span; and the shares of it scanned in turn from its start.
+EXPLICIT_SCAN_POINTS = 2001
+EXPLICIT_SCAN_PARTS = (1 / 8, 1 / 2)
+
+
 def characteristics_of(circ, points=400):
     n = circ.n
     # --- explicit connections: parameter Ia from 0 ----------------------
     exp = np.flatnonzero(circ.kind != 1)
     if exp.size:
-        ia_dense = np.linspace(0, circ.imax, 2001)[None, :]
-        pe = candidate_params(circ, exp[:, None])
-        v_dense = terminal_voltage_at_armature_current(circ, pe, ia_dense)
-        below = v_dense <= 0
-        first = np.where(below.any(axis=1), below.argmax(axis=1), ia_dense.shape[1] - 1)
+        ia_dense = np.linspace(0, circ.imax, EXPLICIT_SCAN_POINTS)[None, :]
+        # the first dense point at or below zero volts, the grid scanned from its start a part at a time:
+        # a curve that ends early needs none of the rest (each point the one the whole grid gives)
+        first = np.full(exp.size, -1)
+        todo = np.arange(exp.size)
+        cuts = [0] + [int(round(f * (EXPLICIT_SCAN_POINTS - 1))) for f in EXPLICIT_SCAN_PARTS] + [EXPLICIT_SCAN_POINTS]
+        for a, b in zip(cuts[:-1], cuts[1:]):
+            if not todo.size:
+                break
+            below = terminal_voltage_at_armature_current(circ, candidate_params(circ, exp[todo][:, None]),
+                                                         ia_dense[:, a:b]) <= 0
+            hit = below.any(axis=1)
+            first[todo[hit]] = a + below[hit].argmax(axis=1)
+            todo = todo[~hit]
+        reaches = first >= 0
+        first = np.where(reaches, first, ia_dense.shape[1] - 1)
         ia_end = ia_dense[0, first]
         # exact end: bisection between the bracketing dense points
         lo = ia_dense[0, np.maximum(first - 1, 0)]
-        has_zero = below.any(axis=1) & (first > 0)
+        has_zero = reaches & (first > 0)
         ia_zero = np.zeros(exp.size)
         z = np.flatnonzero(has_zero)
         if z.size:
@@ -1654,7 +1671,7 @@ def characteristics_of(circ, points=400):
             pz = candidate_params(circ, exp[z])
             f = lambda ia: terminal_voltage_at_armature_current(circ, pz, ia)  # noqa: E731
             ia_zero[z] = refine_bracketed_roots(f, lo[z], ia_end[z], f(lo[z]))
-        ia_end = np.where(has_zero, ia_zero, np.where(below.any(axis=1), 0.0, circ.imax))
+        ia_end = np.where(has_zero, ia_zero, np.where(reaches, 0.0, circ.imax))
         frac = np.linspace(0, 1, points)[None, :]
         ia = ia_end[:, None] * frac
         curves_exp = (exp, ia, has_zero)
