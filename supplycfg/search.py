@@ -369,6 +369,7 @@ def search(machine, profile, with_drive_check=True, advice=True):
     if table is not None:
         figs.update({k: v for k, v in table.summary().items() if k not in figs})
     options = []
+    candidate_of = {}  # id of each option -> its candidate row (for its drive points once merged)
     for i in range(nb):
         margins, failed = {}, []
         for name, (val, limit, kind, unit) in lim.items():
@@ -405,9 +406,13 @@ def search(machine, profile, with_drive_check=True, advice=True):
         cs = ex.pop("current_settings", None)
         options.append(Option(0, not failed, st, f, margins, failed, cautions, float(min(fracs)) if fracs else 0.0,
                               cs, {"field-current": "field-current", "none": "none"}.get(control, "rheostat"),
-                              extrap, readings, band, ex, obj if math.isfinite(obj) else None,
-                              drive_points=table.rows(i) if table is not None else []))
+                              extrap, readings, band, ex, obj if math.isfinite(obj) else None))
+        candidate_of[id(options[-1])] = i
     options = rank_options(merge_identical(options))
+    if table is not None:
+        # the drive's points of the options kept (merging drops about two in three of a welding search's)
+        for o in options:
+            o.drive_points = table.rows(candidate_of[id(o)])
     need = None
     if not any(o.feasible for o in options):
         notes.append("no setting meets every limit; the nearest misses are listed with the limit each breaks")
