@@ -205,6 +205,12 @@ def bisection_grid_point(a, b, k, depth):
     b = np.asarray(b, float).copy()
     k = np.asarray(k, np.int64)
     top = 2 ** depth
+    if k.size <= GRID_POINTS_ONE_BY_ONE:
+        # a few points (a band edge's round): the same halvings in Python floats, one point at a time
+        a_, b_, k_ = (np.broadcast_to(x, np.broadcast_shapes(a.shape, b.shape, k.shape)) for x in (a, b, k))
+        return np.array([_grid_point(float(x), float(y), int(z), depth, top)
+                         for x, y, z in zip(a_.ravel().tolist(), b_.ravel().tolist(), k_.ravel().tolist())],
+                        float).reshape(a_.shape)
     out = np.where(k == 0, a, np.where(k == top, b, np.nan))
     lo_k = np.zeros(k.shape, np.int64)
     hi_k = np.full(k.shape, top, np.int64)
@@ -216,6 +222,30 @@ def bisection_grid_point(a, b, k, depth):
         b, hi_k = np.where(left, mid, b), np.where(left, mid_k, hi_k)
         a, lo_k = np.where(left, a, mid), np.where(left, lo_k, mid_k)
     return out
+
+
+#: Up to this many points :func:`bisection_grid_point` works one at a time in Python floats (the
+#: same operations; a band edge asks a few points per round, where numpy's per-call cost dominates).
+GRID_POINTS_ONE_BY_ONE = 16
+
+
+def _grid_point(a, b, k, depth, top):
+    """:func:`bisection_grid_point` of one point (Python floats: the same IEEE operations)."""
+    if k == 0:
+        return a
+    if k == top:
+        return b
+    lo_k, hi_k = 0, top
+    for _ in range(depth):
+        mid_k = (lo_k + hi_k) // 2
+        mid = 0.5 * (a + b)
+        if k == mid_k:
+            return mid
+        if k < mid_k:
+            b, hi_k = mid, mid_k
+        else:
+            a, lo_k = mid, mid_k
+    return float("nan")
 
 
 #: Rounds of the guided search of a band's edge before each round also halves the bracket, so a
