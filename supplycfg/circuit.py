@@ -950,7 +950,7 @@ class Characteristic:
         return out
 
 
-def _runs(vals):
+def slope_signs(vals):
     """Cell-wise sign of the slope with flats merged into their neighbours."""
     d = np.sign(np.diff(vals))
     if not np.any(d):
@@ -966,9 +966,9 @@ def _runs(vals):
 class SlopeRuns:
     """Slope signs of each row of a grid of values and the runs of equal sign, kept as the sign changes.
 
-    The same signs as :func:`_runs` row by row (flats take the sign before
+    The same signs as :func:`slope_signs` row by row (flats take the sign before
     them, leading flats the first sign; a row without a slope reads +1) and
-    the same runs as :class:`_RunTable`, without tables for every cell: the
+    the same runs as :class:`RunTable`, without tables for every cell: the
     rows change sign a few times in thousands of cells, and a walk reads a
     few cells. Read as ``runs[r, c]`` (the sign, float) and
     ``runs.lo[r, c]``, ``runs.hi[r, c]`` (first and last cell of the run
@@ -989,7 +989,7 @@ class SlopeRuns:
         merged = np.sign(np.diff(vals if rows is None else vals[rows], axis=1))
         flat = (merged == 0).any(axis=1)
         if flat.any():
-            # flats take the sign before them (leading ones the first sign; a row of flats +1), as _runs
+            # flats take the sign before them (leading ones the first sign; a row of flats +1), as slope_signs
             d = merged[flat]
             nz = d != 0
             last = np.maximum.accumulate(np.where(nz, np.arange(k), -1), axis=1)
@@ -1063,7 +1063,7 @@ class _OneRow:
         return (self._starts[i - 1] if i > 0 else 0), (self._starts[i] - 1 if i < len(self._starts) else self.size - 1)
 
 
-class _RunTable:
+class RunTable:
     """Runs of equal slope sign along a grid: run id of each cell, first and last cell of each run."""
 
     def __init__(self, sign):
@@ -1185,8 +1185,8 @@ def _walk(circ, i, xg, ig, ng, lg, sign, lam, n_cell, l_cell, dl, stop_at=None, 
     segment's samples ``(lam, x, Ia, V, IL)`` as the walk computes them.
     """
     if runs is None:
-        sn, sl = _runs(ng), _runs(lg)
-        run_n, run_l = _RunTable(sn), _RunTable(sl)
+        sn, sl = slope_signs(ng), slope_signs(lg)
+        run_n, run_l = RunTable(sn), RunTable(sl)
     else:
         sn, sl, run_n, run_l = runs
     n_lo, n_hi = run_n(n_cell)
@@ -1294,7 +1294,7 @@ def _trace_self_excited(circ, i, xg, ig, fns, reversal=(np.nan, np.nan), samples
     # goes on into negative field, u = x_w + F_ar/N_sh falling, Ia whichever way that needs.
     ngm, lgm = fns[-1][:2]
     lam = float(_l_fun(circ, p1, np.array([ia_r]), -1.0)[0])
-    sn, sl = (_runs(ngm), _runs(lgm)) if runs_m is None else runs_m[:2]
+    sn, sl = (slope_signs(ngm), slope_signs(lgm)) if runs_m is None else runs_m[:2]
     if p1["rf"][0] * far_r > 1e-12 * max(1.0, abs(lam)):
         dl = 1
         l_cell = _start_cell(ig, ia_r, dl)

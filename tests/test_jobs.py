@@ -5,7 +5,7 @@ from pathlib import Path
 
 import numpy as np
 import pytest
-from numpy.testing import assert_allclose
+from numpy.testing import assert_allclose, assert_array_equal
 
 from supplycfg.jobs import battery, lighting, welding
 from supplycfg import profile
@@ -429,3 +429,37 @@ def test_read_toml_matches_profile_dict():
     assert set(raw) == set(out)
     for table in raw:
         assert set(raw[table]) == set(out[table])
+
+
+def test_lazy_dial_rows_hold_and_break_as_the_whole_evaluation():
+    """The band search's lazy evaluation of welding dial rows (later limits solved only for rows inside
+    the earlier ones): every row holds or breaks as in the whole evaluation, and a row solved to the end
+    has the same figures bit for bit (two routes to one answer)."""
+    from supplycfg.envelope import build_space, control_range, smallest_margin_fraction
+    from supplycfg.machine import load_machine
+    root = Path(__file__).resolve().parents[1] / "profiles"
+    space = build_space(load_machine(root / "machines" / "welding-set.toml"),
+                        profile.load_profile(root / "loads" / "welding.toml"))
+    rng = np.random.default_rng(5)
+    nb = len(space.bases)
+    base = np.repeat(np.arange(nb), 4)
+    target = np.tile([60.0, 100.0, 140.0, 180.0], nb)
+    nom = welding.dial_corners(space)[0]
+    # each row's exact control for its current, moved by up to a fifth of its range either way:
+    # some rows stay inside every limit, others break one or another
+    u0 = welding.solve_weld_control(space, base, np.full(base.size, nom), target)[0]
+    lo = np.array([control_range(space.machine, space.bases[b][3])[0] for b in base])
+    hi = np.array([control_range(space.machine, space.bases[b][3])[1] for b in base])
+    u = np.clip(np.where(np.isfinite(u0), u0, lo) + (hi - lo) * rng.uniform(-0.2, 0.2, base.size), lo, hi)
+    whole = welding.evaluate_rows(space, base, u, target, near=True)
+    lazy = welding.evaluate_rows(space, base, u, target, near=True, lazy=True)
+
+    def holds(e):
+        return np.where(e["converged"], smallest_margin_fraction(welding.row_limits(space, e)), np.nan) >= 0
+
+    assert_array_equal(holds(lazy), holds(whole))
+    assert holds(whole).any() and (~holds(whole)).any()
+    solved = ~np.isnan(lazy["short_circuit_current_a"]) | holds(whole)
+    assert solved.any() and (~solved).any()
+    for k in whole:
+        assert_array_equal(lazy[k][solved], whole[k][solved], err_msg=k)

@@ -64,7 +64,7 @@ def test_run_helpers_agree_with_numpy():
 
 def test_slope_runs_match_one_row_at_a_time():
     """``SlopeRuns`` keeps only the sign changes: every cell's sign and run read from it are those of
-    ``_runs`` and ``_RunTable`` on the row alone, with flats (leading, inner, whole rows), NaN slopes
+    ``slope_signs`` and ``RunTable`` on the row alone, with flats (leading, inner, whole rows), NaN slopes
     and rows left out by a mask (one flat run of +1)."""
     rng = np.random.default_rng(12)
     for trial in range(400):
@@ -83,8 +83,8 @@ def test_slope_runs_match_one_row_at_a_time():
                 assert_array_equal(lo[r], 0)
                 assert_array_equal(hi[r], k - 1)
                 continue
-            want = circuit._runs(v[r])
-            table = circuit._RunTable(want)
+            want = circuit.slope_signs(v[r])
+            table = circuit.RunTable(want)
             one = runs.row(r)
             assert_array_equal(sign[r], want)
             assert_array_equal([one[c] for c in range(k)], want)

@@ -356,8 +356,13 @@ def current_change_per_arc_volt_a_per_v(slope_v_per_a, cable_resistance_ohm):
         return np.where(s < 0, 1.0 / s, np.nan)
 
 
-def _solve_weld_control(space, base_idx, corner_idx, target_a):
-    """Control value putting the operating point at ``target_a`` on the welding line."""
+def solve_weld_control(space, base_idx, corner_idx, target_a):
+    """Control value putting the operating point at ``target_a`` [A] on the welding line.
+
+    Returns ``(u, reached)``: the control of each row (its field rheostat
+    [ohm] or field current [A]; where its range does not reach the target,
+    the end that comes closer) and whether the range reaches it.
+    """
     job = space.profile.welding
     base_idx = np.asarray(base_idx, int)
     n = base_idx.size
@@ -440,7 +445,7 @@ def no_load_voltage_v(sub):
 BAND_CURRENT_WINDOW = 0.5
 
 
-def evaluate_rows(space, base_idx, u, target_a, near=False):
+def evaluate_rows(space, base_idx, u, target_a, near=False, lazy=False):
     """A dial row of each candidate: base ``base_idx`` with control ``u`` aimed at ``target_a``.
 
     Returns
@@ -453,7 +458,13 @@ def evaluate_rows(space, base_idx, u, target_a, near=False):
         stuck-electrode current at the strongest corner
         (``short_circuit_current_a``), ``converged``. With ``near`` the
         current is looked for only within :data:`BAND_CURRENT_WINDOW` of the
-        target, on coarser grids (a band search near a known point).
+        target, on coarser grids (a band search near a known point). With
+        ``lazy`` the no-load voltages are solved only for the rows inside the
+        limits of the current and the slope, and the stuck-electrode current
+        only for those also inside the no-load limits (NaN for the others, which
+        break a limit whatever the rest: a band search asks only whether a row
+        holds). Each row's figures are its own, so a row solved is solved as
+        without ``lazy``.
     """
     job = space.profile.welding
     base_idx = np.asarray(base_idx, int)
@@ -472,40 +483,57 @@ def evaluate_rows(space, base_idx, u, target_a, near=False):
         dev = np.abs(cur / target - 1.0)
     dev = np.where(np.isnan(dev), np.inf, dev)
     slope = _char_slope(subn, rn["terminal_voltage_v"], cur)
-    both = np.concatenate([base_idx, base_idx])
-    sub2, _ = expand_candidates(space, both, np.concatenate([u, u]),
-                                np.concatenate([np.full(n, weak), np.full(n, strong)]))
-    vnl = no_load_voltage_v(sub2)
-    subs, _ = expand_candidates(space, base_idx, u, np.full(n, strong))
-    rs = normal_points(subs, np.zeros(n), np.full(n, subs.imax), v_of=lambda t: job.cable_resistance_ohm * t,
-                       alike=True, **({"grid": 33} if near else {}))
-    isc = np.where(rs["found"], rs["load_current_a"], np.nan)
-    return {"current_a": cur, "terminal_voltage_v": rn["terminal_voltage_v"], "deviation": dev,
-            "slope_v_per_a": slope, "no_load_min_v": vnl[:n], "no_load_max_v": vnl[n:],
-            "short_circuit_current_a": isc, "armature_current_a": rn["armature_current_a"],
-            "x": rn["x"], "generated_emf_v": rn["generated_emf_v"], "converged": rn["converged"] & rs["converged"]}
+    ev = {"current_a": cur, "terminal_voltage_v": rn["terminal_voltage_v"], "deviation": dev,
+          "slope_v_per_a": slope}
+    k = np.arange(n)
+    if lazy:
+        k = np.flatnonzero(rn["converged"] & (smallest_margin_fraction(row_limits(space, ev)) >= 0))
+    ev["no_load_min_v"], ev["no_load_max_v"] = np.full(n, np.nan), np.full(n, np.nan)
+    if k.size:
+        sub2, _ = expand_candidates(space, np.concatenate([base_idx[k], base_idx[k]]), np.concatenate([u[k], u[k]]),
+                                    np.concatenate([np.full(k.size, weak), np.full(k.size, strong)]))
+        vnl = no_load_voltage_v(sub2)
+        ev["no_load_min_v"][k], ev["no_load_max_v"][k] = vnl[:k.size], vnl[k.size:]
+    if lazy and k.size:
+        k = k[smallest_margin_fraction(row_limits(space, {key: ev[key][k] for key in
+                                                           ("no_load_min_v", "no_load_max_v")})) >= 0]
+    ev["short_circuit_current_a"] = np.full(n, np.nan)
+    converged = rn["converged"].copy()
+    if k.size:
+        subs, _ = expand_candidates(space, base_idx[k], u[k], np.full(k.size, strong))
+        rs = normal_points(subs, np.zeros(k.size), np.full(k.size, subs.imax),
+                           v_of=lambda t: job.cable_resistance_ohm * t, alike=True, **({"grid": 33} if near else {}))
+        ev["short_circuit_current_a"][k] = np.where(rs["found"], rs["load_current_a"], np.nan)
+        converged[k] &= rs["converged"]
+    ev.update(armature_current_a=rn["armature_current_a"], x=rn["x"], generated_emf_v=rn["generated_emf_v"],
+              converged=converged)
+    return ev
 
 
 def row_limits(space, ev):
-    """Limits of dial rows from :func:`evaluate_rows`: ``name -> (values, limit, kind, unit)``."""
+    """Limits of dial rows from :func:`evaluate_rows`: ``name -> (values, limit, kind, unit)``; those
+    of the figures ``ev`` holds (a lazy evaluation checks a few first)."""
     m, job = space.machine, space.profile.welding
     env = environment(job.environment)
     proc = welding_process(job.process)
-    lim = {
-        "dial_current": (ev["deviation"], WELD_CURRENT_TOLERANCE, "max", "fraction"),
-        "no_load_peak_voltage": (np.asarray(no_load_peak_voltage(ev["no_load_max_v"]), float),
-                                 no_load_voltage_limit(env.dc_limit).voltage_v, "max", "V"),
-    }
-    if job.max_no_load_voltage_v is not None:
-        lim["no_load_mean_voltage"] = (ev["no_load_max_v"], job.max_no_load_voltage_v, "max", "V")
-    if job.min_no_load_voltage_v is not None:
+    lim = {}
+    if "deviation" in ev:
+        lim["dial_current"] = (ev["deviation"], WELD_CURRENT_TOLERANCE, "max", "fraction")
+    if "no_load_max_v" in ev:
+        lim["no_load_peak_voltage"] = (np.asarray(no_load_peak_voltage(ev["no_load_max_v"]), float),
+                                       no_load_voltage_limit(env.dc_limit).voltage_v, "max", "V")
+        if job.max_no_load_voltage_v is not None:
+            lim["no_load_mean_voltage"] = (ev["no_load_max_v"], job.max_no_load_voltage_v, "max", "V")
+    if "no_load_min_v" in ev and job.min_no_load_voltage_v is not None:
         lim["no_load_strike_voltage"] = (ev["no_load_min_v"], job.min_no_load_voltage_v, "min", "V")
-    if proc.characteristic == "drooping":
-        lim["characteristic_slope"] = (ev["slope_v_per_a"], DROOPING_MAX_SLOPE_V_PER_A, "max", "V/A")
-    else:
-        lim["characteristic_slope"] = (ev["slope_v_per_a"], FLAT_MIN_SLOPE_V_PER_A, "min", "V/A")
-    isc = ev["short_circuit_current_a"]
-    lim["stuck_electrode_current"] = (np.where(np.isnan(isc), np.inf, isc), m.peak_current_a, "max", "A")
+    if "slope_v_per_a" in ev:
+        if proc.characteristic == "drooping":
+            lim["characteristic_slope"] = (ev["slope_v_per_a"], DROOPING_MAX_SLOPE_V_PER_A, "max", "V/A")
+        else:
+            lim["characteristic_slope"] = (ev["slope_v_per_a"], FLAT_MIN_SLOPE_V_PER_A, "min", "V/A")
+    if "short_circuit_current_a" in ev:
+        isc = ev["short_circuit_current_a"]
+        lim["stuck_electrode_current"] = (np.where(np.isnan(isc), np.inf, isc), m.peak_current_a, "max", "A")
     return lim
 
 
@@ -623,7 +651,7 @@ def solve(space, advice=True):
     nom, weak, strong = dial_corners(space)
     bi = np.repeat(np.arange(nb), nr)
     tg = np.tile(targets, nb)
-    u_all, reach = _solve_weld_control(space, bi, np.full(bi.size, nom), tg)
+    u_all, reach = solve_weld_control(space, bi, np.full(bi.size, nom), tg)
     ev = evaluate_rows(space, bi, u_all, tg)
     # a target the control cannot bracket is not reached, even where its end comes close
     ev["deviation"] = np.where(reach, ev["deviation"], np.inf)
@@ -727,7 +755,7 @@ def dial_advice(space, targets, paths, u_all, reach, ev, valid, option_ok, bands
 
     def margin_of(k, val):
         counter[0] += len(k) * 5
-        e = evaluate_rows(space, pb[k], val, targets[pr[k]], near=True)
+        e = evaluate_rows(space, pb[k], val, targets[pr[k]], near=True, lazy=True)
         return np.where(e["converged"], smallest_margin_fraction(row_limits(space, e)), np.nan)
 
     band_lo, band_hi = control_band(margin_of, np.where(ok, pu, np.nan), lo, hi, scan=4, steps=16)
