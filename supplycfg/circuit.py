@@ -2292,7 +2292,7 @@ NORMAL_POINTS_GRID = 97
 
 
 def normal_points(circ, lo, hi, v_of=None, il_of=None, grid=NORMAL_POINTS_GRID, steps=44, vi_of=None, alike=False,
-                  top_share=None):
+                  top_share=None, fixed_current=False):
     """The point each candidate sits at along a load curve: the highest stable intersection.
 
     The load curve is parameterised by ``t`` in ``[lo, hi]`` (arrays, one per
@@ -2327,7 +2327,11 @@ def normal_points(circ, lo, hi, v_of=None, il_of=None, grid=NORMAL_POINTS_GRID, 
     bit for bit, from fewer evaluations where the points sit high in the
     range (a battery's, parameterised by its internal voltage). The
     callables then also take ``rows``, the candidates of ``t``'s rows
-    (``None`` for all).
+    (``None`` for all). With ``fixed_current`` as well (``il_of`` gives each
+    row one load current, whatever the voltage) the top share's blocks of
+    grid points where the residual provably stays below zero
+    (:func:`residual_below_zero`) are not evaluated: no stable crossing can
+    lie there, and the others are evaluated as before.
     """
     n = circ.n
     lo = np.broadcast_to(np.asarray(lo, float), (n,))
@@ -2336,7 +2340,7 @@ def normal_points(circ, lo, hi, v_of=None, il_of=None, grid=NORMAL_POINTS_GRID, 
         first, inverse = identical_rows(circ, lo, hi)
         if first.size < n:
             r = normal_points(circ.subset(first), lo[first], hi[first], v_of, il_of, grid, steps, vi_of,
-                              top_share=top_share)
+                              top_share=top_share, fixed_current=fixed_current)
             return {k: v[inverse] for k, v in r.items()}
     lin = np.linspace(0.0, 1.0, grid)[None, :]
 
@@ -2350,8 +2354,12 @@ def normal_points(circ, lo, hi, v_of=None, il_of=None, grid=NORMAL_POINTS_GRID, 
 
     rows = np.arange(n)
     if top_share is not None:
+        below = None
+        if fixed_current and il_of is not None and bound_holds(circ):
+            il_row = np.asarray(il_of(np.zeros((n, 1))), float)[:, 0]
+            below = lambda r, va, vb: residual_below_zero(circ, r, va, vb, il_row[r])  # noqa: E731
         j, fa, beyond, found, hi = highest_stable_cell_from_top(circ, lo, hi, lin[0], vi, top_share,
-                                                                SPAN_DOUBLINGS if il_of is not None else 0)
+                                                                SPAN_DOUBLINGS if il_of is not None else 0, below)
     else:
         p = candidate_params(circ, rows[:, None])
         t = lo[:, None] + (hi - lo)[:, None] * lin
@@ -2399,7 +2407,7 @@ def normal_points(circ, lo, hi, v_of=None, il_of=None, grid=NORMAL_POINTS_GRID, 
     return out
 
 
-def highest_stable_cell_from_top(circ, lo, hi, lin, vi, top_share, doublings=0):
+def highest_stable_cell_from_top(circ, lo, hi, lin, vi, top_share, doublings=0, below=None):
     """:func:`normal_points`' scan with its ``top_share``: the highest stable cell of each row's grid.
 
     With ``doublings`` the range of a row still above the load at its top
@@ -2411,7 +2419,13 @@ def highest_stable_cell_from_top(circ, lo, hi, lin, vi, top_share, doublings=0):
     whole grid computes it and each row's residual is its own, so the cells
     and their residuals are the same bit for bit. Returns ``(j, h_j,
     beyond, found, hi)`` as the whole scan gives them (``j = grid - 2``
-    where there is no stable cell; ``hi`` after the doublings).
+    where there is no stable cell; ``hi`` after the doublings). With
+    ``below(rows, v_lo, v_hi)`` (True where the residual provably stays below
+    zero between two grid points) the top share's blocks of
+    :data:`BOUND_BLOCK_POINTS` points where it holds are not evaluated: a
+    stable cell starts above zero, so none starts there, and a cell ending
+    there needs only the sign of its end. (A row with no stable cell then
+    has a placeholder for ``h_j``; its empty bracket never reads it.)
     """
     n, grid = lo.size, lin.size
     rows = np.arange(n)
@@ -2428,8 +2442,21 @@ def highest_stable_cell_from_top(circ, lo, hi, lin, vi, top_share, doublings=0):
                                          *vi(lo[up, None] + (hi[up] - lo[up])[:, None] * lin[None, -1:],
                                              rows=up))[:, 0]
     k0 = grid - 1 - min(max(1, int(round(top_share * (grid - 1)))), grid - 1)
-    t = lo[:, None] + (hi - lo)[:, None] * lin[None, k0:]
-    h = circuit_residual(circ, candidate_params(circ, rows[:, None]), *vi(t))
+    if below is None:
+        t = lo[:, None] + (hi - lo)[:, None] * lin[None, k0:]
+        h = circuit_residual(circ, candidate_params(circ, rows[:, None]), *vi(t))
+    else:
+        first = np.arange(k0, grid, BOUND_BLOCK_POINTS)
+        last = np.minimum(first + BOUND_BLOCK_POINTS - 1, grid - 1)
+        sure = below(rows[:, None], lo[:, None] + (hi - lo)[:, None] * lin[None, first],
+                     lo[:, None] + (hi - lo)[:, None] * lin[None, last])
+        # the points of the other blocks, each as the whole grid computes it; a placeholder below zero elsewhere
+        r_idx, c_idx = np.nonzero(~np.repeat(sure, last - first + 1, axis=1))
+        h = np.full((n, grid - k0), -1.0)
+        if r_idx.size:
+            tt = (lo[r_idx] + (hi - lo)[r_idx] * lin[k0 + c_idx])[:, None]
+            h[r_idx, c_idx] = circuit_residual(circ, candidate_params(circ, r_idx[:, None]),
+                                               *vi(tt, rows=r_idx))[:, 0]
     beyond = h[:, -1] > 0
     stable = (h[:, :-1] > 0) & (h[:, 1:] <= 0)
     top = stable.any(axis=1)
@@ -2449,6 +2476,47 @@ def highest_stable_cell_from_top(circ, lo, hi, lin, vi, top_share, doublings=0):
         fa[hit] = hl[some, jl[some]]
         top[hit] = True
     return j, fa, beyond, top & ~beyond, hi
+
+
+#: Grid points in a block that :func:`residual_below_zero` clears at once.
+BOUND_BLOCK_POINTS = 6
+
+
+def bound_holds(circ):
+    """Whether :func:`residual_below_zero` may be used on ``circ``: no drive (a fixed speed), an
+    open-circuit curve that never falls, armature reaction that only demagnetises, and resistances,
+    brush drop and speeds that are not negative (every machine file's; checked, not assumed)."""
+    if circ.drive is not None:
+        return False
+    ar = circ.ar
+    ar_ok = ar.per_amp >= 0 if ar.table_current_a is None else bool(
+        np.all(np.asarray(ar.table_at) >= 0) and np.all(np.diff(ar.table_at) >= 0))
+    return bool(ar_ok and np.all(np.diff(circ.occ.emf_v) >= 0) and circ.vb >= 0 and circ.ir > 0 and circ.nsh > 0
+                and np.all(circ.ra >= 0) and np.all(circ.rbr >= 0) and np.all(circ.s >= 0)
+                and np.all((circ.kind != 1) | (circ.rf > 0)))
+
+
+def residual_below_zero(circ, rows, v_lo, v_hi, il):
+    """True where the circuit residual [V] stays below zero for every terminal voltage in
+    ``[v_lo, v_hi]`` [V] at the load current ``il`` [A] (per row; see :func:`bound_holds`).
+
+    At a fixed load current every current rises with the terminal voltage
+    (the shunt field's, the armature's, the series branch's) or stays, so the
+    drops and the voltage together are least at ``v_lo``; the windings' net
+    field is at most the shunt field at ``v_hi`` plus the larger of the
+    series field's two ends, armature reaction only weakens it towards zero,
+    and the open-circuit curve never falls, so the EMF is at most the
+    curve's value there. The residual is at most the difference; a margin
+    far above rounding makes the computed residuals fall below zero too.
+    """
+    p = candidate_params(circ, rows)
+    f_lo, ia_lo, ibr_lo = currents_from_voltage(p, v_lo, il)
+    f_hi, _, ibr_hi = currents_from_voltage(p, v_hi, il)
+    xw_up = f_hi + np.maximum(p["c"] * ibr_lo, p["c"] * ibr_hi)
+    e_up = p["s"] * circ.occ.emf(np.maximum(xw_up, 0.0))
+    drops = ia_lo * p["ra"] + ibr_lo * p["rbr"] + brush_drop(ia_lo, circ.vb, circ.ir) + v_lo
+    with np.errstate(invalid="ignore"):
+        return e_up - drops < -1e-9 * (np.abs(e_up) + np.abs(drops) + 1.0)
 
 
 def identical_rows(circ, *columns):

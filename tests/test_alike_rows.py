@@ -85,3 +85,49 @@ def test_scan_from_the_top_gives_the_same_points(name, job, coupled, share):
         seen["none"] |= bool((~whole["found"] & ~whole["beyond"]).any())
         seen["beyond"] |= bool(whole["beyond"].any())
     assert all(seen.values()), seen
+
+
+@pytest.mark.parametrize("name", ["welding-set", "charging-set", "lighting-set", "feeder-booster"])
+def test_residual_below_zero_is_an_upper_bound(name):
+    """Where ``residual_below_zero`` clears an interval of terminal voltage, the residual is below zero
+    at every voltage in it (sampled densely), for every connection, tap and rheostat of a demo machine,
+    load currents of either sign and intervals anywhere in the span; and it clears most intervals high
+    above the machine's voltage (the bound is not empty)."""
+    m = load_machine(PROFILES / "machines" / f"{name}.toml")
+    circ = circuit.build_circuit(m, grid_settings(m, rheostats=5))
+    assert circuit.bound_holds(circ)
+    rng = np.random.default_rng(11)
+    rows = np.repeat(np.arange(circ.n), 40)
+    il = rng.uniform(-0.5, 2.0, rows.size) * m.rated_armature_current_a
+    v_lo = rng.uniform(0.0, 3.0, rows.size) * m.rated_voltage_v
+    v_hi = v_lo + rng.uniform(0.0, 0.3, rows.size) * rng.choice([1.0, 8.0], rows.size) * m.rated_voltage_v
+    sure = circuit.residual_below_zero(circ, rows, v_lo, v_hi, il)
+    assert 0.2 < sure.mean() < 0.98
+    k = np.flatnonzero(sure)
+    v = v_lo[k, None] + (v_hi - v_lo)[k, None] * np.linspace(0.0, 1.0, 41)[None, :]
+    h = circuit.circuit_residual(circ, circuit.candidate_params(circ, rows[k, None]), v, il[k, None])
+    assert np.all(h < 0)
+    drive = load_profile(PROFILES / "loads" / "welding.toml").drive
+    assert not circuit.bound_holds(circuit.build_circuit(m, grid_settings(m, rheostats=2), drive))
+
+
+@pytest.mark.parametrize("name", ["welding-set", "charging-set", "lighting-set", "feeder-booster"])
+@pytest.mark.parametrize("share", [0.3, 0.7, 1.0])
+def test_cleared_blocks_give_the_same_points(name, share):
+    """A fixed load current per row (``fixed_current``): the blocks the bound clears are not evaluated,
+    and the points are the same bit for bit as the whole scan's, rows doubled and beyond included."""
+    m = load_machine(PROFILES / "machines" / f"{name}.toml")
+    circ = circuit.build_circuit(m, grid_settings(m, rheostats=6))
+    current = np.linspace(0.0, 1.2, circ.n) * m.rated_armature_current_a
+
+    def il_of(t, rows=None):
+        return np.broadcast_to((current if rows is None else current[rows])[:, None], t.shape)
+    lo = np.full(circ.n, m.rated_voltage_v / 3)
+    hi = np.linspace(0.4, 3.0, circ.n) * m.rated_voltage_v
+    whole = circuit.normal_points(circ, lo, hi, il_of=il_of)
+    for grid in (circuit.NORMAL_POINTS_GRID, 9):
+        ref = whole if grid != 9 else circuit.normal_points(circ, lo, hi, il_of=il_of, grid=9)
+        got = circuit.normal_points(circ, lo, hi, il_of=il_of, grid=grid, top_share=share, fixed_current=True)
+        for k in ref:
+            assert_array_equal(got[k], ref[k], err_msg=k)
+    assert whole["found"].any() and (~whole["found"]).any()

@@ -164,7 +164,7 @@ def evaluate_feeder(space, base_idx, u, booster=False, res=COARSE):
             parts.append(normal_points(each, np.full(each.n, nominal / 3), np.tile(top, cur.size),
                                        il_of=lambda t, rows=None, il_rows=il_rows: np.broadcast_to(
                                            il_rows if rows is None else il_rows[rows], t.shape),
-                                       top_share=FEEDER_SCAN_TOP_SHARE, **res))
+                                       top_share=FEEDER_SCAN_TOP_SHARE, fixed_current=True, **res))
         r_all = {key: np.concatenate([q[key] for q in parts]) for key in parts[0]}
     for k, il in enumerate(currents):
         if booster:
