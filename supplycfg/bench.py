@@ -356,7 +356,7 @@ def run_bench(repeat=5):
     res["driven_characteristic_ms"] = 1e3 * _median(lambda: external_characteristic(m, st, 400, motor), repeat)
     settings = grid_settings(m)
     res["grid_candidates"] = len(settings)
-    res["grid_seconds"] = _median(lambda: characteristics(m, settings, 100), max(1, repeat // 2))
+    res["grid_seconds"] = _median(lambda: characteristics(m, settings, 100), repeat)
     worst, cands, slowest = 0.0, 0, DEMO_PAIRS[0]
     per, results = {}, {}
     for mach, prof in DEMO_PAIRS:
