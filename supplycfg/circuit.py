@@ -34,22 +34,11 @@ from dataclasses import dataclass, field, replace
 
 import numpy as np
 
-from .drive import (
-    DriveRows,
-    drive_loading,
-    loss_breakdown,
-    machine_loss_exponent,
-    machine_rotational_loss_w,
-    machine_stray_percent,
-)
+from .drive import (DriveRows, drive_loading, loss_breakdown, machine_loss_exponent, machine_rotational_loss_w,
+                    machine_stray_percent)
 from .errors import InputError
-from .magnetisation import (
-    ArmatureReaction,
-    OpenCircuitCurve,
-    bounded,
-    copper_resistance_factor,
-    field_after_armature_reaction,
-)
+from .magnetisation import (ArmatureReaction, OpenCircuitCurve, bounded, copper_resistance_factor,
+                            field_after_armature_reaction)
 from .raytrace import NO_BUILD_UP_NOTE, trace_on_rays
 
 CONNECTIONS = (
@@ -950,27 +939,14 @@ class Characteristic:
         return out
 
 
-def slope_signs(vals):
-    """Cell-wise sign of the slope with flats merged into their neighbours."""
-    d = np.sign(np.diff(vals))
-    if not np.any(d):
-        return np.ones_like(d)
-    # carry last non-zero sign forward, then backward for leading zeros
-    nz = np.flatnonzero(d)
-    idx = np.maximum.accumulate(np.where(d != 0, np.arange(d.size), -1))
-    first = nz[0]
-    idx[idx < 0] = first
-    return d[idx]
-
-
 class SlopeRuns:
     """Slope signs of each row of a grid of values and the runs of equal sign, kept as the sign changes.
 
-    The same signs as :func:`slope_signs` row by row (flats take the sign before
-    them, leading flats the first sign; a row without a slope reads +1) and
-    the same runs as :class:`RunTable`, without tables for every cell: the
-    rows change sign a few times in thousands of cells, and a walk reads a
-    few cells. Read as ``runs[r, c]`` (the sign, float) and
+    A cell's sign is its slope's; flats take the sign before them, leading
+    flats the row's first sign, and a row without a slope reads +1. A run is
+    a stretch of cells of one sign. Only the cells where the sign changes
+    are kept, not tables for every cell: the rows change sign a few times in
+    thousands of cells, and a walk reads a few cells. Read as ``runs[r, c]`` (the sign, float) and
     ``runs.lo[r, c]``, ``runs.hi[r, c]`` (first and last cell of the run
     holding cell ``c`` of row ``r``), arrays broadcasting; ``runs.row(r)``
     for one row. With ``rows`` (a mask) only those rows have runs; the
@@ -989,7 +965,7 @@ class SlopeRuns:
         merged = np.sign(np.diff(vals if rows is None else vals[rows], axis=1))
         flat = (merged == 0).any(axis=1)
         if flat.any():
-            # flats take the sign before them (leading ones the first sign; a row of flats +1), as slope_signs
+            # flats take the sign before them (leading ones the first sign; a row of flats +1)
             d = merged[flat]
             nz = d != 0
             last = np.maximum.accumulate(np.where(nz, np.arange(k), -1), axis=1)
@@ -1004,10 +980,11 @@ class SlopeRuns:
 
     def _run_index(self, r, c):
         """Per cell: the index of the last run start at or before it (any row), whether that start is in
-        the cell's row (else the cell lies in its row's first run), and the row's first flat index."""
+        the cell's row (else the cell lies in its row's first run), and the row's first flat index.
+        (Only with run starts: the readers answer a row without any themselves.)"""
         base = r * self._k
         i = np.searchsorted(self._starts, base + c, side="right") - 1
-        mine = (i >= 0) & (self._starts[np.maximum(i, 0)] >= base) if self._starts.size else i >= 0
+        mine = (i >= 0) & (self._starts[np.maximum(i, 0)] >= base)
         return i, mine, base
 
     def __getitem__(self, rc):
@@ -1061,22 +1038,6 @@ class _OneRow:
     def __call__(self, cell):
         i = bisect.bisect_right(self._starts, cell)
         return (self._starts[i - 1] if i > 0 else 0), (self._starts[i] - 1 if i < len(self._starts) else self.size - 1)
-
-
-class RunTable:
-    """Runs of equal slope sign along a grid: run id of each cell, first and last cell of each run."""
-
-    def __init__(self, sign):
-        change = np.flatnonzero(np.diff(sign) != 0) + 1
-        self.lo = np.concatenate([[0], change])
-        self.hi = np.concatenate([change - 1, [sign.size - 1]])
-        self.rid = np.zeros(sign.size, int)
-        self.rid[change] = 1
-        self.rid = np.cumsum(self.rid)
-
-    def __call__(self, cell):
-        r = self.rid[cell]
-        return int(self.lo[r]), int(self.hi[r])
 
 
 def _grids(circ):
@@ -1179,18 +1140,14 @@ def _walk(circ, i, xg, ig, ng, lg, sign, lam, n_cell, l_cell, dl, stop_at=None, 
     ``stop_at = (ia, u, lam)``: a point of the curve where the walk must end
     (the windings' field passes zero there). Returns the segments
     ``(lam_a, lam_b, n_lo, n_hi, l_lo, l_hi, sign)``, a note, and the Ia
-    direction when the walk reached ``stop_at`` (else None). ``runs = (sn, sl,
-    run_n, run_l)``: slope signs and run tables of ``ng``, ``lg`` already
-    computed for many rows at once. ``kept``: a list that receives each
-    segment's samples ``(lam, x, Ia, V, IL)`` as the walk computes them.
+    direction when the walk reached ``stop_at`` (else None). ``runs = (ng's,
+    lg's)`` rows of :class:`SlopeRuns` (``[c]`` a cell's slope sign, ``(c)``
+    its run). ``kept``: a list that receives each segment's samples ``(lam,
+    x, Ia, V, IL)`` as the walk computes them.
     """
-    if runs is None:
-        sn, sl = slope_signs(ng), slope_signs(lg)
-        run_n, run_l = RunTable(sn), RunTable(sl)
-    else:
-        sn, sl, run_n, run_l = runs
-    n_lo, n_hi = run_n(n_cell)
-    l_lo, l_hi = run_l(l_cell)
+    sn, sl = runs
+    n_lo, n_hi = sn(n_cell)
+    l_lo, l_hi = sl(l_cell)
     dlam = int(sl[l_lo]) * dl
     dn = dlam * int(sn[n_lo])
     segs = []
@@ -1230,14 +1187,14 @@ def _walk(circ, i, xg, ig, ng, lg, sign, lam, n_cell, l_cell, dl, stop_at=None, 
                 if dl > 0:
                     note = "the curve reaches the searched current span"
                 break
-            l_lo, l_hi = run_l(nxt)
+            l_lo, l_hi = sl(nxt)
             dlam, dn = -dlam, -dn
         else:
             nxt = e_n if dn > 0 else e_n - 1
             if nxt < 0 or nxt >= sn.size:
                 note = "the curve reaches the searched field span"
                 break
-            n_lo, n_hi = run_n(nxt)
+            n_lo, n_hi = sn(nxt)
             dlam, dl = -dlam, -dl
     return segs, note, None
 
@@ -1266,16 +1223,15 @@ def no_load_cells(circ, cand, ng, xg):
 def _trace_self_excited(circ, i, xg, ig, fns, reversal=(np.nan, np.nan), samples=48, kept=None):
     """Walk the curve ``N(u) = L(Ia)`` of candidate ``i`` from Ia = 0.
 
-    ``fns[sign] = (N on xg, L on ig)`` for either side of the windings'
-    field; the walk starts on the positive side at the built-up no-load
+    ``fns[sign] = (N on xg, L on ig, their SlopeRuns rows)`` for either side
+    of the windings' field; the walk starts on the positive side at the built-up no-load
     point and, where the field passes zero (``reversal = (Ia, F_ar/N_sh)``,
     differential connections), goes on along the negative side. Returns a
     list of segments ``(lam_a, lam_b, n_lo, n_hi, l_lo, l_hi, sign)`` and a
     note when the walk ended early. ``kept`` receives each segment's samples (see :func:`_walk`).
     """
-    ng, lg = fns[1][:2]
-    runs_p = fns[1][2] if len(fns[1]) > 2 else None
-    runs_m = fns[-1][2] if len(fns[-1]) > 2 else None
+    ng, lg, runs_p = fns[1]
+    ngm, lgm, runs_m = fns[-1]
     cell, note = no_load_cells(circ, np.array([i]), ng[None, :], xg)
     if note[0]:
         return [], note[0]
@@ -1292,9 +1248,8 @@ def _trace_self_excited(circ, i, xg, ig, fns, reversal=(np.nan, np.nan), samples
     # where armature reaction holds the net field at zero, x_w = (s E_r - B(Ia)) / g falls only as Ia
     # rises, so Ia goes on rising; with no such zone (no reaction) the curve turns a corner there and
     # goes on into negative field, u = x_w + F_ar/N_sh falling, Ia whichever way that needs.
-    ngm, lgm = fns[-1][:2]
     lam = float(_l_fun(circ, p1, np.array([ia_r]), -1.0)[0])
-    sn, sl = (slope_signs(ngm), slope_signs(lgm)) if runs_m is None else runs_m[:2]
+    sn, sl = runs_m
     if p1["rf"][0] * far_r > 1e-12 * max(1.0, abs(lam)):
         dl = 1
         l_cell = _start_cell(ig, ia_r, dl)
@@ -1727,8 +1682,7 @@ def characteristics_of(circ, points=400):
                 continue
             fns = {}
             for sgn_, (ng_, lg_) in ((1.0, (ngp[r], lgp[r])), (-1.0, (ngm[r], lgm[r]))):
-                tn, tl = tables[sgn_][0].row(r), tables[sgn_][1].row(r)
-                fns[sgn_] = (ng_, lg_, (tn, tl, tn, tl))
+                fns[sgn_] = (ng_, lg_, (tables[sgn_][0].row(r), tables[sgn_][1].row(r)))
             kept = []
             segs, note = _trace_self_excited(circ, i, xg, ig, fns, (ia_rev[r], far_rev[r]), kept=kept)
             if not segs:
@@ -2291,6 +2245,16 @@ def series_critical_resistance_ohm(machine, series_turns=None, speed_rpm=None, w
 NORMAL_POINTS_GRID = 97
 
 
+def load_curve_points(lo, hi, frac):
+    """The load curve's parameter at fractions ``frac`` of ``[lo, hi]``: ``lo + (hi - lo) frac``.
+
+    Every scan of :func:`normal_points` computes its grid points this one
+    way (arrays broadcasting), so a scan in parts has the whole grid's
+    values bit for bit.
+    """
+    return lo + (hi - lo) * frac
+
+
 def normal_points(circ, lo, hi, v_of=None, il_of=None, grid=NORMAL_POINTS_GRID, steps=44, vi_of=None, alike=False,
                   top_share=None, fixed_current=False):
     """The point each candidate sits at along a load curve: the highest stable intersection.
@@ -2362,7 +2326,7 @@ def normal_points(circ, lo, hi, v_of=None, il_of=None, grid=NORMAL_POINTS_GRID, 
                                                                 SPAN_DOUBLINGS if il_of is not None else 0, below)
     else:
         p = candidate_params(circ, rows[:, None])
-        t = lo[:, None] + (hi - lo)[:, None] * lin
+        t = load_curve_points(lo[:, None], hi[:, None], lin)
         v, il = vi(t)
         h = circuit_residual(circ, p, v, il)
         # along the voltage: a machine still above the load at the top is looked for further out
@@ -2371,7 +2335,7 @@ def normal_points(circ, lo, hi, v_of=None, il_of=None, grid=NORMAL_POINTS_GRID, 
             if not up.any():
                 break
             hi = np.where(up, lo + 2.0 * (hi - lo), hi)
-            t = lo[:, None] + (hi - lo)[:, None] * lin
+            t = load_curve_points(lo[:, None], hi[:, None], lin)
             v, il = vi(t)
             h = circuit_residual(circ, p, v, il)
         beyond = h[:, -1] > 0
@@ -2379,8 +2343,7 @@ def normal_points(circ, lo, hi, v_of=None, il_of=None, grid=NORMAL_POINTS_GRID, 
         found = stable.any(axis=1) & ~beyond
         j = grid - 2 - np.argmax(stable[:, ::-1], axis=1)
         fa = h[rows, j]
-    # (each grid point as lo + (hi - lo) lin: the same float operations as the whole grid's)
-    a = lo + (hi - lo) * lin[0, j]; b = lo + (hi - lo) * lin[0, j + 1]
+    a, b = load_curve_points(lo, hi, lin[0, j]), load_curve_points(lo, hi, lin[0, j + 1])
     p1 = candidate_params(circ, rows)
 
     def v_i1(tt):
@@ -2431,7 +2394,7 @@ def highest_stable_cell_from_top(circ, lo, hi, lin, vi, top_share, doublings=0, 
     rows = np.arange(n)
     if doublings:
         h_end = circuit_residual(circ, candidate_params(circ, rows[:, None]),
-                                 *vi(lo[:, None] + (hi - lo)[:, None] * lin[None, -1:]))[:, 0]
+                                 *vi(load_curve_points(lo[:, None], hi[:, None], lin[None, -1:])))[:, 0]
         for _ in range(doublings):
             up = np.flatnonzero(h_end > 0)
             if not up.size:
@@ -2439,22 +2402,22 @@ def highest_stable_cell_from_top(circ, lo, hi, lin, vi, top_share, doublings=0, 
             hi = hi.copy()
             hi[up] = lo[up] + 2.0 * (hi[up] - lo[up])
             h_end[up] = circuit_residual(circ, candidate_params(circ, up[:, None]),
-                                         *vi(lo[up, None] + (hi[up] - lo[up])[:, None] * lin[None, -1:],
+                                         *vi(load_curve_points(lo[up, None], hi[up, None], lin[None, -1:]),
                                              rows=up))[:, 0]
     k0 = grid - 1 - min(max(1, int(round(top_share * (grid - 1)))), grid - 1)
     if below is None:
-        t = lo[:, None] + (hi - lo)[:, None] * lin[None, k0:]
+        t = load_curve_points(lo[:, None], hi[:, None], lin[None, k0:])
         h = circuit_residual(circ, candidate_params(circ, rows[:, None]), *vi(t))
     else:
         first = np.arange(k0, grid, BOUND_BLOCK_POINTS)
         last = np.minimum(first + BOUND_BLOCK_POINTS - 1, grid - 1)
-        sure = below(rows[:, None], lo[:, None] + (hi - lo)[:, None] * lin[None, first],
-                     lo[:, None] + (hi - lo)[:, None] * lin[None, last])
-        # the points of the other blocks, each as the whole grid computes it; a placeholder below zero elsewhere
+        sure = below(rows[:, None], load_curve_points(lo[:, None], hi[:, None], lin[None, first]),
+                     load_curve_points(lo[:, None], hi[:, None], lin[None, last]))
+        # the points of the other blocks; a placeholder below zero elsewhere
         r_idx, c_idx = np.nonzero(~np.repeat(sure, last - first + 1, axis=1))
         h = np.full((n, grid - k0), -1.0)
         if r_idx.size:
-            tt = (lo[r_idx] + (hi - lo)[r_idx] * lin[k0 + c_idx])[:, None]
+            tt = load_curve_points(lo[r_idx], hi[r_idx], lin[k0 + c_idx])[:, None]
             h[r_idx, c_idx] = circuit_residual(circ, candidate_params(circ, r_idx[:, None]),
                                                *vi(tt, rows=r_idx))[:, 0]
     beyond = h[:, -1] > 0
@@ -2465,7 +2428,7 @@ def highest_stable_cell_from_top(circ, lo, hi, lin, vi, top_share, doublings=0, 
     low = np.flatnonzero(~top & ~beyond)
     if low.size and k0 > 0:
         # the rest of the grid, and the cell that joins it to the top
-        tl = lo[low, None] + (hi - lo)[low, None] * lin[None, :k0]
+        tl = load_curve_points(lo[low, None], hi[low, None], lin[None, :k0])
         hl = np.concatenate([circuit_residual(circ, candidate_params(circ, low[:, None]), *vi(tl, rows=low)),
                              h[low, :1]], axis=1)
         sl = (hl[:, :-1] > 0) & (hl[:, 1:] <= 0)
@@ -2510,7 +2473,7 @@ def residual_below_zero(circ, rows, v_lo, v_hi, il):
     far above rounding makes the computed residuals fall below zero too.
     """
     p = candidate_params(circ, rows)
-    f_lo, ia_lo, ibr_lo = currents_from_voltage(p, v_lo, il)
+    _, ia_lo, ibr_lo = currents_from_voltage(p, v_lo, il)
     f_hi, _, ibr_hi = currents_from_voltage(p, v_hi, il)
     xw_up = f_hi + np.maximum(p["c"] * ibr_lo, p["c"] * ibr_hi)
     e_up = p["s"] * circ.occ.emf(np.maximum(xw_up, 0.0))
