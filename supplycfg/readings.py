@@ -199,38 +199,19 @@ def bisection_grid_point(a, b, k, depth):
     ``k = 0`` is ``a`` and ``k = 2**depth`` is ``b``; every other ``k`` is the
     midpoint of the cell halving reaches it from, so a search that knows the
     edge lies between grid points ``k`` and ``k + 1`` has the numbers that
-    :func:`walk_bisection_tree` would give, bit for bit.
+    :func:`walk_bisection_tree` would give, bit for bit (NaN for a ``k``
+    outside the grid). A band edge asks a few points at a time, so they are
+    worked one by one in Python floats: the same IEEE operations as numpy's,
+    without its per-call cost.
     """
-    a = np.asarray(a, float).copy()
-    b = np.asarray(b, float).copy()
-    k = np.asarray(k, np.int64)
+    a, b, k = np.broadcast_arrays(np.asarray(a, float), np.asarray(b, float), np.asarray(k, np.int64))
     top = 2 ** depth
-    if k.size <= GRID_POINTS_ONE_BY_ONE:
-        # a few points (a band edge's round): the same halvings in Python floats, one point at a time
-        a_, b_, k_ = (np.broadcast_to(x, np.broadcast_shapes(a.shape, b.shape, k.shape)) for x in (a, b, k))
-        return np.array([_grid_point(float(x), float(y), int(z), depth, top)
-                         for x, y, z in zip(a_.ravel().tolist(), b_.ravel().tolist(), k_.ravel().tolist())],
-                        float).reshape(a_.shape)
-    out = np.where(k == 0, a, np.where(k == top, b, np.nan))
-    lo_k = np.zeros(k.shape, np.int64)
-    hi_k = np.full(k.shape, top, np.int64)
-    for _ in range(depth):
-        mid_k = (lo_k + hi_k) // 2
-        mid = 0.5 * (a + b)
-        out = np.where(k == mid_k, mid, out)
-        left = k < mid_k
-        b, hi_k = np.where(left, mid, b), np.where(left, mid_k, hi_k)
-        a, lo_k = np.where(left, a, mid), np.where(left, lo_k, mid_k)
-    return out
-
-
-#: Up to this many points :func:`bisection_grid_point` works one at a time in Python floats (the
-#: same operations; a band edge asks a few points per round, where numpy's per-call cost dominates).
-GRID_POINTS_ONE_BY_ONE = 16
+    return np.array([_grid_point(x, y, z, depth, top) for x, y, z in zip(a.ravel().tolist(), b.ravel().tolist(),
+                                                                         k.ravel().tolist())], float).reshape(a.shape)
 
 
 def _grid_point(a, b, k, depth, top):
-    """:func:`bisection_grid_point` of one point (Python floats: the same IEEE operations)."""
+    """:func:`bisection_grid_point` of one point."""
     if k == 0:
         return a
     if k == top:

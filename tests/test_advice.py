@@ -22,7 +22,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from numpy.testing import assert_allclose
 
-from supplycfg import cli, readings
+from supplycfg import cli
 from supplycfg.cautions import GOVERNOR_BAND_FRACTION, caution, setting_cautions
 from supplycfg.circuit import Load, Setting, check_setting, operating_points
 from supplycfg.jobs import command_cautions, welding
@@ -163,23 +163,28 @@ def test_bisection_grid_point_is_the_halving_number():
     np.testing.assert_array_equal(bisection_grid_point(a, b, np.array([0, top]), depth), [3.0, 9.3])
 
 
-def test_bisection_grid_point_one_by_one_is_the_vectorised_route(monkeypatch):
-    """A few points go through Python floats one at a time, many through numpy: the same bits,
-    out-of-range points NaN either way (two routes to one answer)."""
+def test_bisection_grid_point_is_the_halving_number_at_any_depth():
+    """As above for brackets of any scale and direction and depths 0 to 10 (closed form: the bisection
+    tree's nodes); a point outside the grid is NaN, and a scalar bracket takes the points' shape."""
     rng = np.random.default_rng(3)
-    for trial in range(500):
-        depth = int(rng.integers(0, 19))
-        n = int(rng.integers(1, 12))
-        a = rng.normal(size=n) * 10.0 ** rng.integers(-3, 4)
-        b = a + np.abs(rng.normal(size=n)) * 10.0 ** rng.integers(-6, 3) if trial % 4 else rng.normal(size=n)
-        k = rng.integers(-2, 2 ** depth + 3, size=n)
-        for a_, b_ in ((a, b), (a[0], b)):
-            monkeypatch.setattr(readings, "GRID_POINTS_ONE_BY_ONE", 16)
-            few = bisection_grid_point(a_, b_, k, depth)
-            monkeypatch.setattr(readings, "GRID_POINTS_ONE_BY_ONE", -1)
-            many = bisection_grid_point(a_, b_, k, depth)
-            np.testing.assert_array_equal(few, many)
-            assert few.shape == many.shape
+    for trial in range(60):
+        depth = int(rng.integers(0, 11))
+        top = 2 ** depth
+        a = rng.normal(size=2) * 10.0 ** rng.integers(-3, 4)
+        b = a + rng.normal(size=2) * 10.0 ** rng.integers(-6, 3)
+        tree = bisection_tree(a, b, depth)
+        for level in range(depth):
+            for pos in range(2 ** level):
+                k = (2 * pos + 1) * (top >> (level + 1))
+                np.testing.assert_array_equal(bisection_grid_point(a, b, np.full(2, k), depth),
+                                              tree[:, 2 ** level - 1 + pos])
+        np.testing.assert_array_equal(bisection_grid_point(a, b, np.array([0, top]), depth), [a[0], b[1]])
+        assert np.isnan(bisection_grid_point(a, b, np.array([-1, top + 1]), depth)).all()
+        ks = np.arange(top + 1)
+        one = bisection_grid_point(a[0], b[0], ks, depth)
+        assert one.shape == ks.shape
+        np.testing.assert_array_equal(one, bisection_grid_point(np.full(ks.size, a[0]), np.full(ks.size, b[0]),
+                                                                ks, depth))
 
 
 def _two_limits(calls):
