@@ -889,9 +889,10 @@ def bank_line(job, soc):
     Returns
     -------
     callable
-        ``vi(U, rows=None) -> (V, I)`` for ``U`` shaped ``(n, k)`` (or the
-        rows ``rows`` of the candidates: :func:`~supplycfg.circuit.normal_points`' ``top_share``): machine-terminal
-        voltage [V] and charging current [A]. On charge ``I = C (r_s + r_g)``,
+        ``vi(U, rows=None) -> (V, I)`` for ``U`` shaped ``(n, k)``, one row
+        per candidate (or per candidate of ``rows``, as
+        :func:`~supplycfg.circuit.normal_points` asks with ``top_share``):
+        machine-terminal voltage [V] and charging current [A]. On charge ``I = C (r_s + r_g)``,
         ``V = n U + I (Rb + Rcable)``; below the rest voltage the bank
         discharges through ``Rb`` (``I = n (U - E) / Rb``, no overvoltage).
 
