@@ -1825,7 +1825,7 @@ def characteristics_of(circ, points=400):
             elif slf.size and pick_cand and last[i] > first[i]:
                 sl_i = slice(first[i], last[i])
                 vi = st_s["terminal_voltage_v"][sl_i]
-                # the curve ends at zero volts (made exact by _finish): nothing past it
+                # the curve ends at zero volts (made exact by finish_curves): nothing past it
                 below = np.flatnonzero(vi < 0)
                 if below.size:
                     sl_i = slice(first[i], first[i] + below[0] + 1)
@@ -1835,15 +1835,13 @@ def characteristics_of(circ, points=400):
     ops = _refine_batch(circ, states, wants_sc)
     folds = _refine_folds(circ, states)
     result = [None] * n
-    done = []
+    done = [i for i in range(n) if states[i] is not None]
     for i in range(n):
-        st = circ.settings[i]
         if states[i] is None:
-            result[i] = Characteristic(st, {k: np.zeros(0) for k in POINT_KEYS + ("extrapolated",)},
+            result[i] = Characteristic(circ.settings[i], {k: np.zeros(0) for k in POINT_KEYS + ("extrapolated",)},
                                        None, None, None, None, False, False, notes[i], [notes[i]] if notes[i] else [])
-            continue
-        result[i] = _finish(circ, i, st, states[i], notes[i], ops[i], folds.get(i), wants_sc[i])
-        done.append(i)
+    for i, ch in zip(done, finish_curves(circ, done, states, notes, ops, folds, wants_sc)):
+        result[i] = ch
     if done:
         # the power flow along every curve in one call, split back by candidate
         sizes = [result[i].points["terminal_voltage_v"].size for i in done]
@@ -2116,57 +2114,100 @@ def _explicit_state(circ, p, ia):
     return machine_state(circ, p, v, ia)
 
 
-def _finish(circ, i, st, state, note, ops, fold=None, wants_sc=False):
-    """The curve's points with the exact ones put in; ``wants_sc`` as :func:`short_circuit_wanted` said."""
-    v = state["terminal_voltage_v"]; il = state["load_current_a"]
-    # the first point is the exact no-load state
-    pts = {k: np.asarray(state[k], float).copy() for k in POINT_KEYS}
-    pts["extrapolated"] = circ.occ.extrapolated(state["x"])
+def finish_curves(circ, rows, states, notes, ops, folds, wants_sc):
+    """Characteristics of candidates ``rows`` from their traced samples, the exact points put in.
+
+    ``states[i]`` the samples of curve ``i`` (the :data:`POINT_KEYS` and the
+    field ``x``), ``ops[i]`` its exact no-load, short-circuit and full-load
+    points (:func:`_refine_batch`), ``folds`` the refined breakdown currents
+    (:func:`_refine_folds`), ``wants_sc[i]`` as :func:`short_circuit_wanted`
+    said. All curves' samples are worked in one array (each curve's points
+    are its slice of it); only the choice among each curve's few exact points
+    is made curve by curve, in Python numbers.
+    """
+    if not rows:
+        return []
     m = circ.machine
-    notes = [note] if note else []
-    # exact no-load, short-circuit and rated-current points from the load-line solver
-    nl = _nearest(ops[0].points, v[0] if v.size else None, il[0] if v.size else None)
-    if nl is not None:
-        for k in POINT_KEYS:
-            pts[k][0] = nl[k]
-        pts["extrapolated"][0] = nl["extrapolated"]
-    sc = None
-    if wants_sc:
-        cand = _nearest(ops[1].points, 0.0, il[-1])
-        if cand is not None:
-            sc = cand["load_current_a"]
-            for k in POINT_KEYS:
-                pts[k][-1] = cand[k]
-            pts["extrapolated"][-1] = cand["extrapolated"]
-    ilp = pts["load_current_a"]
-    if ilp.size >= 3:
-        j = int(np.argmax(ilp))
-        if 0 < j < ilp.size - 1:
-            imax = fold if fold is not None else float(ilp[j])
-        else:
-            imax = float(ilp[j])
-    else:
+    sizes = np.array([np.size(states[i]["terminal_voltage_v"]) for i in rows])
+    ends = np.cumsum(sizes)
+    starts = ends - sizes
+    # (a curve's arrays are 1-D of its size: a scalar cannot be concatenated, so it would not pass silently)
+    pts = {k: np.asarray(np.concatenate([states[i][k] for i in rows]), float) for k in POINT_KEYS}
+    pts["extrapolated"] = circ.occ.extrapolated(np.concatenate([states[i]["x"] for i in rows]))
+    ne = sizes > 0
+    # the traced ends, before the exact points replace them
+    last = np.maximum(ends - 1, 0)
+    v_first = pts["terminal_voltage_v"][starts[ne]].tolist()
+    il_first = pts["load_current_a"][starts[ne]].tolist()
+    il_last = pts["load_current_a"][last[ne]].tolist()
+    at, nl_of, sc_of = {}, [None] * len(rows), [None] * len(rows)
+    for q, r in enumerate(np.flatnonzero(ne).tolist()):
+        i = rows[r]
+        nl_of[r] = nl = _nearest(ops[i][0].points, v_first[q], il_first[q])
+        if nl is not None:
+            at[int(starts[r])] = nl
+        if wants_sc[i]:
+            sc_of[r] = cand = _nearest(ops[i][1].points, 0.0, il_last[q])
+            if cand is not None:
+                at[int(last[r])] = cand  # after the no-load point: a one-point curve ends short-circuited
+    if at:
+        where = np.fromiter(at, int, len(at))
+        for k in POINT_KEYS + ("extrapolated",):
+            pts[k][where] = [d[k] for d in at.values()]
+    v, ilp, ia = pts["terminal_voltage_v"], pts["load_current_a"], pts["armature_current_a"]
+    # per curve: the first largest load current (the first NaN if any, as argmax), any point at or below
+    # zero volts, any extrapolated point, the first sample at rated armature current
+    seg = np.repeat(np.arange(len(rows)), sizes)
+    peak_at = np.zeros(len(rows), int)
+    any_low = np.zeros(len(rows), bool)
+    any_ext = np.zeros(len(rows), bool)
+    if ne.any():
+        top = np.maximum.reduceat(ilp, starts[ne])
+        topr = np.full(len(rows), np.nan)
+        topr[ne] = top
+        t = topr[seg]
+        hit = np.flatnonzero((ilp == t) | (np.isnan(ilp) & np.isnan(t)))
+        peak_at[ne] = hit[np.searchsorted(hit, starts[ne])] - starts[ne]
+        any_low[ne] = np.logical_or.reduceat(v <= 0, starts[ne])
+        any_ext[ne] = np.logical_or.reduceat(pts["extrapolated"], starts[ne])
+    up = np.flatnonzero(ia >= m.rated_armature_current_a)
+    k_up = np.searchsorted(up, starts)
+    c_up = np.where(k_up < up.size, up[np.minimum(k_up, max(up.size - 1, 0))] if up.size else 0, -1)
+    has_up = (k_up < up.size) & (c_up < ends)
+    # the samples the choices below read, as Python numbers
+    peak_il = ilp[np.where(ne, starts + peak_at, 0)].tolist() if v.size else [math.nan] * len(rows)
+    c_at = np.where(has_up, c_up, 0)
+    near = [x.tolist() for x in (v[np.minimum(np.maximum(c_at - 1, starts), v.size - 1)], v[c_at], ilp[c_at])] if v.size else [[]] * 3
+    out = []
+    for r, i in enumerate(rows):
+        a, n_i = int(starts[r]), int(sizes[r])
+        note = notes[i]
+        sc = sc_of[r]["load_current_a"] if sc_of[r] is not None else None
         imax = None
-    if sc is None and not np.any(pts["terminal_voltage_v"] <= 0):
-        imax = None if "span" in note else imax
-    vnl = nl["terminal_voltage_v"] if nl is not None else None
-    reg = None
-    if vnl is not None:
-        # full load: the first point along the curve from no load where the armature carries its rated current
-        cross = np.flatnonzero(pts["armature_current_a"] >= m.rated_armature_current_a)
-        if cross.size:
-            c0 = int(cross[0])
-            # the point between the samples that bracket the crossing, else the nearest one
-            vv = pts["terminal_voltage_v"][max(c0 - 1, 0):c0 + 1]
-            tol = 1e-9 * max(1.0, abs(float(vv.max())))
-            between = [q for q in ops[2].points if vv.min() - tol <= q["terminal_voltage_v"] <= vv.max() + tol]
-            vr = _nearest(between or ops[2].points, pts["terminal_voltage_v"][c0], ilp[c0])
+        if n_i >= 3:
+            j = int(peak_at[r])
+            fold = folds.get(i)
+            imax = fold if (0 < j < n_i - 1 and fold is not None) else peak_il[r]
+        if sc is None and not any_low[r]:
+            imax = None if "span" in note else imax
+        nl = nl_of[r]
+        vnl = nl["terminal_voltage_v"] if nl is not None else None
+        reg = None
+        if vnl is not None and has_up[r]:
+            # full load: the first point along the curve from no load where the armature carries its rated
+            # current; the exact point between the samples that bracket it, else the nearest one
+            vv = [near[1][r]] if int(c_up[r]) == a else [near[0][r], near[1][r]]
+            hi_, lo_ = (max(vv), min(vv)) if not any(x != x for x in vv) else (math.nan, math.nan)
+            tol = 1e-9 * max(1.0, abs(hi_))
+            between = [q for q in ops[i][2].points if lo_ - tol <= q["terminal_voltage_v"] <= hi_ + tol]
+            vr = _nearest(between or ops[i][2].points, near[1][r], near[2][r])
             if vr is not None and vr["terminal_voltage_v"] > 0:
                 reg = 100.0 * (vnl - vr["terminal_voltage_v"]) / vr["terminal_voltage_v"]
-    conv = all(o.converged for o in ops)
-    return Characteristic(st, pts, vnl, sc, float(imax) if imax is not None else None, reg,
-                          bool(np.any(pts["extrapolated"])), conv,
-                          "" if conv else "a point did not converge", notes)
+        conv = all(o.converged for o in ops[i])
+        out.append(Characteristic(circ.settings[i], {k: val[a:a + n_i] for k, val in pts.items()}, vnl, sc,
+                                  float(imax) if imax is not None else None, reg, bool(any_ext[r]), conv,
+                                  "" if conv else "a point did not converge", [note] if note else []))
+    return out
 
 
 def _nearest(points, v, il):
