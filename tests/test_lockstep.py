@@ -111,3 +111,15 @@ def test_slope_runs_match_one_row_at_a_time():
             assert_array_equal([one[c] for c in range(k)], want)
             for c in range(k):
                 assert (int(lo[r, c]), int(hi[r, c])) == _run_of(want, c) == one(c), (trial, r, c)
+
+
+def test_nonzero_rows_cols_is_numpys_nonzero():
+    """The solvers' row and column indices of a mask are numpy's, in the same order, empty shapes included."""
+    rng = np.random.default_rng(5)
+    for shape in ((1, 1), (3, 0), (0, 4), (7, 13), (40, 2072)):
+        for share in (0.0, 0.001, 0.5, 1.0):
+            mask = rng.random(shape) < share
+            got, want = circuit.nonzero_rows_cols(mask), np.nonzero(mask)
+            for g, w in zip(got, want):
+                assert g.dtype == w.dtype
+                np.testing.assert_array_equal(g, w)
