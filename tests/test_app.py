@@ -8,6 +8,7 @@ import tomllib
 import warnings
 from pathlib import Path
 
+import pandas as pd
 import pytest
 
 from supplycfg import STANDING_NOTICE
@@ -52,10 +53,11 @@ def test_forms_are_drawn_only_when_asked_for():
 
 
 def options_table(at):
-    for df in at.dataframe:
-        v = df.value
-        if "Fit" in v.columns:
-            return v
+    """The options table (static HTML, ``id="options"``) as a frame of the texts a reader sees."""
+    for m in at.markdown:
+        if '<table class="sc-table" id="options">' in m.value:
+            rows = html_table(m.value)
+            return pd.DataFrame(rows[1:], columns=rows[0])
     raise AssertionError("no options table on the page")
 
 
@@ -415,6 +417,18 @@ def test_page_tables_are_text_never_markup():
     assert "&lt;script&gt;" in out and "a\\u202eb\\u200b" in out and "\u202e" not in out
     assert html_table(out) == [["What", "<i>x</i>"], ["<script>alert(1)</script>", "a\\u202eb\\u200b"],
                                ["**bold**", "$x$"]]
+
+
+def test_options_table_cells_read_as_figures():
+    """The options table is static HTML (no data grid): margins to 0.1 %, speeds to the rpm, turns as
+    written, and a dash where there is nothing to say (no series winding, no speed, a stop's -inf margin)."""
+    from supplycfg.page.outputs import option_cells, table_html
+    rows = [{"Rank": 1, "Smallest margin [%]": 3.04, "Series turns": 24.0, "Speed [rpm]": 1447.6, "Fit": "meets all"},
+            {"Rank": 2, "Smallest margin [%]": float("-inf"), "Series turns": 0.0, "Speed [rpm]": None,
+             "Fit": "not usable (stop)"}]
+    assert option_cells(rows) == [["1", "3.0", "24", "1448", "meets all"], ["2", "–", "–", "–", "not usable (stop)"]]
+    assert table_html(list(rows[0]), option_cells(rows), table_id="options").startswith(
+        '<table class="sc-table" id="options"><thead><tr><th>Rank</th>')
 
 
 def test_drive_inputs_and_size_section():

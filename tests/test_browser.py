@@ -7,6 +7,7 @@ keep the screenshots.
 """
 
 import os
+import re
 import shutil
 from pathlib import Path
 
@@ -19,8 +20,6 @@ if timing.chromium_path() is None:
 sync_api = pytest.importorskip("playwright.sync_api", reason="the playwright package is not installed "
                                                             "(pip install playwright; never 'playwright install')")
 
-#: Row height of Streamlit's data grid [px] (its default), to click a row's selection box.
-ROW_PX = 35
 #: The card's top must stand inside the first screen at 1400 x 900 (issue 13).
 CARD_TOP_PX = 780
 CHARTS = "[data-testid=\"stVegaLiteChart\"] .marks"
@@ -131,19 +130,20 @@ def test_narrow_view_clips_no_legend_title_or_axis(server, browser, tmp_path):
 
 
 def test_pick_trim_and_download(server, browser, tmp_path):
-    """A row of the options table picks that option; an unrelated rerun keeps the drawn charts; the rheostat trim
+    """The list under the options table picks an option; an unrelated rerun keeps the drawn charts; the rheostat trim
     redraws them (waiting for the new drawing itself); the printable sheet downloads with its checklist."""
     page = browser.new_page(viewport={"width": 900, "height": 1400}, accept_downloads=True)
     try:
         page.goto(server)
         timing.wait_for_charts(page, timing.DEMO_CHARTS)
 
-        # a row of the options table picks that option: its header shows and its charts are drawn anew
+        # the list under the options table picks an option: its header shows and its charts are drawn anew
         _mark_charts(page)
-        table = page.locator('[data-testid="stDataFrame"]').first
-        table.scroll_into_view_if_needed()
-        box = table.bounding_box()
-        page.mouse.click(box["x"] + 18, box["y"] + ROW_PX * 3 + ROW_PX / 2)
+        assert page.locator("table#options tbody tr").count() >= 3
+        picker = page.locator('[data-testid="stSelectbox"]').filter(has_text="Look at option")
+        picker.scroll_into_view_if_needed()
+        picker.locator('[role="combobox"]').first.click()
+        page.get_by_role("option", name=re.compile(r"^3 ·")).click()
         page.get_by_role("heading", name="Option 3 in detail").wait_for(timeout=timing.RENDER_TIMEOUT_MS)
         # the picked option draws its own charts (one with no charge run draws one fewer; the cells' chart
         # belongs to the job and may stay): wait until the rerun is over and the machine's chart is new

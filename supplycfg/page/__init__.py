@@ -35,6 +35,11 @@ table.sc-table { width: 100%; border-collapse: collapse; font-size: .9rem; margi
 table.sc-table th, table.sc-table td { border: 1px solid #d5dae0; padding: .25rem .5rem; text-align: left;
   vertical-align: top; }
 table.sc-table th { background: #f0f2f5; font-weight: 600; }
+.sc-scroll { max-height: 22rem; overflow: auto; margin-bottom: .6rem; }
+.sc-scroll table.sc-table { margin: 0; }
+.sc-scroll table.sc-table th { position: sticky; top: 0; }
+.sc-scroll table.sc-table td { white-space: nowrap; }
+.sc-scroll table.sc-table td:last-child { white-space: normal; min-width: 22rem; }
 .st-key-wiring img { max-height: 380px; object-fit: contain; }
 </style>
 """

@@ -1,5 +1,6 @@
 """The page's outputs: the recommended setting first, the ranked options, the chosen one in detail, its curves and sheet."""
 
+import math
 import re
 from dataclasses import replace
 from datetime import date
@@ -26,7 +27,7 @@ def _md(text):
     return md_esc(text)
 
 
-def table_html(headers, rows):
+def table_html(headers, rows, table_id=None):
     """A static table as one HTML element, every cell escaped (text, never markup).
 
     One element per table: st.table renders each cell as its own Markdown
@@ -34,7 +35,22 @@ def table_html(headers, rows):
     """
     head = "".join(f"<th>{esc(h)}</th>" for h in headers)
     body = "".join("<tr>" + "".join(f"<td>{esc(c)}</td>" for c in r) + "</tr>" for r in rows)
-    return f'<table class="sc-table"><thead><tr>{head}</tr></thead><tbody>{body}</tbody></table>'
+    ident = f' id="{esc(table_id)}"' if table_id else ""
+    return f'<table class="sc-table"{ident}><thead><tr>{head}</tr></thead><tbody>{body}</tbody></table>'
+
+
+#: How the options table writes its numbers (the rest as they come).
+OPTION_CELL_FORMATS = {"Smallest margin [%]": "{:.1f}", "Series turns": "{:g}", "Speed [rpm]": "{:.0f}"}
+
+
+def option_cells(rows):
+    """The cells of :func:`option_rows` as the table shows them: numbers to their figures, none as a dash."""
+    def cell(k, v):
+        # (a setting with a stop caution has no margin to speak of: -inf)
+        if v is None or (k == "Series turns" and v == 0) or (isinstance(v, float) and not math.isfinite(v)):
+            return "–"
+        return OPTION_CELL_FORMATS[k].format(v) if k in OPTION_CELL_FORMATS else str(v)
+    return [[cell(k, v) for k, v in r.items()] for r in rows]
 
 
 def _table(headers, rows):
@@ -140,8 +156,7 @@ def options_section(result, key):
     n_ok = len([o for o in result.options if o.feasible])
     st.markdown(f"**{n_ok}** of {len(result.options)} settings meet every limit "
                 f"({result.candidates_evaluated} candidate evaluations in {result.search_seconds:.2f} s).")
-    st.caption(f"How they are ranked: {_md(ranking_rule(result))} The smallest margin is how far the tightest "
-               "limit is kept, as a share of that limit (negative: broken).")
+    st.caption(f"How they are ranked: {_md(ranking_rule(result))}")
     for n in result.notes:
         st.warning(_md(n))
     for c in result.cautions:
@@ -152,38 +167,18 @@ def options_section(result, key):
         return None
     ranks = [o.rank for o in result.options]
     pick_key = f"pick_{key}"
-    table_key = f"table_{key}"
     picked_option(result, key)
-
-    def on_table():
-        sel = S.get(table_key)
-        rows = (sel or {}).get("selection", {}).get("rows", []) if isinstance(sel, dict) else \
-            getattr(getattr(sel, "selection", None), "rows", [])
-        if rows:
-            S[pick_key] = ranks[rows[0]]
-
     rows = option_rows(result)
     if all(r["Objective"] == "–" for r in rows):  # the core states no objective for this job yet
         for r in rows:
             del r["Objective"]
-    st.dataframe(rows, key=table_key, on_select=on_table, selection_mode="single-row",
-                 hide_index=True, height=min(38 + 35 * len(ranks), 320),
-                 column_config={
-                     "Rank": st.column_config.NumberColumn("Rank", width=48, pinned=True),
-                     "Objective": st.column_config.TextColumn("Objective", width=100,
-                                                              help="what the job is ranked by (battery: hours to "
-                                                                   "full; welding: tap changes; lighting and "
-                                                                   "booster: margin on the voltage band)"),
-                     "Smallest margin [%]": st.column_config.NumberColumn(
-                         "Smallest margin [%]", format="%.1f", width=130,
-                         help="how far the tightest limit is kept, as a share of that limit; negative when broken"),
-                     "Cautions": st.column_config.TextColumn("Cautions", width=100),
-                     "Series turns": st.column_config.NumberColumn("Series turns", format="%g"),
-                     "Speed [rpm]": st.column_config.NumberColumn("Speed [rpm]", format="%.0f"),
-                 })
+    # static HTML, not a data grid: the grid's scripts (over a megabyte) were the browser's largest wait
+    # on load, and a table whose cells wrap reads better in a narrow window; the list below picks an option
+    st.markdown(f'<div class="sc-scroll">{table_html(list(rows[0]), option_cells(rows), table_id="options")}</div>',
+                unsafe_allow_html=True)
     by_rank = {o.rank: o for o in result.options}
     st.selectbox("Look at option", ranks, key=pick_key, format_func=lambda r: _option_label(by_rank[r]),
-                 help="or pick a row of the table")
+                 help="its details, charts and sheet are shown below")
     with st.expander("What the words mean"):
         st.markdown("\n".join(f"- **{_md(k)}**: {_md(v)}" for k, v in GLOSSARY.items()))
     return by_rank[S[pick_key]]
