@@ -20,7 +20,7 @@ import numpy as np
 
 from .circuit import (SELF_EXCITED, SEPARATE, Load, Setting, characteristics, check_setting,
                       operating_points, self_excitation)
-from .magnetisation import OpenCircuitCurve, copper_resistance_factor
+from .magnetisation import copper_resistance_factor
 from .wording import connection_words
 
 #: Line colours: the Okabe-Ito palette, published to stay distinct for readers with any common
@@ -408,7 +408,7 @@ def occ_chart(machine, setting=None, temperatures_c=None, width=None):
     Theraja Vol II ch. 28).
     """
     st = check_setting(machine, setting or Setting("shunt"))
-    occ = OpenCircuitCurve.from_machine(machine)
+    occ = machine.open_circuit_curve
     ratio = st.speed_rpm / machine.occ_speed_rpm
     temps = sorted(set(float(t) for t in (temperatures_c or [st.winding_temperature_c])))
     x_last = occ.last_field_current_a

@@ -326,7 +326,7 @@ def build_circuit(machine, settings, drive=None):
         top = drive.generator_speeds_rpm()[0]
         settings = [replace(s, speed_rpm=top) for s in settings]
     settings = [check_setting(machine, s) for s in settings]
-    occ = OpenCircuitCurve.from_machine(machine)
+    occ = machine.open_circuit_curve
     ar = ArmatureReaction.from_machine(machine)
     n = len(settings)
     kind = np.zeros(n, int); short = np.zeros(n, bool); branch = np.zeros(n, int)
@@ -2349,7 +2349,7 @@ def series_critical_resistance_ohm(machine, series_turns=None, speed_rpm=None, w
     """
     st = check_setting(machine, Setting("series", series_turns=series_turns, speed_rpm=speed_rpm,
                                         winding_temperature_c=winding_temperature_c))
-    occ = OpenCircuitCurve.from_machine(machine)
+    occ = machine.open_circuit_curve
     return float(occ.air_gap_slope() * st.series_turns / machine.shunt_turns_per_pole
                  * st.speed_rpm / machine.occ_speed_rpm)
 

@@ -302,11 +302,10 @@ POINT_WORDS = {"load_current_a": "load current [A]", "terminal_voltage_v": "term
 def _critical_ratio(machine, st):
     """R_crit / R_field of a self-excited setting at its speed and temperature (None otherwise)."""
     from .circuit import SELF_EXCITED
-    from .magnetisation import OpenCircuitCurve
     from .readings import field_resistance_ohm
     if st.connection not in SELF_EXCITED or st.rheostat_ohm is None:
         return None
-    slope = OpenCircuitCurve.from_machine(machine).air_gap_slope()
+    slope = machine.open_circuit_curve.air_gap_slope()
     rf = field_resistance_ohm(machine, st.winding_temperature_c) + st.rheostat_ohm
     return float(slope * st.speed_rpm / machine.occ_speed_rpm / rf)
 

@@ -6,6 +6,7 @@ keys. :func:`load_machine` reads and checks one; :func:`machine_to_dict` gives
 back the same tables so a saved machine loads unchanged.
 """
 
+import functools
 from dataclasses import dataclass, field, asdict
 
 import numpy as np
@@ -96,6 +97,14 @@ class Machine:
     rotational_loss_speed_exponent: float | None = None
     stray_load_loss_percent: float | None = None
     source: str = field(default="machine", compare=False)
+
+    @functools.cached_property
+    def open_circuit_curve(self):
+        """The open-circuit characteristic as the engine reads it
+        (:class:`supplycfg.magnetisation.OpenCircuitCurve`), built once: a machine's data are frozen
+        (tuples), and every circuit, chart and search step of one machine reads the same curve."""
+        from .magnetisation import OpenCircuitCurve
+        return OpenCircuitCurve.from_machine(self)
 
     @property
     def has_series(self):
