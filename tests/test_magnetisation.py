@@ -90,3 +90,14 @@ def test_field_after_armature_reaction_is_its_formula():
     want = np.sign(xw) * np.maximum(np.abs(xw) - r, 0.0)
     got = field_after_armature_reaction(xw, r)
     np.testing.assert_array_equal(got, want)  # (a zero's sign is not compared: -0.0 == 0.0)
+
+
+def test_machine_builds_its_curve_once():
+    """A machine's curve is built once and is the curve of its data; a machine with other data gets its own."""
+    from dataclasses import replace
+    m = load_machine(Path(__file__).parents[1] / "profiles" / "machines" / "charging-set.toml")
+    assert m.open_circuit_curve is m.open_circuit_curve
+    x = np.linspace(0.0, 2.0 * m.open_circuit_curve.last_field_current_a, 57)
+    assert_allclose(m.open_circuit_curve.emf(x), OpenCircuitCurve.from_machine(m).emf(x), rtol=0, atol=0)
+    other = replace(m, occ_emf_v=tuple(2.0 * v for v in m.occ_emf_v))
+    assert_allclose(other.open_circuit_curve.emf(x), 2.0 * m.open_circuit_curve.emf(x), rtol=1e-12)
