@@ -2063,19 +2063,31 @@ def _refine_batch(circ, states, wants_sc=None):
     m = circ.machine
     rated = m.rated_armature_current_a
     idx, loads, w0, w1, who = [], [], [], [], []
-    vtop = voltage_span(circ, np.arange(circ.n))
-    for i, st in enumerate(states):
-        if st is None:
-            continue
-        v, il = st["terminal_voltage_v"], st["load_current_a"]
-        guesses = [(Load.constant_current(0.0), (v[0] / vtop[i] + 1) / 2, 0.015)]
+    vtop = voltage_span(circ, np.arange(circ.n)).tolist()
+    rows = [i for i, st in enumerate(states) if st is not None]
+    out = {i: [None, None, None] for i in range(circ.n)}
+    if rows:
+        # every curve's first sample, last sample and first sample at rated armature current, in one pass
+        # over all curves (each curve has at least its no-load sample)
+        sizes = np.array([np.size(states[i]["terminal_voltage_v"]) for i in rows])
+        ends = np.cumsum(sizes)
+        starts = ends - sizes
+        v_all = np.concatenate([states[i]["terminal_voltage_v"] for i in rows])
+        il_last = np.concatenate([states[i]["load_current_a"] for i in rows])[ends - 1].tolist()
+        up = np.flatnonzero(np.concatenate([states[i]["armature_current_a"] for i in rows]) >= rated)
+        at = np.searchsorted(up, starts)
+        k_up = np.minimum(at, max(up.size - 1, 0))
+        has_up = ((at < up.size) & (up[k_up] < ends) if up.size else np.zeros(len(rows), bool)).tolist()
+        v_first = v_all[starts].tolist()
+        v_up = v_all[up[k_up] if up.size else starts].tolist()
+    for q, i in enumerate(rows):
+        guesses = [(Load.constant_current(0.0), (v_first[q] / vtop[i] + 1) / 2, 0.015)]
         if wants_sc is None or wants_sc[i]:
-            guesses.append((Load(0.0, 0.0, None, "short circuit"), (il[-1] / circ.imax + 1) / 2, 0.02))
+            guesses.append((Load(0.0, 0.0, None, "short circuit"), (il_last[q] / circ.imax + 1) / 2, 0.02))
         else:
             guesses.append(None)
-        cross = np.flatnonzero(st["armature_current_a"] >= rated)
-        if cross.size:
-            guesses.append((Load.armature_current(rated), (v[cross[0]] / vtop[i] + 1) / 2, 0.015))
+        if has_up[q]:
+            guesses.append((Load.armature_current(rated), (v_up[q] / vtop[i] + 1) / 2, 0.015))
         else:
             guesses.append((Load.armature_current(rated), None, None))
         for k, guess in enumerate(guesses):
@@ -2087,9 +2099,8 @@ def _refine_batch(circ, states, wants_sc=None):
                 w0.append(0.0); w1.append(1.0)
             else:
                 w0.append(g - half); w1.append(g + half)
-    out = {i: [OperatingPoints([]), OperatingPoints([]), OperatingPoints([])] for i in range(circ.n)}
     if not idx:
-        return out
+        return _with_empty_points(out)
     # refined to rounding: these points are reported, and their power balance holds only as well as h = 0
     res = solve_operating_points(circ, loads, np.array(idx), grid=EXACT_POINT_WINDOW_GRID,
                                  window=(np.array(w0), np.array(w1)), steps=60)
@@ -2102,6 +2113,15 @@ def _refine_batch(circ, states, wants_sc=None):
         res2 = solve_operating_points(circ, [r[2] for r in retry], np.array([r[0] for r in retry]))
         for (i, k, _), r in zip(retry, res2):
             out[i][k] = r
+    return _with_empty_points(out)
+
+
+def _with_empty_points(out):
+    """Entries left unsolved (no short circuit looked for, say) as operating points with none."""
+    for ops in out.values():
+        for k, o in enumerate(ops):
+            if o is None:
+                ops[k] = OperatingPoints([])
     return out
 
 
