@@ -872,12 +872,13 @@ def solve_operating_points(circ, loads, idx=None, grid=LOAD_LINE_GRID, window=No
                      residual_v=h_)
             out[row].append(d)
     res = []
-    for r, lst in enumerate(out):
-        lst.sort(key=lambda d: -d["terminal_voltage_v"])
-        lst = _dedupe(lst)
-        if runaway[r]:
+    for lst, run_r, beyond_r in zip(out, np.asarray(runaway, bool).tolist(), np.asarray(beyond, bool).tolist()):
+        if len(lst) > 1:  # (most loads meet a curve once)
+            lst.sort(key=lambda d: -d["terminal_voltage_v"])
+            lst = _dedupe(lst)
+        if run_r:
             res.append(OperatingPoints(lst, False, RUNAWAY_MESSAGE, True))
-        elif beyond[r]:
+        elif beyond_r:
             res.append(OperatingPoints(lst, ok, BEYOND_SPAN_MESSAGE, True))
         else:
             res.append(OperatingPoints(lst, ok, "" if ok else "a root did not reach the residual tolerance"))
