@@ -35,8 +35,8 @@ from dataclasses import dataclass, field, replace
 
 import numpy as np
 
-from .drive import (DriveRows, drive_loading, loss_breakdown, machine_loss_exponent, machine_rotational_loss_w,
-                    machine_stray_percent)
+from .drive import (SPEED_CEILING_SHARE, DriveRows, drive_loading, loss_breakdown, machine_loss_exponent,
+                    machine_rotational_loss_w, machine_stray_percent)
 from .errors import InputError
 from .magnetisation import (ArmatureReaction, OpenCircuitCurve, bounded, copper_resistance_factor,
                             field_after_armature_reaction)
@@ -2390,7 +2390,7 @@ def load_curve_points(lo, hi, frac):
 
 
 def normal_points(circ, lo, hi, v_of=None, il_of=None, grid=NORMAL_POINTS_GRID, steps=44, vi_of=None, alike=False,
-                  top_share=None, fixed_current=False):
+                  top_share=None, fixed_current=False, rising_line=False):
     """The point each candidate sits at along a load curve: the highest stable intersection.
 
     The load curve is parameterised by ``t`` in ``[lo, hi]`` (arrays, one per
@@ -2429,7 +2429,9 @@ def normal_points(circ, lo, hi, v_of=None, il_of=None, grid=NORMAL_POINTS_GRID, 
     row one load current, whatever the voltage) the top share's blocks of
     grid points where the residual provably stays below zero
     (:func:`residual_below_zero`) are not evaluated: no stable crossing can
-    lie there, and the others are evaluated as before.
+    lie there, and the others are evaluated as before. ``rising_line`` does
+    the same along a ``v_of`` whose voltage never falls as the current
+    rises (a resistor such as a welding cable on a stuck electrode).
     """
     n = circ.n
     lo = np.broadcast_to(np.asarray(lo, float), (n,))
@@ -2438,7 +2440,7 @@ def normal_points(circ, lo, hi, v_of=None, il_of=None, grid=NORMAL_POINTS_GRID, 
         first, inverse = identical_rows(circ, lo, hi)
         if first.size < n:
             r = normal_points(circ.subset(first), lo[first], hi[first], v_of, il_of, grid, steps, vi_of,
-                              top_share=top_share, fixed_current=fixed_current)
+                              top_share=top_share, fixed_current=fixed_current, rising_line=rising_line)
             return {k: v[inverse] for k, v in r.items()}
     lin = np.linspace(0.0, 1.0, grid)[None, :]
 
@@ -2456,6 +2458,11 @@ def normal_points(circ, lo, hi, v_of=None, il_of=None, grid=NORMAL_POINTS_GRID, 
         if fixed_current and il_of is not None and bound_holds(circ):
             il_row = np.asarray(il_of(np.zeros((n, 1))), float)[:, 0]
             below = lambda r, va, vb: residual_below_zero(circ, r, va, vb, il_row[r])  # noqa: E731
+        elif rising_line and v_of is not None and bound_holds(circ):
+            def below(r, ta, tb):
+                va, vb = v_of(ta, rows=r[:, 0]), v_of(tb, rows=r[:, 0])
+                # (a block whose voltage falls is not cleared, whatever the caller said of the line)
+                return residual_below_zero(circ, r, va, vb, ta, tb) & (vb >= va)
         j, fa, beyond, found, hi = highest_stable_cell_from_top(circ, lo, hi, lin[0], vi, top_share,
                                                                 SPAN_DOUBLINGS if il_of is not None else 0, below)
     else:
@@ -2580,37 +2587,48 @@ BOUND_BLOCK_POINTS = 6
 
 
 def bound_holds(circ):
-    """Whether :func:`residual_below_zero` may be used on ``circ``: no drive (a fixed speed), an
-    open-circuit curve that never falls, armature reaction that only demagnetises, and resistances,
-    brush drop and speeds that are not negative (every machine file's; checked, not assumed)."""
-    if circ.drive is not None:
-        return False
+    """Whether :func:`residual_below_zero` may be used on ``circ``: an open-circuit curve that never
+    falls, armature reaction that only demagnetises, resistances, brush drop and speeds that are not
+    negative (every machine file's; checked, not assumed), and with a drive a speed held below a
+    known ceiling (:data:`supplycfg.drive.SPEED_CEILING_SHARE` of its no-load speed)."""
     ar = circ.ar
     ar_ok = ar.per_amp >= 0 if ar.table_current_a is None else bool(
         np.all(np.asarray(ar.table_at) >= 0) and np.all(np.diff(ar.table_at) >= 0))
-    return bool(ar_ok and np.all(np.diff(circ.occ.emf_v) >= 0) and circ.vb >= 0 and circ.ir > 0 and circ.nsh > 0
-                and np.all(circ.ra >= 0) and np.all(circ.rbr >= 0) and np.all(circ.s >= 0)
+    drive_ok = circ.drive is None or bool(np.isfinite(circ.drive.s0) and circ.drive.s0 > 0)
+    return bool(ar_ok and drive_ok and np.all(np.diff(circ.occ.emf_v) >= 0) and circ.vb >= 0 and circ.ir > 0
+                and circ.nsh > 0 and np.all(circ.ra >= 0) and np.all(circ.rbr >= 0) and np.all(circ.s >= 0)
                 and np.all((circ.kind != 1) | (circ.rf > 0)))
 
 
-def residual_below_zero(circ, rows, v_lo, v_hi, il):
-    """True where the circuit residual [V] stays below zero for every terminal voltage in
-    ``[v_lo, v_hi]`` [V] at the load current ``il`` [A] (per row; see :func:`bound_holds`).
+def speed_ceiling(circ, p):
+    """Highest speed ratio a residual of ``circ`` may be computed at: the row's own without a drive; with
+    one, the ceiling its coupled speed is held under (the solve keeps every step within it)."""
+    if circ.drive is None:
+        return p["s"]
+    return SPEED_CEILING_SHARE * circ.drive.s0
 
-    At a fixed load current every current rises with the terminal voltage
-    (the shunt field's, the armature's, the series branch's) or stays, so the
-    drops and the voltage together are least at ``v_lo``; the windings' net
-    field is at most the shunt field at ``v_hi`` plus the larger of the
-    series field's two ends, armature reaction only weakens it towards zero,
-    and the open-circuit curve never falls, so the EMF is at most the
-    curve's value there. The residual is at most the difference; a margin
-    far above rounding makes the computed residuals fall below zero too.
+
+def residual_below_zero(circ, rows, v_lo, v_hi, il_lo, il_hi=None):
+    """True where the circuit residual [V] stays below zero between the points ``(v_lo, il_lo)`` and
+    ``(v_hi, il_hi)`` of a load curve along which the terminal voltage and the load current both rise
+    or stay (per row; see :func:`bound_holds`); ``il_hi`` defaults to ``il_lo`` (a fixed load current).
+
+    Every current rises with the terminal voltage and the load current (the
+    shunt field's, the armature's, the series branch's) or stays, so the
+    drops and the voltage together are least at the low end; the windings'
+    net field is at most the shunt field at the high end plus the larger of
+    the series field's two ends, armature reaction only weakens it towards
+    zero, and the open-circuit curve never falls, so the EMF at the test
+    speed is at most the curve's value there, and at most :func:`speed_ceiling`
+    times it at speed. The residual is at most the difference; a margin far
+    above rounding makes the computed residuals fall below zero too.
     """
     p = candidate_params(circ, rows)
-    _, ia_lo, ibr_lo = currents_from_voltage(p, v_lo, il)
-    f_hi, _, ibr_hi = currents_from_voltage(p, v_hi, il)
+    il_hi = il_lo if il_hi is None else il_hi
+    _, ia_lo, ibr_lo = currents_from_voltage(p, v_lo, il_lo)
+    f_hi, _, ibr_hi = currents_from_voltage(p, v_hi, il_hi)
     xw_up = f_hi + np.maximum(p["c"] * ibr_lo, p["c"] * ibr_hi)
-    e_up = p["s"] * circ.occ.emf(np.maximum(xw_up, 0.0))
+    e_up = speed_ceiling(circ, p) * circ.occ.emf(np.maximum(xw_up, 0.0))
     drops = ia_lo * p["ra"] + ibr_lo * p["rbr"] + brush_drop(ia_lo, circ.vb, circ.ir) + v_lo
     with np.errstate(invalid="ignore"):
         return e_up - drops < -1e-9 * (np.abs(e_up) + np.abs(drops) + 1.0)
