@@ -397,8 +397,10 @@ def _weld_current(space, base_idx, u, corner_idx=None):
     """Welding current on the line at every corner (or one), the machine's normal point."""
     job = space.profile.welding
     sub, rows = expand_candidates(space, base_idx, u, corner_idx)
+    # (the conventional load line and the leads: the voltage never falls as the current rises)
     r = normal_points(sub, np.zeros(sub.n), np.full(sub.n, sub.imax),
-                      v_of=lambda t: welding_line_voltage_v(job, t), alike=True)
+                      v_of=lambda t, rows=None: welding_line_voltage_v(job, t), alike=True,
+                      top_share=WELD_SCAN_TOP_SHARE, rising_line=True)
     return r, sub
 
 
@@ -439,6 +441,11 @@ def no_load_voltage_v(sub):
         v[slf] = no_load_voltages(sub.subset(slf))
     return v
 
+
+#: Share of the welding current's scan on its load line (zero to the searched current span) taken from
+#: its top, the line's voltage rising with the current: all of it, since the welding current sits low in
+#: the span, and the blocks above it where the residual provably stays below zero are not evaluated.
+WELD_SCAN_TOP_SHARE = 1.0
 
 #: Share of the stuck-electrode scan (zero to the searched current span) taken from its top, the cable's
 #: line being a resistor: all of it, since the stuck current sits low in the span (3 to 9 % on the demo
