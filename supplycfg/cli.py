@@ -136,7 +136,7 @@ def _add_setting(p, connection_default=None, connection=True):
                    help="winding temperature [degC]; default the machine's reference temperature")
 
 
-def _parser():
+def command_parser():
     top = _Parser(prog="supplycfg", description="Set up a DC generator for a battery, a welding arc or a lighting bus.")
     top.add_argument("--version", action="version", version=f"supplycfg {__version__}")
     sub = top.add_subparsers(dest="command", parser_class=_Parser)
@@ -677,7 +677,7 @@ COMMANDS = {"curve": cmd_curve, "point": cmd_point, "buildup": cmd_buildup, "emf
 def main(argv=None):
     out = sys.stdout
     try:
-        parser = _parser()
+        parser = command_parser()
         args = parser.parse_args(argv)
         if not args.command:
             parser.print_usage(sys.stderr)

@@ -802,7 +802,7 @@ def cli_output(argv, capsys):
 
 def test_every_argument_has_help():
     """--help text for every argument of every command."""
-    parser = cli._parser()
+    parser = cli.command_parser()
     subs = next(a for a in parser._actions if a.__class__.__name__ == "_SubParsersAction")
     for name, sub in subs.choices.items():
         for a in sub._actions:

@@ -320,8 +320,8 @@ def test_file_at_the_bounds_is_accepted_and_searched(tmp_path, capsys):
 
 def test_bench_repeat_is_bounded():
     """Issue 8 item 10: ``bench --repeat`` takes 1 up to its bound, the function refuses more."""
-    assert cli._parser().parse_args(["bench", "--repeat", str(MAX_BENCH_REPEAT)]).repeat == MAX_BENCH_REPEAT
-    assert cli._parser().parse_args(["bench", "--repeat", "1"]).repeat == 1
+    assert cli.command_parser().parse_args(["bench", "--repeat", str(MAX_BENCH_REPEAT)]).repeat == MAX_BENCH_REPEAT
+    assert cli.command_parser().parse_args(["bench", "--repeat", "1"]).repeat == 1
     with pytest.raises(InputError, match="repeat"):
         run_bench(MAX_BENCH_REPEAT + 1)
 

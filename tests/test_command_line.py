@@ -75,7 +75,7 @@ def test_top_1_and_option_1_are_taken(tmp_path, capsys):
     """Issue 8 item 13: the best option alone can be asked for."""
     assert cli.main(["search", str(MACHINE), str(PROFILE), "--top", "1", "--json"]) == 0
     assert len(json.loads(capsys.readouterr().out)["options"]) == 1
-    assert cli._parser().parse_args(["search", "m", "p", "--top", str(cli.MAX_TOP)]).top == cli.MAX_TOP >= 100
+    assert cli.command_parser().parse_args(["search", "m", "p", "--top", str(cli.MAX_TOP)]).top == cli.MAX_TOP >= 100
     out = tmp_path / "best.md"
     assert cli.main(["sheet", str(MACHINE), str(PROFILE), "-o", str(out), "--option", "1"]) == 0
     assert "option 1 of" in out.read_text(encoding="utf-8")
