@@ -1934,6 +1934,50 @@ def _fold_kinks(circ, i, st, j, grid=257):
     return pts
 
 
+def interior_peaks(circ, states):
+    """The curves whose load current peaks inside their samples (a fold), found over all curves at once.
+
+    Returns ``(rows, j, may_kink)``: the curves of three samples or more whose
+    first largest load current (the first NaN if any, as ``argmax``) is not
+    at an end, its sample ``j``, and whether :func:`_fold_kinks` can find a
+    corner there (a self-excited curve, the windings' field not below zero at
+    the three samples, and a knot of the open-circuit curve or of the armature
+    current inside their range; the same numbers it tests). Lists of Python ints and bools.
+    """
+    rows = [i for i, st in enumerate(states) if st is not None and np.size(st["load_current_a"]) >= 3]
+    if not rows:
+        return [], [], []
+    sizes = np.array([np.size(states[i]["load_current_a"]) for i in rows])
+    ends = np.cumsum(sizes)
+    starts = ends - sizes
+    il = np.concatenate([states[i]["load_current_a"] for i in rows])
+    seg = np.repeat(np.arange(len(rows)), sizes)
+    top = np.maximum.reduceat(il, starts)[seg]
+    hit = np.flatnonzero((il == top) | (np.isnan(il) & np.isnan(top)))
+    j = hit[np.searchsorted(hit, starts)] - starts
+    inside = (j > 0) & (j < sizes - 1)
+    r, j = np.flatnonzero(inside), j[inside]
+    if not r.size:
+        return [], [], []
+    at = (starts[r] + j)[:, None] + np.arange(-1, 2)[None, :]
+    idx = np.asarray(rows)[r]
+
+    def window(key):
+        return np.concatenate([states[i][key] for i in rows])[at]
+    ia = window("armature_current_a")
+    xw = window("shunt_field_current_a") + circ.c[idx][:, None] * window("series_branch_current_a")
+    u = xw - circ.ar.mmf(ia) / circ.nsh
+    occ = circ.occ
+    u_knots = occ.field_current_a if occ.interpolation == "linear" else np.zeros(1)
+    ia_knots = np.concatenate([circ.ar.knots(), [circ.ir]])
+
+    def knot_inside(knots, lo, hi):
+        return ((knots[None, :] >= lo[:, None]) & (knots[None, :] <= hi[:, None])).any(axis=1)
+    may = ((circ.kind[idx] == 1) & ~(xw < 0).any(axis=1)
+           & (knot_inside(u_knots, u.min(axis=1), u.max(axis=1)) | knot_inside(ia_knots, ia.min(axis=1), ia.max(axis=1))))
+    return idx.tolist(), j.tolist(), may.tolist()
+
+
 def _refine_folds(circ, states, iterations=2):
     """Largest load current where a curve turns back (the breakdown point) [A].
 
@@ -1947,36 +1991,32 @@ def _refine_folds(circ, states, iterations=2):
     cand, vg, ig, dv = [], [], [], []
     fine = {}
     kinks = {}
-    for i, st in enumerate(states):
-        if st is None:
-            continue
+    rows, peak_at, may_kink = interior_peaks(circ, states)
+    for i, j, maybe in zip(rows, peak_at, may_kink):
+        st = states[i]
         il, v = st["load_current_a"], st["terminal_voltage_v"]
-        if il.size < 3:
-            continue
-        j = int(np.argmax(il))
-        if 0 < j < il.size - 1:
-            vv, yy = v[j - 1:j + 2], il[j - 1:j + 2]
-            spacing = np.ptp(vv)
-            kk = _fold_kinks(circ, i, st, j)
-            if kk:
-                # start from the best exact point, corners included
-                kinks[i] = np.array([k[0] for k in kk])
-                best = max([(float(a), float(b)) for a, b in zip(vv, yy)] + kk, key=lambda q: q[1])
-                cand.append(i); vg.append(best[0]); ig.append(best[1])
-                dv.append(max(spacing / 8, 1e-6))
-                continue
-            # vertex of the parabola IL(V) through the three exact samples (unevenly spaced)
-            with np.errstate(all="ignore"):
-                a2, a1, _ = np.polyfit(vv - vv[1], yy, 2) if np.ptp(vv) > 0 else (0.0, 0.0, 0.0)
-            v0 = vv[1] - a1 / (2 * a2) if a2 < 0 else vv[1]
-            peak = yy[1] - a1 ** 2 / (4 * a2) if a2 < 0 else yy[1]
-            if not (min(vv) <= v0 <= max(vv)) or not yy[1] <= peak <= yy[1] + np.ptp(yy):
-                v0, peak = vv[1], yy[1]
-            if spacing <= FOLD_FINE_SPACING * circ.machine.rated_voltage_v:
-                fine[i] = float(peak)  # dense samples: the parabola is already exact to O(h^3)
-                continue
-            cand.append(i); vg.append(v0); ig.append(peak)
+        vv, yy = v[j - 1:j + 2], il[j - 1:j + 2]
+        spacing = np.ptp(vv)
+        kk = _fold_kinks(circ, i, st, j) if maybe else []
+        if kk:
+            # start from the best exact point, corners included
+            kinks[i] = np.array([k[0] for k in kk])
+            best = max([(float(a), float(b)) for a, b in zip(vv, yy)] + kk, key=lambda q: q[1])
+            cand.append(i); vg.append(best[0]); ig.append(best[1])
             dv.append(max(spacing / 8, 1e-6))
+            continue
+        # vertex of the parabola IL(V) through the three exact samples (unevenly spaced)
+        with np.errstate(all="ignore"):
+            a2, a1, _ = np.polyfit(vv - vv[1], yy, 2) if np.ptp(vv) > 0 else (0.0, 0.0, 0.0)
+        v0 = vv[1] - a1 / (2 * a2) if a2 < 0 else vv[1]
+        peak = yy[1] - a1 ** 2 / (4 * a2) if a2 < 0 else yy[1]
+        if not (min(vv) <= v0 <= max(vv)) or not yy[1] <= peak <= yy[1] + np.ptp(yy):
+            v0, peak = vv[1], yy[1]
+        if spacing <= FOLD_FINE_SPACING * circ.machine.rated_voltage_v:
+            fine[i] = float(peak)  # dense samples: the parabola is already exact to O(h^3)
+            continue
+        cand.append(i); vg.append(v0); ig.append(peak)
+        dv.append(max(spacing / 8, 1e-6))
     if not cand:
         return fine
     cand = np.array(cand); vs = np.array(vg, float); il_best = np.array(ig, float); d = np.array(dv, float)

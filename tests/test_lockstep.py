@@ -123,3 +123,30 @@ def test_nonzero_rows_cols_is_numpys_nonzero():
             for g, w in zip(got, want):
                 assert g.dtype == w.dtype
                 np.testing.assert_array_equal(g, w)
+
+
+def test_interior_peaks_are_argmax_per_curve():
+    """The folds' peaks found over all curves at once are each curve's ``np.argmax`` (the first NaN if any),
+    kept only inside its samples; short curves and missing ones are skipped; only a self-excited curve
+    may have a corner there."""
+    m = load_machine(Path(__file__).resolve().parents[1] / "profiles" / "machines" / "charging-set.toml")
+    circ = circuit.build_circuit(m, grid_settings(m, rheostats=3))
+    rng = np.random.default_rng(8)
+    states = []
+    for i in range(circ.n):
+        size = int(rng.choice([0, 1, 2, 3, 4, 30]))
+        il = rng.normal(size=size)
+        if size and i % 5 == 0:
+            il[rng.integers(size)] = np.nan
+        if size and i % 7 == 0:
+            il[:] = 1.0  # ties: the first
+        states.append(None if i % 11 == 0 else {
+            "load_current_a": il, "terminal_voltage_v": rng.uniform(0, 100, size),
+            "armature_current_a": rng.uniform(0, 50, size), "shunt_field_current_a": rng.uniform(0, 2, size),
+            "series_branch_current_a": rng.uniform(0, 50, size)})
+    rows, js, may = circuit.interior_peaks(circ, states)
+    want = [(i, int(np.argmax(s["load_current_a"]))) for i, s in enumerate(states)
+            if s is not None and s["load_current_a"].size >= 3
+            and 0 < int(np.argmax(s["load_current_a"])) < s["load_current_a"].size - 1]
+    assert list(zip(rows, js)) == want and len(want) > 10
+    assert all(circ.kind[i] == 1 for i, m_ in zip(rows, may) if m_)
