@@ -1844,15 +1844,16 @@ def characteristics_of(circ, points=400):
                 states[i] = {k: (val[sl_i] if np.ndim(val) else val) for k, val in st_s.items()}
     wants_sc = [states[i] is not None and short_circuit_wanted(circ, i, states[i], notes[i], i in at_zero)
                 for i in range(n)]
-    ops = _refine_batch(circ, states, wants_sc)
-    folds = _refine_folds(circ, states)
-    result = [None] * n
     done = [i for i in range(n) if states[i] is not None]
+    stack = CurveStack(states, done)
+    ops = _refine_batch(circ, stack, wants_sc)
+    folds = _refine_folds(circ, stack)
+    result = [None] * n
     for i in range(n):
         if states[i] is None:
             result[i] = Characteristic(circ.settings[i], {k: np.zeros(0) for k in POINT_KEYS + ("extrapolated",)},
                                        None, None, None, None, False, False, notes[i], [notes[i]] if notes[i] else [])
-    for i, ch in zip(done, finish_curves(circ, done, states, notes, ops, folds, wants_sc)):
+    for i, ch in zip(done, finish_curves(circ, stack, notes, ops, folds, wants_sc)):
         result[i] = ch
     if done:
         # the power flow along every curve in one call, split back by candidate
@@ -1934,38 +1935,67 @@ def _fold_kinks(circ, i, st, j, grid=257):
     return pts
 
 
-def interior_peaks(circ, states):
+class CurveStack:
+    """The samples of curves ``rows`` end to end, for the steps that finish them all at once.
+
+    Curve ``q`` (candidate ``rows[q]``) is ``starts[q]:ends[q]`` of every
+    column; :meth:`column` concatenates a key's samples once and keeps them
+    (read, never written: a step that puts points in works on a copy).
+    """
+
+    def __init__(self, states, rows):
+        self.states, self.rows = states, list(rows)
+        self.sizes = np.array([np.size(states[i]["terminal_voltage_v"]) for i in self.rows], int)
+        self.ends = np.cumsum(self.sizes)
+        self.starts = self.ends - self.sizes
+        self._columns = {}
+
+    def column(self, key):
+        """Every curve's ``key`` samples, end to end."""
+        if key not in self._columns:
+            self._columns[key] = (np.concatenate([self.states[i][key] for i in self.rows]) if self.rows
+                                  else np.zeros(0))
+        return self._columns[key]
+
+    def first_true(self, flags):
+        """Per curve: the index into the columns of its first sample where ``flags`` holds, -1 where none."""
+        hit = np.flatnonzero(flags)
+        k = np.searchsorted(hit, self.starts)
+        at = hit[np.minimum(k, hit.size - 1)] if hit.size else np.zeros(self.starts.size, int)
+        return np.where((k < hit.size) & (at < self.ends), at, -1)
+
+    def first_argmax(self, values):
+        """Per curve: the index into the columns of its first largest value (its first NaN if it has
+        any, as ``np.argmax``); -1 for a curve without samples."""
+        some = self.sizes > 0
+        if not some.any():
+            return np.full(self.sizes.size, -1)
+        top = np.full(self.sizes.size, np.nan)
+        top[some] = np.maximum.reduceat(values, self.starts[some])
+        t = np.repeat(top, self.sizes)
+        return self.first_true((values == t) | (np.isnan(values) & np.isnan(t)))
+
+
+def interior_peaks(circ, stack):
     """The curves whose load current peaks inside their samples (a fold), found over all curves at once.
 
-    Returns ``(rows, j, may_kink)``: the curves of three samples or more whose
-    first largest load current (the first NaN if any, as ``argmax``) is not
-    at an end, its sample ``j``, and whether :func:`_fold_kinks` can find a
-    corner there (a self-excited curve, the windings' field not below zero at
-    the three samples, and a knot of the open-circuit curve or of the armature
-    current inside their range; the same numbers it tests). Lists of Python ints and bools.
+    Returns ``(rows, j, may_kink)`` for the curves of ``stack`` (a
+    :class:`CurveStack`): those of three samples or more whose first largest
+    load current (the first NaN if any, as ``argmax``) is not at an end, its
+    sample ``j``, and whether :func:`_fold_kinks` can find a corner there (a
+    self-excited curve, the windings' field not below zero at the three
+    samples, and a knot of the open-circuit curve or of the armature current
+    inside their range; the same numbers it tests). Lists of Python ints and bools.
     """
-    rows = [i for i, st in enumerate(states) if st is not None and np.size(st["load_current_a"]) >= 3]
-    if not rows:
-        return [], [], []
-    sizes = np.array([np.size(states[i]["load_current_a"]) for i in rows])
-    ends = np.cumsum(sizes)
-    starts = ends - sizes
-    il = np.concatenate([states[i]["load_current_a"] for i in rows])
-    seg = np.repeat(np.arange(len(rows)), sizes)
-    top = np.maximum.reduceat(il, starts)[seg]
-    hit = np.flatnonzero((il == top) | (np.isnan(il) & np.isnan(top)))
-    j = hit[np.searchsorted(hit, starts)] - starts
-    inside = (j > 0) & (j < sizes - 1)
+    j = stack.first_argmax(stack.column("load_current_a")) - stack.starts
+    inside = (stack.sizes >= 3) & (j > 0) & (j < stack.sizes - 1)
     r, j = np.flatnonzero(inside), j[inside]
     if not r.size:
         return [], [], []
-    at = (starts[r] + j)[:, None] + np.arange(-1, 2)[None, :]
-    idx = np.asarray(rows)[r]
-
-    def window(key):
-        return np.concatenate([states[i][key] for i in rows])[at]
-    ia = window("armature_current_a")
-    xw = window("shunt_field_current_a") + circ.c[idx][:, None] * window("series_branch_current_a")
+    at = (stack.starts[r] + j)[:, None] + np.arange(-1, 2)[None, :]
+    idx = np.asarray(stack.rows)[r]
+    ia = stack.column("armature_current_a")[at]
+    xw = stack.column("shunt_field_current_a")[at] + circ.c[idx][:, None] * stack.column("series_branch_current_a")[at]
     u = xw - circ.ar.mmf(ia) / circ.nsh
     occ = circ.occ
     u_knots = occ.field_current_a if occ.interpolation == "linear" else np.zeros(1)
@@ -1978,7 +2008,7 @@ def interior_peaks(circ, states):
     return idx.tolist(), j.tolist(), may.tolist()
 
 
-def _refine_folds(circ, states, iterations=2):
+def _refine_folds(circ, stack, iterations=2):
     """Largest load current where a curve turns back (the breakdown point) [A].
 
     Near the fold the load current is a smooth function of terminal voltage;
@@ -1991,9 +2021,9 @@ def _refine_folds(circ, states, iterations=2):
     cand, vg, ig, dv = [], [], [], []
     fine = {}
     kinks = {}
-    rows, peak_at, may_kink = interior_peaks(circ, states)
+    rows, peak_at, may_kink = interior_peaks(circ, stack)
     for i, j, maybe in zip(rows, peak_at, may_kink):
-        st = states[i]
+        st = stack.states[i]
         il, v = st["load_current_a"], st["terminal_voltage_v"]
         vv, yy = v[j - 1:j + 2], il[j - 1:j + 2]
         spacing = np.ptp(vv)
@@ -2093,8 +2123,9 @@ def load_current_at_voltage_near(circ, idx, v, guess, span, grid=33):
 EXACT_POINT_WINDOW_GRID = 33
 
 
-def _refine_batch(circ, states, wants_sc=None):
-    """Exact no-load, short-circuit and full-load points near each curve's samples.
+def _refine_batch(circ, stack, wants_sc=None):
+    """Exact no-load, short-circuit and full-load points near the samples of each curve of ``stack``
+    (a :class:`CurveStack`).
 
     Full load: the rated current in the armature (the load current is less
     by the shunt-field current of a self-excited connection). The short
@@ -2105,22 +2136,17 @@ def _refine_batch(circ, states, wants_sc=None):
     rated = m.rated_armature_current_a
     idx, loads, w0, w1, who = [], [], [], [], []
     vtop = voltage_span(circ, np.arange(circ.n)).tolist()
-    rows = [i for i, st in enumerate(states) if st is not None]
+    rows = stack.rows
     out = {i: [None, None, None] for i in range(circ.n)}
     if rows:
-        # every curve's first sample, last sample and first sample at rated armature current, in one pass
-        # over all curves (each curve has at least its no-load sample)
-        sizes = np.array([np.size(states[i]["terminal_voltage_v"]) for i in rows])
-        ends = np.cumsum(sizes)
-        starts = ends - sizes
-        v_all = np.concatenate([states[i]["terminal_voltage_v"] for i in rows])
-        il_last = np.concatenate([states[i]["load_current_a"] for i in rows])[ends - 1].tolist()
-        up = np.flatnonzero(np.concatenate([states[i]["armature_current_a"] for i in rows]) >= rated)
-        at = np.searchsorted(up, starts)
-        k_up = np.minimum(at, max(up.size - 1, 0))
-        has_up = ((at < up.size) & (up[k_up] < ends) if up.size else np.zeros(len(rows), bool)).tolist()
-        v_first = v_all[starts].tolist()
-        v_up = v_all[up[k_up] if up.size else starts].tolist()
+        # every curve's first sample, last sample and first sample at rated armature current (each curve
+        # has at least its no-load sample)
+        v_all = stack.column("terminal_voltage_v")
+        il_last = stack.column("load_current_a")[stack.ends - 1].tolist()
+        up = stack.first_true(stack.column("armature_current_a") >= rated)
+        has_up = (up >= 0).tolist()
+        v_first = v_all[stack.starts].tolist()
+        v_up = v_all[np.where(up >= 0, up, stack.starts)].tolist()
     for q, i in enumerate(rows):
         guesses = [(Load.constant_current(0.0), (v_first[q] / vtop[i] + 1) / 2, 0.015)]
         if wants_sc is None or wants_sc[i]:
@@ -2186,26 +2212,24 @@ def _explicit_state(circ, p, ia):
     return machine_state(circ, p, v, ia)
 
 
-def finish_curves(circ, rows, states, notes, ops, folds, wants_sc):
-    """Characteristics of candidates ``rows`` from their traced samples, the exact points put in.
+def finish_curves(circ, stack, notes, ops, folds, wants_sc):
+    """Characteristics of the curves of ``stack`` (a :class:`CurveStack`), the exact points put in.
 
-    ``states[i]`` the samples of curve ``i`` (the :data:`POINT_KEYS` and the
-    field ``x``), ``ops[i]`` its exact no-load, short-circuit and full-load
-    points (:func:`_refine_batch`), ``folds`` the refined breakdown currents
+    Each curve's samples hold the :data:`POINT_KEYS` and the field ``x``;
+    ``ops[i]`` are its exact no-load, short-circuit and full-load points
+    (:func:`_refine_batch`), ``folds`` the refined breakdown currents
     (:func:`_refine_folds`), ``wants_sc[i]`` as :func:`short_circuit_wanted`
     said. All curves' samples are worked in one array (each curve's points
     are its slice of it); only the choice among each curve's few exact points
     is made curve by curve, in Python numbers.
     """
+    rows, sizes, starts, ends = stack.rows, stack.sizes, stack.starts, stack.ends
     if not rows:
         return []
     m = circ.machine
-    sizes = np.array([np.size(states[i]["terminal_voltage_v"]) for i in rows])
-    ends = np.cumsum(sizes)
-    starts = ends - sizes
-    # (a curve's arrays are 1-D of its size: a scalar cannot be concatenated, so it would not pass silently)
-    pts = {k: np.asarray(np.concatenate([states[i][k] for i in rows]), float) for k in POINT_KEYS}
-    pts["extrapolated"] = circ.occ.extrapolated(np.concatenate([states[i]["x"] for i in rows]))
+    # copies: the exact points are put into them, and each curve keeps its slice
+    pts = {k: stack.column(k).astype(float) for k in POINT_KEYS}
+    pts["extrapolated"] = circ.occ.extrapolated(stack.column("x"))
     ne = sizes > 0
     # the traced ends, before the exact points replace them
     last = np.maximum(ends - 1, 0)
@@ -2227,27 +2251,16 @@ def finish_curves(circ, rows, states, notes, ops, folds, wants_sc):
         for k in POINT_KEYS + ("extrapolated",):
             pts[k][where] = [d[k] for d in at.values()]
     v, ilp, ia = pts["terminal_voltage_v"], pts["load_current_a"], pts["armature_current_a"]
-    # per curve: the first largest load current (the first NaN if any, as argmax), any point at or below
-    # zero volts, any extrapolated point, the first sample at rated armature current
-    seg = np.repeat(np.arange(len(rows)), sizes)
-    peak_at = np.zeros(len(rows), int)
-    any_low = np.zeros(len(rows), bool)
-    any_ext = np.zeros(len(rows), bool)
-    if ne.any():
-        top = np.maximum.reduceat(ilp, starts[ne])
-        topr = np.full(len(rows), np.nan)
-        topr[ne] = top
-        t = topr[seg]
-        hit = np.flatnonzero((ilp == t) | (np.isnan(ilp) & np.isnan(t)))
-        peak_at[ne] = hit[np.searchsorted(hit, starts[ne])] - starts[ne]
-        any_low[ne] = np.logical_or.reduceat(v <= 0, starts[ne])
-        any_ext[ne] = np.logical_or.reduceat(pts["extrapolated"], starts[ne])
-    up = np.flatnonzero(ia >= m.rated_armature_current_a)
-    k_up = np.searchsorted(up, starts)
-    c_up = np.where(k_up < up.size, up[np.minimum(k_up, max(up.size - 1, 0))] if up.size else 0, -1)
-    has_up = (k_up < up.size) & (c_up < ends)
+    # per curve: the first largest load current, any point at or below zero volts, any extrapolated
+    # point, the first sample at rated armature current
+    peak = stack.first_argmax(ilp)
+    any_low = stack.first_true(v <= 0) >= 0
+    any_ext = stack.first_true(pts["extrapolated"]) >= 0
+    c_up = stack.first_true(ia >= m.rated_armature_current_a)
+    has_up = c_up >= 0
     # the samples the choices below read, as Python numbers
-    peak_il = ilp[np.where(ne, starts + peak_at, 0)].tolist() if v.size else [math.nan] * len(rows)
+    peak_il = ilp[np.where(peak >= 0, peak, 0)].tolist() if v.size else [math.nan] * len(rows)
+    peak_at = (peak - starts).tolist()
     c_at = np.where(has_up, c_up, 0)
     near = [x.tolist() for x in (v[np.minimum(np.maximum(c_at - 1, starts), v.size - 1)], v[c_at], ilp[c_at])] if v.size else [[]] * 3
     out = []
@@ -2257,7 +2270,7 @@ def finish_curves(circ, rows, states, notes, ops, folds, wants_sc):
         sc = sc_of[r]["load_current_a"] if sc_of[r] is not None else None
         imax = None
         if n_i >= 3:
-            j = int(peak_at[r])
+            j = peak_at[r]
             fold = folds.get(i)
             imax = fold if (0 < j < n_i - 1 and fold is not None) else peak_il[r]
         if sc is None and not any_low[r]:

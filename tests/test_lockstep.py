@@ -128,7 +128,7 @@ def test_nonzero_rows_cols_is_numpys_nonzero():
 def test_interior_peaks_are_argmax_per_curve():
     """The folds' peaks found over all curves at once are each curve's ``np.argmax`` (the first NaN if any),
     kept only inside its samples; short curves and missing ones are skipped; only a self-excited curve
-    may have a corner there."""
+    may have a corner there. The stack's first sample where a condition holds is ``np.flatnonzero``'s."""
     m = load_machine(Path(__file__).resolve().parents[1] / "profiles" / "machines" / "charging-set.toml")
     circ = circuit.build_circuit(m, grid_settings(m, rheostats=3))
     rng = np.random.default_rng(8)
@@ -144,9 +144,15 @@ def test_interior_peaks_are_argmax_per_curve():
             "load_current_a": il, "terminal_voltage_v": rng.uniform(0, 100, size),
             "armature_current_a": rng.uniform(0, 50, size), "shunt_field_current_a": rng.uniform(0, 2, size),
             "series_branch_current_a": rng.uniform(0, 50, size)})
-    rows, js, may = circuit.interior_peaks(circ, states)
+    stack = circuit.CurveStack(states, [i for i, s in enumerate(states) if s is not None])
+    rows, js, may = circuit.interior_peaks(circ, stack)
     want = [(i, int(np.argmax(s["load_current_a"]))) for i, s in enumerate(states)
             if s is not None and s["load_current_a"].size >= 3
             and 0 < int(np.argmax(s["load_current_a"])) < s["load_current_a"].size - 1]
     assert list(zip(rows, js)) == want and len(want) > 10
     assert all(circ.kind[i] == 1 for i, m_ in zip(rows, may) if m_)
+    # the first sample where a condition holds, per curve (-1 where none)
+    first = stack.first_true(stack.column("armature_current_a") >= 25.0)
+    for q, i in enumerate(stack.rows):
+        hit = np.flatnonzero(states[i]["armature_current_a"] >= 25.0)
+        assert first[q] == (stack.starts[q] + hit[0] if hit.size else -1)
