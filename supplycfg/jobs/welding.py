@@ -393,6 +393,13 @@ def solve_weld_control(space, base_idx, corner_idx, target_a):
     return u, ok
 
 
+#: Share of a scan from zero to the searched current span taken from its top, along the welding load
+#: line and along the cable on a stuck electrode (each voltage rising with the current): all of it,
+#: since both currents sit low in the span (3 to 9 % on the demo set), and the blocks above them where
+#: the residual provably stays below zero are not evaluated.
+CURRENT_SCAN_TOP_SHARE = 1.0
+
+
 def _weld_current(space, base_idx, u, corner_idx=None):
     """Welding current on the line at every corner (or one), the machine's normal point."""
     job = space.profile.welding
@@ -400,7 +407,7 @@ def _weld_current(space, base_idx, u, corner_idx=None):
     # (the conventional load line and the leads: the voltage never falls as the current rises)
     r = normal_points(sub, np.zeros(sub.n), np.full(sub.n, sub.imax),
                       v_of=lambda t, rows=None: welding_line_voltage_v(job, t), alike=True,
-                      top_share=WELD_SCAN_TOP_SHARE, rising_line=True)
+                      top_share=CURRENT_SCAN_TOP_SHARE, rising_line=True)
     return r, sub
 
 
@@ -441,16 +448,6 @@ def no_load_voltage_v(sub):
         v[slf] = no_load_voltages(sub.subset(slf))
     return v
 
-
-#: Share of the welding current's scan on its load line (zero to the searched current span) taken from
-#: its top, the line's voltage rising with the current: all of it, since the welding current sits low in
-#: the span, and the blocks above it where the residual provably stays below zero are not evaluated.
-WELD_SCAN_TOP_SHARE = 1.0
-
-#: Share of the stuck-electrode scan (zero to the searched current span) taken from its top, the cable's
-#: line being a resistor: all of it, since the stuck current sits low in the span (3 to 9 % on the demo
-#: set), and the blocks above it where the residual provably stays below zero are not evaluated.
-STUCK_SCAN_TOP_SHARE = 1.0
 
 #: While a row's band is searched its current is looked for within this share of the
 #: target either side, on a coarse grid (the row's own point was found on the full span).
@@ -515,7 +512,7 @@ def evaluate_rows(space, base_idx, u, target_a, near=False, lazy=False):
         subs, _ = expand_candidates(space, base_idx[k], u[k], np.full(k.size, strong))
         rs = normal_points(subs, np.zeros(k.size), np.full(k.size, subs.imax),
                            v_of=lambda t, rows=None: job.cable_resistance_ohm * t, alike=True,
-                           top_share=STUCK_SCAN_TOP_SHARE, rising_line=True, **({"grid": 33} if near else {}))
+                           top_share=CURRENT_SCAN_TOP_SHARE, rising_line=True, **({"grid": 33} if near else {}))
         ev["short_circuit_current_a"][k] = np.where(rs["found"], rs["load_current_a"], np.nan)
         converged[k] &= rs["converged"]
     ev.update(armature_current_a=rn["armature_current_a"], x=rn["x"], generated_emf_v=rn["generated_emf_v"],
