@@ -1884,6 +1884,20 @@ def short_circuit_wanted(circ, i, state, note, at_zero):
     return bool(v.size > 1 and (np.any(v <= 0) or ended_at_zero or (circ.kind[i] != 1 and "stays above" not in note)))
 
 
+def fold_corner_knots(circ):
+    """Where a curve's load current can turn back at a corner: ``(u_knots, ia_knots)``.
+
+    The net field's knots (those of a linear open-circuit curve, and zero,
+    where armature reaction meets the windings' field) [A], and the armature
+    current's (the armature-reaction table's and the end of the brush-drop
+    ramp) [A]. :func:`_fold_kinks` solves the corners inside a fold's samples;
+    :func:`interior_peaks` tells, from the same knots, where it can find one.
+    """
+    occ = circ.occ
+    u_knots = occ.field_current_a if occ.interpolation == "linear" else np.zeros(1)
+    return u_knots, np.concatenate([circ.ar.knots(), [circ.ir]])
+
+
 def _fold_kinks(circ, i, st, j, grid=257):
     """Exact curve points near sample ``j`` where the load current may turn back at a corner.
 
@@ -1904,10 +1918,8 @@ def _fold_kinks(circ, i, st, j, grid=257):
     u_s = xw - circ.ar.mmf(ia_s) / circ.nsh
     vlo, vhi = float(v_s.min()), float(v_s.max())
     p1 = candidate_params(circ, np.array([i]))
-    occ = circ.occ
-    u_knots = occ.field_current_a if occ.interpolation == "linear" else np.zeros(1)
+    u_knots, ia_knots = fold_corner_knots(circ)
     u_knots = u_knots[(u_knots >= u_s.min()) & (u_knots <= u_s.max())]
-    ia_knots = np.concatenate([circ.ar.knots(), [circ.ir]])
     ia_knots = ia_knots[(ia_knots >= ia_s.min()) & (ia_knots <= ia_s.max())]
     out = []
 
@@ -1997,9 +2009,7 @@ def interior_peaks(circ, stack):
     ia = stack.column("armature_current_a")[at]
     xw = stack.column("shunt_field_current_a")[at] + circ.c[idx][:, None] * stack.column("series_branch_current_a")[at]
     u = xw - circ.ar.mmf(ia) / circ.nsh
-    occ = circ.occ
-    u_knots = occ.field_current_a if occ.interpolation == "linear" else np.zeros(1)
-    ia_knots = np.concatenate([circ.ar.knots(), [circ.ir]])
+    u_knots, ia_knots = fold_corner_knots(circ)
 
     def knot_inside(knots, lo, hi):
         return ((knots[None, :] >= lo[:, None]) & (knots[None, :] <= hi[:, None])).any(axis=1)
