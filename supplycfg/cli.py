@@ -19,7 +19,7 @@ from .errors import InputError
 from .bench import MAX_BENCH_REPEAT
 from .files import check_output_path, dumps_json
 from .text import visible
-from .wording import source_text
+from .wording import connection_words, source_text
 
 SETTING_OPTIONS = {"rheostat_ohm": "--rheostat-ohm", "field_current_a": "--field-current-a",
                    "series_turns": "--series-turns", "diverter_ohm": "--diverter-ohm",
@@ -379,7 +379,7 @@ def cmd_curve(args, out):
            "converged": c.converged, "notes": c.notes, "cautions": [x.as_dict() for x in cautions]}
     if args.json:
         return res
-    lines = [f"{_name(m, args)}: {st.connection}, {st.describe()}",
+    lines = [f"{_name(m, args)}: {connection_words(st.connection)}, {st.describe()}",
              f"no-load voltage {_fmt(c.no_load_voltage_v, 'V')}; short-circuit current {_fmt(c.short_circuit_current_a, 'A')}; "
              f"largest load current {_fmt(c.max_load_current_a, 'A')}; regulation to full load (rated armature current) "
              f"{_fmt(c.regulation_percent, '%', '.3g')}",
@@ -458,7 +458,7 @@ def cmd_point(args, out):
            "message": ops.message, "cautions": [c.as_dict() for c in cautions], "converged": ops.converged}
     if args.json:
         return res
-    lines = [f"{_name(m, args)}: {st.connection}, {st.describe()}; load: {load.label}", ""]
+    lines = [f"{_name(m, args)}: {connection_words(st.connection)}, {st.describe()}; load: {load.label}", ""]
     if pts:
         lines.append(table(pts, ["terminal_voltage_v", "load_current_a", "armature_current_a", "shunt_field_current_a",
                                  "series_field_current_a", "generated_emf_v", "speed_rpm", "shaft_power_kw",

@@ -475,6 +475,27 @@ def _num(v, f=".3g"):
     return "-" if v is None else format(v, f)
 
 
+def _dedupe_order(items):
+    """The items once each, in the order first met."""
+    return list(dict.fromkeys(items))
+
+
+def _runs_alike(pairs):
+    """``[(rank, text), ...]`` grouped into runs of consecutive ranks with the same text: ``[(ranks, text)]``."""
+    runs = []
+    for rank, text in pairs:
+        if runs and runs[-1][1] == text and runs[-1][0][-1] == rank - 1:
+            runs[-1][0].append(rank)
+        else:
+            runs.append(([rank], text))
+    return runs
+
+
+def _ranks_text(ranks):
+    """'option 3' or 'options 3 to 10' (``ranks`` consecutive)."""
+    return f"option {ranks[0]}" if len(ranks) == 1 else f"options {ranks[0]} to {ranks[-1]}"
+
+
 def _table(headers, rows):
     """Fixed-width table: right-aligned columns, one header line, one rule."""
     widths = [max(len(h), *(len(r[i]) for r in rows)) if rows else len(h) for i, h in enumerate(headers)]
@@ -600,6 +621,7 @@ def at_machine_lines(option, profile):
 def search_text(res, top=10):
     """The ranked table a technician reads, the stated ranking rule and the best option's details."""
     from .report import KIND_WORDS, condition_words, figure_label, limit_label
+    from .wording import connection_words
     kind = res.profile.kind
     lines = [f"{visible(res.machine.label)} for {visible(res.profile.label)} ({KIND_WORDS.get(kind, kind)})",
              f"drive: {res.profile.drive.describe()}",
@@ -615,7 +637,7 @@ def search_text(res, top=10):
         s = o.setting
         rh, fh = _field_cells(o)
         fit = "yes" if o.feasible else ("no" if o.usable else "NOT USABLE")
-        row = [str(o.rank), fit, s.connection, _num(s.series_turns or 0, "g"),
+        row = [str(o.rank), fit, connection_words(s.connection), _num(s.series_turns or 0, "g"),
                "none" if s.diverter_ohm is None else f"{s.diverter_ohm:g}", rh, fh, f"{s.speed_rpm:.0f}",
                "-" if not math.isfinite(o.smallest_margin) else f"{100 * o.smallest_margin:.1f}"]
         sev = sorted({c.severity for c in o.cautions}, key=["stop", "warn", "note"].index)
@@ -629,12 +651,16 @@ def search_text(res, top=10):
         if o.extrapolated:
             tail.append("needs the open-circuit curve beyond its last measured point")
         if tail:
-            tails.append(f"  option {o.rank}: " + "; ".join(tail))
+            tails.append((o.rank, "; ".join(tail)))
     lines += _table(hdr, rows)
     lines.append("Rheostat and field: meter readings, rounded to what can be set"
                  + ("; for welding, at the low end of the dial." if welding else "."))
+    shown = _dedupe_order(o.setting.connection for o in res.options[:top])
+    if shown:
+        lines.append("Connections as the other commands take them (--connection):")
+        lines += [f"  {connection_words(c)}: {c}" for c in shown]
     if tails:
-        lines += ["", "Limits broken:"] + tails
+        lines += ["", "Limits broken:"] + [f"  {_ranks_text(ranks)}: {text}" for ranks, text in _runs_alike(tails)]
     if res.options:
         best = res.options[0]
         lines += ["", f"Option {best.rank} at the machine:"] + at_machine_lines(best, res.profile)

@@ -775,6 +775,24 @@ def test_search_text_is_readable(capsys):
     assert float(first["rheostat [ohm]"]) == o.extras["dial"][0]["readings"]["rheostat_ohm"]
 
 
+def test_search_text_names_connections_in_trade_words(capsys):
+    """Issue 13's words on the command line too: the table says "short-shunt cumulative compound", lists the
+    id that --connection takes for each connection shown, and says a broken limit shared by a run of ranks
+    once (the lighting demo's separately excited options each need the exciter the machine lacks)."""
+    out = cli_output(["search", str(MACHINES / "lighting-set.toml"), str(LOADS / "lighting.toml")], capsys)
+    table = out.split("----")[-1].split("Rheostat and field")[0]
+    assert "short-shunt cumulative compound" in table and "short-shunt-cumulative" not in table
+    ids = out.split("(--connection):")[1].split("\n\n")[0].splitlines()
+    assert "  short-shunt cumulative compound: short-shunt-cumulative" in ids
+    res = demo("lighting")[2]
+    words = [w.split(": ")[1] for w in ids if w.strip()]
+    assert words == list(dict.fromkeys(o.setting.connection for o in res.options[:10]))
+    broken = out.split("Limits broken:")[1].split("\n\n")[0].strip().splitlines()
+    told = [o.rank for o in res.options[:10] if not o.feasible]
+    assert len(broken) < len(told), broken
+    assert broken[0].startswith(f"options {told[0]} to ")
+
+
 def test_search_text_says_each_figure_once(capsys):
     """Regression: the battery demo printed its start current at the hot corner twice (the hot corner
     is the nominal one on the demo's motor); a figure line that reads the same is said once."""
