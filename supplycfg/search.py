@@ -492,8 +492,10 @@ def _runs_alike(pairs):
 
 
 def _ranks_text(ranks):
-    """'option 3' or 'options 3 to 10' (``ranks`` consecutive)."""
-    return f"option {ranks[0]}" if len(ranks) == 1 else f"options {ranks[0]} to {ranks[-1]}"
+    """'option 3', 'options 3 and 4' or 'options 3 to 10' (``ranks`` consecutive)."""
+    if len(ranks) == 1:
+        return f"option {ranks[0]}"
+    return f"options {ranks[0]} {'and' if len(ranks) == 2 else 'to'} {ranks[-1]}"
 
 
 def _table(headers, rows):
@@ -655,7 +657,7 @@ def search_text(res, top=10):
     lines += _table(hdr, rows)
     lines.append("Rheostat and field: meter readings, rounded to what can be set"
                  + ("; for welding, at the low end of the dial." if welding else "."))
-    shown = _dedupe_order(o.setting.connection for o in res.options[:top])
+    shown = [c for c in _dedupe_order(o.setting.connection for o in res.options[:top]) if connection_words(c) != c]
     if shown:
         lines.append("Connections as the other commands take them (--connection):")
         lines += [f"  {connection_words(c)}: {c}" for c in shown]

@@ -791,6 +791,9 @@ def test_search_text_names_connections_in_trade_words(capsys):
     told = [o.rank for o in res.options[:10] if not o.feasible]
     assert len(broken) < len(told), broken
     assert broken[0].startswith(f"options {told[0]} to ")
+    # the booster's only connection is "series" in both: no list that repeats it
+    out = cli_output(["search", str(MACHINES / "feeder-booster.toml"), str(LOADS / "booster.toml")], capsys)
+    assert "(--connection):" not in out and "series: series" not in out
 
 
 def test_search_text_says_each_figure_once(capsys):
