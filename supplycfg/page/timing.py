@@ -6,6 +6,10 @@ session with the solve caches emptied (search, charge run, charts included).
 the curves moved to a value not drawn before, so the curves are recomputed.
 ``browser_render_seconds``: in Debian's chromium, from opening the demo page
 to its last chart drawn (the server's caches warm); skipped without chromium.
+``browser_floor_seconds``: the same for a bare Streamlit page with a title and
+three 20-point line charts, loaded in turn with the demo page in the same
+run: what Streamlit and Vega cost on this machine before the page adds
+anything.
 """
 
 import statistics
@@ -110,11 +114,23 @@ def _free_port():
         return s.getsockname()[1]
 
 
-class PageServer:
-    """``streamlit run app.py`` on loopback in a subprocess, ended on exit (``with PageServer() as url``)."""
+#: The bare page of ``browser_floor_seconds``: a title and three small Vega-Lite line charts.
+FLOOR_PAGE = """import streamlit as st
+st.title("floor")
+for i in range(3):
+    st.vega_lite_chart({"data": {"values": [{"x": k, "y": k * k} for k in range(20)]}, "mark": "line",
+                        "encoding": {"x": {"field": "x", "type": "quantitative"},
+                                     "y": {"field": "y", "type": "quantitative"}}}, key=f"floor{i}")
+"""
 
-    def __init__(self):
+
+class PageServer:
+    """``streamlit run app.py`` (or ``script``) on loopback in a subprocess, ended on exit
+    (``with PageServer() as url``)."""
+
+    def __init__(self, script=None):
         self.proc = None
+        self.script = script
 
     def __enter__(self):
         import os
@@ -122,10 +138,11 @@ class PageServer:
         import sys
         import urllib.request
         root = app_path().parent
+        script = Path(self.script) if self.script else app_path()
         port = _free_port()
         env = dict(os.environ, PYTHONPATH=str(root) + os.pathsep + os.environ.get("PYTHONPATH", ""))
         self.proc = subprocess.Popen(
-            [sys.executable, "-m", "streamlit", "run", str(app_path()), "--server.headless", "true",
+            [sys.executable, "-m", "streamlit", "run", str(script), "--server.headless", "true",
              "--server.address", "127.0.0.1", "--server.port", str(port), "--browser.gatherUsageStats", "false"],
             cwd=root, env=env, stdout=subprocess.PIPE, stderr=subprocess.STDOUT)
         url = f"http://127.0.0.1:{port}"
@@ -176,10 +193,18 @@ def load_and_render_seconds(browser, url, width=1400, height=900, charts=DEMO_CH
 
 
 def time_browser(repeat=3):
-    """Median seconds from load to the last chart of the demo page in chromium (``browser_render_seconds``).
+    """Median seconds from load to the last chart in chromium: the demo page and the bare floor page.
 
-    Returns None when chromium or playwright is not installed.
+    The two pages are loaded in turn, each after one untimed load, so both
+    medians come from the same minutes of a noisy machine.
+
+    Returns
+    -------
+    dict or None
+        ``{"browser_render_seconds": float, "browser_floor_seconds": float}``;
+        None when chromium or playwright is not installed.
     """
+    import tempfile
     exe = chromium_path()
     if exe is None:
         return None
@@ -187,13 +212,19 @@ def time_browser(repeat=3):
         from playwright.sync_api import sync_playwright
     except ImportError:
         return None
-    times = []
-    with PageServer() as url, sync_playwright() as pw:
-        browser = pw.chromium.launch(executable_path=exe, args=CHROMIUM_ARGS)
-        try:
-            load_and_render_seconds(browser, url)  # warm-up: the server's first run fills its caches
-            for _ in range(max(1, int(repeat))):
-                times.append(load_and_render_seconds(browser, url))
-        finally:
-            browser.close()
-    return statistics.median(times)
+    page_times, floor_times = [], []
+    with tempfile.TemporaryDirectory() as d:
+        floor = Path(d) / "floor_page.py"
+        floor.write_text(FLOOR_PAGE, encoding="utf-8")
+        with PageServer() as url, PageServer(floor) as floor_url, sync_playwright() as pw:
+            browser = pw.chromium.launch(executable_path=exe, args=CHROMIUM_ARGS)
+            try:
+                load_and_render_seconds(browser, url)  # warm-up: the server's first run fills its caches
+                load_and_render_seconds(browser, floor_url, charts=3)
+                for _ in range(max(1, int(repeat))):
+                    page_times.append(load_and_render_seconds(browser, url))
+                    floor_times.append(load_and_render_seconds(browser, floor_url, charts=3))
+            finally:
+                browser.close()
+    return {"browser_render_seconds": statistics.median(page_times),
+            "browser_floor_seconds": statistics.median(floor_times)}
