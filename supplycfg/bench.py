@@ -102,19 +102,24 @@ def compare_answers(now, ref):
     -------
     dict
         ``lost``, ``gained`` (option keys), ``missing`` (options of the
-        reference not found now), ``largest_relative_difference`` and
-        ``where`` (option key and figure).
+        reference not found now), ``largest_relative_difference``,
+        ``where`` (option key and figure) and ``added`` (numbers given now
+        that the reference lacks: new figures, not changed answers; one the
+        reference has and the answer lacks counts as an infinite difference).
     """
     a, b = now["options"], ref["options"]
     feas_now = {k for k, v in a.items() if v["feasible"]}
     feas_ref = {k for k, v in b.items() if v["feasible"]}
-    worst, where = 0.0, None
+    worst, where, added = 0.0, None, set()
     for k in sorted(set(a) & set(b)):
         x, y = _numbers(a[k]), _numbers(b[k])
         for name in sorted(set(x) | set(y)):
             if name == "rank":
                 continue
-            if (name in x) != (name in y):
+            if name not in y:
+                added.add(name)  # a figure the reference did not have yet: new, not a changed answer
+                continue
+            if name not in x:
                 d = float("inf")
             else:
                 scale = max(abs(x[name]), abs(y[name]))
@@ -122,7 +127,8 @@ def compare_answers(now, ref):
             if d > worst:
                 worst, where = d, f"{k} {name}"
     return {"lost": sorted(feas_ref - feas_now), "gained": sorted(feas_now - feas_ref),
-            "missing": sorted(set(b) - set(a)), "largest_relative_difference": worst, "where": where}
+            "missing": sorted(set(b) - set(a)), "largest_relative_difference": worst, "where": where,
+            "added": sorted(added)}
 
 
 def reference_differences(results=None):
@@ -478,8 +484,10 @@ def bench_text(res):
         gained = sum(len(v["gained"]) for v in ref.values())
         missing = sum(len(v["missing"]) for v in ref.values())
         job, worst = max(((k, v) for k, v in ref.items()), key=lambda kv: kv[1]["largest_relative_difference"])
+        added = sorted({n for v in ref.values() for n in v.get("added", [])})
         lines.append(f"against the reference answers ({len(ref)} demo jobs): feasible options lost {lost}, "
                      f"gained {gained}, options missing {missing}; largest relative difference "
                      f"{worst['largest_relative_difference']:.2g}"
-                     + (f" ({job}: {worst['where']})" if worst["where"] else ""))
+                     + (f" ({job}: {worst['where']})" if worst["where"] else "")
+                     + (f"; new figures the references lack: {', '.join(added)}" if added else ""))
     return "\n".join(lines)

@@ -3,6 +3,7 @@
 Nothing here is timed (speed lives in ``supplycfg bench`` itself).
 """
 
+import copy
 import tomllib
 
 import pytest
@@ -27,6 +28,13 @@ def test_compare_counts_feasible_options_lost_and_gained():
     assert out["where"] == "c figures.v"
     same = bench.compare_answers(ref, ref)
     assert same["largest_relative_difference"] == 0.0 and not same["lost"] and not same["gained"]
+    # a figure the reference lacks is new, not a change; one the answer lost is an infinite difference
+    more = copy.deepcopy(ref)
+    more["options"]["c"]["figures"]["w"] = 1.0
+    out = bench.compare_answers(more, ref)
+    assert out["added"] == ["figures.w"] and out["largest_relative_difference"] == 0.0
+    out = bench.compare_answers(ref, more)
+    assert out["largest_relative_difference"] == float("inf") and out["where"] == "c figures.w"
 
 
 def test_stored_references_cover_the_demo_jobs():
