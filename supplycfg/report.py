@@ -576,8 +576,18 @@ def objective_value(option, kind):
         band = [m.get("fraction") for k, m in (option.margins or {}).items() if k.startswith("load_voltage")]
         band = [b for b in band if _given(b)]
         if band:
-            return min(band), f"band margin {fmt(100 * min(band), '%')}"
+            return min(band), f"band margin {100 * min(band):.3g} %"
     return None, None
+
+
+#: What the better objective is, per job, for the ranking line's tie that the objective settles.
+BETTER_OBJECTIVE_WORDS = {"battery": "the quicker charge", "welding": "the dial with fewer tap changes",
+                          "lighting": "the wider band margin", "booster": "the wider band margin"}
+
+
+#: The simpler rig in words, by what :func:`supplycfg.search.tie_break` says tells two rigs apart.
+RIG_WORDS = {"diverter": "no diverter", "series turns": "fewer series turns in circuit",
+             "exciter": "no exciter needed"}
 
 
 def ranking_line(result, option):
@@ -602,29 +612,48 @@ def ranking_line(result, option):
     if option is feasible[0]:
         nxt = others[0]
         _, nwords = objective_value(nxt, kind)
+        if not (words and nwords):
+            return (f"Ranked first of {len(feasible)} settings that meet every limit: its tightest limit keeps "
+                    f"{margin} margin (next, option {nxt.rank}: {fmt(100 * nxt.smallest_margin, '%')}).")
         from .search import OBJECTIVE_TIE_FRACTION, tie_break
         why = tie_break(option, nxt)
-        if words and nwords and kind == "battery":
-            head = f"Ranked first of {len(feasible)} settings that meet every limit: {words}"
-            if why == "objective":
-                return f"{head} (next, option {nxt.rank}: {nwords})."
-            tied = (f"; option {nxt.rank} ({nwords}) is within {100 * OBJECTIVE_TIE_FRACTION:g} %, a tie, "
-                    f"and the tie goes to ")
-            if why == "margin":
-                return (f"{head}{tied}the larger least margin: {100 * option.smallest_margin:.1f} % against "
-                        f"{100 * nxt.smallest_margin:.1f} %.")
-            if why == "objective-in-tie":
-                return (f"{head}; option {nxt.rank} ({nwords}) is within {100 * OBJECTIVE_TIE_FRACTION:g} %, a tie, "
-                        f"and with the same rig and least margins alike to 0.1 % ({100 * option.smallest_margin:.1f} %) "
-                        f"the quicker charge ranks first.")
-            if why == "order":
-                return f"{head}{tied}neither: they are alike by every rule, listed in a fixed order."
-            return f"{head}{tied}the simpler rig (fewer {why} " + ("in circuit)." if why == "series turns" else "needed).")
-        return (f"Ranked first of {len(feasible)} settings that meet every limit: its tightest limit keeps "
-                f"{margin} margin (next, option {nxt.rank}: {fmt(100 * nxt.smallest_margin, '%')}).")
+        head = f"Ranked first of {len(feasible)} settings that meet every limit: {words}"
+        if why == "objective":
+            return f"{head} (next, option {nxt.rank}: {nwords})."
+        same = option.objective == nxt.objective
+        within = f"within {100 * OBJECTIVE_TIE_FRACTION:g} %"
+        tied = (f", as option {nxt.rank}; the tie goes to " if same
+                else f"; option {nxt.rank} ({nwords}) is {within}, a tie, and the tie goes to ")
+        if why == "margin":
+            return (f"{head}{tied}the larger least margin: {100 * option.smallest_margin:.1f} % against "
+                    f"{100 * nxt.smallest_margin:.1f} %.")
+        if why == "objective-in-tie":
+            return (f"{head}; option {nxt.rank} ({nwords}) is {within}, a tie, "
+                    f"and with the same rig and least margins alike to 0.1 % ({100 * option.smallest_margin:.1f} %) "
+                    f"{BETTER_OBJECTIVE_WORDS.get(kind, 'the better objective')} ranks first.")
+        if why == "order":
+            return f"{head}{tied}neither: they are alike by every rule, listed in a fixed order."
+        return f"{head}{tied}the simpler rig ({RIG_WORDS[why]})."
     best = feasible[0]
-    return (f"Meets every limit; ranked {option.rank} of {len(feasible)}: its tightest limit keeps {margin} margin "
-            f"(option {best.rank}: {fmt(100 * best.smallest_margin, '%')}).")
+    head = f"Meets every limit; ranked {option.rank} of {len(feasible)}"
+    _, bwords = objective_value(best, kind)
+    if not (words and bwords):
+        return (f"{head}: its tightest limit keeps {margin} margin "
+                f"(option {best.rank}: {fmt(100 * best.smallest_margin, '%')}).")
+    from .search import tie_break
+    why = tie_break(best, option)
+    if why == "objective":
+        return f"{head}: {words} against option {best.rank}'s {bwords}."
+    tie = f"{head}: {words}, a tie with option {best.rank} ({bwords}), "
+    if why == "margin":
+        return (f"{tie}which keeps the larger least margin: {100 * best.smallest_margin:.1f} % against "
+                f"{100 * option.smallest_margin:.1f} %.")
+    if why == "objective-in-tie":
+        return (f"{tie}alike in rig and least margin; option {best.rank} has "
+                f"{BETTER_OBJECTIVE_WORDS.get(kind, 'the better objective')}.")
+    if why == "order":
+        return f"{tie}alike by every rule; listed in a fixed order."
+    return f"{tie}which has the simpler rig ({RIG_WORDS[why]})."
 
 
 # --- checks at the machine ---------------------------------------------------
@@ -659,13 +688,25 @@ def checklist_rows(result, option, run=None):
              "machine + to load +" if kind != "booster" else "booster adds to the bus voltage")]
     nl = _range_text(f.get("no_load_voltage_min_v"), f.get("no_load_voltage_max_v"), "V")
     if kind == "welding":
-        lo = [cs.get("no_load_voltage_v") for cs in o.current_settings or [] if _given(cs.get("no_load_voltage_v"))]
-        nl = _range_text(min(lo), max(lo), "V") if lo else fmt(f.get("max_no_load_voltage_v"), "V")
+        ends = [cs for cs in o.current_settings or [] if _given(cs.get("no_load_voltage_v"))]
+        if len(ends) == 2 and all(_given(cs.get("current_a")) for cs in ends):
+            nl = " to ".join(f"{fmt(cs['no_load_voltage_v'], 'V')} at the {fmt(cs['current_a'], 'A')} setting"
+                             for cs in ends)
+        elif ends:
+            lo = [cs["no_load_voltage_v"] for cs in ends]
+            nl = _range_text(min(lo), max(lo), "V")
+        else:
+            nl = fmt(f.get("max_no_load_voltage_v"), "V")
     if kind != "booster":
         rows.append(("No-load voltage at speed, load off", nl or note))
     fr = [how for what, how in readings_rows(o) if what == "Field ammeter reads"]
+    hot = [_mapping(_mapping(_mapping(r).get("readings")).get("field_current_a")).get("hot")
+           for r in option_value(o, "dial") or []]
+    hot = [h for h in hot if _given(h)]
     if fr:
         field = fr[0]
+    elif hot:
+        field = f"as the dial's row: {_range_text(min(hot), max(hot), 'A')} with hot windings"
     elif s.connection == "series":
         field = "no shunt field"
     elif s.field_current_a is not None:
@@ -712,15 +753,35 @@ def checklist_rows(result, option, run=None):
             vent = _caution_figure(result, o, "battery-ventilation", "ventilation_m3_per_h")
         rows.append(("Battery-room ventilation running", f"at least {fmt(vent, 'm³/h')}" if _given(vent) else "running"))
     if kind == "welding":
-        limits = [mm.get("limit") for k, mm in (o.margins or {}).items() if k.startswith("no_load")]
-        limits = [x for x in limits if _given(x)]
-        top = f.get("max_no_load_voltage_v")
-        rows.append(("No-load voltage against the limit",
-                     f"{fmt(top, 'V')}, below {fmt(min(limits), 'V')}" if limits and _given(top) else note))
+        rows.append(("No-load voltage against the limits", no_load_limit_text(o.margins) or note))
         rows.append(("No tap change under load", "taps and diverter changed only with the arc out"))
     if s.connection != "series":
         rows.append(("Field discharge path fitted (discharge resistor or freewheel path)", "fitted"))
     return rows
+
+
+#: The welding no-load limits in the checklist's words, in the order said (the margins' names of the welding job).
+NO_LOAD_LIMIT_WORDS = (("no_load_mean_voltage", "mean"), ("no_load_peak_voltage", "peak"),
+                       ("no_load_strike_voltage", "to strike an arc"))
+
+
+def no_load_limit_text(margins):
+    """The welding set's no-load voltages against their limits, e.g. ``mean 86.67 V ≤ 100 V; ...``.
+
+    Each upper limit against the highest no-load voltage over the dial and
+    the envelope, the strike minimum against the lowest; '' when the margins
+    carry none of them.
+    """
+    parts = []
+    for name, words in NO_LOAD_LIMIT_WORDS:
+        m = _mapping((margins or {}).get(name))
+        if not (_given(m.get("value")) and _given(m.get("limit"))):
+            continue
+        if m.get("kind") == "min":
+            parts.append(f"lowest {fmt(m['value'], 'V')} ≥ {fmt(m['limit'], 'V')} {words}")
+        else:
+            parts.append(f"{words} {fmt(m['value'], 'V')} ≤ {fmt(m['limit'], 'V')}")
+    return "; ".join(parts)
 
 
 def job_rows(profile):
@@ -842,7 +903,8 @@ def _date(date):
     return (date or _dt.date.today()).isoformat() if not isinstance(date, str) else date
 
 
-def _cautions_pointer(option, result, where="on the next page"):
+def cautions_pointer(option, result, where="on the next page"):
+    """One line: how many warnings and notes the setting and the job carry, and where to read them."""
     counts = {}
     for c in list(option.cautions) + list(result.cautions):
         if c.severity != "stop":
@@ -918,7 +980,7 @@ def sheet_markdown(result, rank=None, run=None, date=None):
     lines += ["## Wiring", ""] + [f"{k}. {md_esc(step)}" for k, step in enumerate(w.steps, 1)] + [""]
     lines += ["## Check at the machine", ""]
     lines += _md_table(CHECKLIST_HEADERS, [(c, e, "", "") for c, e in checklist_rows(result, o, run)]) + [""]
-    lines += [md_esc(_cautions_pointer(o, result, "below")), "", "---", ""]
+    lines += [md_esc(cautions_pointer(o, result, "below")), "", "---", ""]
     lines += ["## What to expect", ""] + _md_table(("Figure", "Value"), figure_rows(o)) + [""]
     lines += ["## Limits and margins", ""]
     lines += _md_table(("Limit", "Value", "Limit value", "Margin", "Margin of limit", "Status"), margin_rows(o)) + [""]
@@ -1123,7 +1185,7 @@ def sheet_html(result, rank=None, run=None, date=None, charts=True, svgs=None):
         parts += ["<h2>STOP: do not use this setting as it stands</h2>", _html_cautions(stops)]
     parts.append(card_html(result, o, run, wiring_svg_for(result, o)))
     parts += ["<h2>Check at the machine</h2>", checklist_html(result, o, run),
-              f'<p class="pointer">{esc(_cautions_pointer(o, result))}</p>',
+              f'<p class="pointer">{esc(cautions_pointer(o, result))}</p>',
               f'<p class="notice small">{esc(STANDING_NOTICE)}</p>', "</section>"]
     parts.append('<section class="later">')
     if dial_rows(o):

@@ -622,7 +622,7 @@ def at_machine_lines(option, profile):
 
 def search_text(res, top=10):
     """The ranked table a technician reads, the stated ranking rule and the best option's details."""
-    from .report import KIND_WORDS, condition_words, figure_label, limit_label
+    from .report import KIND_WORDS, condition_words, figure_label, limit_label, ranking_line
     from .wording import connection_words
     kind = res.profile.kind
     lines = [f"{visible(res.machine.label)} for {visible(res.profile.label)} ({KIND_WORDS.get(kind, kind)})",
@@ -665,6 +665,7 @@ def search_text(res, top=10):
         lines += ["", "Limits broken:"] + [f"  {_ranks_text(ranks)}: {text}" for ranks, text in _runs_alike(tails)]
     if res.options:
         best = res.options[0]
+        lines += ["", f"Why option {best.rank}: {ranking_line(res, best)}"]
         lines += ["", f"Option {best.rank} at the machine:"] + at_machine_lines(best, res.profile)
         lines += ["", f"Option {best.rank} in figures:"]
         at = condition_words(best)

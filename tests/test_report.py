@@ -8,6 +8,7 @@ import subprocess
 from pathlib import Path
 
 import pytest
+from numpy.testing import assert_allclose
 
 from supplycfg import STANDING_NOTICE, __version__, report
 from supplycfg.cli import main as cli_main
@@ -241,7 +242,7 @@ def test_sheet_leads_with_card_wiring_and_checklist(results, kind):
         assert any(r.startswith("Battery-room ventilation") for r in rows)
         assert any(r.startswith("Charging current at the start") for r in rows)
     if kind == "welding":
-        assert any(r.startswith("No-load voltage against the limit") for r in rows)
+        assert any(r.startswith("No-load voltage against the limits") for r in rows)
         assert any(r.startswith("No tap change under load") for r in rows)
     if kind != "booster":
         assert any(r.startswith("No-load voltage at speed") for r in rows)
@@ -342,3 +343,72 @@ def test_printed_page_one_holds_the_card_and_the_checklist(results, kind, tmp_pa
     assert "Field discharge path fitted" in text
     assert "What to expect" not in text
     assert ("Welding dial" in text) if kind == "welding" else ("Charge plan" in text)
+
+
+@pytest.mark.parametrize("kind", list(PAIRS))
+def test_ranking_line_says_the_reason_the_rule_gives(results, kind):
+    """Regression: every job but the battery's gave the least margins as the reason rank 1 beats rank 2, even
+    where rank 1 has the smaller margin and won a tie on the simpler rig (the welding demo: 0 tap changes each,
+    3 series turns against 5; the booster: no diverter). The line says what ``tie_break`` says, for rank 1
+    and for every other option that meets every limit (against option 1)."""
+    from supplycfg.search import tie_break
+    res = results[kind]
+    feasible = [o for o in res.options if o.feasible]
+    assert len(feasible) >= 2
+    best = feasible[0]
+    for o in feasible[1:]:
+        why = tie_break(best, o)
+        lines = [report.ranking_line(res, o)] + ([report.ranking_line(res, best)] if o is feasible[1] else [])
+        for line in lines:
+            if why in report.RIG_WORDS:
+                assert report.RIG_WORDS[why] in line, line
+            if why != "margin":
+                assert "least margin:" not in line and "tightest limit" not in line, line
+        assert f"option {best.rank}" in report.ranking_line(res, o)
+        if o is feasible[1]:
+            first = report.ranking_line(res, best)
+            assert first.startswith("Ranked first of") and f"option {o.rank}" in first
+    if kind == "welding":
+        assert tie_break(best, feasible[1]) == "series turns"
+        assert "the simpler rig (fewer series turns in circuit)" in report.ranking_line(res, best)
+
+
+def test_welding_checklist_sets_each_no_load_limit_the_right_way(results):
+    """Regression: the welding checklist read "86.67 V, below 50 V", the strike minimum given as the upper
+    limit. Each upper limit (site mean, IEC 60974-1's 113 V peak) is said with its own voltage and '≤', the
+    strike minimum (common practice, 50 V for manual metal arc) with the lowest no-load voltage and '≥'."""
+    res = results["welding"]
+    o = res.options[0]
+    row = dict(report.checklist_rows(res, o))["No-load voltage against the limits"]
+    m = o.margins
+    assert f"mean {report.fmt(m['no_load_mean_voltage']['value'], 'V')} ≤ 100 V" in row
+    assert f"peak {report.fmt(m['no_load_peak_voltage']['value'], 'V')} ≤ 113 V" in row
+    assert f"lowest {report.fmt(m['no_load_strike_voltage']['value'], 'V')} ≥ 50 V" in row
+    assert "below 50" not in row
+
+
+def test_checklist_gives_expected_values_where_the_core_has_them(results):
+    """Regression: the lighting checklist asked to "note the reading" of the no-load voltage and the welding one
+    of the field ammeter, though the core knows both. Lighting: the no-load voltage over the envelope (the
+    figures ``no_load_voltage_min_v``/``max_v``, solved at the chosen field; cross-checked against a fresh
+    :func:`supplycfg.circuit.external_characteristic` at the hot corner, 1e-3 relative for the rheostat's
+    rounding to its reading). Welding: each end's no-load voltage with its current, and the dial's hot readings."""
+    from dataclasses import replace as _r
+    from supplycfg.circuit import external_characteristic
+    res = results["lighting"]
+    o = res.options[0]
+    rows = dict(report.checklist_rows(res, o))
+    lo, hi = o.figures["no_load_voltage_min_v"], o.figures["no_load_voltage_max_v"]
+    assert rows["No-load voltage at speed, load off"] == f"{report.fmt(lo)} to {report.fmt(hi, 'V')}"
+    hot = max(res.profile.temperatures_c)
+    ch = external_characteristic(res.machine, _r(o.setting, winding_temperature_c=hot), 50)
+    assert_allclose(ch.no_load_voltage_v, lo, rtol=1e-3)
+    res = results["welding"]
+    o = res.options[0]
+    rows = dict(report.checklist_rows(res, o))
+    ends = o.current_settings
+    assert rows["No-load voltage at speed, load off"].startswith(
+        f"{report.fmt(ends[0]['no_load_voltage_v'], 'V')} at the {report.fmt(ends[0]['current_a'], 'A')} setting")
+    hots = [r["readings"]["field_current_a"]["hot"] for r in o.extras["dial"]]
+    assert rows["Field current on the field ammeter"] == (
+        f"as the dial's row: {report.fmt(min(hots))} to {report.fmt(max(hots), 'A')} with hot windings")

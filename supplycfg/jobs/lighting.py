@@ -8,7 +8,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from ..circuit import (NORMAL_POINTS_GRID, candidate_params, machine_state, normal_points,
+from ..circuit import (NORMAL_POINTS_GRID, candidate_params, machine_state, no_load_voltages, normal_points,
                        terminal_voltage_at_armature_current, voltage_span)
 from ..envelope import (COARSE, FINE, critical_resistance_ratios, expand_candidates, optimise_control,
                         worst_over_corners)
@@ -215,6 +215,20 @@ def evaluate_feeder(space, base_idx, u, booster=False, res=COARSE):
     return lim, figs
 
 
+def no_load_voltage_figures(space, u):
+    """The machine's terminal voltage with the load off, lowest and highest over the envelope [V].
+
+    What the technician reads on the voltmeter at speed before closing onto
+    the feeder (the checklist's expected value); at the chosen control values
+    ``u`` only, so the search's rounds do not pay for it.
+    """
+    n = len(space.bases)
+    sub, _ = expand_candidates(space, np.arange(n), u)
+    vnl = no_load_voltages(sub)
+    return {"no_load_voltage_min_v": worst_over_corners(vnl, n, space.nc, "min"),
+            "no_load_voltage_max_v": worst_over_corners(vnl, n, space.nc, "max")}
+
+
 def evaluate(space, base_idx, u, res=COARSE):
     """Limits and figures of lighting candidates ``(base, control value)`` over the envelope."""
     return evaluate_feeder(space, base_idx, u, False, res)
@@ -228,6 +242,7 @@ def solve(space, advice=True):
     """
     u, evaluated = optimise_control(space, evaluate)
     lim, figs = evaluate(space, np.arange(len(space.bases)), u, FINE)
+    figs.update(no_load_voltage_figures(space, u))
     if not advice:
         return u, lim, figs, [{"readings": None, "band": None} for _ in space.bases], evaluated
     extras, n = option_advice(space, evaluate, u, lim, no_load_setting_field)

@@ -12,7 +12,8 @@ from .. import STANDING_NOTICE
 from ..errors import InputError
 from ..files import dumps_json, write_atomic
 from ..report import (CARD_PLAN_HEADERS, CHECKLIST_HEADERS, CURRENT_SETTING_HEADERS, DIAL_HEADERS, PLAN_HEADERS, SEVERITY_WORDS,
-                      card_plan_rows, checklist_rows, condition_words, current_setting_rows, cutout_rows, dial_rows, esc,
+                      card_plan_rows, cautions_pointer, checklist_rows, condition_words, current_setting_rows, cutout_rows,
+                      dial_rows, esc,
                       field_control_text, figure_rows, fmt, limit_label, margin_rows, md_data, md_esc, objective_value,
                       plan_table, ranking_line, ranking_rule, run_rows, run_summary, setting_rows, severity_counts,
                       sheet_markdown, sorted_cautions, status_text)
@@ -102,10 +103,9 @@ def recommended_card(result, run=None, box=None):
             st.markdown(_md(run_summary(run)))
         st.markdown("**Check at the machine**")
         _table(CHECKLIST_HEADERS[:2], checklist_rows(result, o, run))
-        n = {s: sum(c.severity == s for c in list(o.cautions) + list(result.cautions)) for s in ("warn", "note")}
-        if n["warn"] or n["note"]:
-            st.caption(f"{n['warn']} warning(s) and {n['note']} note(s) for this setting: see *Cautions* under "
-                       "*In detail* below. The printable sheet has all of it on its first page.")
+        if any(c.severity in ("warn", "note") for c in list(o.cautions) + list(result.cautions)):
+            st.caption(md_esc(cautions_pointer(o, result, "under Cautions, further down this page,"))
+                       + " The printable sheet has all of it on its first page.")
 
 
 # ---------------------------------------------------------------------------
