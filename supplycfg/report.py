@@ -708,15 +708,21 @@ def checklist_rows(result, option, run=None):
     elif hot:
         field = f"as the dial's row: {_range_text(min(hot), max(hot), 'A')} with hot windings"
     elif s.connection == "series":
-        field = "no shunt field"
+        top = f.get("max_armature_current_a")
+        field = ("no shunt field; the series field carries the load current, up to " + fmt(top, "A")
+                 if _given(top) else "no shunt field")
     elif s.field_current_a is not None:
         field = fmt(s.field_current_a, "A")
     else:
         field = note
     rows.append(("Field current on the field ammeter", field))
     if kind == "battery":
-        rows.append(("Charging current at the start", _range_text(f.get("start_charge_current_min_a"),
-                                                                 f.get("start_charge_current_a"), "A") or note))
+        hot, cold = f.get("start_charge_current_hot_a"), f.get("start_charge_current_cold_a")
+        if _given(hot) and _given(cold) and abs(cold - hot) > 1e-9 * max(1.0, abs(cold)):
+            start = f"{fmt(hot, 'A')} with hot windings, {fmt(cold, 'A')} cold"
+        else:
+            start = fmt(f.get("start_charge_current_a"), "A") if _given(f.get("start_charge_current_a")) else note
+        rows.append(("Charging current at the start", start))
     elif kind == "welding":
         rows.append(("Short-circuit current (electrode stuck), at the top setting",
                      fmt(f.get("stuck_electrode_current_a"), "A") if _given(f.get("stuck_electrode_current_a")) else note))

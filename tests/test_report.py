@@ -412,3 +412,19 @@ def test_checklist_gives_expected_values_where_the_core_has_them(results):
     hots = [r["readings"]["field_current_a"]["hot"] for r in o.extras["dial"]]
     assert rows["Field current on the field ammeter"] == (
         f"as the dial's row: {report.fmt(min(hots))} to {report.fmt(max(hots), 'A')} with hot windings")
+
+
+def test_checklist_start_current_and_series_field_rows(results):
+    """Regression: the battery checklist gave the start current at the nominal corner alone (19.93 A) while the
+    cold windings drive 21.34 A, and the booster's field row said only "no shunt field". Now the start current
+    with hot and cold windings (the figures of the battery job), and the current the series field carries."""
+    res = results["battery"]
+    o = res.options[0]
+    f = o.figures
+    row = dict(report.checklist_rows(res, o))["Charging current at the start"]
+    assert row == (f"{report.fmt(f['start_charge_current_hot_a'], 'A')} with hot windings, "
+                   f"{report.fmt(f['start_charge_current_cold_a'], 'A')} cold")
+    res = results["booster"]
+    o = res.options[0]
+    row = dict(report.checklist_rows(res, o))["Field current on the field ammeter"]
+    assert row.endswith(f"up to {report.fmt(o.figures['max_armature_current_a'], 'A')}")
