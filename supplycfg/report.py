@@ -250,6 +250,8 @@ def figure_rows(option):
     rows = []
     at = condition_words(option)
     for k, v in option.figures.items():
+        if v is None:
+            continue  # a figure that does not apply to this setting (the idle of an engine on a motor drive)
         words, unit = figure_label(k)
         row = (words.format(**at) if "{" in words else words, fmt(v, unit))
         # two corners that coincide (hot windings at the nominal speed) read the same: say it once
@@ -542,6 +544,7 @@ RANKING_RULE = ("Settings that meet every limit come first, the one whose tighte
 
 
 def ranking_rule(result):
+    """The stated ranking rule of a result, without its own "Ranking:" lead (shown after a heading that says it)."""
     rule = getattr(result, "ranking_rule", None)
     if rule is None and hasattr(result, "as_dict"):
         try:
@@ -550,7 +553,12 @@ def ranking_rule(result):
             rule = None
     if isinstance(rule, dict):
         rule = rule.get("text") or rule.get("rule")
-    return str(rule) if rule else RANKING_RULE
+    rule = str(rule) if rule else RANKING_RULE
+    # shown after a heading of its own ("Ranked by:"), the rule's own "Ranking:" would say it twice
+    if rule.startswith("Ranking: "):
+        rule = rule[len("Ranking: "):]
+        rule = rule[:1].upper() + rule[1:]
+    return rule
 
 
 def objective_value(option, kind):
@@ -965,7 +973,7 @@ def sheet_markdown(result, rank=None, run=None, date=None):
              f"**Job:** {md_data(p.label or p.kind)} ({KIND_WORDS.get(p.kind, p.kind)})  ",
              f"**Chosen:** {md_esc(status_text(o, len(result.options)))}  ",
              f"**Made by:** supplycfg {__version__} on {_date(date)}  ",
-             f"**Ranked by:** {md_esc(result.ranking_rule)}", ""]
+             f"**Ranked by:** {md_esc(ranking_rule(result))}", ""]
     if stops:
         lines += ["## STOP: do not use this setting as it stands", ""] + _md_cautions(stops) + [""]
     lines += ["## Set the machine like this", "", f"*{md_esc(ranking_line(result, o))}*", ""]

@@ -428,3 +428,17 @@ def test_checklist_start_current_and_series_field_rows(results):
     o = res.options[0]
     row = dict(report.checklist_rows(res, o))["Field current on the field ammeter"]
     assert row.endswith(f"up to {report.fmt(o.figures['max_armature_current_a'], 'A')}")
+
+
+def test_sheet_says_the_rule_once_and_leaves_out_figures_that_do_not_apply(results):
+    """Regression: the sheet read "Ranked by: Ranking: options that ..." and listed "no-load voltage at the
+    engine's idle: –" for the battery demo, whose drive is a motor (the figure is None there)."""
+    res = results["battery"]
+    o = res.options[0]
+    assert any(v is None for v in o.figures.values())
+    md = report.sheet_markdown(res, date="2031-05-04")
+    html = report.sheet_html(res, charts=False, date="2031-05-04")
+    assert "Ranking:" not in md and "Ranking:" not in html
+    assert "**Ranked by:** Options that meet every limit first" in md
+    assert all(value != "–" for _, value in report.figure_rows(o))
+    assert "engine's idle" not in md
