@@ -686,14 +686,19 @@ def _caution_figure(result, option, rule, key):
     return None
 
 
+#: What the polarity check expects, per job (the welding leads as the wiring drawing puts them: electrode on +).
+POLARITY_WORDS = {None: "machine + to load +", "battery": "machine + to battery +",
+                  "booster": "booster adds to the bus voltage",
+                  "welding": "electrode lead on + and work lead on −, or as the electrode's maker asks"}
+
+
 def checklist_rows(result, option, run=None):
     """``[(check, expected)]`` to tick off at the machine, for the job; the sheet adds Measured and Initials."""
     p, o = result.profile, option
     f, s = o.figures or {}, o.setting
     kind = p.kind
     note = "note the reading"
-    rows = [("Polarity checked with a voltmeter before closing onto the load",
-             "machine + to load +" if kind != "booster" else "booster adds to the bus voltage")]
+    rows = [("Polarity checked with a voltmeter before closing onto the load", POLARITY_WORDS.get(kind, POLARITY_WORDS[None]))]
     nl = _range_text(f.get("no_load_voltage_min_v"), f.get("no_load_voltage_max_v"), "V")
     if kind == "welding":
         ends = [cs for cs in o.current_settings or [] if _given(cs.get("no_load_voltage_v"))]

@@ -442,3 +442,17 @@ def test_sheet_says_the_rule_once_and_leaves_out_figures_that_do_not_apply(resul
     assert "**Ranked by:** Options that meet every limit first" in md
     assert all(value != "–" for _, value in report.figure_rows(o))
     assert "engine's idle" not in md
+
+
+def test_polarity_check_names_the_welding_leads(results):
+    """Regression: the welding checklist asked for "machine + to load +", which names no lead; the wiring puts the
+    electrode on + (electrode positive), and the check says so with the electrode maker's word as the exception."""
+    for kind, want in (("welding", "electrode lead on +"), ("battery", "machine + to battery +"),
+                       ("lighting", "machine + to load +"), ("booster", "booster adds to the bus voltage")):
+        res = results[kind]
+        rows = dict(report.checklist_rows(res, res.options[0]))
+        assert rows["Polarity checked with a voltmeter before closing onto the load"].startswith(want)
+    from supplycfg.wiring import wiring
+    res = results["welding"]
+    steps = wiring(res.machine, res.options[0].setting, "welding").steps
+    assert any(step.startswith("+ line") and "to the electrode" in step for step in steps)
