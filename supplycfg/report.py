@@ -314,6 +314,27 @@ def field_control_text(option, machine=None):
     return f"field rheostat {fmt(s.rheostat_ohm, 'Ω')}"
 
 
+def field_reading_text(option):
+    """The field as set at the machine, rounded to what can be set: ``rheostat 30.7 Ω, reads 0.99 A hot``.
+
+    The option's meter readings (for a welding option, its dial's first
+    row, the low end of the range); the exact setting where it has none.
+    """
+    r = _mapping(option_value(option, "readings"))
+    dial = option_value(option, "dial") or []
+    if not r and dial:
+        r = _mapping(_mapping(dial[0]).get("readings"))
+    s = option.setting
+    hot = _mapping(r.get("field_current_a")).get("hot")
+    if s.connection == "series" or not r:
+        return field_control_text(option).replace("field rheostat", "rheostat").replace("exciter field current", "field")
+    reads = f", reads {fmt(hot, 'A')} hot" if _given(hot) else ""
+    if _given(r.get("rheostat_ohm")):
+        return f"rheostat {fmt(r['rheostat_ohm'], 'Ω')}{reads}" + (" (dial's low end)" if dial else "")
+    return (f"field {fmt(hot, 'A')} hot" if _given(hot) else field_control_text(option)) + (
+        " (dial's low end)" if dial else "")
+
+
 def field_source_text(option, machine=None):
     """Where the field is fed from, without a value (the readings give the values)."""
     s = option.setting

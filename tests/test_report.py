@@ -456,3 +456,21 @@ def test_polarity_check_names_the_welding_leads(results):
     res = results["welding"]
     steps = wiring(res.machine, res.options[0].setting, "welding").steps
     assert any(step.startswith("+ line") and "to the electrode" in step for step in steps)
+
+
+def test_every_option_shows_its_field_as_a_meter_reading(results):
+    """Regression: the page's options table showed the exact rheostat of every option after the first (30.68 Ω,
+    8.199 Ω), which nobody can set. Each option's field is its meter reading, rounded as the core rounds it
+    (issue 10's readings; the welding dial's low end)."""
+    for kind, res in results.items():
+        for o in res.options[:8]:
+            text = report.field_reading_text(o)
+            r = report.option_value(o, "readings")
+            dial = report.option_value(o, "dial")
+            if not r and dial:
+                r = dial[0]["readings"]
+            if r and r.get("rheostat_ohm") is not None and o.setting.connection != "series":
+                assert text.startswith(f"rheostat {report.fmt(r['rheostat_ohm'], 'Ω')}"), (kind, o.rank, text)
+            if o.setting.rheostat_ohm is not None and r:
+                exact = report.fmt(o.setting.rheostat_ohm, "Ω")
+                assert exact == report.fmt(r["rheostat_ohm"], "Ω") or exact not in text
