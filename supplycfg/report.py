@@ -1145,13 +1145,24 @@ def wiring_svg_for(result, option):
     return _clean_svg(wiring_svg(wiring(result.machine, option.setting, result.profile.kind)))
 
 
+def high_end_tap(option):
+    """The series turns an option uses at the top of its range (a welding dial may change tap along it)."""
+    ends = [cs for cs in option.current_settings or [] if cs.get("series_turns") is not None]
+    return ends[-1]["series_turns"] if ends else option.setting.series_turns
+
+
 def other_tap_options(result, option):
-    """The best option of each other series tap of the same connection (welding charts)."""
-    seen, out = {option.setting.series_turns}, []
+    """The best option of each other series tap of the same connection (welding charts).
+
+    Keyed by the tap each is drawn at, its high end: an option that starts
+    on another tap and changes to one the chosen option uses is not another tap.
+    """
+    seen = {option.setting.series_turns, high_end_tap(option)}
+    out = []
     for o in result.options:
-        if o.setting.connection == option.setting.connection and o.setting.series_turns not in seen \
-                and o.setting.diverter_ohm is None:
-            seen.add(o.setting.series_turns)
+        tap = high_end_tap(o)
+        if o.setting.connection == option.setting.connection and tap not in seen and o.setting.diverter_ohm is None:
+            seen.add(tap)
             out.append(o)
     return out[:3]
 

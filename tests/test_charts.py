@@ -573,3 +573,17 @@ def test_layered_chart_spec_is_checked_against_the_schema(charging):
     with pytest.raises(Exception, match="height|tall"):
         ch.to_dict(validate=True)
     ch.to_dict(validate=False)  # the page's path does not check
+
+
+def test_other_taps_on_the_welding_chart_are_other_taps():
+    """Regression: the welding demo's chart drew "other tap: 3 turns, rheostat 10.3 Ω, for 180 A", the chosen
+    option's own tap and curve, from an option that starts on 8 turns and changes to 3 along its dial. Each
+    other-tap curve is drawn at a tap the chosen option uses at neither end, and no tap twice."""
+    from supplycfg.report import high_end_tap, other_tap_options
+    from supplycfg.search import search
+    res = search(machine("welding-set"), profile("welding"))
+    o = res.options[0]
+    own = {cs["series_turns"] for cs in o.current_settings} | {o.setting.series_turns}
+    taps = [high_end_tap(x) for x in other_tap_options(res, o)]
+    assert taps and not own & set(taps) and len(taps) == len(set(taps))
+    assert any(high_end_tap(x) != x.setting.series_turns for x in res.options), "the demo has a dial that changes tap"
