@@ -106,7 +106,8 @@ def setting_cautions(machine, setting, f):
                       top_speed_rpm=top))
     if conn != "series":
         out.append(caution("field-switching", "warn",
-                      "Do not open the shunt field circuit while it carries current: its inductance drives a voltage spike "
+                      f"Do not open the {'separate' if conn.startswith('separate') else 'shunt'} field circuit "
+                      "while it carries current: its inductance drives a voltage spike "
                       "across the switch and the insulation. Use a field switch with a discharge resistor (or a "
                       "freewheel path) and reduce the field before opening.",
                       "common practice for DC machine field circuits (field discharge resistor)"))
@@ -194,6 +195,8 @@ def drive_cautions(machine, drive, f):
             words.append(f"the no-load voltage is about {vi:.0f} V")
         out.append(caution("drive-idle", "note", ", ".join(words[:1]) + " " + " and ".join(words[1:]) +
                       "; no limit is checked at idle.",
-                      "critical speed of self-excitation (Theraja Vol II ch. 28); engine idle from the profile",
+                      ("critical speed of self-excitation (Theraja Vol II ch. 28)" if bi is not None
+                       else "EMF proportional to speed at a given field, E = k Phi n (Theraja Vol II ch. 26, from memory)")
+                      + "; engine idle from the profile",
                       idle_no_load_voltage_v=vi, idle_builds_up=bi))
     return out

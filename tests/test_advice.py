@@ -885,3 +885,18 @@ def test_round_to_directions_and_an_unknown_direction():
     assert round_to(30.0, 0.5, "down") == 30.0  # a value on the step stays (no step lost to rounding)
     with pytest.raises(ValueError, match="allowed: nearest, up, down"):
         round_to(1.0, 0.1, "sideways")
+
+
+def test_separately_excited_cautions_name_its_own_field_and_basis():
+    """Regression: the welding demo's separately excited option was told not to open "the shunt field circuit"
+    (it has none; its field is the separate one) and its idle voltage cited the critical speed of
+    self-excitation, which a separately excited field does not have (E = k Phi n at a given field does)."""
+    res = demo("welding")[2]
+    o = res.options[0]
+    assert o.setting.connection.startswith("separate")
+    by_rule = {c.rule: c for c in o.cautions}
+    assert "separate field circuit" in by_rule["field-switching"].message
+    assert "self-excitation" not in by_rule["drive-idle"].basis and "E = k Phi n" in by_rule["drive-idle"].basis
+    shunt = next(x for x in res.options if not x.setting.connection.startswith("separate")
+                 and x.setting.connection != "series")
+    assert "shunt field circuit" in {c.rule: c for c in shunt.cautions}["field-switching"].message
