@@ -734,13 +734,13 @@ def checklist_rows(result, option, run=None):
     if kind != "booster":
         rows.append(("No-load voltage at speed, load off", nl or note))
     fr = [how for what, how in readings_rows(o) if what == "Field ammeter reads"]
-    hot = [_mapping(_mapping(_mapping(r).get("readings")).get("field_current_a")).get("hot")
-           for r in option_value(o, "dial") or []]
-    hot = [h for h in hot if _given(h)]
+    dial_hot = [_mapping(_mapping(_mapping(r).get("readings")).get("field_current_a")).get("hot")
+                for r in option_value(o, "dial") or []]
+    dial_hot = [h for h in dial_hot if _given(h)]
     if fr:
         field = fr[0]
-    elif hot:
-        field = f"as the dial's row: {_range_text(min(hot), max(hot), 'A')} with hot windings"
+    elif dial_hot:
+        field = f"as the dial's row: {_range_text(min(dial_hot), max(dial_hot), 'A')} with hot windings"
     elif s.connection == "series":
         top = f.get("max_armature_current_a")
         field = ("no shunt field; the series field carries the load current, up to " + fmt(top, "A")
