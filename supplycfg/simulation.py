@@ -33,7 +33,7 @@ from .circuit import Setting, build_circuit, check_setting, circuit_residual, dr
 from .envelope import expand_candidates
 from .errors import InputError
 from .text import visible
-from .wording import source_text
+from .wording import connection_words, source_text
 
 #: Time cap when none is given [h]: a charge not finished in two days points to
 #: a fault of the set or the battery (model choice).
@@ -492,7 +492,8 @@ def charge_text(run):
     at = (f" at {sp_words}, windings {c.get('winding_temperature_c', run.setting.winding_temperature_c):g} degC"
           if c or run.setting.speed_rpm else "")
     lines = [f"Charge run: {visible(run.machine_label)} on {visible(run.profile_label)}",
-             f"setting: {run.setting.describe(with_connection=True)}" + (f" ({run.setting_source})" if run.setting_source else "")
+             f"setting: {connection_words(run.setting.connection)} (--connection {run.setting.connection}), "
+             f"{run.setting.describe()}" + (f" ({run.setting_source})" if run.setting_source else "")
              + ("; simulated at these exact values, set the meter readings of the plan below"
                 if any(q.get("readings") for q in run.stages) else ""),
              f"battery: {run.cells} cells, {run.capacity_ah:g} Ah, from {100 * run.start_state_of_charge:.0f} % "

@@ -900,3 +900,11 @@ def test_separately_excited_cautions_name_its_own_field_and_basis():
     shunt = next(x for x in res.options if not x.setting.connection.startswith("separate")
                  and x.setting.connection != "series")
     assert "shunt field circuit" in {c.rule: c for c in shunt.cautions}["field-switching"].message
+
+
+def test_charge_text_names_the_connection_in_trade_words(capsys):
+    """Issue 13's words on `charge` too: the setting line names the connection as the trade does, with the id that
+    --connection takes beside it (it printed 'long-shunt-differential' alone)."""
+    out = cli_output(["charge", str(MACHINES / "charging-set.toml"), str(LOADS / "battery-charging.toml")], capsys)
+    line = next(x for x in out.splitlines() if x.startswith("setting: "))
+    assert line.startswith("setting: long-shunt differential compound (--connection long-shunt-differential), ")
