@@ -276,7 +276,10 @@ def fleet_search_texts(items, profile, source="machine files"):
 
 def fleet_text(res):
     """One row per machine a plant engineer reads."""
-    lines = [f"{len(res.machines)} machines for {res.profile_label} ({res.kind}), {res.workers} worker(s)", ""]
+    workers = f"{res.workers} worker{'s' if res.workers != 1 else ''}"
+    lines = [f"{len(res.machines)} machine{'s' if len(res.machines) != 1 else ''} for {res.profile_label} "
+             f"({res.kind}), {workers}; settings as --connection takes them, exact (`search` gives the meter "
+             "readings)", ""]
     hdr = f"{'machine file':<32} {'can do it':<9}  best setting"
     lines += [hdr, "-" * len(hdr)]
     for row in fleet_rows(res):
