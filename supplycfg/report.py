@@ -953,7 +953,8 @@ def cautions_pointer(option, result, where="on the next page"):
         return "No warning or note raised by the rules for this setting."
     words = {"warn": ("warning", "warnings"), "note": ("note", "notes")}
     parts = [f"{n} {words.get(k, (k, k))[n != 1]}" for k, n in counts.items()]
-    return f"Cautions: {' and '.join(parts)}; read them {where} before starting."
+    them = "it" if sum(counts.values()) == 1 else "them"
+    return f"Cautions: {' and '.join(parts)}; read {them} {where} before starting."
 
 
 # ---------------------------------------------------------------------------

@@ -474,3 +474,13 @@ def test_every_option_shows_its_field_as_a_meter_reading(results):
             if o.setting.rheostat_ohm is not None and r:
                 exact = report.fmt(o.setting.rheostat_ohm, "Ω")
                 assert exact == report.fmt(r["rheostat_ohm"], "Ω") or exact not in text
+
+
+def test_cautions_pointer_counts_in_words(results):
+    """'1 warning; read it', '5 warnings and 2 notes; read them' (the page said '1 warning(s) and 0 note(s)')."""
+    res = results["lighting"]
+    line = report.cautions_pointer(res.options[0], res)
+    n = sum(c.severity in ("warn", "note") for c in list(res.options[0].cautions) + list(res.cautions))
+    assert "(s)" not in line and ("read it " in line) == (n == 1)
+    res = results["battery"]
+    assert "read them " in report.cautions_pointer(res.options[0], res)
