@@ -721,6 +721,8 @@ def checklist_rows(result, option, run=None):
     note = "note the reading"
     rows = [("Polarity checked with a voltmeter before closing onto the load", POLARITY_WORDS.get(kind, POLARITY_WORDS[None]))]
     nl = _range_text(f.get("no_load_voltage_min_v"), f.get("no_load_voltage_max_v"), "V")
+    if nl and " to " in nl:
+        nl += " over the speed and winding-temperature range"
     if kind == "welding":
         ends = [cs for cs in o.current_settings or [] if _given(cs.get("no_load_voltage_v"))]
         if len(ends) == 2 and all(_given(cs.get("current_a")) for cs in ends):
