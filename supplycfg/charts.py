@@ -864,17 +864,12 @@ def welding_limit_lines(option, profile):
     mean = (m.get("no_load_mean_voltage") or {}).get("limit", f.get("no_load_mean_limit_v"))
     if mean is not None:
         out.append((float(mean), f"site no-load limit {float(mean):.4g} V", PURPLE, DASHES["long-short"]))
-    strike = None
-    for key in ("min_no_load_voltage_v", "strike_voltage_v", "no_load_min_limit_v"):
-        v = f.get(key)
-        if v is None:
-            v = getattr(getattr(profile, "welding", None), key, None)
-        if v is not None:
-            strike = float(v)
-            break
+    # the strike minimum is a limit: the margin's, the figure that states it, or the profile's key
+    # (``min_no_load_voltage_v`` of the figures is the option's own lowest no-load voltage, not the limit)
+    strike = (m.get("no_load_strike_voltage") or {}).get("limit", f.get("no_load_strike_min_v"))
     if strike is None:
-        lim = (m.get("no_load_strike_voltage") or m.get("no_load_voltage_min") or {}).get("limit")
-        strike = None if lim is None else float(lim)
+        strike = getattr(getattr(profile, "welding", None), "min_no_load_voltage_v", None)
+    strike = None if strike is None else float(strike)
     if strike is not None and np.isfinite(strike):
         out.append((strike, f"strike minimum {strike:.4g} V (no load)", GREEN, DASHES["dot"]))
     return [o for o in out if np.isfinite(o[0])]

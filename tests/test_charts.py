@@ -417,12 +417,21 @@ def test_welding_chart_draws_the_no_load_limits():
     assert top > peak, "the limit must be inside the view"
 
 
-def test_welding_strike_minimum_drawn_when_the_core_states_it():
-    """A strike minimum in the option's figures (issue 10's key) becomes its own labelled line."""
+def test_welding_strike_minimum_drawn_at_the_limit():
+    """The strike minimum the core states (the margin's limit: 50 V for manual metal arc, common practice, the
+    profile's ``min_no_load_voltage_v``) is its own labelled line. Regression: the line was drawn and labelled at
+    the option's own lowest no-load voltage (the figure ``min_no_load_voltage_v``, 51.56 V on the demo)."""
     from supplycfg.search import search
     m, p = machine("welding-set"), profile("welding")
     o = search(m, p).options[0]
-    o2 = replace(o, figures=dict(o.figures, min_no_load_voltage_v=50.0))
+    assert o.figures["min_no_load_voltage_v"] != 50.0
+    spec = charts.welding_chart(m, p, o).to_dict()
+    strike = [r for r in rows(spec, "loads") if r["series"].startswith("strike minimum")]
+    assert strike and strike[0]["series"].startswith("strike minimum 50 V")
+    assert_allclose([r["terminal_voltage_v"] for r in strike], 50.0, rtol=0, atol=1e-12)
+    # without the margin the line still comes from the profile's strike minimum
+    o2 = replace(o, margins={k: v for k, v in o.margins.items() if k != "no_load_strike_voltage"},
+                 figures={k: v for k, v in o.figures.items() if k != "no_load_strike_min_v"})
     spec = charts.welding_chart(m, p, o2).to_dict()
     assert any(r["series"].startswith("strike minimum 50 V") for r in rows(spec, "loads"))
 
