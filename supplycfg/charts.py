@@ -677,7 +677,8 @@ def battery_lines(profile, i_top):
         return lambda i: ld.bank_voltage_v(b, soc, i)
 
     cur = np.linspace(0.0, i_top, 60)
-    start = {"label": f"battery at rest, {s0:.0%} charged", "colour": GREEN, "dash": DASHES["long"],
+    # black: the finish curve of the plan is green with long dashes on the same chart
+    start = {"label": f"battery at rest, {s0:.0%} charged", "colour": BLACK, "dash": DASHES["long"],
              "load_current_a": [0.0, i_top], "terminal_voltage_v": [e0, e0 + r * i_top]}
     start_c = {"label": f"battery on charge, {s0:.0%} charged", "colour": SKY, "dash": DASHES["dash-dot"],
                "load_current_a": list(cur), "terminal_voltage_v": list(on_charge(s0)(cur))}

@@ -596,3 +596,24 @@ def test_other_taps_on_the_welding_chart_are_other_taps():
     taps = [high_end_tap(x) for x in other_tap_options(res, o)]
     assert taps and not own & set(taps) and len(taps) == len(set(taps))
     assert any(high_end_tap(x) != x.setting.series_turns for x in res.options), "the demo has a dial that changes tap"
+
+
+@pytest.mark.parametrize("stems", [("charging-set", "battery-charging"), ("welding-set", "welding"),
+                                   ("lighting-set", "lighting"), ("feeder-booster", "booster")])
+def test_no_two_lines_of_a_chart_look_alike(stems):
+    """Regression: the battery chart drew the plan's finish curve and the battery at rest both green with the same
+    long dashes (issue 13: lines told apart by dash pattern as well as colour). Within each chart of the demo's
+    best option, no two legend entries share both colour and dash."""
+    *_, specs = _job_specs(stems)
+    for name, spec in specs.items():
+        seen = {}
+        layers = spec.get("layer") or [lay for part in spec.get("vconcat", []) for lay in part.get("layer", [])]
+        for layer in layers:
+            if "strokeDash" not in layer.get("encoding", {}):
+                continue
+            enc = layer["encoding"]
+            for label, colour, dash in zip(enc["strokeDash"]["scale"]["domain"], enc["color"]["scale"]["range"],
+                                           enc["strokeDash"]["scale"]["range"]):
+                seen.setdefault((colour, tuple(dash)), set()).add(label)
+        alike = {k: v for k, v in seen.items() if len(v) > 1}
+        assert not alike, (name, alike)
