@@ -1034,8 +1034,14 @@ def charge_run_chart(run, width=None, stages=None):
         return alt.layer(shade, layer) if shade is not None else layer
 
     zoom = alt.selection_interval(bind="scales", encodings=["x"], name="zoom")
+    # headroom above the largest current: a main charge held near its limit otherwise runs along the top edge
+    given = [r["current_a"] for r in rows if r.get("current_a") is not None and np.isfinite(r["current_a"])]
+    i_lo, i_hi = min(given + [0.0]), max(given + [0.0])
+    span = max(i_hi - i_lo, 1e-9)
     cur = alt.Chart(data).mark_line(color=BLUE, strokeWidth=2.2).encode(
-        x=x, y=alt.Y("current_a:Q", title="Current [A]"), tooltip=tips).add_params(zoom)
+        x=x, y=alt.Y("current_a:Q", title="Current [A]",
+                     scale=alt.Scale(domain=[_f(i_lo - 0.12 * span * (i_lo < 0)), _f(i_hi + 0.12 * span)], nice=False)),
+        tooltip=tips).add_params(zoom)
     styles = _Styles()
     styles.add("volts per cell", BLUE, SOLID, 2.2)
     lim = []

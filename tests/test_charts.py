@@ -297,6 +297,12 @@ def test_charge_run_chart_panels():
     dashes = dict(zip(enc["strokeDash"]["scale"]["domain"], enc["strokeDash"]["scale"]["range"]))
     assert len({tuple(dashes[lab]) for lab in labels}) == 2 and all(dashes[lab] != charts.SOLID for lab in labels)
     assert enc["strokeDash"].get("legend", {}) is not None
+    # regression: the current axis ended at the largest current (a main charge held at 19.9 A ran along the top
+    # edge of a 0-20 A axis); it now leaves headroom above it
+    cur = spec["vconcat"][0]
+    y = (cur.get("encoding") or next(lay for lay in cur["layer"] if "current_a" in str(lay["encoding"]["y"]))["encoding"])["y"]
+    lo, hi = y["scale"]["domain"]
+    assert lo == 0 and hi >= 1.1 * Run.current_a.max()
 
 
 def test_charge_run_chart_draws_the_plan_stages():
