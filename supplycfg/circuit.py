@@ -59,6 +59,10 @@ BRUSH_RAMP_FRACTION = 0.01
 CURRENT_SPAN_FACTOR = 10.0
 #: Grid points along the load line before refining each bracket.
 LOAD_LINE_GRID = 4001
+#: A load line flatter than this [ohm] is taken as flat (V = v0): it moves the voltage by under 1e-8 V at
+#: 10^4 A, and a subnormal slope would overflow the load current read off it (a numerical floor, not a
+#: physical value; the files' bounds keep real loads far above it).
+LOAD_SLOPE_FLOOR_OHM = 1e-12
 #: Times the voltage span of a load-line search is doubled when the machine is still above the load.
 SPAN_DOUBLINGS = 4
 RUNAWAY_MESSAGE = ("the machine's voltage keeps rising above the load beyond the searched span: the open-circuit "
@@ -733,6 +737,7 @@ def solve_operating_points(circ, loads, idx=None, grid=LOAD_LINE_GRID, window=No
     p = candidate_params(circ, idx[:, None])
     v0 = np.array([ld.v0 for ld in loads], float)[:, None]
     k = np.array([ld.slope_ohm for ld in loads], float)[:, None]
+    k = np.where(np.abs(k) < LOAD_SLOPE_FLOOR_OHM, 0.0, k)
     cur = np.array([np.nan if ld.current_a is None else ld.current_a for ld in loads], float)[:, None]
     arm = np.array([np.nan if ld.armature_current_a is None else ld.armature_current_a for ld in loads],
                    float)[:, None]

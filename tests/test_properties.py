@@ -628,3 +628,23 @@ def test_no_exception_but_input_error(case):
                 assert all(math.isfinite(pt[k]) for k in pt if isinstance(pt[k], float)), pt
         elif isinstance(res, float):
             assert math.isfinite(res)
+
+
+def test_subnormal_load_slope_is_a_flat_line():
+    """Regression (found by the property test above in a full run): a resistor of 5e-324 ohm overflowed the load
+    current read off its line (V / R) and left RuntimeWarnings. A slope below ``LOAD_SLOPE_FLOOR_OHM`` is flat:
+    the same answer as 0 ohm (a dead short), without a warning."""
+    import warnings
+    from pathlib import Path
+    from supplycfg.circuit import LOAD_SLOPE_FLOOR_OHM
+    from supplycfg.machine import load_machine
+    m = load_machine(Path(__file__).resolve().parents[1] / "profiles" / "machines" / "charging-set.toml")
+    s = Setting("separate", field_current_a=1.0)
+    with warnings.catch_warnings():
+        warnings.simplefilter("error", RuntimeWarning)
+        tiny = operating_points(m, s, Load.resistor(5e-324))
+        short = operating_points(m, s, Load.resistor(0.0))
+    assert 5e-324 < LOAD_SLOPE_FLOOR_OHM
+    assert [(p["terminal_voltage_v"], p["load_current_a"]) for p in tiny.points] == \
+        [(p["terminal_voltage_v"], p["load_current_a"]) for p in short.points]
+    assert tiny.points and all(math.isfinite(p["load_current_a"]) for p in tiny.points)
