@@ -110,7 +110,8 @@ def wiring(machine, setting, kind):
     steps = []
     if kind == "booster":
         parts.append(Part("bus", "DC bus (+ and −)"))
-        steps.append("From the bus's + bar to the booster's A1 brush.")
+        # the line current must leave the booster by its + brush towards the feeder for its EMF to add
+        steps.append("From the bus's + bar to the booster's A2 (−) brush, so that its EMF adds to the bus voltage.")
     parts.append(Part("armature", "armature A1 (+) / A2 (−)"))
     sense, terms = None, None
     if uses_series:
@@ -154,7 +155,8 @@ def wiring(machine, setting, kind):
     if uses_series:
         a, b = terms
         div = f" (diverter {_num(setting.diverter_ohm, 'Ω')} across {a}–{b})" if setting.diverter_ohm is not None else ""
-        steps.append(f"A1 (+) to series field {a}; series field {b} to the + line{div}."
+        line = "the feeder's + line" if kind == "booster" else "the + line"
+        steps.append(f"A1 (+) to series field {a}; series field {b} to {line}{div}."
                      + (" Turned round against the shunt field: differential." if sense == "opposing" else ""))
     else:
         steps.append("A1 (+) to the + line." if kind != "booster" else "A1 to the feeder.")
@@ -256,7 +258,7 @@ def wiring_svg(w, title=None):
         d.add(elm.SourceV().at((x, bot)).up().length(top - bot).label("DC bus", loc="top", ofst=0.2))
         d.add(elm.Line().at((x, top)).right().length(1.0))
         x += 1.0
-        d.add(elm.Source().at((x, top)).right().length(STEP).label("booster A1   A2", loc="top", fontsize=12))
+        d.add(elm.Source().at((x, top)).right().length(STEP).label("A2 −  booster  A1 +", loc="bottom", fontsize=12))
         x += STEP
     else:
         d.add(elm.Source().at((x, bot)).up().length(top - bot).label("G", loc="center", fontsize=12))

@@ -91,3 +91,16 @@ def test_booster_in_the_feeder():
     w = wiring(m, check_setting(m, Setting("series")), "booster")
     assert w.roles()[:3] == ["bus", "armature", "series-field"]
     assert "booster in the feeder" in wiring_svg(w)
+
+
+def test_booster_adds_to_the_bus():
+    """Regression: the booster's wiring put the bus's + bar on A1, its + brush, and A1 also to the series field,
+    which drives the booster's EMF against the bus (and reads as A1 wired to both sides). For the EMF to add, the
+    line current leaves by the + brush towards the feeder: bus + to A2 (−), A1 (+) on through the series field
+    to the feeder (Theraja Vol II, boosters; from memory)."""
+    m = load_machine(DEMO / "machines" / "feeder-booster.toml")
+    w = wiring(m, check_setting(m, Setting("series", series_turns=11)), "booster")
+    assert w.steps[0].startswith("From the bus's + bar to the booster's A2 (−) brush")
+    assert w.steps[1].startswith("A1 (+) to series field") and "feeder's + line" in w.steps[1]
+    assert not any("to the booster's A1" in s for s in w.steps)
+    assert "A2 −  booster  A1 +" in wiring_svg(w)
