@@ -280,8 +280,10 @@ def wiring_svg(w, title=None):
         shunt_branch(x)
     # voltmeter across the line terminals
     if w.kind != "booster":
-        d.add(elm.Line().at((x, top)).right().length(STEP * 0.8))
-        x += STEP * 0.8
+        # wide enough for the rheostat's label beside a shunt branch just before it
+        gap = STEP * (1.3 if w.shunt_across == "terminals" else 0.8)
+        d.add(elm.Line().at((x, top)).right().length(gap))
+        x += gap
         d.add(elm.Dot().at((x, top)))
         d.add(elm.Dot().at((x, bot)))
         vertical(x, [(lambda: elm.Line(), None), (lambda: elm.MeterV(), "V"), (lambda: elm.Line(), None)])
