@@ -114,9 +114,10 @@ class Setting:
     speed_rpm: float | None = None
     winding_temperature_c: float | None = None
 
-    def describe(self, with_connection=False):
-        """The setting in plain words, e.g. ``rheostat 30 ohm, 1450 rpm, windings at 75 degC``."""
-        parts = [self.connection] if with_connection else []
+    def describe(self):
+        """The setting in plain words, e.g. ``rheostat 30 ohm, 1450 rpm, windings at 75 degC``; the
+        connection is named apart (:func:`supplycfg.wording.connection_words` on screens)."""
+        parts = []
         if self.field_current_a is not None:
             parts.append(f"field current {self.field_current_a:.4g} A")
         elif self.rheostat_ohm is not None and self.connection != "series":

@@ -447,6 +447,21 @@ def test_drive_inputs_and_size_section():
     assert any("shaft power [kW]" in sp and "speed [rpm]" in sp for sp in specs)
 
 
+def test_drive_size_section_names_the_connection_in_trade_words():
+    """Regression: the drive section said "Best setting at that rating: long-shunt-differential, ..." (the
+    program's id, issue 13 asks for the trade's words on screen); the battery demo's best is a compound."""
+    from supplycfg.wording import connection_words
+    at = fresh()
+    button(at, "Find the smallest drive rating that does the job").click().run()
+    assert not at.exception, at.exception
+    line = next(x for x in markdown_text(at).splitlines() if x.startswith("Best setting at that rating: "))
+    conn = line.split(": ", 1)[1].split(",")[0]
+    assert conn in {connection_words(c) for c in ("long-shunt-differential", "short-shunt-differential",
+                                                  "long-shunt-cumulative", "short-shunt-cumulative",
+                                                  "separate-differential", "separate-cumulative", "shunt")}
+    assert "-differential" not in line and "-cumulative" not in line
+
+
 def test_page_charts_carry_their_rows_in_the_views():
     """The page's chart specs hold their rows in the views that draw them (no named datasets for Streamlit to
     convert), the same rows the chart builders give."""

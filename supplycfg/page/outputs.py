@@ -287,7 +287,8 @@ def drive_size_section(result, machine_toml, profile_toml):
     st.markdown(f"**Smallest {what}: {fmt(res.required_drive_kw, 'kW')}**"
                 + (f" (the job gives {fmt(d.rated_power_kw, 'kW')})" if d.coupled else ""))
     o = res.option
-    st.markdown(f"Best setting at that rating: {_md(o.setting.describe(with_connection=True))}; "
+    st.markdown(f"Best setting at that rating: {_md(connection_words(o.setting.connection))}, "
+                f"{_md(o.setting.describe())}; "
                 f"peak shaft power {fmt(o.figures.get('max_shaft_power_kw'), 'kW')}, speed down to "
                 f"{fmt(o.figures.get('min_speed_rpm'), 'rpm')}.")
     for n in res.notes:
