@@ -314,25 +314,32 @@ def field_control_text(option, machine=None):
     return f"field rheostat {fmt(s.rheostat_ohm, 'Ω')}"
 
 
-def field_reading_text(option):
-    """The field as set at the machine, rounded to what can be set: ``rheostat 30.7 Ω, reads 0.99 A hot``.
+def low_end_readings(option):
+    """The meter readings an option is set by, and whether they are a welding dial's: ``(readings, on_dial)``.
 
-    The option's meter readings (for a welding option, its dial's first
-    row, the low end of the range); the exact setting where it has none.
+    The option's own ``readings``, or for a welding option its dial's first
+    row (the low end of the range); ``({}, ...)`` where it has none.
     """
     r = _mapping(option_value(option, "readings"))
     dial = option_value(option, "dial") or []
     if not r and dial:
         r = _mapping(_mapping(dial[0]).get("readings"))
-    s = option.setting
-    hot = _mapping(r.get("field_current_a")).get("hot")
-    if s.connection == "series" or not r:
+    return r, bool(dial)
+
+
+def field_reading_text(option):
+    """The field as set at the machine, rounded to what can be set: ``rheostat 30.7 Ω, reads 0.99 A hot``.
+
+    The readings of :func:`low_end_readings`; the exact setting where there are none.
+    """
+    r, on_dial = low_end_readings(option)
+    if option.setting.connection == "series" or not r:
         return field_control_text(option).replace("field rheostat", "rheostat").replace("exciter field current", "field")
-    reads = f", reads {fmt(hot, 'A')} hot" if _given(hot) else ""
+    hot = _mapping(r.get("field_current_a")).get("hot")
+    where = " (dial's low end)" if on_dial else ""
     if _given(r.get("rheostat_ohm")):
-        return f"rheostat {fmt(r['rheostat_ohm'], 'Ω')}{reads}" + (" (dial's low end)" if dial else "")
-    return (f"field {fmt(hot, 'A')} hot" if _given(hot) else field_control_text(option)) + (
-        " (dial's low end)" if dial else "")
+        return f"rheostat {fmt(r['rheostat_ohm'], 'Ω')}" + (f", reads {fmt(hot, 'A')} hot" if _given(hot) else "") + where
+    return (f"field {fmt(hot, 'A')} hot" if _given(hot) else field_control_text(option)) + where
 
 
 def field_source_text(option, machine=None):

@@ -508,10 +508,8 @@ def _table(headers, rows):
 
 def _field_cells(o):
     """(rheostat [ohm], field current hot [A]) as read at the machine (a welding dial's low end)."""
-    r = o.readings
-    dial = o.extras.get("dial")
-    if r is None and dial:
-        r = dial[0].get("readings")
+    from .report import low_end_readings
+    r = low_end_readings(o)[0] or None
     if o.control == "none":
         return "none", "-"
     if r is None:
