@@ -656,16 +656,14 @@ def ranking_line(result, option):
         head = f"Ranked first of {len(feasible)} settings that meet every limit: {words}"
         if why == "objective":
             return f"{head} (next, option {nxt.rank}: {nwords})."
-        same = option.objective == nxt.objective
-        within = f"within {100 * OBJECTIVE_TIE_FRACTION:g} %"
-        tied = (f", as option {nxt.rank}; the tie goes to " if same
-                else f"; option {nxt.rank} ({nwords}) is {within}, a tie, and the tie goes to ")
+        tie = f"; option {nxt.rank} ({nwords}) is within {100 * OBJECTIVE_TIE_FRACTION:g} %, a tie, and "
+        tied = f", as option {nxt.rank}; the tie goes to " if option.objective == nxt.objective \
+            else f"{tie}the tie goes to "
         if why == "margin":
             return (f"{head}{tied}the larger least margin: {100 * option.smallest_margin:.1f} % against "
                     f"{100 * nxt.smallest_margin:.1f} %.")
         if why == "objective-in-tie":
-            return (f"{head}; option {nxt.rank} ({nwords}) is {within}, a tie, "
-                    f"and with the same rig and least margins alike to 0.1 % ({100 * option.smallest_margin:.1f} %) "
+            return (f"{head}{tie}with the same rig and least margins alike to 0.1 % ({100 * option.smallest_margin:.1f} %) "
                     f"{BETTER_OBJECTIVE_WORDS.get(kind, 'the better objective')} ranks first.")
         if why == "order":
             return f"{head}{tied}neither: they are alike by every rule, listed in a fixed order."
@@ -697,10 +695,13 @@ def ranking_line(result, option):
 CHECKLIST_HEADERS = ("Check", "Expected", "Measured", "Initials")
 
 
+def _spans(lo, hi):
+    """Both ends given and apart by more than rounding noise."""
+    return _given(lo) and _given(hi) and abs(float(hi) - float(lo)) > 1e-9 * max(1.0, abs(float(hi)))
+
+
 def _range_text(lo, hi, unit):
-    if _given(lo) and _given(hi):
-        if abs(float(hi) - float(lo)) <= 1e-9 * max(1.0, abs(float(hi))):
-            return fmt(hi, unit)
+    if _spans(lo, hi):
         return f"{fmt(lo)} to {fmt(hi, unit)}"
     if _given(hi) or _given(lo):
         return fmt(hi if _given(hi) else lo, unit)
@@ -727,8 +728,9 @@ def checklist_rows(result, option, run=None):
     kind = p.kind
     note = "note the reading"
     rows = [("Polarity checked with a voltmeter before closing onto the load", POLARITY_WORDS.get(kind, POLARITY_WORDS[None]))]
-    nl = _range_text(f.get("no_load_voltage_min_v"), f.get("no_load_voltage_max_v"), "V")
-    if nl and " to " in nl:
+    lo, hi = f.get("no_load_voltage_min_v"), f.get("no_load_voltage_max_v")
+    nl = _range_text(lo, hi, "V")
+    if _spans(lo, hi):
         nl += " over the speed and winding-temperature range"
     if kind == "welding":
         ends = [cs for cs in o.current_settings or [] if _given(cs.get("no_load_voltage_v"))]
@@ -736,8 +738,8 @@ def checklist_rows(result, option, run=None):
             nl = " to ".join(f"{fmt(cs['no_load_voltage_v'], 'V')} at the {fmt(cs['current_a'], 'A')} setting"
                              for cs in ends)
         elif ends:
-            lo = [cs["no_load_voltage_v"] for cs in ends]
-            nl = _range_text(min(lo), max(lo), "V")
+            volts = [cs["no_load_voltage_v"] for cs in ends]
+            nl = _range_text(min(volts), max(volts), "V")
         else:
             nl = fmt(f.get("max_no_load_voltage_v"), "V")
     if kind != "booster":
@@ -761,7 +763,7 @@ def checklist_rows(result, option, run=None):
     rows.append(("Field current on the field ammeter", field))
     if kind == "battery":
         hot, cold = f.get("start_charge_current_hot_a"), f.get("start_charge_current_cold_a")
-        if _given(hot) and _given(cold) and abs(cold - hot) > 1e-9 * max(1.0, abs(cold)):
+        if _spans(hot, cold):
             start = f"{fmt(hot, 'A')} with hot windings, {fmt(cold, 'A')} cold"
         else:
             start = fmt(f.get("start_charge_current_a"), "A") if _given(f.get("start_charge_current_a")) else note
