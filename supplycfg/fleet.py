@@ -223,7 +223,7 @@ def fleet_rows(res, trade_words=False):
     power``, ``drive needed`` (where the drive is why nothing meets the job),
     ``breaks`` (the limits the best option breaks, in words) and ``error``.
     """
-    from .report import limit_label
+    from .report import broken_limits_text
     out = []
     for r in res.machines:
         row = {"machine file": Path(r.file).name, "machine": r.label or "", "can do it": "error", "best setting": "",
@@ -243,7 +243,7 @@ def fleet_rows(res, trade_words=False):
                     row["shaft power"] = f"{r.shaft_power_kw:.3g} kW" + (
                         f" ({r.drive_loading_percent:.0f} % of the drive's rating)"
                         if r.drive_loading_percent is not None else "")
-                row["breaks"] = ", ".join(limit_label(n) for n in r.best["failed"])
+                row["breaks"] = broken_limits_text(r.best["failed"])
             if r.drive_needed_kw is not None:
                 # nothing works because the drive is too small: what a larger one must give
                 row["drive needed"] = (f"the drive limits it: with a larger drive a setting meets the job, "

@@ -224,6 +224,19 @@ def limit_label(name):
     return LIMIT_WORDS.get(name, name.replace("_", " "))
 
 
+#: How a broken limit reads after "breaks" where its name, said as the rule, would read backwards
+#: ("breaks: no stop caution").
+BROKEN_WORDS = {
+    "stop_caution": "carries a stop caution",
+    "solve_not_converged": "the solve did not converge",
+}
+
+
+def broken_limits_text(failed):
+    """The limits an option breaks, in words, joined by commas ('' for none)."""
+    return ", ".join(BROKEN_WORDS.get(n) or limit_label(n) for n in failed)
+
+
 def speed_words(cond):
     """A condition's speed in words: the speed itself, or on an engine or a motor its top speed.
 
@@ -558,8 +571,7 @@ def status_text(option, total=None):
     of = f" of {total}" if total else ""
     if option.feasible:
         return f"option {option.rank}{of}: meets every limit (smallest margin {fmt(100 * option.smallest_margin, '%')})"
-    broken = ", ".join(limit_label(n) for n in option.failed)
-    return f"option {option.rank}{of}: near miss, breaks: {broken}"
+    return f"option {option.rank}{of}: near miss, breaks: {broken_limits_text(option.failed)}"
 
 
 # --- the ranking, stated ---------------------------------------------------
@@ -636,7 +648,7 @@ def ranking_line(result, option):
     if not option.feasible:
         if any(c.severity == "stop" for c in option.cautions):
             return "Not usable: it carries a stop caution (see the cautions)."
-        broken = ", ".join(limit_label(n) for n in option.failed)
+        broken = broken_limits_text(option.failed)
         if not feasible:
             return f"No setting meets every limit; this one comes closest by the rule and breaks: {broken}."
         return f"A near miss: it breaks {broken}."

@@ -620,7 +620,7 @@ def at_machine_lines(option, profile):
 
 def search_text(res, top=10):
     """The ranked table a technician reads, the stated ranking rule and the best option's details."""
-    from .report import KIND_WORDS, condition_words, figure_label, limit_label, ranking_line
+    from .report import KIND_WORDS, broken_limits_text, condition_words, figure_label, limit_label, ranking_line
     from .wording import connection_words
     kind = res.profile.kind
     lines = [f"{visible(res.machine.label)} for {visible(res.profile.label)} ({KIND_WORDS.get(kind, kind)})",
@@ -647,7 +647,7 @@ def search_text(res, top=10):
         rows.append(row)
         tail = []
         if not o.feasible:
-            tail.append("breaks: " + ", ".join(limit_label(n) for n in o.failed))
+            tail.append("breaks: " + broken_limits_text(o.failed))
         if o.extrapolated:
             tail.append("needs the open-circuit curve beyond its last measured point")
         if tail:

@@ -15,7 +15,7 @@ from supplycfg.cli import main as cli_main
 from supplycfg.errors import InputError
 from supplycfg.profile import load_profile
 from supplycfg.machine import load_machine
-from supplycfg.search import search
+from supplycfg.search import search, search_text
 from supplycfg.wording import connection_words
 
 DEMO = Path(__file__).resolve().parent.parent / "profiles"
@@ -485,3 +485,16 @@ def test_cautions_pointer_counts_in_words(results):
     assert "(s)" not in line and ("read it " in line) == (n == 1)
     res = results["battery"]
     assert "read them " in report.cautions_pointer(res.options[0], res)
+
+
+def test_broken_limits_read_forwards():
+    """Regression: an option with a stop caution was listed as "breaks: ..., no stop caution" (the rule's
+    name read backwards). Every list of broken limits says "carries a stop caution"; the margins keep the
+    rule's name. (The feeder booster on the lighting job: every option needs its field beyond the curve.)"""
+    res = search(load_machine(DEMO / "machines" / "feeder-booster.toml"), load_profile(DEMO / "loads" / "lighting.toml"))
+    stopped = [o for o in res.options if "stop_caution" in o.failed]
+    assert stopped
+    text = report.broken_limits_text(stopped[0].failed)
+    assert "carries a stop caution" in text and "no stop caution" not in text
+    assert "no stop caution" not in report.status_text(stopped[0])
+    assert "no stop caution" not in search_text(res)

@@ -14,7 +14,7 @@ from ..files import dumps_json, write_atomic
 from ..report import (CARD_PLAN_HEADERS, CHECKLIST_HEADERS, CURRENT_SETTING_HEADERS, DIAL_HEADERS, PLAN_HEADERS, SEVERITY_WORDS,
                       card_plan_rows, cautions_pointer, checklist_rows, condition_words, current_setting_rows, cutout_rows,
                       dial_rows, esc,
-                      field_reading_text, figure_rows, fmt, limit_label, margin_rows, md_data, md_esc, objective_value,
+                      field_reading_text, figure_rows, fmt, broken_limits_text, margin_rows, md_data, md_esc, objective_value,
                       plan_table, ranking_line, ranking_rule, run_rows, run_summary, setting_rows, severity_counts,
                       sheet_markdown, sorted_cautions, status_text)
 from ..wording import GLOSSARY, connection_words, source_text
@@ -130,7 +130,7 @@ def option_rows(result):
             "Field": field_reading_text(o),
             "Diverter": "none" if s.diverter_ohm is None else fmt(s.diverter_ohm, "Ω"),
             "Speed [rpm]": s.speed_rpm,
-            "Limits broken": ", ".join(limit_label(n) for n in o.failed) or "none",
+            "Limits broken": broken_limits_text(o.failed) or "none",
         })
     return rows
 
