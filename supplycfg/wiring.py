@@ -157,7 +157,8 @@ def wiring(machine, setting, kind):
         div = f" (diverter {_num(setting.diverter_ohm, 'Ω')} across {a}–{b})" if setting.diverter_ohm is not None else ""
         line = "the feeder's + line" if kind == "booster" else "the + line"
         steps.append(f"A1 (+) to series field {a}; series field {b} to {line}{div}."
-                     + (" Turned round against the shunt field: differential." if sense == "opposing" else ""))
+                     + (f" Turned round against the {'separate' if across == 'exciter' else 'shunt'} field: differential."
+                        if sense == "opposing" else ""))
     else:
         steps.append("A1 (+) to the + line." if kind != "booster" else "A1 to the feeder.")
     if across in ("terminals", "armature"):

@@ -104,3 +104,13 @@ def test_booster_adds_to_the_bus():
     assert w.steps[1].startswith("A1 (+) to series field") and "feeder's + line" in w.steps[1]
     assert not any("to the booster's A1" in s for s in w.steps)
     assert "A2 −  booster  A1 +" in wiring_svg(w)
+
+
+@pytest.mark.parametrize("conn", ["separate-differential", "long-shunt-differential", "short-shunt-differential"])
+def test_differential_words_name_the_field_it_opposes(welder, conn):
+    """Regression: a separately excited differential set was told its series field is "turned round against
+    the shunt field"; it has a separate field (F1–F2), and the words say so."""
+    w = wiring(welder, setting(welder, conn), "welding")
+    said = " ".join(w.steps)
+    field = "separate" if conn.startswith("separate") else "shunt"
+    assert f"Turned round against the {field} field: differential." in said
