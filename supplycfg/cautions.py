@@ -57,9 +57,17 @@ def setting_cautions(machine, setting, f):
     conn = setting.connection
     mmf = f.get("min_net_mmf_a")
     if mmf is not None and mmf < 0:
-        out.append(caution("reversed-mmf", "warn",
-                      "At some operating point the series and armature mmf overcome the shunt field (net mmf below zero): "
-                      "the residual magnetism may be wiped out or reversed, and the machine may not build up next time.",
+        if conn.startswith("separate"):
+            # no build-up to lose: the risk is the flux, and the voltage, turning round under load
+            said = ("the series and armature mmf overcome the separate field (net mmf below zero): the flux in the "
+                    "poles turns round there, the generated voltage falls below the residual and, further on, its "
+                    "polarity turns over.")
+        else:
+            said = (("the armature reaction overcomes the series field" if conn == "series" else
+                     "the series and armature mmf overcome the shunt field")
+                    + " (net mmf below zero): the residual magnetism may be wiped out or reversed, and the machine "
+                      "may not build up next time.")
+        out.append(caution("reversed-mmf", "warn", "At some operating point " + said,
                       "equivalent-field-current method (design note); common practice", min_net_mmf_a=mmf))
     emf = f.get("min_generated_emf_v")
     if emf is not None and emf < 0:

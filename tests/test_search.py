@@ -666,3 +666,16 @@ def test_golden_section_steps_per_round_are_exact():
         np.testing.assert_array_equal(state, ref)
     a, b = ref[0:3], ref[3:6]
     assert a[0] <= 0.3 <= b[0] and a[1] <= 1.1 / 3 <= b[1] and b[0] - a[0] < 0.02
+
+
+@pytest.mark.parametrize("conn, words", [("shunt", "overcome the shunt field"),
+                                         ("separate-differential", "overcome the separate field"),
+                                         ("series", "armature reaction overcomes the series field")])
+def test_caution_reversed_mmf_names_the_field(conn, words):
+    """Regression: the reversed-mmf caution said "overcome the shunt field" for every connection, and warned a
+    separately excited set about building up, which it does not need (design note's rules)."""
+    m, p, _ = demo("lighting")
+    turns = None if conn in ("shunt", "separate") else 3
+    c = _rules(m, p, Setting(conn, series_turns=turns), {"min_net_mmf_a": -0.05})["reversed-mmf"]
+    assert words in c.message
+    assert ("build up" in c.message) == (not conn.startswith("separate"))
