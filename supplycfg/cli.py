@@ -299,6 +299,13 @@ POINT_WORDS = {"load_current_a": "load current [A]", "terminal_voltage_v": "term
                "speed_rpm": "speed [rpm]", "shaft_power_kw": "shaft power [kW]", "efficiency": "efficiency"}
 
 
+def point_words(connection):
+    """:data:`POINT_WORDS` for a connection: a separately excited machine's field column names its separate field."""
+    if connection.startswith("separate"):
+        return dict(POINT_WORDS, shunt_field_current_a="separate field current [A]")
+    return POINT_WORDS
+
+
 def _critical_ratio(machine, st):
     """R_crit / R_field of a self-excited setting at its speed and temperature (None otherwise)."""
     from .circuit import SELF_EXCITED
@@ -389,7 +396,7 @@ def cmd_curve(args, out):
         lines.insert(1, f"drive: {drive.describe()}")
     lines.append(table(rows, ["load_current_a", "terminal_voltage_v", "armature_current_a", "shunt_field_current_a",
                               "series_field_current_a", "generated_emf_v", "speed_rpm", "shaft_power_kw",
-                              "efficiency", "extrapolated"], names=POINT_WORDS))
+                              "efficiency", "extrapolated"], names=point_words(st.connection)))
     lines += _notes(c.notes, c.extrapolated, c.converged)
     lines += _caution_lines(cautions)
     return "\n".join(lines)
@@ -462,7 +469,7 @@ def cmd_point(args, out):
     if pts:
         lines.append(table(pts, ["terminal_voltage_v", "load_current_a", "armature_current_a", "shunt_field_current_a",
                                  "series_field_current_a", "generated_emf_v", "speed_rpm", "shaft_power_kw",
-                                 "efficiency", "extrapolated", "state"], names=POINT_WORDS))
+                                 "efficiency", "extrapolated", "state"], names=point_words(st.connection)))
         lines.append("")
     if normal is not None:
         lines.append("The machine sits at the highest stable point of normal polarity; the others are listed, not used.")

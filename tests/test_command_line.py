@@ -186,3 +186,12 @@ def test_table_prints_a_negative_zero_as_zero():
                 ["series_field_current_a", "generated_emf_v"])
     cells = out.splitlines()[2].split()
     assert cells == ["0", "-36.74"]
+
+
+@pytest.mark.parametrize("conn, head", [("separate", "separate field current [A]"), ("shunt", "shunt field current [A]")])
+def test_curve_table_names_the_field_it_has(capsys, conn, head):
+    """Regression: `curve --connection separate` headed its field column "shunt field current"."""
+    assert cli.main(["curve", str(MACHINE), "--connection", conn, "--rheostat-ohm", "30", "--points", "3"]) == 0
+    out = capsys.readouterr().out
+    assert head in out
+    assert ("shunt field current" in out) == (conn == "shunt")
