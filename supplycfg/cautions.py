@@ -88,8 +88,19 @@ def setting_cautions(machine, setting, f):
                           f"{machine.rated_armature_current_a:.0f} A: limit the time at this load.",
                           "machine rating plate (continuous rating)", max_armature_current_a=ia))
     rr, sr = f.get("critical_resistance_ratio"), f.get("critical_speed_ratio")
+    below = [v for v in (rr, sr) if v is not None and v < 1]
     near = [v for v in (rr, sr) if v is not None and v < 1 + CRITICAL_CLEARANCE]
-    if near:
+    if below:
+        # past the critical point, not near it: no build-up there at all
+        out.append(caution("below-critical", "warn",
+                      f"The field circuit is above its critical resistance (or the speed below its critical speed) "
+                      f"somewhere in the speed and temperature range (critical over actual {min(below):.2f}): there the "
+                      "machine does not build up and gives little more than its residual voltage. Lower the field "
+                      "rheostat (or raise the speed) until the ratio is above "
+                      f"{1 + CRITICAL_CLEARANCE:.1f} everywhere.",
+                      "self-excitation conditions (Theraja Vol II ch. 28; Kosow ch. 3); 10 % clearance is common practice",
+                      critical_resistance_ratio=rr, critical_speed_ratio=sr))
+    elif near:
         out.append(caution("near-critical", "warn",
                       "The field circuit is within 10 % of its critical resistance (or the speed within 10 % of critical) "
                       "somewhere in the speed and temperature range: the machine may fail to build up, or collapse on load.",

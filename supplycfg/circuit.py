@@ -2444,6 +2444,35 @@ def series_critical_resistance_ohm(machine, series_turns=None, speed_rpm=None, w
                  * st.speed_rpm / machine.occ_speed_rpm)
 
 
+def series_critical_ratio(machine, setting, load_ohm):
+    """Critical over actual circuit resistance of a series machine closed on a resistor (below 1: no build-up).
+
+    The critical resistance is the air-gap slope of the curve per series-branch
+    ampere (with a diverter, the share of the branch current its winding
+    carries) at the setting's speed; the circuit is the load, the armature and
+    the series branch at the setting's temperature, as in
+    :func:`series_critical_resistance_ohm` (the brushes' drop is left out: its
+    ramp through zero only keeps the equations continuous).
+
+    Parameters
+    ----------
+    machine : Machine
+    setting : Setting
+        A series connection.
+    load_ohm : float
+        The load resistor [ohm].
+
+    References
+    ----------
+    Series generator build-up on a closed circuit below its critical
+    resistance: standard textbook statement (Theraja Vol II ch. 28).
+    """
+    circ = build_circuit(machine, [setting])
+    slope = circ.occ.air_gap_slope() * abs(float(circ.c[0])) * float(circ.s[0])
+    circuit = load_ohm + float(circ.ra[0]) + float(circ.rbr[0])
+    return slope / circuit if circuit > 0 else float("inf")
+
+
 #: Grid points along a load curve where :func:`normal_points` looks for crossings, unless told.
 NORMAL_POINTS_GRID = 97
 

@@ -456,6 +456,9 @@ def cmd_point(args, out):
         pts.append(d)
     from .jobs import command_cautions
     f = _setting_figures(m, st)
+    if st.connection == "series" and kind == "resistor":
+        from .circuit import series_critical_ratio
+        f["critical_resistance_ratio"] = series_critical_ratio(m, st, given["load_ohm"])
     if normal is not None:
         f["max_armature_current_a"] = abs(normal["armature_current_a"])
         f["min_generated_emf_v"] = normal["generated_emf_v"]

@@ -679,3 +679,46 @@ def test_caution_reversed_mmf_names_the_field(conn, words):
     c = _rules(m, p, Setting(conn, series_turns=turns), {"min_net_mmf_a": -0.05})["reversed-mmf"]
     assert words in c.message
     assert ("build up" in c.message) == (not conn.startswith("separate"))
+
+
+def test_caution_below_critical():
+    """Regression: a field circuit past its critical resistance (ratio 0.72) was told it is "within 10 % of"
+    it and "may fail to build up"; past it, the machine does not build up (Theraja Vol II ch. 28), and the
+    caution says so and how far (one caution, not both)."""
+    m, p, _ = demo("lighting")
+    r = _rules(m, p, Setting("shunt"), {"critical_resistance_ratio": 0.72})
+    assert "near-critical" not in r
+    c = r["below-critical"]
+    assert c.severity == "warn" and "does not build up" in c.message and "0.72" in c.message
+    assert "below-critical" not in _rules(m, p, Setting("shunt"), {"critical_resistance_ratio": 1.05})
+
+
+def test_point_past_critical_resistance_says_it_does_not_build_up(capsys):
+    """`point` with the rheostat all in (field circuit above the charging set's critical resistance): the
+    machine sits near its residual and the caution says it does not build up."""
+    from supplycfg.cli import main as cli_main
+    from pathlib import Path
+    machine = Path(__file__).resolve().parent.parent / "profiles" / "machines" / "charging-set.toml"
+    assert cli_main(["point", str(machine), "--connection", "shunt", "--rheostat-ohm", "150", "--load-ohm", "10"]) == 0
+    out = capsys.readouterr().out
+    assert "does not build up" in out and "within 10 %" not in out
+
+
+def test_series_point_on_a_resistor_past_critical(capsys):
+    """A series machine closed on a resistor above its critical circuit resistance (Theraja Vol II ch. 28) sits
+    near its residual: `point` says it does not build up. The ratio is the critical resistance of `buildup`
+    over the whole circuit (load, armature and series field at temperature), closed form."""
+    from pathlib import Path
+    from supplycfg.circuit import build_circuit, check_setting, series_critical_ratio, series_critical_resistance_ohm
+    from supplycfg.cli import main as cli_main
+    from supplycfg.machine import load_machine
+    path = Path(__file__).resolve().parent.parent / "profiles" / "machines" / "charging-set.toml"
+    m = load_machine(path)
+    st = check_setting(m, Setting("series", series_turns=24))
+    circ = build_circuit(m, [st])
+    want = series_critical_resistance_ohm(m, 24) / (5.0 + circ.ra[0] + circ.rbr[0])
+    assert_allclose(series_critical_ratio(m, st, 5.0), want, rtol=1e-12)
+    assert cli_main(["point", str(path), "--connection", "series", "--series-turns", "24", "--load-ohm", "5"]) == 0
+    assert "does not build up" in capsys.readouterr().out
+    assert cli_main(["point", str(path), "--connection", "series", "--series-turns", "24", "--load-ohm", "2"]) == 0
+    assert "build up" not in capsys.readouterr().out
