@@ -197,6 +197,9 @@ def check_setting(machine, setting, source="setting", names=None):
             err("field_current_a", f"applies to separate excitation only, not {s.connection!r}; use the rheostat")
         rh = 0.0 if rh is None else rh
     if rh is not None and not 0 <= rh <= machine.rheostat_max_ohm * (1 + 1e-12):
+        if machine.rheostat_max_ohm <= 0:
+            err("rheostat_ohm", f"is {rh:g}; allowed: 0 only (the machine file gives no field rheostat: "
+                                "rheostat_max_ohm = 0)")
         err("rheostat_ohm", f"is {rh:g}; allowed: 0 to {machine.rheostat_max_ohm:g} ohm (the machine's rheostat)")
     nse = s.series_turns
     if s.connection in USES_SERIES:

@@ -195,3 +195,13 @@ def test_curve_table_names_the_field_it_has(capsys, conn, head):
     out = capsys.readouterr().out
     assert head in out
     assert ("shunt field current" in out) == (conn == "shunt")
+
+
+def test_rheostat_on_a_machine_without_one(capsys):
+    """A rheostat value for a machine whose file gives none (the demo booster): the one line says so, not
+    "allowed: 0 to 0 ohm"."""
+    booster = ROOT / "profiles" / "machines" / "feeder-booster.toml"
+    assert cli.main(["curve", str(booster), "--connection", "shunt", "--rheostat-ohm", "20"]) == 2
+    err = capsys.readouterr().err.strip()
+    assert len(err.splitlines()) == 1
+    assert "--rheostat-ohm: is 20; allowed: 0 only (the machine file gives no field rheostat" in err
