@@ -2403,8 +2403,12 @@ def self_excitation(machine, rheostat_ohm=None, speed_rpm=None, winding_temperat
     if er <= 0:
         reasons.append("no residual voltage: the field must be flashed from a separate supply before it can build up")
     if rf >= rcrit:
+        # the winding alone may be past critical: then no rheostat setting helps, only speed
+        room = rcrit - (rf - (st.rheostat_ohm or 0.0))
+        cure = (f"set the rheostat below {room:.4g} ohm" if room > 0 else
+                f"the shunt winding alone is above it, so only a speed above {ncrit:.5g} rpm builds it up")
         reasons.append(f"field-circuit resistance {rf:.4g} ohm is at or above the critical {rcrit:.4g} ohm at "
-                       f"{st.speed_rpm:.5g} rpm: lower the rheostat")
+                       f"{st.speed_rpm:.5g} rpm: {cure}")
     if st.speed_rpm <= ncrit:
         reasons.append(f"speed {st.speed_rpm:.5g} rpm is at or below the critical {ncrit:.5g} rpm for this field circuit")
     stall = None

@@ -550,10 +550,18 @@ def cmd_buildup(args, out):
              f"field circuit {se.field_circuit_resistance_ohm:.4g} ohm; critical {se.critical_field_resistance_ohm:.4g} ohm at this speed; "
              f"critical speed {se.critical_speed_rpm:.5g} rpm",
              f"builds up from residual: {'yes' if se.builds_up else 'no'}"
-             + (" (and runs away past the measured curve)" if se.runaway and se.builds_up else ""),
-             "no-load voltage once built up (or flashed): "
-             + ("unknown: the voltage runs away" if se.runaway else _fmt(se.no_load_voltage_v, 'V'))]
-    if se.stall_voltage_v is not None:
+             + (" (and runs away past the measured curve)" if se.runaway and se.builds_up else "")]
+    # no higher point to flash it to: the machine only holds the one near its residual
+    near_residual = (not se.builds_up and not se.runaway and se.stall_voltage_v is not None
+                     and se.no_load_voltage_v is not None
+                     and se.no_load_voltage_v <= se.stall_voltage_v + 1e-6 * max(1.0, se.stall_voltage_v))
+    if near_residual:
+        lines.append(f"no-load voltage: about {se.no_load_voltage_v:.4g} V, near the residual; flashing the field "
+                     "does not help, it falls back there")
+    else:
+        lines.append("no-load voltage once built up (or flashed): "
+                     + ("unknown: the voltage runs away" if se.runaway else _fmt(se.no_load_voltage_v, 'V')))
+    if se.stall_voltage_v is not None and not near_residual:
         lines.append(f"a build-up from residual stops near {se.stall_voltage_v:.4g} V")
     if se.extrapolated:
         lines.append("note: the no-load point lies beyond the last measured point of the open-circuit curve (extrapolated)")

@@ -205,3 +205,19 @@ def test_rheostat_on_a_machine_without_one(capsys):
     err = capsys.readouterr().err.strip()
     assert len(err.splitlines()) == 1
     assert "--rheostat-ohm: is 20; allowed: 0 only (the machine file gives no field rheostat" in err
+
+
+@pytest.mark.parametrize("machine, rheostat, cure", [
+    ("charging-set", "130", "set the rheostat below 100 ohm"),
+    ("feeder-booster", "0", "the shunt winding alone is above it, so only a speed above 1481.5 rpm builds it up"),
+])
+def test_buildup_past_critical_says_what_helps(capsys, machine, rheostat, cure):
+    """Regression: past the critical field resistance `buildup` said "lower the rheostat" with the rheostat
+    at 0, and gave the point near the residual as the "no-load voltage once built up (or flashed)". The cure
+    is the rheostat below R_crit - R_winding (here 170 - 70 ohm), or, with the winding alone past critical,
+    a speed above critical (Theraja Vol II ch. 28); the voltage is said to stay near the residual."""
+    path = ROOT / "profiles" / "machines" / f"{machine}.toml"
+    assert cli.main(["buildup", str(path), "--rheostat-ohm", rheostat]) == 0
+    out = capsys.readouterr().out
+    assert cure in out
+    assert "near the residual; flashing the field does not help" in out and "once built up (or flashed)" not in out
