@@ -92,17 +92,25 @@ def setting_cautions(machine, setting, f):
     near = [v for v in (rr, sr) if v is not None and v < 1 + CRITICAL_CLEARANCE]
     if below:
         # past the critical point, not near it: no build-up there at all
+        if conn == "series":
+            # a series machine's field circuit is the whole loop through its load
+            circuit, cure = ("The circuit (load, armature and series field)",
+                             "Close it on a lower load resistance (or raise the speed)")
+        else:
+            circuit = "The field circuit"
+            cure = ("Raise the speed (the rheostat is already all out)" if not setting.rheostat_ohm
+                    else "Lower the field rheostat (or raise the speed)")
         out.append(caution("below-critical", "warn",
-                      f"The field circuit is above its critical resistance (or the speed below its critical speed) "
+                      f"{circuit} is above its critical resistance (or the speed below its critical speed) "
                       f"somewhere in the speed and temperature range (critical over actual {min(below):.2f}): there the "
-                      "machine does not build up and gives little more than its residual voltage. Lower the field "
-                      "rheostat (or raise the speed) until the ratio is above "
-                      f"{1 + CRITICAL_CLEARANCE:.1f} everywhere.",
+                      f"machine does not build up and gives little more than its residual voltage. {cure} until the "
+                      f"ratio is above {1 + CRITICAL_CLEARANCE:.1f} everywhere.",
                       "self-excitation conditions (Theraja Vol II ch. 28; Kosow ch. 3); 10 % clearance is common practice",
                       critical_resistance_ratio=rr, critical_speed_ratio=sr))
     elif near:
         out.append(caution("near-critical", "warn",
-                      "The field circuit is within 10 % of its critical resistance (or the speed within 10 % of critical) "
+                      ("The circuit (load, armature and series field)" if conn == "series" else "The field circuit")
+                      + " is within 10 % of its critical resistance (or the speed within 10 % of critical) "
                       "somewhere in the speed and temperature range: the machine may fail to build up, or collapse on load.",
                       "self-excitation conditions (Theraja Vol II ch. 28; Kosow ch. 3); 10 % clearance is common practice",
                       critical_resistance_ratio=rr, critical_speed_ratio=sr))

@@ -722,3 +722,15 @@ def test_series_point_on_a_resistor_past_critical(capsys):
     assert "does not build up" in capsys.readouterr().out
     assert cli_main(["point", str(path), "--connection", "series", "--series-turns", "24", "--load-ohm", "2"]) == 0
     assert "build up" not in capsys.readouterr().out
+
+
+@pytest.mark.parametrize("setting, words", [
+    (Setting("shunt", rheostat_ohm=40.0), "Lower the field rheostat (or raise the speed)"),
+    (Setting("shunt", rheostat_ohm=0.0), "Raise the speed (the rheostat is already all out)"),
+    (Setting("series", series_turns=3), "The circuit (load, armature and series field) is above"),
+])
+def test_caution_below_critical_says_what_helps(setting, words):
+    """Past critical, the advice fits the rig: no rheostat to lower when it is all out; a series machine's
+    circuit is its load loop (Theraja Vol II ch. 28)."""
+    m, p, _ = demo("lighting")
+    assert words in _rules(m, p, setting, {"critical_resistance_ratio": 0.8})["below-critical"].message
