@@ -535,7 +535,7 @@ def _dial_lines(o, cable_ohm):
                      _num(r["slope_v_per_a"], ".3f"), _num(r["current_change_per_arc_volt_a_per_v"], ".2f"),
                      _num(r["terminal_voltage_v"], ".1f"), _num(r["arc_voltage_v"], ".1f"),
                      "yes" if r.get("tap_change") else ""))
-    lines = [f"Option {o.rank}, welding dial: set the series tap (and diverter), then the rheostat; "
+    lines = ["Welding dial: set the series tap (and diverter), then the rheostat; "
              "the field ammeter reads the hot value at no load."]
     lines += ["  " + ln for ln in _table(hdr, rows)]
     lines.append("  no-load low / high: the lowest and highest no-load voltage over the speed and temperature range; "

@@ -620,3 +620,11 @@ def test_newton_speed_step_fallback_rows_only_matches_the_whole_where():
         got = newton_speed_step(np.float64(s[k]), np.float64(f[k]), np.float64(-abs(df[k])), s0, lo, hi)
         want = min(max(s[k] - (0.1 if f[k] > 0 else -0.1) * s0, lo), hi)
         np.testing.assert_allclose(got, want, rtol=0, atol=0)
+
+
+def test_size_welding_dial_is_not_called_option_1(capsys):
+    """Regression: `size` headed the dial of its best setting at the smallest rating "Option 1, welding dial",
+    the name of a different setting in `search` (3 series turns there, 12 here)."""
+    assert main(["size", str(MACHINES / "welding-set.toml"), str(LOADS / "welding.toml")]) == 0
+    out = capsys.readouterr().out
+    assert "Welding dial: set the series tap" in out and "Option 1" not in out
