@@ -161,5 +161,9 @@ def size_text(res):
                 lines.append(f"  {words}: {v:.4g} {unit}".rstrip())
     for n in res.notes:
         lines.append(f"note: {n}")
+    if res.required_drive_kw is not None:
+        # the rating found is loaded to the full at the job's heaviest point: nothing left for wear or supply
+        lines.append("note: at this rating the drive is fully loaded at the job's heaviest point; choose the next "
+                     "standard rating above it, with some margin (common practice)")
     lines.append(f"{res.searches} searches")
     return "\n".join(lines)

@@ -628,3 +628,10 @@ def test_size_welding_dial_is_not_called_option_1(capsys):
     assert main(["size", str(MACHINES / "welding-set.toml"), str(LOADS / "welding.toml")]) == 0
     out = capsys.readouterr().out
     assert "Welding dial: set the series tap" in out and "Option 1" not in out
+
+
+def test_size_advises_the_next_standard_rating(capsys):
+    """The smallest rating found is fully loaded at the job's heaviest point (99.5 % in the battery demo): the
+    text says to choose the next standard rating above it (common practice)."""
+    assert main(["size", str(MACHINES / "charging-set.toml"), str(LOADS / "battery-charging.toml")]) == 0
+    assert "choose the next standard rating above it" in capsys.readouterr().out
