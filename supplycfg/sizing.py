@@ -130,6 +130,12 @@ def required_drive_rating(machine, profile, tolerance=RATING_TOLERANCE):
     return SizeResult(machine, profile, hi, best, drive.with_rating(hi), lo, count, notes)
 
 
+#: Said with every rating found: it is loaded to the full at the job's heaviest point, nothing left for wear
+#: or a low supply.
+RATING_MARGIN_NOTE = ("at this rating the drive is fully loaded at the job's heaviest point; choose the next "
+                      "standard rating above it, with some margin (common practice)")
+
+
 def size_text(res):
     """What the ``size`` command prints."""
     p = res.profile
@@ -162,8 +168,6 @@ def size_text(res):
     for n in res.notes:
         lines.append(f"note: {n}")
     if res.required_drive_kw is not None:
-        # the rating found is loaded to the full at the job's heaviest point: nothing left for wear or supply
-        lines.append("note: at this rating the drive is fully loaded at the job's heaviest point; choose the next "
-                     "standard rating above it, with some margin (common practice)")
+        lines.append(f"note: {RATING_MARGIN_NOTE}")
     lines.append(f"{res.searches} searches")
     return "\n".join(lines)

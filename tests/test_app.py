@@ -460,6 +460,8 @@ def test_drive_size_section_names_the_connection_in_trade_words():
                                                   "long-shunt-cumulative", "short-shunt-cumulative",
                                                   "separate-differential", "separate-cumulative", "shunt")}
     assert "-differential" not in line and "-cumulative" not in line
+    # the rating found is fully loaded: the page says to take the next standard size, as `size` does
+    assert "choose the next standard rating above it" in " ".join(c.value for c in at.caption)
 
 
 def test_page_charts_carry_their_rows_in_the_views():

@@ -293,6 +293,8 @@ def drive_size_section(result, machine_toml, profile_toml):
                 f"{fmt(o.figures.get('min_speed_rpm'), 'rpm')}.")
     for n in res.notes:
         st.caption(_md(n))
+    from ..sizing import RATING_MARGIN_NOTE
+    st.caption(_md(RATING_MARGIN_NOTE))
 
 
 def _slug(text):
