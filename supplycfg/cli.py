@@ -651,7 +651,8 @@ def cmd_cell(args, out):
     return "\n".join([
         f"{res['chemistry']} at {100 * res['state_of_charge']:g} % charge, {res['temperature_c']:g} degC",
         f"cell voltage {res['volts_per_cell']:.4f} V (rest voltage {res['rest_volts_per_cell']:.3f} V)",
-        f"current {res['current_a_per_ah']:.4g} A per Ah: stored {res['stored_a_per_ah']:.4g}, gas {res['gas_a_per_ah']:.4g}"
+        f"current {res['current_a_per_ah']:.4g} A per Ah: stored {res['stored_a_per_ah']:.4g} A per Ah, "
+        f"gas {res['gas_a_per_ah']:.4g} A per Ah"
         + ("" if sf is None else f" ({100 * sf:.1f} % stored)"),
         f"gassing voltage {res['gassing_volts_per_cell']:.3f} V, highest cell voltage {res['highest_volts_per_cell']:.3f} V "
         "at this temperature"])
