@@ -389,7 +389,9 @@ def cmd_curve(args, out):
     lines = [f"{_name(m, args)}: {connection_words(st.connection)}, {st.describe()}",
              f"no-load voltage {_fmt(c.no_load_voltage_v, 'V')}; short-circuit current {_fmt(c.short_circuit_current_a, 'A')}; "
              f"largest load current {_fmt(c.max_load_current_a, 'A')}; regulation to full load (rated armature current) "
-             f"{_fmt(c.regulation_percent, '%', '.3g')}",
+             f"{_fmt(c.regulation_percent, '%', '.3g')}"
+             + (" (negative: the voltage rises with load)"
+                if c.regulation_percent is not None and c.regulation_percent < 0 else ""),
              ""]
     rows = c.point_list()
     if drive is not None:

@@ -221,3 +221,13 @@ def test_buildup_past_critical_says_what_helps(capsys, machine, rheostat, cure):
     out = capsys.readouterr().out
     assert cure in out
     assert "near the residual; flashing the field does not help" in out and "once built up (or flashed)" not in out
+
+
+def test_negative_regulation_is_explained(capsys):
+    """A series machine's voltage rises with load: its regulation to full load, (V_nl - V_fl) / V_fl, is
+    negative (-96 % on the charging set's 24 turns), and the line says what that means; a shunt curve's is
+    positive and says nothing more."""
+    assert cli.main(["curve", str(MACHINE), "--connection", "series", "--series-turns", "24", "--points", "3"]) == 0
+    assert "(negative: the voltage rises with load)" in capsys.readouterr().out
+    assert cli.main(["curve", str(MACHINE), "--connection", "shunt", "--rheostat-ohm", "30", "--points", "3"]) == 0
+    assert "negative" not in capsys.readouterr().out
