@@ -518,7 +518,10 @@ def occ_chart(machine, setting=None, temperatures_c=None, width=None):
                      alt.Tooltip("emf_v:Q", title="no-load voltage [V]"),
                      alt.Tooltip("builds_up:N", title="builds up from residual")])
     return _layered([base, measured, layer_lines, layer_marks],
-                    _title("Open-circuit characteristic", f"with the field-circuit lines, {speed_note}"), sets, width)
+                    _title("Open-circuit characteristic",
+                           # a series or separately excited set has no field-circuit line to draw
+                           f"with the field-circuit lines, {speed_note}" if lines else
+                           f"with the no-load points, {speed_note}" if marks else speed_note), sets, width)
 
 
 # ---------------------------------------------------------------------------

@@ -623,3 +623,22 @@ def test_no_two_lines_of_a_chart_look_alike(stems):
                 seen.setdefault((colour, tuple(dash)), set()).add(label)
         alike = {k: v for k, v in seen.items() if len(v) > 1}
         assert not alike, (name, alike)
+
+
+@pytest.mark.parametrize("setting, subtitle", [
+    (Setting("shunt", rheostat_ohm=30.0), "with the field-circuit lines"),
+    (Setting("separate", field_current_a=1.0), "with the no-load points"),
+    (Setting("series", series_turns=24), None),
+])
+def test_occ_chart_subtitle_says_what_is_drawn(charging, setting, subtitle):
+    """Regression: the series booster's chart promised "the field-circuit lines" it has none of (no shunt
+    field); a separately excited set shows its no-load points instead."""
+    m, p = charging
+    spec = charts.occ_chart(m, setting, p.temperatures_c).to_dict()
+    sub = spec["title"]["subtitle"]
+    sub = " ".join(sub) if isinstance(sub, list) else sub
+    if subtitle is None:
+        assert "with the" not in sub
+    else:
+        assert sub.startswith(subtitle)
+    assert ("field-circuit lines" in sub) == bool(spec["datasets"].get("field_lines"))
