@@ -734,3 +734,17 @@ def test_caution_below_critical_says_what_helps(setting, words):
     circuit is its load loop (Theraja Vol II ch. 28)."""
     m, p, _ = demo("lighting")
     assert words in _rules(m, p, setting, {"critical_resistance_ratio": 0.8})["below-critical"].message
+
+
+def test_caution_battery_polarity_gives_the_reason_of_the_connection():
+    """Regression: a separately excited option on a battery was told to check polarity because "a self-excited
+    machine can build up reversed"; it cannot build up at all, but its field leads can be the wrong way round
+    (common practice). The series-turns stop names the differential winding as a safe alternative (a back
+    current through it strengthens the field; Theraja Vol II ch. 28, recalled)."""
+    m, p, _ = demo("battery")
+    sep = _rules(m, p, Setting("separate", rheostat_ohm=0), {})["battery-polarity"].message
+    shunt = _rules(m, p, Setting("shunt", rheostat_ohm=0), {})["battery-polarity"].message
+    assert "wrong way round" in sep and "self-excited" not in sep
+    assert "self-excited machine can build up reversed" in shunt
+    stop = _rules(m, p, Setting("long-shunt-cumulative", rheostat_ohm=0, series_turns=8), {})
+    assert "with them differential" in stop["battery-series-back-current"].message

@@ -2044,8 +2044,9 @@ def option_cautions(machine, profile, setting, f):
         out.append(caution("battery-series-back-current", "stop",
                            "Series turns in circuit with a battery: when the machine slows, the battery drives current "
                            "back through the series field, which weakens or reverses the field and can reverse the "
-                           "machine's polarity onto the battery. Use a shunt or separately excited connection with "
-                           "no series turns.",
+                           "machine's polarity onto the battery. Use a shunt or separately excited connection, "
+                           "without series turns or with them differential (a back current then strengthens the "
+                           "field instead of reversing it).",
                            "textbook rule for charging generators (Theraja Vol II ch. 28, from memory); common practice",
                            connection=conn, series_turns=turns))
     if profile is None:
@@ -2077,9 +2078,11 @@ def option_cautions(machine, profile, setting, f):
                        "memory); standstill current from the circuit equation at zero speed",
                        cutout_closing_voltage_v=close_v, cut_in_speed_cold_rpm=cold, cut_in_speed_hot_rpm=hot,
                        standstill_backfeed_current_a=back))
+    why = ("its field leads or the exciter's may be connected the wrong way round" if conn.startswith("separate")
+           else "a self-excited machine can build up reversed")
     out.append(caution("battery-polarity", "note",
-                       "Check the machine's polarity with a voltmeter before closing onto the battery: a self-excited "
-                       "machine can build up reversed.", "common practice"))
+                       f"Check the machine's polarity with a voltmeter before closing onto the battery: {why}.",
+                       "common practice"))
     q, a, ig = _fig(f, "ventilation_m3_per_h"), _fig(f, "ventilation_opening_cm2"), _fig(f, "gas_current_ma_per_ah")
     if q is not None:
         if ig is not None and ig > chem.gas_current_boost_ma_per_ah * (1 + 1e-9):
