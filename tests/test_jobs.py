@@ -463,3 +463,34 @@ def test_lazy_dial_rows_hold_and_break_as_the_whole_evaluation():
     assert solved.any() and (~solved).any()
     for k in whole:
         assert_array_equal(lazy[k][solved], whole[k][solved], err_msg=k)
+
+
+def test_arc_stability_limit_closed_form():
+    """The machine's slope at the working point must stay below the arc's conventional line plus the leads
+    (Kaufmann's criterion, recalled; lines from IEC 60974-1): 0.05 + 0.02 V/A for MIG on 0.02 ohm leads,
+    0.04 V/A for manual metal arc on none."""
+    assert_allclose(welding.arc_stability_slope_limit_v_per_a("metal-inert-gas", 0.02), 0.07, rtol=1e-12)
+    assert_allclose(welding.arc_stability_slope_limit_v_per_a("manual-metal-arc", 0.0), 0.04, rtol=1e-12)
+
+
+def test_mig_on_a_folding_characteristic_is_not_offered():
+    """Regression: for MIG (flat source) the demo welding set's best option worked a self-excited compound
+    past the turn of its curve (slope +0.33 V/A at 60 A, short-circuit current 7 A): the flat test (slope at
+    least -0.05 V/A) let a rising curve through. Every option that meets the job now holds the arc on every
+    dial row, and the former first two break the arc-stability limit."""
+    from supplycfg.machine import load_machine
+    from supplycfg.profile import load_profile
+    from supplycfg.search import search
+    root = Path(__file__).resolve().parent.parent / "profiles"
+    p = load_profile(root / "loads" / "welding.toml")
+    from dataclasses import replace
+    p = replace(p, welding=replace(p.welding, process="metal-inert-gas", min_no_load_voltage_v=None))
+    res = search(load_machine(root / "machines" / "welding-set.toml"), p)
+    limit = welding.arc_stability_slope_limit_v_per_a("metal-inert-gas", p.welding.cable_resistance_ohm)
+    for o in res.options:
+        rows = o.extras.get("dial") or []
+        if o.feasible:
+            assert all(r["slope_v_per_a"] < limit for r in rows)
+    folded = [o for o in res.options if o.setting.connection.endswith("shunt-differential")
+              and o.setting.series_turns == 3 and o.setting.diverter_ohm == 0.0015]
+    assert folded and all("arc_stability" in o.failed and not o.feasible for o in folded)

@@ -140,6 +140,38 @@ def characteristic_margin_v_per_a(process, slope_v_per_a):
     return s - FLAT_MIN_SLOPE_V_PER_A
 
 
+def arc_stability_slope_limit_v_per_a(process, cable_resistance_ohm):
+    """Steepest rise of the machine's characteristic [V/A] at which the arc still holds a working point.
+
+    The working point is stable where the source's characteristic, taken at
+    the arc (the machine's slope less the leads' resistance), is less steep
+    than the arc's own line: a small rise in current then leaves the source
+    short of the voltage the arc needs, and the current falls back. A
+    rising characteristic steeper than that (a self-excited machine past
+    the turn of its curve) runs the arc away or puts it out. The arc's line
+    is the process's conventional load line.
+
+    Parameters
+    ----------
+    process : WeldingProcess or str
+    cable_resistance_ohm : float
+        Electrode and return leads together [ohm].
+
+    Returns
+    -------
+    float
+        ``slope of the conventional load line + R_cable`` [V/A]; the
+        machine's slope at the working point must stay below it.
+
+    References
+    ----------
+    Arc stability criterion (Kaufmann 1900; Lancaster, The Physics of
+    Welding, ch. on the arc and its power source; from memory); the
+    conventional load line from IEC 60974-1.
+    """
+    return float(welding_process(process).load_line_slope_v_per_a + cable_resistance_ohm)
+
+
 @dataclass(frozen=True)
 class NoLoadLimit:
     """A published ceiling for a welding source's no-load voltage."""
@@ -541,6 +573,9 @@ def row_limits(space, ev):
             lim["characteristic_slope"] = (ev["slope_v_per_a"], DROOPING_MAX_SLOPE_V_PER_A, "max", "V/A")
         else:
             lim["characteristic_slope"] = (ev["slope_v_per_a"], FLAT_MIN_SLOPE_V_PER_A, "min", "V/A")
+        # a flat source's lower bound alone lets a rising curve through: the arc must hold its point
+        lim["arc_stability"] = (ev["slope_v_per_a"], arc_stability_slope_limit_v_per_a(proc, job.cable_resistance_ohm),
+                                "max", "V/A")
     if "short_circuit_current_a" in ev:
         isc = ev["short_circuit_current_a"]
         lim["stuck_electrode_current"] = (np.where(np.isnan(isc), np.inf, isc), m.peak_current_a, "max", "A")
