@@ -145,7 +145,7 @@ LIMIT_WORDS = {
     "dial_current": "every welding-dial current reached within 3 %",
     "no_load_strike_voltage": "no-load voltage high enough to strike an arc",
     "characteristic_slope": "characteristic the process needs on every dial row",
-    "arc_stability": "arc holds its working point on every dial row (the characteristic less steep than the arc's)",
+    "arc_stability": "arc stable on every dial row (the characteristic less steep than the arc's line)",
     "exciter_supply": "field current within the exciter's reach",
     "solve_not_converged": "the solve converged",
     "stop_caution": "no stop caution",
