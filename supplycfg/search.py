@@ -660,7 +660,12 @@ def search_text(res, top=10):
         lines.append("Connections as the other commands take them (--connection):")
         lines += [f"  {connection_words(c)}: {c}" for c in shown]
     if tails:
-        lines += ["", "Limits broken:"] + [f"  {_ranks_text(ranks)}: {text}" for ranks, text in _runs_alike(tails)]
+        # a feasible option's only remark may be the extrapolated curve: the heading says both kinds
+        breaks = [t.startswith("breaks: ") for _, t in tails]
+        head = ("Limits broken" if all(breaks) else
+                "Limits broken and curves read past their measured points" if any(breaks) else
+                "Curves read past their measured points")
+        lines += ["", head + ":"] + [f"  {_ranks_text(ranks)}: {text}" for ranks, text in _runs_alike(tails)]
     if res.options:
         best = res.options[0]
         lines += ["", f"Why option {best.rank}: {ranking_line(res, best)}"]

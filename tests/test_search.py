@@ -748,3 +748,19 @@ def test_caution_battery_polarity_gives_the_reason_of_the_connection():
     assert "self-excited machine can build up reversed" in shunt
     stop = _rules(m, p, Setting("long-shunt-cumulative", rheostat_ohm=0, series_turns=8), {})
     assert "with them differential" in stop["battery-series-back-current"].message
+
+
+def test_search_text_heads_extrapolation_remarks_apart_from_broken_limits():
+    """Regression: a feasible option whose only remark is the curve read past its measured points was listed
+    under "Limits broken:"; the heading now names both kinds when both are listed."""
+    from supplycfg.search import search_text
+    m, p, _ = demo("lighting")
+    res = search(m, p)
+    o = res.options[0]
+    text = search_text(res)
+    if not o.extrapolated:
+        # force the case: the best option read past the curve, no limit broken
+        o.extrapolated = True
+        text = search_text(res)
+    head = [ln for ln in text.splitlines() if ln.endswith(":") and ("Limits broken" in ln or "Curves read" in ln)]
+    assert head and head[0] != "Limits broken:"
