@@ -2347,6 +2347,14 @@ class SelfExcitation:
     notes: list = field(default_factory=list)
 
     @property
+    def stays_near_residual(self):
+        """True when the only stable no-load point is where a build-up from residual stops: flashing the
+        field does not raise it (past the critical resistance or below the critical speed)."""
+        return (not self.builds_up and not self.runaway and self.stall_voltage_v is not None
+                and self.no_load_voltage_v is not None
+                and self.no_load_voltage_v <= self.stall_voltage_v + 1e-6 * max(1.0, self.stall_voltage_v))
+
+    @property
     def extrapolated(self):
         """True when the held no-load point needed the OCC beyond its last measured point."""
         return any(p["extrapolated"] for p in self.no_load_points

@@ -553,10 +553,7 @@ def cmd_buildup(args, out):
              f"critical speed {se.critical_speed_rpm:.5g} rpm",
              f"builds up from residual: {'yes' if se.builds_up else 'no'}"
              + (" (and runs away past the measured curve)" if se.runaway and se.builds_up else "")]
-    # no higher point to flash it to: the machine only holds the one near its residual
-    near_residual = (not se.builds_up and not se.runaway and se.stall_voltage_v is not None
-                     and se.no_load_voltage_v is not None
-                     and se.no_load_voltage_v <= se.stall_voltage_v + 1e-6 * max(1.0, se.stall_voltage_v))
+    near_residual = se.stays_near_residual
     if near_residual:
         lines.append(f"no-load voltage: about {se.no_load_voltage_v:.4g} V, near the residual; flashing the field "
                      "does not help, it falls back there")
