@@ -642,3 +642,14 @@ def test_occ_chart_subtitle_says_what_is_drawn(charging, setting, subtitle):
     else:
         assert sub.startswith(subtitle)
     assert ("field-circuit lines" in sub) == bool(spec["datasets"].get("field_lines"))
+
+
+def test_occ_chart_names_a_stalled_no_load_point(charging):
+    """Twin of the buildup regression: with the rheostat all in (field circuit past critical, Theraja Vol II
+    ch. 28) the point the chart marks is the one near the residual, and it is not called built up."""
+    m, p = charging
+    spec = charts.occ_chart(m, Setting("shunt", rheostat_ohm=m.rheostat_max_ohm), p.temperatures_c).to_dict()
+    names = {pt["point"] for pt in rows(spec, "no_load")}
+    assert names == {"no-load point near the residual (no build-up)"}
+    spec = charts.occ_chart(m, Setting("shunt", rheostat_ohm=30.0), p.temperatures_c).to_dict()
+    assert {pt["point"] for pt in rows(spec, "no_load")} == {"built-up no-load point"}
