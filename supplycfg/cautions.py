@@ -10,6 +10,8 @@ import math
 
 from dataclasses import dataclass, field
 
+from .wording import field_words
+
 SEVERITIES = ("stop", "warn", "note")
 #: Share of the critical field resistance or speed kept clear of it (issue rule;
 #: common practice: a machine near critical may not build up after a stop).
@@ -133,7 +135,7 @@ def setting_cautions(machine, setting, f):
                       top_speed_rpm=top))
     if conn != "series":
         out.append(caution("field-switching", "warn",
-                      f"Do not open the {'separate' if conn.startswith('separate') else 'shunt'} field circuit "
+                      f"Do not open the {field_words(conn)} circuit "
                       "while it carries current: its inductance drives a voltage spike "
                       "across the switch and the insulation. Use a field switch with a discharge resistor (or a "
                       "freewheel path) and reduce the field before opening.",

@@ -300,10 +300,9 @@ POINT_WORDS = {"load_current_a": "load current [A]", "terminal_voltage_v": "term
 
 
 def point_words(connection):
-    """:data:`POINT_WORDS` for a connection: a separately excited machine's field column names its separate field."""
-    if connection.startswith("separate"):
-        return dict(POINT_WORDS, shunt_field_current_a="separate field current [A]")
-    return POINT_WORDS
+    """:data:`POINT_WORDS` for a connection: the field column names the field it has (separate or shunt)."""
+    from .wording import field_words
+    return dict(POINT_WORDS, shunt_field_current_a=f"{field_words(connection)} current [A]")
 
 
 def _critical_ratio(machine, st):

@@ -15,7 +15,7 @@ field, E shunt field, F separately excited field; from memory).
 
 from dataclasses import dataclass
 
-from .wording import connection_words
+from .wording import connection_words, field_words
 
 #: Where the shunt (or separate) field takes its supply, per connection.
 SHUNT_ACROSS = {
@@ -140,7 +140,7 @@ def wiring(machine, setting, kind):
             parts.append(Part("rheostat", f"field rheostat {_num(setting.rheostat_ohm or 0.0, 'Ω')} "
                                           f"(0–{_num(machine.rheostat_max_ohm, 'Ω')})"))
         letters = "F1–F2" if across == "exciter" else "E1–E2"
-        parts.append(Part("shunt-field", f"{'separate' if across == 'exciter' else 'shunt'} field {letters}"))
+        parts.append(Part("shunt-field", f"{field_words(conn)} {letters}"))
     parts.append(Part("voltmeter", "voltmeter"))
     if kind == "battery":
         parts.append(Part("cut-out", "reverse-current cut-out"))
@@ -157,7 +157,7 @@ def wiring(machine, setting, kind):
         div = f" (diverter {_num(setting.diverter_ohm, 'Ω')} across {a}–{b})" if setting.diverter_ohm is not None else ""
         line = "the feeder's + line" if kind == "booster" else "the + line"
         steps.append(f"A1 (+) to series field {a}; series field {b} to {line}{div}."
-                     + (f" Turned round against the {'separate' if across == 'exciter' else 'shunt'} field: differential."
+                     + (f" Turned round against the {field_words(conn)}: differential."
                         if sense == "opposing" else ""))
     else:
         steps.append("A1 (+) to the + line." if kind != "booster" else "A1 to the feeder.")

@@ -26,6 +26,12 @@ CONNECTION_WORDS = {
 }
 
 
+def field_words(connection):
+    """The field a connection has besides any series winding: ``"separate field"`` for a separately
+    excited connection, ``"shunt field"`` for the others (a series machine has none; callers leave it out)."""
+    return "separate field" if connection.startswith("separate") else "shunt field"
+
+
 def connection_words(connection):
     """The trade name of a connection id, e.g. ``"long-shunt differential compound"``.
 
