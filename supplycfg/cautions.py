@@ -92,16 +92,13 @@ def setting_cautions(machine, setting, f):
     rr, sr = f.get("critical_resistance_ratio"), f.get("critical_speed_ratio")
     below = [v for v in (rr, sr) if v is not None and v < 1]
     near = [v for v in (rr, sr) if v is not None and v < 1 + CRITICAL_CLEARANCE]
+    # a series machine's field circuit is the whole loop through its load
+    circuit = "The circuit (load, armature and series field)" if conn == "series" else "The field circuit"
     if below:
         # past the critical point, not near it: no build-up there at all
-        if conn == "series":
-            # a series machine's field circuit is the whole loop through its load
-            circuit, cure = ("The circuit (load, armature and series field)",
-                             "Close it on a lower load resistance (or raise the speed)")
-        else:
-            circuit = "The field circuit"
-            cure = ("Raise the speed (the rheostat is already all out)" if not setting.rheostat_ohm
-                    else "Lower the field rheostat (or raise the speed)")
+        cure = ("Close it on a lower load resistance (or raise the speed)" if conn == "series" else
+                "Raise the speed (the rheostat is already all out)" if not setting.rheostat_ohm else
+                "Lower the field rheostat (or raise the speed)")
         out.append(caution("below-critical", "warn",
                       f"{circuit} is above its critical resistance (or the speed below its critical speed) "
                       f"somewhere in the speed and temperature range (critical over actual {min(below):.2f}): there the "
@@ -111,8 +108,7 @@ def setting_cautions(machine, setting, f):
                       critical_resistance_ratio=rr, critical_speed_ratio=sr))
     elif near:
         out.append(caution("near-critical", "warn",
-                      ("The circuit (load, armature and series field)" if conn == "series" else "The field circuit")
-                      + " is within 10 % of its critical resistance (or the speed within 10 % of critical) "
+                      f"{circuit} is within 10 % of its critical resistance (or the speed within 10 % of critical) "
                       "somewhere in the speed and temperature range: the machine may fail to build up, or collapse on load.",
                       "self-excitation conditions (Theraja Vol II ch. 28; Kosow ch. 3); 10 % clearance is common practice",
                       critical_resistance_ratio=rr, critical_speed_ratio=sr))
