@@ -633,6 +633,7 @@ def search_text(res, top=10):
     if welding:
         hdr.insert(-2, "tap changes")
     rows, tails = [], []
+    remarks = set()  # what the remarks below the table hold: broken limits, extrapolated curves
     for o in res.options[:top]:
         s = o.setting
         rh, fh = _field_cells(o)
@@ -648,8 +649,10 @@ def search_text(res, top=10):
         tail = []
         if not o.feasible:
             tail.append("breaks: " + broken_limits_text(o.failed))
+            remarks.add("breaks")
         if o.extrapolated:
             tail.append("needs the open-circuit curve beyond its last measured point")
+            remarks.add("extrapolated")
         if tail:
             tails.append((o.rank, "; ".join(tail)))
     lines += _table(hdr, rows)
@@ -660,11 +663,9 @@ def search_text(res, top=10):
         lines.append("Connections as the other commands take them (--connection):")
         lines += [f"  {connection_words(c)}: {c}" for c in shown]
     if tails:
-        # a feasible option's only remark may be the extrapolated curve: the heading says both kinds
-        breaks = [t.startswith("breaks: ") for _, t in tails]
-        head = ("Limits broken" if all(breaks) else
-                "Limits broken and curves read past their measured points" if any(breaks) else
-                "Curves read past their measured points")
+        head = {frozenset({"breaks"}): "Limits broken",
+                frozenset({"extrapolated"}): "Curves read past their measured points"}.get(
+            frozenset(remarks), "Limits broken and curves read past their measured points")
         lines += ["", head + ":"] + [f"  {_ranks_text(ranks)}: {text}" for ranks, text in _runs_alike(tails)]
     if res.options:
         best = res.options[0]
