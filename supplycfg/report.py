@@ -639,6 +639,14 @@ RIG_WORDS = {"diverter": "no diverter", "series turns": "fewer series turns in c
              "exciter": "no exciter needed"}
 
 
+def _tie_decider(why, winner, loser):
+    """What settles a tie for ``winner`` over ``loser`` where it is a margin or the rig (None otherwise)."""
+    if why == "margin":
+        return (f"the larger least margin: {100 * winner.smallest_margin:.1f} % against "
+                f"{100 * loser.smallest_margin:.1f} %")
+    return f"the simpler rig ({RIG_WORDS[why]})" if why in RIG_WORDS else None
+
+
 def ranking_line(result, option):
     """One line: why this option stands where it does under the stated rule."""
     said = option_value(option, "rank_reason")
@@ -672,15 +680,12 @@ def ranking_line(result, option):
         tie = f"; option {nxt.rank} ({nwords}) is within {100 * OBJECTIVE_TIE_FRACTION:g} %, a tie, and "
         tied = f", as option {nxt.rank}; the tie goes to " if option.objective == nxt.objective \
             else f"{tie}the tie goes to "
-        if why == "margin":
-            return (f"{head}{tied}the larger least margin: {100 * option.smallest_margin:.1f} % against "
-                    f"{100 * nxt.smallest_margin:.1f} %.")
         if why == "objective-in-tie":
             return (f"{head}{tie}with the same rig and least margins alike to 0.1 % ({100 * option.smallest_margin:.1f} %) "
                     f"{BETTER_OBJECTIVE_WORDS.get(kind, 'the better objective')} ranks first.")
         if why == "order":
             return f"{head}{tied}neither: they are alike by every rule, listed in a fixed order."
-        return f"{head}{tied}the simpler rig ({RIG_WORDS[why]})."
+        return f"{head}{tied}{_tie_decider(why, option, nxt)}."
     best = feasible[0]
     head = f"Meets every limit; ranked {option.rank} of {len(feasible)}"
     _, bwords = objective_value(best, kind)
@@ -692,15 +697,12 @@ def ranking_line(result, option):
     if why == "objective":
         return f"{head}: {words} against option {best.rank}'s {bwords}."
     tie = f"{head}: {words}, a tie with option {best.rank} ({bwords}), "
-    if why == "margin":
-        return (f"{tie}which keeps the larger least margin: {100 * best.smallest_margin:.1f} % against "
-                f"{100 * option.smallest_margin:.1f} %.")
     if why == "objective-in-tie":
         return (f"{tie}alike in rig and least margin; option {best.rank} has "
                 f"{BETTER_OBJECTIVE_WORDS.get(kind, 'the better objective')}.")
     if why == "order":
         return f"{tie}alike by every rule; listed in a fixed order."
-    return f"{tie}which has the simpler rig ({RIG_WORDS[why]})."
+    return f"{tie}which {'keeps' if why == 'margin' else 'has'} {_tie_decider(why, best, option)}."
 
 
 # --- checks at the machine ---------------------------------------------------
