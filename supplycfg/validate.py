@@ -330,11 +330,12 @@ class Table:
     def has(self, k):
         return k in self.data
 
-    def raw(self, k, default=_MISSING):
+    def raw(self, k, default=_MISSING, allowed=None):
         self.known.append(k)
         if k not in self.data:
             if default is _MISSING:
-                raise InputError(self.source, self.key(k), f"is missing; it is required in [{self.prefix}]")
+                raise InputError(self.source, self.key(k), f"is missing; it is required in [{self.prefix}]"
+                                 + (f"; allowed: {allowed}" if allowed else ""))
             return default
         return self.data[k]
 
@@ -348,7 +349,7 @@ class Table:
 
     # typed readers -----------------------------------------------------
     def text(self, k, default=_MISSING, choices=None):
-        v = self.raw(k, default)
+        v = self.raw(k, default, ", ".join(choices) if choices is not None else "text")
         if v is default and default is not _MISSING:
             return v
         if not isinstance(v, str):
@@ -360,14 +361,14 @@ class Table:
 
     def number(self, k, default=_MISSING, *, low=None, high=None, low_open=False,
                high_open=False, what="a number"):
-        v = self.raw(k, default)
+        v = self.raw(k, default, f"{what} {_bounds(low, high, low_open, high_open)}")
         if v is default and default is not _MISSING:
             return v
         return check_number(v, self.source, self.key(k), low=low, high=high,
                             low_open=low_open, high_open=high_open, what=what)
 
     def integer(self, k, default=_MISSING, *, low=None, high=None):
-        v = self.raw(k, default)
+        v = self.raw(k, default, f"a whole number {_bounds(low, high, False, False)}")
         if v is default and default is not _MISSING:
             return v
         if isinstance(v, bool) or not isinstance(v, int):
@@ -380,7 +381,8 @@ class Table:
 
     def numbers(self, k, default=_MISSING, *, low=None, high=None, low_open=False,
                 min_len=1, max_len=MAX_LIST_VALUES):
-        v = self.raw(k, default)
+        size = f"{min_len}" if min_len == max_len else f"{min_len} to {max_len}"
+        v = self.raw(k, default, f"a list of {size} numbers, each {_bounds(low, high, low_open, False)}")
         if v is default and default is not _MISSING:
             return v
         if not isinstance(v, list):
