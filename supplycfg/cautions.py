@@ -161,8 +161,12 @@ def operating_point_cautions(ops):
     back = [p for p in ops.points if p.get("back_feeding") and not p.get("reversed")]
     if back:
         p = next((q for q in back if q["stable"]), back[0])
+        # an unstable state is not where the machine sits: it is where it goes if pushed past it
+        at = (f"At {p['terminal_voltage_v']:.4g} V the load drives" if p["stable"] else
+              f"If the speed or the field falls, the machine can be pushed to an unstable state at "
+              f"{p['terminal_voltage_v']:.4g} V where the load drives")
         out.append(caution("back-feeding", "warn",
-                      f"At {p['terminal_voltage_v']:.4g} V the load drives {-p['load_current_a']:.4g} A back into the "
+                      f"{at} {-p['load_current_a']:.4g} A back into the "
                       "machine, which runs as a motor and discharges the source: fit a reverse-current cut-out or "
                       "a blocking diode.",
                       "common practice for DC charging sets (reverse-current relay)",
@@ -172,6 +176,26 @@ def operating_point_cautions(ops):
                       f"No operating point can be given: {ops.message}. Do not close onto this load with this "
                       "setting.", "circuit model (design note: the highest stable intersection)"))
     return out
+
+def drive_overload_cautions(drive, kw, where="at the heaviest point"):
+    """A ``warn`` where the shaft power ``kw`` [kW] passes the drive's rating (none for a fixed speed);
+    ``where`` says which point it is."""
+    out = []
+    if drive is None or not drive.coupled:
+        return out
+    rating = drive.rated_power_kw
+    if kw is not None and rating and kw > rating * (1 + 1e-9):
+        out.append(caution("drive-overload", "warn",
+                      f"The {drive.kind} must give {kw:.3g} kW at the shaft {where}, "
+                      f"{100 * kw / rating:.0f} % of its rated {rating:g} kW: "
+                      + ("it runs hot and its protection trips, and it slips further"
+                         if drive.kind == "motor" else "it cannot hold its speed, and the figures at its droop "
+                                                       "line no longer hold")
+                      + ". Use a larger drive or a lighter setting.",
+                      "the profile's rated_power_kw (rating plate, continuous duty)",
+                      max_shaft_power_kw=kw, rated_power_kw=rating))
+    return out
+
 
 def drive_cautions(machine, drive, f):
     """Cautions of the drive that turns the set (an engine or a motor), from a setting's figures ``f``.
@@ -200,9 +224,10 @@ def drive_cautions(machine, drive, f):
                       "loaded point: the voltage collapses.",
                       "self-excitation below critical speed, with the drive's speed solved at the load "
                       "(Theraja Vol II ch. 28; design note)", collapsed_load_points=col))
+    kw = f.get("max_shaft_power_kw")
+    out += drive_overload_cautions(drive, kw)
     lo, top = f.get("min_speed_rpm"), f.get("top_speed_rpm")
     if lo is not None and top is not None:
-        kw = f.get("max_shaft_power_kw")
         out.append(caution("drive-speed", "note",
                       f"The {drive.kind} slows with load: about {top:.0f} rpm at the generator with no load, down to "
                       f"{lo:.0f} rpm at the heaviest point of the job"

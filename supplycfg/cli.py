@@ -366,6 +366,7 @@ def _fmt(v, unit="", f=".4g"):
 
 
 def cmd_curve(args, out):
+    from .cautions import drive_overload_cautions
     from .circuit import external_characteristic
     from .machine import load_machine
     m = load_machine(args.machine)
@@ -379,6 +380,11 @@ def cmd_curve(args, out):
         f["max_armature_current_a"] = max(abs(p["armature_current_a"]) for p in pts)
         f["min_generated_emf_v"] = min(p["generated_emf_v"] for p in pts)
     cautions = command_cautions(m, st, f)
+    # (the curve runs on to short circuit: the drive is judged up to the machine's own rating)
+    power = [p["shaft_power_kw"] for p in pts if p.get("shaft_power_kw") is not None
+             and abs(p["armature_current_a"]) <= m.rated_armature_current_a]
+    cautions += drive_overload_cautions(drive, max(power) if power else None,
+                                        "up to the machine's rated armature current")
     res = {"setting": st.as_dict(), "points": pts, "no_load_voltage_v": c.no_load_voltage_v,
            "short_circuit_current_a": c.short_circuit_current_a, "max_load_current_a": c.max_load_current_a,
            "regulation_percent": c.regulation_percent, "extrapolated": c.extrapolated,
@@ -417,7 +423,7 @@ def _notes(notes, extrapolated, converged):
 
 
 def cmd_point(args, out):
-    from .cautions import operating_point_cautions
+    from .cautions import drive_overload_cautions, operating_point_cautions
     from .circuit import Load, operating_points
     from .machine import load_machine
     given = {k: getattr(args, k) for k in ("load_ohm", "load_current_a", "battery_emf_v", "battery_ohm",
@@ -464,6 +470,8 @@ def cmd_point(args, out):
         f["max_armature_current_a"] = abs(normal["armature_current_a"])
         f["min_generated_emf_v"] = normal["generated_emf_v"]
     cautions = command_cautions(m, st, f, load=kind) + operating_point_cautions(ops)
+    if normal is not None:
+        cautions += drive_overload_cautions(drive, normal.get("shaft_power_kw"))
     res = {"setting": st.as_dict(), "load": load.label, "operating_points": pts,
            "sits_at": None if normal is None else ops.points.index(normal), "runaway": ops.runaway,
            "message": ops.message, "cautions": [c.as_dict() for c in cautions], "converged": ops.converged}
@@ -653,7 +661,7 @@ def cmd_cell(args, out):
         f"gas {res['gas_a_per_ah']:.4g} A per Ah"
         + ("" if sf is None else f" ({100 * sf:.1f} % stored)"),
         f"gassing voltage {res['gassing_volts_per_cell']:.3f} V, highest cell voltage {res['highest_volts_per_cell']:.3f} V "
-        "at this temperature"])
+        "at this temperature"] + [f"note: {n}" for n in res["notes"]])
 
 
 def cmd_bench(args, out):

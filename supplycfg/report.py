@@ -409,10 +409,10 @@ def readings_rows(option, readings=None, band=None):
     if isinstance(fc, dict) and any(_given(fc.get(k)) for k in ("cold", "hot")):
         parts = [f"{_round(fc[k])} A {k}" for k in ("cold", "hot") if _given(fc.get(k))]
         keep = _pair_text(b.get("field_current_a"), "A")
-        rows.append(("Field ammeter reads", ", ".join(parts) + (f"; keep it within {keep}" if keep else "")))
+        rows.append(("Field ammeter reads", ", ".join(parts) + (f"; set it within {keep}" if keep else "")))
     elif _given(fc):
         keep = _pair_text(b.get("field_current_a"), "A")
-        rows.append(("Field ammeter reads", f"{_round(fc)} A" + (f"; keep it within {keep}" if keep else "")))
+        rows.append(("Field ammeter reads", f"{_round(fc)} A" + (f"; set it within {keep}" if keep else "")))
     rh = r.get("rheostat_ohm")
     if _given(rh):
         travel = r.get("rheostat_travel_percent")
@@ -543,13 +543,40 @@ def card_plan_rows(option):
                 field = [f"field current {fmt(setting['field_current_a'], 'A')}"]
             elif _given(setting.get("rheostat_ohm")):
                 field = [f"rheostat {fmt(setting['rheostat_ohm'], 'Ω')}"]
+        rise = stage_field_rise_text(st)
+        if rise:
+            field.append(rise)
+        two = len(option_value(option, "plan") or []) == 2
+        why = STAGE_END_WORDS.get(str(st.get("ends_because") or ""), str(st.get("ends_because") or ""))
         ends = " ".join(x for x in (f"at {fmt(st.get('end_volts_per_cell'), 'V per cell')}"
-                                    if _given(st.get("end_volts_per_cell")) else "",
-                                    str(st.get("ends_because") or "")) if x)
-        name = ("main charge" if k == 1 else "finish") if len(option_value(option, "plan") or []) == 2 else f"stage {k}"
+                                    if _given(st.get("end_volts_per_cell")) else "", why) if x)
+        if two and k == 1 and _given(st.get("end_terminal_voltage_v")):
+            ends += f"; the voltmeter at the machine reads about {fmt(st['end_terminal_voltage_v'], 'V')}"
+        name = ("main charge" if k == 1 else "finish") if two else f"stage {k}"
         out.append((f"{k}: {name}", f"{fmt(st.get('from_h'))} to {fmt(st.get('to_h'), 'h')}", "; ".join(field) or "–",
                     f"{fmt(st.get('start_current_a'), 'A')} to {fmt(st.get('end_current_a'), 'A')}", ends or "–"))
     return out
+
+
+#: Why a stage ends, in the card's few words (the plan's and the charge run's codes).
+STAGE_END_WORDS = {"handover-voltage": "hand over to the finish", "end-state-of-charge": "full",
+                   "stalled": "the current stalls", "end-soc": "full", "voltage-limit": "at the highest cell voltage",
+                   "current-floor": "the current stalls", "time-cap": "the run's time cap",
+                   "no-operating-point": "the machine loses its operating point"}
+
+
+def stage_field_rise_text(stage):
+    """What the field ammeter does along a charge stage on a self-excited machine ('' where it holds).
+
+    The shunt field hangs on the terminals, so its current follows the bank's
+    voltage up as the cells charge; an attendant who sees it rise must not
+    turn it back.
+    """
+    a, b = _mapping(stage).get("start_field_current_a"), _mapping(stage).get("end_field_current_a")
+    if not (_given(a) and _given(b)) or abs(b - a) <= 0.02 * abs(a):
+        return ""
+    way = "rises" if b > a else "falls"
+    return f"the field ammeter {way} to about {_round(b)} A as the bank's voltage {way}: leave the field as set"
 
 
 def _given(v):
@@ -783,6 +810,9 @@ def checklist_rows(result, option, run=None):
         else:
             start = fmt(f.get("start_charge_current_a"), "A") if _given(f.get("start_charge_current_a")) else note
         rows.append(("Charging current at the start", start))
+        plan = [_mapping(x) for x in option_value(o, "plan") or []]
+        if len(plan) == 2:
+            rows.append(("Hand-over to the finish", handover_check_text(plan)))
     elif kind == "welding":
         rows.append(("Short-circuit current (electrode stuck), at the top setting",
                      fmt(f.get("stuck_electrode_current_a"), "A") if _given(f.get("stuck_electrode_current_a")) else note))
@@ -824,6 +854,30 @@ def checklist_rows(result, option, run=None):
     if s.connection != "series":
         rows.append(("Field discharge path fitted (discharge resistor or freewheel path)", "fitted"))
     return rows
+
+
+def handover_check_text(plan):
+    """The checklist's expected hand-over of a two-stage charge: the voltmeter reading that calls it,
+    then the finish's field and the current it must not pass."""
+    main, fin = plan
+    parts = []
+    v, vpc = main.get("end_terminal_voltage_v"), main.get("end_volts_per_cell")
+    if _given(v):
+        parts.append(f"voltmeter at the machine about {fmt(v, 'V')}"
+                     + (f" ({fmt(vpc, 'V per cell')} at the bank)" if _given(vpc) else ""))
+    rd = _mapping(fin.get("readings"))
+    fc = _mapping(rd.get("field_current_a"))
+    then = []
+    if _given(rd.get("rheostat_ohm")):
+        then.append(f"the rheostat to {_round(rd['rheostat_ohm'])} Ω")
+    if _given(fc.get("hot")):
+        then.append(f"the field ammeter {_round(fc['hot'])} A hot"
+                    + (f" ({_round(fc['cold'])} A cold)" if _given(fc.get("cold")) else ""))
+    if then:
+        parts.append("then " + ", ".join(then))
+    if _given(fin.get("start_current_a")):
+        parts.append(f"charging current then about {fmt(fin['start_current_a'], 'A')}")
+    return "; ".join(parts) or "note the reading"
 
 
 #: The welding no-load limits in the checklist's words, in the order said (the margins' names of the welding job).
@@ -1039,8 +1093,7 @@ def sheet_markdown(result, rank=None, run=None, date=None):
     if plan_table(o):
         lines += ["### Charge plan", "", f"At {md_esc(condition_words(o)['setting'])}; only the field changes "
                   "between stages.", ""]
-        lines += _md_table(PLAN_HEADERS, plan_table(o)) + [""]
-        lines += _md_table(("Reverse-current cut-out", "Figure"), cutout_rows(o)) + [""]
+        lines += _md_table(CARD_PLAN_HEADERS, card_plan_rows(o)) + [""]
     elif run is not None:
         lines += [md_esc(run_summary(run)), ""]
     w = wiring(m, o.setting, p.kind)
@@ -1048,6 +1101,9 @@ def sheet_markdown(result, rank=None, run=None, date=None):
     lines += ["## Check at the machine", ""]
     lines += _md_table(CHECKLIST_HEADERS, [(c, e, "", "") for c, e in checklist_rows(result, o, run)]) + [""]
     lines += [md_esc(cautions_pointer(o, result, "below")), "", "---", ""]
+    if plan_table(o):
+        lines += ["## Charge plan in full", ""] + _md_table(PLAN_HEADERS, plan_table(o)) + [""]
+        lines += _md_table(("Reverse-current cut-out", "Figure"), cutout_rows(o)) + [""]
     lines += ["## What to expect", ""] + _md_table(("Figure", "Value"), figure_rows(o)) + [""]
     lines += ["## Limits and margins", ""]
     lines += _md_table(("Limit", "Value", "Limit value", "Margin", "Margin of limit", "Status"), margin_rows(o)) + [""]

@@ -562,9 +562,31 @@ def _reading_lines(o, kind=""):
                          f"{st['ends_reason']}")
             where = "at the start of charge" if st["stage"] == 1 else "at the hand-over"
             lines += ["  " + x for x in field_reading_lines(st.get("readings"), st.get("band"), where)]
+            lines += ["    " + x for x in _stage_meter_lines(st)]
     else:
+        for st in stages:
+            # a one-stage charge: its span and why it ends, then the one field setting
+            lines.append(f"  {st['name']}: {_num(st['from_h'], '.3g')} to {_num(st['to_h'], '.3g')} h, "
+                         f"{_num(st['start_current_a'], '.3g')} to {_num(st['end_current_a'], '.3g')} A; "
+                         f"{st['ends_reason']}")
         lines += field_reading_lines(o.readings, o.band, READING_POINT.get(kind, ""))
+        for st in stages:
+            lines += ["  " + x for x in _stage_meter_lines(st)]
     return lines + _rig_lines(o)
+
+
+def _stage_meter_lines(st):
+    """What the meters do along a charge stage: the field ammeter following the bank, and the
+    voltmeter reading that calls the hand-over."""
+    from .report import stage_field_rise_text
+    out = []
+    rise = stage_field_rise_text(st)
+    if rise:
+        out.append(rise)
+    v = st.get("end_terminal_voltage_v")
+    if st.get("ends_because") == "handover-voltage" and v is not None:
+        out.append(f"hand over when the voltmeter at the machine reads about {v:.4g} V")
+    return out
 
 
 def field_reading_lines(r, b, where=""):
@@ -627,6 +649,10 @@ def search_text(res, top=10):
              f"drive: {res.profile.drive.describe()}",
              f"{len(res.options)} distinct options; {res.candidates_evaluated} candidate evaluations in "
              f"{res.search_seconds:.2f} s", "", res.ranking_rule, ""]
+    for c in res.cautions:
+        if c.severity == "stop":
+            # the job as given, whatever the setting: said before any option is read
+            lines += [f"STOP, whatever the setting: {visible(c.message)}", ""]
     welding = kind == "welding"
     hdr = ["rank", "fit", "connection", "series turns", "diverter [ohm]", "rheostat [ohm]", "field hot [A]",
            "speed [rpm]", "least margin [%]", "cautions"]

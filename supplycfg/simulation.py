@@ -246,6 +246,9 @@ def charge_run(machine, profile, setting, max_hours=None, finish_setting=None):
     m, fi = plan.main, plan.finish
     # a one-stage plan runs on past the hand-over voltage with the same field: still its stage 1
     parts = [(m, 1)] + ([(fi, 2 if plan.two_stage[0] else 1)] if plan.handed_over[r] else [])
+    if plan.handed_over[r] and not m.soc[r, -1] > m.soc[r, 0]:
+        # the bank was at the hand-over voltage from the start: no main charge to show, its nodes all one
+        parts = [(fi, 1)]
     cols = {k: [] for k in ("time_h", "current_a", "stored_current_a", "gas_current_a", "terminal_voltage_v",
                             "volts_per_cell", "soc", "ah", "kwh", "armature_current_a", "found", "stage",
                             "part")}

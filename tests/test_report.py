@@ -268,7 +268,7 @@ def test_card_shows_readings_bands_dial_and_plan_when_the_core_gives_them(result
                "no_load_voltage_max_v": 64.0 + k, "short_circuit_current_a": 150.0 + 10 * k, "slope_v_per_a": -0.3}
               for k in range(13)]
     rows = dict(report.setting_rows(o, res.machine, res.profile))
-    assert rows["Field ammeter reads"] == "0.988 A cold, 0.912 A hot; keep it within 0.9 to 1.05 A"
+    assert rows["Field ammeter reads"] == "0.988 A cold, 0.912 A hot; set it within 0.9 to 1.05 A"
     assert rows["Field rheostat"] == "48.6 Ω (81 % of its travel); every limit holds from 40 to 55 Ω"
     dial = report.dial_rows(o)
     assert len(dial) == 13 and dial[0][0] == "60 A" and dial[-1][1] == "5"

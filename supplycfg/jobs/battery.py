@@ -607,7 +607,16 @@ def cell_point(name, soc, volts_per_cell=None, current_per_ah=None, temperature_
                              f"{top:.3g} V for {name}")
         p = cell_at_voltage(chem, soc, volts_per_cell, temperature_c)
     num = lambda v: None if not np.isfinite(v) else float(v)
-    return {"chemistry": name, "state_of_charge": float(soc), "temperature_c": float(temperature_c),
+    vpc, rate = float(p.volts_per_cell), float(p.rate_per_h)
+    top = float(highest_volts_per_cell(chem, temperature_c))
+    notes = []
+    if rate < 0:
+        notes.append("below the rest voltage the cell discharges: the current is given out, not taken in (the "
+                     "model's discharge is the rest voltage and the cell resistance only)")
+    if vpc > top * (1 + 1e-9):
+        notes.append(f"above the highest cell voltage {top:.3f} V: outside what the model is calibrated for "
+                     "(a real cell there gasses violently and heats)")
+    return {"chemistry": name, "state_of_charge": float(soc), "temperature_c": float(temperature_c), "notes": notes,
             "volts_per_cell": float(p.volts_per_cell), "current_a_per_ah": float(p.rate_per_h),
             "stored_fraction": num(p.stored_fraction), "stored_a_per_ah": float(p.stored_per_h),
             "gas_a_per_ah": float(p.gas_per_h),
@@ -796,6 +805,13 @@ def read_job(t, source):
     fin = t.number("finishing_rate_per_h", None, low=0, low_open=True, high=1.0)
     hours = t.number("target_hours", DEFAULT_TARGET_HOURS, low=0, low_open=True, high=1000.0)
     close = t.number("cutout_closing_volts_per_cell", None, low=ocv[0], high=chem.max_cell_voltage_v)
+    rest_top = float(open_circuit_voltage_per_cell(chem, soc[1], tuple(ocv)))
+    if close is not None and close <= rest_top:
+        # closing below the battery's own voltage lets the bank drive current back at every closing
+        raise InputError(source, t.key("cutout_closing_volts_per_cell"),
+                         f"is {close:g}; allowed: above {rest_top:.4g} V/cell (the bank's rest voltage at "
+                         f"{100 * soc[1]:.3g} % charge: the cut-out must close only once the machine is above the "
+                         f"battery) and at most {chem.max_cell_voltage_v:g}")
     return BatteryJob(chemistry=name, cells=cells, capacity_ah=cap, state_of_charge=soc,
                       max_charge_current_a=imax, min_charge_current_a=imin, internal_resistance_ohm=rb,
                       cable_resistance_ohm=rc, temperature_c=temp, open_circuit_voltage_per_cell_v=tuple(ocv),
@@ -809,6 +825,20 @@ def handover_volts_per_cell(job):
     chem = chemistry(job.chemistry)
     v25 = chem.gassing_voltage_v if job.charge_voltage_per_cell_v is None else job.charge_voltage_per_cell_v
     return float(temperature_corrected_volts_per_cell(chem, v25, job.temperature_c))
+
+
+def starts_above_handover(job):
+    """Whether the bank is already at its hand-over voltage at the start of charge when it takes the
+    job's lowest main-charge current (a nearly full bank): the job is a top-up with no main charge.
+
+    The cell model at the starting state of charge, at ``min_charge_current_a``
+    (a job asking no lowest current is never one).
+    """
+    if not job.min_charge_current_a > 0:
+        return False
+    p = cell_on_charge(chemistry(job.chemistry), job.state_of_charge[0], job.min_charge_current_a / job.capacity_ah,
+                       job.temperature_c, job.open_circuit_voltage_per_cell_v, bank_resistance_ohm_ah(job))
+    return bool(float(p.volts_per_cell) >= handover_volts_per_cell(job))
 
 
 def finishing_rate_per_h(job):
@@ -1094,6 +1124,7 @@ class Stage:
     armature_current_a: np.ndarray
     x: np.ndarray
     generated_emf_v: np.ndarray
+    field_current_a: np.ndarray  # in the shunt (or separate) field, what the field ammeter reads
     found: np.ndarray
     converged: np.ndarray
     stalled_at: np.ndarray      # state of charge where the charge stops (NaN: it does not)
@@ -1151,6 +1182,7 @@ def _stage(space, rows_base, rows_corner, rows_u, s_from, s_to, intervals=None, 
     return Stage(soc=s, time_h=t, ah=ah, kwh=kwh, current_a=cur, terminal_voltage_v=vt,
                  volts_per_cell=get("volts_per_cell"), stored_current_a=st, gas_current_a=get("gas_current_a"),
                  armature_current_a=get("armature_current_a"), x=get("x"), generated_emf_v=get("generated_emf_v"),
+                 field_current_a=get("shunt_field_current_a"),
                  found=found, converged=np.asarray(r["converged"], bool).reshape(nr, nn).all(axis=1), stalled_at=stalled)
 
 
@@ -1394,6 +1426,19 @@ def charge_plan(space, base_idx=None, u1=None, u2=None, main_from=None):
                 handed[redo], s_ho[redo] = h2, s2
                 for f in _STAGE_FIELDS:
                     getattr(main, f)[redo] = getattr(part, f)
+        # a bank already at the hand-over voltage when the charge starts (a nearly full one) gets no
+        # main charge: the whole charge runs on the finish's field (common practice)
+        at_start = np.zeros(base_idx.size, bool)
+        np.logical_or.at(at_start, pos, handed & (s_ho <= s0))
+        if at_start.any():
+            u_fin = finish_controls(space, base_idx, u1, pos, rows_corner, handed & at_start[pos], s_ho)
+            u1 = np.where(at_start, u_fin, u1)
+            redo = np.flatnonzero(at_start[pos])
+            h2, s2 = _handover(space, rows_base[redo], rows_corner[redo], u1[pos][redo], job)
+            part = _stage(space, rows_base[redo], rows_corner[redo], u1[pos][redo], np.full(redo.size, s0), s2)
+            handed[redo], s_ho[redo] = h2, s2
+            for f in _STAGE_FIELDS:
+                getattr(main, f)[redo] = getattr(part, f)
     else:
         at = {int(b): k for k, b in enumerate(main_from.base_idx)}
         rows = np.array([at[int(b)] * nc + c for b, c in zip(rows_base, rows_corner)], int)
@@ -1419,7 +1464,8 @@ def charge_plan(space, base_idx=None, u1=None, u2=None, main_from=None):
 
 
 _STAGE_FIELDS = ("soc", "time_h", "ah", "kwh", "current_a", "terminal_voltage_v", "volts_per_cell", "stored_current_a",
-                 "gas_current_a", "armature_current_a", "x", "generated_emf_v", "found", "converged", "stalled_at")
+                 "gas_current_a", "armature_current_a", "x", "generated_emf_v", "field_current_a", "found", "converged",
+                 "stalled_at")
 
 
 def _stage_rows(stage, rows):
@@ -1594,6 +1640,7 @@ def row_figures(plan):
     vpc = np.concatenate([m.volts_per_cell, f.volts_per_cell], axis=1)
     soc = np.concatenate([m.soc, f.soc], axis=1)
     gas_v = float(gassing_volts_per_cell(chem, job.temperature_c))
+    vho = handover_volts_per_cell(job)
     # 1 uV below: a hand-over placed on the gassing voltage counts as reaching it
     gas_soc = _first_crossing_soc(soc, vpc, gas_v - 1e-6)
     stalled = np.where(np.isfinite(m.stalled_at), m.stalled_at, f.stalled_at)
@@ -1610,7 +1657,10 @@ def row_figures(plan):
             # highest and lowest over the stage, never just an end
             "main_peak": np.where(np.isfinite(m.current_a[:, 0]), _nanmax_rows(m.current_a), np.nan),
             "main_low": np.where(np.isfinite(m.current_a[:, 0]), _nanmin_rows(m.current_a), np.nan),
-            "finish_peak": np.where(reached, _nanmax_rows(f.current_a), 0.0),
+            # above the hand-over voltage: the finish, and any main-charge node already past it (a bank
+            # at the hand-over voltage when the charge starts)
+            "finish_peak": np.maximum(np.where(reached, _nanmax_rows(f.current_a), 0.0),
+                                      np.where(m.volts_per_cell > vho + 1e-6, m.current_a, -np.inf).max(axis=1)),
             "end_current": np.where(reached, f.current_a[:, -1], m.current_a[:, -1]),
             "end_vpc": np.where(reached, f.volts_per_cell[:, -1], m.volts_per_cell[:, -1]),
             "highest_vpc": _nanmax_rows(m.volts_per_cell, f.volts_per_cell),
@@ -1648,25 +1698,30 @@ def plan_stages(plan, k, corner):
             return "handover-voltage", ENDS["handover-voltage"].format(v=vho, soc=100 * plan.handover_soc[r])
         return "end-state-of-charge", ENDS["end-state-of-charge"].format(soc=100 * job.state_of_charge[1])
 
-    def stage(no, u, t0, t1, s_from, s_to, i0, i1, v1, last):
+    def stage(no, u, t0, t1, s_from, s_to, i0, i1, v1, last, st0, st1):
         code, text = ends(last)
         return {"stage": no, "name": STAGE_NAMES[no - 1] if two else "whole charge",
                 "setting": stage_setting(space, b, u, corner).as_dict(),
                 "from_h": _num(t0), "to_h": _num(t1), "from_state_of_charge": _num(s_from),
                 "to_state_of_charge": _num(s_to), "start_current_a": _num(i0), "end_current_a": _num(i1),
-                "end_volts_per_cell": _num(v1), "ends_because": code, "ends_reason": text}
+                "end_volts_per_cell": _num(v1), "ends_because": code, "ends_reason": text,
+                # the meters at the stage's ends: the field ammeter follows the terminal voltage on a
+                # self-excited machine, and the voltmeter at the machine tells the hand-over
+                "start_field_current_a": _num(st0.field_current_a[r, 0]),
+                "end_field_current_a": _num(st1.field_current_a[r, -1]),
+                "end_terminal_voltage_v": _num(st1.terminal_voltage_v[r, -1])}
 
     t_main = m.time_h[r, -1]
     if two:
         return [stage(1, plan.u1[k], 0.0, t_main, m.soc[r, 0], m.soc[r, -1], m.current_a[r, 0], m.current_a[r, -1],
-                      m.volts_per_cell[r, -1], False),
+                      m.volts_per_cell[r, -1], False, m, m),
                 stage(2, plan.u2[k], t_main, t_main + f.time_h[r, -1], f.soc[r, 0], f.soc[r, -1], f.current_a[r, 0],
-                      f.current_a[r, -1], f.volts_per_cell[r, -1], True)]
+                      f.current_a[r, -1], f.volts_per_cell[r, -1], True, f, f)]
     last = f if plan.handed_over[r] else m
     stall = m.stalled_at[r] if np.isfinite(m.stalled_at[r]) else f.stalled_at[r]
     s_end = stall if np.isfinite(stall) else last.soc[r, -1]
     return [stage(1, plan.u1[k], 0.0, t_main + f.time_h[r, -1], m.soc[r, 0], s_end, m.current_a[r, 0],
-                  last.current_a[r, -1], last.volts_per_cell[r, -1], True)]
+                  last.current_a[r, -1], last.volts_per_cell[r, -1], True, m, last)]
 
 
 def _fmt(v, f):
@@ -1722,6 +1777,9 @@ def _plan_limits(plan, rf, sub1, sub2, vnl_rows):
                                  "V"),
         "armature_current_rating": (worst_max("max_ia"), space.machine.rated_armature_current_a, "max", "A"),
     }
+    if starts_above_handover(job):
+        # a top-up has no main charge to hold up
+        del lim["main_charge_current_min"]
     # the drive at the plan's load points (at the coupled speed of each)
     mn, fn = plan.main, plan.finish
     with np.errstate(invalid="ignore"):
@@ -1947,18 +2005,14 @@ def evaluate_limits(space, base_idx, u, res=None):
 def start_setting_field(space, base_idx, u):
     """Field current [A] at the start of charge, where the attendant sets the field, at every corner.
 
-    The operating point on the bank's rest-voltage line at the starting
-    state of charge.
+    The operating point against the bank on charge at the starting state of
+    charge (the cell model of :func:`bank_points`, as the plan's first node
+    and the charge run have it), so the reading is what the field ammeter
+    shows at switch-on.
     """
     b = space.profile.battery
-    chem = chemistry(b.chemistry)
-    e0 = b.cells * float(open_circuit_voltage_per_cell(chem, b.state_of_charge[0], b.open_circuit_voltage_per_cell_v))
-    r = b.internal_resistance_ohm + b.cable_resistance_ohm
     sub, _ = expand_candidates(space, base_idx, u)
-    start = normal_points(sub, -sub.imax, sub.imax, v_of=lambda t: e0 + r * t, grid=33, steps=26)
-    return start["shunt_field_current_a"]
-
-
+    return bank_points(sub, b, np.full(sub.n, b.state_of_charge[0]))["shunt_field_current_a"]
 
 
 def objective(figures):
@@ -2114,7 +2168,17 @@ def option_cautions(machine, profile, setting, f):
                            "the job's max_charge_current_a (the battery maker's or the site's figure)",
                            start_charge_current_a=i0, max_charge_current_a=b.max_charge_current_a))
     il = _fig(f, "main_charge_current_lowest_a")
-    if b.min_charge_current_a > 0 and (il is None or il < b.min_charge_current_a * (1 - 1e-9)):
+    top_up = starts_above_handover(b)
+    if top_up:
+        pct = 100 * b.state_of_charge[0]
+        out.append(caution("battery-top-up", "note",
+                           f"At {pct:.3g} % charge the cells are already at the hand-over voltage "
+                           f"{handover_volts_per_cell(b):.3f} V per cell at the job's lowest main-charge current "
+                           f"{b.min_charge_current_a:g} A: there is no main charge. The whole charge runs on the "
+                           f"finish's field, at most the finishing current {finishing_current_a(b):.3g} A.",
+                           "two-rate charging of vented banks (common practice); the cell model at the starting "
+                           "state of charge"))
+    if b.min_charge_current_a > 0 and not top_up and (il is None or il < b.min_charge_current_a * (1 - 1e-9)):
         out.append(caution("battery-main-current-low", "warn",
                            f"The main charge falls to {'no current' if il is None else f'{il:.3g} A'} before the "
                            f"hand-over, below the job's lowest {b.min_charge_current_a:g} A: the charge drags on.",
@@ -2145,9 +2209,47 @@ def option_cautions(machine, profile, setting, f):
     return out
 
 
+#: Battery temperature [degC] above which a charge is not started, and above which charging stops:
+#: makers' instructions for vented lead-acid and NiCd (recalled, about 45 and 55 degC; from memory);
+#: valve-regulated cells risk thermal runaway from lower (IEEE 1188 practice, from memory).
+CHARGE_START_MAX_TEMPERATURE_C = {"lead-acid-vented": 45.0, "lead-acid-valve-regulated": 40.0,
+                                  "nickel-cadmium-vented": 45.0}
+CHARGE_STOP_TEMPERATURE_C = {"lead-acid-vented": 55.0, "lead-acid-valve-regulated": 50.0,
+                             "nickel-cadmium-vented": 55.0}
+
+#: What splashes from the cells, and what to keep at hand, per chemistry (common practice).
+ELECTROLYTE_WORDS = {
+    "lead-acid-vented": "wear eye protection and keep water at hand for acid splashes (dilute sulphuric acid)",
+    "lead-acid-valve-regulated": "wear eye protection and keep water at hand: a damaged cell leaks sulphuric acid",
+    "nickel-cadmium-vented": ("wear eye protection and keep eye-wash water at hand: the electrolyte is alkaline "
+                              "(potassium hydroxide) and burns the eyes; keep its tools and hydrometer apart from "
+                              "any lead-acid battery's"),
+}
+
+
 def profile_cautions(machine, profile):
     """Cautions of the battery job as a whole, whatever the setting."""
-    return [caution("battery-hydrogen", "warn",
-                    "Charging releases hydrogen and oxygen: ventilate the battery room (the airflow each setting needs "
-                    "is with its cautions), no smoking, flames or sparks near the cells, wear eye protection and keep "
-                    "water at hand for acid splashes.", "IEC 62485-2 (seen); common practice")]
+    b = profile.battery
+    out = [caution("battery-hydrogen", "warn",
+                   "Charging releases hydrogen and oxygen: ventilate the battery room (the airflow each setting needs "
+                   f"is with its cautions), no smoking, flames or sparks near the cells, {ELECTROLYTE_WORDS[b.chemistry]}.",
+                   "IEC 62485-2 (seen); common practice")]
+    start, stop = CHARGE_START_MAX_TEMPERATURE_C[b.chemistry], CHARGE_STOP_TEMPERATURE_C[b.chemistry]
+    basis = ("battery makers' instructions (recalled, not checked against a maker's text: about 45 degC to start "
+             "and 55 degC to stop for vented cells, less for valve-regulated); the temperature rise during the "
+             "charge is not modelled")
+    if b.temperature_c > stop:
+        out.append(caution("battery-temperature", "stop",
+                           f"The bank is at {b.temperature_c:g} °C, above {stop:g} °C: do not charge it until it has "
+                           "cooled. A hot bank takes more current at the same voltage, gasses harder and heats "
+                           "further" + (" (thermal runaway in valve-regulated cells)"
+                                        if b.chemistry == "lead-acid-valve-regulated" else "") + ".",
+                           basis, temperature_c=b.temperature_c, stop_temperature_c=stop))
+    elif b.temperature_c > start:
+        out.append(caution("battery-temperature", "warn",
+                           f"The bank is at {b.temperature_c:g} °C, above {start:g} °C: let it cool before starting "
+                           f"the charge, and stop if it reaches {stop:g} °C. The charge warms the cells further, "
+                           "which these figures do not include.",
+                           basis, temperature_c=b.temperature_c, start_max_temperature_c=start,
+                           stop_temperature_c=stop))
+    return out

@@ -80,7 +80,10 @@ def recommended_card(result, run=None, box=None):
     o = result.options[0]
     m, p = result.machine, result.profile
     with box if box is not None else card_box():
-        if o.feasible:
+        if any(c.severity == "stop" for c in result.cautions):
+            # the job as given is unsafe whatever the setting: no setting is recommended
+            st.subheader("Stop: the job as given is not safe to run", anchor="recommended")
+        elif o.feasible:
             st.subheader(f"Recommended: {connection_words(o.setting.connection)}", anchor="recommended")
         else:
             st.subheader("No setting meets every limit", anchor="recommended")
