@@ -18,8 +18,9 @@ Calibration table (sources as in the project's source list):
 - temperature: the whole curve, gassing voltage and end limit alike, move by
   -3 to -5 mV/K per cell for lead-acid, -3 mV/K for NiCd (manufacturers'
   practice; vented NiCd seen);
-- Ah returned for a full recharge from 20 %: 1.05-1.25 x the Ah removed
-  (common practice).
+- Ah returned for a full recharge from 20 %: 1.05-1.25 x the Ah removed for
+  lead-acid (common practice); 1.3-1.6 x for vented NiCd, whose makers' normal
+  charge of 0.2 C5 for 7-8 h from empty puts back 1.4-1.6 x C5 (from memory).
 """
 
 import json
@@ -157,14 +158,17 @@ def test_temperature_moves_the_whole_curve(name):
 def test_ah_returned_for_a_full_recharge_from_20_percent(name):
     """A two-rate recharge from 20 %: the normal start rate (C/10 lead-acid, C/5 NiCd) to the gassing
     voltage, then the finishing rate to full (two-rate charging, common practice) returns 1.05-1.25 x
-    the Ah removed (common practice). Integrated here with scipy.integrate.quad over ds / r_stored."""
+    the Ah removed for lead-acid (common practice) and 1.3-1.6 x for vented NiCd (makers' normal charge,
+    0.2 C5 for 7-8 h from empty, from memory). Integrated here with scipy.integrate.quad over ds / r_stored.
+    (Regression: NiCd returned 1.12 x, a bank taken off 'full' undercharged.)"""
     chem = chemistry(name)
     r1, r2 = chem.reference_rate_per_h, chem.finishing_rate_per_h
     s_ho = soc_reaching(chem, r1, chem.gassing_voltage_v)
     t1 = hours_at_rate(chem, 0.2, s_ho, r1)
     t2 = hours_at_rate(chem, s_ho, 1.0, r2)
     factor = (r1 * t1 + r2 * t2) / 0.8
-    assert 1.05 <= factor <= 1.25, (factor, t1, t2)
+    lo_f, hi_f = (1.05, 1.25) if name.startswith("lead-acid") else (1.3, 1.6)
+    assert lo_f <= factor <= hi_f, (factor, t1, t2)
     # hours a battery shop recognises for such a recharge: 8-16 h lead-acid, 5-9 h NiCd at C/5 (common practice)
     lo, hi = (8.0, 16.0) if name.startswith("lead-acid") else (5.0, 9.0)
     assert lo <= t1 + t2 <= hi, (t1, t2)
