@@ -813,6 +813,9 @@ def checklist_rows(result, option, run=None):
         plan = [_mapping(x) for x in option_value(o, "plan") or []]
         if len(plan) == 2:
             rows.append(("Hand-over to the finish", handover_check_text(plan)))
+        if plan:
+            rows.append((END_OF_CHARGE_CHECK.get(p.battery.chemistry, END_OF_CHARGE_CHECK[None]),
+                         end_of_charge_text(plan[-1])))
     elif kind == "welding":
         rows.append(("Short-circuit current (electrode stuck), at the top setting",
                      fmt(f.get("stuck_electrode_current_a"), "A") if _given(f.get("stuck_electrode_current_a")) else note))
@@ -854,6 +857,25 @@ def checklist_rows(result, option, run=None):
     if s.connection != "series":
         rows.append(("Field discharge path fitted (discharge resistor or freewheel path)", "fitted"))
     return rows
+
+
+#: How a battery shop tells the end of charge (common practice): readings steady over three hours.
+END_OF_CHARGE_CHECK = {
+    "lead-acid-vented": "End of charge: voltage and specific gravity steady over three hourly readings",
+    None: "End of charge: voltage steady over three hourly readings",
+}
+
+
+def end_of_charge_text(stage):
+    """The checklist's expected end of charge: the plan's last voltmeter reading, per cell and when."""
+    v, vpc, t = stage.get("end_terminal_voltage_v"), stage.get("end_volts_per_cell"), stage.get("to_h")
+    parts = []
+    if _given(v):
+        parts.append(f"voltmeter at the machine about {fmt(v, 'V')}"
+                     + (f" ({fmt(vpc, 'V per cell')} at the bank)" if _given(vpc) else ""))
+    if _given(t):
+        parts.append(f"after about {fmt(t, 'h')}")
+    return "; ".join(parts) or "note the readings"
 
 
 def handover_check_text(plan):

@@ -216,3 +216,14 @@ def test_missing_key_says_what_is_allowed(tmp_path):
     with pytest.raises(InputError, match=r"battery\.cells: is missing; it is required in \[battery\]; "
                                          r"allowed: a whole number >= 1 and <= 10000"):
         load_profile(bad)
+
+
+def test_checklist_says_how_to_tell_the_end_of_charge(result):
+    """A battery shop ends a charge when the voltage (and, for vented lead-acid, the specific gravity)
+    holds steady over about three hourly readings (common practice); the checklist gives the reading the
+    plan expects there and when."""
+    best = result.options[0]
+    checks = dict(checklist_rows(result, best))
+    row = checks["End of charge: voltage and specific gravity steady over three hourly readings"]
+    end = best.extras["plan"][-1]
+    assert f"{end['end_terminal_voltage_v']:.4g} V" in row and "after about 14.55 h" in row
