@@ -177,23 +177,45 @@ def operating_point_cautions(ops):
                       "setting.", "circuit model (design note: the highest stable intersection)"))
     return out
 
+#: Overload an engine can give beyond its rating: 10 % for one hour in twelve (ISO 3046-1 overload power,
+#: from memory); past it the governor is at full fuel and the engine bogs down.
+ENGINE_OVERLOAD_FACTOR = 1.10
+
+
 def drive_overload_cautions(drive, kw, where="at the heaviest point"):
-    """A ``warn`` where the shaft power ``kw`` [kW] passes the drive's rating (none for a fixed speed);
-    ``where`` says which point it is."""
+    """Cautions where the shaft power ``kw`` [kW] passes the drive's rating (none for a fixed speed);
+    ``where`` says which point it is.
+
+    A motor past its rating runs hot (``warn``; past its breakdown torque it
+    stalls, see :func:`drive_cautions`); an engine gives at most its overload
+    (``ENGINE_OVERLOAD_FACTOR``): within it a ``warn``, past it a ``stop``.
+    """
     out = []
     if drive is None or not drive.coupled:
         return out
     rating = drive.rated_power_kw
-    if kw is not None and rating and kw > rating * (1 + 1e-9):
+    if kw is None or not rating or not kw > rating * (1 + 1e-9):
+        return out
+    share = f"{kw:.3g} kW at the shaft {where}, {100 * kw / rating:.0f} % of its rated {rating:g} kW"
+    if drive.kind == "motor":
         out.append(caution("drive-overload", "warn",
-                      f"The {drive.kind} must give {kw:.3g} kW at the shaft {where}, "
-                      f"{100 * kw / rating:.0f} % of its rated {rating:g} kW: "
-                      + ("it runs hot and its protection trips, and it slips further"
-                         if drive.kind == "motor" else "it cannot hold its speed, and the figures at its droop "
-                                                       "line no longer hold")
-                      + ". Use a larger drive or a lighter setting.",
+                      f"The motor must give {share}: it runs hot and its protection trips, and it slips further. "
+                      "Use a larger motor or a lighter setting.",
                       "the profile's rated_power_kw (rating plate, continuous duty)",
                       max_shaft_power_kw=kw, rated_power_kw=rating))
+    elif kw > ENGINE_OVERLOAD_FACTOR * rating:
+        out.append(caution("drive-overload", "stop",
+                      f"The engine must give {share}, past the {100 * (ENGINE_OVERLOAD_FACTOR - 1):.0f} % overload an "
+                      "engine can give: at full fuel it bogs down and stalls, and the figures at that point do not "
+                      "hold. Use a larger engine or a lighter setting.",
+                      "the profile's rated_power_kw; ISO 3046-1 overload power, 110 % for one hour in twelve "
+                      "(from memory)", max_shaft_power_kw=kw, rated_power_kw=rating))
+    else:
+        out.append(caution("drive-overload", "warn",
+                      f"The engine must give {share}: inside its short overload only, for at most an hour in twelve. "
+                      "Use a larger engine or a lighter setting for steady work.",
+                      "the profile's rated_power_kw; ISO 3046-1 overload power, 110 % for one hour in twelve "
+                      "(from memory)", max_shaft_power_kw=kw, rated_power_kw=rating))
     return out
 
 

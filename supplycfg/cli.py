@@ -291,6 +291,24 @@ def _drive(args, setting):
     return drive, setting
 
 
+def _welding_profile(args):
+    """The profile of ``--profile`` where it is a welding job (its no-load rules apply), else None."""
+    if not getattr(args, "profile", None):
+        return None
+    from .profile import load_profile
+    p = load_profile(args.profile)
+    return p if p.kind == "welding" else None
+
+
+def _job_no_load_cautions(args, machine, setting, no_load_voltage_v):
+    """A welding profile's no-load checks of the setting given (none for other jobs)."""
+    p = _welding_profile(args)
+    if p is None:
+        return []
+    from .jobs.welding import no_load_cautions
+    return no_load_cautions(machine, p, setting, no_load_voltage_v)
+
+
 #: Plain words and units of the operating-point keys in text tables.
 POINT_WORDS = {"load_current_a": "load current [A]", "terminal_voltage_v": "terminal voltage [V]",
                "armature_current_a": "armature current [A]", "shunt_field_current_a": "shunt field current [A]",
@@ -385,6 +403,7 @@ def cmd_curve(args, out):
              and abs(p["armature_current_a"]) <= m.rated_armature_current_a]
     cautions += drive_overload_cautions(drive, max(power) if power else None,
                                         "up to the machine's rated armature current")
+    cautions += _job_no_load_cautions(args, m, st, c.no_load_voltage_v)
     res = {"setting": st.as_dict(), "points": pts, "no_load_voltage_v": c.no_load_voltage_v,
            "short_circuit_current_a": c.short_circuit_current_a, "max_load_current_a": c.max_load_current_a,
            "regulation_percent": c.regulation_percent, "extrapolated": c.extrapolated,
@@ -472,6 +491,9 @@ def cmd_point(args, out):
     cautions = command_cautions(m, st, f, load=kind) + operating_point_cautions(ops)
     if normal is not None:
         cautions += drive_overload_cautions(drive, normal.get("shaft_power_kw"))
+    if _welding_profile(args) is not None:
+        nl = operating_points(m, st, Load.constant_current(0.0), drive).normal
+        cautions += _job_no_load_cautions(args, m, st, None if nl is None else nl["terminal_voltage_v"])
     res = {"setting": st.as_dict(), "load": load.label, "operating_points": pts,
            "sits_at": None if normal is None else ops.points.index(normal), "runaway": ops.runaway,
            "message": ops.message, "cautions": [c.as_dict() for c in cautions], "converged": ops.converged}

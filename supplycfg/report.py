@@ -104,11 +104,11 @@ FIGURE_WORDS = {
     "slope_low_end_v_per_a": "slope of the characteristic at the low end",
     "slope_high_end_v_per_a": "slope of the characteristic at the high end",
     "stuck_electrode_current_a": "stuck-electrode current",
-    "duty_equivalent_current_a": "duty-cycle equivalent current (an upper bound)",
+    "duty_equivalent_current_a": "duty-cycle equivalent current (I·√duty: optimistic, the maker's duty rating comes first)",
     "top_speed_rpm": "top drive speed",
     "min_no_load_voltage_v": "no-load voltage (mean), lowest",
     "no_load_strike_min_v": "no-load voltage an arc needs to strike",
-    "tap_changes": ("series-tap changes along the welding dial", ""),
+    "tap_changes": ("tap or diverter changes along the welding dial", ""),
     "max_shaft_power_kw": ("shaft power, highest over the job's load points", "kW"),
     "min_speed_rpm": "generator speed under load, lowest",
     "max_speed_rpm": "generator speed under load, highest",
@@ -145,7 +145,7 @@ LIMIT_WORDS = {
     "dial_current": "every welding-dial current reached within 3 %",
     "no_load_strike_voltage": "no-load voltage high enough to strike an arc",
     "characteristic_slope": "characteristic the process needs on every dial row",
-    "arc_stability": "arc stable on every dial row (the characteristic less steep than the arc's line)",
+    "arc_stability": "arc stable on every dial row (the machine's slope below the arc line's and the leads')",
     "exciter_supply": "field current within the exciter's reach",
     "solve_not_converged": "the solve converged",
     "stop_caution": "no stop caution",
@@ -485,7 +485,15 @@ def current_setting_rows(option):
 
 
 CURRENT_SETTING_HEADERS = ("Welding current", "Field", "Terminal voltage (arc and leads)", "No-load voltage")
-DIAL_HEADERS = ("Current", "Tap [turns]", "Diverter", "Field", "No-load voltage", "Short-circuit current")
+DIAL_HEADERS = ("Current", "Tap [turns]", "Diverter", "Field", "No-load voltage", "Short-circuit current, cold")
+#: How the welder sets a dial row: by the field ammeter, the rheostat's ohms only a start (with cold windings
+#: the ohms give more current; the ammeter's reading gives the row's current whatever the temperature).
+DIAL_SETTING_WORDS = ("Set the tap (and diverter) with the arc out, then turn the rheostat until the field ammeter "
+                      "reads the row's value at no load, whatever the winding temperature: the ohms are where to "
+                      "start (set by them on a cold machine, the current comes out higher). Short-circuit currents "
+                      "are with cold windings, the worst case.")
+#: The same, short, for the printed card's first page.
+DIAL_SETTING_SHORT = "Set each row by the field ammeter at no load, taps only with the arc out; the ohms are a start."
 
 
 def dial_rows(option):
@@ -499,9 +507,12 @@ def dial_rows(option):
                 and not _given(r.get("rheostat_ohm")):
             field = f"{_round(r['field_current_a'])} A"
         else:
-            field = " / ".join(x for x in (f"{_round(r['rheostat_ohm'])} Ω" if _given(r.get("rheostat_ohm")) else "",
-                                           f"reads {_round(r['field_current_a'])} A" if _given(r.get("field_current_a"))
-                                           else "") if x) or "–"
+            # the ammeter's reading first: it is what the row is set by (the ohms are a start)
+            ohm = f"about {_round(r['rheostat_ohm'])} Ω" if _given(r.get("rheostat_ohm")) else ""
+            if _given(r.get("field_current_a")):
+                field = f"reads {_round(r['field_current_a'])} A" + (f" ({ohm})" if ohm else "")
+            else:
+                field = ohm or "–"
         nl = fmt(r.get("no_load_voltage_v"), "V")
         if _given(r.get("no_load_voltage_max_v")):
             nl += f" (up to {fmt(r['no_load_voltage_max_v'], 'V')})"
@@ -518,7 +529,7 @@ def dial_card_rows(option):
     heads = ("Current", "Tap") + (("Diverter",) if with_div else ()) + ("Field", "No-load V (worst)")
     out = []
     for r, full in zip(rows, dial_rows(option)):
-        field = full[3].replace(" / reads ", ", ")
+        field = full[3].replace("reads ", "").replace("(about ", "(≈")
         nl = fmt(r.get("no_load_voltage_v"))
         if _given(r.get("no_load_voltage_max_v")):
             nl += f" ({fmt(r['no_load_voltage_max_v'])})"
@@ -644,9 +655,10 @@ def objective_value(option, kind):
     if kind == "welding":
         dial = [_mapping(r) for r in option_value(option, "dial") or []]
         if dial:
-            taps = [r.get("series_turns") for r in dial]
+            # a diverter swapped is a stop to re-link the machine as a tap change is (the core counts both)
+            taps = [(r.get("series_turns"), r.get("diverter_ohm")) for r in dial]
             n = sum(1 for a, b in zip(taps, taps[1:]) if a != b)
-            return float(n), f"{n} tap change{'s' if n != 1 else ''}"
+            return float(n), f"{n} tap or diverter change{'s' if n != 1 else ''}"
         return None, None
     if kind in ("lighting", "booster"):
         band = [m.get("fraction") for k, m in (option.margins or {}).items() if k.startswith("load_voltage")]
@@ -657,7 +669,7 @@ def objective_value(option, kind):
 
 
 #: What the better objective is, per job, for the ranking line's tie that the objective settles.
-BETTER_OBJECTIVE_WORDS = {"battery": "the quicker charge", "welding": "the dial with fewer tap changes",
+BETTER_OBJECTIVE_WORDS = {"battery": "the quicker charge", "welding": "the dial with fewer tap or diverter changes",
                           "lighting": "the wider band margin", "booster": "the wider band margin"}
 
 
@@ -757,10 +769,27 @@ def _caution_figure(result, option, rule, key):
     return None
 
 
-#: What the polarity check expects, per job (the welding leads as the wiring drawing puts them: electrode on +).
+def electrode_of(profile):
+    """The welding electrode's polarity of a profile's process (``"+"`` or ``"−"``), ``"+"`` for other jobs."""
+    w = getattr(profile, "welding", None)
+    if w is None:
+        return "+"
+    from .jobs.welding import welding_process
+    return welding_process(w.process).electrode_polarity
+
+
+#: What the polarity check expects, per job (the welding leads as the wiring drawing puts them).
 POLARITY_WORDS = {None: "machine + to load +", "battery": "machine + to battery +",
                   "booster": "booster adds to the bus voltage",
                   "welding": "electrode lead on + and work lead on −, or as the electrode's maker asks"}
+#: The welding leads' polarity check per process (or per polarity), as the wiring drawing puts them.
+WELDING_POLARITY_WORDS = {
+    ("manual-metal-arc", "+"): POLARITY_WORDS["welding"],
+    ("tungsten-inert-gas", "−"): "torch (tungsten) lead on − and work lead on +: on + the tungsten melts",
+    ("metal-inert-gas", "+"): "wire (torch) lead on + and work lead on −",
+    "+": "electrode lead on + and work lead on −",
+    "−": "electrode lead on − and work lead on +",
+}
 
 
 def checklist_rows(result, option, run=None):
@@ -769,7 +798,11 @@ def checklist_rows(result, option, run=None):
     f, s = o.figures or {}, o.setting
     kind = p.kind
     note = "note the reading"
-    rows = [("Polarity checked with a voltmeter before closing onto the load", POLARITY_WORDS.get(kind, POLARITY_WORDS[None]))]
+    polarity = POLARITY_WORDS.get(kind, POLARITY_WORDS[None])
+    if kind == "welding":
+        polarity = WELDING_POLARITY_WORDS[(p.welding.process, electrode_of(p))] \
+            if (p.welding.process, electrode_of(p)) in WELDING_POLARITY_WORDS else WELDING_POLARITY_WORDS[electrode_of(p)]
+    rows = [("Polarity checked with a voltmeter before closing onto the load", polarity)]
     lo, hi = f.get("no_load_voltage_min_v"), f.get("no_load_voltage_max_v")
     nl = _range_text(lo, hi, "V")
     if _spans(lo, hi):
@@ -818,7 +851,8 @@ def checklist_rows(result, option, run=None):
                          end_of_charge_text(plan[-1])))
     elif kind == "welding":
         rows.append(("Short-circuit current (electrode stuck), at the top setting",
-                     fmt(f.get("stuck_electrode_current_a"), "A") if _given(f.get("stuck_electrode_current_a")) else note))
+                     f"up to {fmt(f['stuck_electrode_current_a'], 'A')} with cold windings (less when warm)"
+                     if _given(f.get("stuck_electrode_current_a")) else note))
     else:
         rows.append(("Voltage at the far end, light load and full load",
                      _range_text(f.get("load_voltage_min_v"), f.get("load_voltage_max_v"), "V") or note))
@@ -1108,7 +1142,7 @@ def sheet_markdown(result, rank=None, run=None, date=None):
     lines += ["## Set the machine like this", "", f"*{md_esc(ranking_line(result, o))}*", ""]
     lines += _md_table(("What", "Setting"), setting_rows(o, m, p)) + [""]
     if dial_rows(o):
-        lines += ["### Welding dial", ""] + _md_table(DIAL_HEADERS, dial_rows(o)) + [""]
+        lines += ["### Welding dial", "", md_esc(DIAL_SETTING_WORDS), ""] + _md_table(DIAL_HEADERS, dial_rows(o)) + [""]
     elif o.current_settings:
         lines += ["### Field setting for each end of the welding range", ""]
         lines += _md_table(CURRENT_SETTING_HEADERS, current_setting_rows(o)) + [""]
@@ -1118,7 +1152,7 @@ def sheet_markdown(result, rank=None, run=None, date=None):
         lines += _md_table(CARD_PLAN_HEADERS, card_plan_rows(o)) + [""]
     elif run is not None:
         lines += [md_esc(run_summary(run)), ""]
-    w = wiring(m, o.setting, p.kind)
+    w = wiring(m, o.setting, p.kind, electrode_of(p))
     lines += ["## Wiring", ""] + [f"{k}. {md_esc(step)}" for k, step in enumerate(w.steps, 1)] + [""]
     lines += ["## Check at the machine", ""]
     lines += _md_table(CHECKLIST_HEADERS, [(c, e, "", "") for c, e in checklist_rows(result, o, run)]) + [""]
@@ -1247,7 +1281,8 @@ def _clean_svg(svg):
 def wiring_svg_for(result, option):
     """The wiring drawing of an option as inline SVG."""
     from .wiring import wiring, wiring_svg
-    return _clean_svg(wiring_svg(wiring(result.machine, option.setting, result.profile.kind)))
+    return _clean_svg(wiring_svg(wiring(result.machine, option.setting, result.profile.kind,
+                                        electrode_of(result.profile))))
 
 
 def high_end_tap(option):
@@ -1287,7 +1322,7 @@ def card_html(result, option, run=None, wiring_svg=None):
         heads, short = dial_card_rows(o)
         half = (len(short) + 1) // 2 if len(short) > 7 else len(short)
         halves = [short[:half], short[half:]] if half < len(short) else [short]
-        parts += ["<h3>Welding dial</h3>", '<div class="halves">']
+        parts += ["<h3>Welding dial</h3>", f'<p class="small">{esc(DIAL_SETTING_SHORT)}</p>', '<div class="halves">']
         parts += [_html_table(heads, h, "dial compact", numeric=(0, 1)) for h in halves]
         parts.append("</div>")
     elif o.current_settings:

@@ -522,7 +522,7 @@ def _field_cells(o):
 
 def _dial_lines(o, cable_ohm):
     hdr = ("current [A]", "series turns", "diverter [ohm]", "rheostat [ohm]", "travel [%]", "field hot [A]",
-           "no-load [V]", "no-load low [V]", "no-load high [V]", "short-circuit [A]", "slope [V/A]",
+           "no-load [V]", "no-load low [V]", "no-load high [V]", "short-circuit cold [A]", "slope [V/A]",
            "per arc volt [A/V]", "terminal [V]", "arc [V]", "tap change")
     rows = []
     for r in o.extras.get("dial") or []:
@@ -535,8 +535,8 @@ def _dial_lines(o, cable_ohm):
                      _num(r["slope_v_per_a"], ".3f"), _num(r["current_change_per_arc_volt_a_per_v"], ".2f"),
                      _num(r["terminal_voltage_v"], ".1f"), _num(r["arc_voltage_v"], ".1f"),
                      "yes" if r.get("tap_change") else ""))
-    lines = ["Welding dial: set the series tap (and diverter), then the rheostat; "
-             "the field ammeter reads the hot value at no load."]
+    from .report import DIAL_SETTING_WORDS
+    lines = ["Welding dial: " + DIAL_SETTING_WORDS[0].lower() + DIAL_SETTING_WORDS[1:]]
     lines += ["  " + ln for ln in _table(hdr, rows)]
     lines.append("  no-load low / high: the lowest and highest no-load voltage over the speed and temperature range; "
                  "per arc volt: change of current for 1 V more arc voltage (a longer arc); "
@@ -657,7 +657,7 @@ def search_text(res, top=10):
     hdr = ["rank", "fit", "connection", "series turns", "diverter [ohm]", "rheostat [ohm]", "field hot [A]",
            "speed [rpm]", "least margin [%]", "cautions"]
     if welding:
-        hdr.insert(-2, "tap changes")
+        hdr.insert(-2, "tap or diverter changes")
     rows, tails = [], []
     remarks = set()  # what the remarks below the table hold: broken limits, extrapolated curves
     for o in res.options[:top]:

@@ -83,11 +83,21 @@ def _num(v, unit=""):
 
 #: Words beside the load on the drawing (short: the drawing is narrow on a phone).
 DRAWN_LOAD_WORDS = {"battery": "battery", "welding": "arc", "lighting": "lamps", "booster": "loads"}
-LOAD_WORDS = {"battery": "battery", "welding": "arc: electrode to work", "lighting": "lamps at the far end",
+LOAD_WORDS = {"battery": "battery", "lighting": "lamps at the far end",
               "booster": "loads at the far end"}
 
 
-def wiring(machine, setting, kind):
+#: The welding leads per electrode polarity: (load words, drawn words, the step in words).
+WELDING_LEADS = {
+    "+": ("arc: electrode (+) to work (−)", "arc, electrode +",
+          "+ line through the ammeter and the lead to the electrode; return lead from the work to A2."),
+    "−": ("arc: work (+) to electrode (−)", "arc, electrode −",
+          "+ line through the ammeter and the lead to the work; the electrode's (torch's) lead to A2 (−): "
+          "electrode negative."),
+}
+
+
+def wiring(machine, setting, kind, electrode="+"):
     """The circuit of ``setting`` on ``machine`` for a job of ``kind``.
 
     Parameters
@@ -98,6 +108,9 @@ def wiring(machine, setting, kind):
         field current).
     kind : str
         ``"battery"``, ``"welding"``, ``"lighting"`` or ``"booster"``.
+    electrode : str, optional
+        Welding: the electrode's polarity, ``"+"`` or ``"−"`` (the process's
+        ``electrode_polarity``: TIG runs electrode negative).
 
     Returns
     -------
@@ -149,7 +162,7 @@ def wiring(machine, setting, kind):
         parts.append(Part("line-ammeter", "welding current"))
     if kind in ("lighting", "booster"):
         parts.append(Part("feeder", "feeder"))
-    parts.append(Part("load", LOAD_WORDS[kind]))
+    parts.append(Part("load", WELDING_LEADS[electrode][0] if kind == "welding" else LOAD_WORDS[kind]))
 
     # the circuit in words
     if uses_series:
@@ -171,7 +184,7 @@ def wiring(machine, setting, kind):
         steps.append("+ line through the reverse-current cut-out and the ammeter to the battery's +; "
                      "the battery's − to A2 (−). Check polarity before closing.")
     elif kind == "welding":
-        steps.append("+ line through the ammeter and the lead to the electrode; return lead from the work to A2.")
+        steps.append(WELDING_LEADS[electrode][2])
     elif kind == "lighting":
         steps.append("+ and − lines along the feeder to the lamps.")
     else:
@@ -309,7 +322,10 @@ def wiring_svg(w, title=None):
         load = elm.Lamp().at((x, top)).down().length(top - bot)
     else:
         load = elm.ResistorIEC().at((x, top)).down().length(top - bot)
-    d.add(load.label(DRAWN_LOAD_WORDS[w.kind], loc="bottom", ofst=0.2, fontsize=12))
+    drawn = DRAWN_LOAD_WORDS[w.kind]
+    if w.kind == "welding":
+        drawn = next((v[1] for v in WELDING_LEADS.values() if any(p.label == v[0] for p in w.parts)), drawn)
+    d.add(load.label(drawn, loc="bottom", ofst=0.2, fontsize=12))
     if w.kind == "booster":
         d.add(elm.Dot().at((x - 1.8, top)))
         d.add(elm.MeterV().at((x - 1.8, top)).down().length(top - bot).label("V", loc="top", fontsize=12))

@@ -770,7 +770,7 @@ def test_search_text_is_readable(capsys):
     head = re.split(r"\s{2,}", lines[k].strip())
     first = dict(zip(head, re.split(r"\s{2,}", lines[k + 2].strip())))
     o = demo("welding")[2].options[0]
-    assert float(first["tap changes"]) == o.figures["tap_changes"]
+    assert float(first["tap or diverter changes"]) == o.figures["tap_changes"]
     assert float(first["least margin [%]"]) == pytest.approx(100 * o.smallest_margin, abs=0.05)
     assert float(first["rheostat [ohm]"]) == o.extras["dial"][0]["readings"]["rheostat_ohm"]
 

@@ -627,7 +627,7 @@ def test_size_welding_dial_is_not_called_option_1(capsys):
     the name of a different setting in `search` (3 series turns there, 12 here)."""
     assert main(["size", str(MACHINES / "welding-set.toml"), str(LOADS / "welding.toml")]) == 0
     out = capsys.readouterr().out
-    assert "Welding dial: set the series tap" in out and "Option 1" not in out
+    assert "Welding dial: set the tap" in out and "Option 1" not in out
 
 
 def test_size_advises_the_next_standard_rating(capsys):

@@ -272,7 +272,7 @@ def test_card_shows_readings_bands_dial_and_plan_when_the_core_gives_them(result
     assert rows["Field rheostat"] == "48.6 Ω (81 % of its travel); every limit holds from 40 to 55 Ω"
     dial = report.dial_rows(o)
     assert len(dial) == 13 and dial[0][0] == "60 A" and dial[-1][1] == "5"
-    assert report.objective_value(o, "welding") == (1.0, "1 tap change")
+    assert report.objective_value(o, "welding") == (1.0, "1 tap or diverter change")
     res2 = dataclasses.replace(res, options=[o] + res.options[1:])
     html = report.sheet_html(res2, charts=False)
     assert "Welding dial" in html and "0.988 A cold" in html

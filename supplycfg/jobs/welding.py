@@ -47,6 +47,7 @@ class WeldingProcess:
     load_line_top_v: float
     characteristic: str
     min_no_load_voltage_v: float | None = None
+    electrode_polarity: str = "+"
     basis: dict = field(default_factory=dict, compare=False, repr=False)
 
 
@@ -61,6 +62,7 @@ WELDING_PROCESSES = {
         "load_line_top_v": (44.0, _IEC_60974_1_TOP),
         "characteristic": ("drooping", "manual arc needs a drooping source (textbooks on utilisation of electrical energy; seen)"),
         "min_no_load_voltage_v": (50.0, _STRIKE_MMA),
+        "electrode_polarity": ("+", "most covered electrodes run electrode positive on DC; some ask for negative: the electrode's maker decides (common practice)"),
     }),
     "tungsten-inert-gas": table_entry(WeldingProcess, "tungsten-inert-gas", {
         "load_line_offset_v": (10.0, _IEC_60974_1_LINES),
@@ -70,6 +72,7 @@ WELDING_PROCESSES = {
         "characteristic": ("drooping", "TIG needs a constant-current (drooping) source (common practice)"),
         "min_no_load_voltage_v": (None, "the arc is started by high frequency or by lifting the tungsten, "
                                         "not by the no-load voltage (common practice)"),
+        "electrode_polarity": ("−", "DC TIG runs electrode negative: on + two thirds of the arc's heat goes into the tungsten, which melts (welding handbooks, from memory; common practice)"),
     }),
     "metal-inert-gas": table_entry(WeldingProcess, "metal-inert-gas", {
         "load_line_offset_v": (14.0, _IEC_60974_1_LINES),
@@ -79,6 +82,7 @@ WELDING_PROCESSES = {
         "characteristic": ("flat", "MIG/MAG with constant wire feed needs a flat (constant-voltage) source (common practice)"),
         "min_no_load_voltage_v": (None, "the wire touches the work and starts the arc by a short circuit "
                                         "(common practice)"),
+        "electrode_polarity": ("+", "MIG/MAG with solid wire runs wire positive (common practice)"),
     }),
 }
 
@@ -346,9 +350,14 @@ def read_job(t, source):
         raise InputError(source, t.key("dial_step_a"),
                          f"is {step:g}; allowed: at least {(cur[1] - cur[0]) / MAX_DIAL_ROWS:.3g} A "
                          f"(at most {MAX_DIAL_ROWS} rows over the current range)")
-    # a window left empty by a low site limit is not refused: every option then says it breaks it
     vmin = t.number("min_no_load_voltage_v", WELDING_PROCESSES[proc].min_no_load_voltage_v, low=0,
                     low_open=True, high=top, what="mean volts")
+    if vmax is not None and vmin is not None and vmax <= vmin:
+        # no no-load voltage both strikes the arc and keeps the site's limit: no setting can exist
+        given = "the job's min_no_load_voltage_v" if t.has("min_no_load_voltage_v") else f"the {proc} default"
+        raise InputError(source, t.key("max_no_load_voltage_v"),
+                         f"is {vmax:g}; allowed: above {vmin:g} V, the no-load voltage the arc needs to strike "
+                         f"({given}); no setting can keep below the one and strike above the other")
     return WeldingJob(process=proc, current_range_a=cur, environment=env, duty_cycle_percent=duty,
                       cable_resistance_ohm=rc, max_no_load_voltage_v=vmax, dial_step_a=step,
                       min_no_load_voltage_v=vmin)
@@ -891,9 +900,10 @@ def dial_advice(space, targets, paths, u_all, reach, ev, valid, option_ok, bands
     return extras, counter[0]
 
 
-OBJECTIVE_LABEL = "the fewest series-tap changes along the welding dial (every row inside the no-load window)"
+OBJECTIVE_LABEL = ("the fewest tap or diverter changes along the welding dial (every row inside the no-load "
+                   "window)")
 #: The objective as a table shows it: words, unit and the factor from the objective's value.
-OBJECTIVE_SHOWN = ("series-tap changes along the dial", "", 1.0)
+OBJECTIVE_SHOWN = ("tap or diverter changes along the dial", "", 1.0)
 
 
 def objective(figures):
@@ -937,9 +947,19 @@ def option_cautions(machine, profile, setting, f):
         out.append(caution("welding-duty-cycle", "warn",
                       f"At the top current and the stated duty cycle the armature heats like {de:.0f} A continuous, "
                       f"above its {rated:.0f} A rating: shorten the duty cycle or lower the current. I*sqrt(duty) is "
-                      "an upper bound; the maker's duty rating comes first.",
+                      "optimistic where the winding heats faster than the 10-minute cycle; the maker's duty rating "
+                      "comes first.",
                       "duty cycle over a 10-minute period (IEC 60974-1, seen); I*sqrt(duty) equivalence (rating practice, from memory)",
                       duty_equivalent_current_a=de, rated_armature_current_a=rated))
+    n = f.get("tap_changes")
+    if n is not None and n > 0:
+        out.append(caution("welding-tap-change", "warn",
+                      f"This dial changes the series tap or the diverter {n:.0f} time{'s' if n != 1 else ''} along its "
+                      "range: change them only with the arc out. A tap link or diverter switch is not made to break "
+                      "the welding current: opened under load it draws an arc, and the series field's inductance "
+                      "drives a spike across it.",
+                      "common practice: series-field links and diverter switches are set off load",
+                      tap_changes=n))
     if profile.welding.environment == "increased-shock-hazard":
         out.append(caution("welding-increased-hazard", "note",
                       environment("increased-shock-hazard").precautions.capitalize() + ".",
@@ -947,9 +967,43 @@ def option_cautions(machine, profile, setting, f):
     return out
 
 
+def no_load_cautions(machine, profile, setting, no_load_voltage_v):
+    """The welding job's no-load checks of one setting at its own speed and temperature (``curve`` and
+    ``point`` with a welding profile): the limits of :func:`option_cautions` on the no-load voltage
+    [V], and a warning where it is below what the process needs to strike."""
+    job = profile.welding
+    v = no_load_voltage_v
+    f = {"no_load_limit_v": no_load_voltage_limit(environment(job.environment).dc_limit).voltage_v,
+         "no_load_mean_limit_v": job.max_no_load_voltage_v}
+    if v is not None:
+        f.update(max_no_load_voltage_v=v, no_load_peak_voltage_v=float(no_load_peak_voltage(v)))
+    out = option_cautions(machine, profile, setting, f)
+    if v is not None and job.min_no_load_voltage_v is not None and v < job.min_no_load_voltage_v:
+        out.append(caution("welding-no-load-strike", "warn",
+                           f"No-load voltage {v:.1f} V is below the {job.min_no_load_voltage_v:g} V the arc needs to "
+                           "strike: the electrode sticks instead of striking.", _STRIKE_MMA,
+                           no_load_voltage_v=v, min_no_load_voltage_v=job.min_no_load_voltage_v))
+    return out
+
+
+#: Voltage the welding leads may drop at the top current before a note says so [V]: welding-cable charts
+#: size the leads for about 4 V (common practice, from memory).
+LEAD_DROP_NOTE_V = 4.0
+
+
 def profile_cautions(machine, profile):
     """Cautions of the welding job as a whole, whatever the setting."""
     out = []
+    job = profile.welding
+    top = job.current_range_a[1]
+    drop = job.cable_resistance_ohm * top
+    if drop > LEAD_DROP_NOTE_V:
+        out.append(caution("welding-lead-drop", "note",
+                      f"The leads ({job.cable_resistance_ohm:g} ohm, go and return) drop {drop:.1f} V at {top:g} A and "
+                      f"turn {drop * top / 1e3:.2g} kW into heat: leads are usually sized for about "
+                      f"{LEAD_DROP_NOTE_V:g} V. Use heavier or shorter leads.",
+                      "welding-cable sizing charts, about 4 V drop (common practice, from memory)",
+                      lead_drop_v=drop, cable_resistance_ohm=job.cable_resistance_ohm))
     out.append(caution("welding-no-load-rule", "note",
                   "The open-circuit voltage of a DC welding source must not exceed 113 V peak in any environment; "
                   "local rules may set less (e.g. 100 V DC for manual welding in the US).",

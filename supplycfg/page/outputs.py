@@ -11,9 +11,9 @@ import streamlit as st
 from .. import STANDING_NOTICE
 from ..errors import InputError
 from ..files import dumps_json, write_atomic
-from ..report import (CARD_PLAN_HEADERS, CHECKLIST_HEADERS, CURRENT_SETTING_HEADERS, DIAL_HEADERS, PLAN_HEADERS, SEVERITY_WORDS,
+from ..report import (CARD_PLAN_HEADERS, CHECKLIST_HEADERS, CURRENT_SETTING_HEADERS, DIAL_HEADERS, DIAL_SETTING_WORDS, PLAN_HEADERS, SEVERITY_WORDS,
                       card_plan_rows, cautions_pointer, checklist_rows, condition_words, current_setting_rows, cutout_rows,
-                      dial_rows, esc,
+                      dial_rows, electrode_of, esc,
                       field_reading_text, figure_rows, fmt, broken_limits_text, margin_rows, md_data, md_esc, objective_value,
                       plan_table, ranking_line, ranking_rule, run_rows, run_summary, setting_rows, severity_counts,
                       sheet_markdown, sorted_cautions, status_text)
@@ -95,6 +95,7 @@ def recommended_card(result, run=None, box=None):
         _table(("Set", "To"), setting_rows(o, m, p))
         if dial_rows(o):
             st.markdown("**Welding dial**")
+            st.caption(md_esc(DIAL_SETTING_WORDS))
             _table(DIAL_HEADERS, dial_rows(o))
         elif o.current_settings:
             st.markdown("**Field setting for each end of the welding range**")
@@ -209,7 +210,7 @@ def detail_section(result, option):
         _table(PLAN_HEADERS, plan_table(option))
         _table(("Reverse-current cut-out", "Figure"), cutout_rows(option))
     st.subheader("Wiring")
-    svg, steps = state.wiring_of(state.texts()[0], p.kind, option.setting)
+    svg, steps = state.wiring_of(state.texts()[0], p.kind, option.setting, electrode_of(p))
     with st.container(key="wiring"):
         st.image(svg, caption=f"Wiring: {connection_words(option.setting.connection)}", width="stretch")
     with st.expander("The wiring in words"):

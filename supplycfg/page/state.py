@@ -329,11 +329,11 @@ def chart_specs(machine_toml, profile_toml, rank, trim):
 
 
 @st.cache_data(max_entries=64, show_spinner=False)
-def wiring_of(machine_toml, kind, setting):
-    """The wiring drawing of a setting: ``(svg, steps in words)``."""
+def wiring_of(machine_toml, kind, setting, electrode="+"):
+    """The wiring drawing of a setting: ``(svg, steps in words)``; ``electrode`` the welding electrode's polarity."""
     from ..wiring import wiring, wiring_svg
     m = load_machine("machine.toml", machine_toml)
-    w = wiring(m, setting, kind)
+    w = wiring(m, setting, kind, electrode)
     return wiring_svg(w), list(w.steps)
 
 
