@@ -102,7 +102,8 @@ def setting_cautions(machine, setting, f):
         out.append(caution("below-critical", "warn",
                       f"{circuit} is above its critical resistance (or the speed below its critical speed) "
                       f"somewhere in the speed and temperature range (critical over actual {min(below):.2f}): there the "
-                      f"machine does not build up and gives little more than its residual voltage. {cure} until the "
+                      f"machine does not build up: what voltage it gives rests on the residual magnetism alone and "
+                      f"wanders with speed and temperature. {cure} until the "
                       f"ratio is above {1 + CRITICAL_CLEARANCE:.1f} everywhere.",
                       "self-excitation conditions (Theraja Vol II ch. 28; Kosow ch. 3); 10 % clearance is common practice",
                       critical_resistance_ratio=rr, critical_speed_ratio=sr))
@@ -139,6 +140,22 @@ def setting_cautions(machine, setting, f):
     return out
 
 
+def short_circuit_cautions(machine, armature_current_a, at_least=False):
+    """Where a traced characteristic runs on to a short circuit past the machine's short-time limit: a note
+    that the machine and its leads must be protected against it (the curve is not a working point).
+    ``at_least``: the curve stopped at the end of its span before the short circuit."""
+    ia = armature_current_a
+    if ia is None or not ia > machine.peak_current_a:
+        return []
+    return [caution("short-circuit-protection", "note",
+                    f"Run on to a short circuit, the armature current reaches {'at least ' if at_least else ''}"
+                    f"{ia:.0f} A, above the machine's "
+                    f"short-time limit {machine.peak_current_a:.0f} A: protect the machine and its leads with a "
+                    "breaker or fuses that clear a short at the terminals.",
+                    "machine file peak_armature_current_a (default 2 x rated, common practice); circuit model",
+                    short_circuit_armature_current_a=ia, peak_armature_current_a=machine.peak_current_a)]
+
+
 def operating_point_cautions(ops):
     """Cautions of the operating points of one setting on one load (``OperatingPoints``).
 
@@ -149,7 +166,18 @@ def operating_point_cautions(ops):
     """
     out = []
     rev = [p for p in ops.points if p.get("reversed")]
-    if rev:
+    normal = ops.normal
+    if rev and normal is not None and not normal.get("reversed"):
+        # the machine sits at its normal point: the reversed state is where it would be had it built up the
+        # wrong way round, which the polarity check before closing catches
+        p = next((q for q in rev if q["stable"]), rev[0])
+        out.append(caution("reversed-state", "note",
+                      f"A reversed state also exists at {p['terminal_voltage_v']:.4g} V (generated EMF "
+                      f"{p['generated_emf_v']:.4g} V): the machine is there only if it built up with reversed polarity. "
+                      "Check the polarity with a voltmeter before closing onto the load.",
+                      "reversed states (design note); polarity check: common practice",
+                      terminal_voltage_v=p["terminal_voltage_v"], generated_emf_v=p["generated_emf_v"]))
+    elif rev:
         p = next((q for q in rev if q["stable"]), rev[0])
         out.append(caution("reversed-build-up", "stop",
                       f"At {p['terminal_voltage_v']:.4g} V the generated EMF is {p['generated_emf_v']:.4g} V: that "

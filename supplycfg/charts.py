@@ -469,8 +469,8 @@ def occ_chart(machine, setting=None, temperatures_c=None, width=None):
             field_line(lab, r, c, dash, BOLD)
             se = ses[t]
             if se.no_load_voltage_v is not None:
-                # past critical the held point is the stalled one near the residual, not a built-up one
-                marks.append({"series": lab, "point": ("no-load point near the residual (no build-up)"
+                # past critical the held point rests on the residual magnetism, not a built-up one
+                marks.append({"series": lab, "point": ("no-load point held by the residual (no build-up)"
                                                        if se.stays_near_residual else "built-up no-load point"),
                               "field_current_a": _f(se.no_load_voltage_v / se.field_circuit_resistance_ohm),
                               "emf_v": _f(se.no_load_voltage_v),

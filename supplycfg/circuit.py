@@ -2345,6 +2345,7 @@ class SelfExcitation:
     converged: bool = True
     runaway: bool = False
     notes: list = field(default_factory=list)
+    residual_voltage_v: float | None = None  # the open-circuit curve at zero field, at this speed [V]
 
     @property
     def stays_near_residual(self):
@@ -2438,7 +2439,7 @@ def self_excitation(machine, rheostat_ohm=None, speed_rpm=None, winding_temperat
     if builds:
         stall = None
     return SelfExcitation(st, rf, rcrit, ncrit, builds, vnl, stall, reasons, pts,
-                          ops.converged or ops.runaway, ops.runaway, notes)
+                          ops.converged or ops.runaway, ops.runaway, notes, float(circ.s[0] * er))
 
 
 def series_critical_resistance_ohm(machine, series_turns=None, speed_rpm=None, winding_temperature_c=None):

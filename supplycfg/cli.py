@@ -384,7 +384,7 @@ def _fmt(v, unit="", f=".4g"):
 
 
 def cmd_curve(args, out):
-    from .cautions import drive_overload_cautions
+    from .cautions import drive_overload_cautions, short_circuit_cautions
     from .circuit import external_characteristic
     from .machine import load_machine
     m = load_machine(args.machine)
@@ -394,10 +394,13 @@ def cmd_curve(args, out):
     from .jobs import command_cautions
     f = _setting_figures(m, st)
     pts = c.point_list()
+    peak = None
     if pts:
-        f["max_armature_current_a"] = max(abs(p["armature_current_a"]) for p in pts)
+        # the curve runs on to a short circuit: past the rating is its shape, not a working point; the
+        # short-circuit current is a matter for the protection
+        peak = max(abs(p["armature_current_a"]) for p in pts)
         f["min_generated_emf_v"] = min(p["generated_emf_v"] for p in pts)
-    cautions = command_cautions(m, st, f)
+    cautions = command_cautions(m, st, f) + short_circuit_cautions(m, peak, c.short_circuit_current_a is None)
     # (the curve runs on to short circuit: the drive is judged up to the machine's own rating)
     power = [p["shaft_power_kw"] for p in pts if p.get("shaft_power_kw") is not None
              and abs(p["armature_current_a"]) <= m.rated_armature_current_a]
@@ -415,7 +418,12 @@ def cmd_curve(args, out):
              f"largest load current {_fmt(c.max_load_current_a, 'A')}; regulation to full load (rated armature current) "
              f"{_fmt(c.regulation_percent, '%', '.3g')}"
              + (" (negative: the voltage rises with load)"
-                if c.regulation_percent is not None and c.regulation_percent < 0 else ""),
+                if c.regulation_percent is not None and c.regulation_percent < 0 else "")
+             + (f" (none: the load current never passes {c.max_load_current_a:.4g} A, so the armature never "
+                f"carries its rated {m.rated_armature_current_a:g} A on this curve)"
+                if c.regulation_percent is None and c.max_load_current_a is not None
+                and max((abs(p["armature_current_a"]) for p in pts), default=0.0) < m.rated_armature_current_a
+                else ""),
              ""]
     rows = c.point_list()
     if drive is not None:
@@ -584,8 +592,9 @@ def cmd_buildup(args, out):
              + (" (and runs away past the measured curve)" if se.runaway and se.builds_up else "")]
     near_residual = se.stays_near_residual
     if near_residual:
-        lines.append(f"no-load voltage: about {se.no_load_voltage_v:.4g} V, near the residual; flashing the field "
-                     "does not help, it falls back there")
+        lines.append(f"no-load voltage: about {se.no_load_voltage_v:.4g} V, held up by the residual magnetism alone "
+                     f"(residual {se.residual_voltage_v:.3g} V): not a working voltage, it wanders with speed, "
+                     "temperature and the residual; flashing the field does not help, it falls back there")
     else:
         lines.append("no-load voltage once built up (or flashed): "
                      + ("unknown: the voltage runs away" if se.runaway else _fmt(se.no_load_voltage_v, 'V')))

@@ -194,7 +194,9 @@ def fleet_search(folder, profile, workers=None):
         by_file = {r.file: r for rows_ in done for r in rows_}
         rows = [by_file[str(f)] for f in files]
     notes = []
-    if not any(r.feasible for r in rows):
+    if rows and all(r.error is not None for r in rows):
+        notes.append("no machine file in the folder could be read: each row gives its file's error")
+    elif not any(r.feasible for r in rows):
         notes.append("no machine in the folder meets every limit of this job")
     return FleetResult(str(folder), profile.label, profile.kind, rows, n, notes)
 

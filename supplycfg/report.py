@@ -26,7 +26,7 @@ from pathlib import Path
 from . import STANDING_NOTICE, __version__
 from .errors import InputError
 from .files import write_atomic
-from .wording import GLOSSARY, connection_words, source_text, visible_text
+from .wording import connection_words, glossary_for, source_text, visible_text
 
 SEVERITY_ORDER = ("stop", "warn", "note")
 SEVERITY_WORDS = {"stop": "STOP", "warn": "Warning", "note": "Note"}
@@ -994,7 +994,7 @@ def job_rows(profile):
 JOB_WORDS = {
     "chemistry": ("battery type", ""), "cells": ("cells in series", ""), "capacity_ah": ("capacity", "Ah"),
     "state_of_charge": ("state of charge, start to end", "%"),
-    "max_charge_current_a": ("highest charging current", "A"), "min_charge_current_a": ("lowest starting current", "A"),
+    "max_charge_current_a": ("highest charging current", "A"), "min_charge_current_a": ("lowest main-charge current", "A"),
     "internal_resistance_ohm": ("bank resistance", "Ω"), "cable_resistance_ohm": ("cable resistance, go and return", "Ω"),
     "temperature_c": ("battery temperature", "°C"),
     "open_circuit_voltage_per_cell_v": ("rest voltage per cell, empty to full", "V"),
@@ -1003,7 +1003,7 @@ JOB_WORDS = {
     "environment": ("where the welding is done", ""), "duty_cycle_percent": ("duty cycle", "% of 10 minutes"),
     "max_no_load_voltage_v": ("site limit on no-load voltage", "V"),
     "nominal_voltage_v": ("voltage wanted at the lamps", "V"), "load_current_a": ("load current, least to most", "A"),
-    "tolerance_percent": ("tolerance", "± %"), "feeder_resistance_ohm": ("feeder resistance, go and return", "Ω"),
+    "tolerance_percent": ("tolerance, plus or minus", "%"), "feeder_resistance_ohm": ("feeder resistance, go and return", "Ω"),
     "lamp": ("lamps", ""), "bus_voltage_v": ("bus voltage", "V"),
 }
 
@@ -1139,7 +1139,7 @@ def sheet_markdown(result, rank=None, run=None, date=None):
              f"**Ranked by:** {md_esc(ranking_rule(result))}", ""]
     if stops:
         lines += ["## STOP: do not use this setting as it stands", ""] + _md_cautions(stops) + [""]
-    lines += ["## Set the machine like this", "", f"*{md_esc(ranking_line(result, o))}*", ""]
+    lines += [f"## {card_heading(o)}", "", f"*{md_esc(ranking_line(result, o))}*", ""]
     lines += _md_table(("What", "Setting"), setting_rows(o, m, p)) + [""]
     if dial_rows(o):
         lines += ["### Welding dial", "", md_esc(DIAL_SETTING_WORDS), ""] + _md_table(DIAL_HEADERS, dial_rows(o)) + [""]
@@ -1175,7 +1175,7 @@ def sheet_markdown(result, rank=None, run=None, date=None):
         lines += ["None raised by the rules for this setting.", ""]
     lines += ["## The machine", ""] + _md_table(("What", "Data"), machine_rows(m)) + [""]
     lines += ["## The job", ""] + _md_table(("What", "Value"), job_rows(p)) + [""]
-    lines += ["## Words used here", ""] + [f"- **{md_esc(k)}**: {md_esc(v)}" for k, v in GLOSSARY.items()] + [""]
+    lines += ["## Words used here", ""] + [f"- **{md_esc(k)}**: {md_esc(v)}" for k, v in glossary_for(p.kind).items()] + [""]
     lines += ["---", "", f"**{md_esc(STANDING_NOTICE)}**", ""]
     return "\n".join(lines)
 
@@ -1307,10 +1307,17 @@ def other_tap_options(result, option):
     return out[:3]
 
 
+def card_heading(option):
+    """The setting card's heading: a near miss is not a setting to make, and says so first."""
+    if option.feasible:
+        return "Set the machine like this"
+    return "Does not meet the job: the nearest miss, for reference only"
+
+
 def card_html(result, option, run=None, wiring_svg=None):
     """The setting card: what to set, why it ranks where it does, the wiring beside it, the dial or the plan."""
     m, p, o = result.machine, result.profile, option
-    parts = ['<div class="card" id="setting-card">', "<h2>Set the machine like this</h2>",
+    parts = ['<div class="card" id="setting-card">', f"<h2>{esc(card_heading(o))}</h2>",
              f'<p class="why">{esc(ranking_line(result, o))}</p>', '<div class="top">',
              _html_table((), setting_rows(o, m, p), "setting")]
     if wiring_svg is not None:
@@ -1411,7 +1418,7 @@ def sheet_html(result, rank=None, run=None, date=None, charts=True, svgs=None):
     parts += ["<h2>The machine</h2>", _html_table(("What", "Data"), machine_rows(m))]
     parts += ["<h2>The job</h2>", _html_table(("What", "Value"), job_rows(p))]
     parts += ["<h2>Words used here</h2>", '<dl class="glossary">'
-              + "".join(f"<dt>{esc(k)}</dt><dd>{esc(v)}</dd>" for k, v in GLOSSARY.items()) + "</dl>"]
+              + "".join(f"<dt>{esc(k)}</dt><dd>{esc(v)}</dd>" for k, v in glossary_for(result.profile.kind).items()) + "</dl>"]
     parts += [f'<p class="notice">{esc(STANDING_NOTICE)}</p>', "</section>", "</body></html>"]
     return "\n".join(parts)
 

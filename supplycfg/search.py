@@ -47,8 +47,9 @@ RANKING_RULE = (
     "tie, and a tie goes to the simpler rig (no diverter, fewer series turns in circuit, no exciter needed), "
     "then to the larger least margin (counted in steps of 0.1 % of its limit), then to the better objective. "
     "Then the options without a stop caution, by the number of limits "
-    "broken and then by the worst breach as a share of its limit. Options with a stop caution come last, "
-    "marked not usable. Options with the same figures are listed once.")
+    "broken and then by the worst breach as a share of its limit; among them those that need an exciter the "
+    "machine lacks (a change to the plant, not a setting) after the others. Options with a stop caution come "
+    "last, marked not usable. Options with the same figures are listed once.")
 #: What "least margin" means wherever it is printed.
 LEAST_MARGIN_MEANING = ("least margin: the smallest margin over every limit of the job, as a share of that "
                         "limit (negative where a limit is broken)")
@@ -91,6 +92,12 @@ class Option:
     def usable(self):
         """False when a ``stop`` caution rules the setting out."""
         return not any(c.severity == "stop" for c in self.cautions)
+
+    @property
+    def needs_missing_exciter(self):
+        """The option needs an exciter the machine file does not have: a change to the plant, not a setting."""
+        ex = (self.extras or {}).get("exciter") or {}
+        return "exciter_supply" in self.failed and ex.get("available_voltage_v") is None
 
     @property
     def limits_broken(self):
@@ -293,7 +300,8 @@ def rank_options(options, tie=OBJECTIVE_TIE_FRACTION):
     Feasible options by the job's objective (None last), ties within
     ``tie`` of the first of each group broken by the simpler rig and then by
     the larger least margin; then the options without a stop caution by the
-    number of limits broken and the worst breach; then those with one.
+    number of limits broken and the worst breach (those needing an exciter the
+    machine lacks after the others); then those with one.
     """
     def stable(o):
         s = o.setting
@@ -314,7 +322,7 @@ def rank_options(options, tie=OBJECTIVE_TIE_FRACTION):
                                             o.objective if o.objective is not None else 0.0, stable(o)))
 
     def miss_key(o):
-        return (len(o.limits_broken), -o.worst_breach, stable(o))
+        return (o.needs_missing_exciter, len(o.limits_broken), -o.worst_breach, stable(o))
 
     ordered += sorted((o for o in options if not o.feasible and o.usable), key=miss_key)
     ordered += sorted((o for o in options if not o.feasible and not o.usable), key=miss_key)
@@ -456,6 +464,15 @@ def drive_limit_check(machine, profile, options):
     if not big.feasible:
         return None, []
     need = min(o.figures.get("max_shaft_power_kw") or math.inf for o in big.feasible)
+    if need <= drive.rated_power_kw:
+        # the rating would carry the load: what the larger drive changes is how far the speed falls
+        fall = "speed droop" if drive.kind == "engine" else "slip"
+        text = (f"the {drive.kind}'s {fall} limits this job, not its rating: with a larger {drive.kind} of the same "
+                f"figures {len(big.feasible)} setting(s) meet it, the least of them drawing {need:.3g} kW at the "
+                f"shaft, within the {drive.rated_power_kw:g} kW this one has, because the larger one slows less at "
+                f"that load; " + ("a governor set for less droop (or isochronous) may do the same"
+                                  if drive.kind == "engine" else "a motor of less slip may do the same"))
+        return None, [text]  # no larger rating is needed
     text = (f"the drive limits this job: with a larger {drive.kind} of the same figures "
             f"{len(big.feasible)} setting(s) meet it, the least of them drawing {need:.3g} kW at the shaft against "
             f"the {drive.rated_power_kw:g} kW rating")

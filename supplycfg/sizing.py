@@ -134,6 +134,25 @@ def required_drive_rating(machine, profile, tolerance=RATING_TOLERANCE):
 #: or a low supply.
 RATING_MARGIN_NOTE = ("at this rating the drive is fully loaded at the job's heaviest point; choose the next "
                       "standard rating above it, with some margin (common practice)")
+#: Loading [%] of the found rating below which the rating is not what limits the job: the drive's speed
+#: fall is (a larger drive of the same figures falls less in speed at the same load).
+DROOP_BOUND_LOADING_PERCENT = 90.0
+
+
+def rating_margin_note(option, drive):
+    """What to make of the rating found: :data:`RATING_MARGIN_NOTE` where the drive is loaded to the full;
+    where it is loaded well below its rating, that the speed fall (engine droop, motor slip) limits the job,
+    not the rating."""
+    load = (option.figures or {}).get("max_drive_loading_percent") if option is not None else None
+    if load is None or load >= DROOP_BOUND_LOADING_PERCENT or not drive.coupled:
+        return RATING_MARGIN_NOTE
+    fall = "speed droop" if drive.kind == "engine" else "slip"
+    cure = ("a governor set for less droop (or isochronous), or a higher speed setting"
+            if drive.kind == "engine" else "a motor of less slip, or a faster pulley ratio")
+    return (f"at this rating the {drive.kind} is loaded to only {load:.0f} % at the job's heaviest point: its "
+            f"rating is not what limits the job but its {fall} (a larger {drive.kind} of the same figures slows "
+            f"less at the same load). {cure[0].upper() + cure[1:]} may meet the job with the "
+            f"{drive.rated_power_kw:g} kW {drive.kind} as it is")
 
 
 def size_text(res):
@@ -168,6 +187,6 @@ def size_text(res):
     for n in res.notes:
         lines.append(f"note: {n}")
     if res.required_drive_kw is not None:
-        lines.append(f"note: {RATING_MARGIN_NOTE}")
+        lines.append(f"note: {rating_margin_note(res.option, p.drive)}")
     lines.append(f"{res.searches} searches")
     return "\n".join(lines)

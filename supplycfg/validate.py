@@ -51,7 +51,7 @@ def unknown_key_message(name, valid, line=None, what="key", valid_what="valid ke
     where = f" (line {line})" if line else ""
     near = nearest_name(name, valid)
     guess = f"; did you mean {near}?" if near else ""
-    return f"is not a known {what}{where}{guess} {valid_what}: {', '.join(valid)}"
+    return f"is not a known {what}{where}{guess}; {valid_what}: {', '.join(valid)}"
 
 
 def check_tables(data, source, known, what, other_tables=(), other_what=""):

@@ -152,7 +152,7 @@ def wiring(machine, setting, kind, electrode="+"):
         if not (across == "exciter" and (setting.field_current_a is not None or machine.excitation_voltage_v is None)):
             parts.append(Part("rheostat", f"field rheostat {_num(setting.rheostat_ohm or 0.0, 'Ω')} "
                                           f"(0–{_num(machine.rheostat_max_ohm, 'Ω')})"))
-        letters = "F1–F2" if across == "exciter" else "E1–E2"
+        letters = "E1–E2"
         parts.append(Part("shunt-field", f"{field_words(conn)} {letters}"))
     parts.append(Part("voltmeter", "voltmeter"))
     if kind == "battery":
@@ -177,7 +177,9 @@ def wiring(machine, setting, kind, electrode="+"):
     if across in ("terminals", "armature"):
         steps.append(f"Shunt field E1–E2 with the field ammeter and the rheostat in series, across the {field_source}.")
     elif across == "exciter":
-        steps.append("Separate field F1–F2 with the field ammeter"
+        # the machine file has one field winding besides the series one: its terminals stay E1–E2 when it
+        # is fed separately (F1–F2 marks a winding built for separate excitation, IEC 60034-8, from memory)
+        steps.append("Shunt winding E1–E2, fed as a separate field: with the field ammeter"
                      + (" and the rheostat" if any(p.role == "rheostat" for p in parts) else "")
                      + " on its own supply, not connected to the armature circuit.")
     if kind == "battery":
@@ -345,7 +347,7 @@ def wiring_svg(w, title=None):
             xx += STEP
         d.add(elm.Line().at((xx, y0)).right().length(0.6))
         xx += 0.6
-        d.add(elm.Inductor2(loops=3).at((xx, y0)).down().length(y0 - y1).label("F1–F2", loc="top", fontsize=12))
+        d.add(elm.Inductor2(loops=3).at((xx, y0)).down().length(y0 - y1).label("E1–E2", loc="top", fontsize=12))
         d.add(elm.Dot(radius=0.09).at((xx - 0.45, y0 - 0.3)))
         d.add(elm.Line().at((xx, y1)).to((xs, y1)))
     left = -1.4 - STEP * (2 if "rheostat" in roles else 1) - 0.6 if w.shunt_across == "exciter" else -1.0

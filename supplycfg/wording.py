@@ -80,6 +80,16 @@ GLOSSARY = {
     "duty cycle": "the share of a ten-minute period for which a welding set may carry its current.",
 }
 
+#: Glossary terms that belong to one job only (the others are every job's).
+GLOSSARY_JOBS = {"drooping characteristic": "welding", "duty cycle": "welding",
+                 "reverse-current cut-out": "battery", "gassing voltage": "battery"}
+
+
+def glossary_for(kind=None):
+    """The glossary's entries a reader of a ``kind`` job meets (all of them for None)."""
+    return {k: v for k, v in GLOSSARY.items() if kind is None or GLOSSARY_JOBS.get(k, kind) == kind}
+
+
 _SEEN = re.compile(r"\s*\(\s*seen\s*\)", re.I)
 _MEMORY = re.compile(r"from memory", re.I)
 

@@ -650,6 +650,6 @@ def test_occ_chart_names_a_stalled_no_load_point(charging):
     m, p = charging
     spec = charts.occ_chart(m, Setting("shunt", rheostat_ohm=m.rheostat_max_ohm), p.temperatures_c).to_dict()
     names = {pt["point"] for pt in rows(spec, "no_load")}
-    assert names == {"no-load point near the residual (no build-up)"}
+    assert names == {"no-load point held by the residual (no build-up)"}
     spec = charts.occ_chart(m, Setting("shunt", rheostat_ohm=30.0), p.temperatures_c).to_dict()
     assert {pt["point"] for pt in rows(spec, "no_load")} == {"built-up no-load point"}

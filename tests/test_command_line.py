@@ -220,7 +220,8 @@ def test_buildup_past_critical_says_what_helps(capsys, machine, rheostat, cure):
     assert cli.main(["buildup", str(path), "--rheostat-ohm", rheostat]) == 0
     out = capsys.readouterr().out
     assert cure in out
-    assert "near the residual; flashing the field does not help" in out and "once built up (or flashed)" not in out
+    assert "held up by the residual magnetism alone" in out and "flashing the field does not help" in out
+    assert "once built up (or flashed)" not in out
 
 
 def test_negative_regulation_is_explained(capsys):

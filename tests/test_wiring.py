@@ -48,7 +48,8 @@ def test_parts_of_every_connection(welder, conn, kind):
     assert connection_words(conn) in svg
     assert "A1 +" in svg and "A2 −" in svg
     if conn != "series":
-        assert ("F1–F2" if conn in SEPARATE else "E1–E2") in svg
+        # one field winding besides the series one: E1–E2 however it is fed (IEC 60034-8, from memory)
+        assert "E1–E2" in svg and "F1–F2" not in svg
 
 
 @pytest.mark.parametrize("conn", [c for c in CONNECTIONS if c.endswith(("cumulative", "differential"))])
@@ -109,8 +110,17 @@ def test_booster_adds_to_the_bus():
 @pytest.mark.parametrize("conn", ["separate-differential", "long-shunt-differential", "short-shunt-differential"])
 def test_differential_words_name_the_field_it_opposes(welder, conn):
     """Regression: a separately excited differential set was told its series field is "turned round against
-    the shunt field"; it has a separate field (F1–F2), and the words say so."""
+    the shunt field"; its field is fed separately (a separate field), and the words say so."""
     w = wiring(welder, setting(welder, conn), "welding")
     said = " ".join(w.steps)
     field = "separate" if conn.startswith("separate") else "shunt"
     assert f"Turned round against the {field} field: differential." in said
+
+
+def test_separately_fed_winding_keeps_its_shunt_marking(welder):
+    """The machine file has one field winding besides the series one: fed from an exciter it is still the
+    winding marked E1–E2, and the fitter is told so (F1–F2 marks a winding built for separate excitation,
+    IEC 60034-8, from memory). (Regression: the steps sent the fitter to F1–F2 terminals that do not exist.)"""
+    w = wiring(welder, setting(welder, "separate-differential"), "welding")
+    said = " ".join(w.steps)
+    assert "Shunt winding E1–E2, fed as a separate field" in said and "F1" not in said

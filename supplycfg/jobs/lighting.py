@@ -8,6 +8,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from ..cautions import caution
 from ..circuit import (NORMAL_POINTS_GRID, candidate_params, machine_state, no_load_voltages, normal_points,
                        terminal_voltage_at_armature_current, voltage_span)
 from ..envelope import (COARSE, FINE, critical_resistance_ratios, expand_candidates, optimise_control,
@@ -276,8 +277,40 @@ def objective(figures):
 
 
 def option_cautions(machine, profile, setting, f):
-    """Lighting cautions of one setting: none beyond the machine's own."""
-    return []
+    """Lighting cautions of one setting (a near miss, or a setting given by hand): lamps over their band,
+    and a far-end swing wider than the band, with what would narrow it."""
+    job = profile.lighting
+    vn, tol = job.nominal_voltage_v, job.tolerance_percent / 100.0
+    lo, hi = vn * (1 - tol), vn * (1 + tol)
+    vmax, vmin = f.get("load_voltage_max_v"), f.get("load_voltage_min_v")
+    out = []
+    if vmax is not None and vmax > hi * (1 + 1e-9):
+        life = f.get("lamp_life_at_high")
+        out.append(caution("lighting-over-voltage", "warn",
+                           f"The far end reaches {vmax:.1f} V, {100 * (vmax / vn - 1):.1f} % over the nominal {vn:g} V "
+                           f"and above the band's top {hi:.1f} V"
+                           + (f": the lamps' life falls to about {life:.2g} x rated" if life is not None else "")
+                           + ". Weaken the field.",
+                           "the job's tolerance_percent; lamp life against voltage (IES exponents, from memory)",
+                           load_voltage_max_v=vmax, band_top_v=hi))
+    if vmax is not None and vmin is not None and vmax - vmin > hi - lo:
+        i0, i1 = job.load_current_a
+        drop = job.feeder_resistance_ohm * (i1 - i0)
+        words = (f"The far-end voltage swings {vmax - vmin:.1f} V ({vmin:.1f} to {vmax:.1f} V) from light to full "
+                 f"load over the speed and temperature range, wider than the band's {hi - lo:.1f} V ({lo:.1f} to "
+                 f"{hi:.1f} V): no rheostat setting fits it. ")
+        if job.feeder_resistance_ohm > 0:
+            words += f"The feeder alone drops {drop:.1f} V more at {i1:g} A than at {i0:g} A. "
+        cures = ["more series turns (a compound machine over-compounded for the feeder)",
+                 "a series booster in the feeder"]
+        if drop > hi - lo and i1 > i0:
+            cures.append(f"a heavier feeder (below {(hi - lo) / (i1 - i0):.2g} ohm, where the feeder alone drops "
+                         "less than the band)")
+        cures.append("a wider band, if the lamps allow it")
+        out.append(caution("lighting-band-too-narrow", "warn", words + "To hold the band: " + "; ".join(cures) + ".",
+                           "the job's band and feeder; the machine's regulation over the envelope (circuit model)",
+                           swing_v=vmax - vmin, band_width_v=hi - lo, feeder_drop_v=drop))
+    return out
 
 
 def profile_cautions(machine, profile):

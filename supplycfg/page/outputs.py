@@ -17,7 +17,7 @@ from ..report import (CARD_PLAN_HEADERS, CHECKLIST_HEADERS, CURRENT_SETTING_HEAD
                       field_reading_text, figure_rows, fmt, broken_limits_text, margin_rows, md_data, md_esc, objective_value,
                       plan_table, ranking_line, ranking_rule, run_rows, run_summary, setting_rows, severity_counts,
                       sheet_markdown, sorted_cautions, status_text)
-from ..wording import GLOSSARY, connection_words, source_text
+from ..wording import connection_words, glossary_for, source_text
 from . import state
 
 S = st.session_state
@@ -184,7 +184,7 @@ def options_section(result, key):
     st.selectbox("Look at option", ranks, key=pick_key, format_func=lambda r: _option_label(by_rank[r]),
                  help="its details, charts and sheet are shown below")
     with st.expander("What the words mean"):
-        st.markdown("\n".join(f"- **{_md(k)}**: {_md(v)}" for k, v in GLOSSARY.items()))
+        st.markdown("\n".join(f"- **{_md(k)}**: {_md(v)}" for k, v in glossary_for(result.profile.kind).items()))
     return by_rank[S[pick_key]]
 
 
@@ -297,8 +297,8 @@ def drive_size_section(result, machine_toml, profile_toml):
                 f"{fmt(o.figures.get('min_speed_rpm'), 'rpm')}.")
     for n in res.notes:
         st.caption(_md(n))
-    from ..sizing import RATING_MARGIN_NOTE
-    st.caption(_md(RATING_MARGIN_NOTE))
+    from ..sizing import rating_margin_note
+    st.caption(_md(rating_margin_note(o, d)))
 
 
 def _slug(text):
