@@ -46,6 +46,11 @@ def caution(rule, severity, message, basis, **figures):
     return Caution(rule, severity, message, basis, {k: v for k, v in figures.items()})
 
 
+#: Share above the rated voltage a machine may work at steadily: IEC 60034-1 voltage zone A, +-5 %
+#: (from memory).
+OVERVOLTAGE_FRACTION = 0.05
+
+
 def setting_cautions(machine, setting, f):
     """Cautions of one setting that hold whatever the job, from its figures ``f``.
 
@@ -113,6 +118,15 @@ def setting_cautions(machine, setting, f):
                       "somewhere in the speed and temperature range: the machine may fail to build up, or collapse on load.",
                       "self-excitation conditions (Theraja Vol II ch. 28; Kosow ch. 3); 10 % clearance is common practice",
                       critical_resistance_ratio=rr, critical_speed_ratio=sr))
+    vt = f.get("max_terminal_voltage_v")
+    if vt is not None and vt > (1 + OVERVOLTAGE_FRACTION) * machine.rated_voltage_v:
+        out.append(caution("over-voltage", "warn",
+                      f"At the job's points the machine works at up to {vt:.0f} V, "
+                      f"{100 * (vt / machine.rated_voltage_v - 1):.0f} % above its rated {machine.rated_voltage_v:g} V: "
+                      "commutation, insulation and the field's heating are rated at the plate voltage. Keep within "
+                      f"{100 * OVERVOLTAGE_FRACTION:.0f} % of it, or use a machine rated for the job's voltage.",
+                      "rating plate; IEC 60034-1 voltage zone A, rated voltage +-5 % (from memory)",
+                      max_terminal_voltage_v=vt, rated_voltage_v=machine.rated_voltage_v))
     top = f.get("top_speed_rpm")
     rated = machine.rated_speed_rpm
     if top is not None and top > rated * (1 + 1e-9):

@@ -85,7 +85,8 @@ class DrivePoints:
         figs = {"max_shaft_power_kw": _nan_reduce(v["shaft_power_kw"], "max"),
                 "min_speed_rpm": _nan_reduce(v["speed_rpm"], "min"),
                 "max_speed_rpm": _nan_reduce(v["speed_rpm"], "max"),
-                "min_efficiency_percent": 100.0 * _nan_reduce(v["efficiency"], "min")}
+                "min_efficiency_percent": 100.0 * _nan_reduce(v["efficiency"], "min"),
+                "max_terminal_voltage_v": _nan_reduce(v["terminal_voltage_v"], "max")}
         if self.drive.coupled:
             figs["collapsed_load_points"] = self.collapsed
             figs["max_drive_loading_percent"] = _nan_reduce(v["drive_loading_percent"], "max")

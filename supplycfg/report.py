@@ -109,6 +109,7 @@ FIGURE_WORDS = {
     "min_no_load_voltage_v": "no-load voltage (mean), lowest",
     "no_load_strike_min_v": "no-load voltage an arc needs to strike",
     "tap_changes": ("tap or diverter changes along the welding dial", ""),
+    "max_terminal_voltage_v": ("terminal voltage at the job's points, highest", "V"),
     "max_shaft_power_kw": ("shaft power, highest over the job's load points", "kW"),
     "min_speed_rpm": "generator speed under load, lowest",
     "max_speed_rpm": "generator speed under load, highest",

@@ -156,3 +156,16 @@ def test_curve_says_why_it_gives_no_regulation(capsys):
     the text says why instead of a bare '-'."""
     assert main(["curve", str(MACHINE), "--connection", "shunt", "--rheostat-ohm", "76"]) == 0
     assert "(none: the load current never passes" in capsys.readouterr().out
+
+
+def test_working_above_the_rated_voltage_is_said(tmp_path, machine):
+    """A 230 V machine asked to hold 255 V at the far end works at some 266 V: more than 5 % above its plate
+    voltage (IEC 60034-1 voltage zone A, +-5 %, from memory) gets a warning. The demo's best stays inside.
+    (Regression: no check against the rated voltage, while overspeed was flagged.)"""
+    res = search(machine, load_profile(variant(tmp_path, "255.toml", ("nominal_voltage_v = 220", "nominal_voltage_v = 255"))))
+    best = res.options[0]
+    c = {c.rule: c for c in best.cautions}["over-voltage"]
+    assert c.figures["max_terminal_voltage_v"] > 1.05 * machine.rated_voltage_v
+    demo = search(machine, load_profile(PROFILE)).options[0]
+    assert demo.figures["max_terminal_voltage_v"] <= 1.05 * machine.rated_voltage_v
+    assert "over-voltage" not in {c.rule for c in demo.cautions}
