@@ -86,7 +86,9 @@ class DrivePoints:
                 "min_speed_rpm": _nan_reduce(v["speed_rpm"], "min"),
                 "max_speed_rpm": _nan_reduce(v["speed_rpm"], "max"),
                 "min_efficiency_percent": 100.0 * _nan_reduce(v["efficiency"], "min"),
-                "max_terminal_voltage_v": _nan_reduce(v["terminal_voltage_v"], "max")}
+                "max_terminal_voltage_v": _nan_reduce(v["terminal_voltage_v"], "max"),
+                "heaviest_point_efficiency_percent": 100.0 * efficiency_at_heaviest_point(v["shaft_power_kw"],
+                                                                                          v["efficiency"])}
         if self.drive.coupled:
             figs["collapsed_load_points"] = self.collapsed
             figs["max_drive_loading_percent"] = _nan_reduce(v["drive_loading_percent"], "max")
@@ -115,6 +117,17 @@ class DrivePoints:
                 d["losses_w"] = {kind: v[j][k] for kind, v in losses.items()}
                 out.append(d)
         return out
+
+
+def efficiency_at_heaviest_point(shaft_power_kw, efficiency):
+    """Per candidate (first axis), the efficiency where the shaft power is highest over the other axes
+    (NaN where no point exists): the figure that describes the set at work, where the lowest efficiency
+    over the points is set by the lightest load and falls towards zero with it."""
+    n = shaft_power_kw.shape[0]
+    sp = np.where(np.isfinite(shaft_power_kw), shaft_power_kw, -np.inf).reshape(n, -1)
+    k = np.argmax(sp, axis=1)
+    eff = efficiency.reshape(n, -1)[np.arange(n), k]
+    return np.where(np.isfinite(sp[np.arange(n), k]), eff, np.nan)
 
 
 def finite_or_none_lists(a):

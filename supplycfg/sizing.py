@@ -179,7 +179,7 @@ def size_text(res):
         lines.append("The drive with that setting:")
         from .report import figure_label
         for k in ("max_shaft_power_kw", "max_drive_loading_percent", "min_speed_rpm", "max_speed_rpm",
-                  "min_efficiency_percent"):
+                  "heaviest_point_efficiency_percent", "min_efficiency_percent"):
             v = f.get(k)
             if v is not None:
                 words, unit = figure_label(k)

@@ -169,3 +169,19 @@ def test_working_above_the_rated_voltage_is_said(tmp_path, machine):
     demo = search(machine, load_profile(PROFILE)).options[0]
     assert demo.figures["max_terminal_voltage_v"] <= 1.05 * machine.rated_voltage_v
     assert "over-voltage" not in {c.rule for c in demo.cautions}
+
+
+def test_efficiency_is_given_where_the_set_works(machine):
+    """The lowest efficiency over the job's points is set by the lightest load and falls towards zero with
+    it; the efficiency at the heaviest point describes the set at work (a 23 kW generator: about 90 %,
+    the order of a machine of that size, from memory). The lowest keeps its figure, labelled for where it
+    is. (Regression: 52.8 %, 81.7 % or 0.23 % as the light point moved from 5 to 0 to 0.01 A.)"""
+    from numpy.testing import assert_allclose
+    from supplycfg.powerflow import efficiency_at_heaviest_point
+    import numpy as np
+    sp = np.array([[[1.0, 5.0], [2.0, np.nan]]])
+    eff = np.array([[[0.3, 0.9], [0.5, np.nan]]])
+    assert_allclose(efficiency_at_heaviest_point(sp, eff), [0.9], rtol=0, atol=0)
+    f = search(machine, load_profile(PROFILE)).options[0].figures
+    assert 85.0 <= f["heaviest_point_efficiency_percent"] <= 95.0
+    assert f["min_efficiency_percent"] < f["heaviest_point_efficiency_percent"]
