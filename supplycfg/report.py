@@ -144,7 +144,7 @@ LIMIT_WORDS = {
     "characteristic_slope_high": "characteristic the process needs at the high end",
     "stuck_electrode_current": "stuck-electrode current within the peak rating",
     "duty_cycle_heating": "duty-cycle heating within the continuous rating",
-    "dial_current": "every welding-dial current reached within 3 %",
+    "dial_current": "every welding-dial current reached within 3 % (hot windings; set by the field ammeter, cold too)",
     "no_load_strike_voltage": "no-load voltage high enough to strike an arc",
     "characteristic_slope": "characteristic the process needs on every dial row",
     "arc_stability": "arc stable on every dial row (the machine's slope below the arc line's and the leads')",
