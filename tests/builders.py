@@ -35,6 +35,18 @@ def demo(kind):
     return m, p, search(m, p)
 
 
+def profile_variant(kind, folder, name, *pairs):
+    """Job ``kind``'s demo profile with lines replaced (``(old, new)`` pairs, each asserted present),
+    written to ``folder / name``; returns its path."""
+    text = demo_paths(kind)[1].read_text(encoding="utf-8")
+    for old, new in pairs:
+        assert old in text, old
+        text = text.replace(old, new)
+    path = Path(folder) / name
+    path.write_text(text, encoding="utf-8")
+    return path
+
+
 def make_machine(machine=None, occ=None, **tables):
     """A machine from TOML-like tables; ``machine`` and ``occ`` update the defaults (a 230 V, 100 A
     four-pole shunt machine with a linear five-point open-circuit curve)."""

@@ -16,12 +16,16 @@ from supplycfg.circuit import Setting
 from supplycfg.cli import main
 from supplycfg.errors import InputError
 from supplycfg.jobs import battery
-from supplycfg.machine import load_machine
 from supplycfg.magnetisation import copper_resistance_factor
 from supplycfg.profile import load_profile
 from supplycfg.report import checklist_rows, sheet_markdown
 from supplycfg.search import search, search_text
 from supplycfg.simulation import charge_run, charge_run_for_option
+
+try:
+    from .builders import demo
+except ImportError:
+    from builders import demo
 
 ROOT = Path(__file__).resolve().parents[1]
 MACHINE = ROOT / "profiles" / "machines" / "charging-set.toml"
@@ -30,17 +34,17 @@ PROFILE = ROOT / "profiles" / "loads" / "battery-charging.toml"
 
 @pytest.fixture(scope="module")
 def machine():
-    return load_machine(MACHINE)
+    return demo("battery")[0]
 
 
 @pytest.fixture(scope="module")
 def profile():
-    return load_profile(PROFILE)
+    return demo("battery")[1]
 
 
 @pytest.fixture(scope="module")
-def result(machine, profile):
-    return search(machine, profile)
+def result():
+    return demo("battery")[2]
 
 
 def with_battery(profile, **kw):

@@ -18,22 +18,21 @@ from supplycfg.search import search, search_text
 from supplycfg.sizing import required_drive_rating, size_text
 from supplycfg.wording import glossary_for
 
+try:
+    from .builders import profile_variant
+except ImportError:
+    from builders import profile_variant
+
 ROOT = Path(__file__).resolve().parents[1]
 MACHINE = ROOT / "profiles" / "machines" / "lighting-set.toml"
 PROFILE = ROOT / "profiles" / "loads" / "lighting.toml"
-TEXT = PROFILE.read_text(encoding="utf-8")
 ENGINE = ('speed_rpm = 1500 ', 'kind = "engine"\nno_load_speed_rpm = 1560\ndroop_percent = 5\n'
           'rated_power_kw = 30\nidle_speed_rpm = 900\n# ')
 
 
 def variant(tmp_path, name, *pairs):
-    text = TEXT
-    for old, new in pairs:
-        assert old in text
-        text = text.replace(old, new)
-    path = tmp_path / name
-    path.write_text(text, encoding="utf-8")
-    return path
+    """The demo lighting profile with lines replaced (old, new), written to ``tmp_path``."""
+    return profile_variant("lighting", tmp_path, name, *pairs)
 
 
 @pytest.fixture(scope="module")

@@ -20,21 +20,19 @@ from supplycfg.report import (DIAL_SETTING_WORDS, checklist_rows, dial_rows, ran
                               wiring_svg_for)
 from supplycfg.search import search, search_text
 
+try:
+    from .builders import profile_variant
+except ImportError:
+    from builders import profile_variant
+
 ROOT = Path(__file__).resolve().parents[1]
 MACHINE = ROOT / "profiles" / "machines" / "welding-set.toml"
 PROFILE = ROOT / "profiles" / "loads" / "welding.toml"
-TEXT = PROFILE.read_text(encoding="utf-8")
 
 
 def variant(tmp_path, name, *pairs):
     """The demo welding profile with lines replaced (old, new), written to ``tmp_path``."""
-    text = TEXT
-    for old, new in pairs:
-        assert old in text
-        text = text.replace(old, new)
-    path = tmp_path / name
-    path.write_text(text, encoding="utf-8")
-    return path
+    return profile_variant("welding", tmp_path, name, *pairs)
 
 
 TIG = (('process = "manual-metal-arc"', 'process = "tungsten-inert-gas"'),
