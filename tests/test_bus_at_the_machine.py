@@ -19,9 +19,9 @@ from supplycfg.sizing import required_drive_rating, size_text
 from supplycfg.wording import glossary_for
 
 try:
-    from .builders import profile_variant
+    from .builders import demo, profile_variant
 except ImportError:
-    from builders import profile_variant
+    from builders import demo, profile_variant
 
 ROOT = Path(__file__).resolve().parents[1]
 MACHINE = ROOT / "profiles" / "machines" / "lighting-set.toml"
@@ -184,3 +184,21 @@ def test_efficiency_is_given_where_the_set_works(machine):
     f = search(machine, load_profile(PROFILE)).options[0].figures
     assert 85.0 <= f["heaviest_point_efficiency_percent"] <= 95.0
     assert f["min_efficiency_percent"] < f["heaviest_point_efficiency_percent"]
+
+
+def test_booster_past_the_knee_of_its_curve_is_noted():
+    """The demo booster at 300 A sits at 3.3 A equivalent field, where its curve rises about 16 V/A
+    against 27 V/A on the straight part: past the knee, so the boost falls behind the feeder's drop (a
+    booster is worked on the straight part, textbook practice, from memory). Checked against the
+    machine file's curve by SciPy's PCHIP, independently of the package's."""
+    import numpy as np
+    from scipy.interpolate import PchipInterpolator
+    m, _, res = demo("booster")
+    best = res.options[0]
+    c = {c.rule: c for c in best.cautions}["booster-past-knee"]
+    x = c.figures["max_net_mmf_a"]
+    xs, es = np.asarray(m.occ_field_current_a), np.asarray(m.occ_emf_v)
+    slope = PchipInterpolator(xs, es).derivative()(x)
+    straight = np.max(np.diff(es) / np.diff(xs))
+    assert c.figures["slope_share"] == pytest.approx(slope / straight, rel=1e-6)
+    assert c.figures["slope_share"] < 0.75

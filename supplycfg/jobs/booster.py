@@ -9,6 +9,7 @@ import numpy as np
 
 from ..cautions import caution
 from ..envelope import COARSE, FINE, optimise_control
+from ..magnetisation import OpenCircuitCurve
 from ..validate import MAX_CURRENT_A, MAX_OHM, MAX_VOLTAGE_V, MIN_VOLTAGE_V, read_pair
 from .lighting import DEFAULT_TOLERANCE_PERCENT, evaluate_feeder, voltage_band_objective
 
@@ -68,9 +69,32 @@ def objective(figures):
     return voltage_band_objective(figures)
 
 
+#: Share of the straight part's slope below which the open-circuit curve is past its knee: there the
+#: boost no longer rises in step with the line current (a booster is worked on the straight part of its
+#: curve; textbook practice, from memory; the share is our reading of "the knee").
+KNEE_SLOPE_SHARE = 0.75
+
+
 def option_cautions(machine, profile, setting, f):
-    """Booster cautions of one setting: none beyond the machine's own."""
-    return []
+    """Booster cautions of one setting: a note where its field at the heaviest load is past the knee of
+    the open-circuit curve (the boost then falls behind the feeder's drop)."""
+    x = f.get("max_net_mmf_a")
+    if x is None or not x > 0:
+        return []
+    occ = OpenCircuitCurve.from_machine(machine)
+    _, slope = occ.emf(np.array([float(x)]), with_slope=True)
+    straight = occ.air_gap_slope()
+    share = float(slope[0]) / straight
+    if share >= KNEE_SLOPE_SHARE:
+        return []
+    return [caution("booster-past-knee", "note",
+                    f"At the heaviest load the booster's field reaches {x:.3g} A (equivalent field current), past "
+                    f"the knee of its curve: the curve rises {float(slope[0]):.3g} V/A there against "
+                    f"{straight:.3g} V/A on its straight part ({100 * share:.0f} %). The boost no longer rises in "
+                    "step with the line current, so the far end sags at full load (the band's figures include "
+                    "it); a booster whose straight part reaches further follows the feeder better.",
+                    "series booster worked on the straight part of its curve (textbook practice, from memory)",
+                    max_net_mmf_a=x, slope_share=share)]
 
 
 def profile_cautions(machine, profile):
