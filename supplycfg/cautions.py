@@ -292,11 +292,17 @@ def drive_cautions(machine, drive, f):
     out += drive_overload_cautions(drive, kw)
     lo, top = f.get("min_speed_rpm"), f.get("top_speed_rpm")
     if lo is not None and top is not None:
+        hi_ = f.get("max_speed_rpm")
+        driven = hi_ is not None and hi_ > top * (1 + 1e-6)
         out.append(caution("drive-speed", "note",
-                      f"The {drive.kind} slows with load: about {top:.0f} rpm at the generator with no load, down to "
-                      f"{lo:.0f} rpm at the heaviest point of the job"
+                      (f"The {drive.kind} is driven faster than at no load: up to {hi_:.0f} rpm at the generator "
+                       f"against {top:.0f} rpm with no load, the machine running as a motor at some point of the job"
+                       if driven else
+                       f"The {drive.kind} slows with load: about {top:.0f} rpm at the generator with no load, down to "
+                       f"{lo:.0f} rpm at the heaviest point of the job")
                       + (f" ({kw:.3g} kW at the shaft)" if kw is not None else "")
-                      + ". Every figure is at the speed the drive falls to; check it with a tachometer.",
+                      + f". Every figure is at the speed the drive {'settles at' if driven else 'falls to'}; check it with a "
+                        "tachometer.",
                       "drive characteristic from the profile (engine droop or motor slip; common practice)",
                       top_speed_rpm=top, min_speed_rpm=lo))
     vi, bi = f.get("idle_no_load_voltage_v"), f.get("idle_builds_up")

@@ -515,6 +515,11 @@ def cmd_point(args, out):
         lines.append("")
     if normal is not None:
         lines.append("The machine sits at the highest stable point of normal polarity; the others are listed, not used.")
+    if kind == "battery":
+        # search and charge put the bank on the chemistry's cell model, whose voltage on charge is above rest
+        lines.append("The battery here is a fixed EMF behind a resistance; search and charge use the chemistry's "
+                     "cell model, whose voltage on charge lies above its rest voltage (give that voltage as the EMF "
+                     "to compare).")
     elif ops.runaway:
         lines.append(f"no operating point the machine sits at: {ops.message}")
     elif pts:

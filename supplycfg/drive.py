@@ -260,6 +260,15 @@ class Drive:
         sp = " to ".join(f"{s:g}" for s in self.speeds_rpm)
         return f"fixed speed {sp} rpm{belt}"
 
+    def short(self):
+        """The drive in a few words for the setting card (the job table gives it in full)."""
+        belt = "" if self.ratio == 1 else f", belt {self.ratio:g}"
+        if self.kind == "engine":
+            return f"engine {self.rated_power_kw:g} kW, {self.no_load_speed_rpm:g} rpm at no load{belt}"
+        if self.kind == "motor":
+            return f"induction motor {self.rated_power_kw:g} kW, {self.synchronous_speed_rpm:g} rpm synchronous{belt}"
+        return self.describe()
+
     def as_table(self):
         """The ``[drive]`` keys of this drive (without the winding temperatures)."""
         out = {}

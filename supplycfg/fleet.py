@@ -140,6 +140,8 @@ def search_one_machine(path, profile, text=None):
         row.best = {"rank": best.rank, "feasible": best.feasible, "setting": best.setting_dict(),
                     "smallest_margin": best.smallest_margin, "failed": list(best.failed)}
         row.objective, row.objective_label = objective_shown(profile, best)
+        if not best.feasible:
+            row.objective = None  # a near miss's objective is no score of what the machine can do
         row.shaft_power_kw = _finite_or_none(best.figures.get("max_shaft_power_kw"))
         row.drive_loading_percent = _finite_or_none(best.figures.get("max_drive_loading_percent"))
     row.drive_needed_kw = _finite_or_none(res.drive_needed_kw)

@@ -190,7 +190,9 @@ def load_point_figures(space, n, points, missing_collapses=True):
     drive = space.profile.drive
     if drive.coupled:
         figs.update(table.summary())
-        lim["drive_power"] = (figs["max_shaft_power_kw"], drive.rated_power_kw, "max", "kW")
+        # a drive driven backwards (a battery overhauling the set) is loaded as surely: the size counts
+        lim["drive_power"] = (np.fmax(figs["max_shaft_power_kw"], _nan_reduce(-table.values["shaft_power_kw"], "max")),
+                              drive.rated_power_kw, "max", "kW")
     return lim, figs
 
 

@@ -424,6 +424,12 @@ def readings_rows(option, readings=None, band=None):
     return rows
 
 
+#: Where the field ammeter's reading of a setting is taken, per job (the welding dial says it per row): a
+#: self-excited charging set's field follows the bank's voltage, so its reading is the one on charge.
+READING_WHERE = {"battery": "on charge at the start", "lighting": "at no load",
+                 "booster": "at no load"}
+
+
 def setting_rows(option, machine, profile):
     """``[(what, how)]`` describing the setting, in the trade's words, with the meter readings where given."""
     s = option.setting
@@ -435,7 +441,7 @@ def setting_rows(option, machine, profile):
             turns = s.series_turns if s.series_turns is not None else machine.series_turns_per_pole
             rows.append(("Series field tap", f"{turns:g} of {machine.series_turns_per_pole:g} turns per pole "
                                              f"(taps: {taps})"))
-            rows.append(("Diverter across the series field",
+            rows.append(("Diverter (across the series field)",
                          "none" if s.diverter_ohm is None else fmt(s.diverter_ohm, "Ω")))
         else:
             rows.append(("Series field", "not in circuit"))
@@ -448,7 +454,8 @@ def setting_rows(option, machine, profile):
                                                                     if option_value(option, "dial") else "")))
     else:
         rows.append(("Field", field_control_text(option, machine)))
-    rows += readings
+    where = READING_WHERE.get(profile.kind)
+    rows += [(f"{what} {where}" if where and what == "Field ammeter reads" else what, how) for what, how in readings]
     rows += drive_rows(option, profile)
     temps = profile.temperatures_c
     rows.append(("Winding temperature", f"{fmt(temps[0])} to {fmt(temps[1], '°C')}" if temps
@@ -464,7 +471,7 @@ def drive_rows(option, profile):
     if not d.coupled:
         sp = fmt(speeds[0], "rpm") if len(speeds) == 1 else f"{fmt(speeds[0])} to {fmt(speeds[1], 'rpm')}"
         return [("Drive speed", sp)]
-    return [("Drive", d.describe())]
+    return [("Drive", d.short())]
 
 
 def current_setting_rows(option):
@@ -487,13 +494,13 @@ def current_setting_rows(option):
 
 
 CURRENT_SETTING_HEADERS = ("Welding current", "Field", "Terminal voltage (arc and leads)", "No-load voltage")
-DIAL_HEADERS = ("Current", "Tap [turns]", "Diverter", "Field", "No-load voltage", "Short-circuit current, cold")
+DIAL_HEADERS = ("Current", "Tap [turns]", "Diverter", "Field", "No-load voltage", "Stuck electrode, cold")
 #: How the welder sets a dial row: by the field ammeter, the rheostat's ohms only a start (with cold windings
 #: the ohms give more current; the ammeter's reading gives the row's current whatever the temperature).
 DIAL_SETTING_WORDS = ("Set the tap (and diverter) with the arc out, then turn the rheostat until the field ammeter "
                       "reads the row's value at no load, whatever the winding temperature: the ohms are where to "
-                      "start (set by them on a cold machine, the current comes out higher). Short-circuit currents "
-                      "are with cold windings, the worst case.")
+                      "start (set by them on a cold machine, the current comes out higher). Stuck-electrode currents "
+                      "(a short through the leads) are with cold windings, the worst case.")
 #: The same, short, for the printed card's first page.
 DIAL_SETTING_SHORT = "Set each row by the field ammeter at no load, taps only with the arc out; the ohms are a start."
 
@@ -545,26 +552,31 @@ CARD_PLAN_HEADERS = ("Stage", "Hours", "Field", "Current, start to end", "Ends")
 def card_plan_rows(option):
     """Charge plan rows the core gives: each stage's time, field setting, current and why it ends."""
     out = []
-    for k, st in enumerate(option_value(option, "plan") or [], 1):
+    plan = option_value(option, "plan") or []
+    two = len(plan) == 2
+    for k, st in enumerate(plan, 1):
         st = _mapping(st)
         setting = _mapping(st.get("setting"))
-        # a stage without readings of its own shows its setting, never the option's (stage 1's) readings
-        field = [f"{label}: {how}" for label, how in readings_rows(option, st.get("readings"), st.get("band"))] \
-            if st.get("readings") else []
+        # stage 1's readings are the card's own rows above; a later stage gives its own, short (the card
+        # must leave page 1 room for the checklist); a stage without readings shows its setting
+        field = []
+        if k == 1 and st.get("readings") and readings_rows(option):
+            field = ["as set above"]
+        elif st.get("readings"):
+            field = [compact_reading_text(st.get("readings"), st.get("band"))]
         if not field:
             if _given(setting.get("field_current_a")):
                 field = [f"field current {fmt(setting['field_current_a'], 'A')}"]
             elif _given(setting.get("rheostat_ohm")):
                 field = [f"rheostat {fmt(setting['rheostat_ohm'], 'Ω')}"]
-        rise = stage_field_rise_text(st)
+        rise = stage_field_rise_text(st, short=True)
         if rise:
             field.append(rise)
-        two = len(option_value(option, "plan") or []) == 2
         why = STAGE_END_WORDS.get(str(st.get("ends_because") or ""), str(st.get("ends_because") or ""))
-        ends = " ".join(x for x in (f"at {fmt(st.get('end_volts_per_cell'), 'V per cell')}"
-                                    if _given(st.get("end_volts_per_cell")) else "", why) if x)
+        ends = " ".join(x for x in (why, f"at {fmt(st.get('end_volts_per_cell'), 'V per cell')}"
+                                    if _given(st.get("end_volts_per_cell")) else "") if x)
         if two and k == 1 and _given(st.get("end_terminal_voltage_v")):
-            ends += f"; the voltmeter at the machine reads about {fmt(st['end_terminal_voltage_v'], 'V')}"
+            ends += f" (voltmeter about {fmt(st['end_terminal_voltage_v'], 'V')})"
         name = ("main charge" if k == 1 else "finish") if two else f"stage {k}"
         out.append((f"{k}: {name}", f"{fmt(st.get('from_h'))} to {fmt(st.get('to_h'), 'h')}", "; ".join(field) or "–",
                     f"{fmt(st.get('start_current_a'), 'A')} to {fmt(st.get('end_current_a'), 'A')}", ends or "–"))
@@ -578,8 +590,9 @@ STAGE_END_WORDS = {"handover-voltage": "hand over to the finish", "end-state-of-
                    "no-operating-point": "the machine loses its operating point"}
 
 
-def stage_field_rise_text(stage):
-    """What the field ammeter does along a charge stage on a self-excited machine ('' where it holds).
+def stage_field_rise_text(stage, short=False):
+    """What the field ammeter does along a charge stage on a self-excited machine ('' where it holds);
+    ``short`` for the card's table.
 
     The shunt field hangs on the terminals, so its current follows the bank's
     voltage up as the cells charge; an attendant who sees it rise must not
@@ -589,7 +602,23 @@ def stage_field_rise_text(stage):
     if not (_given(a) and _given(b)) or abs(b - a) <= 0.02 * abs(a):
         return ""
     way = "rises" if b > a else "falls"
+    if short:
+        return f"the ammeter {way} to about {_round(b)} A: leave it"
     return f"the field ammeter {way} to about {_round(b)} A as the bank's voltage {way}: leave the field as set"
+
+
+def compact_reading_text(readings, band=None):
+    """A stage's field setting in few words: rheostat, the ammeter's hot (cold) reading and its band."""
+    r, b = _mapping(readings), _mapping(band)
+    fc = _mapping(r.get("field_current_a"))
+    parts = []
+    if _given(r.get("rheostat_ohm")):
+        parts.append(f"rheostat {_round(r['rheostat_ohm'])} Ω")
+    if _given(fc.get("hot")):
+        parts.append(f"ammeter {_round(fc['hot'])} A hot" + (f" ({_round(fc['cold'])} cold)" if _given(fc.get("cold")) else ""))
+    keep = _pair_text(b.get("field_current_a"), "A")
+    text = ", ".join(parts)
+    return text + (f"; set within {keep}" if keep else "")
 
 
 def _given(v):
@@ -826,7 +855,7 @@ def checklist_rows(result, option, run=None):
                 for r in option_value(o, "dial") or []]
     dial_hot = [h for h in dial_hot if _given(h)]
     if fr:
-        field = fr[0]
+        field = fr[0] + ("; read on charge (with the load off it reads more)" if kind == "battery" else "")
     elif dial_hot:
         field = f"as the dial's row: {_range_text(min(dial_hot), max(dial_hot), 'A')} with hot windings"
     elif s.connection == "series":
@@ -837,7 +866,8 @@ def checklist_rows(result, option, run=None):
         field = fmt(s.field_current_a, "A")
     else:
         field = note
-    rows.append(("Field current on the field ammeter", field))
+    rows.append(("Field ammeter, on charge at the start" if kind == "battery"
+                 else "Field current on the field ammeter", field))
     if kind == "battery":
         hot, cold = f.get("start_charge_current_hot_a"), f.get("start_charge_current_cold_a")
         if _spans(hot, cold):
@@ -897,8 +927,8 @@ def checklist_rows(result, option, run=None):
 
 #: How a battery shop tells the end of charge (common practice): readings steady over three hours.
 END_OF_CHARGE_CHECK = {
-    "lead-acid-vented": "End of charge: voltage and specific gravity steady over three hourly readings",
-    None: "End of charge: voltage steady over three hourly readings",
+    "lead-acid-vented": "End of charge: voltage and gravity steady over 3 hourly readings",
+    None: "End of charge: voltage steady over 3 hourly readings",
 }
 
 
@@ -921,20 +951,18 @@ def handover_check_text(plan):
     parts = []
     v, vpc = main.get("end_terminal_voltage_v"), main.get("end_volts_per_cell")
     if _given(v):
-        parts.append(f"voltmeter at the machine about {fmt(v, 'V')}"
-                     + (f" ({fmt(vpc, 'V per cell')} at the bank)" if _given(vpc) else ""))
+        parts.append(f"voltmeter about {fmt(v, 'V')}" + (f" ({fmt(vpc, 'V per cell')})" if _given(vpc) else ""))
     rd = _mapping(fin.get("readings"))
     fc = _mapping(rd.get("field_current_a"))
     then = []
     if _given(rd.get("rheostat_ohm")):
-        then.append(f"the rheostat to {_round(rd['rheostat_ohm'])} Ω")
+        then.append(f"rheostat {_round(rd['rheostat_ohm'])} Ω")
     if _given(fc.get("hot")):
-        then.append(f"the field ammeter {_round(fc['hot'])} A hot"
-                    + (f" ({_round(fc['cold'])} A cold)" if _given(fc.get("cold")) else ""))
+        then.append(f"ammeter {_round(fc['hot'])} A hot")
+    if _given(fin.get("start_current_a")):
+        then.append(f"about {_round(fin['start_current_a'], 2)} A")
     if then:
         parts.append("then " + ", ".join(then))
-    if _given(fin.get("start_current_a")):
-        parts.append(f"charging current then about {fmt(fin['start_current_a'], 'A')}")
     return "; ".join(parts) or "note the reading"
 
 
@@ -1081,7 +1109,7 @@ def _date(date):
     return (date or _dt.date.today()).isoformat() if not isinstance(date, str) else date
 
 
-def cautions_pointer(option, result, where="on the next page"):
+def cautions_pointer(option, result, where="under Cautions, later in this sheet,"):
     """One line: how many warnings and notes the setting and the job carry, and where to read them."""
     counts = {}
     for c in list(option.cautions) + list(result.cautions):
@@ -1209,8 +1237,8 @@ table.compact td { white-space: nowrap; }
 .wiring { margin: 0; text-align: center; }
 .wiring svg { width: 100%; height: auto; max-height: 62mm; }
 @media screen and (max-width: 700px) { .top, .halves { grid-template-columns: minmax(0, 1fr); } }
-#checklist td:nth-child(3), #checklist td:nth-child(4) { width: 17%; }
-#checklist td:nth-child(4) { width: 10%; }
+#checklist td:nth-child(3) { width: 15%; }
+#checklist td:nth-child(4) { width: 8%; }
 #checklist td { height: 1.35rem; }
 .pointer { font-weight: bold; margin: .4rem 0; }
 .caution { border-left: 6px solid #5c6b7a; padding: .3rem .6rem; margin: .4rem 0; background: #f6f7f9; }
@@ -1228,7 +1256,7 @@ dl.glossary dt { font-weight: bold; } dl.glossary dd { margin: 0 0 .3rem 1rem; }
 @page { size: A4; margin: 12mm; }
 @media print {
   body { max-width: none; padding: 0; font-size: 9.5pt; }
-  .first table { font-size: 8.4pt; }
+  .first table { font-size: 8pt; }
   .first th, .first td { padding: .12rem .35rem; }
   #checklist td { height: 1.1rem; }
   .first h2 { margin: .6rem 0 .25rem; }

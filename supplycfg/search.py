@@ -539,7 +539,7 @@ def _field_cells(o):
 
 def _dial_lines(o, cable_ohm):
     hdr = ("current [A]", "series turns", "diverter [ohm]", "rheostat [ohm]", "travel [%]", "field hot [A]",
-           "no-load [V]", "no-load low [V]", "no-load high [V]", "short-circuit cold [A]", "slope [V/A]",
+           "no-load [V]", "no-load low [V]", "no-load high [V]", "stuck electrode cold [A]", "slope [V/A]",
            "per arc volt [A/V]", "terminal [V]", "arc [V]", "tap change")
     rows = []
     for r in o.extras.get("dial") or []:

@@ -87,18 +87,19 @@ def test_the_field_ammeter_rise_and_the_handover_voltmeter_are_said(result):
     assert "the field ammeter rises to about" in text
     assert f"hand over when the voltmeter at the machine reads about {s1['end_terminal_voltage_v']:.4g} V" in text
     checks = dict(checklist_rows(result, best))
-    assert checks["Hand-over to the finish"].startswith("voltmeter at the machine about")
-    assert "then the rheostat to" in checks["Hand-over to the finish"]
+    assert checks["Hand-over to the finish"].startswith(f"voltmeter about {s1['end_terminal_voltage_v']:.4g} V")
+    assert "then rheostat" in checks["Hand-over to the finish"]
 
 
 def test_markdown_sheet_gives_both_stages_readings_in_words(result):
     """The Markdown sheet's card carries the finish's field-ammeter reading and band, as the HTML sheet
-    does, and says why a stage ends in words, not program codes. (Regression: only 'rheostat 42.1 ohm'
-    for the finish, and 'handover-voltage' in the Ends column.)"""
+    does (stage 1's are the card's own rows), and says why a stage ends in words, not program codes.
+    (Regression: only 'rheostat 42.1 ohm' for the finish, and 'handover-voltage' in the Ends column.)"""
     md = sheet_markdown(result)
     card = md.split("## Wiring")[0]
     plan = card.split("### Charge plan")[1]
-    assert plan.count("Field ammeter reads") == 2
+    fin = result.options[0].extras["plan"][1]["readings"]["field_current_a"]
+    assert "as set above" in plan and f"ammeter {fin['hot']:.3g} A hot ({fin['cold']:.3g} cold); set within" in plan
     assert "handover-voltage" not in card and "end-state-of-charge" not in card
     assert "hand over to the finish" in plan
 
@@ -228,6 +229,32 @@ def test_checklist_says_how_to_tell_the_end_of_charge(result):
     plan expects there and when."""
     best = result.options[0]
     checks = dict(checklist_rows(result, best))
-    row = checks["End of charge: voltage and specific gravity steady over three hourly readings"]
+    row = checks["End of charge: voltage and gravity steady over 3 hourly readings"]
     end = best.extras["plan"][-1]
     assert f"{end['end_terminal_voltage_v']:.4g} V" in row and "after about 14.55 h" in row
+
+
+def test_card_says_the_start_reading_is_on_charge(result):
+    """A self-excited charging set's field follows the bank's voltage: the card's reading is the one on
+    charge at the start, and says so (with the load off the same rheostat reads more). (Regression: the
+    sheet gave '1.42 A hot' unqualified; set with the load off to read it, the charge started at 8.7 A.)"""
+    from supplycfg.report import setting_rows
+    rows = dict(setting_rows(result.options[0], result.machine, result.profile))
+    assert "Field ammeter reads on charge at the start" in rows
+    checks = dict(checklist_rows(result, result.options[0]))
+    assert checks["Field ammeter, on charge at the start"].endswith(
+        "read on charge (with the load off it reads more)")
+
+
+def test_a_setting_the_bank_drives_backwards_is_not_usable(profile):
+    """The welding set (a 40 V machine) on the 120 V bank: the bank drives some 160 A back into it at the
+    start. That is a stop (never close onto the bank), not a near miss; the drive limit counts the power
+    the overhauled motor takes back (140 % of its rating); the drive note says the motor is driven faster,
+    not that it slows. (Regression: 'usable', -15.4 kW passing the 11 kW limit, 'slows ... to 1514 rpm'.)"""
+    from supplycfg.machine import load_machine
+    res = search(load_machine(ROOT / "profiles" / "machines" / "welding-set.toml"), profile)
+    o = res.options[0]
+    rules = {c.rule: c for c in o.cautions}
+    assert rules["battery-back-feed"].severity == "stop" and not o.usable
+    assert "drive_power" in o.failed
+    assert rules["drive-speed"].message.startswith("The motor is driven faster than at no load")

@@ -233,7 +233,7 @@ def test_sheet_leads_with_card_wiring_and_checklist(results, kind):
     assert card < wiring_at < check < later
     assert "<th>Expected</th><th>Measured</th><th>Initials</th>" in html
     rows = [c for c, _ in report.checklist_rows(res, o)]
-    for start in ("Polarity checked", "Field current", "Drive speed"):
+    for start in ("Polarity checked", ("Field current", "Field ammeter"), "Drive speed"):
         assert any(r.startswith(start) for r in rows), start
     # a shunt or separate field needs its discharge path; a series field (the booster) has none to open
     assert any(r.startswith("Field discharge path") for r in rows) == (o.setting.connection != "series")
@@ -288,9 +288,9 @@ def test_card_shows_readings_bands_dial_and_plan_when_the_core_gives_them(result
                "end_current_a": 9.0, "end_volts_per_cell": 2.62, "ends_because": "end state of charge reached"}]
     plan = report.card_plan_rows(b)
     assert [r[0] for r in plan] == ["1: main charge", "2: finish"]
-    # stage 1 is the option's own setting: its band, where the option has one, follows the reading
-    assert plan[0][2].startswith("Field ammeter reads: 1.41 A cold, 1.3 A hot") and plan[1][2] == "rheostat 60 Ω"
-    assert plan[1][4] == "at 2.62 V per cell end state of charge reached"
+    # stage 1 is the option's own setting, whose readings the card gives above its plan
+    assert plan[0][2] == "as set above" and plan[1][2] == "rheostat 60 Ω"
+    assert plan[1][4] == "end state of charge reached at 2.62 V per cell"
 
 
 def _print_page_one(html, tmp_path):
@@ -343,6 +343,22 @@ def test_printed_page_one_holds_the_card_and_the_checklist(results, kind, tmp_pa
     assert "Field discharge path fitted" in text
     assert "What to expect" not in text
     assert ("Welding dial" in text) if kind == "welding" else ("Charge plan" in text)
+
+
+@needs_print
+@pytest.mark.parametrize("kind", list(PAIRS))
+def test_printed_page_one_of_each_demo_sheet_as_it_stands(results, kind, tmp_path):
+    """The demo sheets as the core gives them (the battery's two-stage plan with its readings, hand-over and
+    end-of-charge checks; the welding dial): page 1 holds the card and every row of the checklist.
+    (Regression: the battery sheet's checklist moved whole to page 2 once it gained rows.)"""
+    res = results[kind]
+    one, info = _print_page_one(report.sheet_html(res, charts=False, date="2031-05-04"), tmp_path)
+    assert re.search(r"Page size:.*\(A4\)", info), info
+    text = " ".join(one.split())
+    assert re.search(r"Check\s+Expected\s+Measured\s+Initials", text)
+    for check, _ in report.checklist_rows(res, res.options[0]):
+        assert " ".join(check.split()[:3]) in text, check
+    assert "What to expect" not in text
 
 
 @pytest.mark.parametrize("kind", list(PAIRS))

@@ -98,13 +98,13 @@ def test_no_load_below_the_strike_voltage_is_said(capsys):
 def test_dial_is_set_by_the_field_ammeter(demo):
     """A set is set cold at the start of a shift: the dial's row is set by the field ammeter, whose reading
     gives the row's current whatever the winding temperature; the ohms are only a start (set by ohms on
-    a cold machine, the 180 A row gives 208 A). The short-circuit column is the cold worst case."""
+    a cold machine, the 180 A row gives 208 A). The stuck-electrode column is the cold worst case."""
     o = demo.options[0]
     row = dial_rows(o)[-1]
     assert row[3].startswith("reads ") and "(about " in row[3]
     text = search_text(demo)
     assert "field ammeter reads the row's value at no load, whatever the winding temperature" in text
-    assert "short-circuit cold [A]" in text
+    assert "stuck electrode cold [A]" in text
     assert DIAL_SETTING_WORDS in sheet_markdown(demo)
     stuck = dict(checklist_rows(demo, o))["Short-circuit current (electrode stuck), at the top setting"]
     assert stuck.endswith("with cold windings (less when warm)")
@@ -172,3 +172,14 @@ def test_long_leads_get_a_note(tmp_path):
 def test_demo_leads_get_no_note(demo):
     """The demo's 0.02 ohm leads drop 3.6 V at 180 A: inside the usual 4 V."""
     assert "welding-lead-drop" not in {c.rule for c in demo.cautions}
+
+
+def test_fleet_gives_no_objective_to_a_machine_that_cannot_do_the_job():
+    """A fleet row whose best option misses the job carries no objective: '0 tap changes' on a machine that
+    cannot weld read as the best score. (Regression: the welding job's rows showed 0.0, the battery's null.)"""
+    from supplycfg.fleet import fleet_search
+    res = fleet_search(ROOT / "profiles" / "machines", load_profile(PROFILE))
+    rows = [r for r in res.machines if r.error is None]
+    assert any(r.feasible for r in rows) and any(not r.feasible for r in rows)
+    for r in rows:
+        assert (r.objective is not None) == r.feasible

@@ -2163,6 +2163,16 @@ def option_cautions(machine, profile, setting, f):
                            "IEC 62485-2 (seen); gassing voltage from the chemistry table",
                            highest_volts_per_cell=ev, gassing_volts_per_cell=gv))
     # the job's limits, where a setting (given by hand, or a near miss) breaks them
+    starts = [v for v in (_fig(f, k) for k in ("start_charge_current_a", "start_charge_current_cold_a",
+                                                "start_charge_current_hot_a")) if v is not None]
+    if starts and min(starts) < 0:
+        out.append(caution("battery-back-feed", "stop",
+                           f"At the start of charge the bank drives {-min(starts):.3g} A back into the machine: its "
+                           "voltage is below the bank's at this setting, so the bank discharges and the machine runs "
+                           "as a motor. Do not close onto the bank; take a stronger field, if the machine has one, or another "
+                           "setting.",
+                           "circuit model (the bank's curve against the machine's); reverse-current practice "
+                           "(common practice)", start_charge_current_a=min(starts)))
     i0 = _fig(f, "start_charge_current_highest_a")
     if i0 is not None and i0 > b.max_charge_current_a * (1 + 1e-9):
         out.append(caution("battery-start-current", "warn",
