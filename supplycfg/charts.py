@@ -779,7 +779,8 @@ def welding_load_line(profile, i_top):
     w = profile.welding
     cur = np.linspace(0.0, i_top, 40)
     v = ld.conventional_load_voltage(w.process, cur) + cur * w.cable_resistance_ohm
-    return {"label": f"{w.process} load line (with the leads)", "colour": BLACK, "dash": DASHES["long"],
+    from .wording import name_words
+    return {"label": f"{name_words(w.process)} load line (with the leads)", "colour": BLACK, "dash": DASHES["long"],
             "load_current_a": list(cur), "terminal_voltage_v": list(v)}
 
 
@@ -975,7 +976,8 @@ def charging_curves_chart(family, width=None):
              {"label": f"highest cell voltage {family['highest_volts_per_cell']:.3f} V", "v": _f(family["highest_volts_per_cell"])}]
     rules = alt.Chart(sets("levels", lines)).mark_rule(color=BLACK, strokeDash=DASHES["long-short"], strokeWidth=1.6).encode(
         y=alt.Y("v:Q"), tooltip=[alt.Tooltip("label:N", title="level")])
-    title = f"Charging curves of {family['chemistry']} at {family['temperature_c']:g} °C"
+    from .wording import name_words
+    title = f"Charging curves of {name_words(family['chemistry'])} at {family['temperature_c']:g} °C"
     return _layered([curves, rules], title, sets, width)
 
 

@@ -26,7 +26,7 @@ from pathlib import Path
 from . import STANDING_NOTICE, __version__
 from .errors import InputError
 from .files import write_atomic
-from .wording import connection_words, glossary_for, source_text, visible_text
+from .wording import connection_words, glossary_for, name_words, source_text, visible_text
 
 SEVERITY_ORDER = ("stop", "warn", "note")
 SEVERITY_WORDS = {"stop": "STOP", "warn": "Warning", "note": "Note"}
@@ -1013,7 +1013,7 @@ def job_rows(profile):
         elif isinstance(v, (list, tuple)):
             text = f"{' to '.join(fmt(x) for x in v)} {unit}".strip()
         elif isinstance(v, str):
-            text = v.replace("-", " ")
+            text = name_words(v)
         else:
             text = fmt(v, unit)
         rows.append((words[:1].upper() + words[1:], text))

@@ -32,6 +32,18 @@ def field_words(connection):
     return "separate field" if connection.startswith("separate") else "shunt field"
 
 
+#: Trade names of the named tables' entries a reader meets (welding processes, battery chemistries).
+NAME_WORDS = {"manual-metal-arc": "manual metal arc", "tungsten-inert-gas": "TIG (tungsten inert gas)",
+              "metal-inert-gas": "MIG/MAG (metal inert gas)", "lead-acid-vented": "vented lead-acid",
+              "lead-acid-valve-regulated": "valve-regulated lead-acid", "nickel-cadmium-vented": "vented nickel-cadmium",
+              "increased-shock-hazard": "increased hazard of electric shock"}
+
+
+def name_words(name):
+    """A named-table entry (a process, a chemistry, an environment) in the trade's words."""
+    return NAME_WORDS.get(name, str(name).replace("-", " "))
+
+
 def connection_words(connection):
     """The trade name of a connection id, e.g. ``"long-shunt differential compound"``.
 
