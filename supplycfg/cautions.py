@@ -46,6 +46,9 @@ def caution(rule, severity, message, basis, **figures):
     return Caution(rule, severity, message, basis, {k: v for k, v in figures.items()})
 
 
+#: Share above the rated voltage past which a no-load voltage is worth a note: a shunt generator's
+#: regulation is about 5-10 % (common practice, from memory).
+NO_LOAD_ABOVE_RATED_FRACTION = 0.10
 #: Share above the rated voltage a machine may work at steadily: IEC 60034-1 voltage zone A, +-5 %
 #: (from memory).
 OVERVOLTAGE_FRACTION = 0.05
@@ -127,6 +130,15 @@ def setting_cautions(machine, setting, f):
                       f"{100 * OVERVOLTAGE_FRACTION:.0f} % of it, or use a machine rated for the job's voltage.",
                       "rating plate; IEC 60034-1 voltage zone A, rated voltage +-5 % (from memory)",
                       max_terminal_voltage_v=vt, rated_voltage_v=machine.rated_voltage_v))
+    vnl = f.get("no_load_voltage_max_v")
+    if vnl is not None and vnl > (1 + NO_LOAD_ABOVE_RATED_FRACTION) * machine.rated_voltage_v:
+        out.append(caution("no-load-high", "note",
+                      f"With the load off the machine gives up to {vnl:.0f} V, "
+                      f"{100 * (vnl / machine.rated_voltage_v - 1):.0f} % above its rated {machine.rated_voltage_v:g} V: "
+                      "the field set for the job runs it high at no load. Keep the no-load run short, and use a "
+                      "voltmeter whose range covers it.",
+                      "a shunt generator's no-load voltage is about 5-10 % above its rated (regulation; common "
+                      "practice, from memory)", no_load_voltage_max_v=vnl, rated_voltage_v=machine.rated_voltage_v))
     top = f.get("top_speed_rpm")
     rated = machine.rated_speed_rpm
     if top is not None and top > rated * (1 + 1e-9):
