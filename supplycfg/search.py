@@ -574,7 +574,7 @@ def _reading_lines(o, kind=""):
     if len(stages) == 2:
         # a two-stage charge: the attendant sets the field twice, each stage where it starts
         for st in stages:
-            lines.append(f"  stage {st['stage']}, {st['name']}: {_num(st['from_h'], '.3g')} to {_num(st['to_h'], '.3g')} h, "
+            lines.append(f"  stage {st['stage']}, {st['name']}: {_num(st['from_h'], '.4g')} to {_num(st['to_h'], '.4g')} h, "
                          f"{_num(st['start_current_a'], '.3g')} to {_num(st['end_current_a'], '.3g')} A; "
                          f"{st['ends_reason']}")
             where = "at the start of charge" if st["stage"] == 1 else "at the hand-over"
@@ -583,7 +583,7 @@ def _reading_lines(o, kind=""):
     else:
         for st in stages:
             # a one-stage charge: its span and why it ends, then the one field setting
-            lines.append(f"  {st['name']}: {_num(st['from_h'], '.3g')} to {_num(st['to_h'], '.3g')} h, "
+            lines.append(f"  {st['name']}: {_num(st['from_h'], '.4g')} to {_num(st['to_h'], '.4g')} h, "
                          f"{_num(st['start_current_a'], '.3g')} to {_num(st['end_current_a'], '.3g')} A; "
                          f"{st['ends_reason']}")
         lines += field_reading_lines(o.readings, o.band, READING_POINT.get(kind, ""))
