@@ -109,7 +109,7 @@ def recommended_card(result, run=None, box=None):
         _table(CHECKLIST_HEADERS[:2], checklist_rows(result, o, run))
         if any(c.severity in ("warn", "note") for c in list(o.cautions) + list(result.cautions)):
             st.caption(md_esc(cautions_pointer(o, result, "under Cautions, further down this page,"))
-                       + " The printable sheet has all of it on its first page.")
+                       + " The printable sheet has the setting, the wiring and these checks on its first page.")
 
 
 # ---------------------------------------------------------------------------
