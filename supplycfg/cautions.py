@@ -54,6 +54,12 @@ NO_LOAD_ABOVE_RATED_FRACTION = 0.10
 OVERVOLTAGE_FRACTION = 0.05
 
 
+def above_rated_words(volts, machine):
+    """``'191 V, 19 % above its rated 160 V'``: a voltage against the machine's rating, in words."""
+    rated = machine.rated_voltage_v
+    return f"{volts:.0f} V, {100 * (volts / rated - 1):.0f} % above its rated {rated:g} V"
+
+
 def setting_cautions(machine, setting, f):
     """Cautions of one setting that hold whatever the job, from its figures ``f``.
 
@@ -124,8 +130,7 @@ def setting_cautions(machine, setting, f):
     vt = f.get("max_terminal_voltage_v")
     if vt is not None and vt > (1 + OVERVOLTAGE_FRACTION) * machine.rated_voltage_v:
         out.append(caution("over-voltage", "warn",
-                      f"At the job's points the machine works at up to {vt:.0f} V, "
-                      f"{100 * (vt / machine.rated_voltage_v - 1):.0f} % above its rated {machine.rated_voltage_v:g} V: "
+                      f"At the job's points the machine works at up to {above_rated_words(vt, machine)}: "
                       "commutation, insulation and the field's heating are rated at the plate voltage. Keep within "
                       f"{100 * OVERVOLTAGE_FRACTION:.0f} % of it, or use a machine rated for the job's voltage.",
                       "rating plate; IEC 60034-1 voltage zone A, rated voltage +-5 % (from memory)",
@@ -133,8 +138,7 @@ def setting_cautions(machine, setting, f):
     vnl = f.get("no_load_voltage_max_v")
     if vnl is not None and vnl > (1 + NO_LOAD_ABOVE_RATED_FRACTION) * machine.rated_voltage_v:
         out.append(caution("no-load-high", "note",
-                      f"With the load off the machine gives up to {vnl:.0f} V, "
-                      f"{100 * (vnl / machine.rated_voltage_v - 1):.0f} % above its rated {machine.rated_voltage_v:g} V: "
+                      f"With the load off the machine gives up to {above_rated_words(vnl, machine)}: "
                       "the field set for the job runs it high at no load. Keep the no-load run short, and use a "
                       "voltmeter whose range covers it.",
                       "a shunt generator's no-load voltage is about 5-10 % above its rated (regulation; common "
