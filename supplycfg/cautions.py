@@ -64,7 +64,9 @@ def setting_cautions(machine, setting, f):
     """Cautions of one setting that hold whatever the job, from its figures ``f``.
 
     Keys read (each optional): ``min_net_mmf_a``, ``min_generated_emf_v``,
-    ``max_armature_current_a``, ``critical_resistance_ratio`` (least
+    ``max_armature_current_a`` (``max_working_armature_current_a``, where
+    given, leaves out a short of a moment such as a stuck electrode for the
+    continuous rating), ``critical_resistance_ratio`` (least
     ``R_crit / R_field`` over the range), ``critical_speed_ratio`` (least
     ``n / n_crit``), ``top_speed_rpm``. The jobs add their own
     (:mod:`supplycfg.jobs`).
@@ -91,6 +93,8 @@ def setting_cautions(machine, setting, f):
                       "At some operating point the generated EMF is reversed: the machine's polarity has turned over.",
                       "circuit model (design note)", min_generated_emf_v=emf))
     ia = f.get("max_armature_current_a")
+    # a short of a moment (a stuck electrode) is held to the short-time limit, not to the continuous rating
+    iw = ia if f.get("max_working_armature_current_a") is None else f["max_working_armature_current_a"]
     if ia is not None:
         if ia > machine.peak_current_a:
             out.append(caution("armature-peak", "stop",
@@ -98,11 +102,11 @@ def setting_cautions(machine, setting, f):
                           f"{machine.peak_current_a:.0f} A: commutation fails (sparking, flashover).",
                           "machine file peak_armature_current_a (default 2 x rated, common practice)",
                           max_armature_current_a=ia, peak_armature_current_a=machine.peak_current_a))
-        elif ia > machine.rated_armature_current_a * (1 + 1e-9):
+        elif iw > machine.rated_armature_current_a * (1 + 1e-9):
             out.append(caution("armature-rating", "warn",
-                          f"Armature current reaches {ia:.0f} A, above its continuous rating "
+                          f"Armature current reaches {iw:.0f} A, above its continuous rating "
                           f"{machine.rated_armature_current_a:.0f} A: limit the time at this load.",
-                          "machine rating plate (continuous rating)", max_armature_current_a=ia))
+                          "machine rating plate (continuous rating)", max_armature_current_a=iw))
     rr, sr = f.get("critical_resistance_ratio"), f.get("critical_speed_ratio")
     below = [v for v in (rr, sr) if v is not None and v < 1]
     near = [v for v in (rr, sr) if v is not None and v < 1 + CRITICAL_CLEARANCE]

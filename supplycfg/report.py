@@ -77,6 +77,7 @@ FIGURE_WORDS = {
     "bank_open_circuit_voltage_start_v": "bank rest voltage at the start",
     "bank_open_circuit_voltage_end_v": "bank rest voltage at the end",
     "max_armature_current_a": "armature current, highest",
+    "max_working_armature_current_a": "armature current while welding, highest (without a stuck electrode)",
     "min_net_mmf_a": "net field as equivalent field current, lowest",
     "max_net_mmf_a": "net field as equivalent field current, highest",
     "min_generated_emf_v": "generated EMF, lowest",

@@ -183,3 +183,16 @@ def test_fleet_gives_no_objective_to_a_machine_that_cannot_do_the_job():
     assert any(r.feasible for r in rows) and any(not r.feasible for r in rows)
     for r in rows:
         assert (r.objective is not None) == r.feasible
+
+
+def test_a_stuck_electrode_is_not_held_to_the_continuous_rating(demo):
+    """A stuck electrode is a short of a moment: it is held to the machine's short-time limit (a limit of the
+    job and the peak stop), not to its continuous rating. While welding, on the dial's rows as set by the
+    field ammeter, the demo's best option carries at most its 180 A top row, inside the 200 A rating: no
+    continuous-rating warning. (Regression: 'Armature current reaches 269 A, above its continuous rating
+    200 A' on the recommended setting, from the stuck-electrode current.)"""
+    o = demo.options[0]
+    assert o.figures["max_armature_current_a"] == pytest.approx(o.figures["stuck_electrode_current_a"])
+    assert o.figures["max_working_armature_current_a"] == pytest.approx(180.0, rel=0.03)
+    assert "armature-rating" not in {c.rule for c in o.cautions}
+    assert o.margins["stuck_electrode_current"]["fraction"] > 0

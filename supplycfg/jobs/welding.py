@@ -770,6 +770,9 @@ def solve(space, advice=True):
             "stuck_electrode_current_a": isc, "duty_equivalent_current_a": np.full(nb, deq),
             "max_armature_current_a": np.fmax(np.fmax(np.fmax(ia_end[:nb], ia_end[nb:]), ia_rows.max(axis=1)),
                                               np.where(np.isnan(isc), 0, isc)),
+            # while welding, on the dial's rows as set by the field ammeter (which holds a row's current cold
+            # as well), not the moment of a stuck electrode: what the continuous rating is held to
+            "max_working_armature_current_a": ia_rows.max(axis=1),
             "min_net_mmf_a": min_x, "max_net_mmf_a": max_x, "min_generated_emf_v": min_e,
             "critical_resistance_ratio": _worst(rr, "min"),
             "tap_changes": changes,
