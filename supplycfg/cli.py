@@ -274,39 +274,31 @@ def _checked(machine, setting):
 
 
 def _drive(args, setting):
-    """The drive of ``--profile`` (None without one), and the setting with a fixed drive's speed."""
+    """``(profile, drive, setting)``: the profile of ``--profile`` and its drive (None and None without
+    one), and the setting with a fixed drive's speed."""
     if not getattr(args, "profile", None):
-        return None, setting
+        return None, None, setting
     from dataclasses import replace
     from .profile import load_profile
-    drive = load_profile(args.profile).drive
+    profile = load_profile(args.profile)
+    drive = profile.drive
     if drive.coupled:
         if setting.speed_rpm is not None:
             raise InputError("command line", "--speed-rpm", f"is given with a profile whose drive is {'an' if drive.kind == 'engine' else 'a'} {drive.kind}: "
                              "its speed follows the load; allowed: omit --speed-rpm")
-        return drive, replace(setting, speed_rpm=drive.generator_speeds_rpm()[0])
+        return profile, drive, replace(setting, speed_rpm=drive.generator_speeds_rpm()[0])
     if setting.speed_rpm is None:
         speeds = drive.generator_speeds_rpm()
         setting = replace(setting, speed_rpm=0.5 * (min(speeds) + max(speeds)))
-    return drive, setting
+    return profile, drive, setting
 
 
-def _welding_profile(args):
-    """The profile of ``--profile`` where it is a welding job (its no-load rules apply), else None."""
-    if not getattr(args, "profile", None):
-        return None
-    from .profile import load_profile
-    p = load_profile(args.profile)
-    return p if p.kind == "welding" else None
-
-
-def _job_no_load_cautions(args, machine, setting, no_load_voltage_v):
-    """A welding profile's no-load checks of the setting given (none for other jobs)."""
-    p = _welding_profile(args)
-    if p is None:
+def _job_no_load_cautions(profile, machine, setting, no_load_voltage_v):
+    """A welding profile's no-load checks of the setting given (none for other jobs or no profile)."""
+    if profile is None or profile.kind != "welding":
         return []
     from .jobs.welding import no_load_cautions
-    return no_load_cautions(machine, p, setting, no_load_voltage_v)
+    return no_load_cautions(machine, profile, setting, no_load_voltage_v)
 
 
 #: Plain words and units of the operating-point keys in text tables.
@@ -388,7 +380,7 @@ def cmd_curve(args, out):
     from .circuit import external_characteristic
     from .machine import load_machine
     m = load_machine(args.machine)
-    drive, st0 = _drive(args, _setting_from(args))
+    prof, drive, st0 = _drive(args, _setting_from(args))
     st = _checked(m, st0)
     c = external_characteristic(m, st, args.points, drive)
     from .jobs import command_cautions
@@ -406,7 +398,7 @@ def cmd_curve(args, out):
              and abs(p["armature_current_a"]) <= m.rated_armature_current_a]
     cautions += drive_overload_cautions(drive, max(power) if power else None,
                                         "up to the machine's rated armature current")
-    cautions += _job_no_load_cautions(args, m, st, c.no_load_voltage_v)
+    cautions += _job_no_load_cautions(prof, m, st, c.no_load_voltage_v)
     res = {"setting": st.as_dict(), "points": pts, "no_load_voltage_v": c.no_load_voltage_v,
            "short_circuit_current_a": c.short_circuit_current_a, "max_load_current_a": c.max_load_current_a,
            "regulation_percent": c.regulation_percent, "extrapolated": c.extrapolated,
@@ -422,7 +414,7 @@ def cmd_curve(args, out):
              + (f" (none: the load current never passes {c.max_load_current_a:.4g} A, so the armature never "
                 f"carries its rated {m.rated_armature_current_a:g} A on this curve)"
                 if c.regulation_percent is None and c.max_load_current_a is not None
-                and max((abs(p["armature_current_a"]) for p in pts), default=0.0) < m.rated_armature_current_a
+                and (peak or 0.0) < m.rated_armature_current_a
                 else ""),
              ""]
     rows = c.point_list()
@@ -479,7 +471,7 @@ def cmd_point(args, out):
                 raise InputError("command line", opt, "is missing; a line load needs --line-v0 and --line-slope-ohm")
         load = Load.line(given["line_v0"], given["line_slope_ohm"])
     m = load_machine(args.machine)
-    drive, st0 = _drive(args, _setting_from(args))
+    prof, drive, st0 = _drive(args, _setting_from(args))
     st = _checked(m, st0)
     ops = operating_points(m, st, load, drive)
     normal = ops.normal
@@ -499,9 +491,9 @@ def cmd_point(args, out):
     cautions = command_cautions(m, st, f, load=kind) + operating_point_cautions(ops)
     if normal is not None:
         cautions += drive_overload_cautions(drive, normal.get("shaft_power_kw"))
-    if _welding_profile(args) is not None:
+    if prof is not None and prof.kind == "welding":
         nl = operating_points(m, st, Load.constant_current(0.0), drive).normal
-        cautions += _job_no_load_cautions(args, m, st, None if nl is None else nl["terminal_voltage_v"])
+        cautions += _job_no_load_cautions(prof, m, st, None if nl is None else nl["terminal_voltage_v"])
     res = {"setting": st.as_dict(), "load": load.label, "operating_points": pts,
            "sits_at": None if normal is None else ops.points.index(normal), "runaway": ops.runaway,
            "message": ops.message, "cautions": [c.as_dict() for c in cautions], "converged": ops.converged}

@@ -260,6 +260,13 @@ class Drive:
         sp = " to ".join(f"{s:g}" for s in self.speeds_rpm)
         return f"fixed speed {sp} rpm{belt}"
 
+    def speed_fall_words(self):
+        """``(what, cure)``: what lets the speed fall under load (an engine's droop, a motor's slip) and
+        the change at the drive that holds it up, in words."""
+        if self.kind == "engine":
+            return "speed droop", "a governor set for less droop (or isochronous)"
+        return "slip", "a motor of less slip"
+
     def short(self):
         """The drive in a few words for the setting card (the job table gives it in full)."""
         belt = "" if self.ratio == 1 else f", belt {self.ratio:g}"

@@ -832,8 +832,8 @@ def checklist_rows(result, option, run=None):
     note = "note the reading"
     polarity = POLARITY_WORDS.get(kind, POLARITY_WORDS[None])
     if kind == "welding":
-        polarity = WELDING_POLARITY_WORDS[(p.welding.process, electrode_of(p))] \
-            if (p.welding.process, electrode_of(p)) in WELDING_POLARITY_WORDS else WELDING_POLARITY_WORDS[electrode_of(p)]
+        e = electrode_of(p)
+        polarity = WELDING_POLARITY_WORDS.get((p.welding.process, e), WELDING_POLARITY_WORDS[e])
     rows = [("Polarity checked with a voltmeter before closing onto the load", polarity)]
     lo, hi = f.get("no_load_voltage_min_v"), f.get("no_load_voltage_max_v")
     nl = _range_text(lo, hi, "V")

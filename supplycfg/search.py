@@ -466,12 +466,11 @@ def drive_limit_check(machine, profile, options):
     need = min(o.figures.get("max_shaft_power_kw") or math.inf for o in big.feasible)
     if need <= drive.rated_power_kw:
         # the rating would carry the load: what the larger drive changes is how far the speed falls
-        fall = "speed droop" if drive.kind == "engine" else "slip"
+        fall, cure = drive.speed_fall_words()
         text = (f"the {drive.kind}'s {fall} limits this job, not its rating: with a larger {drive.kind} of the same "
                 f"figures {len(big.feasible)} setting(s) meet it, the least of them drawing {need:.3g} kW at the "
                 f"shaft, within the {drive.rated_power_kw:g} kW this one has, because the larger one slows less at "
-                f"that load; " + ("a governor set for less droop (or isochronous) may do the same"
-                                  if drive.kind == "engine" else "a motor of less slip may do the same"))
+                f"that load; {cure} may do the same")
         return None, [text]  # no larger rating is needed
     text = (f"the drive limits this job: with a larger {drive.kind} of the same figures "
             f"{len(big.feasible)} setting(s) meet it, the least of them drawing {need:.3g} kW at the shaft against "

@@ -146,9 +146,8 @@ def rating_margin_note(option, drive):
     load = (option.figures or {}).get("max_drive_loading_percent") if option is not None else None
     if load is None or load >= DROOP_BOUND_LOADING_PERCENT or not drive.coupled:
         return RATING_MARGIN_NOTE
-    fall = "speed droop" if drive.kind == "engine" else "slip"
-    cure = ("a governor set for less droop (or isochronous), or a higher speed setting"
-            if drive.kind == "engine" else "a motor of less slip, or a faster pulley ratio")
+    fall, cure = drive.speed_fall_words()
+    cure += ", or a higher speed setting" if drive.kind == "engine" else ", or a faster pulley ratio"
     return (f"at this rating the {drive.kind} is loaded to only {load:.0f} % at the job's heaviest point: its "
             f"rating is not what limits the job but its {fall} (a larger {drive.kind} of the same figures slows "
             f"less at the same load). {cure[0].upper() + cure[1:]} may meet the job with the "

@@ -57,6 +57,8 @@ class Wiring:
         passes them: ``("D1", "D2")`` aiding, ``("D2", "D1")`` opposing.
     steps : tuple of str
         The same circuit in words, one connection a line.
+    electrode : str
+        Welding: the electrode's polarity, ``"+"`` or ``"−"``.
     """
 
     connection: str
@@ -66,6 +68,7 @@ class Wiring:
     series_sense: str | None
     series_terminals: tuple | None
     steps: tuple
+    electrode: str = "+"
 
     def roles(self):
         return [p.role for p in self.parts]
@@ -82,7 +85,7 @@ def _num(v, unit=""):
 
 
 #: Words beside the load on the drawing (short: the drawing is narrow on a phone).
-DRAWN_LOAD_WORDS = {"battery": "battery", "welding": "arc", "lighting": "lamps", "booster": "loads"}
+DRAWN_LOAD_WORDS = {"battery": "battery", "lighting": "lamps", "booster": "loads"}
 LOAD_WORDS = {"battery": "battery", "lighting": "lamps at the far end",
               "booster": "loads at the far end"}
 
@@ -193,13 +196,17 @@ def wiring(machine, setting, kind, electrode="+"):
         steps.append("Booster in the + line between the bus and the feeder; the feeder to the loads at the far end.")
     steps.append("Voltmeter across the machine's line terminals." if kind != "booster"
                  else "Voltmeter across the far end of the feeder.")
-    return Wiring(conn, kind, tuple(parts), across, sense, terms, tuple(steps))
+    return Wiring(conn, kind, tuple(parts), across, sense, terms, tuple(steps), electrode)
 
 
 # ---------------------------------------------------------------------------
 # the drawing
 # ---------------------------------------------------------------------------
 
+#: Size of the drawing's labels, and of its title and brush marks [schemdraw font units]: the drawing is
+#: printed some 80 mm wide beside the setting table, where these come out about 5 pt.
+LABEL_SIZE = 17
+NOTE_SIZE = 16
 #: Height between the + and − lines [drawing units].
 RAIL = 6.0
 #: Spacing of the vertical branches [drawing units].
@@ -226,7 +233,7 @@ def wiring_svg(w, title=None):
     roles = w.roles()
     label = {p.role: p.label for p in w.parts}
     d = schemdraw.Drawing(show=False)
-    d.config(unit=2.0, fontsize=17, font="sans-serif", lw=1.4, margin=0.6)
+    d.config(unit=2.0, fontsize=LABEL_SIZE, font="sans-serif", lw=1.4, margin=0.6)
     top, bot = RAIL, 0.0
     x = 0.0
 
@@ -237,7 +244,7 @@ def wiring_svg(w, title=None):
         for make, text in items:
             e = make().at((x, y)).down().length(seg)
             if text:
-                e = e.label(text, loc="bottom", ofst=0.15, fontsize=17)
+                e = e.label(text, loc="bottom", ofst=0.15, fontsize=LABEL_SIZE)
             d.add(e)
             y -= seg
 
@@ -245,17 +252,17 @@ def wiring_svg(w, title=None):
         """The series field on the + line from x0, diverter above it; returns the end x."""
         a, b = w.series_terminals
         coil = elm.Inductor2(loops=4).at((x0, top)).right().length(STEP)
-        d.add(coil.label(f"{a}      {b}", loc="bottom", ofst=0.1, fontsize=17))
+        d.add(coil.label(f"{a}      {b}", loc="bottom", ofst=0.1, fontsize=LABEL_SIZE))
         # polarity dot at D1: current entering both dotted ends magnetises the same way
         d.add(elm.Dot(radius=0.09).at((x0 + (0.3 if a == "D1" else STEP - 0.3), top + 0.45)))
         y_text = top + 0.95
         if "diverter" in roles:
             d.add(elm.Line().at((x0, top)).up().length(1.2))
-            d.add(elm.ResistorIEC().at((x0, top + 1.2)).right().length(STEP).label("diverter", loc="top", fontsize=17))
+            d.add(elm.ResistorIEC().at((x0, top + 1.2)).right().length(STEP).label("diverter", loc="top", fontsize=LABEL_SIZE))
             d.add(elm.Line().at((x0 + STEP, top + 1.2)).down().length(1.2))
             y_text = top + 2.75
         d.add(elm.Label().at((x0 + STEP / 2, y_text)).label(
-            "series field, " + ("OPPOSING" if w.series_sense == "opposing" else "aiding"), fontsize=17))
+            "series field, " + ("OPPOSING" if w.series_sense == "opposing" else "aiding"), fontsize=LABEL_SIZE))
         return x0 + STEP
 
     def shunt_branch(x):
@@ -274,12 +281,12 @@ def wiring_svg(w, title=None):
         d.add(elm.SourceV().at((x, bot)).up().length(top - bot).label("DC bus", loc="top", ofst=0.2))
         d.add(elm.Line().at((x, top)).right().length(1.0))
         x += 1.0
-        d.add(elm.Source().at((x, top)).right().length(STEP).label("A2 −  booster  A1 +", loc="bottom", fontsize=17))
+        d.add(elm.Source().at((x, top)).right().length(STEP).label("A2 −  booster  A1 +", loc="bottom", fontsize=LABEL_SIZE))
         x += STEP
     else:
-        d.add(elm.Source().at((x, bot)).up().length(top - bot).label("G", loc="center", fontsize=17))
-        d.add(elm.Label().at((x + 0.25, top - 0.9)).label("A1 +", halign="left", fontsize=16))
-        d.add(elm.Label().at((x + 0.25, bot + 0.9)).label("A2 −", halign="left", fontsize=16))
+        d.add(elm.Source().at((x, bot)).up().length(top - bot).label("G", loc="center", fontsize=LABEL_SIZE))
+        d.add(elm.Label().at((x + 0.25, top - 0.9)).label("A1 +", halign="left", fontsize=NOTE_SIZE))
+        d.add(elm.Label().at((x + 0.25, bot + 0.9)).label("A2 −", halign="left", fontsize=NOTE_SIZE))
     if w.shunt_across == "armature":
         x += STEP * 0.8
         d.add(elm.Line().at((0, top)).right().length(x))
@@ -305,13 +312,13 @@ def wiring_svg(w, title=None):
         vertical(x, [(lambda: elm.Line(), None), (lambda: elm.MeterV(), "V"), (lambda: elm.Line(), None)])
     # the line towards the load
     if "cut-out" in roles:
-        d.add(elm.Switch().at((x, top)).right().length(STEP).label("cut-out", loc="top", fontsize=17))
+        d.add(elm.Switch().at((x, top)).right().length(STEP).label("cut-out", loc="top", fontsize=LABEL_SIZE))
         x += STEP
     if "line-ammeter" in roles:
-        d.add(elm.MeterA().at((x, top)).right().length(STEP).label("A", loc="top", fontsize=17))
+        d.add(elm.MeterA().at((x, top)).right().length(STEP).label("A", loc="top", fontsize=LABEL_SIZE))
         x += STEP
     if "feeder" in roles:
-        d.add(elm.ResistorIEC().at((x, top)).right().length(STEP).label("feeder", loc="top", fontsize=17))
+        d.add(elm.ResistorIEC().at((x, top)).right().length(STEP).label("feeder", loc="top", fontsize=LABEL_SIZE))
         x += STEP
     tail = 2.6 if w.kind == "booster" else 1.0
     d.add(elm.Line().at((x, top)).right().length(tail))
@@ -324,13 +331,11 @@ def wiring_svg(w, title=None):
         load = elm.Lamp().at((x, top)).down().length(top - bot)
     else:
         load = elm.ResistorIEC().at((x, top)).down().length(top - bot)
-    drawn = DRAWN_LOAD_WORDS[w.kind]
-    if w.kind == "welding":
-        drawn = next((v[1] for v in WELDING_LEADS.values() if any(p.label == v[0] for p in w.parts)), drawn)
-    d.add(load.label(drawn, loc="bottom", ofst=0.2, fontsize=17))
+    drawn = WELDING_LEADS[w.electrode][1] if w.kind == "welding" else DRAWN_LOAD_WORDS[w.kind]
+    d.add(load.label(drawn, loc="bottom", ofst=0.2, fontsize=LABEL_SIZE))
     if w.kind == "booster":
         d.add(elm.Dot().at((x - 1.8, top)))
-        d.add(elm.MeterV().at((x - 1.8, top)).down().length(top - bot).label("V", loc="top", fontsize=17))
+        d.add(elm.MeterV().at((x - 1.8, top)).down().length(top - bot).label("V", loc="top", fontsize=LABEL_SIZE))
         d.add(elm.Dot().at((x - 1.8, bot)))
     d.add(elm.Line().at((x, bot)).to((0, bot)))
     # the separately excited field, on its own circuit beside the machine
@@ -338,22 +343,22 @@ def wiring_svg(w, title=None):
         y0, y1 = top - 0.8, bot + 0.8
         xs = -1.4 - STEP * (2 if "rheostat" in roles else 1) - 0.6
         d.add(elm.SourceV().at((xs, y1)).up().length(y0 - y1).label(label.get("exciter", "field supply"),
-                                                                    loc="bottom", ofst=0.3, fontsize=17))
+                                                                    loc="bottom", ofst=0.3, fontsize=LABEL_SIZE))
         xx = xs
-        d.add(elm.MeterA().at((xx, y0)).right().length(STEP).label("field A", loc="top", fontsize=17))
+        d.add(elm.MeterA().at((xx, y0)).right().length(STEP).label("field A", loc="top", fontsize=LABEL_SIZE))
         xx += STEP
         if "rheostat" in roles:
-            d.add(elm.ResistorVarIEC().at((xx, y0)).right().length(STEP).label("rheostat", loc="top", fontsize=17))
+            d.add(elm.ResistorVarIEC().at((xx, y0)).right().length(STEP).label("rheostat", loc="top", fontsize=LABEL_SIZE))
             xx += STEP
         d.add(elm.Line().at((xx, y0)).right().length(0.6))
         xx += 0.6
-        d.add(elm.Inductor2(loops=3).at((xx, y0)).down().length(y0 - y1).label("E1–E2", loc="top", fontsize=17))
+        d.add(elm.Inductor2(loops=3).at((xx, y0)).down().length(y0 - y1).label("E1–E2", loc="top", fontsize=LABEL_SIZE))
         d.add(elm.Dot(radius=0.09).at((xx - 0.45, y0 - 0.3)))
         d.add(elm.Line().at((xx, y1)).to((xs, y1)))
     left = -1.4 - STEP * (2 if "rheostat" in roles else 1) - 0.6 if w.shunt_across == "exciter" else -1.0
     d.add(elm.Label().at((left, top + (3.75 if "diverter" in roles else 2.0))).label(
         title if title is not None else connection_words(w.connection)
-        + (" booster in the feeder" if w.kind == "booster" else ""), halign="left", fontsize=16))
+        + (" booster in the feeder" if w.kind == "booster" else ""), halign="left", fontsize=NOTE_SIZE))
     svg = d.get_imagedata("svg")
     svg = svg.decode("utf-8") if isinstance(svg, bytes) else svg
     start = svg.find("<svg")

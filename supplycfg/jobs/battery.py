@@ -1415,6 +1415,15 @@ def charge_plan(space, base_idx=None, u1=None, u2=None, main_from=None):
     elif main_from is None:
         handed, s_ho = _handover(space, rows_base, rows_corner, u1[pos], job)
         main = _stage(space, rows_base, rows_corner, u1[pos], np.full(nr, s0), s_ho)
+
+        def resolve_main(redo):
+            """Hand-over and main charge again for rows ``redo``, whose base's field ``u1`` changed."""
+            h2, s2 = _handover(space, rows_base[redo], rows_corner[redo], u1[pos][redo], job)
+            part = _stage(space, rows_base[redo], rows_corner[redo], u1[pos][redo], np.full(redo.size, s0), s2)
+            handed[redo], s_ho[redo] = h2, s2
+            for f in _STAGE_FIELDS:
+                getattr(main, f)[redo] = getattr(part, f)
+
         if aim_start:
             # where the current rises along the charge (a rising characteristic, a cold bank), aim the
             # field at the target current where the peak lies, not at the start: one re-aim suffices
@@ -1423,12 +1432,7 @@ def charge_plan(space, base_idx=None, u1=None, u2=None, main_from=None):
             changed = np.flatnonzero(np.isfinite(u_peak) & (u_peak != u1))
             if changed.size:
                 u1 = np.where(np.isfinite(u_peak), u_peak, u1)
-                redo = np.flatnonzero(np.isin(pos, changed))
-                h2, s2 = _handover(space, rows_base[redo], rows_corner[redo], u1[pos][redo], job)
-                part = _stage(space, rows_base[redo], rows_corner[redo], u1[pos][redo], np.full(redo.size, s0), s2)
-                handed[redo], s_ho[redo] = h2, s2
-                for f in _STAGE_FIELDS:
-                    getattr(main, f)[redo] = getattr(part, f)
+                resolve_main(np.flatnonzero(np.isin(pos, changed)))
         # a bank already at the hand-over voltage when the charge starts (a nearly full one) gets no
         # main charge: the whole charge runs on the finish's field (common practice)
         at_start = np.zeros(base_idx.size, bool)
@@ -1436,12 +1440,7 @@ def charge_plan(space, base_idx=None, u1=None, u2=None, main_from=None):
         if at_start.any():
             u_fin = finish_controls(space, base_idx, u1, pos, rows_corner, handed & at_start[pos], s_ho)
             u1 = np.where(at_start, u_fin, u1)
-            redo = np.flatnonzero(at_start[pos])
-            h2, s2 = _handover(space, rows_base[redo], rows_corner[redo], u1[pos][redo], job)
-            part = _stage(space, rows_base[redo], rows_corner[redo], u1[pos][redo], np.full(redo.size, s0), s2)
-            handed[redo], s_ho[redo] = h2, s2
-            for f in _STAGE_FIELDS:
-                getattr(main, f)[redo] = getattr(part, f)
+            resolve_main(np.flatnonzero(at_start[pos]))
     else:
         at = {int(b): k for k, b in enumerate(main_from.base_idx)}
         rows = np.array([at[int(b)] * nc + c for b, c in zip(rows_base, rows_corner)], int)
