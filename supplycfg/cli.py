@@ -12,7 +12,7 @@ import os
 import re
 import sys
 from pathlib import Path
-from dataclasses import replace
+from dataclasses import dataclass, replace
 
 from . import __version__, STANDING_NOTICE
 from .errors import InputError
@@ -673,7 +673,12 @@ def cmd_fleet(args, out):
     from .fleet import fleet_search, fleet_text
     from .profile import load_profile
     res = fleet_search(args.folder, load_profile(args.profile), args.workers)
-    return res.as_dict() if args.json else fleet_text(res)
+    shown = res.as_dict() if args.json else fleet_text(res)
+    if res.machines and all(r.error is not None for r in res.machines):
+        # no answer to the question asked: the rows (each file's error) are printed, and the exit says so
+        return Refused(shown, InputError(str(args.folder), "folder",
+                                         "no machine file in it could be read; each row above says why"))
+    return shown
 
 
 def cmd_cell(args, out):
@@ -722,6 +727,14 @@ def cmd_page(args, out):
     return subprocess.call(argv)
 
 
+@dataclass
+class Refused:
+    """A command's output that is printed in full, then refused with one line on standard error (exit 2)."""
+
+    output: object
+    error: InputError
+
+
 COMMANDS = {"curve": cmd_curve, "point": cmd_point, "buildup": cmd_buildup, "emf": cmd_emf,
             "search": cmd_search, "size": cmd_size, "charge": cmd_charge, "sheet": cmd_sheet, "fleet": cmd_fleet,
             "cell": cmd_cell, "bench": cmd_bench, "page": cmd_page}
@@ -738,6 +751,8 @@ def main(argv=None):
                   f"{', '.join(COMMANDS)} (supplycfg --help says more)", file=sys.stderr)
             return 2
         res = COMMANDS[args.command](args, out)
+        refused = res.error if isinstance(res, Refused) else None
+        res = res.output if isinstance(res, Refused) else res
         if isinstance(res, int):
             return res
         if isinstance(res, str):
@@ -746,6 +761,10 @@ def main(argv=None):
             print(dumps_json(res), file=out)
         if args.command in ("curve", "point", "buildup", "search", "size", "charge", "fleet") and isinstance(res, str):
             print(f"\n{STANDING_NOTICE}", file=out)
+        if refused is not None:
+            out.flush()
+            print(f"supplycfg: {refused}", file=sys.stderr)
+            return 2
         return 0
     except InputError as exc:
         print(f"supplycfg: {exc}", file=sys.stderr)

@@ -118,3 +118,17 @@ def test_fleet_row_says_what_a_larger_drive_must_give_where_the_drive_limits_the
     d["drive"]["rated_power_kw"] = 2 * row.drive_needed_kw
     roomy = fleet_search(tmp_path, profile_from_dict(d, "larger motor"), workers=1).machines[0]
     assert roomy.feasible and roomy.drive_needed_kw is None
+
+
+def test_fleet_of_only_broken_files_prints_every_row_and_exits_2(tmp_path, capsys):
+    """A folder whose every machine file is broken answers nothing: each file's error row is still
+    printed (nothing lost) and the exit code is 2 with one line saying so (the project's error rule)."""
+    (tmp_path / "a.toml").write_text("x = [\n", encoding="utf-8")
+    (tmp_path / "b.toml").write_text("y = 1\n", encoding="utf-8")
+    assert main(["fleet", str(tmp_path), str(WELDING), "--workers", "1"]) == 2
+    cap = capsys.readouterr()
+    assert "a.toml" in cap.out and "b.toml" in cap.out
+    assert cap.err.count("\n") == 1 and "no machine file in it could be read" in cap.err
+    assert main(["fleet", str(tmp_path), str(WELDING), "--workers", "1", "--json"]) == 2
+    cap = capsys.readouterr()
+    assert [m["error"] is not None for m in json.loads(cap.out)["machines"]] == [True, True]
