@@ -431,9 +431,14 @@ def _too_long(v):
     return v.bit_length() > 1023
 
 
+def _plain(x):
+    # a bound such as 1e-06 ohm reads as program notation to a technician: write it out
+    return f"{x:g}" if x == 0 or 1e-4 <= abs(x) < 1e15 else f"{x:.15f}".rstrip("0") if abs(x) < 1 else f"{x:g}"
+
+
 def _bounds(low, high, low_open, high_open):
-    lo = "" if low is None else (f"> {low:g}" if low_open else f">= {low:g}")
-    hi = "" if high is None else (f"< {high:g}" if high_open else f"<= {high:g}")
+    lo = "" if low is None else (f"> {_plain(low)}" if low_open else f">= {_plain(low)}")
+    hi = "" if high is None else (f"< {_plain(high)}" if high_open else f"<= {_plain(high)}")
     return " and ".join(s for s in (lo, hi) if s) or "within the float range"
 
 

@@ -531,3 +531,14 @@ def test_random_tomlish_text_raises_only_input_error(reader, content):
 def test_mutated_demo_files_raise_only_input_error(reader, data):
     """Project rule: a demo file with a few lines broken loads or raises only InputError."""
     _only_input_error(reader, data.draw(_mutated_good_file(_GOOD[reader])))
+
+
+def test_small_bounds_are_written_out_not_in_program_notation(tmp_path):
+    """A negative armature resistance is refused with its bound written as a technician reads it
+    ('>= 0.000001'), not '1e-06' (found by a reviewer on the page's form)."""
+    text = GOOD_MACHINE.read_text(encoding="utf-8").replace("armature_resistance_ohm = 0.22 ",
+                                                            "armature_resistance_ohm = -0.22 ")
+    with pytest.raises(InputError) as e:
+        load_machine("m.toml", text)
+    msg = str(e.value)
+    assert "machine.armature_resistance_ohm" in msg and ">= 0.000001 and <= 10000" in msg and "e-0" not in msg
