@@ -318,7 +318,8 @@ def drive_cautions(machine, drive, f):
                       (f"The {drive.kind} is driven faster than at no load: up to {hi_:.0f} rpm at the generator "
                        f"against {top:.0f} rpm with no load, the machine running as a motor at some point of the job"
                        if driven else
-                       f"The {drive.kind} slows with load: about {top:.0f} rpm at the generator with no load, down to "
+                       f"The {drive.kind} slows with load: about {f.get('no_load_speed_rpm', top):.0f} rpm at the "
+                       "generator with the load off, down to "
                        f"{lo:.0f} rpm at the heaviest point of the job")
                       + (f" ({kw:.3g} kW at the shaft)" if kw is not None else "")
                       + f". Every figure is at the speed the drive {'settles at' if driven else 'falls to'}; check it with a "

@@ -514,3 +514,17 @@ def test_broken_limits_read_forwards():
     assert "carries a stop caution" in text and "no stop caution" not in text
     assert "no stop caution" not in report.status_text(stopped[0])
     assert "no stop caution" not in search_text(res)
+
+
+def test_drive_speed_caution_and_checklist_give_the_same_no_load_speed(tmp_path):
+    """The checklist's 'load off' tachometer reading and the drive caution's speed 'with the load off'
+    are one figure (a reviewer found 1445 rpm in one and 1448 rpm, the drive with nothing on its shaft,
+    in the other)."""
+    import re
+    from supplycfg.report import sheet_from_files
+    out = sheet_from_files(DEMO / "machines" / "charging-set.toml",
+                           DEMO / "loads" / "battery-charging.toml", tmp_path / "s.md", None, True)
+    text = Path(out).read_text(encoding="utf-8")
+    row = re.search(r"Drive speed on the tachometer \(generator shaft\), load off \| about (\d+) rpm", text)
+    note = re.search(r"slows with load: about (\d+) rpm at the generator with the load off", text)
+    assert row and note and row.group(1) == note.group(1)
