@@ -441,10 +441,21 @@ def solve_weld_control(space, base_idx, corner_idx, target_a):
 CURRENT_SCAN_TOP_SHARE = 1.0
 
 
-def _weld_current(space, base_idx, u, corner_idx=None):
-    """Welding current on the line at every corner (or one), the machine's normal point."""
+def _weld_current(space, base_idx, u, corner_idx=None, field_set_at=None):
+    """Welding current on the line at every corner (or one), the machine's normal point.
+
+    With ``field_set_at`` (a corner) a separately excited field carries at every
+    corner the current it has at that corner: the dial is set by the field
+    ammeter, whatever the winding temperature, not by the rheostat's ohms.
+    """
     job = space.profile.welding
     sub, rows = expand_candidates(space, base_idx, u, corner_idx)
+    if field_set_at is not None:
+        base_idx = np.asarray(base_idx, int)
+        ref, _ = expand_candidates(space, base_idx, u, np.full(base_idx.size, field_set_at))
+        x_ref = ref.x0 if corner_idx is not None else np.repeat(ref.x0, space.nc)
+        # (subset changes only the separately excited rows)
+        sub = sub.subset(np.arange(sub.n), field_current_a=x_ref)
     # (the conventional load line and the leads: the voltage never falls as the current rises)
     r = normal_points(sub, np.zeros(sub.n), np.full(sub.n, sub.imax),
                       v_of=lambda t, rows=None: welding_line_voltage_v(job, t), alike=True,
@@ -724,7 +735,7 @@ def solve(space, advice=True):
     lim["duty_cycle_heating"] = (np.full(nb, deq), m.rated_armature_current_a, "max", "A")
     # the two ends at every corner: the current's spread and the machine's figures
     ends = np.concatenate([pidx[:, 0], pidx[:, -1]])
-    r_end, sub_end = _weld_current(space, bi[ends], u_all[ends])
+    r_end, sub_end = _weld_current(space, bi[ends], u_all[ends], field_set_at=nom)
     evaluated += ends.size * space.nc
     nc = space.nc
     # the drive at the two ends of each dial, every corner (at the speed the drive falls to)
