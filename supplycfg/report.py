@@ -1237,11 +1237,13 @@ table.compact td { white-space: nowrap; }
 .halves { display: grid; grid-template-columns: minmax(0, 1fr) minmax(0, 1fr); gap: .5rem; align-items: start; }
 .wiring { margin: 0; text-align: center; }
 .wiring svg { width: 100%; height: auto; max-height: 62mm; }
+.wiring.large svg { max-height: 110mm; }
+.steps { font-size: .9rem; margin: .3rem 0 .6rem; padding-left: 1.4rem; }
 @media screen and (max-width: 700px) { .top, .halves { grid-template-columns: minmax(0, 1fr); } }
 #checklist td:nth-child(3) { width: 15%; }
 #checklist td:nth-child(4) { width: 8%; }
 #checklist td { height: 1.35rem; }
-.pointer { font-weight: bold; margin: .4rem 0; }
+.pointer { font-weight: bold; }
 .caution { border-left: 6px solid #5c6b7a; padding: .3rem .6rem; margin: .4rem 0; background: #f6f7f9; }
 .caution.stop { border-left-color: #a4372a; background: #fbeeec; }
 .caution.warn { border-left-color: #9a5a12; background: #fdf5ec; }
@@ -1251,16 +1253,17 @@ table.compact td { white-space: nowrap; }
 .chart { margin: .8rem 0; break-inside: avoid; page-break-inside: avoid; }
 .chart svg { max-width: 100%; height: auto; }
 .notice { margin-top: 1.2rem; padding: .5rem .7rem; border: 2px solid #1f4e79; font-weight: bold; }
-.notice.small { margin-top: .5rem; padding: .3rem .5rem; font-size: .8rem; }
+.notice.small { margin-top: .4rem; padding: .25rem .5rem; font-size: .8rem; font-weight: normal; }
 .later { break-before: page; page-break-before: always; }
 dl.glossary dt { font-weight: bold; } dl.glossary dd { margin: 0 0 .3rem 1rem; }
-@page { size: A4; margin: 12mm; }
+@page { size: A4; margin: 8mm 12mm; }
 @media print {
   body { max-width: none; padding: 0; font-size: 9.5pt; }
   .first table { font-size: 8pt; }
   .first th, .first td { padding: .12rem .35rem; }
   #checklist td { height: 1.1rem; }
-  .first h2 { margin: .6rem 0 .25rem; }
+  .first h2 { margin: .45rem 0 .2rem; }
+  .first .notice { break-inside: avoid; page-break-inside: avoid; }
   h2 { break-after: avoid; page-break-after: avoid; }
   table, .caution, .card, .wiring { break-inside: avoid; page-break-inside: avoid; }
 }
@@ -1412,11 +1415,19 @@ def sheet_html(result, rank=None, run=None, date=None, charts=True, svgs=None):
              f"<b>Made by:</b> supplycfg {esc(__version__)} on {esc(_date(date))}</p>"]
     if stops:
         parts += ["<h2>STOP: do not use this setting as it stands</h2>", _html_cautions(stops)]
-    parts.append(card_html(result, o, run, wiring_svg_for(result, o)))
+    from .wiring import wiring
+    svg = wiring_svg_for(result, o)
+    parts.append(card_html(result, o, run, svg))
     parts += ["<h2>Check at the machine</h2>", checklist_html(result, o, run),
-              f'<p class="pointer">{esc(cautions_pointer(o, result))}</p>',
-              f'<p class="notice small">{esc(STANDING_NOTICE)}</p>', "</section>"]
+              # the pointer and the notice in one box: page 1 of a battery sheet has room for no more
+              f'<p class="notice small"><span class="pointer">{esc(cautions_pointer(o, result))}</span> '
+              f'{esc(STANDING_NOTICE)}</p>', "</section>"]
     parts.append('<section class="later">')
+    # the card's drawing prints small beside the setting: here at full width, with the steps in words
+    steps = wiring(m, o.setting, p.kind, electrode_of(p)).steps
+    parts += ["<h2>Wiring</h2>",
+              f'<div class="wiring large" role="img" aria-label="Wiring of the chosen connection, full width">{svg}</div>',
+              '<ol class="steps">' + "".join(f"<li>{esc(st)}</li>" for st in steps) + "</ol>"]
     if dial_rows(o):
         parts += ["<h2>Welding dial in full</h2>", _html_table(DIAL_HEADERS, dial_rows(o), "dial", numeric=(0, 1))]
     if plan_table(o):

@@ -359,6 +359,8 @@ def test_printed_page_one_of_each_demo_sheet_as_it_stands(results, kind, tmp_pat
     for check, _ in report.checklist_rows(res, res.options[0]):
         assert " ".join(check.split()[:3]) in text, check
     assert "What to expect" not in text
+    # (regression: the battery sheet's standing notice went alone to page 2, a page for two lines)
+    assert "they come first." in text and report.cautions_pointer(res.options[0], res) in text
 
 
 @pytest.mark.parametrize("kind", list(PAIRS))
@@ -528,3 +530,17 @@ def test_drive_speed_caution_and_checklist_give_the_same_no_load_speed(tmp_path)
     row = re.search(r"Drive speed on the tachometer \(generator shaft\), load off \| about (\d+) rpm", text)
     note = re.search(r"slows with load: about (\d+) rpm at the generator with the load off", text)
     assert row and note and row.group(1) == note.group(1)
+
+
+def test_html_sheet_gives_the_wiring_full_width_with_its_steps_after_page_one(results):
+    """The card's drawing prints small beside the setting (labels of about 5 pt, found by a reviewer);
+    the later pages repeat it full width with the wiring steps in words, which the Markdown sheet had and
+    the HTML sheet lacked."""
+    from supplycfg.wiring import wiring
+    res = results["battery"]
+    o = res.options[0]
+    html = report.sheet_html(res, charts=False, date="2031-05-04")
+    later = html.split('<section class="later">', 1)[1]
+    assert '<div class="wiring large"' in later and "<svg" in later.split("<h2>Wiring</h2>", 1)[1][:400]
+    for step in wiring(res.machine, o.setting, res.profile.kind).steps:
+        assert f"<li>{report.esc(step)}</li>" in later
