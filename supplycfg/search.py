@@ -41,13 +41,17 @@ def margin_steps(smallest_margin):
     """The least margin in whole steps of :data:`MARGIN_STEP_FRACTION` (the ranking compares these)."""
     return round(smallest_margin / MARGIN_STEP_FRACTION) if math.isfinite(smallest_margin) else -math.inf
 
+#: Limits that bound one quantity, by the requirement they make up (each job's ``LIMIT_GROUPS``).
+LIMIT_REQUIREMENTS = {k: v for job in JOBS.values() for k, v in getattr(job, "LIMIT_GROUPS", {}).items()}
+
 #: The words of the ranking rule; ``{objective}`` is the job's objective label.
 RANKING_RULE = (
     "Ranking: options that meet every limit first, by {objective}; objectives within 2 % of each other "
     "tie, and a tie goes to the simpler rig (no diverter, fewer series turns in circuit, no exciter needed), "
     "then to the larger least margin (counted in steps of 0.1 % of its limit), then to the better objective. "
-    "Then the options without a stop caution, by the number of limits "
-    "broken and then by the worst breach as a share of its limit; among them those that need an exciter the "
+    "Then the options without a stop caution, by the number of requirements "
+    "broken (the two ends of one band, or two limits on one voltage, count once) and then by the worst breach "
+    "as a share of its limit; among them those that need an exciter the "
     "machine lacks (a change to the plant, not a setting) after the others. Options with a stop caution come "
     "last, marked not usable. Options with the same figures are listed once.")
 #: What "least margin" means wherever it is printed.
@@ -103,6 +107,12 @@ class Option:
     def limits_broken(self):
         """Names of the job's limits this option breaks (the stop caution not counted)."""
         return [n for n in self.failed if n != "stop_caution"]
+
+    @property
+    def requirements_broken(self):
+        """What the job asks that this option does not give: its broken limits, with the limits that
+        bound one quantity (:data:`LIMIT_REQUIREMENTS`: the two ends of a voltage band) counted once."""
+        return sorted({LIMIT_REQUIREMENTS.get(n, n) for n in self.limits_broken})
 
     @property
     def worst_breach(self):
@@ -300,7 +310,7 @@ def rank_options(options, tie=OBJECTIVE_TIE_FRACTION):
     Feasible options by the job's objective (None last), ties within
     ``tie`` of the first of each group broken by the simpler rig and then by
     the larger least margin; then the options without a stop caution by the
-    number of limits broken and the worst breach (those needing an exciter the
+    number of requirements broken and the worst breach (those needing an exciter the
     machine lacks after the others); then those with one.
     """
     def stable(o):
@@ -322,7 +332,7 @@ def rank_options(options, tie=OBJECTIVE_TIE_FRACTION):
                                             o.objective if o.objective is not None else 0.0, stable(o)))
 
     def miss_key(o):
-        return (o.needs_missing_exciter, len(o.limits_broken), -o.worst_breach, stable(o))
+        return (o.needs_missing_exciter, len(o.requirements_broken), -o.worst_breach, stable(o))
 
     ordered += sorted((o for o in options if not o.feasible and o.usable), key=miss_key)
     ordered += sorted((o for o in options if not o.feasible and not o.usable), key=miss_key)

@@ -598,7 +598,7 @@ def test_ranking_rule_properties(specs):
             assert feas[j + 1].objective > anchor.objective
         i = j + 1
     for g in (1, 2):
-        keys = [(len(o.limits_broken), -o.worst_breach) for o, k in zip(ranked, group) if k == g]
+        keys = [(len(o.requirements_broken), -o.worst_breach) for o, k in zip(ranked, group) if k == g]
         assert keys == sorted(keys)
 
 

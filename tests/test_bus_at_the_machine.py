@@ -202,3 +202,25 @@ def test_booster_past_the_knee_of_its_curve_is_noted():
     straight = np.max(np.diff(es) / np.diff(xs))
     assert c.figures["slope_share"] == pytest.approx(slope / straight, rel=1e-6)
     assert c.figures["slope_share"] < 0.75
+
+
+def test_a_near_miss_off_both_ends_of_the_band_breaks_one_requirement_not_two():
+    """Regression (newcomer review): a cumulative setting 4 % outside the band at both ends ranked below a
+    differential one that leaves the lamps 42 % low, because the band's two ends counted as two broken
+    limits. The band is one requirement; the worst breach then decides (common practice: the nearest
+    miss is the one with the smallest voltage error)."""
+    from supplycfg.circuit import Setting
+    from supplycfg.search import Option, rank_options
+
+    def miss(conn, fracs):
+        s = Setting(conn, rheostat_ohm=90.0, series_turns=6.0, speed_rpm=1500.0, winding_temperature_c=75.0)
+        margins = {n: {"fraction": f} for n, f in fracs.items()}
+        failed = [n for n, f in fracs.items() if f < 0]
+        return Option(0, False, s, {}, margins, failed, [], min(fracs.values()))
+
+    both = miss("short-shunt-cumulative", {"load_voltage_high": -0.03, "load_voltage_low": -0.042,
+                                           "armature_current_rating": 0.2})
+    low = miss("separate-differential", {"load_voltage_high": 0.02, "load_voltage_low": -0.42,
+                                         "armature_current_rating": 0.2})
+    assert both.requirements_broken == low.requirements_broken == ["load_voltage_band"]
+    assert rank_options([low, both])[0] is both

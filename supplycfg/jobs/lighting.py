@@ -255,6 +255,9 @@ OBJECTIVE_LABEL = ("the widest margin of the load-end voltage inside its band (t
                    "that margin, as a fraction of the band's end)")
 #: The objective as a table shows it: words, unit and the factor from the objective's value
 #: (minus a fraction: the load-end voltage's margin inside its band in per cent).
+#: Limits that bound one quantity, by the requirement they make up: a near miss that leaves the band at both
+#: ends breaks one requirement, not two (the ranking counts requirements).
+LIMIT_GROUPS = {"load_voltage_high": "load_voltage_band", "load_voltage_low": "load_voltage_band"}
 OBJECTIVE_SHOWN = ("load-end voltage's margin inside its band", "%", -100.0)
 
 

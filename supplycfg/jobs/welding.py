@@ -693,6 +693,11 @@ def _row_field(space, base_idx, u, voltages=False):
 DRIVE_FREE_LIMITS = ("duty_cycle_heating",)
 
 
+#: Limits that bound one quantity, by the requirement they make up: the no-load voltage's mean and peak
+#: (the peak follows from the mean) are one limit on one voltage (the ranking counts requirements).
+LIMIT_GROUPS = {"no_load_mean_voltage": "no_load_voltage_limit", "no_load_peak_voltage": "no_load_voltage_limit"}
+
+
 def solve(space, advice=True):
     """The welding dial of every option, its limits and figures.
 
