@@ -2362,6 +2362,28 @@ class SelfExcitation:
                    if self.no_load_voltage_v is not None and p["terminal_voltage_v"] == self.no_load_voltage_v)
 
 
+def critical_field_resistance_ohm(circ, s=None):
+    """Critical resistance of the shunt field circuit [ohm] of every row (NaN where not self-excited).
+
+    The air-gap line's slope at the row's speed ratio ``s`` (default its
+    own); in a long shunt the series field carries the shunt current at no
+    load, so the build-up sees ``Nsh Ish (1 + c)``: a cumulative winding
+    raises the critical resistance, a differential one lowers it (``c`` is
+    the series field per branch ampere, diverter share and sense included).
+    The armature's own few tenths of an ohm in the field loop are left out, as
+    the textbook statement leaves them.
+
+    References
+    ----------
+    Critical field resistance as the slope of the air-gap line: Theraja Vol II
+    ch. 28 (from memory); the series field's share in a long shunt from the
+    same mmf balance.
+    """
+    s = circ.s if s is None else s
+    aid = 1.0 + np.where(circ.branch == 1, circ.c, 0.0)
+    return np.where(circ.kind == 1, s * circ.occ.air_gap_slope() * aid, np.nan)
+
+
 def self_excitation(machine, rheostat_ohm=None, speed_rpm=None, winding_temperature_c=None):
     """Whether the shunt field builds up, and the voltages it reaches.
 

@@ -309,6 +309,16 @@ POINT_WORDS = {"load_current_a": "load current [A]", "terminal_voltage_v": "term
                "speed_rpm": "speed [rpm]", "shaft_power_kw": "shaft power [kW]", "efficiency": "efficiency"}
 
 
+def point_columns(connection, columns):
+    """The point table's ``columns`` for a connection, less a field it does not have (a series machine
+    has no shunt field; a plain shunt or separately excited one no series field in circuit)."""
+    from .circuit import USES_SERIES
+    gone = {"shunt_field_current_a"} if connection == "series" else set()
+    if connection not in USES_SERIES:
+        gone.add("series_field_current_a")
+    return [c for c in columns if c not in gone]
+
+
 def point_words(connection):
     """:data:`POINT_WORDS` for a connection: the field column names the field it has (separate or shunt)."""
     from .wording import field_words
@@ -317,13 +327,11 @@ def point_words(connection):
 
 def _critical_ratio(machine, st):
     """R_crit / R_field of a self-excited setting at its speed and temperature (None otherwise)."""
-    from .circuit import SELF_EXCITED
-    from .readings import field_resistance_ohm
+    from .circuit import SELF_EXCITED, build_circuit, critical_field_resistance_ohm
     if st.connection not in SELF_EXCITED or st.rheostat_ohm is None:
         return None
-    slope = machine.open_circuit_curve.air_gap_slope()
-    rf = field_resistance_ohm(machine, st.winding_temperature_c) + st.rheostat_ohm
-    return float(slope * st.speed_rpm / machine.occ_speed_rpm / rf)
+    circ = build_circuit(machine, [st])
+    return float(critical_field_resistance_ohm(circ)[0] / circ.rf[0])
 
 
 def _setting_figures(machine, st):
@@ -420,9 +428,10 @@ def cmd_curve(args, out):
     rows = c.point_list()
     if drive is not None:
         lines.insert(1, f"drive: {drive.describe()}")
-    lines.append(table(rows, ["load_current_a", "terminal_voltage_v", "armature_current_a", "shunt_field_current_a",
-                              "series_field_current_a", "generated_emf_v", "speed_rpm", "shaft_power_kw",
-                              "efficiency", "extrapolated"], names=point_words(st.connection)))
+    lines.append(table(rows, point_columns(st.connection, [
+        "load_current_a", "terminal_voltage_v", "armature_current_a", "shunt_field_current_a",
+        "series_field_current_a", "generated_emf_v", "speed_rpm", "shaft_power_kw", "efficiency", "extrapolated"]),
+        names=point_words(st.connection)))
     lines += _notes(c.notes, c.extrapolated, c.converged)
     lines += _caution_lines(cautions)
     return "\n".join(lines)
@@ -501,9 +510,10 @@ def cmd_point(args, out):
         return res
     lines = [f"{_name(m, args)}: {connection_words(st.connection)}, {st.describe()}; load: {load.label}", ""]
     if pts:
-        lines.append(table(pts, ["terminal_voltage_v", "load_current_a", "armature_current_a", "shunt_field_current_a",
-                                 "series_field_current_a", "generated_emf_v", "speed_rpm", "shaft_power_kw",
-                                 "efficiency", "extrapolated", "state"], names=point_words(st.connection)))
+        lines.append(table(pts, point_columns(st.connection, [
+            "terminal_voltage_v", "load_current_a", "armature_current_a", "shunt_field_current_a",
+            "series_field_current_a", "generated_emf_v", "speed_rpm", "shaft_power_kw", "efficiency", "extrapolated",
+            "state"]), names=point_words(st.connection)))
         lines.append("")
     if normal is not None:
         lines.append("The machine sits at the highest stable point of normal polarity; the others are listed, not used.")
@@ -512,12 +522,13 @@ def cmd_point(args, out):
         lines.append("The battery here is a fixed EMF behind a resistance; search and charge use the chemistry's "
                      "cell model, whose voltage on charge lies above its rest voltage (give that voltage as the EMF "
                      "to compare).")
-    elif ops.runaway:
-        lines.append(f"no operating point the machine sits at: {ops.message}")
-    elif pts:
-        lines.append("no stable operating point of normal polarity on this load")
-    else:
-        lines.append("no operating point: the characteristic does not meet this load")
+    if normal is None:
+        if ops.runaway:
+            lines.append(f"no operating point the machine sits at: {ops.message}")
+        elif pts:
+            lines.append("no stable operating point of normal polarity on this load")
+        else:
+            lines.append("no operating point: the characteristic does not meet this load")
     if not ops.converged and not ops.runaway:
         lines.append("warning: a point did not converge; " + ops.message)
     lines += _caution_lines(cautions)
@@ -537,7 +548,7 @@ def _point_state(p, is_normal):
 
 
 def cmd_buildup(args, out):
-    from .circuit import Setting, check_setting, self_excitation, series_critical_resistance_ohm
+    from .circuit import Setting, build_circuit, check_setting, self_excitation, series_critical_resistance_ohm
     from .jobs import command_cautions
     from .machine import load_machine
     m = load_machine(args.machine)
@@ -548,13 +559,19 @@ def cmd_buildup(args, out):
         st = check_setting(m, Setting("series", series_turns=args.series_turns, speed_rpm=args.speed_rpm,
                                       winding_temperature_c=args.winding_temperature_c), "command line", SETTING_OPTIONS)
         cautions = command_cautions(m, st, _setting_figures(m, st))
-        res = {"connection": "series", "critical_circuit_resistance_ohm": r,
-               "cautions": [x.as_dict() for x in cautions]}
+        circ = build_circuit(m, [st])
+        # what the user can choose is the load: the circuit's critical value less the machine's own windings
+        r_load = r - float(circ.ra[0]) - float(circ.rbr[0])
+        res = {"connection": "series", "setting": st.as_dict(), "critical_circuit_resistance_ohm": r,
+               "critical_load_resistance_ohm": r_load, "cautions": [x.as_dict() for x in cautions]}
         if args.json:
             return res
-        return "\n".join([f"{_name(m, args)}: series connection",
-                          f"critical circuit resistance {r:.4g} ohm: the machine builds up only on a closed circuit "
-                          "(armature, series field and load) of lower total resistance"] + _caution_lines(cautions))
+        return "\n".join([f"{_name(m, args)}: series connection, {st.describe()}",
+                          f"critical circuit resistance {r:.4g} ohm at this speed: the machine builds up only on a "
+                          "closed circuit (armature, series field and load) of lower total resistance",
+                          f"critical load resistance {r_load:.4g} ohm (the circuit's less the armature and the series "
+                          "field at this temperature): a load of more than that does not build it up"]
+                         + _caution_lines(cautions))
     if args.connection != "shunt":
         raise InputError("command line", "--connection", f"is {args.connection!r}; allowed: shunt, series")
     if args.series_turns is not None:

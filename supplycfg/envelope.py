@@ -180,11 +180,8 @@ def worst_over_corners(values, n, nc, how):
 
 def critical_resistance_ratios(space, sub, n):
     """Least R_crit/R_field and n/n_crit over the envelope (self-excited candidates)."""
-    occ = sub.occ
-    slope = occ.air_gap_slope()
-    rcrit = sub.s * slope
-    self_ex = sub.kind == 1
-    rr = np.where(self_ex, rcrit / sub.rf, np.nan)
+    from .circuit import critical_field_resistance_ohm
+    rr = critical_field_resistance_ohm(sub) / sub.rf
     return worst_over_corners(rr, n, space.nc, "min")
 
 

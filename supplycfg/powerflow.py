@@ -17,8 +17,8 @@ from dataclasses import replace
 
 import numpy as np
 
-from .circuit import (DRIVE_POINT_KEYS, NO_LOAD_SCAN_TOP_SHARE, circuit_residual, drive_point_keys, no_load_voltages,
-                      normal_points, zero_load_current)
+from .circuit import (DRIVE_POINT_KEYS, NO_LOAD_SCAN_TOP_SHARE, circuit_residual, critical_field_resistance_ohm,
+                      drive_point_keys, no_load_voltages, normal_points, zero_load_current)
 from .envelope import expand_candidates
 
 #: Relative step of terminal voltage for the slope test of a loaded self-excited point.
@@ -211,7 +211,7 @@ def idle_figures(space, base_idx, u):
     s_idle = drive.idle_generator_speed_rpm / sub.occ.speed_rpm
     idle = replace(sub, s=np.full(sub.n, s_idle), drive=None)
     vnl = no_load_voltages(idle).reshape(n, space.nc)
-    rcrit = s_idle * idle.occ.air_gap_slope()
+    rcrit = critical_field_resistance_ohm(idle)
     builds = np.where(idle.kind == 1, (idle.rf < rcrit).astype(float), np.nan).reshape(n, space.nc)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", RuntimeWarning)

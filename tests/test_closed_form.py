@@ -213,3 +213,19 @@ def test_separate_with_armature_reaction_and_hot_winding():
     assert_allclose(pt["load_current_a"], i, rtol=RTOL)
     assert_allclose(pt["terminal_voltage_v"], i * r_load, rtol=RTOL)
     assert_allclose(pt["generated_emf_v"], froelich(i_f - k * i), rtol=RTOL)
+
+
+@pytest.mark.parametrize("connection, factor", [("shunt", 1.0), ("long-shunt-cumulative", 1 + NSE / NSH),
+                                                ("long-shunt-differential", 1 - NSE / NSH),
+                                                ("short-shunt-differential", 1.0)])
+def test_critical_field_resistance_counts_a_long_shunts_series_field(machine, connection, factor):
+    """At no load a long shunt's series field carries the shunt current, so the build-up sees
+    Nsh Ish (1 +- Nse/Nsh): the critical field resistance is the air-gap slope times that factor
+    (derived from the mmf balance; Theraja Vol II ch. 28 for the shunt case, from memory). A short
+    shunt's series field carries the load current, none at no load. Regression: the physics reviewer
+    found a long-shunt differential at its critical resistance (true ratio 0.997) given 1.13 and no caution."""
+    from supplycfg.circuit import build_circuit, critical_field_resistance_ohm
+    h = X_SAMPLES[1]
+    turns = None if connection == "shunt" else NSE
+    circ = build_circuit(machine, [Setting(connection, rheostat_ohm=40.0, series_turns=turns, speed_rpm=1200.0)])
+    assert_allclose(critical_field_resistance_ohm(circ)[0], 1200.0 / N_OCC * A_V / (B_A + h) * factor, rtol=RTOL)

@@ -232,3 +232,31 @@ def test_negative_regulation_is_explained(capsys):
     assert "(negative: the voltage rises with load)" in capsys.readouterr().out
     assert cli.main(["curve", str(MACHINE), "--connection", "shunt", "--rheostat-ohm", "30", "--points", "3"]) == 0
     assert "negative" not in capsys.readouterr().out
+
+
+def test_point_does_not_deny_the_point_it_sits_at(capsys):
+    """Regression (physics reviewer): `point` on a resistor printed 'no stable operating point of normal
+    polarity on this load' under the point marked 'sits here'."""
+    from supplycfg.cli import main
+    root = Path(__file__).resolve().parents[1]
+    assert main(["point", str(root / "profiles" / "machines" / "lighting-set.toml"), "--connection", "shunt",
+                 "--rheostat-ohm", "20", "--load-ohm", "5"]) == 0
+    out = capsys.readouterr().out
+    assert "sits here" in out and "no stable operating point" not in out
+
+
+def test_series_buildup_states_its_setting_and_the_critical_load_resistance(capsys):
+    """Regression (physics reviewer): series `buildup` gave only the circuit's critical resistance and no
+    speed or temperature. The critical load resistance is the circuit's less the armature and series field
+    at the temperature (derived: the closed circuit is their sum with the load)."""
+    from supplycfg.cli import main
+    from supplycfg.circuit import Setting, build_circuit
+    from supplycfg.machine import load_machine
+    path = Path(__file__).resolve().parents[1] / "profiles" / "machines" / "welding-set.toml"
+    assert main(["buildup", str(path), "--connection", "series", "--series-turns", "12",
+                 "--winding-temperature-c", "20", "--json"]) == 0
+    res = json.loads(capsys.readouterr().out)
+    assert res["setting"]["winding_temperature_c"] == 20.0 and res["setting"]["series_turns"] == 12.0
+    circ = build_circuit(load_machine(path), [Setting("series", series_turns=12.0, winding_temperature_c=20.0)])
+    assert abs(res["critical_load_resistance_ohm"]
+               - (res["critical_circuit_resistance_ohm"] - circ.ra[0] - circ.rbr[0])) < 1e-12

@@ -101,3 +101,16 @@ def test_machine_builds_its_curve_once():
     assert_allclose(m.open_circuit_curve.emf(x), OpenCircuitCurve.from_machine(m).emf(x), rtol=0, atol=0)
     other = replace(m, occ_emf_v=tuple(2.0 * v for v in m.occ_emf_v))
     assert_allclose(other.open_circuit_curve.emf(x), 2.0 * m.open_circuit_curve.emf(x), rtol=1e-12)
+
+
+def test_air_gap_line_is_not_set_by_one_reading_taken_close_to_another():
+    """Regression (physics reviewer): one extra reading 0.61 A -> 148 V beside 0.6 A -> 145 V (3 V off,
+    a class-1 voltmeter's error on 300 V; IEC 60051-2, from memory) made a 300 V/A chord and moved the
+    critical field resistance from 235 to 300 ohm. A chord over a quarter steeper than both neighbours is
+    left out; the curve as measured keeps its steepest chord (235 V/A: (55 - 8) / 0.2)."""
+    x = [0.0, 0.2, 0.4, 0.6, 0.8, 1.0, 1.2, 1.5, 1.8, 2.2, 2.6, 3.0]
+    e = [8.0, 55.0, 102.0, 145.0, 178.0, 203.0, 222.0, 242.0, 256.0, 270.0, 280.0, 287.0]
+    clean = OpenCircuitCurve(np.array(x), np.array(e), 1500.0)
+    noisy = OpenCircuitCurve(np.array(x[:4] + [0.61] + x[4:]), np.array(e[:4] + [148.0] + e[4:]), 1500.0)
+    assert_allclose(clean.air_gap_slope(), 235.0, rtol=1e-12)
+    assert_allclose(noisy.air_gap_slope(), 235.0, rtol=1e-12)

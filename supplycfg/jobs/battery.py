@@ -45,8 +45,9 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 
 from ..cautions import caution
-from ..circuit import (Setting, USES_SERIES, build_circuit, check_setting, circuit_residual, machine_state,
-                       no_load_voltages, normal_points, refine_bracketed_roots)
+from ..circuit import (Setting, USES_SERIES, build_circuit, check_setting, circuit_residual,
+                       critical_field_resistance_ohm, machine_state, no_load_voltages, normal_points,
+                       refine_bracketed_roots)
 from ..envelope import (Space, control_kind, control_of_rows, control_range, critical_resistance_ratios,
                         envelope_corners, expand_candidates, worst_over_corners)
 from ..errors import InputError
@@ -1525,7 +1526,7 @@ def cut_in_speeds_rpm(space, base_idx, u, corner_idx):
     speed = np.array([space.corners[c][0] for c in np.broadcast_to(corner_idx, base_idx.shape)], float)
     with np.errstate(divide="ignore", invalid="ignore"):
         n_cut = np.where(e > 0, speed * (e - h) / e, np.nan)
-        n_crit = np.where(sub.kind == 1, speed * sub.rf / (sub.s * sub.occ.air_gap_slope()), 0.0)
+        n_crit = np.where(sub.kind == 1, speed * sub.rf / critical_field_resistance_ohm(sub), 0.0)
     return np.where(np.isfinite(n_cut), np.maximum(n_cut, n_crit), np.nan)
 
 
