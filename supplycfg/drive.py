@@ -315,12 +315,21 @@ def read_drive(t, source):
     InputError
         One line naming the file, the key and what is allowed.
     """
+    given = t.has("kind")
     kind = t.text("kind", "fixed", choices=DRIVE_KINDS)
-    for other, keys in KIND_KEYS.items():
-        for k in keys:
-            if other != kind and k not in KIND_KEYS[kind] and t.has(k):
-                raise InputError(source, t.key(k), f"applies to kind = {other!r} only; this drive is {kind!r} "
-                                 f"(its keys: {', '.join(KIND_KEYS[kind])})")
+    foreign = [k for k in dict.fromkeys(k for keys in KIND_KEYS.values() for k in keys)
+               if k not in KIND_KEYS[kind] and t.has(k)]
+    if foreign:
+        k = foreign[0]
+        owners = " or ".join(repr(o) for o, keys in KIND_KEYS.items() if k in keys)
+        if given:
+            raise InputError(source, t.key(k), f"applies to kind = {owners} only; this drive is {kind!r} "
+                             f"(its keys: {', '.join(KIND_KEYS[kind])})")
+        # a forgotten kind is the likelier fault: name the kind the keys given belong to
+        fits = [o for o, keys in KIND_KEYS.items() if all(f in keys for f in foreign)] or [owners]
+        raise InputError(source, t.key("kind"), f"is not given, so the drive is {kind!r}, which takes "
+                         f"{', '.join(KIND_KEYS[kind])}; {', '.join(foreign)} belong to kind = "
+                         f"{' or '.join(repr(f) if f in KIND_KEYS else f for f in fits)}: add that line")
     ratio = t.number("ratio", DEFAULT_RATIO, low=RATIO_RANGE[0], high=RATIO_RANGE[1],
                      what="generator speed per drive speed")
     top = MAX_SPEED_RPM / ratio

@@ -542,3 +542,17 @@ def test_small_bounds_are_written_out_not_in_program_notation(tmp_path):
         load_machine("m.toml", text)
     msg = str(e.value)
     assert "machine.armature_resistance_ohm" in msg and ">= 0.000001 and <= 10000" in msg and "e-0" not in msg
+
+
+def test_a_forgotten_drive_kind_is_named_with_the_kind_its_keys_belong_to(tmp_path):
+    """Regression (newcomer review): a motor's [drive] without its kind line said 'rated_power_kw: applies
+    to kind = engine only', steering the user to the wrong kind; rated_power_kw belongs to both, and the
+    fault is the missing kind. The message names drive.kind and the kind the given keys belong to."""
+    text = (ROOT / "profiles" / "loads" / "battery-charging.toml").read_text(encoding="utf-8")
+    assert 'kind = "motor"' in text
+    p = tmp_path / "p.toml"
+    p.write_text(text.replace('kind = "motor"', "", 1), encoding="utf-8")
+    with pytest.raises(InputError) as e:
+        load_profile(p)
+    msg = str(e.value)
+    assert "drive.kind: is not given" in msg and "belong to kind = 'motor'" in msg and "\n" not in msg
