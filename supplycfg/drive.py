@@ -322,7 +322,7 @@ def read_drive(t, source):
     if foreign:
         k = foreign[0]
         owners = " or ".join(repr(o) for o, keys in KIND_KEYS.items() if k in keys)
-        if given:
+        if given or any(t.has(own) for own in KIND_KEYS[kind]):
             raise InputError(source, t.key(k), f"applies to kind = {owners} only; this drive is {kind!r} "
                              f"(its keys: {', '.join(KIND_KEYS[kind])})")
         # a forgotten kind is the likelier fault: name the kind the keys given belong to
