@@ -26,6 +26,10 @@ INTERPOLATIONS = ("monotone-cubic", "linear")
 # real machine's, and large enough that ratios of them stay finite (a value
 # such as 1e-320 passes "> 0" but overflows the solver).
 _MIN_OHM = 1e-6
+#: How far past what its shunt winding can carry (the highest of the rated and the exciter voltage over the
+#: winding's resistance) a test's field current may go: the demo machines reach 1.1 to 2.5 times it, a test
+#: logged in milliamperes a thousand times (a newcomer's slip, found in review).
+OCC_FIELD_CURRENT_FACTOR = 50.0
 _MIN_CURRENT_A = 1e-3
 _MIN_VOLTAGE_V = 0.1
 _MIN_SPEED_RPM = 1.0
@@ -212,6 +216,15 @@ def machine_from_dict(data, source="machine"):
     if ev[-1] <= ev[0]:
         raise InputError(source, "open_circuit.emf_v", "is flat; allowed: a curve that rises with field current")
     kw["occ_field_current_a"], kw["occ_emf_v"] = fc, ev
+    # a test read in milliamperes (a thousand times too large) passes every check above: the shunt winding
+    # could never carry such a current from any voltage the machine has
+    volts = max(kw["rated_voltage_v"], kw["excitation_voltage_v"] or 0.0)
+    can = volts / kw["shunt_field_resistance_ohm"]
+    if fc[-1] > OCC_FIELD_CURRENT_FACTOR * can:
+        raise InputError(source, "open_circuit.field_current_a",
+                         f"reaches {fc[-1]:g} A, but the shunt winding ({kw['shunt_field_resistance_ohm']:g} ohm) "
+                         f"carries at most {can:.3g} A from {volts:g} V; allowed: amperes (not milliamperes), at most "
+                         f"{OCC_FIELD_CURRENT_FACTOR:g} times that")
 
     if "armature_reaction" in data:
         a = Table(data["armature_reaction"], source, "armature_reaction", keys=ARMATURE_REACTION_KEYS)

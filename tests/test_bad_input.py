@@ -556,3 +556,17 @@ def test_a_forgotten_drive_kind_is_named_with_the_kind_its_keys_belong_to(tmp_pa
         load_profile(p)
     msg = str(e.value)
     assert "drive.kind: is not given" in msg and "belong to kind = 'motor'" in msg and "\n" not in msg
+
+
+def test_open_circuit_test_logged_in_milliamperes_is_refused():
+    """Regression (newcomer review): field currents written in mA (0 ... 1800) were read as amperes and gave
+    a 'charge plan' of -291 A with no hint. A shunt winding of 70 ohm carries at most 160 V / 70 ohm =
+    2.3 A (Ohm's law); a test reaching 3400 A is refused, naming the key and the unit."""
+    text = GOOD_MACHINE.read_text(encoding="utf-8")
+    old = "field_current_a = [0.0, 0.2, 0.4, 0.6, 0.8, 1.0, 1.2, 1.5, 1.8, 2.2, 2.6, 3.0, 3.4]"
+    assert old in text
+    ma = "field_current_a = [0, 200, 400, 600, 800, 1000, 1200, 1500, 1800, 2200, 2600, 3000, 3400]"
+    with pytest.raises(InputError) as e:
+        load_machine("m.toml", text.replace(old, ma))
+    msg = str(e.value)
+    assert "open_circuit.field_current_a" in msg and "milliamperes" in msg and "\n" not in msg
