@@ -331,3 +331,19 @@ def test_readers_parse_with_tomllib():
     assert "tomllib.loads(" in src
     users = [p.name for p in _sources() if re.search(r"\btomllib\.load", p.read_text(encoding="utf-8"))]
     assert users == ["validate.py"], users
+
+
+def test_demo_profiles_show_every_key_of_their_job_table():
+    """The README says the demo profiles show every key with a comment; a newcomer found four battery keys
+    (open_circuit_voltage_per_cell_v among them) in no demo. Each job table's every field appears in its
+    demo profile, set or commented out with its unit and default."""
+    import dataclasses
+    import re
+    from supplycfg.jobs import JOBS
+    loads = Path(__file__).resolve().parents[1] / "profiles" / "loads"
+    files = {"battery": "battery-charging.toml", "welding": "welding.toml", "lighting": "lighting.toml",
+             "booster": "booster.toml"}
+    for kind, mod in JOBS.items():
+        text = (loads / files[kind]).read_text(encoding="utf-8")
+        for f in dataclasses.fields(mod.JOB_TABLE):
+            assert re.search(rf"^#?\s*{f.name}\s*=", text, re.M), (kind, f.name)
