@@ -341,6 +341,37 @@ def rank_options(options, tie=OBJECTIVE_TIE_FRACTION):
     return ordered
 
 
+#: How far below its hot figure a set run up to temperature before the job is taken to start [K]: an hour
+#: on load brings the windings close to their working temperature (common practice; the demo battery job
+#: states 65 to 75 degC for that).
+WARM_START_SPAN_K = 10.0
+
+
+def warm_start_note(machine, profile):
+    """Where nothing meets the job over the profile's whole cold-to-hot winding range, whether a setting
+    does once the set is warm (``WARM_START_SPAN_K`` below the hot figure): a note saying so and what
+    to do, or None.
+
+    With the rheostat left as set, a cold winding's lower resistance moves every figure; a set run up to
+    temperature before the job, its field set by the field ammeter once warm, does not see the cold end.
+    """
+    t = profile.temperatures_c
+    if not t or t[1] - t[0] <= WARM_START_SPAN_K:
+        return None
+    warm = (t[1] - WARM_START_SPAN_K, t[1])
+    res = search(machine, replace(profile, temperatures_c=warm), with_drive_check=False, advice=False)
+    if not res.feasible:
+        return None
+    from .wording import connection_words
+    best = res.feasible[0].setting
+    return (f"once warm it can: with the windings at {warm[0]:g} to {warm[1]:g} °C, {len(res.feasible)} "
+            f"setting{'s' if len(res.feasible) != 1 else ''} meet the job (the best {connection_words(best.connection)}"
+            f"{f', {best.series_turns:g} series turns' if best.series_turns else ''}); it is the cold end of the "
+            f"range ({t[0]:g} °C, the rheostat left as set) that stops it. Run the set up to temperature before the "
+            "job and set the field by the field ammeter once warm, then give winding_temperature_range_c = "
+            f"[{warm[0]:g}, {warm[1]:g}] (common practice)")
+
+
 def search(machine, profile, with_drive_check=True, advice=True):
     """Every setting that meets the job, ranked by the stated rule, with the nearest misses.
 
@@ -437,6 +468,9 @@ def search(machine, profile, with_drive_check=True, advice=True):
         if profile.drive.coupled and with_drive_check:
             need, more = drive_limit_check(machine, profile, options)
             notes += more
+        if with_drive_check:
+            warm = warm_start_note(machine, profile)
+            notes += [warm] if warm else []
     return SearchResult(machine, profile, options, profile_cautions(machine, profile), int(evaluated),
                         time.perf_counter() - t0, notes, need)
 

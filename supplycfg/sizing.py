@@ -16,7 +16,7 @@ from dataclasses import dataclass, field, replace
 
 from . import STANDING_NOTICE, __version__
 from .drive import MAX_RATED_POWER_KW
-from .search import search
+from .search import search, warm_start_note
 
 #: The rating is found to this share (issue rule: to 1 %).
 RATING_TOLERANCE = 0.01
@@ -98,9 +98,12 @@ def required_drive_rating(machine, profile, tolerance=RATING_TOLERANCE):
     steps = 0
     while not res.feasible:
         if steps >= GROW_STEPS or hi >= MAX_RATED_POWER_KW:
+            # a stiffer drive runs the machine faster: the profile's own rating may be the one that fits warm
+            warm = warm_start_note(machine, profile) or warm_start_note(machine, replace(profile, drive=drive.with_rating(hi)))
             return SizeResult(machine, profile, None, None, None, None, count,
-                              [f"no rating up to {hi:g} kW makes the job feasible: the machine itself cannot do it "
-                               "(see the limits each setting breaks in `supplycfg search`)"])
+                              [f"no rating up to {hi:g} kW makes the job feasible over the whole winding-temperature "
+                               "range: the machine itself cannot do it there (see the limits each setting breaks in "
+                               "`supplycfg search`)"] + ([warm] if warm else []))
         hi = min(hi * GROW_FACTOR, MAX_RATED_POWER_KW)
         res = trial(hi)
         steps += 1
