@@ -608,6 +608,21 @@ def stage_field_rise_text(stage, short=False):
     return f"the field ammeter {way} to about {_round(b)} A as the bank's voltage {way}: leave the field as set"
 
 
+def stage_current_rise_text(stage):
+    """A note where the charging current rises along a stage ('' where it tapers, as a battery shop expects).
+
+    On a self-excited machine whose field works on the straight part of its
+    curve the EMF grows with the bank's voltage faster than the bank's own
+    voltage: the current climbs instead of tapering.
+    """
+    a, b = _mapping(stage).get("start_current_a"), _mapping(stage).get("end_current_a")
+    if not (_given(a) and _given(b)) or b <= a * 1.02:
+        return ""
+    return (f"the charging current rises from {_round(a)} to {_round(b)} A along this stage, not tapering: the field "
+            "works on the straight part of its curve and grows with the bank's voltage faster than the bank's own "
+            "voltage rises; watch the ammeter against the bank's highest current")
+
+
 def compact_reading_text(readings, band=None):
     """A stage's field setting in few words: rheostat, the ammeter's hot (cold) reading and its band."""
     r, b = _mapping(readings), _mapping(band)
@@ -641,7 +656,10 @@ def severity_counts(cautions):
 def status_text(option, total=None):
     of = f" of {total}" if total else ""
     if option.feasible:
-        return f"option {option.rank}{of}: meets every limit (smallest margin {fmt(100 * option.smallest_margin, '%')})"
+        edge = ", only on a knife-edge (its band is narrower than the reading can be set)" \
+            if getattr(option, "knife_edge", False) else ""
+        return (f"option {option.rank}{of}: meets every limit (smallest margin "
+                f"{fmt(100 * option.smallest_margin, '%')}){edge}")
     return f"option {option.rank}{of}: near miss, breaks: {broken_limits_text(option.failed)}"
 
 
@@ -733,6 +751,10 @@ def ranking_line(result, option):
             return f"No setting meets every limit; this one comes closest by the rule and breaks: {broken}."
         return f"A near miss: it breaks {broken}."
     others = [o for o in feasible if o is not option]
+    if getattr(option, "knife_edge", False):
+        return (f"Meets every limit, ranked {option.rank} of {len(feasible)}, but only on a knife-edge: its band is "
+                "narrower than the reading can be set, so at the machine it is likely to miss; set it with a finer "
+                "instrument, or take a setting with a wider band.")
     _, words = objective_value(option, kind)
     margin = fmt(100 * option.smallest_margin, "%")
     if not others:
@@ -746,6 +768,8 @@ def ranking_line(result, option):
         from .search import OBJECTIVE_TIE_FRACTION, tie_break
         why = tie_break(option, nxt)
         head = f"Ranked first of {len(feasible)} settings that meet every limit: {words}"
+        if why == "settable":
+            return f"{head} (next, option {nxt.rank}: {nwords}, but only on a knife-edge)."
         if why == "objective":
             return f"{head} (next, option {nxt.rank}: {nwords})."
         tie = f"; option {nxt.rank} ({nwords}) is within {100 * OBJECTIVE_TIE_FRACTION:g} %, a tie, and "
@@ -1343,6 +1367,8 @@ def other_tap_options(result, option):
 
 def card_heading(option):
     """The setting card's heading: a near miss is not a setting to make, and says so first."""
+    if getattr(option, "knife_edge", False):
+        return "Set the machine like this, if you can: only on a knife-edge"
     if option.feasible:
         return "Set the machine like this"
     return "Does not meet the job: the nearest miss, for reference only"

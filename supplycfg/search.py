@@ -46,7 +46,8 @@ LIMIT_REQUIREMENTS = {k: v for job in JOBS.values() for k, v in getattr(job, "LI
 
 #: The words of the ranking rule; ``{objective}`` is the job's objective label.
 RANKING_RULE = (
-    "Ranking: options that meet every limit first, by {objective}; objectives within 2 % of each other "
+    "Ranking: options that meet every limit first (those whose band is narrower than their reading can be "
+    "set, knife-edge, after the others), by {objective}; objectives within 2 % of each other "
     "tie, and a tie goes to the simpler rig (no diverter, fewer series turns in circuit, no exciter needed), "
     "then to the larger least margin (counted in steps of 0.1 % of its limit), then to the better objective. "
     "Then the options without a stop caution, by the number of requirements "
@@ -107,6 +108,12 @@ class Option:
     def limits_broken(self):
         """Names of the job's limits this option breaks (the stop caution not counted)."""
         return [n for n in self.failed if n != "stop_caution"]
+
+    @property
+    def knife_edge(self):
+        """The option meets every limit only in a band narrower than its reading can be set: at the
+        machine it is likely to miss."""
+        return bool(self.feasible and self.readings and self.readings.get("settable") is False)
 
     @property
     def requirements_broken(self):
@@ -288,12 +295,15 @@ def tie_break(first, second, tie=OBJECTIVE_TIE_FRACTION):
     Returns
     -------
     str
-        ``objective`` (their objectives do not tie), ``diverter``, ``series
+        ``settable`` (only ``second`` is a knife-edge: its band is narrower
+        than its reading can be set), ``objective`` (their objectives do not tie), ``diverter``, ``series
         turns`` or ``exciter`` (a tie that goes to the simpler rig, by its
         first difference), ``margin`` (the larger least margin),
         ``objective-in-tie`` (alike margins: the better objective) or
         ``order`` (nothing tells them apart; a fixed order of settings).
     """
+    if first.knife_edge != second.knife_edge:
+        return "settable"
     if not _ties(first.objective, second.objective, tie):
         return "objective"
     for name, a, b in zip(("diverter", "series turns", "exciter"), first.rig, second.rig):
@@ -318,11 +328,11 @@ def rank_options(options, tie=OBJECTIVE_TIE_FRACTION):
         return (s.connection, s.series_turns or 0.0, s.diverter_ohm or 0.0)
 
     feas = sorted((o for o in options if o.feasible),
-                  key=lambda o: (o.objective is None, o.objective if o.objective is not None else 0.0,
+                  key=lambda o: (o.knife_edge, o.objective is None, o.objective if o.objective is not None else 0.0,
                                  o.rig, -o.smallest_margin, stable(o)))
     groups = []
     for o in feas:
-        if groups and _ties(groups[-1][0].objective, o.objective, tie):
+        if groups and groups[-1][0].knife_edge == o.knife_edge and _ties(groups[-1][0].objective, o.objective, tie):
             groups[-1].append(o)
         else:
             groups.append([o])
@@ -638,11 +648,8 @@ def _reading_lines(o, kind=""):
 def _stage_meter_lines(st):
     """What the meters do along a charge stage: the field ammeter following the bank, and the
     voltmeter reading that calls the hand-over."""
-    from .report import stage_field_rise_text
-    out = []
-    rise = stage_field_rise_text(st)
-    if rise:
-        out.append(rise)
+    from .report import stage_current_rise_text, stage_field_rise_text
+    out = [x for x in (stage_field_rise_text(st), stage_current_rise_text(st)) if x]
     v = st.get("end_terminal_voltage_v")
     if st.get("ends_because") == "handover-voltage" and v is not None:
         out.append(f"hand over when the voltmeter at the machine reads about {v:.4g} V")
@@ -668,7 +675,8 @@ def field_reading_lines(r, b, where=""):
             parts.append(f"field current {_num(b['field_current_a'][0], 'g')} to {_num(b['field_current_a'][1], 'g')} A")
         lines.append("  every limit holds for " + " and ".join(parts))
     if r is not None and r.get("settable") is False:
-        lines.append("  the band is narrower than the reading can be set: set with a finer instrument")
+        lines.append("  knife-edge: the band is narrower than the reading can be set, so at the machine it is likely "
+                     "to miss; set it with a finer instrument, or take a setting with a wider band")
     return lines
 
 
@@ -723,7 +731,7 @@ def search_text(res, top=10):
     for o in res.options[:top]:
         s = o.setting
         rh, fh = _field_cells(o)
-        fit = "yes" if o.feasible else ("no" if o.usable else "NOT USABLE")
+        fit = ("knife-edge" if o.knife_edge else "yes") if o.feasible else ("no" if o.usable else "NOT USABLE")
         row = [str(o.rank), fit, connection_words(s.connection), _num(s.series_turns or 0, "g"),
                "none" if s.diverter_ohm is None else f"{s.diverter_ohm:g}", rh, fh, f"{s.speed_rpm:.0f}",
                "-" if not math.isfinite(o.smallest_margin) else f"{100 * o.smallest_margin:.1f}"]

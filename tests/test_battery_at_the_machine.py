@@ -289,3 +289,13 @@ def test_a_job_stopped_only_by_the_cold_start_says_it_can_be_done_warm(tmp_path)
     size = required_drive_rating(m, p)
     if size.required_drive_kw is None:
         assert any(n.startswith("once warm it can") for n in size.notes)
+
+
+def test_a_stage_whose_current_rises_says_so():
+    """Newcomer review: on a self-excited set whose field works on the straight part of its curve the main
+    charge's current rose from 23.4 to 25 A, which a battery shop reads as a fault in a taper charge. The
+    stage says the current rises and why; a tapering stage says nothing (common practice: a taper charge
+    tapers)."""
+    from supplycfg.report import stage_current_rise_text
+    assert "rises from 23.4 to 25 A" in stage_current_rise_text({"start_current_a": 23.4, "end_current_a": 25.0})
+    assert stage_current_rise_text({"start_current_a": 19.93, "end_current_a": 18.66}) == ""

@@ -224,3 +224,30 @@ def test_a_near_miss_off_both_ends_of_the_band_breaks_one_requirement_not_two():
                                          "armature_current_rating": 0.2})
     assert both.requirements_broken == low.requirements_broken == ["load_voltage_band"]
     assert rank_options([low, both])[0] is both
+
+
+def test_a_knife_edge_setting_ranks_after_settable_ones_and_says_so(tmp_path):
+    """Regression (newcomer review): a lighting setting whose every limit holds only for rheostat 88.2 to
+    88.3 ohm on a 250 ohm rheostat was listed 'fit yes' like any other. A band narrower than its reading
+    can be set is not a setting a person can make (common practice): it is marked knife-edge and ranks
+    after the settable options whatever its objective."""
+    from supplycfg.circuit import Setting
+    from supplycfg.report import card_heading, ranking_line, status_text
+    from supplycfg.search import Option, SearchResult, rank_options
+
+    def fit(rh, settable, objective):
+        s = Setting("short-shunt-cumulative", rheostat_ohm=rh, series_turns=6.0, speed_rpm=1500.0,
+                    winding_temperature_c=75.0)
+        o = Option(0, True, s, {}, {"load_voltage_low": {"fraction": 0.01}}, [], [], 0.01, objective=objective)
+        o.readings = {"settable": settable, "field_current_a": {"cold": 1.0, "hot": 1.0}, "rheostat_ohm": rh}
+        return o
+
+    edge, wide = fit(88.3, False, -0.05), fit(60.0, True, -0.01)
+    assert edge.knife_edge and not wide.knife_edge
+    assert rank_options([edge, wide])[0] is wide
+    only = fit(88.3, False, -0.05)
+    rank_options([only])
+    assert "knife-edge" in status_text(only) and "knife-edge" in card_heading(only)
+    m, p, _ = demo("lighting")
+    res = SearchResult(m, p, [only], [], 1, 0.0, [])
+    assert "knife-edge" in ranking_line(res, only)

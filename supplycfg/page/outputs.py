@@ -128,7 +128,7 @@ def option_rows(result):
             "Objective": words or "–",
             "Smallest margin [%]": round(100.0 * o.smallest_margin, 1),
             "Cautions": severity_counts(o.cautions) or "none",
-            "Fit": "meets all" if o.feasible else ("not usable (stop)" if "stop_caution" in o.failed else "near miss"),
+            "Fit": fit_words(o),
             "Connection": connection_words(s.connection),
             "Series turns": s.series_turns or 0.0,
             "Field": field_reading_text(o),
@@ -137,6 +137,13 @@ def option_rows(result):
             "Limits broken": broken_limits_text(o.failed) or "none",
         })
     return rows
+
+
+def fit_words(o):
+    """An option's fit in a few words (the table and the picker)."""
+    if o.feasible:
+        return "meets all, knife-edge" if o.knife_edge else "meets all"
+    return "not usable (stop)" if "stop_caution" in o.failed else "near miss"
 
 
 def picked_option(result, key):
@@ -150,7 +157,7 @@ def picked_option(result, key):
 
 def _option_label(o):
     s = o.setting
-    fit = "meets all" if o.feasible else "near miss"
+    fit = fit_words(o)
     tap = f", {s.series_turns:g} turns" if s.series_turns else ""
     return f"{o.rank} · {connection_words(s.connection)}{tap}, {field_reading_text(o)} · {fit}"
 
