@@ -128,7 +128,7 @@ def _add_setting(p, connection_default=None, connection=True):
     g.add_argument("--field-current-a", type=_number,
                    help="separate excitation: the field current [A], at most what the machine's exciter drives "
                         "through the field at the winding temperature")
-    p.add_argument("--series-turns", type=_number, help="series turns per pole in use: one of the machine's taps, exactly")
+    p.add_argument("--series-turns", type=_number, help="series turns per pole in use: one of the machine's taps, exactly; default the whole series winding")
     p.add_argument("--diverter-ohm", type=_number, help="diverter resistor across the series winding [ohm]; omit for none")
     p.add_argument("--speed-rpm", type=_number_in(MIN_SPEED_RPM, MAX_SPEED_RPM, "rpm"),
                    help="drive speed [rpm]; default the machine's rated speed")
@@ -178,7 +178,7 @@ def command_parser():
     p.add_argument("--connection", default="shunt", help="shunt (default) or series")
     p.add_argument("--rheostat-ohm", type=_number,
                    help="field rheostat [ohm]; without it only the critical field resistance is given")
-    p.add_argument("--series-turns", type=_number, help="series machine: series turns per pole in use (a tap)")
+    p.add_argument("--series-turns", type=_number, help="series machine: series turns per pole in use (a tap); default the whole series winding")
     p.add_argument("--speed-rpm", type=_number_in(MIN_SPEED_RPM, MAX_SPEED_RPM, "rpm"),
                    help="drive speed [rpm]; default the machine's rated speed")
     p.add_argument("--winding-temperature-c", type=_number,
@@ -432,17 +432,26 @@ def cmd_curve(args, out):
         "load_current_a", "terminal_voltage_v", "armature_current_a", "shunt_field_current_a",
         "series_field_current_a", "generated_emf_v", "speed_rpm", "shaft_power_kw", "efficiency", "extrapolated"]),
         names=point_words(st.connection)))
-    lines += _notes(c.notes, c.extrapolated, c.converged)
+    lines += _notes(c.notes, c.extrapolated, c.converged, c.points)
     lines += _caution_lines(cautions)
     return "\n".join(lines)
 
 
-def _notes(notes, extrapolated, converged):
+def _notes(notes, extrapolated, converged, points=None):
     out = []
     for n in notes:
         out.append(f"note: {n}")
     if extrapolated:
-        out.append("note: some points needed the open-circuit curve beyond its last measured point (extrapolated)")
+        where = ""
+        if points is not None:
+            import numpy as np
+            beyond = np.flatnonzero(np.asarray(points.get("extrapolated", []), bool))
+            il = np.asarray(points.get("load_current_a", []), float)
+            if beyond.size and il.size:
+                where = f" (the first at {abs(il[beyond[0]]):.4g} A of load current)"
+        out.append(f"note: the points marked{where} read the open-circuit curve beyond its last measured point, "
+                   "carried on along its last chord; real iron saturates further, so the voltages and currents "
+                   "there are overstated: measure the curve further before relying on them")
     if not converged:
         out.append("warning: a point did not converge; the figures marked are not trustworthy")
     return [""] + out if out else out

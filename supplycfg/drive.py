@@ -299,6 +299,10 @@ class Drive:
         return out
 
 
+#: Lowest rated slip read [%]: large induction motors run at about 0.5 to 1 % slip, small ones at 3 to 6 %
+#: (from memory); a slip written as a fraction (0.035 for 3.5 %) falls below it.
+MIN_RATED_SLIP_PERCENT = 0.2
+
 #: Keys of each kind (besides kind, ratio and winding_temperature_range_c).
 KIND_KEYS = {"fixed": ("speed_rpm", "speed_range_rpm"),
              "engine": ("no_load_speed_rpm", "droop_percent", "rated_power_kw", "idle_speed_rpm"),
@@ -366,7 +370,8 @@ def read_drive(t, source):
         return Drive(kind="engine", ratio=ratio, no_load_speed_rpm=n0, droop_percent=droop, idle_speed_rpm=idle,
                      rated_power_kw=power)
     ns = speed("synchronous_speed_rpm")
-    slip = t.number("rated_slip_percent", low=0, low_open=True, high=20, what="per cent of synchronous speed")
+    slip = t.number("rated_slip_percent", low=MIN_RATED_SLIP_PERCENT, high=20,
+                    what="per cent of synchronous speed (3.5 for 3.5 %)")
     bd = t.number("breakdown_torque_percent", DEFAULT_BREAKDOWN_TORQUE_PERCENT, low=100, low_open=True, high=1000,
                   what="per cent of rated torque")
     return Drive(kind="motor", ratio=ratio, synchronous_speed_rpm=ns, rated_slip_percent=slip,

@@ -519,8 +519,8 @@ def charge_text(run):
                  f"{_g(ci.get('cold'), '.0f')} rpm cold and {_g(ci.get('hot'), '.0f')} rpm hot; standstill back-feed "
                  f"without it {_g(run.standstill_backfeed_current_a, '.0f')} A")
     lines.append(f"volts per cell: hand-over {run.handover_volts_per_cell:.3f} V, gassing {run.gassing_volts_per_cell:.3f} V, "
-                 f"highest allowed {run.limit_volts_per_cell:.3f} V (temperature-corrected); current floor "
-                 f"{run.floor_current_a:.3g} A")
+                 f"highest allowed {run.limit_volts_per_cell:.3f} V (temperature-corrected); the run stops if the "
+                 f"current falls below {run.floor_current_a:.3g} A (half a float current: no longer charging)")
     lines.append("")
     head = ["time [h]", "stage", "charge [%]", "current [A]", "stored [A]", "machine [V]", "bank [V]", "per cell [V]",
             "charged [Ah]", "energy [kWh]"]

@@ -260,3 +260,15 @@ def test_series_buildup_states_its_setting_and_the_critical_load_resistance(caps
     circ = build_circuit(load_machine(path), [Setting("series", series_turns=12.0, winding_temperature_c=20.0)])
     assert abs(res["critical_load_resistance_ohm"]
                - (res["critical_circuit_resistance_ohm"] - circ.ra[0] - circ.rbr[0])) < 1e-12
+
+
+def test_curve_says_where_it_leaves_the_test_data_and_which_way_it_errs(capsys):
+    """Regression (physics reviewer): the series booster's curve ran to 3200 A and 1184 kW on a field 7.7
+    times its last test point with only 'some points needed the open-circuit curve beyond its last
+    measured point'. The note now names the first such point and says the figures are overstated (the
+    last chord carried on; real iron saturates further: any magnetisation curve, from memory)."""
+    from supplycfg.cli import main
+    path = Path(__file__).resolve().parents[1] / "profiles" / "machines" / "feeder-booster.toml"
+    assert main(["curve", str(path), "--connection", "series", "--series-turns", "12", "--points", "5"]) == 0
+    out = capsys.readouterr().out
+    assert "(the first at 800 A of load current)" in out and "overstated" in out

@@ -95,6 +95,9 @@ def test_coupled_drive_round_trip(table):
      "drive.rated_slip_percent"),
     ({"kind": "motor", "synchronous_speed_rpm": 1500, "rated_slip_percent": 0, "rated_power_kw": 5},
      "drive.rated_slip_percent"),
+    # a slip written as a fraction (newcomer review): below any induction motor's (0.5 % at the largest, from memory)
+    ({"kind": "motor", "synchronous_speed_rpm": 1500, "rated_slip_percent": 0.035, "rated_power_kw": 5},
+     "drive.rated_slip_percent"),
     ({"kind": "motor", "synchronous_speed_rpm": 1500, "rated_slip_percent": 3, "rated_power_kw": 5,
       "breakdown_torque_percent": 100}, "drive.breakdown_torque_percent"),
     ({"kind": "motor", "synchronous_speed_rpm": 1500, "rated_slip_percent": 3, "rated_power_kw": 5,
