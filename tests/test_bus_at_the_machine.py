@@ -251,3 +251,22 @@ def test_a_knife_edge_setting_ranks_after_settable_ones_and_says_so(tmp_path):
     m, p, _ = demo("lighting")
     res = SearchResult(m, p, [only], [], 1, 0.0, [])
     assert "knife-edge" in ranking_line(res, only)
+
+
+def test_band_too_narrow_names_the_warming_windings_first_where_the_range_is_wide():
+    """Newcomer review: over windings from 30 to 75 degC with the rheostat left as set, at least 18 V of a
+    40 V far-end swing was the windings warming, yet the cures named were series turns, a booster and a
+    wider band. Where the range is wider than a warm set's (10 K), the first cure is to run the set up to
+    temperature and set the field once warm (common practice)."""
+    from dataclasses import replace as dreplace
+    from supplycfg.circuit import Setting
+    from supplycfg.jobs import lighting
+    m, p, _ = demo("lighting")
+    p = dreplace(p, temperatures_c=(30.0, 75.0))
+    f = {"load_voltage_max_v": 240.0, "load_voltage_min_v": 200.0}
+    st = Setting("shunt", rheostat_ohm=50.0)
+    c = [x for x in lighting.option_cautions(m, p, st, f) if x.rule == "lighting-band-too-narrow"]
+    assert c and "To hold the band: a narrower winding-temperature range (30 to 75 °C now" in c[0].message
+    p_warm = dreplace(p, temperatures_c=(65.0, 75.0))
+    c = [x for x in lighting.option_cautions(m, p_warm, st, f) if x.rule == "lighting-band-too-narrow"]
+    assert c and "winding-temperature range" not in c[0].message

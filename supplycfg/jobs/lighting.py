@@ -306,6 +306,11 @@ def option_cautions(machine, profile, setting, f):
             words += f"The feeder alone drops {drop:.1f} V more at {i1:g} A than at {i0:g} A. "
         cures = ["more series turns (a compound machine over-compounded for the feeder)",
                  "a series booster in the feeder"]
+        t = profile.temperatures_c
+        if t and t[1] - t[0] > 10.0:
+            # with the rheostat left as set, the winding's warming moves the voltage as much as the load may
+            cures.insert(0, f"a narrower winding-temperature range ({t[0]:g} to {t[1]:g} °C now, the rheostat left as "
+                            "set): run the set up to temperature before the lamps go on and set the field once warm")
         if drop > hi - lo and i1 > i0:
             cures.append(f"a heavier feeder (below {(hi - lo) / (i1 - i0):.2g} ohm, where the feeder alone drops "
                          "less than the band)")
