@@ -244,7 +244,22 @@ def operating_point_cautions(ops):
 ENGINE_OVERLOAD_FACTOR = 1.10
 
 
-def drive_overload_cautions(drive, kw, where="at the heaviest point"):
+def motor_stall_cautions(torque_percent, breakdown_percent):
+    """A ``stop`` where a motor would need more than its breakdown torque [% of rated]: it stalls, and no
+    operating point worked out past it exists."""
+    tq, bd = torque_percent, breakdown_percent
+    if tq is None or bd is None or not tq > bd:
+        return []
+    return [caution("drive-stall", "stop",
+                    f"The motor would need {tq:.0f} % of its rated torque, above its breakdown torque of {bd:.0f} %: "
+                    "it stalls (its protection trips, or it overheats); the speed and voltage worked out there do "
+                    "not exist.",
+                    "induction-motor breakdown torque (the profile's breakdown_torque_percent; default 200-250 % "
+                    "of rated torque, common practice, from memory)",
+                    max_drive_torque_percent=tq, breakdown_torque_percent=bd)]
+
+
+def drive_overload_cautions(drive, kw, where="at the heaviest point", torque_percent=None):
     """Cautions where the shaft power ``kw`` [kW] passes the drive's rating (none for a fixed speed);
     ``where`` says which point it is.
 
@@ -255,6 +270,8 @@ def drive_overload_cautions(drive, kw, where="at the heaviest point"):
     out = []
     if drive is None or not drive.coupled:
         return out
+    if drive.kind == "motor":
+        out += motor_stall_cautions(torque_percent, drive.breakdown_torque_percent)
     rating = drive.rated_power_kw
     if kw is None or not rating or not kw > rating * (1 + 1e-9):
         return out
@@ -293,14 +310,7 @@ def drive_cautions(machine, drive, f):
     if drive is None or not drive.coupled:
         return out
     f = {k: v for k, v in f.items() if v is not None and not (isinstance(v, float) and not math.isfinite(v))}
-    tq, bd = f.get("max_drive_torque_percent"), f.get("breakdown_torque_percent")
-    if tq is not None and bd is not None and tq > bd:
-        out.append(caution("drive-stall", "stop",
-                      f"The motor would need {tq:.0f} % of its rated torque, above its breakdown torque of {bd:.0f} %: "
-                      "it stalls (its protection trips, or it overheats).",
-                      "induction-motor breakdown torque (the profile's breakdown_torque_percent; default 200-250 % "
-                      "of rated torque, common practice, from memory)",
-                      max_drive_torque_percent=tq, breakdown_torque_percent=bd))
+    out += motor_stall_cautions(f.get("max_drive_torque_percent"), f.get("breakdown_torque_percent"))
     col = f.get("collapsed_load_points")
     if col is not None and col > 0:
         out.append(caution("drive-collapse", "stop",

@@ -402,10 +402,11 @@ def cmd_curve(args, out):
         f["min_generated_emf_v"] = min(p["generated_emf_v"] for p in pts)
     cautions = command_cautions(m, st, f) + short_circuit_cautions(m, peak, c.short_circuit_current_a is None)
     # (the curve runs on to short circuit: the drive is judged up to the machine's own rating)
-    power = [p["shaft_power_kw"] for p in pts if p.get("shaft_power_kw") is not None
-             and abs(p["armature_current_a"]) <= m.rated_armature_current_a]
+    rated = [p for p in pts if abs(p["armature_current_a"]) <= m.rated_armature_current_a]
+    power = [p["shaft_power_kw"] for p in rated if p.get("shaft_power_kw") is not None]
+    torque = [p["drive_torque_percent"] for p in rated if _finite(p.get("drive_torque_percent"))]
     cautions += drive_overload_cautions(drive, max(power) if power else None,
-                                        "up to the machine's rated armature current")
+                                        "up to the machine's rated armature current", max(torque) if torque else None)
     cautions += _job_no_load_cautions(prof, m, st, c.no_load_voltage_v)
     res = {"setting": st.as_dict(), "points": pts, "no_load_voltage_v": c.no_load_voltage_v,
            "short_circuit_current_a": c.short_circuit_current_a, "max_load_current_a": c.max_load_current_a,
@@ -435,6 +436,10 @@ def cmd_curve(args, out):
     lines += _notes(c.notes, c.extrapolated, c.converged, c.points)
     lines += _caution_lines(cautions)
     return "\n".join(lines)
+
+
+def _finite(x):
+    return isinstance(x, (int, float)) and not isinstance(x, bool) and math.isfinite(x)
 
 
 def _notes(notes, extrapolated, converged, points=None):
@@ -508,7 +513,8 @@ def cmd_point(args, out):
         f["min_generated_emf_v"] = normal["generated_emf_v"]
     cautions = command_cautions(m, st, f, load=kind) + operating_point_cautions(ops)
     if normal is not None:
-        cautions += drive_overload_cautions(drive, normal.get("shaft_power_kw"))
+        tq = normal.get("drive_torque_percent")
+        cautions += drive_overload_cautions(drive, normal.get("shaft_power_kw"), torque_percent=tq if _finite(tq) else None)
     if prof is not None and prof.kind == "welding":
         nl = operating_points(m, st, Load.constant_current(0.0), drive).normal
         cautions += _job_no_load_cautions(prof, m, st, None if nl is None else nl["terminal_voltage_v"])
@@ -524,7 +530,10 @@ def cmd_point(args, out):
             "series_field_current_a", "generated_emf_v", "speed_rpm", "shaft_power_kw", "efficiency", "extrapolated",
             "state"]), names=point_words(st.connection)))
         lines.append("")
-    if normal is not None:
+    if normal is not None and any(c.rule == "drive-stall" for c in cautions):
+        lines.append("The marked point is where the machine would sit, but the motor stalls before it gets there "
+                     "(see the stop below): no working point on this load.")
+    elif normal is not None:
         lines.append("The machine sits at the highest stable point of normal polarity; the others are listed, not used.")
     if kind == "battery":
         # search and charge put the bank on the chemistry's cell model, whose voltage on charge is above rest

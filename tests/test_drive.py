@@ -638,3 +638,22 @@ def test_size_advises_the_next_standard_rating(capsys):
     text says to choose the next standard rating above it (common practice)."""
     assert main(["size", str(MACHINES / "charging-set.toml"), str(LOADS / "battery-charging.toml")]) == 0
     assert "choose the next standard rating above it" in capsys.readouterr().out
+
+
+def test_curve_and_point_stop_a_motor_past_its_breakdown_torque(tmp_path, capsys):
+    """Regression (fuzz review): with a 0.5 kW motor `point` said the machine 'sits here' at 836 % of
+    rated torque and `curve` showed 831 %, each with a warning only, while `search` gave the same setting
+    a drive-stall stop. Past its breakdown torque an induction motor stalls (torque-slip curve, from
+    memory); the same stop now comes from every command."""
+    from supplycfg.cli import main
+    root = Path(__file__).resolve().parents[1]
+    text = (root / "profiles" / "loads" / "battery-charging.toml").read_text(encoding="utf-8")
+    assert "rated_power_kw = 11 " in text
+    prof = tmp_path / "small.toml"
+    prof.write_text(text.replace("rated_power_kw = 11 ", "rated_power_kw = 0.5 "), encoding="utf-8")
+    machine = str(root / "profiles" / "machines" / "charging-set.toml")
+    base = ["--connection", "shunt", "--rheostat-ohm", "20", "--profile", str(prof), "--json"]
+    for argv in (["point", machine, "--load-ohm", "3"] + base, ["curve", machine, "--points", "6"] + base):
+        assert main(argv) == 0
+        res = json.loads(capsys.readouterr().out)
+        assert any(c["rule"] == "drive-stall" and c["severity"] == "stop" for c in res["cautions"]), argv[0]
