@@ -1006,15 +1006,18 @@ class Characteristic:
     message: str = ""
     notes: list = field(default_factory=list)
     power: dict = field(default_factory=dict)
+    #: Per point, whether its solve held (the drive's speed settled there); None: every point did.
+    settled: object = None
 
     def point_list(self):
-        """Each point as a dict: the curve-point keys, ``extrapolated`` and the power flow
-        (:data:`DRIVE_POINT_KEYS`; None where undefined, e.g. efficiency without output)."""
+        """Each point as a dict: the curve-point keys, ``extrapolated``, ``converged`` (its solve held)
+        and the power flow (:data:`DRIVE_POINT_KEYS`; None where undefined, e.g. efficiency without output)."""
         n = len(self.points["terminal_voltage_v"])
         out = []
         for i in range(n):
             d = {k: (bool(self.points[k][i]) if k == "extrapolated" else float(self.points[k][i]))
                  for k in POINT_KEYS + ("extrapolated",)}
+            d["converged"] = True if self.settled is None else bool(self.settled[i])
             d.update(_point_at(self.power, i))
             out.append(d)
         return out
@@ -1880,8 +1883,10 @@ def characteristics_of(circ, points=400):
             ch = result[i]
             ch.power = {k: ({kk: vv[a:b] for kk, vv in val.items()} if isinstance(val, dict) else val[a:b])
                         for k, val in power.items()}
-            if circ.drive is not None and b > a and ch.converged and not np.all(settled[a:b]):
-                ch.converged, ch.message = False, "the drive's speed did not settle at a point"
+            if circ.drive is not None and b > a and not np.all(settled[a:b]):
+                ch.settled = settled[a:b].copy()
+                if ch.converged:
+                    ch.converged, ch.message = False, "the drive's speed did not settle at a point"
     return result
 
 

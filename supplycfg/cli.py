@@ -305,7 +305,7 @@ def _job_no_load_cautions(profile, machine, setting, no_load_voltage_v):
 POINT_WORDS = {"load_current_a": "load current [A]", "terminal_voltage_v": "terminal voltage [V]",
                "armature_current_a": "armature current [A]", "shunt_field_current_a": "shunt field current [A]",
                "series_field_current_a": "series field current [A]", "generated_emf_v": "generated EMF [V]",
-               "stable": "stable", "extrapolated": "beyond the measured curve", "state": "state",
+               "stable": "stable", "extrapolated": "beyond the measured curve", "state": "state", "converged": "solved",
                "speed_rpm": "speed [rpm]", "shaft_power_kw": "shaft power [kW]", "efficiency": "efficiency"}
 
 
@@ -431,9 +431,9 @@ def cmd_curve(args, out):
         lines.insert(1, f"drive: {drive.describe()}")
     lines.append(table(rows, point_columns(st.connection, [
         "load_current_a", "terminal_voltage_v", "armature_current_a", "shunt_field_current_a",
-        "series_field_current_a", "generated_emf_v", "speed_rpm", "shaft_power_kw", "efficiency", "extrapolated"]),
-        names=point_words(st.connection)))
-    lines += _notes(c.notes, c.extrapolated, c.converged, c.points)
+        "series_field_current_a", "generated_emf_v", "speed_rpm", "shaft_power_kw", "efficiency", "extrapolated"])
+        + (["converged"] if not all(r["converged"] for r in rows) else []), names=point_words(st.connection)))
+    lines += _notes(c.notes, c.extrapolated, c.converged, rows)
     lines += _caution_lines(cautions)
     return "\n".join(lines)
 
@@ -448,17 +448,20 @@ def _notes(notes, extrapolated, converged, points=None):
         out.append(f"note: {n}")
     if extrapolated:
         where = ""
-        if points is not None:
-            import numpy as np
-            beyond = np.flatnonzero(np.asarray(points.get("extrapolated", []), bool))
-            il = np.asarray(points.get("load_current_a", []), float)
-            if beyond.size and il.size:
-                where = f" (the first at {abs(il[beyond[0]]):.4g} A of load current)"
+        beyond = [p for p in points or [] if p.get("extrapolated")]
+        if beyond:
+            where = f" (the first at {abs(beyond[0]['load_current_a']):.4g} A of load current)"
         out.append(f"note: the points marked{where} read the open-circuit curve beyond its last measured point, "
                    "carried on along its last chord; real iron saturates further, so the voltages and currents "
                    "there are overstated: measure the curve further before relying on them")
     if not converged:
-        out.append("warning: a point did not converge; the figures marked are not trustworthy")
+        bad = [] if points is None else [p for p in points if not p.get("converged", True)]
+        if bad:
+            out.append(f"warning: {len(bad)} point{'s' if len(bad) != 1 else ''} did not converge (marked 'no' under "
+                       "'solved'): their figures are not trustworthy")
+        else:
+            out.append("warning: the solve did not converge everywhere (an exact point of the curve: no-load, "
+                       "short circuit or the largest load current); treat the figures as not trustworthy")
     return [""] + out if out else out
 
 
@@ -487,6 +490,11 @@ def cmd_point(args, out):
         for k, opt in (("battery_emf_v", "--battery-emf-v"), ("battery_ohm", "--battery-ohm")):
             if k not in given:
                 raise InputError("command line", opt, "is missing; a battery load needs --battery-emf-v and --battery-ohm")
+        if given["battery_emf_v"] < 0:
+            # the likeliest reason for a negative EMF: the bank connected the other way round
+            raise InputError("command line", "--battery-emf-v", f"is {given['battery_emf_v']:g}; allowed: 0 or more "
+                             "(the bank's EMF, + to the machine's +); a bank connected the other way round is a "
+                             "wiring fault: check the polarity before closing")
         load = Load.battery(given["battery_emf_v"], given["battery_ohm"])
     else:
         for k, opt in (("line_v0", "--line-v0"), ("line_slope_ohm", "--line-slope-ohm")):
@@ -520,7 +528,8 @@ def cmd_point(args, out):
         cautions += _job_no_load_cautions(prof, m, st, None if nl is None else nl["terminal_voltage_v"])
     res = {"setting": st.as_dict(), "load": load.label, "operating_points": pts,
            "sits_at": None if normal is None else ops.points.index(normal), "runaway": ops.runaway,
-           "message": ops.message, "cautions": [c.as_dict() for c in cautions], "converged": ops.converged}
+           "message": ops.message or ("" if pts else "no operating point: the characteristic does not meet this load"),
+           "cautions": [c.as_dict() for c in cautions], "converged": ops.converged}
     if args.json:
         return res
     lines = [f"{_name(m, args)}: {connection_words(st.connection)}, {st.describe()}; load: {load.label}", ""]
@@ -573,9 +582,10 @@ def cmd_buildup(args, out):
     if args.connection == "series":
         if args.rheostat_ohm is not None:
             raise InputError("command line", "--rheostat-ohm", "does not apply to a series machine")
-        r = series_critical_resistance_ohm(m, args.series_turns, args.speed_rpm, args.winding_temperature_c)
+        # checked first: a bad option is named as typed (--series-turns), not by its field
         st = check_setting(m, Setting("series", series_turns=args.series_turns, speed_rpm=args.speed_rpm,
                                       winding_temperature_c=args.winding_temperature_c), "command line", SETTING_OPTIONS)
+        r = series_critical_resistance_ohm(m, args.series_turns, args.speed_rpm, args.winding_temperature_c)
         cautions = command_cautions(m, st, _setting_figures(m, st))
         circ = build_circuit(m, [st])
         # what the user can choose is the load: the circuit's critical value less the machine's own windings
@@ -595,6 +605,8 @@ def cmd_buildup(args, out):
     if args.series_turns is not None:
         raise InputError("command line", "--series-turns", "applies to --connection series only")
     given = args.rheostat_ohm is not None
+    check_setting(m, Setting("shunt", rheostat_ohm=args.rheostat_ohm if given else 0.0, speed_rpm=args.speed_rpm,
+                             winding_temperature_c=args.winding_temperature_c), "command line", SETTING_OPTIONS)
     # without a rheostat only what does not depend on it is stated
     se = self_excitation(m, args.rheostat_ohm if given else 0.0, args.speed_rpm, args.winding_temperature_c)
     st = se.setting if given else replace(se.setting, rheostat_ohm=None)
@@ -619,7 +631,8 @@ def cmd_buildup(args, out):
                          + _caution_lines(cautions))
     lines = [f"{_name(m, args)}: shunt field at no load, {se.setting.describe()}",
              f"field circuit {se.field_circuit_resistance_ohm:.4g} ohm; critical {se.critical_field_resistance_ohm:.4g} ohm at this speed; "
-             f"critical speed {se.critical_speed_rpm:.5g} rpm",
+             + (f"critical speed {se.critical_speed_rpm:.5g} rpm" if se.critical_speed_rpm <= MAX_SPEED_RPM else
+                f"critical speed above {MAX_SPEED_RPM:.0f} rpm: no drive builds this field circuit up"),
              f"builds up from residual: {'yes' if se.builds_up else 'no'}"
              + (" (and runs away past the measured curve)" if se.runaway and se.builds_up else "")]
     near_residual = se.stays_near_residual

@@ -299,6 +299,8 @@ class Drive:
         return out
 
 
+#: Smallest drive rating read [kW]: a fractional-horsepower motor of 10 W drives no generator a job needs.
+MIN_RATED_POWER_KW = 0.01
 #: Lowest rated slip read [%]: large induction motors run at about 0.5 to 1 % slip, small ones at 3 to 6 %
 #: (from memory); a slip written as a fraction (0.035 for 3.5 %) falls below it.
 MIN_RATED_SLIP_PERCENT = 0.2
@@ -359,7 +361,7 @@ def read_drive(t, source):
             speeds = (speed("speed_rpm"),)
             t.raw("speed_range_rpm", None)
         return Drive(kind="fixed", ratio=ratio, speeds_rpm=tuple(speeds))
-    power = t.number("rated_power_kw", low=0, low_open=True, high=MAX_RATED_POWER_KW, what="kW")
+    power = t.number("rated_power_kw", low=MIN_RATED_POWER_KW, high=MAX_RATED_POWER_KW, what="kW")
     if kind == "engine":
         n0 = speed("no_load_speed_rpm")
         droop = t.number("droop_percent", low=0, high=25, what="per cent of the no-load speed")

@@ -446,7 +446,10 @@ def _range(v, source, key, low, high, low_open, high_open, what):
     bad_low = low is not None and (v <= low if low_open else v < low)
     bad_high = high is not None and (v >= high if high_open else v > high)
     if bad_low or bad_high:
-        raise InputError(source, key, f"is {v:g}; allowed: {what} {_bounds(low, high, low_open, high_open)}")
+        shown = f"{v:g}"
+        if shown in (_plain(low) if low is not None else None, _plain(high) if high is not None else None):
+            shown = f"{v:.15g}"  # 4.99999999 is not 5: say so
+        raise InputError(source, key, f"is {shown}; allowed: {what} {_bounds(low, high, low_open, high_open)}")
 
 
 # ---------------------------------------------------------------------------

@@ -28,6 +28,11 @@ from supplycfg.profile import load_profile
 from supplycfg.machine import MAX_AR_ROWS, MAX_OCC_POINTS, MAX_SERIES_TAPS, MIN_STEP_FRACTION, load_machine
 from supplycfg.validate import MAX_FILE_BYTES
 
+try:
+    from .builders import profile_variant
+except ImportError:
+    from builders import profile_variant
+
 ROOT = Path(__file__).resolve().parent.parent
 BAD = Path(__file__).resolve().parent / "data" / "bad"
 INDEX = tomllib.loads((BAD / "index.toml").read_text(encoding="utf-8"))
@@ -570,3 +575,53 @@ def test_open_circuit_test_logged_in_milliamperes_is_refused():
         load_machine("m.toml", text.replace(old, ma))
     msg = str(e.value)
     assert "open_circuit.field_current_a" in msg and "milliamperes" in msg and "\n" not in msg
+
+
+@pytest.mark.parametrize("kind, old, new, key", [
+    ("welding", "current_range_a = [60, 180]", "current_range_a = [6e-11, 1.8e-10]", "welding.current_range_a"),
+    ("welding", "duty_cycle_percent = 60", "duty_cycle_percent = 1e-12", "welding.duty_cycle_percent"),
+    ("welding", "min_no_load_voltage_v = 50", "min_no_load_voltage_v = 1e-12", "welding.min_no_load_voltage_v"),
+    ("battery", "capacity_ah = 200", "capacity_ah = 1e-12", "battery.capacity_ah"),
+    ("battery", "target_hours = 16", "target_hours = 1e-12", "battery.target_hours"),
+    ("battery", "state_of_charge = [0.2, 1.0]", "state_of_charge = [2e-13, 1e-12]", "battery.state_of_charge"),
+    ("battery", "rated_power_kw = 11", "rated_power_kw = 1e-12", "drive.rated_power_kw"),
+])
+def test_profile_values_no_real_job_has_are_refused(kind, old, new, key, tmp_path):
+    """Regression (fuzz review): keys checked only to be above zero let 6e-11 A welding currents, a 1e-12 Ah
+    bank or a 1e-12 kW motor through, and the tool planned for them. Each key now has the smallest value a
+    real job has (each bound states its basis beside it); below it, one line naming the key."""
+    p = profile_variant(kind, tmp_path, "p.toml", (old, new))
+    with pytest.raises(InputError) as e:
+        load_profile(p)
+    assert f": {key}" in str(e.value) and "\n" not in str(e.value)
+
+
+def test_a_charging_current_many_times_the_banks_rate_is_a_stop(tmp_path):
+    """Regression (fuzz review): capacity_ah = 2 for 200 gave a main charge at about 10 C with no word.
+    Past ten times the chemistry's normal rate (C/10 for vented lead-acid: past 1 C) the job carries a
+    stop whatever the setting; past three times a warning (common practice, recalled)."""
+    from supplycfg.jobs import battery
+    p = load_profile(profile_variant("battery", tmp_path, "p.toml", ("capacity_ah = 200", "capacity_ah = 2")))
+    c = [x for x in battery.profile_cautions(None, p) if x.rule == "battery-charge-rate"]
+    assert c and c[0].severity == "stop" and "11 C" in c[0].message
+    p = load_profile(profile_variant("battery", tmp_path, "q.toml", ("capacity_ah = 200", "capacity_ah = 50")))
+    c = [x for x in battery.profile_cautions(None, p) if x.rule == "battery-charge-rate"]
+    assert c and c[0].severity == "warn"
+    demo_p = load_profile(ROOT / "profiles" / "loads" / "battery-charging.toml")
+    assert not [x for x in battery.profile_cautions(None, demo_p) if x.rule == "battery-charge-rate"]
+
+
+def test_machine_values_no_real_machine_has_are_refused():
+    """Regressions (fuzz review): series taps of 3e-12 turns were offered as settings, and an open-circuit
+    curve scaled by 1e-12 gave critical speeds of 7.7e14 rpm. A tap is 0 or at least the winding's least
+    turns; a test curve must come within a quarter of the rated voltage (tests go to 110-125 % of it)."""
+    text = GOOD_MACHINE.read_text(encoding="utf-8")
+    with pytest.raises(InputError) as e:
+        load_machine("m.toml", text.replace("series_taps = [0, 8, 16, 24]", "series_taps = [0, 3e-12, 16, 24]"))
+    assert "machine.series_taps[1]" in str(e.value)
+    emf = "emf_v = [5.0, 38.0, 72.0, 102.0, 126.0, 145.0, 159.0, 174.0, 185.0, 196.0, 204.0, 210.0, 215.0]"
+    assert emf in text
+    with pytest.raises(InputError) as e:
+        load_machine("m.toml", text.replace(emf, "emf_v = [5e-12, 38e-12, 72e-12, 102e-12, 126e-12, 145e-12, "
+                                                   "159e-12, 174e-12, 185e-12, 196e-12, 204e-12, 210e-12, 215e-12]"))
+    assert "open_circuit.emf_v" in str(e.value) and "rated" in str(e.value)

@@ -160,7 +160,7 @@ EXTREMES = [
     ["curve", str(MACHINE), "--connection", "separate", "--field-current-a", "1e-300"],
     ["curve", str(MACHINE), "--connection", "long-shunt-cumulative", "--rheostat-ohm", "20", "--diverter-ohm", "1e-300"],
     ["point", str(MACHINE), "--connection", "shunt", "--rheostat-ohm", "20", "--line-v0", "1e5", "--line-slope-ohm", "1e-300"],
-    ["point", str(MACHINE), "--connection", "short-shunt-cumulative", "--rheostat-ohm", "20", "--battery-emf-v", "-1e5", "--battery-ohm", "1e6"],
+    ["point", str(MACHINE), "--connection", "short-shunt-cumulative", "--rheostat-ohm", "20", "--battery-emf-v", "1e5", "--battery-ohm", "1e6"],
     ["point", W, "--connection", "series", "--load-current-a", "-1e6"],
     ["point", W, "--connection", "long-shunt-differential", "--rheostat-ohm", "20", "--load-ohm", "1e6", "--speed-rpm", "100000"],
     ["buildup", str(MACHINE), "--speed-rpm", "1"],
@@ -272,3 +272,21 @@ def test_curve_says_where_it_leaves_the_test_data_and_which_way_it_errs(capsys):
     assert main(["curve", str(path), "--connection", "series", "--series-turns", "12", "--points", "5"]) == 0
     out = capsys.readouterr().out
     assert "(the first at 800 A of load current)" in out and "overstated" in out
+
+
+def test_fuzzed_command_lines_name_the_option_and_the_reason(capsys):
+    """Regressions (fuzz review): `buildup` named a bad option by its field (setting: rheostat_ohm), a
+    negative battery EMF (a bank connected the other way round) was taken as a load, and a load line with no
+    operating point gave no reason in JSON."""
+    from supplycfg.cli import main
+    assert main(["buildup", str(MACHINE), "--rheostat-ohm", "-1"]) == 2
+    assert "command line: --rheostat-ohm:" in capsys.readouterr().err
+    assert main(["buildup", str(MACHINE), "--connection", "series", "--series-turns", "5"]) == 2
+    assert "command line: --series-turns:" in capsys.readouterr().err
+    assert main(["point", str(MACHINE), "--connection", "shunt", "--rheostat-ohm", "30", "--battery-emf-v", "-125",
+                 "--battery-ohm", "0.06"]) == 2
+    assert "--battery-emf-v" in capsys.readouterr().err
+    assert main(["point", str(MACHINE), "--connection", "shunt", "--rheostat-ohm", "30", "--line-v0", "-1e5",
+                 "--line-slope-ohm", "1e-9", "--json"]) == 0
+    res = json.loads(capsys.readouterr().out)
+    assert res["operating_points"] == [] and "does not meet this load" in res["message"]

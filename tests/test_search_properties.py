@@ -212,9 +212,11 @@ def battery_table(draw, m):
 @st.composite
 def welding_table(draw, m):
     ir = m["machine"]["rated_armature_current_a"]
-    hi = ir * draw(uniform(0.5, 1.0))
+    # (no welding job asks less than the smallest arc's current)
+    hi = max(ir * draw(uniform(0.5, 1.0)), welding.MIN_WELDING_CURRENT_A)
+    lo = hi * draw(st.sampled_from([uniform(0.2, 0.8), st.just(1.0)]).flatmap(lambda s: s))
     w = {"process": draw(st.sampled_from(sorted(welding.WELDING_PROCESSES))),
-         "current_range_a": [hi * draw(st.sampled_from([uniform(0.2, 0.8), st.just(1.0)]).flatmap(lambda s: s)), hi],
+         "current_range_a": [max(lo, welding.MIN_WELDING_CURRENT_A), hi],
          "environment": draw(st.sampled_from(sorted(welding.ENVIRONMENTS))),
          "duty_cycle_percent": draw(uniform(20.0, 100.0)),
          "cable_resistance_ohm": draw(st.sampled_from([0.0, 1.0])) * 4.0 / ir * draw(uniform(0.2, 1.0))}
@@ -227,7 +229,7 @@ def welding_table(draw, m):
 def lighting_table(draw, m):
     vr, ir = m["machine"]["rated_voltage_v"], m["machine"]["rated_armature_current_a"]
     return {"nominal_voltage_v": vr * draw(uniform(0.7, 1.05)),
-            "load_current_a": sorted([ir * draw(uniform(0.0, 0.3)), ir * draw(uniform(0.0, 1.1))]),
+            "load_current_a": sorted([ir * draw(uniform(0.0, 0.3)), ir * draw(uniform(0.05, 1.1))]),
             "tolerance_percent": draw(uniform(2.0, 10.0)),
             "feeder_resistance_ohm": vr / ir * draw(st.sampled_from([0.0, 0.01, 0.05])) * draw(uniform(0.5, 1.0)),
             "lamp": draw(st.sampled_from(sorted(lighting.LAMPS)))}

@@ -735,6 +735,13 @@ DEFAULT_BATTERY_TEMPERATURE_C = REFERENCE_TEMPERATURE_C
 #: A charge must reach its end state of charge within this time [h]: the usual overnight-plus
 #: recharge, and the NiCd standard charge of C/10 for 14-16 h (common practice).
 DEFAULT_TARGET_HOURS = 16.0
+#: Shortest target a job may ask [h]: a quarter of an hour, a charge the quickest boost would need
+#: (common practice); a target below it is a typing slip.
+MIN_TARGET_HOURS = 0.25
+#: Smallest bank [Ah]: a 1 Ah cell is a torch battery, not a bank a generator charges.
+MIN_CAPACITY_AH = 1.0
+#: Smallest charge a job may ask [share of capacity]: 1 %; a span below it is a slip.
+MIN_CHARGE_SPAN = 0.01
 #: The reverse-current cut-out closes this far above the bank's rest voltage at the top of the
 #: state-of-charge range [V per cell] (common practice; classic dynamo practice, from memory).
 CUTOUT_MARGIN_V_PER_CELL = 0.05
@@ -778,8 +785,11 @@ def read_job(t, source):
     name = t.text("chemistry", choices=tuple(CHEMISTRIES))
     chem = CHEMISTRIES[name]
     cells = t.integer("cells", low=1, high=10_000)
-    cap = t.number("capacity_ah", low=0, low_open=True, high=1e6)
+    cap = t.number("capacity_ah", low=MIN_CAPACITY_AH, high=1e6)
     soc = read_pair(t, "state_of_charge", source, low=0, high=1, strict=True, names=("start", "end"))
+    if soc[1] - soc[0] < MIN_CHARGE_SPAN:
+        raise InputError(source, t.key("state_of_charge"), f"is [{soc[0]:g}, {soc[1]:g}]; allowed: an end at least "
+                         f"{MIN_CHARGE_SPAN:g} above the start (a charge of {100 * MIN_CHARGE_SPAN:g} % or more)")
     imax = t.number("max_charge_current_a", low=0, low_open=True, high=MAX_CURRENT_A)
     imin = t.number("min_charge_current_a", DEFAULT_MIN_CHARGE_CURRENT_A, low=0, high=MAX_CURRENT_A)
     if imin > imax:
@@ -807,7 +817,7 @@ def read_job(t, source):
         raise InputError(source, t.key("charge_voltage_per_cell_v"),
                          f"is {vho:g}; allowed: above the open-circuit voltage at full charge ({ocv[1]:g} V/cell)")
     fin = t.number("finishing_rate_per_h", None, low=0, low_open=True, high=1.0)
-    hours = t.number("target_hours", DEFAULT_TARGET_HOURS, low=0, low_open=True, high=1000.0)
+    hours = t.number("target_hours", DEFAULT_TARGET_HOURS, low=MIN_TARGET_HOURS, high=1000.0)
     close = t.number("cutout_closing_volts_per_cell", None, low=ocv[0], high=chem.max_cell_voltage_v)
     rest_top = float(open_circuit_voltage_per_cell(chem, soc[1], tuple(ocv)))
     if close is not None and close <= rest_top:
@@ -2265,4 +2275,34 @@ def profile_cautions(machine, profile):
                            "which these figures do not include.",
                            basis, temperature_c=b.temperature_c, start_max_temperature_c=start,
                            stop_temperature_c=stop))
+    out += charge_rate_cautions(b)
     return out
+
+
+#: Highest charge rate a job may ask, as multiples of the chemistry's normal rate: a warning past
+#: ``warn`` (vented lead-acid at C/10 normal: past C/3.3, about the makers' highest start rate), a stop
+#: past ``stop`` (past 1 C: the bank overheats and gasses, or the capacity is a slip) (common practice,
+#: recalled, not checked against a maker's text).
+CHARGE_RATE_LIMITS = {"warn": 3.0, "stop": 10.0}
+
+
+def charge_rate_cautions(job):
+    """Cautions where the job's highest charging current is many times the bank's normal charge rate:
+    the likeliest cause is a slip in ``capacity_ah`` or ``max_charge_current_a``."""
+    chem = chemistry(job.chemistry)
+    normal = chem.reference_rate_per_h * job.capacity_ah
+    ratio = job.max_charge_current_a / normal
+    if ratio <= CHARGE_RATE_LIMITS["warn"]:
+        return []
+    rate = job.max_charge_current_a / job.capacity_ah
+    sev = "stop" if ratio > CHARGE_RATE_LIMITS["stop"] else "warn"
+    words = (f"The highest charging current {job.max_charge_current_a:g} A is {rate:.2g} C for a "
+             f"{job.capacity_ah:g} Ah bank, {ratio:.3g} times its normal rate of {normal:.3g} A "
+             f"(C/{1 / chem.reference_rate_per_h:g}): ")
+    words += ("the bank overheats and gasses at such a current. Check capacity_ah and max_charge_current_a "
+              "against the battery's plate." if sev == "stop" else
+              "above the makers' usual highest start rate. Check it against the battery maker's instructions.")
+    return [caution("battery-charge-rate", sev, words,
+                    f"{chem.basis.get('reference_rate_per_h', 'normal charge rate')}; the limits are common practice "
+                    "(recalled, not checked against a maker's text)",
+                    max_charge_current_a=job.max_charge_current_a, capacity_ah=job.capacity_ah)]

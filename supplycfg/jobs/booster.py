@@ -11,7 +11,8 @@ from ..cautions import caution
 from ..envelope import COARSE, FINE, optimise_control
 from ..magnetisation import OpenCircuitCurve
 from ..validate import MAX_CURRENT_A, MAX_OHM, MAX_VOLTAGE_V, MIN_VOLTAGE_V, read_pair
-from .lighting import DEFAULT_TOLERANCE_PERCENT, evaluate_feeder, voltage_band_objective
+from ..errors import InputError
+from .lighting import DEFAULT_TOLERANCE_PERCENT, MIN_TOLERANCE_PERCENT, evaluate_feeder, voltage_band_objective
 
 #: The profile table this job reads.
 TABLE = "booster"
@@ -36,7 +37,9 @@ def read_job(t, source):
     vb = t.number("bus_voltage_v", low=MIN_VOLTAGE_V, high=MAX_VOLTAGE_V)
     rf = t.number("feeder_resistance_ohm", low=0, low_open=True, high=MAX_OHM)
     cur = read_pair(t, "load_current_a", source, low=0, high=MAX_CURRENT_A)
-    tol = t.number("tolerance_percent", DEFAULT_TOLERANCE_PERCENT, low=0, low_open=True, high=50)
+    if cur[1] <= 0:
+        raise InputError(source, t.key("load_current_a"), f"is [{cur[0]:g}, {cur[1]:g}]; allowed: a full load above 0 A")
+    tol = t.number("tolerance_percent", DEFAULT_TOLERANCE_PERCENT, low=MIN_TOLERANCE_PERCENT, high=50)
     return BoosterJob(bus_voltage_v=vb, feeder_resistance_ohm=rf, load_current_a=cur, tolerance_percent=tol)
 
 

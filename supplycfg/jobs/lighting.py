@@ -16,6 +16,7 @@ from ..envelope import (COARSE, FINE, critical_resistance_ratios, expand_candida
 from ..powerflow import load_point_figures
 from ..readings import no_load_setting_field, option_advice
 from ..validate import MAX_CURRENT_A, MAX_OHM, MAX_VOLTAGE_V, MIN_VOLTAGE_V, named_entry, read_pair, table_entry
+from ..errors import InputError
 
 #: The profile table this job reads.
 TABLE = "lighting"
@@ -106,6 +107,9 @@ def lamp_life_ratio(v_ratio, exponent=LIFE_EXPONENT):
 DEFAULT_CABLE_RESISTANCE_OHM = 0.0
 #: Supply tolerance: no single standard for DC; +-5 % is common practice.
 DEFAULT_TOLERANCE_PERCENT = 5.0
+#: Narrowest band a job may ask [% either side]: a voltmeter of class 0.5 (IEC 60051-2, from memory) reads
+#: no finer, so a band inside it cannot be set or checked.
+MIN_TOLERANCE_PERCENT = 0.5
 #: Lamp type when none is given: no lamp estimate.
 DEFAULT_LAMP = "none"
 
@@ -129,7 +133,9 @@ def read_job(t, source):
     """The ``[lighting]`` table ``t`` of a profile read from ``source``, checked."""
     vn = t.number("nominal_voltage_v", low=MIN_VOLTAGE_V, high=MAX_VOLTAGE_V)
     cur = read_pair(t, "load_current_a", source, low=0, high=MAX_CURRENT_A)
-    tol = t.number("tolerance_percent", DEFAULT_TOLERANCE_PERCENT, low=0, low_open=True, high=50)
+    if cur[1] <= 0:
+        raise InputError(source, t.key("load_current_a"), f"is [{cur[0]:g}, {cur[1]:g}]; allowed: a full load above 0 A")
+    tol = t.number("tolerance_percent", DEFAULT_TOLERANCE_PERCENT, low=MIN_TOLERANCE_PERCENT, high=50)
     rf = t.number("feeder_resistance_ohm", DEFAULT_CABLE_RESISTANCE_OHM, low=0, high=MAX_OHM)
     lp = t.text("lamp", DEFAULT_LAMP, choices=tuple(LAMPS))
     return LightingJob(nominal_voltage_v=vn, load_current_a=cur, tolerance_percent=tol,

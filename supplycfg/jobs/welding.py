@@ -336,12 +336,22 @@ class WeldingJob:
 JOB_TABLE = WeldingJob
 
 
+#: Lowest welding current a job may ask [A]: the smallest arcs (fine TIG) run at about 5 A (welding
+#: handbooks, from memory); below it there is no arc to set a dial for.
+MIN_WELDING_CURRENT_A = 5.0
+#: Lowest duty cycle [%]: rating plates state 20 % and up (IEC 60974-1 rates at 60 % and 100 % and the
+#: maker's own, from memory); 5 % leaves room for a light hand-held set.
+MIN_DUTY_CYCLE_PERCENT = 5.0
+#: Lowest strike voltage a job may ask [V]: no arc strikes from under 10 V (common practice).
+MIN_STRIKE_VOLTAGE_V = 10.0
+
+
 def read_job(t, source):
     """The ``[welding]`` table ``t`` of a profile read from ``source``, checked."""
     proc = t.text("process", choices=tuple(WELDING_PROCESSES))
-    cur = read_pair(t, "current_range_a", source, low=0, low_open=True, high=MAX_CURRENT_A)
+    cur = read_pair(t, "current_range_a", source, low=MIN_WELDING_CURRENT_A, high=MAX_CURRENT_A)
     env = t.text("environment", DEFAULT_ENVIRONMENT, choices=tuple(ENVIRONMENTS))
-    duty = t.number("duty_cycle_percent", DEFAULT_DUTY_CYCLE_PERCENT, low=0, low_open=True, high=100)
+    duty = t.number("duty_cycle_percent", DEFAULT_DUTY_CYCLE_PERCENT, low=MIN_DUTY_CYCLE_PERCENT, high=100)
     rc = t.number("cable_resistance_ohm", DEFAULT_CABLE_RESISTANCE_OHM, low=0, high=MAX_OHM)
     top = NO_LOAD_VOLTAGE_LIMITS[ENVIRONMENTS[env].dc_limit].voltage_v
     vmax = t.number("max_no_load_voltage_v", None, low=0, low_open=True, high=top, what="mean volts")
@@ -350,8 +360,8 @@ def read_job(t, source):
         raise InputError(source, t.key("dial_step_a"),
                          f"is {step:g}; allowed: at least {(cur[1] - cur[0]) / MAX_DIAL_ROWS:.3g} A "
                          f"(at most {MAX_DIAL_ROWS} rows over the current range)")
-    vmin = t.number("min_no_load_voltage_v", WELDING_PROCESSES[proc].min_no_load_voltage_v, low=0,
-                    low_open=True, high=top, what="mean volts")
+    vmin = t.number("min_no_load_voltage_v", WELDING_PROCESSES[proc].min_no_load_voltage_v,
+                    low=MIN_STRIKE_VOLTAGE_V, high=top, what="mean volts")
     if vmax is not None and vmin is not None and vmax <= vmin:
         # no no-load voltage both strikes the arc and keeps the site's limit: no setting can exist
         given = "the job's min_no_load_voltage_v" if t.has("min_no_load_voltage_v") else f"the {proc} default"
