@@ -129,7 +129,7 @@ def search_one_machine(path, profile, text=None):
     try:
         m = load_machine(path, text)
         # a row shows the best setting only: its meter readings and bands are left to `search`
-        res = search(m, profile, advice=False)
+        res = search(m, profile, advice=False, warm_check=False)
     except InputError as exc:
         row.error = str(exc)
         return row

@@ -382,7 +382,7 @@ def warm_start_note(machine, profile):
             f"[{warm[0]:g}, {warm[1]:g}] (common practice)")
 
 
-def search(machine, profile, with_drive_check=True, advice=True):
+def search(machine, profile, with_drive_check=True, advice=True, warm_check=True):
     """Every setting that meets the job, ranked by the stated rule, with the nearest misses.
 
     Parameters
@@ -399,6 +399,10 @@ def search(machine, profile, with_drive_check=True, advice=True):
         nominal speed): the ranking does not use them, so a fleet row or a trial
         rating of ``size``, which show only the setting or ask only whether
         any setting is feasible, need not pay for them.
+    warm_check : bool, optional
+        When nothing is feasible over a cold-to-hot winding range, search
+        again warm (:func:`warm_start_note`) and say whether that fits; a
+        fleet row, which shows no notes, leaves it out.
 
     Returns
     -------
@@ -478,7 +482,7 @@ def search(machine, profile, with_drive_check=True, advice=True):
         if profile.drive.coupled and with_drive_check:
             need, more = drive_limit_check(machine, profile, options)
             notes += more
-        if with_drive_check:
+        if with_drive_check and warm_check:
             warm = warm_start_note(machine, profile)
             notes += [warm] if warm else []
     return SearchResult(machine, profile, options, profile_cautions(machine, profile), int(evaluated),
