@@ -1195,6 +1195,8 @@ def sheet_markdown(result, rank=None, run=None, date=None):
     if stops:
         lines += ["## STOP: do not use this setting as it stands", ""] + _md_cautions(stops) + [""]
     lines += [f"## {card_heading(o)}", "", f"*{md_esc(ranking_line(result, o))}*", ""]
+    lines += [f"- {md_esc(n[0].upper() + n[1:])}." for n in search_notes_for(result, o)]
+    lines += [""] if search_notes_for(result, o) else []
     lines += _md_table(("What", "Setting"), setting_rows(o, m, p)) + [""]
     if dial_rows(o):
         lines += ["### Welding dial", "", md_esc(DIAL_SETTING_WORDS), ""] + _md_table(DIAL_HEADERS, dial_rows(o)) + [""]
@@ -1254,6 +1256,7 @@ td.num { text-align: right; white-space: nowrap; }
 .card { border: 2px solid #1f4e79; border-radius: 6px; padding: .3rem .7rem .6rem; margin: .5rem 0; }
 .card h2 { margin-top: .3rem; }
 .why { margin: .1rem 0 .4rem; font-style: italic; }
+.why.small { font-size: .8rem; margin: 0 0 .3rem; }
 .setting td:first-child { width: 42%; }
 .setting td:last-child { font-weight: bold; }
 .top { display: grid; grid-template-columns: minmax(0, 11fr) minmax(0, 9fr); gap: .6rem; align-items: start; }
@@ -1365,6 +1368,15 @@ def other_tap_options(result, option):
     return out[:3]
 
 
+def search_notes_for(result, option):
+    """The search's notes a near miss's card carries (why nothing fits, what would: a larger drive, a
+    warm start); none on a setting that meets the job."""
+    from .search import NO_FIT_NOTE
+    if option.feasible:
+        return []
+    return [str(n) for n in getattr(result, "notes", None) or [] if str(n).strip() and n != NO_FIT_NOTE]
+
+
 def card_heading(option):
     """The setting card's heading: a near miss is not a setting to make, and says so first."""
     if getattr(option, "knife_edge", False):
@@ -1378,7 +1390,9 @@ def card_html(result, option, run=None, wiring_svg=None):
     """The setting card: what to set, why it ranks where it does, the wiring beside it, the dial or the plan."""
     m, p, o = result.machine, result.profile, option
     parts = ['<div class="card" id="setting-card">', f"<h2>{esc(card_heading(o))}</h2>",
-             f'<p class="why">{esc(ranking_line(result, o))}</p>', '<div class="top">',
+             f'<p class="why">{esc(ranking_line(result, o))}</p>']
+    parts += [f'<p class="why small">{esc(n[0].upper() + n[1:])}.</p>' for n in search_notes_for(result, o)]
+    parts += ['<div class="top">',
              _html_table((), setting_rows(o, m, p), "setting")]
     if wiring_svg is not None:
         parts += ['<div class="wiring" role="img" aria-label="Wiring of the chosen connection">', wiring_svg, "</div>"]

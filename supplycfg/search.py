@@ -351,6 +351,9 @@ def rank_options(options, tie=OBJECTIVE_TIE_FRACTION):
     return ordered
 
 
+#: The note of a search in which nothing meets the job (a near miss's card says as much in its own words).
+NO_FIT_NOTE = "no setting meets every limit; the nearest misses are listed with the limit each breaks"
+
 #: How far below its hot figure a set run up to temperature before the job is taken to start [K]: an hour
 #: on load brings the windings close to their working temperature (common practice; the demo battery job
 #: states 65 to 75 degC for that).
@@ -478,7 +481,7 @@ def search(machine, profile, with_drive_check=True, advice=True, warm_check=True
             o.drive_points = table.rows(candidate_of[id(o)])
     need = None
     if not any(o.feasible for o in options):
-        notes.append("no setting meets every limit; the nearest misses are listed with the limit each breaks")
+        notes.append(NO_FIT_NOTE)
         if profile.drive.coupled and with_drive_check:
             need, more = drive_limit_check(machine, profile, options)
             notes += more

@@ -544,3 +544,22 @@ def test_html_sheet_gives_the_wiring_full_width_with_its_steps_after_page_one(re
     assert '<div class="wiring large"' in later and "<svg" in later.split("<h2>Wiring</h2>", 1)[1][:400]
     for step in wiring(res.machine, o.setting, res.profile.kind).steps:
         assert f"<li>{report.esc(step)}</li>" in later
+
+
+def test_a_near_miss_sheet_carries_what_the_search_says_would_fit(tmp_path):
+    """A near miss's card is for reference only; the sheet now also says why nothing fits and what would
+    (here the warm-start note: over 20-75 degC nothing fits the demo charge, at 65-75 degC four settings do),
+    which the page showed and the sheet left out."""
+    from supplycfg.machine import load_machine
+    from supplycfg.profile import load_profile
+    from supplycfg.search import NO_FIT_NOTE, search
+    text = (DEMO / "loads" / "battery-charging.toml").read_text(encoding="utf-8")
+    p = tmp_path / "cold.toml"
+    p.write_text(text.replace("winding_temperature_range_c = [65, 75]", "winding_temperature_range_c = [20, 75]"),
+                 encoding="utf-8")
+    res = search(load_machine(DEMO / "machines" / "charging-set.toml"), load_profile(p))
+    assert not res.feasible
+    md = report.sheet_markdown(res, date="2031-05-04")
+    html = report.sheet_html(res, charts=False, date="2031-05-04")
+    assert "Once warm it can" in md and "Once warm it can" in html
+    assert NO_FIT_NOTE not in md.lower()
