@@ -752,12 +752,12 @@ def loss_breakdown(v, il, ia, ibr, ish, e, speed_rpm, ra, rbr, rf, brush_v, exci
         "armature_copper": ia ** 2 * ra,
         "series_branch": ibr ** 2 * rbr,
         "brush_contact": brush_v * ia,
-        "shunt_field": ish ** 2 * rf,
+        "field_circuit": ish ** 2 * rf,  # the shunt or separate field and its rheostat
         "rotational": rotational_loss_w(speed_rpm, rot_w, rated_rpm, exponent),
         "stray_load": stray * np.abs(v * il),
     }
     losses = {k: np.broadcast_to(val, v.shape).astype(float) for k, val in losses.items()}
-    exciter = np.where(excited_separately, losses["shunt_field"], 0.0)
+    exciter = np.where(excited_separately, losses["field_circuit"], 0.0)
     shaft = e * ia + losses["rotational"] + losses["stray_load"]
     out = v * il
     inp = shaft + exciter

@@ -288,7 +288,7 @@ def test_theraja_shunt_generator_efficiency():
     assert_allclose([pt["terminal_voltage_v"], pt["armature_current_a"], pt["generated_emf_v"]],
                     [250.0, 200.0, 254.0], rtol=1e-9)
     ls = pt["losses_w"]
-    assert_allclose([ls["armature_copper"], ls["shunt_field"], ls["rotational"]], [800.0, 1250.0, 950.0], rtol=1e-9)
+    assert_allclose([ls["armature_copper"], ls["field_circuit"], ls["rotational"]], [800.0, 1250.0, 950.0], rtol=1e-9)
     assert ls["brush_contact"] == 0 and ls["stray_load"] == 0 and ls["series_branch"] == 0
     assert_allclose(pt["shaft_power_kw"], 51.75, rtol=1e-9)
     assert_allclose(pt["efficiency"], 48750 / 51750, rtol=1e-9)
@@ -310,10 +310,10 @@ def test_theraja_long_shunt_power_distribution():
     assert_allclose(pt["terminal_voltage_v"], 230.0, rtol=1e-9)
     assert_allclose(pt["generated_emf_v"], 236.4, atol=0.01)
     ls = pt["losses_w"]
-    assert_allclose([ls["armature_copper"], ls["series_branch"], ls["shunt_field"]], [744.2, 232.6, 575.0], atol=0.05)
+    assert_allclose([ls["armature_copper"], ls["series_branch"], ls["field_circuit"]], [744.2, 232.6, 575.0], atol=0.05)
     electrical = pt["generated_emf_v"] * pt["armature_current_a"]
     assert_allclose(electrical, 36051.8, atol=0.1)
-    assert_allclose(34500 + ls["armature_copper"] + ls["series_branch"] + ls["shunt_field"], electrical, rtol=1e-12)
+    assert_allclose(34500 + ls["armature_copper"] + ls["series_branch"] + ls["field_circuit"], electrical, rtol=1e-12)
 
 
 # ---------------------------------------------------------------------------
