@@ -149,6 +149,11 @@ def setting_cautions(machine, setting, f):
                       "practice, from memory)", no_load_voltage_max_v=vnl, rated_voltage_v=machine.rated_voltage_v))
     top = f.get("top_speed_rpm")
     rated = machine.rated_speed_rpm
+    # a machine that motors its drive at some point of the job (a bank back-feeding it) runs above the drive's
+    # top speed: the highest speed is what the rotor sees
+    driven = f.get("max_speed_rpm")
+    driven = driven if driven is not None and math.isfinite(driven) and top is not None and driven > top else None
+    top = driven if driven is not None else top
     if top is not None and top > rated * (1 + 1e-9):
         if top > OVERSPEED_STOP_FACTOR * rated:
             sev, what = "stop", (f"more than {100 * (OVERSPEED_STOP_FACTOR - 1):.0f} % above the machine's rated "
@@ -160,7 +165,8 @@ def setting_cautions(machine, setting, f):
             sev, what = "note", (f"above the machine's rated {rated:.0f} rpm, within a governor's band "
                                  f"({100 * GOVERNOR_BAND_FRACTION:.0f} %)")
         out.append(caution("overspeed", sev,
-                      f"Drive speed {top:.0f} rpm is {what}; the voltage rises with speed.",
+                      (f"Driven as a motor at some point of the job, the machine reaches {top:.0f} rpm, " if driven
+                       else f"Drive speed {top:.0f} rpm is ") + f"{what}; the voltage rises with speed.",
                       "rating plate; IEC 60034-1 overspeed test 1.2 x rated for 2 min, a test not a duty (from memory); "
                       "governor band of a few per cent for governed engines and motor slip (common practice, from memory)",
                       top_speed_rpm=top))

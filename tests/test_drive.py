@@ -657,3 +657,18 @@ def test_curve_and_point_stop_a_motor_past_its_breakdown_torque(tmp_path, capsys
         assert main(argv) == 0
         res = json.loads(capsys.readouterr().out)
         assert any(c["rule"] == "drive-stall" and c["severity"] == "stop" for c in res["cautions"]), argv[0]
+
+
+def test_a_machine_that_motors_its_drive_is_held_to_the_overspeed_rule_at_its_highest_speed():
+    """Safety audit: the overspeed rule read only the drive's top (no-load) speed; a machine a bank drives as
+    a motor at some point of the job runs faster than that (an engine's governor cannot brake it). At 1800 rpm
+    on a 1450 rpm machine (over the 1.2 x overspeed test of IEC 60034-1, recalled) it is a stop."""
+    from supplycfg.cautions import setting_cautions
+    from supplycfg.circuit import Setting
+    from supplycfg.machine import load_machine
+    m = load_machine(Path(__file__).resolve().parents[1] / "profiles" / "machines" / "charging-set.toml")
+    st = Setting("shunt", rheostat_ohm=30.0, speed_rpm=1450.0)
+    c = [x for x in setting_cautions(m, st, {"top_speed_rpm": 1450.0, "max_speed_rpm": 1800.0}) if x.rule == "overspeed"]
+    assert c and c[0].severity == "stop" and "Driven as a motor" in c[0].message
+    assert not [x for x in setting_cautions(m, st, {"top_speed_rpm": 1450.0, "max_speed_rpm": 1440.0})
+                if x.rule == "overspeed"]
