@@ -5,6 +5,8 @@ what a welder expects comes from.
 """
 
 import json
+
+import numpy as np
 from pathlib import Path
 
 import pytest
@@ -211,3 +213,24 @@ def test_drive_is_sized_for_the_dial_as_set_by_the_field_ammeter(tmp_path):
     # 250 A x 35 V at the machine (the 0.02 ohm leads' drop inside it): an efficiency of 70-85 % for a
     # 10 kW-class DC generator (from memory) puts the shaft at 10.3-12.5 kW; the rheostat's ohms gave 14.5
     assert 250 * 35.0 / 1e3 / 0.85 <= f["max_shaft_power_kw"] <= 250 * 35.0 / 1e3 / 0.70
+
+
+def test_a_self_excited_dial_holds_its_no_load_field_current_at_every_corner(tmp_path):
+    """The dial is set by the field ammeter at no load; on a self-excited set that fixes the no-load field
+    current, and the rheostat giving it follows in closed form (at no load the field current fixes the net
+    mmf, so V = s E(x) - I (Ra + Rbr) - brush drop and the field circuit is V / I: derived from the circuit
+    equations, design note). At the corner it was set at, the rheostat comes back exactly (the welding set
+    without its exciter, self-excited)."""
+    from supplycfg.circuit import no_load_voltages
+    from supplycfg.envelope import build_space, expand_candidates
+    text = MACHINE.read_text(encoding="utf-8")
+    line = next(x for x in text.splitlines() if x.startswith("excitation_voltage_v"))
+    noexc = tmp_path / "noexc.toml"
+    noexc.write_text(text.replace(line + "\n", ""), encoding="utf-8")
+    m, p = load_machine(noexc), load_profile(PROFILE)
+    sp = build_space(m, p)
+    idx = np.array([i for i, b in enumerate(sp.bases) if b[3] == "rheostat"][:6])
+    nom = welding.dial_corners(sp)[0]
+    ref, _ = expand_candidates(sp, idx, np.full(idx.size, 25.0), np.full(idx.size, nom))
+    back = welding.rheostat_holding_no_load_field(ref, no_load_voltages(ref) / ref.rf)
+    assert np.allclose(back, 25.0, rtol=1e-9)

@@ -463,14 +463,36 @@ def _weld_current(space, base_idx, u, corner_idx=None, field_set_at=None):
     if field_set_at is not None:
         base_idx = np.asarray(base_idx, int)
         ref, _ = expand_candidates(space, base_idx, u, np.full(base_idx.size, field_set_at))
-        x_ref = ref.x0 if corner_idx is not None else np.repeat(ref.x0, space.nc)
-        # (subset changes only the separately excited rows)
-        sub = sub.subset(np.arange(sub.n), field_current_a=x_ref)
+        each = (lambda a: a) if corner_idx is not None else (lambda a: np.repeat(a, space.nc))
+        # separately excited: the field current itself (subset changes only those rows)
+        sub = sub.subset(np.arange(sub.n), field_current_a=each(ref.x0))
+        if np.any(ref.kind == 1):
+            sub = sub.subset(np.arange(sub.n), rheostat_ohm=rheostat_holding_no_load_field(
+                sub, each(no_load_voltages(ref) / ref.rf)))
+
     # (the conventional load line and the leads: the voltage never falls as the current rises)
     r = normal_points(sub, np.zeros(sub.n), np.full(sub.n, sub.imax),
                       v_of=lambda t, rows=None: welding_line_voltage_v(job, t), alike=True,
                       top_share=CURRENT_SCAN_TOP_SHARE, rising_line=True)
     return r, sub
+
+
+def rheostat_holding_no_load_field(circ, field_a):
+    """Rheostat [ohm] at which each self-excited row's field ammeter reads ``field_a`` [A] at no load
+    (NaN for other rows, and where that field current gives no voltage).
+
+    At no load the shunt current ``I`` fixes the net field, so the machine's
+    voltage there is explicit: ``V = s E(x(I)) - I (Ra + Rbr) - brush(I)``
+    (the residual at ``v = I`` on a field circuit of 1 ohm, plus ``I``); the
+    field circuit that carries ``I`` at ``V`` is ``V / I``, less the winding.
+    """
+    circ = circ.without_drive()  # no-load voltages are at the drive's no-load speed
+    field_a = np.asarray(field_a, float)
+    p = circ.params_with_control(rheostat_ohm=np.where(circ.kind == 1, 1.0 - circ.rsh, np.nan))
+    with np.errstate(invalid="ignore", divide="ignore"):
+        v = circuit_residual(circ, p, field_a, np.zeros(circ.n)) + field_a
+        rh = v / field_a - circ.rsh
+    return np.where((circ.kind == 1) & (field_a > 0) & (v > 0), np.maximum(rh, 0.0), np.nan)
 
 
 def _char_slope(sub, v, il):
