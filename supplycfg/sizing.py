@@ -130,6 +130,9 @@ def required_drive_rating(machine, profile, tolerance=RATING_TOLERANCE):
     best = final.feasible[0] if final.feasible else best_res.feasible[0]
     notes = [f"the {drive.kind}'s other figures are the profile's; only its rating changed",
              f"at {lo:.4g} kW no setting meets the job"]
+    if best.knife_edge:
+        notes.append("at this rating the best setting meets the job only on a knife-edge (its band is narrower "
+                     "than the reading can be set): a larger rating, or the job eased, gives a setting one can make")
     return SizeResult(machine, profile, hi, best, drive.with_rating(hi), lo, count, notes)
 
 
