@@ -656,7 +656,7 @@ def severity_counts(cautions):
 def status_text(option, total=None):
     of = f" of {total}" if total else ""
     if option.feasible:
-        edge = ", only on a knife-edge (its band is narrower than the reading can be set)" \
+        edge = ", only on a knife-edge (its band is narrower than the meters can set it)" \
             if getattr(option, "knife_edge", False) else ""
         return (f"option {option.rank}{of}: meets every limit (smallest margin "
                 f"{fmt(100 * option.smallest_margin, '%')}){edge}")
@@ -752,9 +752,10 @@ def ranking_line(result, option):
         return f"A near miss: it breaks {broken}."
     others = [o for o in feasible if o is not option]
     if getattr(option, "knife_edge", False):
-        return (f"Meets every limit, ranked {option.rank} of {len(feasible)}, but only on a knife-edge: its band is "
-                "narrower than the reading can be set, so at the machine it is likely to miss; set it with a finer "
-                "instrument, or take a setting with a wider band.")
+        behind = "" if option is feasible[0] else f", after option {feasible[0].rank} and the others one can set"
+        return (f"Meets every limit, ranked {option.rank} of {len(feasible)}{behind}, but only on a knife-edge: its "
+                "band is narrower than the meters can set it, so at the machine it is likely to miss; set it with a "
+                "finer instrument, or take a setting with a wider band.")
     _, words = objective_value(option, kind)
     margin = fmt(100 * option.smallest_margin, "%")
     if not others:

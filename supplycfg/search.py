@@ -41,13 +41,22 @@ def margin_steps(smallest_margin):
     """The least margin in whole steps of :data:`MARGIN_STEP_FRACTION` (the ranking compares these)."""
     return round(smallest_margin / MARGIN_STEP_FRACTION) if math.isfinite(smallest_margin) else -math.inf
 
+#: Narrowest field-current band, as a share of the reading, a person can set a machine in by its field
+#: ammeter: a class-1.5 panel meter reads within 1.5 % of its full scale (IEC 60051-2 classes, recalled, not
+#: checked against the text), about 2 % of a reading in the upper part of the scale, so a band of under 3 % of
+#: the reading is hit by luck, not by reading the meter (a reviewer's 88.2-88.3 ohm window, 1.03 to 1.03 A).
+KNIFE_EDGE_BAND_FRACTION = 0.03
+#: Narrowest rheostat window, as a share of the rheostat's travel, a person can set: a stud rheostat has some
+#: 50 to 100 steps, and a slide wire is set by hand to about as fine (common practice).
+KNIFE_EDGE_RHEOSTAT_SHARE = 0.01
+
 #: Limits that bound one quantity, by the requirement they make up (each job's ``LIMIT_GROUPS``).
 LIMIT_REQUIREMENTS = {k: v for job in JOBS.values() for k, v in getattr(job, "LIMIT_GROUPS", {}).items()}
 
 #: The words of the ranking rule; ``{objective}`` is the job's objective label.
 RANKING_RULE = (
-    "Ranking: options that meet every limit first (those whose band is narrower than their reading can be "
-    "set, knife-edge, after the others), by {objective}; objectives within 2 % of each other "
+    "Ranking: options that meet every limit first (those whose band is narrower than the meters can set it, "
+    "knife-edge, after the others), by {objective}; objectives within 2 % of each other "
     "tie, and a tie goes to the simpler rig (no diverter, fewer series turns in circuit, no exciter needed), "
     "then to the larger least margin (counted in steps of 0.1 % of its limit), then to the better objective. "
     "Then the options without a stop caution, by the number of requirements "
@@ -111,9 +120,24 @@ class Option:
 
     @property
     def knife_edge(self):
-        """The option meets every limit only in a band narrower than its reading can be set: at the
-        machine it is likely to miss."""
-        return bool(self.feasible and self.readings and self.readings.get("settable") is False)
+        """The option meets every limit only in a band a person cannot set it in by the meters: narrower
+        than its reading can be written, or its field-current band narrower than
+        :data:`KNIFE_EDGE_BAND_FRACTION` of the reading. At the machine it is likely to miss."""
+        if not (self.feasible and self.readings):
+            return False
+        if self.readings.get("settable") is False:
+            return True
+        exact = (self.band or {}).get("control_exact")
+        if not exact or not all(math.isfinite(x) for x in exact):
+            return False
+        width = abs(exact[1] - exact[0])
+        if self.control == "rheostat":
+            ohm, travel = self.readings.get("rheostat_ohm"), self.readings.get("rheostat_travel_percent")
+            if not ohm or not travel:
+                return False
+            return width < KNIFE_EDGE_RHEOSTAT_SHARE * ohm * 100.0 / travel
+        u = self.setting.field_current_a
+        return self.control == "field-current" and u is not None and u > 0 and width < KNIFE_EDGE_BAND_FRACTION * u
 
     @property
     def requirements_broken(self):
@@ -646,7 +670,7 @@ def _reading_lines(o, kind=""):
             lines.append(f"  {st['name']}: {_num(st['from_h'], '.4g')} to {_num(st['to_h'], '.4g')} h, "
                          f"{_num(st['start_current_a'], '.3g')} to {_num(st['end_current_a'], '.3g')} A; "
                          f"{st['ends_reason']}")
-        lines += field_reading_lines(o.readings, o.band, READING_POINT.get(kind, ""))
+        lines += field_reading_lines(o.readings, o.band, READING_POINT.get(kind, ""), o.knife_edge)
         for st in stages:
             lines += ["  " + x for x in _stage_meter_lines(st)]
     return lines + _rig_lines(o)
@@ -663,8 +687,11 @@ def _stage_meter_lines(st):
     return out
 
 
-def field_reading_lines(r, b, where=""):
-    """Text lines of one field setting: the meter readings and the band over which every limit holds."""
+def field_reading_lines(r, b, where="", knife_edge=None):
+    """Text lines of one field setting: the meter readings and the band over which every limit holds
+    (``knife_edge``: the option's own verdict; by default, a band narrower than its reading is written)."""
+    if knife_edge is None:
+        knife_edge = r is not None and r.get("settable") is False
     lines = []
     if r is not None:
         fc = r["field_current_a"]
@@ -681,8 +708,8 @@ def field_reading_lines(r, b, where=""):
         if b.get("field_current_a"):
             parts.append(f"field current {_num(b['field_current_a'][0], 'g')} to {_num(b['field_current_a'][1], 'g')} A")
         lines.append("  every limit holds for " + " and ".join(parts))
-    if r is not None and r.get("settable") is False:
-        lines.append("  knife-edge: the band is narrower than the reading can be set, so at the machine it is likely "
+    if knife_edge:
+        lines.append("  knife-edge: the band is narrower than the meters can set it, so at the machine it is likely "
                      "to miss; set it with a finer instrument, or take a setting with a wider band")
     return lines
 

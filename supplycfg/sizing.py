@@ -132,7 +132,8 @@ def required_drive_rating(machine, profile, tolerance=RATING_TOLERANCE):
              f"at {lo:.4g} kW no setting meets the job"]
     if best.knife_edge:
         notes.append("at this rating the best setting meets the job only on a knife-edge (its band is narrower "
-                     "than the reading can be set): a larger rating, or the job eased, gives a setting one can make")
+                     "than the reading can be set): look for more margin (a larger or stiffer drive, or the job eased) "
+                     "before relying on it")
     return SizeResult(machine, profile, hi, best, drive.with_rating(hi), lo, count, notes)
 
 

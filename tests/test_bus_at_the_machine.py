@@ -270,3 +270,19 @@ def test_band_too_narrow_names_the_warming_windings_first_where_the_range_is_wid
     p_warm = dreplace(p, temperatures_c=(65.0, 75.0))
     c = [x for x in lighting.option_cautions(m, p_warm, st, f) if x.rule == "lighting-band-too-narrow"]
     assert c and "winding-temperature range" not in c[0].message
+
+
+def test_a_rheostat_window_under_one_per_cent_of_its_travel_is_a_knife_edge(tmp_path):
+    """Regression (newcomer review, then the demo lighting job with its band narrowed to 3.8 %): every limit
+    held only for 75.6 to 75.6 ohm on a 200 ohm rheostat, and the option was 'fit yes'. A rheostat is set to
+    about 1 % of its travel (50-100 studs, or a slide wire by hand: common practice); a narrower window is a
+    knife-edge, said in the table and the reading lines."""
+    prof = profile_variant("lighting", tmp_path, "narrow.toml", ("tolerance_percent = 5 ", "tolerance_percent = 3.8 "))
+    m, _, _ = demo("lighting")
+    res = search(m, load_profile(prof))
+    best = res.options[0]
+    assert best.feasible and best.knife_edge
+    text = search_text(res)
+    assert "knife-edge  short-shunt cumulative" in text and "knife-edge: the band is narrower" in text
+    # the demo as it stands (73 to 79 ohm) is settable
+    assert not any(o.knife_edge for o in demo("lighting")[2].feasible)
