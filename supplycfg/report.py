@@ -1257,7 +1257,7 @@ td.num { text-align: right; white-space: nowrap; }
 .card { border: 2px solid #1f4e79; border-radius: 6px; padding: .3rem .7rem .6rem; margin: .5rem 0; }
 .card h2 { margin-top: .3rem; }
 .why { margin: .1rem 0 .4rem; font-style: italic; }
-.why.small { font-size: .8rem; margin: 0 0 .3rem; }
+.why.small { font-size: .75rem; margin: 0 0 .2rem; line-height: 1.25; }
 .setting td:first-child { width: 42%; }
 .setting td:last-child { font-weight: bold; }
 .top { display: grid; grid-template-columns: minmax(0, 11fr) minmax(0, 9fr); gap: .6rem; align-items: start; }

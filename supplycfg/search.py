@@ -401,12 +401,11 @@ def warm_start_note(machine, profile):
         return None
     from .wording import connection_words
     best = res.feasible[0].setting
-    return (f"once warm it can: with the windings at {warm[0]:g} to {warm[1]:g} °C, {len(res.feasible)} "
-            f"setting{'s' if len(res.feasible) != 1 else ''} meet the job (the best {connection_words(best.connection)}"
-            f"{f', {best.series_turns:g} series turns' if best.series_turns else ''}); it is the cold end of the "
-            f"range ({t[0]:g} °C, the rheostat left as set) that stops it. Run the set up to temperature before the "
-            "job and set the field by the field ammeter once warm, then give winding_temperature_range_c = "
-            f"[{warm[0]:g}, {warm[1]:g}] (common practice)")
+    return (f"once warm it can: at {warm[0]:g} to {warm[1]:g} °C {len(res.feasible)} "
+            f"setting{'s' if len(res.feasible) != 1 else ''} meet the job (best: {connection_words(best.connection)}"
+            f"{f', {best.series_turns:g} series turns' if best.series_turns else ''}); the cold end ({t[0]:g} °C, "
+            "the rheostat left as set) stops it. Run the set up to temperature and set the field by the ammeter "
+            f"once warm; give winding_temperature_range_c = [{warm[0]:g}, {warm[1]:g}] (common practice)")
 
 
 def search(machine, profile, with_drive_check=True, advice=True, warm_check=True):

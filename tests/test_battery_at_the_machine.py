@@ -283,7 +283,7 @@ def test_a_job_stopped_only_by_the_cold_start_says_it_can_be_done_warm(tmp_path)
     res = search(m, p)
     assert not res.feasible
     warm = [n for n in res.notes if n.startswith("once warm it can")]
-    assert len(warm) == 1 and "[65, 75]" in warm[0] and "field ammeter" in warm[0]
+    assert len(warm) == 1 and "[65, 75]" in warm[0] and "set the field by the ammeter once warm" in warm[0]
     # the demo as it stands (65-75 degC) needs no such note
     assert not any(n.startswith("once warm") for n in demo("battery")[2].notes)
     size = required_drive_rating(m, p)

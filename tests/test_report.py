@@ -563,3 +563,22 @@ def test_a_near_miss_sheet_carries_what_the_search_says_would_fit(tmp_path):
     html = report.sheet_html(res, charts=False, date="2031-05-04")
     assert "Once warm it can" in md and "Once warm it can" in html
     assert NO_FIT_NOTE not in md.lower()
+
+
+@needs_print
+def test_near_miss_battery_sheet_keeps_its_notice_on_page_one(tmp_path):
+    """The near miss of the demo charge over 20-75 degC carries the search's notes on its card; page 1 still
+    holds the checklist and the standing notice (it had gone alone to page 2)."""
+    from supplycfg.machine import load_machine
+    from supplycfg.profile import load_profile
+    from supplycfg.search import search
+    text = (DEMO / "loads" / "battery-charging.toml").read_text(encoding="utf-8")
+    p = tmp_path / "cold.toml"
+    p.write_text(text.replace("winding_temperature_range_c = [65, 75]", "winding_temperature_range_c = [20, 75]"),
+                 encoding="utf-8")
+    res = search(load_machine(DEMO / "machines" / "charging-set.toml"), load_profile(p))
+    one, _ = _print_page_one(report.sheet_html(res, charts=False, date="2031-05-04"), tmp_path)
+    text = " ".join(one.split())
+    assert "Once warm it can" in text and "they come first." in text
+    for check, _ in report.checklist_rows(res, res.options[0]):
+        assert " ".join(check.split()[:3]) in text, check
