@@ -500,10 +500,13 @@ DIAL_HEADERS = ("Current", "Tap [turns]", "Diverter", "Field", "No-load voltage"
 #: the ohms give more current; the ammeter's reading gives the row's current whatever the temperature).
 DIAL_SETTING_WORDS = ("Set the tap (and diverter) with the arc out, then turn the rheostat until the field ammeter "
                       "reads the row's value at no load, whatever the winding temperature: the ohms are where to "
-                      "start (set by them on a cold machine, the current comes out higher). Stuck-electrode currents "
+                      "start (set by them on a cold machine, the current comes out higher). On an exciter of fixed voltage "
+                      "the field current falls as the field warms (by about a tenth from cold to hot): read the ammeter "
+                      "again once the set is warm and bring it back to the row's value. Stuck-electrode currents "
                       "(a short through the leads) are with cold windings, the worst case.")
 #: The same, short, for the printed card's first page.
-DIAL_SETTING_SHORT = "Set each row by the field ammeter at no load, taps only with the arc out; the ohms are a start."
+DIAL_SETTING_SHORT = ("Set each row by the field ammeter at no load, taps only with the arc out; the ohms are a start; "
+                      "read the ammeter again once the set is warm.")
 
 
 def dial_rows(option):
@@ -752,10 +755,12 @@ def ranking_line(result, option):
         return f"A near miss: it breaks {broken}."
     others = [o for o in feasible if o is not option]
     if getattr(option, "knife_edge", False):
-        behind = "" if option is feasible[0] else f", after option {feasible[0].rank} and the others one can set"
-        return (f"Meets every limit, ranked {option.rank} of {len(feasible)}{behind}, but only on a knife-edge: its "
-                "band is narrower than the meters can set it, so at the machine it is likely to miss; set it with a "
-                "finer instrument, or take a setting with a wider band.")
+        # the rule reads only figures and limits (a fleet row or a trial rating has no bands): the mark says it
+        settable = [o for o in feasible if not getattr(o, "knife_edge", False)]
+        other = (f"option {settable[0].rank} is the first one can set" if settable else
+                 "no setting that meets every limit can be set by the meters")
+        return (f"Meets every limit, ranked {option.rank} of {len(feasible)}, but only on a knife-edge: its band is "
+                f"narrower than the meters can set it, so at the machine it is likely to miss; {other}.")
     _, words = objective_value(option, kind)
     margin = fmt(100 * option.smallest_margin, "%")
     if not others:
@@ -769,8 +774,6 @@ def ranking_line(result, option):
         from .search import OBJECTIVE_TIE_FRACTION, tie_break
         why = tie_break(option, nxt)
         head = f"Ranked first of {len(feasible)} settings that meet every limit: {words}"
-        if why == "settable":
-            return f"{head} (next, option {nxt.rank}: {nwords}, but only on a knife-edge)."
         if why == "objective":
             return f"{head} (next, option {nxt.rank}: {nwords})."
         tie = f"; option {nxt.rank} ({nwords}) is within {100 * OBJECTIVE_TIE_FRACTION:g} %, a tie, and "
@@ -866,6 +869,12 @@ def checklist_rows(result, option, run=None):
         nl += " over the speed and winding-temperature range"
     if kind == "welding":
         ends = [cs for cs in o.current_settings or [] if _given(cs.get("no_load_voltage_v"))]
+        # over every row of the dial: a tap change mid-range can put the highest no-load voltage inside it
+        dial_nl = [_mapping(r) for r in option_value(o, "dial") or []]
+        dial_nl = [r for r in dial_nl if _given(r.get("no_load_voltage_v")) and _given(r.get("current_a"))]
+        if dial_nl:
+            ends = [min(dial_nl, key=lambda r: r["no_load_voltage_v"]),
+                    max(dial_nl, key=lambda r: r["no_load_voltage_v"])]
         if len(ends) == 2 and all(_given(cs.get("current_a")) for cs in ends):
             nl = " to ".join(f"{fmt(cs['no_load_voltage_v'], 'V')} at the {fmt(cs['current_a'], 'A')} setting"
                              for cs in ends)

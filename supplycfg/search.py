@@ -50,13 +50,33 @@ KNIFE_EDGE_BAND_FRACTION = 0.03
 #: 50 to 100 steps, and a slide wire is set by hand to about as fine (common practice).
 KNIFE_EDGE_RHEOSTAT_SHARE = 0.01
 
+def setting_is_knife_edge(control, readings, band, field_current_a=None):
+    """Whether one field setting (its ``readings`` and ``band``, as :func:`supplycfg.readings.readings_and_band`
+    gives them) lies in a window a person cannot set by the meters: narrower than its reading is written,
+    a rheostat window under :data:`KNIFE_EDGE_RHEOSTAT_SHARE` of the travel, or a field-current window
+    under :data:`KNIFE_EDGE_BAND_FRACTION` of the current [A] (``field_current_a``, for that control)."""
+    if not readings:
+        return False
+    if readings.get("settable") is False:
+        return True
+    exact = (band or {}).get("control_exact")
+    if not exact or not all(math.isfinite(x) for x in exact):
+        return False
+    width = abs(exact[1] - exact[0])
+    if control == "rheostat":
+        ohm, travel = readings.get("rheostat_ohm"), readings.get("rheostat_travel_percent")
+        return bool(ohm and travel) and width < KNIFE_EDGE_RHEOSTAT_SHARE * ohm * 100.0 / travel
+    u = field_current_a
+    return control == "field-current" and u is not None and u > 0 and width < KNIFE_EDGE_BAND_FRACTION * u
+
+
 #: Limits that bound one quantity, by the requirement they make up (each job's ``LIMIT_GROUPS``).
 LIMIT_REQUIREMENTS = {k: v for job in JOBS.values() for k, v in getattr(job, "LIMIT_GROUPS", {}).items()}
 
 #: The words of the ranking rule; ``{objective}`` is the job's objective label.
 RANKING_RULE = (
-    "Ranking: options that meet every limit first (those whose band is narrower than the meters can set it, "
-    "knife-edge, after the others), by {objective}; objectives within 2 % of each other "
+    "Ranking: options that meet every limit first, by {objective} (one whose band is narrower than the meters "
+    "can set it is marked knife-edge where it stands); objectives within 2 % of each other "
     "tie, and a tie goes to the simpler rig (no diverter, fewer series turns in circuit, no exciter needed), "
     "then to the larger least margin (counted in steps of 0.1 % of its limit), then to the better objective. "
     "Then the options without a stop caution, by the number of requirements "
@@ -123,21 +143,14 @@ class Option:
         """The option meets every limit only in a band a person cannot set it in by the meters: narrower
         than its reading can be written, or its field-current band narrower than
         :data:`KNIFE_EDGE_BAND_FRACTION` of the reading. At the machine it is likely to miss."""
-        if not (self.feasible and self.readings):
+        if not self.feasible:
             return False
-        if self.readings.get("settable") is False:
-            return True
-        exact = (self.band or {}).get("control_exact")
-        if not exact or not all(math.isfinite(x) for x in exact):
-            return False
-        width = abs(exact[1] - exact[0])
-        if self.control == "rheostat":
-            ohm, travel = self.readings.get("rheostat_ohm"), self.readings.get("rheostat_travel_percent")
-            if not ohm or not travel:
-                return False
-            return width < KNIFE_EDGE_RHEOSTAT_SHARE * ohm * 100.0 / travel
-        u = self.setting.field_current_a
-        return self.control == "field-current" and u is not None and u > 0 and width < KNIFE_EDGE_BAND_FRACTION * u
+        if self.readings:
+            return setting_is_knife_edge(self.control, self.readings, self.band, self.setting.field_current_a)
+        # a welding dial: knife-edge where any row is (each row is set by the meters on its own)
+        rows = (self.extras or {}).get("dial") or []
+        return any(setting_is_knife_edge(self.control, r.get("readings"), r.get("band"), r.get("field_current_a"))
+                   for r in rows)
 
     @property
     def requirements_broken(self):
@@ -319,15 +332,12 @@ def tie_break(first, second, tie=OBJECTIVE_TIE_FRACTION):
     Returns
     -------
     str
-        ``settable`` (only ``second`` is a knife-edge: its band is narrower
-        than its reading can be set), ``objective`` (their objectives do not tie), ``diverter``, ``series
+        ``objective`` (their objectives do not tie), ``diverter``, ``series
         turns`` or ``exciter`` (a tie that goes to the simpler rig, by its
         first difference), ``margin`` (the larger least margin),
         ``objective-in-tie`` (alike margins: the better objective) or
         ``order`` (nothing tells them apart; a fixed order of settings).
     """
-    if first.knife_edge != second.knife_edge:
-        return "settable"
     if not _ties(first.objective, second.objective, tie):
         return "objective"
     for name, a, b in zip(("diverter", "series turns", "exciter"), first.rig, second.rig):
@@ -352,11 +362,11 @@ def rank_options(options, tie=OBJECTIVE_TIE_FRACTION):
         return (s.connection, s.series_turns or 0.0, s.diverter_ohm or 0.0)
 
     feas = sorted((o for o in options if o.feasible),
-                  key=lambda o: (o.knife_edge, o.objective is None, o.objective if o.objective is not None else 0.0,
+                  key=lambda o: (o.objective is None, o.objective if o.objective is not None else 0.0,
                                  o.rig, -o.smallest_margin, stable(o)))
     groups = []
     for o in feas:
-        if groups and groups[-1][0].knife_edge == o.knife_edge and _ties(groups[-1][0].objective, o.objective, tie):
+        if groups and _ties(groups[-1][0].objective, o.objective, tie):
             groups[-1].append(o)
         else:
             groups.append([o])
@@ -406,6 +416,21 @@ def warm_start_note(machine, profile):
             f"{f', {best.series_turns:g} series turns' if best.series_turns else ''}); the cold end ({t[0]:g} °C, "
             "the rheostat left as set) stops it. Run the set up to temperature and set the field by the ammeter "
             f"once warm; give winding_temperature_range_c = [{warm[0]:g}, {warm[1]:g}] (common practice)")
+
+
+def exciter_wanted_notes(options):
+    """Where options break nothing but the exciter the machine lacks: a note of what supply would make them
+    meet the job (the highest voltage and power any of them needs), or none."""
+    only = [o for o in options if o.needs_missing_exciter and o.failed == ["exciter_supply"]]
+    if not only:
+        return []
+    need = sorted(((n.get("voltage_v") or 0.0, n.get("power_w") or 0.0)
+                   for n in (o.extras.get("exciter") or {} for o in only)))
+    (v_lo, w_lo), v_hi = need[0], need[-1][0]
+    more = (f"; {v_hi:.3g} V and {max(w for _, w in need):.3g} W serve all {len(only)}" if len(only) > 1 else "")
+    return [f"the machine file gives no exciter (excitation_voltage_v): with a separate field supply of "
+            f"{v_lo:.3g} V and {w_lo:.3g} W (an exciter, or a battery of that voltage) a setting meets the job"
+            f"{more} (see the options that break only 'field current within the exciter's reach')"]
 
 
 def search(machine, profile, with_drive_check=True, advice=True, warm_check=True):
@@ -511,6 +536,7 @@ def search(machine, profile, with_drive_check=True, advice=True, warm_check=True
         if with_drive_check and warm_check:
             warm = warm_start_note(machine, profile)
             notes += [warm] if warm else []
+        notes += exciter_wanted_notes(options)
     return SearchResult(machine, profile, options, profile_cautions(machine, profile), int(evaluated),
                         time.perf_counter() - t0, notes, need)
 

@@ -226,11 +226,12 @@ def test_a_near_miss_off_both_ends_of_the_band_breaks_one_requirement_not_two():
     assert rank_options([low, both])[0] is both
 
 
-def test_a_knife_edge_setting_ranks_after_settable_ones_and_says_so(tmp_path):
+def test_a_knife_edge_setting_is_marked_and_points_to_one_that_can_be_set(tmp_path):
     """Regression (newcomer review): a lighting setting whose every limit holds only for rheostat 88.2 to
     88.3 ohm on a 250 ohm rheostat was listed 'fit yes' like any other. A band narrower than its reading
-    can be set is not a setting a person can make (common practice): it is marked knife-edge and ranks
-    after the settable options whatever its objective."""
+    can be set is not a setting a person can make (common practice): it is marked knife-edge where the rule
+    puts it (the rule reads only figures and limits, so a fleet row ranks the same), and its line names the
+    first option one can set."""
     from supplycfg.circuit import Setting
     from supplycfg.report import card_heading, ranking_line, status_text
     from supplycfg.search import Option, SearchResult, rank_options
@@ -244,11 +245,13 @@ def test_a_knife_edge_setting_ranks_after_settable_ones_and_says_so(tmp_path):
 
     edge, wide = fit(88.3, False, -0.05), fit(60.0, True, -0.01)
     assert edge.knife_edge and not wide.knife_edge
-    assert rank_options([edge, wide])[0] is wide
+    ranked = rank_options([wide, edge])
+    assert ranked[0] is edge
+    m, p, _ = demo("lighting")
+    assert f"option {wide.rank} is the first one can set" in ranking_line(SearchResult(m, p, ranked, [], 2, 0.0, []), edge)
     only = fit(88.3, False, -0.05)
     rank_options([only])
     assert "knife-edge" in status_text(only) and "knife-edge" in card_heading(only)
-    m, p, _ = demo("lighting")
     res = SearchResult(m, p, [only], [], 1, 0.0, [])
     assert "knife-edge" in ranking_line(res, only)
 
