@@ -973,6 +973,15 @@ def objective(figures):
 def option_cautions(machine, profile, setting, f):
     """Welding cautions of one setting from its figures ``f``."""
     out = []
+    vi, strike = f.get("idle_no_load_voltage_v"), profile.welding.min_no_load_voltage_v
+    if vi is not None and strike is not None and vi < strike and profile.drive.idle_speed_rpm is not None:
+        out.append(caution("welding-strike-at-idle", "note",
+                           f"At the engine's idle the no-load voltage is about {vi:.0f} V, below the {strike:g} V an "
+                           "arc needs to strike: let the engine come up to speed before striking (touch the work to "
+                           "wake an automatic idle, or switch the idle off for electrodes that need the full "
+                           "no-load voltage).",
+                           "the job's strike voltage; engine idle from the profile (common practice)",
+                           idle_no_load_voltage_v=vi, min_no_load_voltage_v=strike))
     pk, lim = f.get("no_load_peak_voltage_v"), f.get("no_load_limit_v")
     if pk is None and lim is not None:
         out.append(caution("welding-no-load-voltage-unknown", "stop",
