@@ -278,3 +278,13 @@ def test_the_set_says_to_strike_only_at_full_speed_when_idle_will_not_strike():
     res = search(load_machine(MACHINE), load_profile(PROFILE))
     c = [x for x in res.options[0].cautions if x.rule == "welding-strike-at-idle"]
     assert c and "before striking" in c[0].message
+
+
+def test_long_leads_are_not_blamed_on_the_machines_rated_voltage(tmp_path):
+    """Second welding review: with 0.1 ohm leads the set works at 45 V loaded, and the rated-voltage rule
+    (IEC 60034-1 zone A, recalled) said 'use a machine rated for the job's voltage'; the cause is the 18 V
+    the leads drop, which the lead note names with its cure. A welding set leaves that machine rule out."""
+    prof = variant(tmp_path, "leads.toml", ("cable_resistance_ohm = 0.02 ", "cable_resistance_ohm = 0.1 "))
+    res = search(load_machine(MACHINE), load_profile(prof))
+    rules = {c.rule for o in res.options for c in o.cautions} | {c.rule for c in res.cautions}
+    assert "over-voltage" not in rules and "welding-lead-drop" in rules

@@ -37,7 +37,11 @@ def option_cautions(machine, profile, setting, f):
     -------
     list of Caution
     """
-    return (JOBS[profile.kind].option_cautions(machine, profile, setting, f) + setting_cautions(machine, setting, f)
+    job = JOBS[profile.kind]
+    # a job may leave out a machine rule that does not fit it (its own rules cover that hazard)
+    skip = set(getattr(job, "MACHINE_RULES_LEFT_OUT", ()))
+    return (job.option_cautions(machine, profile, setting, f)
+            + [c for c in setting_cautions(machine, setting, f) if c.rule not in skip]
             + drive_cautions(machine, profile.drive, f))
 
 

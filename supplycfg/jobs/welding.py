@@ -1046,6 +1046,11 @@ def no_load_cautions(machine, profile, setting, no_load_voltage_v):
     return out
 
 
+#: Machine rules that do not fit a welding set: its loaded voltage sits far below its no-load voltage (which
+#: the welding limits hold), and a loaded voltage above the plate comes from long leads, whose own note says
+#: the cure; the rated-voltage rule's 'use a machine rated for the job's voltage' misleads (second welding review).
+MACHINE_RULES_LEFT_OUT = ("over-voltage",)
+
 #: Voltage the welding leads may drop at the top current before a note says so [V]: welding-cable charts
 #: size the leads for about 4 V (common practice, from memory).
 LEAD_DROP_NOTE_V = 4.0
