@@ -19,7 +19,7 @@ from .errors import InputError
 from .bench import MAX_BENCH_REPEAT
 from .files import check_output_path, dumps_json
 from .text import visible
-from .wording import connection_words, source_text
+from .wording import caution_lines, connection_words
 
 SETTING_OPTIONS = {"rheostat_ohm": "--rheostat-ohm", "field_current_a": "--field-current-a",
                    "series_turns": "--series-turns", "diverter_ohm": "--diverter-ohm",
@@ -342,15 +342,6 @@ def _setting_figures(machine, st):
     return f
 
 
-def _caution_lines(cautions):
-    if not cautions:
-        return []
-    out = ["", "Cautions:"]
-    for c in sorted(cautions, key=lambda c: ["stop", "warn", "note"].index(c.severity)):
-        out.append(f"  [{c.severity}] {c.message} ({source_text(c.basis)})")
-    return out
-
-
 def table(rows, headers, fmt=None, names=None):
     """Plain fixed-width table; ``names`` gives each key's heading (words and unit)."""
     fmt = fmt or {}
@@ -400,7 +391,11 @@ def cmd_curve(args, out):
         # short-circuit current is a matter for the protection
         peak = max(abs(p["armature_current_a"]) for p in pts)
         f["min_generated_emf_v"] = min(p["generated_emf_v"] for p in pts)
-    cautions = command_cautions(m, st, f) + short_circuit_cautions(m, peak, c.short_circuit_current_a is None)
+    # with a job's profile its rules apply to the setting, and its cautions of the job as a whole (a hot bank)
+    # (the battery's setting rules as `point` applies them to a battery load: the plan's are `charge`'s)
+    load = "battery" if prof is not None and prof.kind == "battery" else None
+    cautions = (command_cautions(m, st, f, load=load) + short_circuit_cautions(m, peak, c.short_circuit_current_a is None)
+                + _job_cautions(m, prof))
     # (the curve runs on to short circuit: the drive is judged up to the machine's own rating)
     rated = [p for p in pts if abs(p["armature_current_a"]) <= m.rated_armature_current_a]
     power = [p["shaft_power_kw"] for p in rated if p.get("shaft_power_kw") is not None]
@@ -434,8 +429,16 @@ def cmd_curve(args, out):
         "series_field_current_a", "generated_emf_v", "speed_rpm", "shaft_power_kw", "efficiency", "extrapolated"])
         + (["converged"] if not all(r["converged"] for r in rows) else []), names=point_words(st.connection)))
     lines += _notes(c.notes, c.extrapolated, c.converged, rows)
-    lines += _caution_lines(cautions)
+    lines += caution_lines(cautions)
     return "\n".join(lines)
+
+
+def _job_cautions(machine, profile):
+    """The cautions of a profile's job as a whole (whatever the setting), or none without a profile."""
+    if profile is None:
+        return []
+    from .jobs import profile_cautions
+    return profile_cautions(machine, profile)
 
 
 def _finite(x):
@@ -519,7 +522,7 @@ def cmd_point(args, out):
     if normal is not None:
         f["max_armature_current_a"] = abs(normal["armature_current_a"])
         f["min_generated_emf_v"] = normal["generated_emf_v"]
-    cautions = command_cautions(m, st, f, load=kind) + operating_point_cautions(ops)
+    cautions = command_cautions(m, st, f, load=kind) + operating_point_cautions(ops) + _job_cautions(m, prof)
     if normal is not None:
         tq = normal.get("drive_torque_percent")
         cautions += drive_overload_cautions(drive, normal.get("shaft_power_kw"), torque_percent=tq if _finite(tq) else None)
@@ -558,7 +561,7 @@ def cmd_point(args, out):
             lines.append("no operating point: the characteristic does not meet this load")
     if not ops.converged and not ops.runaway:
         lines.append("warning: a point did not converge; " + ops.message)
-    lines += _caution_lines(cautions)
+    lines += caution_lines(cautions)
     return "\n".join(lines)
 
 
@@ -599,7 +602,7 @@ def cmd_buildup(args, out):
                           "closed circuit (armature, series field and load) of lower total resistance",
                           f"critical load resistance {r_load:.4g} ohm (the circuit's less the armature and the series "
                           "field at this temperature): a load of more than that does not build it up"]
-                         + _caution_lines(cautions))
+                         + caution_lines(cautions))
     if args.connection != "shunt":
         raise InputError("command line", "--connection", f"is {args.connection!r}; allowed: shunt, series")
     if args.series_turns is not None:
@@ -628,7 +631,7 @@ def cmd_buildup(args, out):
                           f"critical field-circuit resistance {se.critical_field_resistance_ohm:.4g} ohm at this speed: "
                           "the field circuit (winding and rheostat) must stay below it to build up",
                           "give --rheostat-ohm for the build-up, the no-load voltage and the critical speed"]
-                         + _caution_lines(cautions))
+                         + caution_lines(cautions))
     lines = [f"{_name(m, args)}: shunt field at no load, {se.setting.describe()}",
              f"field circuit {se.field_circuit_resistance_ohm:.4g} ohm; critical {se.critical_field_resistance_ohm:.4g} ohm at this speed; "
              + (f"critical speed {se.critical_speed_rpm:.5g} rpm" if se.critical_speed_rpm <= MAX_SPEED_RPM else
@@ -651,7 +654,7 @@ def cmd_buildup(args, out):
         lines.append(f"- {r}")
     for n in se.notes:
         lines.append(f"note: {n}")
-    lines += _caution_lines(cautions)
+    lines += caution_lines(cautions)
     return "\n".join(lines)
 
 

@@ -749,6 +749,8 @@ def ranking_line(result, option):
     if not option.feasible:
         if any(c.severity == "stop" for c in option.cautions):
             return "Not usable: it carries a stop caution (see the cautions)."
+        if "stop_caution" in option.failed:
+            return "Not usable: the job carries a stop whatever the setting (see the cautions); for reference only."
         broken = broken_limits_text(option.failed)
         if not feasible:
             return f"No setting meets every limit; this one comes closest by the rule and breaks: {broken}."
@@ -1018,10 +1020,14 @@ def no_load_limit_text(margins):
         m = _mapping((margins or {}).get(name))
         if not (_given(m.get("value")) and _given(m.get("limit"))):
             continue
+        # a broken limit is said as broken: the Expected column is what a technician ticks against
+        broken = m.get("fraction") is not None and m["fraction"] < 0
         if m.get("kind") == "min":
-            parts.append(f"lowest {fmt(m['value'], 'V')} ≥ {fmt(m['limit'], 'V')} {words}")
+            parts.append(f"lowest {fmt(m['value'], 'V')} BELOW the {fmt(m['limit'], 'V')} needed {words}" if broken
+                         else f"lowest {fmt(m['value'], 'V')} ≥ {fmt(m['limit'], 'V')} {words}")
         else:
-            parts.append(f"{words} {fmt(m['value'], 'V')} ≤ {fmt(m['limit'], 'V')}")
+            parts.append(f"{words} {fmt(m['value'], 'V')} ABOVE the {fmt(m['limit'], 'V')} limit" if broken
+                         else f"{words} {fmt(m['value'], 'V')} ≤ {fmt(m['limit'], 'V')}")
     return "; ".join(parts)
 
 

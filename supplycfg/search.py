@@ -124,8 +124,8 @@ class Option:
 
     @property
     def usable(self):
-        """False when a ``stop`` caution rules the setting out."""
-        return not any(c.severity == "stop" for c in self.cautions)
+        """False when a ``stop`` caution rules the setting out, its own or the job's (a hot bank)."""
+        return "stop_caution" not in self.failed and not any(c.severity == "stop" for c in self.cautions)
 
     @property
     def needs_missing_exciter(self):
@@ -483,6 +483,8 @@ def search(machine, profile, with_drive_check=True, advice=True, warm_check=True
     if table is not None:
         figs.update({k: v for k, v in table.summary().items() if k not in figs})
     options = []
+    job_cautions = profile_cautions(machine, profile)
+    job_stop = any(c.severity == "stop" for c in job_cautions)
     candidate_of = {}  # id of each option -> its candidate row (for its drive points once merged)
     for i in range(nb):
         margins, failed = {}, []
@@ -510,7 +512,8 @@ def search(machine, profile, with_drive_check=True, advice=True, warm_check=True
         conv = bool(np.asarray(figs["converged"])[i] >= 1)
         if not conv:
             failed.append("solve_not_converged")
-        if any(c.severity == "stop" for c in cautions):
+        if job_stop or any(c.severity == "stop" for c in cautions):
+            # a stop of the job as a whole (a hot bank) holds whatever the setting: no option is usable
             failed.append("stop_caution")
         fracs = [-math.inf if m["fraction"] is None else m["fraction"] for m in margins.values()]
         xmax = f.get("max_net_mmf_a")
@@ -537,7 +540,7 @@ def search(machine, profile, with_drive_check=True, advice=True, warm_check=True
             warm = warm_start_note(machine, profile)
             notes += [warm] if warm else []
         notes += exciter_wanted_notes(options)
-    return SearchResult(machine, profile, options, profile_cautions(machine, profile), int(evaluated),
+    return SearchResult(machine, profile, options, job_cautions, int(evaluated),
                         time.perf_counter() - t0, notes, need)
 
 

@@ -494,8 +494,11 @@ def charge_text(run):
     sp_words = f"{sp:.0f} rpm at no load, lower under load on the {c['drive']}" if c.get("drive") else f"{sp:g} rpm"
     at = (f" at {sp_words}, windings {c.get('winding_temperature_c', run.setting.winding_temperature_c):g} degC"
           if c or run.setting.speed_rpm else "")
-    lines = [f"Charge run: {visible(run.machine_label)} on {visible(run.profile_label)}",
-             f"setting: {connection_words(run.setting.connection)} (--connection {run.setting.connection}), "
+    stops = [c for c in getattr(run, "cautions", None) or [] if c.severity == "stop"]
+    lines = [f"Charge run: {visible(run.machine_label)} on {visible(run.profile_label)}"]
+    # a stop heads the run: what follows is for reference, not a charge to start
+    lines += [f"STOP: {c.message} The run below is for reference only." for c in stops]
+    lines += [f"setting: {connection_words(run.setting.connection)} (--connection {run.setting.connection}), "
              f"{run.setting.describe()}" + (f" ({run.setting_source})" if run.setting_source else "")
              + ("; simulated at these exact values, set the meter readings of the plan below"
                 if any(q.get("readings") for q in run.stages) else ""),

@@ -75,6 +75,12 @@ def required_drive_rating(machine, profile, tolerance=RATING_TOLERANCE):
     """
     drive = profile.drive
     count = 0
+    from .jobs import profile_cautions
+    stops = [c for c in profile_cautions(machine, profile) if c.severity == "stop"]
+    if stops:
+        # a stop of the job as a whole holds whatever the drive: no rating is worth searching for
+        return SizeResult(machine, profile, None, None, None, None, 0,
+                          ["STOP, whatever the setting and the drive: " + c.message for c in stops])
 
     def trial(kw):
         nonlocal count
@@ -194,5 +200,15 @@ def size_text(res):
         lines.append(f"note: {n}")
     if res.required_drive_kw is not None:
         lines.append(f"note: {rating_margin_note(res.option, p.drive)}")
+    if o is not None:
+        # the setting printed above is one to make: its cautions and the job's go with it, as in `search`
+        from .wording import caution_lines
+        lines += caution_lines(list(o.cautions) + list(job_cautions(res)))
     lines.append(f"{res.searches} searches")
     return "\n".join(lines)
+
+
+def job_cautions(res):
+    """The job's own cautions (whatever the setting) for a size result."""
+    from .jobs import profile_cautions
+    return profile_cautions(res.machine, res.profile)

@@ -151,3 +151,13 @@ def visible_text(text):
     if s.isprintable():
         return s
     return "".join(_escape_char(ch) for ch in s)
+
+
+def caution_lines(cautions):
+    """The cautions block of a command's text: severity first, each with its source."""
+    if not cautions:
+        return []
+    out = ["", "Cautions:"]
+    for c in sorted(cautions, key=lambda c: ["stop", "warn", "note"].index(c.severity)):
+        out.append(f"  [{c.severity}] {c.message} ({source_text(c.basis)})")
+    return out

@@ -299,3 +299,25 @@ def test_a_stage_whose_current_rises_says_so():
     from supplycfg.report import stage_current_rise_text
     assert "rises from 23.4 to 25 A" in stage_current_rise_text({"start_current_a": 23.4, "end_current_a": 25.0})
     assert stage_current_rise_text({"start_current_a": 19.93, "end_current_a": 18.66}) == ""
+
+
+def test_a_stop_of_the_job_as_a_whole_reaches_every_command(tmp_path, capsys):
+    """Safety review: a bank at 60 degC (above the 55 degC stop, battery makers' instructions, recalled) was
+    'STOP, whatever the setting' in search's job cautions, yet every option was 'fit yes' and usable, `size`
+    and `fleet` showed no stop, `charge` called its setting the best feasible and `curve --profile` said
+    nothing. Now no option is usable, size stops at once, charge and curve lead with or carry the stop."""
+    from supplycfg.machine import load_machine
+    from supplycfg.sizing import required_drive_rating
+    prof = profile_variant("battery", tmp_path, "hot.toml", ("temperature_c = 25 ", "temperature_c = 60 "))
+    m, p = load_machine(MACHINE), load_profile(prof)
+    res = search(m, p)
+    assert res.options and not any(o.usable or o.feasible for o in res.options)
+    size = required_drive_rating(m, p)
+    assert size.required_drive_kw is None and any(n.startswith("STOP") for n in size.notes)
+    assert main(["charge", str(MACHINE), str(prof)]) == 0
+    assert capsys.readouterr().out.splitlines()[1].startswith("STOP: The bank is at 60")
+    assert main(["curve", str(MACHINE), "--connection", "long-shunt-cumulative", "--series-turns", "8",
+                 "--rheostat-ohm", "60", "--profile", str(prof), "--json"]) == 0
+    rules = {(c["rule"], c["severity"]) for c in json.loads(capsys.readouterr().out)["cautions"]}
+    assert ("battery-temperature", "stop") in rules
+    assert any(sev == "stop" and "series" in rule for rule, sev in rules)

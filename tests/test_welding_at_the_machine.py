@@ -288,3 +288,14 @@ def test_long_leads_are_not_blamed_on_the_machines_rated_voltage(tmp_path):
     res = search(load_machine(MACHINE), load_profile(prof))
     rules = {c.rule for o in res.options for c in o.cautions} | {c.rule for c in res.cautions}
     assert "over-voltage" not in rules and "welding-lead-drop" in rules
+
+
+def test_a_broken_no_load_limit_is_not_written_as_met(tmp_path):
+    """Safety review: with a 60 V site rule the checklist's Expected column read 'mean 65.35 V ≤ 60 V', a
+    false inequality on the limit that protects against shock (US 29 CFR 1910.254(b)(3) kind of rule; IEC
+    60974-1). A broken limit is said as broken."""
+    from supplycfg.report import no_load_limit_text
+    prof = variant(tmp_path, "site60.toml", ("max_no_load_voltage_v = 100 ", "max_no_load_voltage_v = 60 "))
+    o = search(load_machine(MACHINE), load_profile(prof)).options[0]
+    text = no_load_limit_text(o.margins)
+    assert "ABOVE the 60 V limit" in text and "≤ 60 V" not in text
