@@ -141,10 +141,12 @@ def setting_cautions(machine, setting, f):
                       max_terminal_voltage_v=vt, rated_voltage_v=machine.rated_voltage_v))
     vnl = f.get("no_load_voltage_max_v")
     if vnl is not None and vnl > (1 + NO_LOAD_ABOVE_RATED_FRACTION) * machine.rated_voltage_v:
-        out.append(caution("no-load-high", "note",
+        # a charging set sits at no load before its cut-out closes and whenever it opens (safety review)
+        out.append(caution("no-load-high", "warn",
                       f"With the load off the machine gives up to {above_rated_words(vnl, machine)}: "
-                      "the field set for the job runs it high at no load. Keep the no-load run short, and use a "
-                      "voltmeter whose range covers it.",
+                      "the field set for the job runs it high at no load, stressing commutator and insulation, and "
+                      "anything else left on its terminals sees it. Keep the no-load run short, disconnect other "
+                      "loads, and use a voltmeter whose range covers it.",
                       "a shunt generator's no-load voltage is about 5-10 % above its rated (regulation; common "
                       "practice, from memory)", no_load_voltage_max_v=vnl, rated_voltage_v=machine.rated_voltage_v))
     top = f.get("top_speed_rpm")

@@ -406,7 +406,8 @@ def cmd_curve(args, out):
     res = {"setting": st.as_dict(), "points": pts, "no_load_voltage_v": c.no_load_voltage_v,
            "short_circuit_current_a": c.short_circuit_current_a, "max_load_current_a": c.max_load_current_a,
            "regulation_percent": c.regulation_percent, "extrapolated": c.extrapolated,
-           "converged": c.converged, "notes": c.notes, "cautions": [x.as_dict() for x in cautions]}
+           "converged": c.converged, "notes": c.notes, "cautions": [x.as_dict() for x in cautions],
+           "notice": STANDING_NOTICE}
     if args.json:
         return res
     lines = [f"{_name(m, args)}: {connection_words(st.connection)}, {st.describe()}",
@@ -532,7 +533,7 @@ def cmd_point(args, out):
     res = {"setting": st.as_dict(), "load": load.label, "operating_points": pts,
            "sits_at": None if normal is None else ops.points.index(normal), "runaway": ops.runaway,
            "message": ops.message or ("" if pts else "no operating point: the characteristic does not meet this load"),
-           "cautions": [c.as_dict() for c in cautions], "converged": ops.converged}
+           "cautions": [c.as_dict() for c in cautions], "converged": ops.converged, "notice": STANDING_NOTICE}
     if args.json:
         return res
     lines = [f"{_name(m, args)}: {connection_words(st.connection)}, {st.describe()}; load: {load.label}", ""]
@@ -594,7 +595,8 @@ def cmd_buildup(args, out):
         # what the user can choose is the load: the circuit's critical value less the machine's own windings
         r_load = r - float(circ.ra[0]) - float(circ.rbr[0])
         res = {"connection": "series", "setting": st.as_dict(), "critical_circuit_resistance_ohm": r,
-               "critical_load_resistance_ohm": r_load, "cautions": [x.as_dict() for x in cautions]}
+               "critical_load_resistance_ohm": r_load, "cautions": [x.as_dict() for x in cautions],
+               "notice": STANDING_NOTICE}
         if args.json:
             return res
         return "\n".join([f"{_name(m, args)}: series connection, {st.describe()}",
@@ -623,7 +625,7 @@ def cmd_buildup(args, out):
            "stall_voltage_v": se.stall_voltage_v if given else None,
            "reasons": se.reasons if given else [], "runaway": se.runaway if given else None,
            "notes": se.notes if given else [], "extrapolated": se.extrapolated if given else None,
-           "converged": se.converged, "cautions": [x.as_dict() for x in cautions]}
+           "converged": se.converged, "cautions": [x.as_dict() for x in cautions], "notice": STANDING_NOTICE}
     if args.json:
         return res
     if not given:

@@ -1229,7 +1229,7 @@ def sheet_markdown(result, rank=None, run=None, date=None):
     lines += ["## Wiring", ""] + [f"{k}. {md_esc(step)}" for k, step in enumerate(w.steps, 1)] + [""]
     lines += ["## Check at the machine", ""]
     lines += _md_table(CHECKLIST_HEADERS, [(c, e, "", "") for c, e in checklist_rows(result, o, run)]) + [""]
-    lines += [md_esc(cautions_pointer(o, result, "below")), "", "---", ""]
+    lines += [md_esc(cautions_pointer(o, result, "below")), "", f"*{md_esc(STANDING_NOTICE)}*", "", "---", ""]
     if plan_table(o):
         lines += ["## Charge plan in full", ""] + _md_table(PLAN_HEADERS, plan_table(o)) + [""]
         lines += _md_table(("Reverse-current cut-out", "Figure"), cutout_rows(o)) + [""]

@@ -290,3 +290,16 @@ def test_fuzzed_command_lines_name_the_option_and_the_reason(capsys):
                  "--line-slope-ohm", "1e-9", "--json"]) == 0
     res = json.loads(capsys.readouterr().out)
     assert res["operating_points"] == [] and "does not meet this load" in res["message"]
+
+
+def test_every_json_output_carries_the_standing_notice(capsys):
+    """Safety review: curve, point and buildup JSON had no notice while search, charge, size and fleet did,
+    and the README says every command carries it."""
+    from supplycfg import STANDING_NOTICE
+    from supplycfg.cli import main
+    for argv in (["curve", str(MACHINE), "--connection", "shunt", "--rheostat-ohm", "30", "--points", "3"],
+                 ["point", str(MACHINE), "--connection", "shunt", "--rheostat-ohm", "30", "--load-ohm", "5"],
+                 ["buildup", str(MACHINE), "--rheostat-ohm", "30"],
+                 ["buildup", str(MACHINE), "--connection", "series", "--series-turns", "24"]):
+        assert main(argv + ["--json"]) == 0
+        assert json.loads(capsys.readouterr().out)["notice"] == STANDING_NOTICE, argv[0]

@@ -403,10 +403,11 @@ def test_caution_welding_duty_cycle():
 
 
 def test_caution_increased_shock_hazard():
-    """Increased hazard of electric shock (IEC 60974-1, seen) -> note with the extra measures."""
+    """Increased hazard of electric shock (IEC 60974-1, seen) -> a warning with the extra measures (required
+    measures, not background: safety review)."""
     m, hazard = _welding_profile(environment="increased-shock-hazard")
     st = Setting("separate-differential", series_turns=3, rheostat_ohm=20)
-    assert _rules(m, hazard, st, {})["welding-increased-hazard"].severity == "note"
+    assert _rules(m, hazard, st, {})["welding-increased-hazard"].severity == "warn"
     _, normal_env = _welding_profile(environment="normal")
     assert "welding-increased-hazard" not in _rules(m, normal_env, st, {})
 

@@ -84,7 +84,7 @@ def test_curve_and_point_apply_the_welding_no_load_rules(tmp_path, capsys, comma
                  "--rheostat-ohm", "10.3", "--profile", str(prof), *extra, "--json"]) == 0
     rules = {c["rule"]: c["severity"] for c in json.loads(capsys.readouterr().out)["cautions"]}
     assert rules.get("welding-no-load-local-limit") == "stop"
-    assert rules.get("welding-increased-hazard") == "note"
+    assert rules.get("welding-increased-hazard") == "warn"
 
 
 def test_no_load_below_the_strike_voltage_is_said(capsys):

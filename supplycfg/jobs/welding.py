@@ -1021,7 +1021,8 @@ def option_cautions(machine, profile, setting, f):
                       "common practice: series-field links and diverter switches are set off load",
                       tap_changes=n))
     if profile.welding.environment == "increased-shock-hazard":
-        out.append(caution("welding-increased-hazard", "note",
+        # required measures, not background (safety review): a warning, counted on the sheet's first page
+        out.append(caution("welding-increased-hazard", "warn",
                       environment("increased-shock-hazard").precautions.capitalize() + ".",
                       "IEC 60974-1 increased hazard of electric shock (seen); measures are common practice"))
     return out
