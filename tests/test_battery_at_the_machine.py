@@ -16,6 +16,7 @@ from supplycfg.circuit import Setting
 from supplycfg.cli import main
 from supplycfg.errors import InputError
 from supplycfg.jobs import battery
+from supplycfg.machine import load_machine
 from supplycfg.magnetisation import copper_resistance_factor
 from supplycfg.profile import load_profile
 from supplycfg.report import checklist_rows, sheet_markdown
@@ -251,7 +252,6 @@ def test_a_setting_the_bank_drives_backwards_is_not_usable(profile):
     start. That is a stop (never close onto the bank), not a near miss; the drive limit counts the power
     the overhauled motor takes back (140 % of its rating); the drive note says the motor is driven faster,
     not that it slows. (Regression: 'usable', -15.4 kW passing the 11 kW limit, 'slows ... to 1514 rpm'.)"""
-    from supplycfg.machine import load_machine
     res = search(load_machine(ROOT / "profiles" / "machines" / "welding-set.toml"), profile)
     o = res.options[0]
     rules = {c.rule: c for c in o.cautions}
@@ -277,7 +277,6 @@ def test_a_job_stopped_only_by_the_cold_start_says_it_can_be_done_warm(tmp_path)
     meets the demo charge, and `search` and `size` blamed the machine ('the machine itself cannot do it')
     while the same set does it run up to temperature first (65-75 degC, the demo's own range). The note says
     so and what to do: warm the set, set the field by the ammeter once warm (common practice)."""
-    from supplycfg.machine import load_machine
     from supplycfg.sizing import required_drive_rating
     prof = profile_variant("battery", tmp_path, "cold.toml",
                            ("winding_temperature_range_c = [65, 75]", "winding_temperature_range_c = [20, 75]"))
@@ -308,7 +307,6 @@ def test_a_stop_of_the_job_as_a_whole_reaches_every_command(tmp_path, capsys):
     'STOP, whatever the setting' in search's job cautions, yet every option was 'fit yes' and usable, `size`
     and `fleet` showed no stop, `charge` called its setting the best feasible and `curve --profile` said
     nothing. Now no option is usable, size stops at once, charge and curve lead with or carry the stop."""
-    from supplycfg.machine import load_machine
     from supplycfg.sizing import required_drive_rating
     prof = profile_variant("battery", tmp_path, "hot.toml", ("temperature_c = 25 ", "temperature_c = 60 "))
     m, p = load_machine(MACHINE), load_profile(prof)
@@ -323,3 +321,18 @@ def test_a_stop_of_the_job_as_a_whole_reaches_every_command(tmp_path, capsys):
     rules = {(c["rule"], c["severity"]) for c in json.loads(capsys.readouterr().out)["cautions"]}
     assert ("battery-temperature", "stop") in rules
     assert any(sev == "stop" and "series" in rule for rule, sev in rules)
+
+
+def test_cutout_closing_just_above_the_full_bank_is_warned(tmp_path):
+    """A cut-out set to close only 10 mV/cell above the full bank's rest voltage (2.12 V/cell, vented
+    lead-acid) closes with next to no charging current and chatters as the speed wanders: the
+    cut-out caution says so and names the usual margin, about 50 mV/cell (common practice)."""
+    text = PROFILE.read_text(encoding="utf-8").replace(
+        "[battery]\n", "[battery]\ncutout_closing_volts_per_cell = 2.13\n")
+    close = tmp_path / "close.toml"
+    close.write_text(text, encoding="utf-8")
+    res = search(load_machine(MACHINE), load_profile(close))
+    text = next(c.message for c in res.options[0].cautions if c.rule == "battery-reverse-current")
+    assert "only 10 mV per cell above" in text and "chatter" in text
+    plain = search(load_machine(MACHINE), load_profile(PROFILE))
+    assert "chatter" not in next(c.message for c in plain.options[0].cautions if c.rule == "battery-reverse-current")

@@ -876,6 +876,14 @@ def cutout_closing_volts_per_cell(job):
         + CUTOUT_MARGIN_V_PER_CELL
 
 
+def cutout_closing_margin_volts_per_cell(job):
+    """How far the cut-out closes above the bank's rest voltage at the top of the state-of-charge range
+    [V per cell]."""
+    chem = chemistry(job.chemistry)
+    rest = float(open_circuit_voltage_per_cell(chem, job.state_of_charge[1], job.open_circuit_voltage_per_cell_v))
+    return cutout_closing_volts_per_cell(job) - rest
+
+
 def cutout_closing_voltage_v(job):
     """Closing voltage of the reverse-current cut-out for the whole bank [V]."""
     return job.cells * cutout_closing_volts_per_cell(job)
@@ -2136,6 +2144,13 @@ def option_cautions(machine, profile, setting, f):
     if back is not None:
         cut += (f" With no cut-out a full bank drives about {back:.0f} A back into the machine at standstill "
                 "(cold windings).")
+    gap = cutout_closing_margin_volts_per_cell(b)
+    if gap < CUTOUT_MARGIN_V_PER_CELL / 2:
+        # a relay's own tolerance and a small speed dip are of this size: it closes and opens in turn
+        cut += (f" The job's closing voltage is only {1e3 * gap:.0f} mV per cell above the bank's rest voltage at "
+                f"full charge (common practice: about {1e3 * CUTOUT_MARGIN_V_PER_CELL:.0f} mV): a cut-out set so "
+                "close can close on a full bank with next to no charging current and open and close in turn "
+                "(chatter) as the speed wanders; set it higher.")
     out.append(caution("battery-reverse-current", "warn",
                        f"Fit a reverse-current cut-out (or a blocking diode) set to close at {close_v:.1f} V "
                        f"({cutout_closing_volts_per_cell(b):.2f} V per cell) and to open on a small reverse current: "
