@@ -98,6 +98,8 @@ FIGURE_WORDS = {
     "low_end_current_envelope_max_a": "low-end current over the speed and temperature range, highest",
     "high_end_current_envelope_min_a": "high-end current over the speed and temperature range, lowest",
     "high_end_current_envelope_max_a": "high-end current over the speed and temperature range, highest",
+    "low_end_shaft_power_kw": "shaft power at the dial's low end, highest over the speed and temperature range",
+    "high_end_shaft_power_kw": "shaft power at the dial's high end, highest over the speed and temperature range",
     "max_no_load_voltage_v": "no-load voltage (mean), highest",
     "no_load_peak_voltage_v": "no-load voltage (peak, with commutator ripple)",
     "no_load_limit_v": "no-load voltage limit (peak)",

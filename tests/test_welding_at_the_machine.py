@@ -7,6 +7,7 @@ what a welder expects comes from.
 import json
 
 import numpy as np
+from numpy.testing import assert_allclose
 from pathlib import Path
 
 import pytest
@@ -299,3 +300,36 @@ def test_a_broken_no_load_limit_is_not_written_as_met(tmp_path):
     o = search(load_machine(MACHINE), load_profile(prof)).options[0]
     text = no_load_limit_text(o.margins)
     assert "ABOVE the 60 V limit" in text and "≤ 60 V" not in text
+
+
+def test_an_undersized_engine_says_how_far_up_the_dial_it_carries(tmp_path):
+    """A 7 kW engine on a dial that needs 7.1 kW at 180 A: the welder is told up to about which current
+    the engine carries the dial steadily (and, for 5 kW, up to which its 110 % short overload reaches;
+    ISO 3046-1 overload, from memory); the estimate is linear in the output on the conventional
+    load line between the dial's two ends (closed form checked below)."""
+    m = load_machine(MACHINE)
+    notes = {}
+    for kw in (5, 7, 10):
+        p = load_profile(variant(tmp_path, f"w{kw}.toml", ("rated_power_kw = 10 ", f"rated_power_kw = {kw} ")))
+        res = search(m, p)
+        notes[kw] = [c for c in res.options[0].cautions if c.rule == "welding-drive-dial"]
+    assert not notes[10]
+    top7 = notes[7][0].figures["drive_carries_up_to_a"]
+    assert 170 < top7 < 180 and "above that only within its short overload" in notes[7][0].message
+    top5 = notes[5][0].figures["drive_carries_up_to_a"]
+    assert 120 < top5 < top7 and "it bogs down" in notes[5][0].message
+    # closed form: shaft power 1 kW at 60 A and 7 kW at 180 A, a 4 kW drive; the line is U = 20 + 0.04 I
+    # plus the leads, so the output at I is I (20 + (0.04 + Rc) I) and 4 kW is half-way in output
+    p = load_profile(variant(tmp_path, "w4.toml", ("rated_power_kw = 10 ", "rated_power_kw = 4 ")))
+    job = p.welding
+    rc = job.cable_resistance_ohm
+    lo, hi = job.current_range_a
+
+    def out(i):
+        return i * (20 + (0.04 + rc) * i)
+
+    want = out(lo) + 0.5 * (out(hi) - out(lo))
+    k = 0.04 + rc
+    i_half = (-20 + np.sqrt(400 + 4 * k * want)) / (2 * k)
+    got = welding.drive_carries_up_to_a(p, {"low_end_shaft_power_kw": 1.0, "high_end_shaft_power_kw": 7.0})
+    assert_allclose(got, i_half, rtol=1e-3)

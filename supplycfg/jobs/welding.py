@@ -6,11 +6,12 @@ trade rule of thumb.
 """
 
 import math
+import warnings
 from dataclasses import dataclass, field
 
 import numpy as np
 
-from ..cautions import caution
+from ..cautions import ENGINE_OVERLOAD_FACTOR, caution
 from ..circuit import (USES_SERIES, candidate_params, circuit_residual, no_load_voltages, normal_points,
                        refine_bracketed_roots)
 from ..envelope import (control_of_rows, control_range, critical_resistance_ratios, expand_candidates,
@@ -782,6 +783,12 @@ def solve(space, advice=True):
          r_end["load_current_a"][half + off])
         for end, target, off in (("low", targets[0], 0), ("high", targets[-1], nb * nc))])
     lim.update(drive_lim)
+    if space.profile.drive.coupled:
+        # each end's heaviest shaft power over the corners: how far up the dial a small drive carries
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", RuntimeWarning)
+            end_kw = np.nanmax(drive_figs["drive_points"].values["shaft_power_kw"], axis=1)
+        drive_figs = {**drive_figs, "low_end_shaft_power_kw": end_kw[:, 0], "high_end_shaft_power_kw": end_kw[:, 1]}
     cur_end = r_end["load_current_a"].reshape(2 * nb, nc)
     spread_min, spread_max = _worst(cur_end, "min"), _worst(cur_end, "max")
     ia_end = np.abs(r_end["armature_current_a"]).reshape(2 * nb, nc).max(axis=1)
@@ -970,6 +977,30 @@ def objective(figures):
 # cautions
 # ===========================================================================
 
+def drive_carries_up_to_a(profile, f, share=1.0):
+    """Highest welding current [A] the drive gives steadily where its rating falls inside the dial
+    (None where the whole dial is within it, or none of it is); ``share`` of the rating, e.g. an engine's
+    short overload.
+
+    The shaft power is known at the dial's two ends (``low_end_shaft_power_kw``,
+    ``high_end_shaft_power_kw``); between them it is taken as linear in the
+    output on the conventional load line plus the leads (the losses change
+    little along a drooping dial), an estimate to round, not a rating.
+    """
+    drive = profile.drive
+    lo_kw, hi_kw = f.get("low_end_shaft_power_kw"), f.get("high_end_shaft_power_kw")
+    if not drive.coupled or not drive.rated_power_kw or lo_kw is None or hi_kw is None:
+        return None
+    rating = share * drive.rated_power_kw
+    if not (lo_kw < rating < hi_kw):
+        return None
+    job = profile.welding
+    amps = np.linspace(*job.current_range_a, 401)
+    out_kw = amps * welding_line_voltage_v(job, amps) / 1e3
+    shaft = lo_kw + (hi_kw - lo_kw) * (out_kw - out_kw[0]) / (out_kw[-1] - out_kw[0])
+    return float(np.interp(rating, shaft, amps))
+
+
 def option_cautions(machine, profile, setting, f):
     """Welding cautions of one setting from its figures ``f``."""
     out = []
@@ -982,6 +1013,25 @@ def option_cautions(machine, profile, setting, f):
                            "no-load voltage).",
                            "the job's strike voltage; engine idle from the profile (common practice)",
                            idle_no_load_voltage_v=vi, min_no_load_voltage_v=strike))
+    top = drive_carries_up_to_a(profile, f)
+    if top is not None:
+        drive = profile.drive
+        rating = drive.rated_power_kw
+        if drive.kind == "motor":
+            beyond = "above that it runs hot and its protection trips: keep to the lower rows or fit a larger motor."
+        else:
+            over = drive_carries_up_to_a(profile, f, ENGINE_OVERLOAD_FACTOR)
+            short = (f"up to about {over:.0f} A only within its short overload (an hour in twelve), and above that "
+                     "it bogs down" if over is not None else "above that only within its short overload (an hour "
+                     "in twelve)")
+            beyond = f"{short}: keep to the lower rows or fit a larger engine."
+        out.append(caution("welding-drive-dial", "note",
+                           f"The {rating:g} kW {drive.kind} carries the dial steadily up to about {top:.0f} A (on the "
+                           f"conventional load line); {beyond}",
+                           "shaft power at the dial's two ends from the power flow, taken as linear in the arc "
+                           "power between them (an estimate); conventional load line, IEC 60974-1 (seen); engine "
+                           "overload 110 % for one hour in twelve, ISO 3046-1 (from memory)",
+                           drive_carries_up_to_a=top, drive_rated_power_kw=rating))
     pk, lim = f.get("no_load_peak_voltage_v"), f.get("no_load_limit_v")
     if pk is None and lim is not None:
         out.append(caution("welding-no-load-voltage-unknown", "stop",
