@@ -336,3 +336,15 @@ def test_cutout_closing_just_above_the_full_bank_is_warned(tmp_path):
     assert "only 10 mV per cell above" in text and "chatter" in text
     plain = search(load_machine(MACHINE), load_profile(PROFILE))
     assert "chatter" not in next(c.message for c in plain.options[0].cautions if c.rule == "battery-reverse-current")
+
+
+def test_checklist_asks_the_battery_temperature_the_plan_is_for(tmp_path):
+    """The hand-over voltage is corrected to the bank's temperature (-4 mV per cell per degC for vented
+    lead-acid, the chemistry table); the checklist asks for a pilot cell's temperature and says when to
+    plan again (5 degC off: 0.02 V per cell; common practice)."""
+    m, p = load_machine(MACHINE), load_profile(PROFILE)
+    res = search(m, p)
+    rows = dict(checklist_rows(res, res.options[0]))
+    got = rows["Battery temperature at the start (a pilot cell)"]
+    assert got.startswith("25 °C, as planned; more than 5 °C off: plan again")
+    assert "moves the hand-over 0.02 V per cell" in got

@@ -527,7 +527,7 @@ def test_drive_speed_caution_and_checklist_give_the_same_no_load_speed(tmp_path)
     out = sheet_from_files(DEMO / "machines" / "charging-set.toml",
                            DEMO / "loads" / "battery-charging.toml", tmp_path / "s.md", None, True)
     text = Path(out).read_text(encoding="utf-8")
-    row = re.search(r"Drive speed on the tachometer \(generator shaft\), load off \| about (\d+) rpm", text)
+    row = re.search(r"Drive speed on the tachometer \(generator shaft\) \| about (\d+) rpm load off", text)
     note = re.search(r"slows with load: about (\d+) rpm at the generator with the load off", text)
     assert row and note and row.group(1) == note.group(1)
 
