@@ -403,6 +403,11 @@ def cmd_curve(args, out):
     cautions += drive_overload_cautions(drive, max(power) if power else None,
                                         "up to the machine's rated armature current", max(torque) if torque else None)
     cautions += _job_no_load_cautions(prof, m, st, c.no_load_voltage_v)
+    if prof is not None and prof.kind == "welding":
+        from .jobs.welding import stuck_electrode_cautions
+        cautions += stuck_electrode_cautions(m, prof, [p["load_current_a"] for p in pts],
+                                             [p["terminal_voltage_v"] for p in pts],
+                                             [p["armature_current_a"] for p in pts])
     res = {"setting": st.as_dict(), "points": pts, "no_load_voltage_v": c.no_load_voltage_v,
            "short_circuit_current_a": c.short_circuit_current_a, "max_load_current_a": c.max_load_current_a,
            "regulation_percent": c.regulation_percent, "extrapolated": c.extrapolated,

@@ -333,3 +333,25 @@ def test_an_undersized_engine_says_how_far_up_the_dial_it_carries(tmp_path):
     i_half = (-20 + np.sqrt(400 + 4 * k * want)) / (2 * k)
     got = welding.drive_carries_up_to_a(p, {"low_end_shaft_power_kw": 1.0, "high_end_shaft_power_kw": 7.0})
     assert_allclose(got, i_half, rtol=1e-3)
+
+
+def test_curve_with_a_welding_profile_stops_a_stuck_electrode_past_the_peak_limit(capsys):
+    """With a welding set a short through the leads (a stuck electrode) happens every day: `curve` with a
+    welding profile holds it to the short-time limit as the search does (a stop), where before it gave
+    only the protection note of a short at the terminals. The stuck point is where the curve meets
+    V = R_leads x I (closed form on a straight line checked too)."""
+    base = ["curve", str(MACHINE), "--profile", str(ROOT / "profiles" / "loads" / "welding.toml"),
+            "--connection", "separate-differential", "--field-current-a", "1.7", "--json"]
+    assert main(base + ["--series-turns", "0"]) == 0
+    got = json.loads(capsys.readouterr().out)
+    stop = [c for c in got["cautions"] if c["rule"] == "welding-stuck-electrode"]
+    assert len(stop) == 1 and stop[0]["severity"] == "stop"
+    assert stop[0]["figures"]["stuck_electrode_armature_current_a"] > 450
+    assert main(base + ["--series-turns", "3"]) == 0
+    got = json.loads(capsys.readouterr().out)
+    assert not [c for c in got["cautions"] if c["rule"] == "welding-stuck-electrode"]
+    # a straight curve V = 80 - 0.2 I meets V = 0.05 I at I = 320 A
+    il = np.linspace(0, 400, 9)
+    found = welding.stuck_electrode_on_curve(il, 80 - 0.2 * il, il + 2, 0.05)
+    assert_allclose(found[:2], (320.0, 322.0), rtol=1e-12)
+    assert found[2]

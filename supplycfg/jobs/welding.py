@@ -1078,6 +1078,55 @@ def option_cautions(machine, profile, setting, f):
     return out
 
 
+def stuck_electrode_on_curve(load_current_a, terminal_voltage_v, armature_current_a, cable_resistance_ohm):
+    """Where a traced characteristic meets a stuck electrode: a short through the welding leads.
+
+    Parameters
+    ----------
+    load_current_a, terminal_voltage_v, armature_current_a : array_like
+        The curve's points [A], [V], [A], from no load towards short circuit.
+    cable_resistance_ohm : float
+        Electrode and return leads together [ohm].
+
+    Returns
+    -------
+    (load current [A], armature current [A], reached)
+        Linear between the two points either side of ``V = R I``; where the
+        curve stops before meeting it, its last point and ``reached`` False.
+    """
+    il = np.asarray(load_current_a, float)
+    v = np.asarray(terminal_voltage_v, float)
+    ia = np.abs(np.asarray(armature_current_a, float))
+    if il.size == 0:
+        return None, None, False
+    h = v - cable_resistance_ohm * il
+    k = np.flatnonzero((h <= 0) & (il > 0))
+    if k.size == 0 or k[0] == 0:
+        return float(il[-1]), float(ia[-1]), False
+    j = k[0]
+    w = h[j - 1] / (h[j - 1] - h[j])
+    return float(il[j - 1] + w * (il[j] - il[j - 1])), float(ia[j - 1] + w * (ia[j] - ia[j - 1])), True
+
+
+def stuck_electrode_cautions(machine, profile, load_current_a, terminal_voltage_v, armature_current_a):
+    """A ``stop`` where a stuck electrode on this curve drives the armature past its short-time limit:
+    with a welding set a short through the leads is an everyday event, not a fault to protect against
+    (``curve`` with a welding profile; the search holds each option to the same limit)."""
+    rc = profile.welding.cable_resistance_ohm
+    il, ia, reached = stuck_electrode_on_curve(load_current_a, terminal_voltage_v, armature_current_a, rc)
+    if ia is None or not ia > machine.peak_current_a:
+        return []
+    return [caution("welding-stuck-electrode", "stop",
+                    f"A stuck electrode (a short through the {rc:g} ohm leads) drives the armature to "
+                    f"{'at least ' if not reached else 'about '}{ia:.0f} A, above the machine's short-time limit "
+                    f"{machine.peak_current_a:.0f} A: commutation fails (sparking, flashover). Use a setting with "
+                    "more droop (more differential series turns or less field).",
+                    "machine file peak_armature_current_a (default 2 x rated, common practice); the job's "
+                    "cable_resistance_ohm; circuit model",
+                    stuck_electrode_current_a=il, stuck_electrode_armature_current_a=ia,
+                    peak_armature_current_a=machine.peak_current_a)]
+
+
 def no_load_cautions(machine, profile, setting, no_load_voltage_v):
     """The welding job's no-load checks of one setting at its own speed and temperature (``curve`` and
     ``point`` with a welding profile): the limits of :func:`option_cautions` on the no-load voltage
