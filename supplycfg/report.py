@@ -960,6 +960,10 @@ def checklist_rows(result, option, run=None):
     if kind == "welding":
         rows.append(("No-load voltage against the limits", no_load_limit_text(o.margins) or note))
         rows.append(("No tap change under load", "taps and diverter changed only with the arc out"))
+    if kind == "booster":
+        # a tripped drive leaves the line current in the booster: it motors (booster-drive-trip caution)
+        rows.append(("Drive-trip interlock (bypass switch across the booster or line contactor)",
+                     "fitted; tried once with the feeder off load"))
     if s.connection != "series":
         rows.append(("Field discharge path fitted (discharge resistor or freewheel path)", "fitted"))
     return rows

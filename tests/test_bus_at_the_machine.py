@@ -289,3 +289,20 @@ def test_a_rheostat_window_under_one_per_cent_of_its_travel_is_a_knife_edge(tmp_
     assert "knife-edge  short-shunt cumulative" in text and "knife-edge: the band is narrower" in text
     # the demo as it stands (73 to 79 ohm) is settable
     assert not any(o.knife_edge for o in demo("lighting")[2].feasible)
+
+
+def test_booster_drive_trip_is_warned_per_connection():
+    """A booster whose drive trips still carries the line current: in series connection it runs as a series
+    motor with next to no load and races (series-motor speed unbounded at light load, Theraja Vol II
+    ch. 29, recalled); separately excited it motors at a bounded speed. Both warn and name the interlock."""
+    from supplycfg.circuit import Setting
+    from supplycfg.jobs.booster import drive_trip_cautions
+    _, _, res = demo("booster")
+    for o in res.options:
+        c = {c.rule: c for c in o.cautions}["booster-drive-trip"]
+        assert c.severity == "warn" and "series motor" in c.message and "bypass switch" in c.message
+    sep = drive_trip_cautions(Setting("separate", field_current_a=1.0))[0]
+    assert "series motor" not in sep.message and "stays excited" in sep.message
+    from supplycfg.report import checklist_rows
+    assert "Drive-trip interlock (bypass switch across the booster or line contactor)" in dict(
+        checklist_rows(res, res.options[0]))

@@ -81,19 +81,38 @@ def objective(figures):
 KNEE_SLOPE_SHARE = 0.75
 
 
+def drive_trip_cautions(setting):
+    """What the line does to a booster whose drive trips: it drives the line current through the stopped
+    armature, which runs as a motor; with its field in series (a series motor) its speed has no bound."""
+    if setting.connection == "series" or (setting.series_turns or 0) > 0:
+        how = ("the line current still flows through its series field and armature: it runs as a series motor "
+               "on the line, turning backwards with its driving motor, and with so little load it can race to "
+               "a dangerous speed")
+    else:
+        how = ("the line current still flows through its armature while its field stays excited: it runs as a "
+               "motor on the line, turning backwards with its driving motor, and takes power from the line")
+    return [caution("booster-drive-trip", "warn",
+                    f"If the booster's drive trips while the feeder carries current, {how}. Interlock the drive "
+                    "with the line: a bypass switch across the booster (or a line contactor) that closes when the "
+                    "drive trips, and an overspeed trip on the set.",
+                    "series-motor speed rises without limit at light load (Theraja Vol II ch. 29, recalled); "
+                    "common practice")]
+
+
 def option_cautions(machine, profile, setting, f):
-    """Booster cautions of one setting: a note where its field at the heaviest load is past the knee of
-    the open-circuit curve (the boost then falls behind the feeder's drop)."""
+    """Booster cautions of one setting: what a drive trip does, and a note where its field at the heaviest
+    load is past the knee of the open-circuit curve (the boost then falls behind the feeder's drop)."""
+    out = drive_trip_cautions(setting)
     x = f.get("max_net_mmf_a")
     if x is None or not x > 0:
-        return []
+        return out
     occ = OpenCircuitCurve.from_machine(machine)
     _, slope = occ.emf(np.array([float(x)]), with_slope=True)
     straight = occ.air_gap_slope()
     share = float(slope[0]) / straight
     if share >= KNEE_SLOPE_SHARE:
-        return []
-    return [caution("booster-past-knee", "note",
+        return out
+    return out + [caution("booster-past-knee", "note",
                     f"At the heaviest load the booster's field reaches {x:.3g} A (equivalent field current), past "
                     f"the knee of its curve: the curve rises {float(slope[0]):.3g} V/A there against "
                     f"{straight:.3g} V/A on its straight part ({100 * share:.0f} %). The boost no longer rises in "
