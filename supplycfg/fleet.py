@@ -34,7 +34,10 @@ class FleetRow:
     that power over the profile's drive rating (None for a fixed speed).
     ``drive_needed_kw``, where no setting meets the job because the drive is
     too small: the least highest shaft power of a setting that meets it with
-    a larger drive of the same kind [kW].
+    a larger drive of the same kind [kW]. ``overspeed_ratio``, where the drive
+    itself turns the machine past the overspeed stop (every setting carries it):
+    the largest belt or gearing ratio that keeps it to its rated speed.
+    ``best["stops"]`` lists the rules of the best option's stop cautions.
     """
 
     file: str
@@ -46,13 +49,14 @@ class FleetRow:
     shaft_power_kw: float | None = None
     drive_loading_percent: float | None = None
     drive_needed_kw: float | None = None
+    overspeed_ratio: float | None = None
     error: str | None = None
 
     def as_dict(self):
         return {"file": self.file, "label": self.label, "feasible": self.feasible, "best": self.best,
                 "objective": self.objective, "objective_label": self.objective_label,
                 "shaft_power_kw": self.shaft_power_kw, "drive_loading_percent": self.drive_loading_percent,
-                "drive_needed_kw": self.drive_needed_kw, "error": self.error}
+                "drive_needed_kw": self.drive_needed_kw, "overspeed_ratio": self.overspeed_ratio, "error": self.error}
 
 
 @dataclass
@@ -124,7 +128,7 @@ def search_one_machine(path, profile, text=None):
         ``error`` holds the one-line message of a bad file (nothing else is set).
     """
     from .machine import load_machine
-    from .search import search
+    from .search import drive_overspeed, search
     row = FleetRow(file=str(path))
     try:
         m = load_machine(path, text)
@@ -138,13 +142,17 @@ def search_one_machine(path, profile, text=None):
     row.feasible = bool(best is not None and best.feasible)
     if best is not None:
         row.best = {"rank": best.rank, "feasible": best.feasible, "setting": best.setting_dict(),
-                    "smallest_margin": best.smallest_margin, "failed": list(best.failed)}
+                    "smallest_margin": best.smallest_margin, "failed": list(best.failed),
+                    "stops": [c.rule for c in best.cautions if c.severity == "stop"]}
         row.objective, row.objective_label = objective_shown(profile, best)
         if not best.feasible:
             row.objective = None  # a near miss's objective is no score of what the machine can do
         row.shaft_power_kw = _finite_or_none(best.figures.get("max_shaft_power_kw"))
         row.drive_loading_percent = _finite_or_none(best.figures.get("max_drive_loading_percent"))
     row.drive_needed_kw = _finite_or_none(res.drive_needed_kw)
+    fast = drive_overspeed(m, profile)
+    if fast is not None:
+        row.overspeed_ratio = fast[1]
     return row
 
 
@@ -247,8 +255,12 @@ def fleet_rows(res, trade_words=False):
                     row["shaft power"] = f"{r.shaft_power_kw:.3g} kW" + (
                         f" ({r.drive_loading_percent:.0f} % of the drive's rating)"
                         if r.drive_loading_percent is not None else "")
-                row["breaks"] = broken_limits_text(r.best["failed"])
-            if r.drive_needed_kw is not None:
+                row["breaks"] = broken_limits_text(r.best["failed"], r.best.get("stops", ()))
+            if r.overspeed_ratio is not None:
+                # the drive's speed, not its rating: every setting has the overspeed stop
+                row["drive needed"] = (f"the drive turns it past the overspeed stop: a belt or gearing ratio of at "
+                                       f"most {r.overspeed_ratio:.3g} brings it to its rated speed")
+            elif r.drive_needed_kw is not None:
                 # nothing works because the drive is too small: what a larger one must give
                 row["drive needed"] = (f"the drive limits it: with a larger drive a setting meets the job, "
                                        f"{r.drive_needed_kw:.3g} kW at the shaft")

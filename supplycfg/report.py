@@ -238,9 +238,30 @@ BROKEN_WORDS = {
 }
 
 
-def broken_limits_text(failed):
-    """The limits an option breaks, in words, joined by commas ('' for none)."""
-    return ", ".join(BROKEN_WORDS.get(n) or limit_label(n) for n in failed)
+#: Each stop caution in a few words, for a row that has room for no more (a fleet row).
+STOP_WORDS = {
+    "overspeed": "overspeed", "armature-peak": "armature current past its short-time limit",
+    "drive-overload": "engine past its short overload", "drive-stall": "motor stalls",
+    "drive-collapse": "field collapses at the drive's speed", "reversed-polarity": "reversed polarity",
+    "reversed-build-up": "builds up reversed", "runaway": "no operating point",
+    "battery-back-feed": "the bank back-feeds the machine", "battery-series-back-current": "series turns with a battery",
+    "battery-temperature": "bank too hot to charge", "welding-no-load-voltage": "no-load voltage above the standard's limit",
+    "welding-no-load-local-limit": "no-load voltage above the site limit",
+    "welding-no-load-voltage-unknown": "no-load voltage unknown",
+    "welding-stuck-electrode": "stuck-electrode current past the short-time limit",
+}
+
+
+def broken_limits_text(failed, stops=()):
+    """The limits an option breaks, in words, joined by commas ('' for none); ``stops`` (the rules of its
+    stop cautions) are named after 'carries a stop caution'."""
+    words = []
+    for n in failed:
+        w = BROKEN_WORDS.get(n) or limit_label(n)
+        if n == "stop_caution" and stops:
+            w += " (" + ", ".join(dict.fromkeys(STOP_WORDS.get(r, r.replace("-", " ")) for r in stops)) + ")"
+        words.append(w)
+    return ", ".join(words)
 
 
 def speed_words(cond):

@@ -533,6 +533,8 @@ def search(machine, profile, with_drive_check=True, advice=True, warm_check=True
     need = None
     if not any(o.feasible for o in options):
         notes.append(NO_FIT_NOTE)
+        fast = drive_overspeed_note(machine, profile)
+        notes += [fast] if fast else []
         if profile.drive.coupled and with_drive_check:
             need, more = drive_limit_check(machine, profile, options)
             notes += more
@@ -542,6 +544,36 @@ def search(machine, profile, with_drive_check=True, advice=True, warm_check=True
         notes += exciter_wanted_notes(options)
     return SearchResult(machine, profile, options, job_cautions, int(evaluated),
                         time.perf_counter() - t0, notes, need)
+
+
+def drive_overspeed(machine, profile):
+    """``(top generator speed [rpm], largest ratio that keeps it to the rated speed)`` where the drive
+    itself turns the generator past the overspeed stop at no load; None otherwise."""
+    from .cautions import OVERSPEED_STOP_FACTOR
+    drive, rated = profile.drive, machine.rated_speed_rpm
+    top = max(drive.generator_speeds_rpm())
+    if not top > OVERSPEED_STOP_FACTOR * rated:
+        return None
+    return top, rated / drive.top_speed_rpm
+
+
+def drive_overspeed_note(machine, profile):
+    """A note where the drive itself turns the generator past the overspeed stop at no load (every
+    setting then carries it, whatever the setting or the drive's rating), with the ratio or drive
+    speed that would bring the top speed to the machine's rated speed; None otherwise."""
+    from .cautions import OVERSPEED_STOP_FACTOR
+    fast = drive_overspeed(machine, profile)
+    if fast is None:
+        return None
+    top, ratio = fast
+    drive, rated = profile.drive, machine.rated_speed_rpm
+    what = {"engine": "engine's governed no-load speed", "motor": "motor's synchronous speed"}.get(
+        drive.kind, "drive's speed")
+    return (f"the drive turns the generator at up to {top:.0f} rpm ({drive.top_speed_rpm:g} rpm x {drive.ratio:g}), "
+            f"more than {100 * (OVERSPEED_STOP_FACTOR - 1):.0f} % above its rated {rated:g} rpm: every setting "
+            "carries the overspeed stop, whatever the setting or the drive's rating; the cure is the drive's "
+            f"speed: a belt or gearing ratio of at most {ratio:.3g} (generator per drive speed), or the {what} "
+            f"at most {rated / drive.ratio:.0f} rpm, brings it to the rated speed")
 
 
 #: Stop cautions a larger drive of the same speeds keeps: the overspeed stop is the drive's top

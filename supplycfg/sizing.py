@@ -16,7 +16,7 @@ from dataclasses import dataclass, field, replace
 
 from . import STANDING_NOTICE, __version__
 from .drive import MAX_RATED_POWER_KW
-from .search import search, warm_start_note
+from .search import drive_overspeed_note, search, warm_start_note
 
 #: The rating is found to this share (issue rule: to 1 %).
 RATING_TOLERANCE = 0.01
@@ -81,6 +81,11 @@ def required_drive_rating(machine, profile, tolerance=RATING_TOLERANCE):
         # a stop of the job as a whole holds whatever the drive: no rating is worth searching for
         return SizeResult(machine, profile, None, None, None, None, 0,
                           ["STOP, whatever the setting and the drive: " + c.message for c in stops])
+
+    fast = drive_overspeed_note(machine, profile)
+    if fast:
+        # the drive's speed, not its rating: no rating is worth searching for
+        return SizeResult(machine, profile, None, None, None, None, 0, [fast])
 
     def trial(kw):
         nonlocal count

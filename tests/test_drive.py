@@ -672,3 +672,31 @@ def test_a_machine_that_motors_its_drive_is_held_to_the_overspeed_rule_at_its_hi
     assert c and c[0].severity == "stop" and "Driven as a motor" in c[0].message
     assert not [x for x in setting_cautions(m, st, {"top_speed_rpm": 1450.0, "max_speed_rpm": 1440.0})
                 if x.rule == "overspeed"]
+
+
+def test_a_drive_that_overspeeds_the_machine_is_named_as_the_cause(tmp_path, capsys):
+    """A welding set belted to 2700 rpm at the engine's no-load speed (rated 2000 rpm, the overspeed stop at
+    1.2 x rated, IEC 60034-1 overspeed test, recalled): every setting carries the stop. `size` said 'the
+    machine itself cannot do it' after growing the rating to 100000 kW; `search`, `size` and `fleet` now
+    name the drive's speed and the ratio that cures it, rated / no-load speed = 2000 / 3000 (closed form)."""
+    from supplycfg.fleet import fleet_rows, fleet_search
+    from supplycfg.search import drive_overspeed
+    m = load_machine(MACHINES / "welding-set.toml")
+    table = profile_to_dict(load_profile(ROOT / "profiles" / "loads" / "welding.toml"))
+    table["drive"]["ratio"] = 0.9
+    prof = profile_from_dict(table, "fast belt")
+    top, ratio = drive_overspeed(m, prof)
+    assert_allclose((top, ratio), (2700.0, 2000.0 / 3000.0), rtol=1e-12)
+    res = search(m, prof)
+    assert any("the cure is the drive's speed: a belt or gearing ratio of at most 0.667" in n for n in res.notes)
+    size = required_drive_rating(m, prof)
+    assert size.required_drive_kw is None and size.searches == 0
+    assert "every setting carries the overspeed stop" in size.notes[0]
+    assert not any("machine itself cannot" in n for n in size.notes)
+    folder = tmp_path / "fleet"
+    folder.mkdir()
+    (folder / "w.toml").write_text((MACHINES / "welding-set.toml").read_text(encoding="utf-8"), encoding="utf-8")
+    row = fleet_rows(fleet_search(folder, prof))[0]
+    assert "ratio of at most 0.667" in row["drive needed"]
+    assert row["breaks"] == "carries a stop caution (overspeed)"
+    assert drive_overspeed(m, load_profile(ROOT / "profiles" / "loads" / "welding.toml")) is None
