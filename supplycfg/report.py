@@ -891,7 +891,7 @@ def checklist_rows(result, option, run=None):
     lo, hi = f.get("no_load_voltage_min_v"), f.get("no_load_voltage_max_v")
     nl = _range_text(lo, hi, "V")
     if _spans(lo, hi):
-        nl += " over the speed and winding-temperature range"
+        nl += " over speed and winding temperature"
     if kind == "welding":
         ends = [cs for cs in o.current_settings or [] if _given(cs.get("no_load_voltage_v"))]
         # over every row of the dial: a tap change mid-range can put the highest no-load voltage inside it
@@ -909,7 +909,9 @@ def checklist_rows(result, option, run=None):
         else:
             nl = fmt(f.get("max_no_load_voltage_v"), "V")
     if kind != "booster":
-        rows.append(("No-load voltage at speed, load off", nl or note))
+        # the battery's isolator open: an automatic cut-out would close onto the bank as the set runs up
+        rows.append(("No-load voltage at speed, battery isolator open" if kind == "battery"
+                     else "No-load voltage at speed, load off", nl or note))
     fr = [how for what, how in readings_rows(o) if what == "Field ammeter reads"]
     dial_hot = [_mapping(_mapping(_mapping(r).get("readings")).get("field_current_a")).get("hot")
                 for r in option_value(o, "dial") or []]
@@ -940,7 +942,7 @@ def checklist_rows(result, option, run=None):
             rows.append(("Hand-over to the finish", handover_check_text(plan)))
         if plan:
             rows.append((END_OF_CHARGE_CHECK.get(p.battery.chemistry, END_OF_CHARGE_CHECK[None]),
-                         end_of_charge_text(plan[-1])))
+                         end_of_charge_text(plan[-1], p.battery)))
     elif kind == "welding":
         rows.append(("Short-circuit current (electrode stuck), at the top setting",
                      f"up to {fmt(f['stuck_electrode_current_a'], 'A')} with cold windings (less when warm)"
@@ -977,7 +979,8 @@ def checklist_rows(result, option, run=None):
         if not _given(vent):
             vent = _caution_figure(result, o, "battery-ventilation", "ventilation_m3_per_h")
         rows.append(("Battery-room ventilation running", f"at least {fmt(vent, 'm³/h')}" if _given(vent) else "running"))
-        rows.append(("Battery temperature at the start (a pilot cell)", battery_temperature_check_text(p.battery)))
+        rows.append(("Pilot-cell temperature, at the start and hourly in the finish",
+                     battery_temperature_check_text(p.battery)))
     if kind == "welding":
         rows.append(("No-load voltage against the limits", no_load_limit_text(o.margins) or note))
         rows.append(("No tap change under load", "taps and diverter changed only with the arc out"))
@@ -996,11 +999,12 @@ BATTERY_TEMPERATURE_CHECK_C = 5.0
 
 
 def battery_temperature_check_text(job):
-    """The checklist's expected battery temperature: the plan's, and how far a reading may be off."""
-    from .jobs.battery import chemistry
+    """The checklist's expected battery temperature: the plan's, how far a reading may be off, and where
+    the charge stops (the job's temperature caution's limit)."""
+    from .jobs.battery import CHARGE_STOP_TEMPERATURE_C, chemistry
     shift = abs(chemistry(job.chemistry).temperature_coefficient_v_per_c) * BATTERY_TEMPERATURE_CHECK_C
-    return (f"{fmt(job.temperature_c, '°C')}, as planned; more than {fmt(BATTERY_TEMPERATURE_CHECK_C, '°C')} off: plan "
-            f"again (each {fmt(BATTERY_TEMPERATURE_CHECK_C, '°C')} moves the hand-over {fmt(shift, 'V')} per cell)")
+    return (f"{fmt(job.temperature_c, '°C')} at the start as planned (over {fmt(BATTERY_TEMPERATURE_CHECK_C, '°C')} "
+            f"off: plan again, {fmt(shift, 'V')} per cell); stop at {fmt(CHARGE_STOP_TEMPERATURE_C[job.chemistry], '°C')}")
 
 
 #: How a battery shop tells the end of charge (common practice): readings steady over three hours.
@@ -1010,16 +1014,26 @@ END_OF_CHARGE_CHECK = {
 }
 
 
-def end_of_charge_text(stage):
-    """The checklist's expected end of charge: the plan's last voltmeter reading, per cell and when."""
+def end_of_charge_text(stage, job=None):
+    """The checklist's expected end of charge: where the plan calls the bank full (the last voltmeter
+    reading, per cell, and when), then on until the readings hold, since the model's full is not the
+    steady readings a shop ends on; for vented lead-acid the gravity then (rest volts - 0.84)."""
     v, vpc, t = stage.get("end_terminal_voltage_v"), stage.get("end_volts_per_cell"), stage.get("to_h")
     parts = []
     if _given(v):
-        parts.append(f"voltmeter at the machine about {fmt(v, 'V')}"
-                     + (f" ({fmt(vpc, 'V per cell')} at the bank)" if _given(vpc) else ""))
-    if _given(t):
-        parts.append(f"after about {fmt(t, 'h')}")
-    return "; ".join(parts) or "note the readings"
+        parts.append(f"full by the plan at about {fmt(v, 'V')}"
+                     + (f" ({fmt(vpc, 'V per cell')})" if _given(vpc) else "")
+                     + (f", {fmt(t, 'h')}" if _given(t) else ""))
+    elif _given(t):
+        parts.append(f"full by the plan at about {fmt(t, 'h')}")
+    if not parts:
+        return "note the readings"
+    parts.append("charge on until steady")
+    if job is not None and job.chemistry == "lead-acid-vented":
+        from .jobs.battery import LEAD_ACID_REST_OFFSET_V, open_circuit_voltage_per_cell, chemistry
+        full = float(open_circuit_voltage_per_cell(chemistry(job.chemistry), 1.0, job.open_circuit_voltage_per_cell_v))
+        parts.append(f"gravity then about {full - LEAD_ACID_REST_OFFSET_V:.2f}")
+    return "; ".join(parts)
 
 
 def handover_check_text(plan):

@@ -186,8 +186,9 @@ def wiring(machine, setting, kind, electrode="+"):
                      + (" and the rheostat" if any(p.role == "rheostat" for p in parts) else "")
                      + " on its own supply, not connected to the armature circuit.")
     if kind == "battery":
-        steps.append("+ line through the reverse-current cut-out and the ammeter to the battery's +; "
-                     "the battery's − to A2 (−). Check polarity before closing.")
+        steps.append("+ line through the reverse-current cut-out and the ammeter to the battery's +, with a fuse "
+                     "(or DC breaker) and an isolating switch at the battery end; the battery's − to A2 (−). "
+                     "Check polarity before closing.")
     elif kind == "welding":
         steps.append(WELDING_LEADS[electrode][2])
     elif kind == "lighting":

@@ -417,8 +417,8 @@ def test_checklist_gives_expected_values_where_the_core_has_them(results):
     o = res.options[0]
     rows = dict(report.checklist_rows(res, o))
     lo, hi = o.figures["no_load_voltage_min_v"], o.figures["no_load_voltage_max_v"]
-    assert rows["No-load voltage at speed, load off"] == (f"{report.fmt(lo)} to {report.fmt(hi, 'V')} over the speed "
-                                                        "and winding-temperature range")
+    assert rows["No-load voltage at speed, load off"] == (f"{report.fmt(lo)} to {report.fmt(hi, 'V')} over speed "
+                                                        "and winding temperature")
     hot = max(res.profile.temperatures_c)
     ch = external_characteristic(res.machine, _r(o.setting, winding_temperature_c=hot), 50)
     assert_allclose(ch.no_load_voltage_v, lo, rtol=1e-3)

@@ -356,7 +356,7 @@ def test_caution_gassing_and_ventilation():
     r = _rules(m, p, Setting("shunt"), figs)
     assert "battery-gassing" not in r and "plan's own" in r["battery-ventilation"].message
     job = {c.rule: c for c in profile_cautions(m, p)}
-    assert set(job) == {"battery-hydrogen"} and job["battery-hydrogen"].severity == "warn"
+    assert set(job) == {"battery-hydrogen", "battery-protection"} and job["battery-hydrogen"].severity == "warn"
 
 
 def test_caution_broken_battery_limits():
@@ -470,7 +470,7 @@ def test_profile_cautions():
     """Job-wide cautions: battery ventilation (IEC 62485-2), welding no-load rule (IEC 60974-1 and
     29 CFR 1910.254(b)(3)), booster series circuit (common practice); none for lighting."""
     rules = {k: {c.rule for c in profile_cautions(*demo(k)[:2])} for k in DEMOS}
-    assert rules == {"battery": {"battery-hydrogen"}, "welding": {"welding-no-load-rule"},
+    assert rules == {"battery": {"battery-hydrogen", "battery-protection"}, "welding": {"welding-no-load-rule"},
                      "lighting": set(), "booster": {"booster-series"}}
     for k in DEMOS:
         for c in profile_cautions(*demo(k)[:2]):

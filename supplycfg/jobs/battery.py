@@ -816,6 +816,13 @@ def read_job(t, source):
     if vho is not None and vho <= ocv[1]:
         raise InputError(source, t.key("charge_voltage_per_cell_v"),
                          f"is {vho:g}; allowed: above the open-circuit voltage at full charge ({ocv[1]:g} V/cell)")
+    if vho is None and chem.gassing_voltage_v <= ocv[1]:
+        # the default hand-over is the gassing voltage: a full cell resting above it is a slip (a voltage on
+        # charge copied as the rest voltage) that would give a charge of hundreds of hours
+        raise InputError(source, t.key("open_circuit_voltage_per_cell_v"),
+                         f"full-charge rest voltage {ocv[1]:g} V/cell is at or above the hand-over (gassing) voltage "
+                         f"{chem.gassing_voltage_v:g} V/cell at 25 degC; allowed: below it (a full cell of {name} "
+                         f"rests at about {chem.open_circuit_voltage_full_v:g} V)")
     fin = t.number("finishing_rate_per_h", None, low=0, low_open=True, high=1.0)
     hours = t.number("target_hours", DEFAULT_TARGET_HOURS, low=MIN_TARGET_HOURS, high=1000.0)
     close = t.number("cutout_closing_volts_per_cell", None, low=ocv[0], high=chem.max_cell_voltage_v)
@@ -882,6 +889,20 @@ def cutout_closing_margin_volts_per_cell(job):
     chem = chemistry(job.chemistry)
     rest = float(open_circuit_voltage_per_cell(chem, job.state_of_charge[1], job.open_circuit_voltage_per_cell_v))
     return cutout_closing_volts_per_cell(job) - rest
+
+
+#: Closing voltage above the full bank's rest voltage [V per cell] past which the closing surge is
+#: worth a word: four times the usual margin (common practice).
+CUTOUT_FAR_V_PER_CELL = 4 * CUTOUT_MARGIN_V_PER_CELL
+
+
+def cutout_closing_surge_a(machine, job):
+    """Upper bound of the current at the moment the cut-out closes onto the bank at the start of charge
+    [A]: the closing voltage less the bank's rest voltage there, over the bank, the leads and the
+    armature (series field, brushes and the field's fall left out: an upper bound)."""
+    dv = cutout_closing_voltage_v(job) - cells_rest_voltage_v(job, job.state_of_charge[0])
+    r = job.internal_resistance_ohm + job.cable_resistance_ohm + machine.armature_resistance_ohm
+    return max(dv, 0.0) / r
 
 
 def cutout_closing_voltage_v(job):
@@ -2101,7 +2122,8 @@ def setting_plan(machine, profile, setting, finish_setting=None):
 # cautions
 # ===========================================================================
 
-_IEC_VENT_BASIS = ("IEC 62485-2 ventilation formula Q = 0.05 n Igas C 1e-3 and opening A = 28 Q (seen); gas "
+_IEC_VENT_BASIS = ("IEC 62485-2 ventilation formula Q = 0.05 n Igas C 1e-3 and opening A = 28 Q (seen; stationary "
+                   "batteries, and IEC 62485-3 for traction batteries uses the same formula, recalled); gas "
                    "current from the larger of the standard's table and the plan's own gas current x fg x fs")
 
 
@@ -2145,7 +2167,14 @@ def option_cautions(machine, profile, setting, f):
         cut += (f" With no cut-out a full bank drives about {back:.0f} A back into the machine at standstill "
                 "(cold windings).")
     gap = cutout_closing_margin_volts_per_cell(b)
-    if gap < CUTOUT_MARGIN_V_PER_CELL / 2:
+    surge = cutout_closing_surge_a(machine, b)
+    if gap > CUTOUT_FAR_V_PER_CELL:
+        # the difference between the machine and an emptier bank at the moment of closing
+        cut += (f" The job's closing voltage is {1e3 * gap:.0f} mV per cell above the full bank's rest voltage "
+                f"(common practice: about {1e3 * CUTOUT_MARGIN_V_PER_CELL:.0f} mV): at closing onto the bank at "
+                f"{100 * b.state_of_charge[0]:.0f} % charge the difference drives a surge of up to about {surge:.0f} A "
+                "until the field settles; set it lower.")
+    elif gap < CUTOUT_MARGIN_V_PER_CELL / 2:
         # a relay's own tolerance and a small speed dip are of this size: it closes and opens in turn
         cut += (f" The job's closing voltage is only {1e3 * gap:.0f} mV per cell above the bank's rest voltage at "
                 f"full charge (common practice: about {1e3 * CUTOUT_MARGIN_V_PER_CELL:.0f} mV): a cut-out set so "
@@ -2160,6 +2189,16 @@ def option_cautions(machine, profile, setting, f):
                        "memory); standstill current from the circuit equation at zero speed",
                        cutout_closing_voltage_v=close_v, cut_in_speed_cold_rpm=cold, cut_in_speed_hot_rpm=hot,
                        standstill_backfeed_current_a=back))
+    vi = _fig(f, "idle_no_load_voltage_v")
+    if vi is not None and profile.drive.idle_speed_rpm is not None and vi < close_v:
+        out.append(caution("battery-engine-idle", "warn",
+                           f"At the engine's idle the machine gives about {vi:.0f} V, below the cut-out's closing "
+                           f"{close_v:.1f} V: no charging current flows at idle, so an automatic idle that wakes on "
+                           "load never wakes and the cut-out never closes. Switch the automatic idle off for the whole "
+                           "charge and run up to governed speed before the cut-out can close; if the engine drops "
+                           "to idle during the charge, the cut-out must open.",
+                           "engine idle from the profile; cut-out closing voltage (common practice for engine-driven "
+                           "charging sets)", idle_no_load_voltage_v=vi, cutout_closing_voltage_v=close_v))
     why = ("its field leads or the exciter's may be connected the wrong way round" if conn.startswith("separate")
            else "a self-excited machine can build up reversed")
     out.append(caution("battery-polarity", "note",
@@ -2239,7 +2278,8 @@ def option_cautions(machine, profile, setting, f):
                            highest_volts_per_cell=ev, limit_volts_per_cell=vmax))
     h = _fig(f, "hours_to_full_longest")
     if h is None or h > b.target_hours * (1 + 1e-9):
-        words = "never reaches" if h is None else f"takes up to {h:.3g} h to reach"
+        words = "never reaches" if h is None else f"takes up to {h:.4g} h to reach" if h < 1e4 else \
+            f"takes up to {h:.0f} h to reach"
         out.append(caution("battery-hours", "warn",
                            f"This plan {words} the end state of charge {100 * b.state_of_charge[1]:.0f} %, against "
                            f"the job's {b.target_hours:g} h.", "the job's target_hours", hours_to_full=h,
@@ -2290,8 +2330,115 @@ def profile_cautions(machine, profile):
                            "which these figures do not include.",
                            basis, temperature_c=b.temperature_c, start_max_temperature_c=start,
                            stop_temperature_c=stop))
+    out += cold_bank_cautions(b)
     out += charge_rate_cautions(b)
+    out += battery_protection_cautions(b)
+    out += warm_nickel_cadmium_cautions(b)
     return out
+
+
+#: NiCd bank temperature [degC] above which the charge efficiency falls enough to matter: makers ask a
+#: larger charge input above about 35 degC (NiCd makers' charging notes, recalled, not checked).
+NICD_WARM_C = 35.0
+
+
+def warm_nickel_cadmium_cautions(job):
+    """A note where a NiCd bank is warm: the model's temperature shift makes it charge a little faster,
+    while the cells' charge efficiency falls (oxygen at the positive plate starts earlier)."""
+    if not job.chemistry.startswith("nickel") or job.temperature_c <= NICD_WARM_C:
+        return []
+    return [caution("battery-warm-nicd", "note",
+                    f"The bank is at {job.temperature_c:g} °C: a warm NiCd cell turns more of its charge into gas, "
+                    "so the hours to full and the Ah factor here are optimistic; makers ask a larger charge input "
+                    "(longer finish) when warm: follow the battery maker's instructions.",
+                    "NiCd makers' charging notes (recalled, not checked against a maker's text)",
+                    temperature_c=job.temperature_c)]
+
+
+def prospective_short_circuit_current_a(job):
+    """Current a full bank drives into a short at its own terminals [A]: its rest voltage at the top of
+    the state-of-charge range over its internal resistance (closed form; the upper bound a fuse must break)."""
+    return cells_rest_voltage_v(job) / job.internal_resistance_ohm
+
+
+def cells_rest_voltage_v(job, soc=None):
+    """The bank's rest voltage [V] at ``soc`` (default the top of the job's state-of-charge range)."""
+    chem = chemistry(job.chemistry)
+    soc = job.state_of_charge[1] if soc is None else soc
+    return job.cells * float(open_circuit_voltage_per_cell(chem, soc, job.open_circuit_voltage_per_cell_v))
+
+
+def battery_protection_cautions(job):
+    """The bank, not the machine, gives the largest fault current in a charging plant: a fuse or DC breaker
+    that breaks it and an isolating switch, at the battery end of its leads."""
+    isc, v = prospective_short_circuit_current_a(job), cells_rest_voltage_v(job)
+    size = f"{isc / 1e3:.2g} kA" if isc >= 1e3 else f"{isc:.3g} A"
+    return [caution("battery-protection", "warn",
+                    f"Fit a fuse or DC breaker that breaks the bank's prospective short-circuit current (about {size} "
+                    f"at {v:.0f} V DC at its terminals) and an isolating switch, in the battery leads as near the "
+                    "battery as you can: a cut-out does not break a fault. Open the isolator for the no-load check.",
+                    "protection and isolation of battery circuits (IEC 62485-2, recalled, not checked against the "
+                    "text; common practice); prospective current = rest voltage / internal resistance (closed form)",
+                    prospective_short_circuit_current_a=isc, bank_rest_voltage_v=v)]
+
+
+#: Freezing point of lead-acid electrolyte [degC] by specific gravity: the handbook table of dilute
+#: sulphuric acid (recalled, not checked against the text: 1.10 about -8, 1.15 about -15, 1.20 about -27,
+#: 1.25 about -52, 1.28 about -69 degC).
+LEAD_ACID_FREEZING_POINT_C = ((1.00, 0.0), (1.05, -3.0), (1.10, -8.0), (1.15, -15.0), (1.20, -27.0),
+                              (1.25, -52.0), (1.28, -69.0), (1.30, -70.0))
+#: Rest volts per cell over specific gravity for lead-acid (open-circuit volts = SG + 0.84; common practice).
+LEAD_ACID_REST_OFFSET_V = 0.84
+#: Freezing point of a vented NiCd cell's standard potassium hydroxide electrolyte (SG about 1.19) [degC]
+#: (makers' data, recalled, not checked against a maker's text); it does not change with the charge.
+NICD_FREEZING_POINT_C = -25.0
+#: Below this bank temperature [degC] a charge is slow and the plan optimistic: the model's temperature
+#: enters only through the voltages, not the lower charge acceptance of cold cells (common practice).
+COLD_BANK_C = 5.0
+
+
+def electrolyte_freezing_point_c(job):
+    """Freezing point of the bank's electrolyte at the start of charge [degC], and the specific gravity it
+    rests on (None for NiCd, whose gravity does not follow the charge).
+
+    Lead-acid: the gravity from the rest voltage at the starting state of
+    charge (SG = V - 0.84), then the handbook table, linear between rows.
+    """
+    chem = chemistry(job.chemistry)
+    if job.chemistry.startswith("nickel"):
+        return NICD_FREEZING_POINT_C, None
+    sg = float(open_circuit_voltage_per_cell(chem, job.state_of_charge[0], job.open_circuit_voltage_per_cell_v)) \
+        - LEAD_ACID_REST_OFFSET_V
+    g, t = zip(*LEAD_ACID_FREEZING_POINT_C)
+    return float(np.interp(sg, g, t)), sg
+
+
+def cold_bank_cautions(job):
+    """A ``stop`` where the bank may be frozen at the start of charge (its temperature at or below the
+    electrolyte's freezing point), a ``warn`` where it is cold (below ``COLD_BANK_C``)."""
+    temp = job.temperature_c
+    if temp >= COLD_BANK_C:
+        return []
+    freeze, sg = electrolyte_freezing_point_c(job)
+    vho = handover_volts_per_cell(job)
+    at = (f"the electrolyte at {100 * job.state_of_charge[0]:.0f} % charge (gravity about {sg:.2f}) freezes at "
+          f"about {freeze:.0f} °C" if sg is not None else
+          f"a standard potassium hydroxide electrolyte freezes at about {freeze:.0f} °C")
+    basis = ("freezing point of the electrolyte: handbook table of dilute sulphuric acid by gravity, gravity = "
+             "rest voltage - 0.84 (recalled, not checked against the text)" if sg is not None else
+             "NiCd makers' electrolyte data (recalled, not checked against a maker's text)") + \
+        "; cold cells take charge slowly (common practice)"
+    if temp <= freeze:
+        return [caution("battery-frozen", "stop",
+                        f"The bank is at {temp:g} °C and {at}: it may be frozen. Do not charge a frozen cell (it can "
+                        "burst or gas violently): warm the bank above about 5 °C and check that the electrolyte "
+                        "is liquid first.", basis, temperature_c=temp, freezing_point_c=freeze)]
+    return [caution("battery-cold", "warn",
+                    f"The bank is at {temp:g} °C: cold cells take charge slowly, so the hours here are optimistic, "
+                    f"and the temperature correction raises the hand-over to {vho:.3f} V per cell (many chargers "
+                    "stop correcting below about 0 °C: check the battery maker's limit); "
+                    f"{at}. Warm the bank if you can.", basis, temperature_c=temp,
+                    freezing_point_c=freeze, handover_volts_per_cell=vho)]
 
 
 #: Highest charge rate a job may ask, as multiples of the chemistry's normal rate: a warning past
