@@ -161,6 +161,9 @@ def wiring(machine, setting, kind, electrode="+"):
     if kind == "battery":
         parts.append(Part("cut-out", "reverse-current cut-out"))
         parts.append(Part("line-ammeter", "charging current"))
+        # the bank's fault current is the plant's largest: broken and isolated at the battery end
+        parts.append(Part("fuse", "fuse or DC breaker"))
+        parts.append(Part("isolator", "battery isolating switch"))
     elif kind == "welding":
         parts.append(Part("line-ammeter", "welding current"))
     if kind in ("lighting", "booster"):
@@ -318,6 +321,12 @@ def wiring_svg(w, title=None):
     if "line-ammeter" in roles:
         d.add(elm.MeterA().at((x, top)).right().length(STEP).label("A", loc="top", fontsize=LABEL_SIZE))
         x += STEP
+    if "fuse" in roles:
+        d.add(elm.FuseIEC().at((x, top)).right().length(STEP * 0.8).label("fuse", loc="top", fontsize=LABEL_SIZE))
+        x += STEP * 0.8
+    if "isolator" in roles:
+        d.add(elm.Switch().at((x, top)).right().length(STEP * 0.8).label("isolator", loc="top", fontsize=LABEL_SIZE))
+        x += STEP * 0.8
     if "feeder" in roles:
         d.add(elm.ResistorIEC().at((x, top)).right().length(STEP).label("feeder", loc="top", fontsize=LABEL_SIZE))
         x += STEP

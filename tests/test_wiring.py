@@ -40,7 +40,11 @@ def test_parts_of_every_connection(welder, conn, kind):
     if conn in SELF_EXCITED:
         assert "rheostat" in roles and "12 Ω" in w.part("rheostat").label
     if kind == "battery":
-        assert "cut-out" in roles
+        # the bank's fault current is broken and isolated at its end (second battery review)
+        assert {"cut-out", "fuse", "isolator"} <= set(roles)
+        assert roles.index("line-ammeter") < roles.index("fuse") < roles.index("isolator") < roles.index("load")
+    else:
+        assert "fuse" not in roles and "isolator" not in roles
     if kind == "lighting":
         assert "feeder" in roles
     svg = wiring_svg(w)
