@@ -90,11 +90,15 @@ GLOSSARY = {
                                "below the battery's, so the battery cannot drive the machine.",
     "gassing voltage": "the cell voltage above which a charging cell gives off hydrogen and oxygen.",
     "duty cycle": "the share of a ten-minute period for which a welding set may carry its current.",
+    "prospective short-circuit current": "the current a source would drive into a short at a point, limited only "
+                                         "by its own resistance and the leads': what a fuse or breaker there must "
+                                         "be able to break.",
 }
 
 #: Glossary terms that belong to one job only (the others are every job's).
 GLOSSARY_JOBS = {"drooping characteristic": "welding", "duty cycle": "welding",
-                 "reverse-current cut-out": "battery", "gassing voltage": "battery"}
+                 "reverse-current cut-out": "battery", "gassing voltage": "battery",
+                 "prospective short-circuit current": "battery"}
 
 
 def glossary_for(kind=None):
