@@ -56,6 +56,15 @@ def rules(cautions):
     return {c.rule: c for c in cautions}
 
 
+def profile_with_battery_line(folder, name, line):
+    """The demo battery profile with ``line`` added at the top of its ``[battery]`` table, written to
+    ``folder / name``; returns its path."""
+    path = Path(folder) / name
+    path.write_text(PROFILE.read_text(encoding="utf-8").replace("[battery]\n", f"[battery]\n{line}\n"),
+                    encoding="utf-8")
+    return path
+
+
 def test_start_reading_is_what_the_field_ammeter_shows_at_switch_on(machine, profile, result):
     """The main charge's field reading is taken where the plan starts (the bank on charge, as the cell
     model has it), not on the bank's rest-voltage line: the run's own first field current lies inside
@@ -158,10 +167,7 @@ def test_cutout_closing_below_the_full_bank_is_refused(tmp_path, capsys):
     voltage at or below the bank's rest voltage at the top of its state-of-charge range (2.12 V/cell
     for vented lead-acid at 100 %) would let the bank back-feed at every closing (common practice;
     rest voltage = SG + 0.84, from memory). One line, exit code 2."""
-    text = PROFILE.read_text(encoding="utf-8").replace(
-        "[battery]\n", "[battery]\ncutout_closing_volts_per_cell = 2.0\n")
-    bad = tmp_path / "cutout.toml"
-    bad.write_text(text, encoding="utf-8")
+    bad = profile_with_battery_line(tmp_path, "cutout.toml", "cutout_closing_volts_per_cell = 2.0")
     with pytest.raises(InputError, match=r"cutout_closing_volts_per_cell: is 2; allowed: above 2\.12 V/cell"):
         load_profile(bad)
     assert main(["search", str(MACHINE), str(bad)]) == 2
@@ -330,10 +336,7 @@ def test_cutout_closing_just_above_the_full_bank_is_warned(tmp_path):
     """A cut-out set to close only 10 mV/cell above the full bank's rest voltage (2.12 V/cell, vented
     lead-acid) closes with next to no charging current and chatters as the speed wanders: the
     cut-out caution says so and names the usual margin, about 50 mV/cell (common practice)."""
-    text = PROFILE.read_text(encoding="utf-8").replace(
-        "[battery]\n", "[battery]\ncutout_closing_volts_per_cell = 2.13\n")
-    close = tmp_path / "close.toml"
-    close.write_text(text, encoding="utf-8")
+    close = profile_with_battery_line(tmp_path, "close.toml", "cutout_closing_volts_per_cell = 2.13")
     res = search(load_machine(MACHINE), load_profile(close))
     text = next(c.message for c in res.options[0].cautions if c.rule == "battery-reverse-current")
     assert "only 10 mV per cell above" in text and "chatter" in text
@@ -392,10 +395,7 @@ def test_a_full_rest_voltage_above_the_default_hand_over_is_refused(tmp_path, ca
     """A full cell resting at 2.45 V, above the default hand-over (the gassing voltage 2.38 V): a slip that
     gave a 48-519 h 'plan' while the same data with the hand-over written out was refused. One line,
     exit code 2."""
-    text = PROFILE.read_text(encoding="utf-8").replace(
-        "[battery]\n", "[battery]\nopen_circuit_voltage_per_cell_v = [1.98, 2.45]\n")
-    bad = tmp_path / "ocv.toml"
-    bad.write_text(text, encoding="utf-8")
+    bad = profile_with_battery_line(tmp_path, "ocv.toml", "open_circuit_voltage_per_cell_v = [1.98, 2.45]")
     with pytest.raises(InputError, match=r"open_circuit_voltage_per_cell_v: full-charge rest voltage 2\.45"):
         load_profile(bad)
     assert main(["charge", str(MACHINE), str(bad)]) == 2
@@ -406,10 +406,7 @@ def test_cutout_closing_far_above_the_bank_gives_the_closing_surge(tmp_path):
     """Closing at 2.4 V per cell (280 mV above the full bank's 2.12 V) onto the bank at 20 % charge
     (2.008 V per cell): (144 - 120.48) V over the bank, the leads and the armature is the surge's upper
     bound (closed form); the caution names it."""
-    text = PROFILE.read_text(encoding="utf-8").replace(
-        "[battery]\n", "[battery]\ncutout_closing_volts_per_cell = 2.4\n")
-    far = tmp_path / "far.toml"
-    far.write_text(text, encoding="utf-8")
+    far = profile_with_battery_line(tmp_path, "far.toml", "cutout_closing_volts_per_cell = 2.4")
     m, p = load_machine(MACHINE), load_profile(far)
     b = p.battery
     want = (60 * 2.4 - 60 * 2.008) / (b.internal_resistance_ohm + b.cable_resistance_ohm + m.armature_resistance_ohm)
