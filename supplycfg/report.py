@@ -527,6 +527,22 @@ DIAL_SETTING_WORDS = ("Set the tap (and diverter) with the arc out, then turn th
                       "the field current falls as the field warms (by about a tenth from cold to hot): read the ammeter "
                       "again once the set is warm and bring it back to the row's value. Stuck-electrode currents "
                       "(a short through the leads) are with cold windings, the worst case.")
+#: Added for a flat (constant-voltage) process: the wire feed sets the current, the field the voltage.
+FLAT_DIAL_WORDS = ("For a flat process (metal inert gas) the wire feed sets the current: a row's current is where the "
+                   "wire feed puts the arc, and its field reading sets the voltage (the terminal column).")
+
+
+def dial_setting_words(profile, short=False):
+    """The welding dial's words for the job's process: how to set a row, and for a flat process what the
+    row's current means."""
+    words = DIAL_SETTING_SHORT if short else DIAL_SETTING_WORDS
+    from .jobs.welding import welding_process
+    job = getattr(profile, "welding", None)
+    if job is not None and welding_process(job.process).characteristic == "flat":
+        words += " " + FLAT_DIAL_WORDS
+    return words
+
+
 #: The same, short, for the printed card's first page.
 DIAL_SETTING_SHORT = ("Set each row by the field ammeter at no load, taps only with the arc out; the ohms are a start; "
                       "read the ammeter again once the set is warm.")
@@ -1270,7 +1286,7 @@ def sheet_markdown(result, rank=None, run=None, date=None):
     lines += [""] if search_notes_for(result, o) else []
     lines += _md_table(("What", "Setting"), setting_rows(o, m, p)) + [""]
     if dial_rows(o):
-        lines += ["### Welding dial", "", md_esc(DIAL_SETTING_WORDS), ""] + _md_table(DIAL_HEADERS, dial_rows(o)) + [""]
+        lines += ["### Welding dial", "", md_esc(dial_setting_words(p)), ""] + _md_table(DIAL_HEADERS, dial_rows(o)) + [""]
     elif o.current_settings:
         lines += ["### Field setting for each end of the welding range", ""]
         lines += _md_table(CURRENT_SETTING_HEADERS, current_setting_rows(o)) + [""]
@@ -1474,7 +1490,7 @@ def card_html(result, option, run=None, wiring_svg=None):
         heads, short = dial_card_rows(o)
         half = (len(short) + 1) // 2 if len(short) > 7 else len(short)
         halves = [short[:half], short[half:]] if half < len(short) else [short]
-        parts += ["<h3>Welding dial</h3>", f'<p class="small">{esc(DIAL_SETTING_SHORT)}</p>', '<div class="halves">']
+        parts += ["<h3>Welding dial</h3>", f'<p class="small">{esc(dial_setting_words(result.profile, short=True))}</p>', '<div class="halves">']
         parts += [_html_table(heads, h, "dial compact", numeric=(0, 1)) for h in halves]
         parts.append("</div>")
     elif o.current_settings:

@@ -681,7 +681,7 @@ def _field_cells(o):
     return _num(r["rheostat_ohm"], "g"), _num(r["field_current_a"]["hot"], "g")
 
 
-def _dial_lines(o, cable_ohm):
+def _dial_lines(o, cable_ohm, profile=None):
     hdr = ("current [A]", "series turns", "diverter [ohm]", "rheostat [ohm]", "travel [%]", "field hot [A]",
            "no-load [V]", "no-load low [V]", "no-load high [V]", "stuck electrode cold [A]", "slope [V/A]",
            "per arc volt [A/V]", "terminal [V]", "arc [V]", "tap change")
@@ -696,8 +696,9 @@ def _dial_lines(o, cable_ohm):
                      _num(r["slope_v_per_a"], ".3f"), _num(r["current_change_per_arc_volt_a_per_v"], ".2f"),
                      _num(r["terminal_voltage_v"], ".1f"), _num(r["arc_voltage_v"], ".1f"),
                      "yes" if r.get("tap_change") else ""))
-    from .report import DIAL_SETTING_WORDS
-    lines = ["Welding dial: " + DIAL_SETTING_WORDS[0].lower() + DIAL_SETTING_WORDS[1:]]
+    from .report import dial_setting_words
+    words = dial_setting_words(profile)
+    lines = ["Welding dial: " + words[0].lower() + words[1:]]
     lines += ["  " + ln for ln in _table(hdr, rows)]
     lines.append("  no-load low / high: the lowest and highest no-load voltage over the speed and temperature range; "
                  "per arc volt: change of current for 1 V more arc voltage (a longer arc); "
@@ -798,7 +799,7 @@ def at_machine_lines(option, profile):
     readings and bands (per stage of a charge plan), diverters with their ratings, the exciter supply."""
     lines = []
     if profile.kind == "welding":
-        lines += _dial_lines(option, profile.welding.cable_resistance_ohm)
+        lines += _dial_lines(option, profile.welding.cable_resistance_ohm, profile)
     return lines + _reading_lines(option, profile.kind)
 
 

@@ -355,3 +355,19 @@ def test_curve_with_a_welding_profile_stops_a_stuck_electrode_past_the_peak_limi
     found = welding.stuck_electrode_on_curve(il, 80 - 0.2 * il, il + 2, 0.05)
     assert_allclose(found[:2], (320.0, 322.0), rtol=1e-12)
     assert found[2]
+
+
+def test_a_flat_process_dial_says_the_wire_feed_sets_the_current(tmp_path):
+    """On a flat (constant-voltage) source the wire feed sets the current and the field the voltage (common
+    practice for metal inert gas): the dial's words say so for that process, in the search text, the
+    Markdown sheet and the printed card, and not for manual metal arc."""
+    from supplycfg.report import FLAT_DIAL_WORDS, sheet_html
+    mig = load_profile(variant(tmp_path, "mig.toml", ('process = "manual-metal-arc" ', 'process = "metal-inert-gas" ')))
+    m = load_machine(MACHINE)
+    res = search(m, mig)
+    assert res.options and dial_rows(res.options[0])
+    assert FLAT_DIAL_WORDS in search_text(res) and FLAT_DIAL_WORDS in sheet_markdown(res)
+    import html
+    assert html.escape(FLAT_DIAL_WORDS) in " ".join(sheet_html(res, charts=False).split())
+    mma = search(m, load_profile(ROOT / "profiles" / "loads" / "welding.toml"))
+    assert FLAT_DIAL_WORDS not in search_text(mma) and FLAT_DIAL_WORDS not in sheet_markdown(mma)

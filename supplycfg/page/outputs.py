@@ -11,7 +11,7 @@ import streamlit as st
 from .. import STANDING_NOTICE
 from ..errors import InputError
 from ..files import dumps_json, write_atomic
-from ..report import (CARD_PLAN_HEADERS, CHECKLIST_HEADERS, CURRENT_SETTING_HEADERS, DIAL_HEADERS, DIAL_SETTING_WORDS, PLAN_HEADERS, SEVERITY_WORDS,
+from ..report import (CARD_PLAN_HEADERS, CHECKLIST_HEADERS, CURRENT_SETTING_HEADERS, DIAL_HEADERS, dial_setting_words, PLAN_HEADERS, SEVERITY_WORDS,
                       card_plan_rows, cautions_pointer, checklist_rows, condition_words, current_setting_rows, cutout_rows,
                       dial_rows, electrode_of, esc,
                       field_reading_text, figure_rows, fmt, broken_limits_text, margin_rows, md_data, md_esc, objective_value,
@@ -95,7 +95,7 @@ def recommended_card(result, run=None, box=None):
         _table(("Set", "To"), setting_rows(o, m, p))
         if dial_rows(o):
             st.markdown("**Welding dial**")
-            st.caption(md_esc(DIAL_SETTING_WORDS))
+            st.caption(md_esc(dial_setting_words(p)))
             _table(DIAL_HEADERS, dial_rows(o))
         elif o.current_settings:
             st.markdown("**Field setting for each end of the welding range**")
