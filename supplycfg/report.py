@@ -1019,8 +1019,9 @@ def battery_temperature_check_text(job):
     the charge stops (the job's temperature caution's limit)."""
     from .jobs.battery import CHARGE_STOP_TEMPERATURE_C, chemistry
     shift = abs(chemistry(job.chemistry).temperature_coefficient_v_per_c) * BATTERY_TEMPERATURE_CHECK_C
-    return (f"{fmt(job.temperature_c, '°C')} at the start as planned (over {fmt(BATTERY_TEMPERATURE_CHECK_C, '°C')} "
-            f"off: plan again, {fmt(shift, 'V')} per cell); stop at {fmt(CHARGE_STOP_TEMPERATURE_C[job.chemistry], '°C')}")
+    return (f"{fmt(job.temperature_c, '°C')} at the start as planned; {fmt(BATTERY_TEMPERATURE_CHECK_C, '°C')} off "
+            f"moves the hand-over {fmt(shift, 'V')} per cell: plan again; "
+            f"stop at {fmt(CHARGE_STOP_TEMPERATURE_C[job.chemistry], '°C')}")
 
 
 #: How a battery shop tells the end of charge (common practice): readings steady over three hours.

@@ -23,9 +23,10 @@ from hypothesis import strategies as st
 from numpy.testing import assert_allclose
 
 from supplycfg import cli
-from supplycfg.cautions import GOVERNOR_BAND_FRACTION, caution, setting_cautions
+from supplycfg.cautions import GOVERNOR_BAND_FRACTION, caution, drive_cautions, setting_cautions
 from supplycfg.circuit import Load, Setting, check_setting, operating_points
 from supplycfg.jobs import command_cautions, welding
+from supplycfg.jobs import option_cautions as job_option_cautions
 from supplycfg.machine import load_machine, machine_from_dict
 from supplycfg.profile import load_profile, profile_from_dict
 from supplycfg.readings import (bisection_grid_point, bisection_tree, control_band, diverter_rating,
@@ -891,12 +892,13 @@ def test_separately_excited_cautions_name_its_own_field_and_basis():
     """Regression: the welding demo's separately excited option was told not to open "the shunt field circuit"
     (it has none; its field is the separate one) and its idle voltage cited the critical speed of
     self-excitation, which a separately excited field does not have (E = k Phi n at a given field does)."""
-    res = demo("welding")[2]
+    m, p, res = demo("welding")
     o = res.options[0]
     assert o.setting.connection.startswith("separate")
     by_rule = {c.rule: c for c in o.cautions}
     assert "separate field circuit" in by_rule["field-switching"].message
-    assert "self-excitation" not in by_rule["drive-idle"].basis and "E = k Phi n" in by_rule["drive-idle"].basis
+    idle = {c.rule: c for c in drive_cautions(m, p.drive, o.figures)}["drive-idle"]
+    assert "self-excitation" not in idle.basis and "E = k Phi n" in idle.basis
     shunt = next(x for x in res.options if not x.setting.connection.startswith("separate")
                  and x.setting.connection != "series")
     assert "shunt field circuit" in {c.rule: c for c in shunt.cautions}["field-switching"].message
@@ -908,3 +910,15 @@ def test_charge_text_names_the_connection_in_trade_words(capsys):
     out = cli_output(["charge", str(MACHINES / "charging-set.toml"), str(LOADS / "battery-charging.toml")], capsys)
     line = next(x for x in out.splitlines() if x.startswith("setting: "))
     assert line.startswith("setting: long-shunt differential compound (--connection long-shunt-differential), ")
+
+
+def test_idle_voltage_is_told_once_when_the_job_tells_it():
+    """Regression: the welding demo's sheet gave the engine's idle voltage twice, in the strike note
+    ("let the engine come up to speed") and in the drive's idle note; the job's note carries it alone.
+    A field that does not build up at idle is still told by the drive's note (it adds that)."""
+    m, p, res = demo("welding")
+    rules = [c.rule for c in res.options[0].cautions]
+    assert "welding-strike-at-idle" in rules and "drive-idle" not in rules
+    f = dict(res.options[0].figures, idle_builds_up=0.0)
+    kept = [c.rule for c in job_option_cautions(m, p, res.options[0].setting, f)]
+    assert "welding-strike-at-idle" in kept and "drive-idle" in kept

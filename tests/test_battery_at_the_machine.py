@@ -352,7 +352,8 @@ def test_checklist_asks_the_battery_temperature_the_plan_is_for(tmp_path):
     res = search(m, p)
     rows = dict(checklist_rows(res, res.options[0]))
     got = rows["Pilot-cell temperature, at the start and hourly in the finish"]
-    assert got == "25 °C at the start as planned (over 5 °C off: plan again, 0.02 V per cell); stop at 55 °C"
+    assert got == ("25 °C at the start as planned; 5 °C off moves the hand-over 0.02 V per cell: plan again; "
+                   "stop at 55 °C")
 
 
 # ---------------------------------------------------------------------------

@@ -40,9 +40,13 @@ def option_cautions(machine, profile, setting, f):
     job = JOBS[profile.kind]
     # a job may leave out a machine rule that does not fit it (its own rules cover that hazard)
     skip = set(getattr(job, "MACHINE_RULES_LEFT_OUT", ()))
-    return (job.option_cautions(machine, profile, setting, f)
-            + [c for c in setting_cautions(machine, setting, f) if c.rule not in skip]
-            + drive_cautions(machine, profile.drive, f))
+    own = job.option_cautions(machine, profile, setting, f)
+    drive = drive_cautions(machine, profile.drive, f)
+    if any("idle_no_load_voltage_v" in c.figures for c in own):
+        # the job's caution already gives the idle voltage and what to do about it: the drive's
+        # idle note would repeat the figure, unless it adds that the field does not build up
+        drive = [c for c in drive if c.rule != "drive-idle" or c.figures.get("idle_builds_up") == 0]
+    return (own + [c for c in setting_cautions(machine, setting, f) if c.rule not in skip] + drive)
 
 
 def profile_cautions(machine, profile):
