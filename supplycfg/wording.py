@@ -107,6 +107,8 @@ def glossary_for(kind=None):
 
 
 _SEEN = re.compile(r"\s*\(\s*seen\s*\)", re.I)
+#: "seen" leading a bracket or a clause of several: "(seen; stationary ...)", "boost, seen; onset ..."
+_SEEN_IN = re.compile(r"(?<=\()\s*seen\s*;\s*|,\s*seen\s*(?=;)", re.I)
 _MEMORY = re.compile(r"from memory", re.I)
 
 
@@ -116,7 +118,7 @@ def source_text(basis):
     Markers meant for the project ("seen") are dropped; "from memory" becomes
     "recalled, not checked against the text".
     """
-    s = _SEEN.sub("", visible_text(basis)).strip()
+    s = _SEEN_IN.sub("", _SEEN.sub("", visible_text(basis))).strip()
     s = _MEMORY.sub("recalled, not checked against the text", s)
     s = re.sub(r"\s+;", ";", s)
     return f"Source: {s}" if s else "Source: not stated"

@@ -1,10 +1,17 @@
 """Words shown to people: connection names, source lines, file text made visible."""
 
+import re
+
 import pytest
 
 from supplycfg.circuit import CONNECTIONS
 from supplycfg.errors import InputError
 from supplycfg.wording import GLOSSARY, connection_words, source_text, visible_text
+
+try:
+    from .builders import DEMOS, demo
+except ImportError:
+    from builders import DEMOS, demo
 
 
 def test_every_connection_has_trade_words():
@@ -30,6 +37,22 @@ def test_source_lines():
     line = source_text("rating plate; IEC 60034-1 overspeed test (from memory)")
     assert "from memory" not in line and "(recalled, not checked against the text)" in line
     assert "seen" not in source_text("IEC 62485-2 ventilation formula (seen)")
+
+
+def test_seen_marker_leading_a_bracket_or_clause_is_dropped():
+    """Regression: the battery's ventilation basis read "(seen; stationary batteries, ...)" on the
+    sheet; the project's marker is dropped wherever it stands, the words around it kept."""
+    assert source_text("formula A = 28 Q (seen; stationary batteries)") == \
+        "Source: formula A = 28 Q (stationary batteries)"
+    assert source_text("(IEC 62485-2 boost, seen; onset from memory)") == \
+        "Source: (IEC 62485-2 boost; onset recalled, not checked against the text)"
+    assert source_text("foreseen load; common practice") == "Source: foreseen load; common practice"
+
+    from supplycfg.jobs import profile_cautions
+    for kind in DEMOS:
+        m, p, res = demo(kind)
+        for c in [c for o in res.options[:3] for c in o.cautions] + profile_cautions(m, p):
+            assert not re.search(r"\bseen\b", source_text(c.basis)), (kind, c.rule, c.basis)
 
 
 @pytest.mark.parametrize("raw, shown", [
