@@ -43,8 +43,8 @@ _UNITS = (("_v_per_a", "V/A"), ("_m3_per_h", "m³/h"), ("_percent", "%"), ("_rpm
 
 #: Plain words for the figures the search reports; others are named from their key.
 FIGURE_WORDS = {
-    "hours_to_full": "hours to full at {setting}",
-    "hours_to_full_longest": "hours to full, longest over the speed and temperature range",
+    "hours_to_full": ("hours to full at {setting}", "h"),
+    "hours_to_full_longest": ("hours to full, longest over the speed and temperature range", "h"),
     "ah_charge_factor": ("ampere-hours delivered per ampere-hour stored", "×"),
     "gassing_state_of_charge": ("state of charge where gassing begins (0 to 1)", ""),
     "stages": ("stages of the charge plan", ""),

@@ -582,3 +582,10 @@ def test_near_miss_battery_sheet_keeps_its_notice_on_page_one(tmp_path):
     assert "Once warm it can" in text and "they come first." in text
     for check, _ in report.checklist_rows(res, res.options[0]):
         assert " ".join(check.split()[:3]) in text, check
+
+
+def test_hours_to_full_carries_its_unit():
+    """Regression: the battery sheet's 'What to expect' printed 'hours to full ... | 14.55' with no unit
+    (the key ends in '_full', not a unit suffix)."""
+    assert report.figure_label("hours_to_full")[1] == "h"
+    assert report.figure_label("hours_to_full_longest")[1] == "h"
