@@ -303,7 +303,7 @@ def figure_rows(option):
 def plan_table(option):
     """``[(stage, field, time, current, end volts per cell, ends because)]`` of a battery option's plan."""
     from .jobs.battery import plan_rows
-    return plan_rows((getattr(option, "extras", None) or {}).get("plan") or [])
+    return plan_rows((getattr(option, "extras", None) or {}).get("plan") or [], ohm="Ω")
 
 
 def cutout_rows(option):

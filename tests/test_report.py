@@ -589,3 +589,17 @@ def test_hours_to_full_carries_its_unit():
     (the key ends in '_full', not a unit suffix)."""
     assert report.figure_label("hours_to_full")[1] == "h"
     assert report.figure_label("hours_to_full_longest")[1] == "h"
+
+
+def test_charge_plan_table_on_page_and_sheet_writes_the_ohm_sign():
+    """Regression: the page's and the sheet's full charge-plan table read "rheostat 20 ohm" beside
+    cards that write "20 Ω"; the terminal's text keeps the plain word."""
+    from supplycfg.jobs.battery import plan_rows
+    try:
+        from .builders import demo
+    except ImportError:
+        from builders import demo
+    res = demo("battery")[2]
+    rows = report.plan_table(res.options[0])
+    assert rows and all("ohm" not in r[1] for r in rows) and "Ω" in rows[0][1]
+    assert "ohm" in plan_rows(res.options[0].extras["plan"])[0][1]

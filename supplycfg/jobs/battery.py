@@ -1770,11 +1770,13 @@ def _fmt(v, f):
     return "-" if v is None or not math.isfinite(v) else format(v, f)
 
 
-def plan_rows(stages):
+def plan_rows(stages, ohm="ohm"):
     """The stages in plain words: ``[(stage, field setting, hours, current, end volts per cell, ends because)]``.
 
     The field setting is the stage's meter reading, rounded to what can be
     set, where the stage carries one (``readings``); else the exact value.
+    ``ohm`` is the unit's sign: plain text for a terminal, "Ω" on the page
+    and the sheet.
     """
     rows = []
     for s in stages:
@@ -1785,9 +1787,9 @@ def plan_rows(stages):
         elif st["connection"] == "series":
             fld = "series winding only"
         elif rd.get("rheostat_ohm") is not None:
-            fld = f"rheostat {rd['rheostat_ohm']:g} ohm"
+            fld = f"rheostat {rd['rheostat_ohm']:g} {ohm}"
         else:
-            fld = f"rheostat {st.get('rheostat_ohm') or 0:.4g} ohm"
+            fld = f"rheostat {st.get('rheostat_ohm') or 0:.4g} {ohm}"
         rows.append((f"{s['stage']}: {s['name']}", fld, f"{_fmt(s['from_h'], '.2f')} to {_fmt(s['to_h'], '.2f')} h",
                      f"{_fmt(s['start_current_a'], '.3g')} to {_fmt(s['end_current_a'], '.3g')} A",
                      f"{_fmt(s['end_volts_per_cell'], '.3f')} V", s["ends_reason"]))
