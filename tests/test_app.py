@@ -242,10 +242,15 @@ def test_trim_slider_redraws_the_curves():
 
 
 def test_picking_another_option_shows_its_details():
+    """Option 2 in detail carries its own setting table; option 1's is the card's, shown once (regression:
+    the recommended option's table stood twice on the page, in the card and again in its detail)."""
     at = fresh()
+    assert not any(h.value == "Set the machine like this" for h in at.subheader)
+    assert any("as the card at the top" in m.value for m in at.markdown)
     pick = next(s for s in at.selectbox if s.label == "Look at option")
     pick.select(2).run()
     assert any(h.value == "Option 2 in detail" for h in at.header)
+    assert any(h.value == "Set the machine like this" for h in at.subheader)
     assert "option 2 of" in at.session_state["sheet_markdown"]
 
 

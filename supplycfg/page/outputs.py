@@ -207,8 +207,12 @@ def detail_section(result, option):
         if c.severity == "stop":
             _caution(c)
     m, p = result.machine, result.profile
-    st.subheader("Set the machine like this")
-    _table(("Set", "To"), setting_rows(option, m, p))
+    if option is result.options[0]:
+        # the card at the top already holds this table: not shown twice on one page
+        st.markdown("Set the machine as the card at the top of the results says; here, what the card leaves out.")
+    else:
+        st.subheader("Set the machine like this")
+        _table(("Set", "To"), setting_rows(option, m, p))
     if option.current_settings and not dial_rows(option):
         st.markdown("**Field setting for each end of the welding range**")
         _table(CURRENT_SETTING_HEADERS, current_setting_rows(option))
