@@ -1024,7 +1024,7 @@ def charge_run_chart(run, width=None, stages=None):
         a, b = st.get("from_h"), st.get("to_h")
         if a is None or b is None:
             continue
-        srows.append({"band": f"stage {k}: {float(a):.3g} to {float(b):.3g} h", "from_h": _f(a), "to_h": _f(b),
+        srows.append({"band": f"stage {k}: {float(a):.4g} to {float(b):.4g} h", "from_h": _f(a), "to_h": _f(b),
                       "ends_because": str(st.get("ends_because") or "")})
     shade = None
     if srows:
@@ -1079,7 +1079,7 @@ def charge_run_chart(run, width=None, stages=None):
     panels = [panel(cur).properties(height=h), panel(vpc).properties(height=h), panel(soc).properties(height=h)]
     if width is not None:
         panels = [p.properties(width=width) for p in panels]
-    title = _title(f"Charge run: {run.duration_h:.3g} h", "current, volts per cell and state of charge")
+    title = _title(f"Charge run: {run.duration_h:.4g} h", "current, volts per cell and state of charge")
     return alt.VConcatChart(vconcat=panels, datasets=sets.data, spacing=8, title=title, autosize=FIT_WIDTH,
                             config=CHART_CONFIG,
                             resolve=alt.Resolve(scale=alt.ScaleResolveMap(x="shared", fill="shared")))

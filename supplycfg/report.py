@@ -108,7 +108,7 @@ FIGURE_WORDS = {
     "slope_high_end_v_per_a": "slope of the characteristic at the high end",
     "stuck_electrode_current_a": "stuck-electrode current",
     "duty_equivalent_current_a": "duty-cycle equivalent current (I·√duty: optimistic, the maker's duty rating comes first)",
-    "top_speed_rpm": "top drive speed",
+    "top_speed_rpm": "drive's top speed at the generator shaft (with no load on the drive at all)",
     "min_no_load_voltage_v": "no-load voltage (mean), lowest",
     "no_load_strike_min_v": "no-load voltage an arc needs to strike",
     "tap_changes": ("tap or diverter changes along the welding dial", ""),

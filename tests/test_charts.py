@@ -1,5 +1,6 @@
 """Chart builders, tested apart from the page through their Vega-Lite specs."""
 
+import json
 from dataclasses import replace
 from pathlib import Path
 
@@ -653,3 +654,18 @@ def test_occ_chart_names_a_stalled_no_load_point(charging):
     assert names == {"no-load point held by the residual (no build-up)"}
     spec = charts.occ_chart(m, Setting("shunt", rheostat_ohm=30.0), p.temperatures_c).to_dict()
     assert {pt["point"] for pt in rows(spec, "no_load")} == {"built-up no-load point"}
+
+
+def test_charge_run_chart_gives_the_hours_as_the_card_does():
+    """Regression: the chart's title and stage bands read "14.5 h" and "6.43 to 14.5 h" beside a card and
+    a table giving 14.55 h: the same four significant figures everywhere."""
+    try:
+        from .builders import demo
+    except ImportError:
+        from builders import demo
+    from supplycfg.simulation import charge_run_for_option
+    m, p, res = demo("battery")
+    run = charge_run_for_option(m, p, res.options[0])
+    spec = charts.charge_run_chart(run, 500, res.options[0].extras["plan"]).to_dict()
+    text = json.dumps(spec)
+    assert f"Charge run: {run.duration_h:.4g} h" in text and f"{run.duration_h:.4g} h" == "14.55 h"
