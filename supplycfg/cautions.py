@@ -182,6 +182,48 @@ def setting_cautions(machine, setting, f):
     return out
 
 
+def job_current_cautions(machine, load_current_a, what="load"):
+    """Where the job itself asks more current than the machine can carry, whatever the setting.
+
+    A lighting feeder or a series booster carries the job's load current
+    (the armature at least that much): above the continuous rating the
+    machine is too small for the job's full load (a warning: no setting cures
+    it), above the short-time limit it cannot carry it at all (a stop).
+
+    Parameters
+    ----------
+    machine : Machine
+    load_current_a : float
+        The job's heaviest load current [A].
+    what : str, optional
+        The load in words (``"load"``, ``"feeder current"``).
+
+    Returns
+    -------
+    list of Caution
+    """
+    i = float(load_current_a)
+    rated, peak = machine.rated_armature_current_a, machine.peak_current_a
+    if i > peak:
+        return [caution("job-above-peak", "stop",
+                        f"The job's heaviest {what}, {i:g} A, is above the machine's short-time limit of {peak:.0f} A "
+                        f"(continuous rating {rated:g} A): the machine is too small for this job at any setting "
+                        "(commutation fails: sparking, flashover). Use a machine rated for at least "
+                        f"{i:g} A, or share the load with another set.",
+                        "machine file rated and peak_armature_current_a (peak default 2 x rated, common practice)",
+                        load_current_a=i, peak_armature_current_a=peak, rated_armature_current_a=rated)]
+    if i > rated * (1 + 1e-9):
+        return [caution("job-above-rating", "warn",
+                        f"The job's heaviest {what}, {i:g} A, is {100 * (i / rated - 1):.0f} % above the machine's "
+                        f"continuous rating of {rated:g} A: no setting changes that, the machine is too small for "
+                        "the job's full load. Carry the heaviest load only for short times (the machine's "
+                        f"short-time limit is {peak:.0f} A), share it with another set, or use a machine rated for "
+                        f"at least {i:g} A.",
+                        "machine rating plate (continuous rating); the job's load current",
+                        load_current_a=i, rated_armature_current_a=rated)]
+    return []
+
+
 def short_circuit_cautions(machine, armature_current_a, at_least=False):
     """Where a traced characteristic runs on to a short circuit past the machine's short-time limit: a note
     that the machine and its leads must be protected against it (the curve is not a working point).

@@ -143,7 +143,10 @@ def search_one_machine(path, profile, text=None):
     if best is not None:
         row.best = {"rank": best.rank, "feasible": best.feasible, "setting": best.setting_dict(),
                     "smallest_margin": best.smallest_margin, "failed": list(best.failed),
-                    "stops": [c.rule for c in best.cautions if c.severity == "stop"]}
+                    # a stop of the job itself (a load past the machine's short-time limit) holds for every setting
+                    # and is the one to tell; else the best option's own
+                    "stops": ([c.rule for c in res.cautions if c.severity == "stop"]
+                              or [c.rule for c in best.cautions if c.severity == "stop"])}
         row.objective, row.objective_label = objective_shown(profile, best)
         if not best.feasible:
             row.objective = None  # a near miss's objective is no score of what the machine can do

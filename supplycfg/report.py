@@ -249,6 +249,7 @@ STOP_WORDS = {
     "welding-no-load-local-limit": "no-load voltage above the site limit",
     "welding-no-load-voltage-unknown": "no-load voltage unknown",
     "welding-stuck-electrode": "stuck-electrode current past the short-time limit",
+    "job-above-peak": "the job's load past the machine's short-time limit: machine too small",
 }
 
 

@@ -81,8 +81,9 @@ RANKING_RULE = (
     "then to the larger least margin (counted in steps of 0.1 % of its limit), then to the better objective. "
     "Then the options without a stop caution, by the number of requirements "
     "broken (the two ends of one band, or two limits on one voltage, count once) and then by the worst breach "
-    "as a share of its limit; among them those that need an exciter the "
-    "machine lacks (a change to the plant, not a setting) after the others. Options with a stop caution come "
+    "as a share of its limit; among them those whose figures the engine could not find (no operating point, "
+    "or a solve that did not converge) after those it could, and those that need an exciter the "
+    "machine lacks (a change to the plant, not a setting) after all others. Options with a stop caution come "
     "last, marked not usable. Options with the same figures are listed once.")
 #: What "least margin" means wherever it is printed.
 LEAST_MARGIN_MEANING = ("least margin: the smallest margin over every limit of the job, as a share of that "
@@ -132,6 +133,13 @@ class Option:
         """The option needs an exciter the machine file does not have: a change to the plant, not a setting."""
         ex = (self.extras or {}).get("exciter") or {}
         return "exciter_supply" in self.failed and ex.get("available_voltage_v") is None
+
+    @property
+    def undetermined(self):
+        """Some limit of the option could not be evaluated: the engine found no operating point for it, or a
+        solve did not converge. Such a near miss is not known to come close, so it ranks after those that are."""
+        return ("solve_not_converged" in self.failed
+                or any(m.get("fraction") is None for m in self.margins.values()))
 
     @property
     def limits_broken(self):
@@ -354,8 +362,9 @@ def rank_options(options, tie=OBJECTIVE_TIE_FRACTION):
     Feasible options by the job's objective (None last), ties within
     ``tie`` of the first of each group broken by the simpler rig and then by
     the larger least margin; then the options without a stop caution by the
-    number of requirements broken and the worst breach (those needing an exciter the
-    machine lacks after the others); then those with one.
+    number of requirements broken and the worst breach (those whose figures could not
+    be found after those that could, those needing an exciter the machine lacks after
+    all others); then those with one.
     """
     def stable(o):
         s = o.setting
@@ -376,7 +385,7 @@ def rank_options(options, tie=OBJECTIVE_TIE_FRACTION):
                                             o.objective if o.objective is not None else 0.0, stable(o)))
 
     def miss_key(o):
-        return (o.needs_missing_exciter, len(o.requirements_broken), -o.worst_breach, stable(o))
+        return (o.needs_missing_exciter, o.undetermined, len(o.requirements_broken), -o.worst_breach, stable(o))
 
     ordered += sorted((o for o in options if not o.feasible and o.usable), key=miss_key)
     ordered += sorted((o for o in options if not o.feasible and not o.usable), key=miss_key)

@@ -306,3 +306,31 @@ def test_booster_drive_trip_is_warned_per_connection():
     from supplycfg.report import checklist_rows
     assert "Drive-trip interlock (bypass switch across the booster or line contactor)" in dict(
         checklist_rows(res, res.options[0]))
+
+
+def test_a_load_above_the_machines_rating_says_the_machine_is_too_small(tmp_path, machine):
+    """The job's heaviest load against the rating plate of the demo lighting set (100 A continuous, 180 A
+    short-time): 150 A is a job-wide warning that no setting cures (the machine is too small for the
+    full load), 200 A a job-wide stop. (Regression: 150 A gave only the setting's 'limit the time' line,
+    and 200 A ranked first differential rigs whose every figure was unknown, above evaluated options.)"""
+    res = search(machine, load_profile(variant(tmp_path, "150.toml", ("load_current_a = [5, 90]",
+                                                                       "load_current_a = [5, 150]"))))
+    job = {c.rule: c for c in res.cautions}
+    assert job["job-above-rating"].severity == "warn"
+    assert "too small" in job["job-above-rating"].message and "150 A" in job["job-above-rating"].message
+    assert not res.options[0].undetermined
+    res = search(machine, load_profile(variant(tmp_path, "200.toml", ("load_current_a = [5, 90]",
+                                                                       "load_current_a = [5, 200]"))))
+    job = {c.rule: c for c in res.cautions}
+    assert job["job-above-peak"].severity == "stop"
+    assert not any(o.usable for o in res.options)
+    flags = [(o.needs_missing_exciter, o.undetermined) for o in res.options]
+    assert flags == sorted(flags) and any(u for _, u in flags) and not any(flags[0])
+    assert "STOP, whatever the setting: The job's heaviest load, 200 A" in search_text(res)
+
+
+def test_the_demo_jobs_carry_no_load_current_caution():
+    """The demo lighting set's 90 A and the booster's 300 A (rated 320 A) are within their ratings."""
+    for kind in ("lighting", "booster"):
+        _, _, res = demo(kind)
+        assert not {"job-above-rating", "job-above-peak"} & {c.rule for c in res.cautions}

@@ -132,3 +132,22 @@ def test_fleet_of_only_broken_files_prints_every_row_and_exits_2(tmp_path, capsy
     assert main(["fleet", str(tmp_path), str(WELDING), "--workers", "1", "--json"]) == 2
     cap = capsys.readouterr()
     assert [m["error"] is not None for m in json.loads(cap.out)["machines"]] == [True, True]
+
+
+def test_fleet_row_of_a_machine_too_small_for_the_job_says_so(tmp_path):
+    """A lighting load of 200 A is past the demo lighting set's short-time limit (180 A): its row names the
+    job's stop (machine too small), and its best option is one whose figures were found. (Regression: the
+    row offered a differential rig whose every figure was unknown, with no stop.)"""
+    from supplycfg.fleet import fleet_rows
+    shutil.copy(MACHINES / "lighting-set.toml", tmp_path / "lighting-set.toml")
+    text = (ROOT / "profiles" / "loads" / "lighting.toml").read_text().replace(
+        "load_current_a = [5, 90]", "load_current_a = [5, 200]")
+    (tmp_path / "job.toml").write_text(text)
+    folder = tmp_path / "m"
+    folder.mkdir()
+    shutil.move(tmp_path / "lighting-set.toml", folder / "lighting-set.toml")
+    res = fleet_search(folder, load_profile(tmp_path / "job.toml"), workers=1)
+    row = res.machines[0]
+    assert not row.feasible and row.best["stops"] == ["job-above-peak"]
+    assert "differential" not in row.best["setting"]["connection"]
+    assert "machine too small" in fleet_rows(res)[0]["breaks"]

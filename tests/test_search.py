@@ -484,15 +484,16 @@ def test_profile_cautions():
 @pytest.mark.parametrize("kind", list(DEMOS))
 def test_ranking(kind):
     """Issue 10's stated rule: feasible first, then the misses without a stop caution by the number
-    of requirements broken (the two ends of one band count once) and the worst breach (those needing an
-    exciter the machine lacks after the others: a change to the plant, not a setting), then the stop options; ranks 1..n; the smallest margin is
+    of requirements broken (the two ends of one band count once) and the worst breach (those whose figures
+    the engine could not find after those it could, those needing an exciter the machine lacks after all
+    others: a change to the plant, not a setting), then the stop options; ranks 1..n; the smallest margin is
     the least fraction over the option's limits (None, i.e. -inf, for one that could not be evaluated)."""
     _, _, res = demo(kind)
     group = [0 if o.feasible else (1 if o.usable else 2) for o in res.options]
     assert group == sorted(group)
     assert [o.rank for o in res.options] == list(range(1, len(res.options) + 1))
     for g in (1, 2):
-        keys = [(o.needs_missing_exciter, len(o.requirements_broken), -o.worst_breach)
+        keys = [(o.needs_missing_exciter, o.undetermined, len(o.requirements_broken), -o.worst_breach)
                 for o, k in zip(res.options, group) if k == g]
         assert keys == sorted(keys)
     for o in res.options:

@@ -7,7 +7,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ..cautions import caution
+from ..cautions import caution, job_current_cautions
 from ..envelope import COARSE, FINE, optimise_control
 from ..magnetisation import OpenCircuitCurve
 from ..validate import MAX_CURRENT_A, MAX_OHM, MAX_VOLTAGE_V, MIN_VOLTAGE_V, read_pair
@@ -128,4 +128,4 @@ def profile_cautions(machine, profile):
     out.append(caution("booster-series", "note",
                   "A series booster carries the whole feeder current: check its rating and that the feeder "
                   "protection covers it; never open the series circuit under load.", "common practice"))
-    return out
+    return out + job_current_cautions(machine, profile.booster.load_current_a[1], "feeder current")

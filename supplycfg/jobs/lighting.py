@@ -8,7 +8,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from ..cautions import caution
+from ..cautions import caution, job_current_cautions
 from ..circuit import (NORMAL_POINTS_GRID, candidate_params, machine_state, no_load_voltages, normal_points,
                        terminal_voltage_at_armature_current, voltage_span)
 from ..envelope import (COARSE, FINE, critical_resistance_ratios, expand_candidates, optimise_control,
@@ -328,5 +328,5 @@ def option_cautions(machine, profile, setting, f):
 
 
 def profile_cautions(machine, profile):
-    """Cautions of the lighting job as a whole: none beyond the setting's."""
-    return []
+    """Cautions of the lighting job as a whole: a heaviest load the machine cannot carry at any setting."""
+    return job_current_cautions(machine, profile.lighting.load_current_a[1])
