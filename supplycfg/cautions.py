@@ -134,9 +134,11 @@ def setting_cautions(machine, setting, f):
     vt = f.get("max_terminal_voltage_v")
     if vt is not None and vt > (1 + OVERVOLTAGE_FRACTION) * machine.rated_voltage_v:
         out.append(caution("over-voltage", "warn",
-                      f"At the job's points the machine works at up to {above_rated_words(vt, machine)}: "
-                      "commutation, insulation and the field's heating are rated at the plate voltage. Keep within "
-                      f"{100 * OVERVOLTAGE_FRACTION:.0f} % of it, or use a machine rated for the job's voltage.",
+                      f"At the job's points the machine works at up to {above_rated_words(vt, machine)}, past the "
+                      f"{100 * OVERVOLTAGE_FRACTION:.0f} % a machine may work at steadily: commutation, insulation "
+                      "and the field's heating are rated at the plate voltage. The setting meets the job's limits, "
+                      "not the machine's rating: ask the machine's maker before working it there, or use a machine "
+                      "rated for the job's voltage.",
                       "rating plate; IEC 60034-1 voltage zone A, rated voltage +-5 % (from memory)",
                       max_terminal_voltage_v=vt, rated_voltage_v=machine.rated_voltage_v))
     vnl = f.get("no_load_voltage_max_v")

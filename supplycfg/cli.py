@@ -408,24 +408,28 @@ def cmd_curve(args, out):
         cautions += stuck_electrode_cautions(m, prof, [p["load_current_a"] for p in pts],
                                              [p["terminal_voltage_v"] for p in pts],
                                              [p["armature_current_a"] for p in pts])
+    # a series machine gives only its residual voltage with no load: a regulation from there means nothing
+    series = st.connection == "series"
+    regulation = None if series else c.regulation_percent
     res = {"setting": st.as_dict(), "points": pts, "no_load_voltage_v": c.no_load_voltage_v,
            "short_circuit_current_a": c.short_circuit_current_a, "max_load_current_a": c.max_load_current_a,
-           "regulation_percent": c.regulation_percent, "extrapolated": c.extrapolated,
+           "regulation_percent": regulation, "extrapolated": c.extrapolated,
            "converged": c.converged, "notes": c.notes, "cautions": [x.as_dict() for x in cautions],
            "notice": STANDING_NOTICE}
     if args.json:
         return res
     lines = [f"{_name(m, args)}: {connection_words(st.connection)}, {st.describe()}",
              f"no-load voltage {_fmt(c.no_load_voltage_v, 'V')}; short-circuit current {_fmt(c.short_circuit_current_a, 'A')}; "
-             f"largest load current {_fmt(c.max_load_current_a, 'A')}; regulation to full load (rated armature current) "
-             f"{_fmt(c.regulation_percent, '%', '.3g')}"
-             + (" (negative: the voltage rises with load)"
-                if c.regulation_percent is not None and c.regulation_percent < 0 else "")
-             + (f" (none: the load current never passes {c.max_load_current_a:.4g} A, so the armature never "
-                f"carries its rated {m.rated_armature_current_a:g} A on this curve)"
-                if c.regulation_percent is None and c.max_load_current_a is not None
-                and (peak or 0.0) < m.rated_armature_current_a
-                else ""),
+             f"largest load current {_fmt(c.max_load_current_a, 'A')}; "
+             + ("no regulation figure for a series connection: with no load current it gives only its residual "
+                "voltage, and its voltage rises with the load (see the table)" if series else
+                f"regulation to full load (rated armature current) {_fmt(regulation, '%', '.3g')}"
+                + (" (negative: the voltage rises with load)" if regulation is not None and regulation < 0 else "")
+                + (f" (none: the load current never passes {c.max_load_current_a:.4g} A, so the armature never "
+                   f"carries its rated {m.rated_armature_current_a:g} A on this curve)"
+                   if regulation is None and c.max_load_current_a is not None
+                   and (peak or 0.0) < m.rated_armature_current_a
+                   else "")),
              ""]
     rows = c.point_list()
     if drive is not None:

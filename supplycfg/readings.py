@@ -563,7 +563,8 @@ def weak_end_is_high(control):
     return control in ("rheostat", "exciter")
 
 
-def readings_and_band(control, u, field_cold, field_hot, band_u=None, band_field=None, rheostat_max_ohm=None):
+def readings_and_band(control, u, field_cold, field_hot, band_u=None, band_field=None, rheostat_max_ohm=None,
+                      band_field_cold=None, band_field_hot=None):
     """The ``readings`` and ``band`` of one option (or one welding dial row) for its JSON.
 
     Parameters
@@ -583,13 +584,21 @@ def readings_and_band(control, u, field_cold, field_hot, band_u=None, band_field
         the strong end with cold windings [A].
     rheostat_max_ohm : float, optional
         The rheostat's full resistance, for the position in per cent of travel.
+    band_field_cold, band_field_hot : (float, float), optional
+        Field current at the two ends of the band with cold and with hot
+        windings [A]: the ammeter's window at each temperature. With the
+        rheostat left as set the reading falls as the windings warm, so one
+        window from the hot weak end to the cold strong end would let a cold
+        reading sit where the hot one belongs.
 
     Returns
     -------
     (readings, band) : dicts, or (None, None) with no field control
         Readings are rounded to what can be set and lie inside the band,
         whose ends are rounded inward; ``band["control_exact"]`` keeps the
-        exact interval of the control for a re-solve.
+        exact interval of the control for a re-solve; ``band["field_current_a"]``
+        spans both temperatures, ``band["field_current_cold_a"]`` and
+        ``band["field_current_hot_a"]`` (where given) are the windows at each.
     """
     if control == "none" or not _finite(u):
         return None, None
@@ -603,11 +612,19 @@ def readings_and_band(control, u, field_cold, field_hot, band_u=None, band_field
     if have_field_band:
         lo_f, hi_f = float(min(band_field)), float(max(band_field))
         step = settable_step(max(abs(lo_f), abs(hi_f)), hi_f - lo_f)
-        for name, val in (("cold", field_cold), ("hot", field_hot)):
-            if _finite(val):
-                fc[name], fb, _, ok = rounded_band(lo_f, hi_f, val, step)
-                settable &= ok
         band["field_current_a"] = list(rounded_band(lo_f, hi_f, lo_f, step)[1])
+        windows = {"cold": band_field_cold, "hot": band_field_hot}
+        for name, val in (("cold", field_cold), ("hot", field_hot)):
+            if not _finite(val):
+                continue
+            w = windows[name]
+            if w is not None and all(_finite(x) for x in w):
+                # each reading inside its own temperature's window, rounded with the band's one step
+                fc[name], wb, _, ok = rounded_band(float(min(w)), float(max(w)), val, step)
+                band[f"field_current_{name}_a"] = [wb[0], wb[1]]
+            else:
+                fc[name], _, _, ok = rounded_band(lo_f, hi_f, val, step)
+            settable &= ok
     else:
         if known:
             step = settable_step(max(abs(x) for x in known))
@@ -634,6 +651,24 @@ def readings_and_band(control, u, field_cold, field_hot, band_u=None, band_field
         band["rheostat_ohm"] = None
     readings["settable"] = bool(settable) if have_band else None
     return readings, band
+
+
+def field_windows(band):
+    """The field ammeter's windows of a ``band`` (as :func:`readings_and_band` gives it), for words.
+
+    Returns
+    -------
+    list of (str, [float, float])
+        ``[("cold", window), ("hot", window)]`` where the band has one per
+        temperature and they differ; else ``[("", window)]`` with the one
+        window over both; ``[]`` with none.
+    """
+    b = band or {}
+    cold, hot = b.get("field_current_cold_a"), b.get("field_current_hot_a")
+    if cold and hot and list(cold) != list(hot):
+        return [("cold", list(cold)), ("hot", list(hot))]
+    one = cold or b.get("field_current_a")
+    return [("", list(one))] if one else []
 
 
 def field_at_corners(values, n, corners, nominal):
@@ -767,7 +802,8 @@ def option_advice(space, evaluate, u, limits, setting_field, res=None, scan=BAND
             # the weak end's reading with hot windings, the strong end's with cold ones
             band_field = (hh[i], cl[i]) if weak_end_is_high(ctl) else (hl[i], ch[i])
         r, b = readings_and_band(ctl, float(u[i]), float(c0[i]), float(h0[i]), band_u, band_field,
-                                 space.machine.rheostat_max_ohm)
+                                 space.machine.rheostat_max_ohm,
+                                 *(((cl[i], ch[i]), (hl[i], hh[i])) if have[i] else ()))
         out.append({"readings": r, "band": b})
     return out, count[0]
 

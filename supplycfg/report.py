@@ -427,6 +427,21 @@ def _round(v, digits=3):
     return f"{float(v):.{digits}g}"
 
 
+def window_words(pair, digits=3):
+    """A reading's window in few words, e.g. ``'keep 1.33–1.48'`` (the reading beside it gives the unit)."""
+    return f"keep {_round(pair[0], digits)}–{_round(pair[1], digits)}"
+
+
+def field_window_text(band, digits=3, hot_first=False):
+    """The field ammeter's window in words: ``'1.28 to 1.35 A cold, 1.13 to 1.2 A hot'`` where the band has
+    one per temperature, else the one window (None with none)."""
+    from .readings import field_windows
+    windows = field_windows(band)
+    parts = [(_pair_text(w, "A", digits), k) for k, w in (windows[::-1] if hot_first else windows)]
+    parts = [f"{t} {k}".strip() for t, k in parts if t]
+    return ", ".join(parts) or None
+
+
 def readings_rows(option, readings=None, band=None):
     """``[(what, how)]``: the field ammeter's readings, the rheostat and their bands, where the core gives them."""
     r = _mapping(option_value(option, "readings") if readings is None else readings)
@@ -434,9 +449,17 @@ def readings_rows(option, readings=None, band=None):
     rows = []
     fc = r.get("field_current_a")
     if isinstance(fc, dict) and any(_given(fc.get(k)) for k in ("cold", "hot")):
-        parts = [f"{_round(fc[k])} A {k}" for k in ("cold", "hot") if _given(fc.get(k))]
-        keep = _pair_text(b.get("field_current_a"), "A")
-        rows.append(("Field ammeter reads", ", ".join(parts) + (f"; set it within {keep}" if keep else "")))
+        from .readings import field_windows
+        windows = dict(field_windows(b))
+        if "cold" in windows:
+            # each reading with its own temperature's window beside it
+            parts = [f"{_round(fc[k])} A {k}" + (f" ({window_words(windows[k])})" if k in windows else "")
+                     for k in ("cold", "hot") if _given(fc.get(k))]
+            rows.append(("Field ammeter reads", ", ".join(parts)))
+        else:
+            parts = [f"{_round(fc[k])} A {k}" for k in ("cold", "hot") if _given(fc.get(k))]
+            keep = field_window_text(b)
+            rows.append(("Field ammeter reads", ", ".join(parts) + (f"; set it within {keep}" if keep else "")))
     elif _given(fc):
         keep = _pair_text(b.get("field_current_a"), "A")
         rows.append(("Field ammeter reads", f"{_round(fc)} A" + (f"; set it within {keep}" if keep else "")))
@@ -673,9 +696,17 @@ def compact_reading_text(readings, band=None):
     parts = []
     if _given(r.get("rheostat_ohm")):
         parts.append(f"rheostat {_round(r['rheostat_ohm'])} Ω")
+    from .readings import field_windows
+    windows = dict(field_windows(b))
+    if "hot" in windows and _given(fc.get("hot")):
+        # each reading with its own temperature's window
+        parts.append(f"ammeter {_round(fc['hot'])} A hot ({window_words(windows['hot'])})"
+                     + (f", {_round(fc['cold'])} A cold ({window_words(windows['cold'])})"
+                        if _given(fc.get("cold")) else ""))
+        return ", ".join(parts)
     if _given(fc.get("hot")):
         parts.append(f"ammeter {_round(fc['hot'])} A hot" + (f" ({_round(fc['cold'])} cold)" if _given(fc.get("cold")) else ""))
-    keep = _pair_text(b.get("field_current_a"), "A")
+    keep = field_window_text(b, hot_first=True)
     text = ", ".join(parts)
     return text + (f"; set within {keep}" if keep else "")
 
@@ -894,6 +925,24 @@ WELDING_POLARITY_WORDS = {
 }
 
 
+def booster_polarity_check_text(option):
+    """What a booster's polarity check expects: the voltage across it at the job's first load above zero.
+
+    A series booster gives only its residual voltage with no line current, whichever way its series field
+    is connected, so a check before closing cannot tell; with a first small load on the feeder a right
+    connection reads + towards the feeder and rises with the load, a reversed one bucks.
+    """
+    pts = [_mapping(p) for p in (getattr(option, "drive_points", None) or [])]
+    pts = [p for p in pts if _given(p.get("load_current_a")) and p["load_current_a"] > 0
+           and _given(p.get("terminal_voltage_v"))]
+    first = min((p["load_current_a"] for p in pts), default=None)
+    volts = [p["terminal_voltage_v"] for p in pts if p["load_current_a"] == first]
+    at = (f"at about {fmt(first, 'A')} on the feeder: + on the feeder side, {_range_text(min(volts), max(volts), 'V')}, "
+          if volts else "with a first small load on the feeder: + on the feeder side, ")
+    return (at + "rising with the load (adds to the bus). Reads − or falls: the series field is reversed and the "
+            "booster bucks: take the load off, stop, swap the series field's leads")
+
+
 def checklist_rows(result, option, run=None):
     """``[(check, expected)]`` to tick off at the machine, for the job; the sheet adds Measured and Initials."""
     p, o = result.profile, option
@@ -905,6 +954,8 @@ def checklist_rows(result, option, run=None):
         e = electrode_of(p)
         polarity = WELDING_POLARITY_WORDS.get((p.welding.process, e), WELDING_POLARITY_WORDS[e])
     rows = [("Polarity checked with a voltmeter before closing onto the load", polarity)]
+    if kind == "booster":
+        rows = [("Polarity: voltmeter across the booster at a first light load", booster_polarity_check_text(o))]
     lo, hi = f.get("no_load_voltage_min_v"), f.get("no_load_voltage_max_v")
     nl = _range_text(lo, hi, "V")
     if _spans(lo, hi):
@@ -1321,7 +1372,7 @@ def sheet_markdown(result, rank=None, run=None, date=None):
         lines += ["None raised by the rules for this setting.", ""]
     lines += ["## The machine", ""] + _md_table(("What", "Data"), machine_rows(m)) + [""]
     lines += ["## The job", ""] + _md_table(("What", "Value"), job_rows(p)) + [""]
-    lines += ["## Words used here", ""] + [f"- **{md_esc(k)}**: {md_esc(v)}" for k, v in glossary_for(p.kind).items()] + [""]
+    lines += ["## Words used here", ""] + [f"- **{md_esc(k)}**: {md_esc(v)}" for k, v in glossary_for(p.kind, o.setting.connection).items()] + [""]
     lines += ["---", "", f"**{md_esc(STANDING_NOTICE)}**", ""]
     return "\n".join(lines)
 
@@ -1589,7 +1640,7 @@ def sheet_html(result, rank=None, run=None, date=None, charts=True, svgs=None):
     parts += ["<h2>The machine</h2>", _html_table(("What", "Data"), machine_rows(m))]
     parts += ["<h2>The job</h2>", _html_table(("What", "Value"), job_rows(p))]
     parts += ["<h2>Words used here</h2>", '<dl class="glossary">'
-              + "".join(f"<dt>{esc(k)}</dt><dd>{esc(v)}</dd>" for k, v in glossary_for(result.profile.kind).items()) + "</dl>"]
+              + "".join(f"<dt>{esc(k)}</dt><dd>{esc(v)}</dd>" for k, v in glossary_for(result.profile.kind, o.setting.connection).items()) + "</dl>"]
     parts += [f'<p class="notice">{esc(STANDING_NOTICE)}</p>', "</section>", "</body></html>"]
     return "\n".join(parts)
 

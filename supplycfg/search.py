@@ -20,7 +20,7 @@ from . import STANDING_NOTICE, __version__
 from .circuit import USES_SERIES, Setting, check_setting
 from .envelope import build_space, candidate_bases, margin
 from .jobs import JOBS, option_cautions, profile_cautions
-from .readings import diverter_rating, exciter_supply
+from .readings import diverter_rating, exciter_supply, field_windows
 from .machine import load_machine
 from .powerflow import idle_figures, no_load_speeds
 from .profile import load_profile
@@ -775,8 +775,9 @@ def field_reading_lines(r, b, where="", knife_edge=None):
         parts = []
         if b.get("rheostat_ohm"):
             parts.append(f"rheostat {_num(b['rheostat_ohm'][0], 'g')} to {_num(b['rheostat_ohm'][1], 'g')} ohm")
-        if b.get("field_current_a"):
-            parts.append(f"field current {_num(b['field_current_a'][0], 'g')} to {_num(b['field_current_a'][1], 'g')} A")
+        windows = [f"{_num(w[0], 'g')} to {_num(w[1], 'g')} A {k}".rstrip() for k, w in field_windows(b)]
+        if windows:
+            parts.append("field current " + ", ".join(windows))
         lines.append("  every limit holds for " + " and ".join(parts))
     if knife_edge:
         lines.append("  knife-edge: the band is narrower than the meters can set it, so at the machine it is likely "

@@ -27,6 +27,26 @@ GROW_STEPS = 8
 SHRINK_FACTOR = 0.7
 
 
+#: Standard rated outputs of motors [kW] (IEC 60072-1's preferred ratings, recalled, not checked against the
+#: text): a motor is bought in one of these, the next one at or above the rating found.
+MOTOR_RATINGS_KW = (0.75, 1.1, 1.5, 2.2, 3.0, 4.0, 5.5, 7.5, 11.0, 15.0, 18.5, 22.0, 30.0, 37.0, 45.0, 55.0, 75.0,
+                    90.0, 110.0, 132.0, 160.0, 200.0, 250.0, 315.0, 355.0, 400.0, 450.0, 500.0)
+
+
+def rating_to_choose_kw(required_kw, kind):
+    """The rating [kW] to choose for a drive that needs ``required_kw``: a motor's next standard rating
+    (:data:`MOTOR_RATINGS_KW`), else the figure rounded up to two significant figures (an engine has no
+    standard series; a figure found to 1 % is not worth four). Never below what is needed."""
+    if required_kw is None or not required_kw > 0:
+        return None
+    if kind == "motor":
+        for r in MOTOR_RATINGS_KW:
+            if r >= required_kw * (1 - 1e-9):
+                return r
+    step = 10.0 ** (math.floor(math.log10(required_kw)) - 1)
+    return math.ceil(required_kw / step - 1e-9) * step
+
+
 @dataclass
 class SizeResult:
     """The smallest drive rating for a job, with the best setting at that rating."""
@@ -40,10 +60,22 @@ class SizeResult:
     searches: int
     notes: list = field(default_factory=list)
 
+    @property
+    def rating_to_choose_kw(self):
+        """The rating to buy [kW]: see :func:`rating_to_choose_kw`."""
+        return rating_to_choose_kw(self.required_drive_kw, self.profile.drive.kind)
+
+    @property
+    def rating_to_choose_words(self):
+        """How the rating to choose follows from the least that meets the job, in words."""
+        return ("the next standard motor rating (IEC 60072-1, recalled)" if self.profile.drive.kind == "motor"
+                else "rounded up")
+
     def as_dict(self):
         return {"tool": f"supplycfg {__version__}", "machine": self.machine.label, "profile": self.profile.label,
                 "kind": self.profile.kind, "drive_kind": self.profile.drive.kind,
                 "required_drive_kw": self.required_drive_kw,
+                "rating_to_choose_kw": self.rating_to_choose_kw,
                 "infeasible_below_kw": self.infeasible_below_kw,
                 "drive": None if self.drive is None else self.drive.as_table(),
                 "option": None if self.option is None else self.option.as_dict(),
@@ -180,8 +212,10 @@ def size_text(res):
     if res.required_drive_kw is None:
         lines.append("No drive rating makes this job feasible.")
     elif p.drive.coupled:
-        lines.append(f"Smallest {p.drive.kind} rating that meets the job: {res.required_drive_kw:.4g} kW "
-                     f"(to {100 * RATING_TOLERANCE:g} %; the profile gives {p.drive.rated_power_kw:g} kW)")
+        lines.append(f"{p.drive.kind.capitalize()} rating to choose: {res.rating_to_choose_kw:g} kW, "
+                     f"{res.rating_to_choose_words}; the least that meets the "
+                     f"job is {res.required_drive_kw:.3g} kW (found to {100 * RATING_TOLERANCE:g} %; the profile "
+                     f"gives {p.drive.rated_power_kw:g} kW)")
     else:
         lines.append(f"Drive rating the job needs: {res.required_drive_kw:.4g} kW at the shaft")
     o = res.option

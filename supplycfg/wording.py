@@ -90,6 +90,8 @@ GLOSSARY = {
                                "below the battery's, so the battery cannot drive the machine.",
     "gassing voltage": "the cell voltage above which a charging cell gives off hydrogen and oxygen.",
     "duty cycle": "the share of a ten-minute period for which a welding set may carry its current.",
+    "series booster": "a series generator in a feeder: the line current is its field current, so the voltage it "
+                      "adds rises with the load and makes up the feeder's drop.",
     "prospective short-circuit current": "the current a source would drive into a short at a point, limited only "
                                          "by its own resistance and the leads': what a fuse or breaker there must "
                                          "be able to break.",
@@ -98,12 +100,20 @@ GLOSSARY = {
 #: Glossary terms that belong to one job only (the others are every job's).
 GLOSSARY_JOBS = {"drooping characteristic": "welding", "duty cycle": "welding",
                  "reverse-current cut-out": "battery", "gassing voltage": "battery",
-                 "prospective short-circuit current": "battery"}
+                 "prospective short-circuit current": "battery", "series booster": "booster"}
 
 
-def glossary_for(kind=None):
-    """The glossary's entries a reader of a ``kind`` job meets (all of them for None)."""
-    return {k: v for k, v in GLOSSARY.items() if kind is None or GLOSSARY_JOBS.get(k, kind) == kind}
+#: Glossary terms of a shunt field: a sheet of a series connection (a series booster) has none of them.
+SHUNT_FIELD_TERMS = ("critical field resistance", "field rheostat", "cumulative / differential compound",
+                     "long shunt / short shunt")
+
+
+def glossary_for(kind=None, connection=None):
+    """The glossary's entries a reader of a ``kind`` job meets (all of them for None); with a
+    ``connection`` (a sheet of one setting), those of a shunt field are left out of a series one."""
+    skip = SHUNT_FIELD_TERMS if connection == "series" else ()
+    return {k: v for k, v in GLOSSARY.items()
+            if (kind is None or GLOSSARY_JOBS.get(k, kind) == kind) and k not in skip}
 
 
 _SEEN = re.compile(r"\s*\(\s*seen\s*\)", re.I)

@@ -109,7 +109,8 @@ def test_markdown_sheet_gives_both_stages_readings_in_words(result):
     card = md.split("## Wiring")[0]
     plan = card.split("### Charge plan")[1]
     fin = result.options[0].extras["plan"][1]["readings"]["field_current_a"]
-    assert "as set above" in plan and f"ammeter {fin['hot']:.3g} A hot ({fin['cold']:.3g} cold); set within" in plan
+    assert "as set above" in plan and f"ammeter {fin['hot']:.3g} A hot (keep " in plan
+    assert f", {fin['cold']:.3g} A cold (keep " in plan
     assert "handover-voltage" not in card and "end-state-of-charge" not in card
     assert "hand over to the finish" in plan
 

@@ -10,6 +10,7 @@ governor droop and motor slip. The ngspice checks of the coupled point are in
 
 import json
 import math
+import re
 from dataclasses import replace
 from pathlib import Path
 
@@ -701,3 +702,27 @@ def test_a_drive_that_overspeeds_the_machine_is_named_as_the_cause(tmp_path, cap
     assert "ratio of at most 0.667" in row["drive needed"]
     assert row["breaks"] == "carries a stop caution (overspeed)"
     assert drive_overspeed(m, load_profile(ROOT / "profiles" / "loads" / "welding.toml")) is None
+
+
+def test_rating_to_choose_is_one_that_can_be_bought():
+    """The least rating is found to 1 %, so four figures of it (7.118 kW, 54.57 kW) are false precision and no
+    rating one can buy: an engine's is rounded up to two figures, a motor's is the next standard rating
+    (IEC 60072-1's series, recalled: ..., 3, 4, 5.5, 7.5, 11, ...). Never below the least that meets the job.
+    (Regression: `size` led with '54.57 kW'.)"""
+    from supplycfg.sizing import rating_to_choose_kw
+    assert rating_to_choose_kw(7.118, "engine") == pytest.approx(7.2)
+    assert rating_to_choose_kw(54.57, "engine") == pytest.approx(55.0)
+    assert rating_to_choose_kw(120.0, "engine") == pytest.approx(120.0)
+    assert rating_to_choose_kw(3.45, "motor") == 4.0
+    assert rating_to_choose_kw(7.5, "motor") == 7.5
+    assert rating_to_choose_kw(None, "motor") is None
+
+
+def test_size_leads_with_the_rating_to_choose(capsys):
+    """`size` on the welding demo (engine): the first figure is the rounded-up rating, then the least found."""
+    root = Path(__file__).resolve().parents[1]
+    assert main(["size", str(root / "profiles" / "machines" / "welding-set.toml"),
+                 str(root / "profiles" / "loads" / "welding.toml")]) == 0
+    line = capsys.readouterr().out.splitlines()[1]
+    assert re.match(r"Engine rating to choose: \d+(\.\d)? kW, rounded up; the least that meets the job is "
+                    r"\d+(\.\d+)? kW \(found to 1 %", line), line

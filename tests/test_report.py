@@ -233,7 +233,7 @@ def test_sheet_leads_with_card_wiring_and_checklist(results, kind):
     assert card < wiring_at < check < later
     assert "<th>Expected</th><th>Measured</th><th>Initials</th>" in html
     rows = [c for c, _ in report.checklist_rows(res, o)]
-    for start in ("Polarity checked", ("Field current", "Field ammeter"), "Drive speed"):
+    for start in ("Polarity", ("Field current", "Field ammeter"), "Drive speed"):
         assert any(r.startswith(start) for r in rows), start
     # a shunt or separate field needs its discharge path; a series field (the booster) has none to open
     assert any(r.startswith("Field discharge path") for r in rows) == (o.setting.connection != "series")
@@ -467,7 +467,7 @@ def test_polarity_check_names_the_welding_leads(results):
     """Regression: the welding checklist asked for "machine + to load +", which names no lead; the wiring puts the
     electrode on + (electrode positive), and the check says so with the electrode maker's word as the exception."""
     for kind, want in (("welding", "electrode lead on +"), ("battery", "machine + to battery +"),
-                       ("lighting", "machine + to load +"), ("booster", "booster adds to the bus voltage")):
+                       ("lighting", "machine + to load +")):
         res = results[kind]
         rows = dict(report.checklist_rows(res, res.options[0]))
         assert rows["Polarity checked with a voltmeter before closing onto the load"].startswith(want)
@@ -475,6 +475,24 @@ def test_polarity_check_names_the_welding_leads(results):
     res = results["welding"]
     steps = wiring(res.machine, res.options[0].setting, "welding").steps
     assert any(step.startswith("+ line") and "to the electrode" in step for step in steps)
+
+
+def test_booster_polarity_is_checked_where_a_reversed_series_field_shows(results):
+    """A series booster gives only its residual voltage (4 V on the demo curve) with no line current,
+    whichever way its series field is connected: a check before closing passes a reversed field that then
+    bucks. The check is at the job's first load above zero (75 A of 0 to 300 A), with the voltage the
+    engine gives there across the winding-temperature range. (Regression: 'booster adds to the bus
+    voltage', checked before closing.)"""
+    res = results["booster"]
+    o = res.options[0]
+    rows = dict(report.checklist_rows(res, o))
+    assert "Polarity checked with a voltmeter before closing onto the load" not in rows
+    text = rows["Polarity: voltmeter across the booster at a first light load"]
+    at_75 = [p["terminal_voltage_v"] for p in o.drive_points if p["load_current_a"] == 75.0]
+    assert len(at_75) >= 2
+    assert text.startswith(f"at about 75 A on the feeder: + on the feeder side, {min(at_75):.4g} to "
+                           f"{max(at_75):.4g} V")
+    assert "swap the series field's leads" in text
 
 
 def test_every_option_shows_its_field_as_a_meter_reading(results):

@@ -68,3 +68,22 @@ def test_seen_marker_leading_a_bracket_or_clause_is_dropped():
 ])
 def test_visible_text(raw, shown):
     assert visible_text(raw) == shown
+
+
+def test_series_booster_sheet_glossary_has_no_shunt_field_terms():
+    """A series booster has no shunt field: its sheet's glossary leaves out critical field resistance, the
+    rheostat and the shunt connections, and says what a series booster is. (Regression: a series booster's
+    sheet explained the field rheostat and long shunt.)"""
+    from supplycfg.report import sheet_markdown
+    from supplycfg.wording import glossary_for
+    try:
+        from .builders import demo
+    except ImportError:
+        from builders import demo
+    words = glossary_for("booster", "series")
+    assert "series booster" in words and "field rheostat" not in words and "critical field resistance" not in words
+    assert "field rheostat" in glossary_for("booster") and "series booster" not in glossary_for("lighting")
+    _, _, res = demo("booster")
+    assert res.options[0].setting.connection == "series"
+    md = sheet_markdown(res).split("## Words used here")[1]
+    assert "**series booster**" in md and "critical field resistance" not in md

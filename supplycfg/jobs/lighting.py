@@ -295,11 +295,15 @@ def option_cautions(machine, profile, setting, f):
     out = []
     if vmax is not None and vmax > hi * (1 + 1e-9):
         life = f.get("lamp_life_at_high")
+        # weakening the field lowers both ends: no cure where the low end is already below the band
+        both = vmin is not None and vmin < lo * (1 - 1e-9)
         out.append(caution("lighting-over-voltage", "warn",
                            f"The far end reaches {vmax:.1f} V, {100 * (vmax / vn - 1):.1f} % over the nominal {vn:g} V "
                            f"and above the band's top {hi:.1f} V"
                            + (f": the lamps' life falls to about {life:.2g} x rated" if life is not None else "")
-                           + ". Weaken the field.",
+                           + (f". The low end ({vmin:.1f} V) is below the band as well, so weakening the field is no "
+                              "cure: the swing is too wide (what narrows it is with the next caution)." if both
+                              else ". Weaken the field."),
                            "the job's tolerance_percent; lamp life against voltage (IES exponents, from memory)",
                            load_voltage_max_v=vmax, band_top_v=hi))
     if vmax is not None and vmin is not None and vmax - vmin > hi - lo:
@@ -310,20 +314,66 @@ def option_cautions(machine, profile, setting, f):
                  f"{hi:.1f} V): no rheostat setting fits it. ")
         if job.feeder_resistance_ohm > 0:
             words += f"The feeder alone drops {drop:.1f} V more at {i1:g} A than at {i0:g} A. "
-        cures = ["more series turns (a compound machine over-compounded for the feeder)",
-                 "a series booster in the feeder"]
+        cures = compounding_cures(machine, setting) + ["a series booster in the feeder"]
         t = profile.temperatures_c
         if t and t[1] - t[0] > 10.0:
             # with the rheostat left as set, the winding's warming moves the voltage as much as the load may
             cures.insert(0, f"a narrower winding-temperature range ({t[0]:g} to {t[1]:g} °C now, the rheostat left as "
                             "set): run the set up to temperature before the lamps go on and set the field once warm")
-        if drop > hi - lo and i1 > i0:
-            cures.append(f"a heavier feeder (below {(hi - lo) / (i1 - i0):.2g} ohm, where the feeder alone drops "
-                         "less than the band)")
+        r_need = feeder_resistance_to_hold_ohm(vmax - vmin, hi - lo, job.feeder_resistance_ohm, i0, i1)
+        if r_need is not None and r_need < job.feeder_resistance_ohm:
+            cures.append(f"a heavier feeder (about {r_need:.2g} ohm or less, go and return: below "
+                         f"{(hi - lo) / (i1 - i0):.2g} ohm the feeder alone drops less than the band, and the "
+                         "machine's own swing takes the rest)")
         cures.append("a wider band, if the lamps allow it")
         out.append(caution("lighting-band-too-narrow", "warn", words + "To hold the band: " + "; ".join(cures) + ".",
                            "the job's band and feeder; the machine's regulation over the envelope (circuit model)",
                            swing_v=vmax - vmin, band_width_v=hi - lo, feeder_drop_v=drop))
+    return out
+
+
+def feeder_resistance_to_hold_ohm(swing_v, band_v, feeder_ohm, light_a, full_a):
+    """The feeder resistance [ohm] at which the far end's swing fits the band, the machine's own swing kept.
+
+    The far end swings by the machine's terminal swing plus the feeder's
+    ``R (I_full - I_light)``; with the same setting the terminal swing stays,
+    so the feeder may drop at most what the band leaves over:
+    ``R <= (band - (swing - R0 dI)) / dI`` (closed form; an estimate, as the
+    field would be set again for the new feeder). None where no feeder
+    resistance fits (the machine alone swings more than the band) or the
+    load does not change.
+    """
+    di = full_a - light_a
+    if not di > 0:
+        return None
+    machine_swing = swing_v - feeder_ohm * di
+    room = band_v - machine_swing
+    return room / di if room > 0 else None
+
+
+def compounding_cures(machine, setting):
+    """What more compounding can be had from this machine in this setting, as cures for a far end that
+    sags with load: the next series tap up, a weaker diverter, a cumulative connection; none at the
+    top tap with no diverter in."""
+    conn = setting.connection
+    taps = [t for t in machine.series_taps if t > 0]
+    if not taps:
+        return []
+    if conn.endswith("differential"):
+        return ["a cumulative compound connection (the differential series field makes the far end droop "
+                "with load)"]
+    if conn in ("shunt", "separate"):
+        return ["a cumulative compound connection with series turns (the series field lifts the voltage with "
+                "the load, over-compounded for the feeder)"]
+    if conn == "series":
+        return []
+    turns = setting.series_turns or 0.0
+    out = []
+    if turns < max(taps):
+        out.append(f"more series turns (a tap above {turns:g}, over-compounded for the feeder)")
+    if setting.diverter_ohm is not None:
+        out.append(f"less current diverted from the series field (a diverter above {setting.diverter_ohm:g} ohm, "
+                   "or none)")
     return out
 
 

@@ -917,7 +917,7 @@ def dial_advice(space, targets, paths, u_all, reach, ev, valid, option_ok, bands
                 band_u = (band_lo[j], band_hi[j])
                 band_field = (hh[j], cl[j]) if weak_end_is_high(ctl) else (hl[j], ch[j])
             rd, bd = readings_and_band(ctl, float(pu[j]), float(c0[j]), float(h0[j]), band_u, band_field,
-                                       m.rheostat_max_ohm)
+                                       m.rheostat_max_ohm, *(((cl[j], ch[j]), (hl[j], hh[j])) if have[j] else ()))
         row = {"current_a": target_l[r], "series_turns": tap if conn in USES_SERIES else None,
                "diverter_ohm": d,
                "field_current_a": pu_l[j] if ctl == "field-current" else h0_l[j],

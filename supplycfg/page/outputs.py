@@ -298,9 +298,12 @@ def drive_size_section(result, machine_toml, profile_toml):
     if res.required_drive_kw is None:
         st.warning(_md("; ".join(res.notes) or "no rating makes this job feasible"))
         return
-    what = f"{d.kind} rating" if d.coupled else "drive rating at the shaft"
-    st.markdown(f"**Smallest {what}: {fmt(res.required_drive_kw, 'kW')}**"
-                + (f" (the job gives {fmt(d.rated_power_kw, 'kW')})" if d.coupled else ""))
+    if d.coupled:
+        st.markdown(f"**{_md(d.kind.capitalize())} rating to choose: {res.rating_to_choose_kw:g} kW** "
+                    f"({_md(res.rating_to_choose_words)}; the least that meets the job is "
+                    f"{fmt(res.required_drive_kw, 'kW')}, found to 1 %; the job gives {fmt(d.rated_power_kw, 'kW')})")
+    else:
+        st.markdown(f"**Smallest drive rating at the shaft: {fmt(res.required_drive_kw, 'kW')}**")
     o = res.option
     st.markdown(f"Best setting at that rating: {_md(connection_words(o.setting.connection))}, "
                 f"{_md(o.setting.describe())}; "
