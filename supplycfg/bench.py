@@ -445,6 +445,12 @@ def _status(res, k):
     return "met" if res["met"][k] else "NOT met"
 
 
+def figure_name_pattern(name):
+    """A figure's path with its list indices (a dial row, a plan stage, a band's end) as ``*``: one name per
+    figure, however many rows carry it (``dial.3.band.field_current_hot_a.0`` -> ``dial.*.band.field_current_hot_a.*``)."""
+    return ".".join("*" if part.isdigit() else part for part in str(name).split("."))
+
+
 def bench_text(res):
     lines = [f"supplycfg {res['supplycfg']} bench, Python {res['python']}, median of {res['repeat']} runs", ""]
     lines.append(f"{'measure':<28} {'value':>12} {'target':>10} {'aim':>8}  status")
@@ -484,7 +490,7 @@ def bench_text(res):
         gained = sum(len(v["gained"]) for v in ref.values())
         missing = sum(len(v["missing"]) for v in ref.values())
         job, worst = max(((k, v) for k, v in ref.items()), key=lambda kv: kv[1]["largest_relative_difference"])
-        added = sorted({n for v in ref.values() for n in v.get("added", [])})
+        added = sorted({figure_name_pattern(n) for v in ref.values() for n in v.get("added", [])})
         lines.append(f"against the reference answers ({len(ref)} demo jobs): feasible options lost {lost}, "
                      f"gained {gained}, options missing {missing}; largest relative difference "
                      f"{worst['largest_relative_difference']:.2g}"

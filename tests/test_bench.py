@@ -88,3 +88,11 @@ def test_command_line_timing_runs_with_the_bytecode_cache_on(tmp_path, monkeypat
     env = bench.bytecode_cache_env(tmp_path)
     assert "PYTHONDONTWRITEBYTECODE" not in env
     assert env["PYTHONPYCACHEPREFIX"].startswith(str(tmp_path))
+
+
+def test_new_figures_are_named_once_however_many_rows_carry_them():
+    """Regression: the bench listed every dial row's and band end's new figure (68 names for two new figures)."""
+    from supplycfg.bench import figure_name_pattern
+    names = [f"dial.{k}.band.field_current_hot_a.{e}" for k in range(13) for e in (0, 1)]
+    assert {figure_name_pattern(n) for n in names} == {"dial.*.band.field_current_hot_a.*"}
+    assert figure_name_pattern("figures.w") == "figures.w"
