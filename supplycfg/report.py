@@ -976,16 +976,19 @@ def checklist_rows(result, option, run=None):
             nl = _range_text(min(volts), max(volts), "V")
         else:
             nl = fmt(f.get("max_no_load_voltage_v"), "V")
-    if kind != "booster":
-        # the battery's isolator open: an automatic cut-out would close onto the bank as the set runs up
-        rows.append(("No-load voltage at speed, battery isolator open" if kind == "battery"
-                     else "No-load voltage at speed, load off", nl or note))
+    if kind == "battery":
+        # the battery's isolator open: an automatic cut-out would close onto the bank as the set runs up;
+        # closed at the full no-load voltage the isolator would throw the whole difference onto the bank
+        rows.append(("No-load voltage, isolator open; closing onto the bank",
+                     (_range_text(lo, hi, "V") or note) + "; " + battery_closing_text(p.battery, o)))
+    elif kind != "booster":
+        rows.append(("No-load voltage at speed, load off", nl or note))
     fr = [how for what, how in readings_rows(o) if what == "Field ammeter reads"]
     dial_hot = [_mapping(_mapping(_mapping(r).get("readings")).get("field_current_a")).get("hot")
                 for r in option_value(o, "dial") or []]
     dial_hot = [h for h in dial_hot if _given(h)]
     if fr:
-        field = fr[0] + ("; read on charge (with the load off it reads more)" if kind == "battery" else "")
+        field = fr[0] + ("; on charge (at no load it reads more)" if kind == "battery" else "")
     elif dial_hot:
         field = f"as the dial's row: {_range_text(min(dial_hot), max(dial_hot), 'A')} with hot windings"
     elif s.connection == "series":
@@ -1057,8 +1060,24 @@ def checklist_rows(result, option, run=None):
         rows.append(("Drive-trip interlock (bypass switch across the booster or line contactor)",
                      "fitted; tried once with the feeder off load"))
     if s.connection != "series":
-        rows.append(("Field discharge path fitted (discharge resistor or freewheel path)", "fitted"))
+        rows.append(("Field discharge path fitted", "fitted (discharge resistor or freewheel path)"))
     return rows
+
+
+def battery_closing_text(job, option):
+    """How to close onto the bank after the no-load check: the voltmeter brought down to just above the
+    cut-out's closing voltage with the rheostat, then the isolator closed and the field brought back.
+
+    At the full no-load voltage the difference to the bank's rest voltage drives a surge limited only by
+    the bank, the leads and the armature (common practice: close a charging set onto its battery with the
+    voltage just above the battery's).
+    """
+    from .jobs.battery import cutout_closing_voltage_v
+    close = cutout_closing_voltage_v(job)
+    r = _mapping(option_value(option, "readings"))
+    back = f"back to {_round(r['rheostat_ohm'])} Ω" if _given(r.get("rheostat_ohm")) else "back to the setting"
+    return (f"to close: rheostat up to about {fmt(close + 2.0, 'V')} (cut-out {fmt(close, 'V')}), close the "
+            f"isolator, {back}")
 
 
 #: How far the bank's temperature may read from the plan's before the plan is made again [degC]: 5 degC
@@ -1070,7 +1089,13 @@ def battery_temperature_check_text(job):
     """The checklist's expected battery temperature: the plan's, how far a reading may be off, and where
     the charge stops (the job's temperature caution's limit)."""
     from .jobs.battery import CHARGE_STOP_TEMPERATURE_C, chemistry
+    from .jobs.battery import CHARGE_START_MAX_TEMPERATURE_C
     shift = abs(chemistry(job.chemistry).temperature_coefficient_v_per_c) * BATTERY_TEMPERATURE_CHECK_C
+    start = CHARGE_START_MAX_TEMPERATURE_C[job.chemistry]
+    if job.temperature_c > start:
+        # the job's caution says to let it cool first: the plan at this temperature is not the one to run
+        return (f"planned at {fmt(job.temperature_c, '°C')}, above {fmt(start, '°C')}: let the bank cool first, then "
+                f"plan again at its temperature; stop at {fmt(CHARGE_STOP_TEMPERATURE_C[job.chemistry], '°C')}")
     return (f"{fmt(job.temperature_c, '°C')} at the start as planned; {fmt(BATTERY_TEMPERATURE_CHECK_C, '°C')} off "
             f"moves the hand-over {fmt(shift, 'V')} per cell: plan again; "
             f"stop at {fmt(CHARGE_STOP_TEMPERATURE_C[job.chemistry], '°C')}")
@@ -1101,8 +1126,23 @@ def end_of_charge_text(stage, job=None):
     if job is not None and job.chemistry == "lead-acid-vented":
         from .jobs.battery import LEAD_ACID_REST_OFFSET_V, open_circuit_voltage_per_cell, chemistry
         full = float(open_circuit_voltage_per_cell(chemistry(job.chemistry), 1.0, job.open_circuit_voltage_per_cell_v))
-        parts.append(f"gravity then about {full - LEAD_ACID_REST_OFFSET_V:.2f}")
+        sg = full - LEAD_ACID_REST_OFFSET_V
+        read = sg - HYDROMETER_SG_PER_C * (job.temperature_c - 25.0)
+        if abs(job.temperature_c - 25.0) >= HYDROMETER_CORRECT_FROM_C:
+            # a hydrometer in cold acid reads high, in warm acid low: the shop reads it uncorrected
+            parts.append(f"gravity then about {read:.3f} as read at {fmt(job.temperature_c, '°C')} "
+                         f"({sg:.2f} at 25 °C)")
+        else:
+            parts.append(f"gravity then about {sg:.2f}")
     return "; ".join(parts)
+
+
+#: Change of a lead-acid electrolyte's specific gravity per degC, falling as it warms (hydrometer
+#: correction, about 0.0007 per degC: common practice, recalled).
+HYDROMETER_SG_PER_C = 0.0007
+#: Distance from 25 degC [degC] from which the checklist gives the gravity as read at the bank's
+#: temperature: below it the correction is under 0.002, finer than a hydrometer reads.
+HYDROMETER_CORRECT_FROM_C = 3.0
 
 
 def handover_check_text(plan):

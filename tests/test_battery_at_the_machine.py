@@ -254,7 +254,7 @@ def test_card_says_the_start_reading_is_on_charge(result):
     assert "Field ammeter reads on charge at the start" in rows
     checks = dict(checklist_rows(result, result.options[0]))
     assert checks["Field ammeter, on charge at the start"].endswith(
-        "read on charge (with the load off it reads more)")
+        "; on charge (at no load it reads more)")
 
 
 def test_a_setting_the_bank_drives_backwards_is_not_usable(profile):
@@ -369,11 +369,38 @@ def test_the_bank_is_protected_by_a_fuse_and_an_isolator(result):
     from supplycfg.wiring import wiring
     c = rules(result.cautions)["battery-protection"]
     assert c.severity == "warn" and "about 2.8 kA at 127 V DC" in c.message
+    # rated for the bank's highest on charge (60 x 2.7 V per cell at 25 degC), not its rest voltage (regression)
+    assert "rated for at least 162 V DC" in c.message
     assert_allclose(c.figures["prospective_short_circuit_current_a"], 60 * 2.12 / 0.045, rtol=1e-9)
     o = result.options[0]
     steps = " ".join(wiring(result.machine, o.setting, "battery").steps)
     assert "fuse (or DC breaker) and an isolating switch at the battery end" in steps
-    assert "No-load voltage at speed, battery isolator open" in dict(checklist_rows(result, o))
+    assert "No-load voltage, isolator open; closing onto the bank" in dict(checklist_rows(result, o))
+
+
+def test_closing_onto_the_bank_is_told_after_the_no_load_check(result):
+    """The no-load check (isolator open) leaves the machine at about 190 V against a bank resting at about
+    120 V: closed there, the isolator throws some 70 V onto the bank, the leads and the armature (about 150 A
+    on the demo, past the machine's 120 A short-time limit). The row says to bring the voltmeter down to
+    just above the cut-out's closing voltage (2.17 V per cell x 60 = 130.2 V) with the rheostat before
+    closing, then to go back to the setting (common practice for charging sets). (Regression: nothing said
+    how to close.)"""
+    o = result.options[0]
+    text = dict(checklist_rows(result, o))["No-load voltage, isolator open; closing onto the bank"]
+    assert "to close: rheostat up to about 132.2 V (cut-out 130.2 V), close the isolator" in text
+    assert text.endswith(f"back to {o.readings['rheostat_ohm']:.3g} Ω")
+
+
+def test_a_hot_bank_checklist_says_to_cool_and_plan_again(tmp_path):
+    """A vented lead-acid bank at 48 degC is above the 45 degC start limit (makers' instructions, recalled):
+    the job caution says to let it cool, and the checklist's temperature row says the same, not '48 degC at
+    the start as planned'. (Regression: the two disagreed.)"""
+    from supplycfg.report import battery_temperature_check_text
+    hot = load_profile(profile_variant("battery", tmp_path, "hot48.toml",
+                                       ("temperature_c = 25 ", "temperature_c = 48 "))).battery
+    words = battery_temperature_check_text(hot)
+    assert words.startswith("planned at 48 °C, above 45 °C: let the bank cool first, then plan again")
+    assert "as planned" not in words
 
 
 @pytest.mark.parametrize("temp, rule, severity", [(-20, "battery-frozen", "stop"), (-5, "battery-cold", "warn"),
@@ -443,3 +470,17 @@ def test_a_warm_nickel_cadmium_bank_is_noted_as_optimistic(profile):
     assert not battery.warm_nickel_cadmium_cautions(nicd)
     warm = replace(nicd, temperature_c=40.0)
     assert [c.rule for c in battery.warm_nickel_cadmium_cautions(warm)] == ["battery-warm-nicd"]
+
+
+@pytest.mark.parametrize("temp, want", [(2, "1.296 as read at 2 °C (1.28 at 25 °C)"),
+                                        (48, "1.264 as read at 48 °C (1.28 at 25 °C)"), (25, "about 1.28")])
+def test_end_of_charge_gravity_is_given_as_the_hydrometer_reads_it(tmp_path, temp, want):
+    """A hydrometer reads cold acid high and warm acid low, about 0.0007 per degC (common practice,
+    recalled): 1.28 at 25 degC reads about 1.296 at 2 degC and 1.264 at 48 degC. (Regression: 'about 1.28'
+    whatever the bank's temperature; at 48 degC an uncorrected 1.264 looks unfinished and invites
+    overcharging.)"""
+    from supplycfg.report import end_of_charge_text
+    job = load_profile(profile_variant("battery", tmp_path, "t.toml",
+                                       ("temperature_c = 25 ", f"temperature_c = {temp} "))).battery
+    text = end_of_charge_text({"end_terminal_voltage_v": 153.2, "end_volts_per_cell": 2.55, "to_h": 14.5}, job)
+    assert want in text

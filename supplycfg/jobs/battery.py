@@ -2374,14 +2374,18 @@ def battery_protection_cautions(job):
     """The bank, not the machine, gives the largest fault current in a charging plant: a fuse or DC breaker
     that breaks it and an isolating switch, at the battery end of its leads."""
     isc, v = prospective_short_circuit_current_a(job), cells_rest_voltage_v(job)
+    # the device must also withstand what the circuit reaches on charge, not the rest voltage alone
+    v_top = job.cells * highest_volts_per_cell(job.chemistry, job.temperature_c)
     size = f"{isc / 1e3:.2g} kA" if isc >= 1e3 else f"{isc:.3g} A"
     return [caution("battery-protection", "warn",
                     f"Fit a fuse or DC breaker that breaks the bank's prospective short-circuit current (about {size} "
-                    f"at {v:.0f} V DC at its terminals) and an isolating switch, in the battery leads as near the "
-                    "battery as you can: a cut-out does not break a fault. Open the isolator for the no-load check.",
+                    f"at {v:.0f} V DC at its terminals), rated for at least {v_top:.0f} V DC (the bank's highest on "
+                    "charge; more where it also sees the machine's no-load voltage), and an isolating switch, in the "
+                    "battery leads as near the battery as you can: a cut-out does not break a fault. Open the "
+                    "isolator for the no-load check.",
                     "protection and isolation of battery circuits (IEC 62485-2, recalled, not checked against the "
                     "text; common practice); prospective current = rest voltage / internal resistance (closed form)",
-                    prospective_short_circuit_current_a=isc, bank_rest_voltage_v=v)]
+                    prospective_short_circuit_current_a=isc, bank_rest_voltage_v=v, rated_voltage_at_least_v=v_top)]
 
 
 #: Freezing point of lead-acid electrolyte [degC] by specific gravity: the handbook table of dilute
