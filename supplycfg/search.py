@@ -642,6 +642,9 @@ def search_machine_profile(machine_path, profile_path):
 
 
 def _num(v, f=".3g"):
+    # no e-notation for a reader: a figure of 1000 or more is written whole (10740, not 1.074e+04)
+    if v is not None and f.endswith("g") and isinstance(v, (int, float)) and math.isfinite(v) and abs(v) >= 1000:
+        return f"{v:.0f}"
     return "-" if v is None else format(v, f)
 
 

@@ -484,7 +484,10 @@ def charge_from_files(machine_path, profile_path, setting=None, names=None, max_
 
 
 def _g(v, f=".4g"):
-    return "-" if v is None or not np.isfinite(v) else format(v, f)
+    if v is None or not np.isfinite(v):
+        return "-"
+    # no e-notation for a reader: a figure of 1000 or more is written whole
+    return f"{v:.0f}" if f.endswith("g") and abs(v) >= 1000 else format(v, f)
 
 
 def charge_text(run):

@@ -484,3 +484,25 @@ def test_end_of_charge_gravity_is_given_as_the_hydrometer_reads_it(tmp_path, tem
                                        ("temperature_c = 25 ", f"temperature_c = {temp} "))).battery
     text = end_of_charge_text({"end_terminal_voltage_v": 153.2, "end_volts_per_cell": 2.55, "to_h": 14.5}, job)
     assert want in text
+
+
+def test_large_figures_are_written_whole_not_in_e_notation(tmp_path, machine):
+    """A NiCd bank's natural-ventilation opening is about 10 700 cm² (A = 28 Q, IEC 62485-2): the search text
+    writes it whole. (Regression: '1.074e+04 cm²' shown to a technician.)"""
+    prof = load_profile(profile_variant("battery", tmp_path, "nicd.toml",
+                                        ('chemistry = "lead-acid-vented"', 'chemistry = "nickel-cadmium-vented"')))
+    res = search(machine, prof)
+    text = search_text(res, top=1)
+    assert "natural-ventilation opening, inlet and outlet each: " in text
+    assert "e+0" not in text
+
+
+def test_a_back_feeding_setting_is_not_also_said_to_drag_on(capsys):
+    """A shunt field weakened to 149 ohm leaves the machine below the bank: the bank drives some 400 A back
+    (a stop). The 'main charge falls below the lowest current: the charge drags on' warning means nothing
+    there and is left out. (Regression: '-433 A ... the charge drags on' beside the back-feed stop.)"""
+    assert main(["charge", str(ROOT / "profiles" / "machines" / "charging-set.toml"),
+                 str(ROOT / "profiles" / "loads" / "battery-charging.toml"), "--connection", "shunt",
+                 "--rheostat-ohm", "149"]) == 0
+    out = capsys.readouterr().out
+    assert "back into the machine" in out and "drags on" not in out

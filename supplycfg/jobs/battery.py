@@ -2257,7 +2257,9 @@ def option_cautions(machine, profile, setting, f):
                            f"finish's field, at most the finishing current {finishing_current_a(b):.3g} A.",
                            "two-rate charging of vented banks (common practice); the cell model at the starting "
                            "state of charge"))
-    if b.min_charge_current_a > 0 and not top_up and (il is None or il < b.min_charge_current_a * (1 - 1e-9)):
+    backfeeds = il is not None and il < 0  # the bank drives the machine: its stop says so, not "drags on"
+    if b.min_charge_current_a > 0 and not top_up and not backfeeds and (
+            il is None or il < b.min_charge_current_a * (1 - 1e-9)):
         out.append(caution("battery-main-current-low", "warn",
                            f"The main charge falls to {'no current' if il is None else f'{il:.3g} A'} before the "
                            f"hand-over, below the job's lowest {b.min_charge_current_a:g} A: the charge drags on.",
