@@ -122,6 +122,20 @@ _SEEN_IN = re.compile(r"(?<=\()\s*seen\s*;\s*|,\s*seen\s*(?=;)", re.I)
 _MEMORY = re.compile(r"from memory", re.I)
 
 
+#: A file key (``peak_armature_current_a``) as a reader's words: unit suffixes dropped, max/min said.
+_FILE_KEY = re.compile(r"\b[a-z]+(?:_[a-z0-9]+)+\b")
+_KEY_UNITS = ("a", "v", "kw", "w", "percent", "ohm", "rpm", "c", "h", "s", "ah", "mb")
+_KEY_WORDS = {"max": "highest", "min": "lowest"}
+
+
+def file_key_words(key):
+    """``'peak_armature_current_a'`` -> ``'peak armature current'``: a file key in a source line, as words."""
+    parts = key.split("_")
+    if len(parts) > 1 and parts[-1] in _KEY_UNITS:
+        parts = parts[:-1]
+    return " ".join(_KEY_WORDS.get(p, p) for p in parts)
+
+
 def source_text(basis):
     """What a rule or figure rests on, as a reader's line: ``"Source: IEC 60974-1"``.
 
@@ -129,6 +143,7 @@ def source_text(basis):
     "recalled, not checked against the text".
     """
     s = _SEEN_IN.sub("", _SEEN.sub("", visible_text(basis))).strip()
+    s = _FILE_KEY.sub(lambda m: file_key_words(m.group(0)), s)
     s = _MEMORY.sub("recalled, not checked against the text", s)
     s = re.sub(r"\s+;", ";", s)
     return f"Source: {s}" if s else "Source: not stated"

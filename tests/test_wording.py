@@ -87,3 +87,12 @@ def test_series_booster_sheet_glossary_has_no_shunt_field_terms():
     assert res.options[0].setting.connection == "series"
     md = sheet_markdown(res).split("## Words used here")[1]
     assert "**series booster**" in md and "critical field resistance" not in md
+
+
+def test_source_lines_say_file_keys_in_words():
+    """Regression: sources read '(Source: the job's target_hours)' and 'machine file peak_armature_current_a'."""
+    assert source_text("the job's target_hours") == "Source: the job's target hours"
+    assert source_text("machine file peak_armature_current_a (default 2 x rated, common practice)") == \
+        "Source: machine file peak armature current (default 2 x rated, common practice)"
+    assert source_text("the job's max_charge_current_a") == "Source: the job's highest charge current"
+    assert "_" not in source_text("the profile's rated_power_kw; ISO 3046-1")
