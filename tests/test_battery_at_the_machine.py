@@ -506,3 +506,21 @@ def test_a_back_feeding_setting_is_not_also_said_to_drag_on(capsys):
                  "--rheostat-ohm", "149"]) == 0
     out = capsys.readouterr().out
     assert "back into the machine" in out and "drags on" not in out
+
+
+def test_a_target_shorter_than_the_battery_allows_is_said(tmp_path):
+    """The charge to put back (Ah) at the bank's highest 22 A take at least Ah / A hours (closed form) whatever the
+    machine: a target below that is a job-wide warning, not a search for a better setting. The demo's
+    16 h target is above it: no warning. (Regression: only 'this plan takes 14.55 h against the job's 8 h'.)"""
+    from supplycfg.jobs.battery import least_hours_to_full, profile_cautions as job_cautions
+    demo_job = load_profile(ROOT / "profiles" / "loads" / "battery-charging.toml").battery
+    least = least_hours_to_full(demo_job)
+    assert_allclose(least, demo_job.capacity_ah * (demo_job.state_of_charge[1] - demo_job.state_of_charge[0])
+                    / demo_job.max_charge_current_a, rtol=1e-12)
+    assert 1.0 < least < 16.0
+    m = load_machine(ROOT / "profiles" / "machines" / "charging-set.toml")
+    assert "battery-target-too-short" not in {c.rule for c in job_cautions(m, load_profile(
+        ROOT / "profiles" / "loads" / "battery-charging.toml"))}
+    short = load_profile(profile_variant("battery", tmp_path, "short.toml", ("target_hours = 16", "target_hours = 5")))
+    c = {c.rule: c for c in job_cautions(m, short)}["battery-target-too-short"]
+    assert "cannot be met by any setting" in c.message and c.figures["least_hours"] == pytest.approx(least)

@@ -2336,9 +2336,33 @@ def profile_cautions(machine, profile):
                            stop_temperature_c=stop))
     out += cold_bank_cautions(b)
     out += charge_rate_cautions(b)
+    out += target_time_cautions(b)
     out += battery_protection_cautions(b)
     out += warm_nickel_cadmium_cautions(b)
     return out
+
+
+def least_hours_to_full(job):
+    """A lower bound of the hours to full [h]: the charge to put back, ``C (s_end - s_start)``, at the job's
+    highest charging current the whole time (closed form; the finish's lower current and the charge
+    lost to gas only add to it)."""
+    return job.capacity_ah * (job.state_of_charge[1] - job.state_of_charge[0]) / job.max_charge_current_a
+
+
+def target_time_cautions(job):
+    """Where the job's target hours are shorter than the battery's own highest current allows: no setting
+    of any machine meets them, and the search's near misses would otherwise look like the machine's fault."""
+    least = least_hours_to_full(job)
+    if job.target_hours >= least:
+        return []
+    ah = job.capacity_ah * (job.state_of_charge[1] - job.state_of_charge[0])
+    return [caution("battery-target-too-short", "warn",
+                    f"The target of {job.target_hours:g} h cannot be met by any setting: {ah:.0f} Ah to put back at "
+                    f"the bank's highest charging current of {job.max_charge_current_a:g} A take at least "
+                    f"{least:.1f} h, before the finish's lower current and the charge lost to gas. Allow more time, "
+                    "or a higher charging current if the battery maker allows it.",
+                    "the job's capacity, state of charge and highest charging current (closed form: Ah / A)",
+                    target_hours=job.target_hours, least_hours=least)]
 
 
 #: NiCd bank temperature [degC] above which the charge efficiency falls enough to matter: makers ask a
