@@ -524,3 +524,16 @@ def test_a_target_shorter_than_the_battery_allows_is_said(tmp_path):
     short = load_profile(profile_variant("battery", tmp_path, "short.toml", ("target_hours = 16", "target_hours = 5")))
     c = {c.rule: c for c in job_cautions(m, short)}["battery-target-too-short"]
     assert "cannot be met by any setting" in c.message and c.figures["least_hours"] == pytest.approx(least)
+
+
+def test_a_deeply_discharged_bank_gets_the_shops_checks(tmp_path):
+    """A bank starting at 0 % charge: check every cell first, charge at once, equalise after (common practice).
+    The demo's 20 % start gets no such note. (Regression: nothing was said.)"""
+    from supplycfg.jobs.battery import profile_cautions as job_cautions
+    m = load_machine(ROOT / "profiles" / "machines" / "charging-set.toml")
+    demo_rules = {c.rule for c in job_cautions(m, load_profile(ROOT / "profiles" / "loads" / "battery-charging.toml"))}
+    assert "battery-deep-discharge" not in demo_rules
+    flat = load_profile(profile_variant("battery", tmp_path, "flat.toml",
+                                        ("state_of_charge = [0.2, 1.0]", "state_of_charge = [0.0, 1.0]")))
+    c = {c.rule: c for c in job_cautions(m, flat)}["battery-deep-discharge"]
+    assert "every cell's voltage and gravity" in c.message and "equalising charge" in c.message

@@ -2337,9 +2337,32 @@ def profile_cautions(machine, profile):
     out += cold_bank_cautions(b)
     out += charge_rate_cautions(b)
     out += target_time_cautions(b)
+    out += deep_discharge_cautions(b)
     out += battery_protection_cautions(b)
     out += warm_nickel_cadmium_cautions(b)
     return out
+
+
+#: State of charge at or below which the bank counts as deeply discharged (common practice: a bank
+#: run to its end voltage is at about 10 % or less).
+DEEP_DISCHARGE_STATE_OF_CHARGE = 0.1
+
+
+def deep_discharge_cautions(job):
+    """A note where the charge starts from a deeply discharged bank: cells to check first, charge at once,
+    and an equalising charge after (common battery-shop practice)."""
+    s0 = job.state_of_charge[0]
+    if s0 > DEEP_DISCHARGE_STATE_OF_CHARGE:
+        return []
+    lead = job.chemistry.startswith("lead")
+    return [caution("battery-deep-discharge", "note",
+                    f"The bank starts at {100 * s0:.0f} % charge: before charging, read every cell's voltage"
+                    + (" and gravity" if job.chemistry == "lead-acid-vented" else "")
+                    + ": a cell well below the others may be reversed or shorted and needs the maker's attention. "
+                    + ("Charge a flat lead-acid bank at once (left flat it sulphates) and follow with an "
+                       "equalising charge as the maker asks." if lead else
+                       "Follow the maker's instructions for a fully discharged bank."),
+                    "battery-shop practice (common practice)", state_of_charge_start=s0)]
 
 
 def least_hours_to_full(job):
