@@ -853,7 +853,7 @@ def ranking_line(result, option):
         tied = f", as option {nxt.rank}; the tie goes to " if option.objective == nxt.objective \
             else f"{tie}the tie goes to "
         if why == "objective-in-tie":
-            return (f"{head}{tie}with the same rig and least margins alike to 0.1 % ({100 * option.smallest_margin:.1f} %) "
+            return (f"{head}{tie}with equally simple rigs and least margins alike to 0.1 % ({100 * option.smallest_margin:.1f} %) "
                     f"{BETTER_OBJECTIVE_WORDS.get(kind, 'the better objective')} ranks first.")
         if why == "order":
             return f"{head}{tied}neither: they are alike by every rule, listed in a fixed order."

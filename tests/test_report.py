@@ -621,3 +621,13 @@ def test_charge_plan_table_on_page_and_sheet_writes_the_ohm_sign():
     rows = report.plan_table(res.options[0])
     assert rows and all("ohm" not in r[1] for r in rows) and "Ω" in rows[0][1]
     assert "ohm" in plan_rows(res.options[0].extras["plan"])[0][1]
+
+
+def test_tie_line_does_not_call_two_connections_the_same_rig(results):
+    """The battery demo's first two plans are long and short shunt: their rigs are equally simple (same turns,
+    no diverter, no exciter), not 'the same rig'. (Regression: 'with the same rig'.)"""
+    res = results["battery"]
+    line = report.ranking_line(res, res.options[0])
+    assert "same rig" not in line
+    if "least margins alike" in line:
+        assert "equally simple rigs" in line
