@@ -117,8 +117,9 @@ def glossary_for(kind=None, connection=None):
 
 
 _SEEN = re.compile(r"\s*\(\s*seen\s*\)", re.I)
-#: "seen" leading a bracket or a clause of several: "(seen; stationary ...)", "boost, seen; onset ..."
-_SEEN_IN = re.compile(r"(?<=\()\s*seen\s*;\s*|,\s*seen\s*(?=;)", re.I)
+#: "seen" leading a bracket or a clause of several, or closing one: "(seen; stationary ...)", "boost, seen; onset
+#: ...", "(a local rule, ..., seen)"
+_SEEN_IN = re.compile(r"(?<=\()\s*seen\s*;\s*|,\s*seen\s*(?=[;)])", re.I)
 _MEMORY = re.compile(r"from memory", re.I)
 
 

@@ -371,3 +371,21 @@ def test_a_flat_process_dial_says_the_wire_feed_sets_the_current(tmp_path):
     assert html.escape(FLAT_DIAL_WORDS) in " ".join(sheet_html(res, charts=False).split())
     mma = search(m, load_profile(ROOT / "profiles" / "loads" / "welding.toml"))
     assert FLAT_DIAL_WORDS not in search_text(mma) and FLAT_DIAL_WORDS not in sheet_markdown(mma)
+
+
+def test_a_site_limit_the_dial_cannot_keep_says_what_would(tmp_path):
+    """A 60 V site limit on the welding demo: the dial's top rows need about 65 V, so every option stops; the
+    stop says where the voltage is highest and what would keep under it, and its source carries no project
+    marker. (Regression: 'No-load voltage 65.4 V is above the 60 V limit set for this job.' alone, and
+    '..., seen)' in the source.)"""
+    from supplycfg.profile import load_profile
+    from supplycfg.machine import load_machine
+    from supplycfg.search import search, search_text
+    root = Path(__file__).resolve().parents[1]
+    text = (root / "profiles" / "loads" / "welding.toml").read_text().replace(
+        "max_no_load_voltage_v = 100 ", "max_no_load_voltage_v = 60 ")
+    (tmp_path / "low.toml").write_text(text)
+    res = search(load_machine(root / "profiles" / "machines" / "welding-set.toml"), load_profile(tmp_path / "low.toml"))
+    c = {c.rule: c for c in res.options[0].cautions}["welding-no-load-local-limit"]
+    assert c.severity == "stop" and "narrow the current range" in c.message
+    assert ", seen)" not in search_text(res)

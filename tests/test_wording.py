@@ -96,3 +96,10 @@ def test_source_lines_say_file_keys_in_words():
         "Source: machine file peak armature current (default 2 x rated, common practice)"
     assert source_text("the job's max_charge_current_a") == "Source: the job's highest charge current"
     assert "_" not in source_text("the profile's rated_power_kw; ISO 3046-1")
+
+
+def test_seen_closing_a_bracket_is_dropped():
+    """Regression: '(a local rule, e.g. US 29 CFR 1910.254(b)(3): 100 V DC for manual welding, seen)' reached a
+    welding near miss's source line."""
+    assert source_text("the job's limit (a local rule, e.g. 100 V DC, seen)") == \
+        "Source: the job's limit (a local rule, e.g. 100 V DC)"

@@ -1049,8 +1049,12 @@ def option_cautions(machine, profile, setting, f):
     mean, mean_lim = f.get("max_no_load_voltage_v"), f.get("no_load_mean_limit_v")
     if mean is not None and mean_lim is not None and mean > mean_lim:
         out.append(caution("welding-no-load-local-limit", "stop",
-                      f"No-load voltage {mean:.1f} V is above the {mean_lim:.0f} V limit set for this job.",
-                      "the profile's max_no_load_voltage_v (a local rule, e.g. US 29 CFR 1910.254(b)(3): 100 V DC for manual welding, seen)",
+                      f"No-load voltage reaches {mean:.1f} V, above the {mean_lim:.0f} V limit set for this job (the "
+                      "highest at the top of the dial, top speed, cold windings): a welder touching the electrode "
+                      "and the work gets more than the site allows. A dial held under it reaches less current: "
+                      "narrow the current range, lower the speed, or check what the site rule allows.",
+                      "the profile's max_no_load_voltage_v (a local rule, e.g. US 29 CFR 1910.254(b)(3): 100 V DC "
+                      "for manual welding)",
                       max_no_load_voltage_v=mean, limit_v=mean_lim))
     de, rated = f.get("duty_equivalent_current_a"), machine.rated_armature_current_a
     if de is not None and de > rated:
